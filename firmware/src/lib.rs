@@ -1,0 +1,2 @@
+//! Chip-independent firmware of an envord node (being written).
+#![no_std]

@@ -1,0 +1,2 @@
+//! `envord`: the host simulator and gateway command (being written).
+fn main() {}
