@@ -4,7 +4,11 @@ use clap::{Parser, Subcommand};
 use std::process::ExitCode;
 
 #[derive(Parser)]
-#[command(name = "envord", version, about = "Bearing envelope order analysis, as the node runs it")]
+#[command(
+    name = "envord",
+    version,
+    about = "Bearing envelope order analysis, as the node runs it"
+)]
 struct Cli {
     #[command(subcommand)]
     command: Command,
