@@ -68,7 +68,10 @@ mod tests {
     #[test]
     fn matches_direct_difference_equation() {
         // y[n] = 0.5 x[n] + 0.2 x[n-1] + 0.1 y[n-1] - 0.05 y[n-2], computed by hand below.
-        let s = Sos { b: [0.5, 0.2, 0.0], a: [1.0, -0.1, 0.05] };
+        let s = Sos {
+            b: [0.5, 0.2, 0.0],
+            a: [1.0, -0.1, 0.05],
+        };
         let mut f = BiquadCascade::new(SosCascade::from_sections(&[s]).unwrap());
         let x = [1.0f32, 2.0, -1.0, 0.5, 0.0];
         let mut y = x;

@@ -136,7 +136,10 @@ pub fn kaiser_order(a_db: f64, width: f64) -> (usize, f64) {
         0.0
     };
     let n = libm::ceil((a_db - 7.95) / 2.285 / (core::f64::consts::PI * width) + 1.0);
-    (crate::num::f32_to_usize_sat(crate::num::f64_to_f32(n)), beta)
+    (
+        crate::num::f32_to_usize_sat(crate::num::f64_to_f32(n)),
+        beta,
+    )
 }
 
 /// Modified Bessel function I0 by its power series (converges for all x).
@@ -207,10 +210,19 @@ impl Decimator {
             let width = 2.0 * (rate_out - 2.0 * PASS_FRACTION) / rate_in;
             let (taps, beta) = kaiser_order(STOP_DB, width);
             let end = offset + taps;
-            let slot = d.taps.get_mut(offset..end).ok_or(DecimateError::TooManyTaps)?;
+            let slot = d
+                .taps
+                .get_mut(offset..end)
+                .ok_or(DecimateError::TooManyTaps)?;
             kaiser_lowpass(slot, 1.0 / f64::from(m), beta);
             slot.reverse();
-            *st = Stage { factor: m, taps, offset, pos: 0, phase: 0 };
+            *st = Stage {
+                factor: m,
+                taps,
+                offset,
+                pos: 0,
+                phase: 0,
+            };
             offset = end;
             rate_in = rate_out;
         }
@@ -224,7 +236,10 @@ impl Decimator {
 
     /// Stage factors and tap counts, in processing order.
     pub fn stages(&self) -> impl Iterator<Item = (u16, usize)> + '_ {
-        self.stages.iter().take(self.n_stages).map(|s| (s.factor, s.taps))
+        self.stages
+            .iter()
+            .take(self.n_stages)
+            .map(|s| (s.factor, s.taps))
     }
 
     /// Taps of stage `i` in natural order reversed (as stored: oldest-sample
@@ -262,7 +277,13 @@ impl Decimator {
     /// (after inputs factor-1, 2 factor-1, ...).
     #[inline]
     pub fn push(&mut self, x: f32) -> Option<f32> {
-        let Self { stages, n_stages, taps, ring, .. } = self;
+        let Self {
+            stages,
+            n_stages,
+            taps,
+            ring,
+            ..
+        } = self;
         let mut v = x;
         for st in stages.iter_mut().take(*n_stages) {
             let n = st.taps;

@@ -202,9 +202,8 @@ impl Cx {
 /// the frequency that maps to the analog geometric centre.
 pub fn bandpass_centre_hz(lo_hz: f32, hi_hz: f32, fs_hz: f32) -> f32 {
     let fs = f64::from(fs_hz);
-    let t = libm::sqrt(
-        libm::tan(PI * f64::from(lo_hz) / fs) * libm::tan(PI * f64::from(hi_hz) / fs),
-    );
+    let t =
+        libm::sqrt(libm::tan(PI * f64::from(lo_hz) / fs) * libm::tan(PI * f64::from(hi_hz) / fs));
     crate::num::f64_to_f32(fs / PI * libm::atan(t))
 }
 
@@ -324,11 +323,29 @@ mod tests {
 
     #[test]
     fn rejects_bad_input() {
-        assert_eq!(butter_bandpass(f32::NAN, 5.0, 100.0, 4), Err(DesignError::NonFinite));
-        assert_eq!(butter_bandpass(5.0, 5.0, 100.0, 4), Err(DesignError::BandOrder));
-        assert_eq!(butter_bandpass(0.0, 5.0, 100.0, 4), Err(DesignError::BandOrder));
-        assert_eq!(butter_bandpass(5.0, 48.0, 100.0, 4), Err(DesignError::AboveLimit));
-        assert_eq!(butter_bandpass(5.0, 20.0, 100.0, 3), Err(DesignError::Poles));
-        assert_eq!(butter_bandpass(5.0, 20.0, -100.0, 4), Err(DesignError::SampleRate));
+        assert_eq!(
+            butter_bandpass(f32::NAN, 5.0, 100.0, 4),
+            Err(DesignError::NonFinite)
+        );
+        assert_eq!(
+            butter_bandpass(5.0, 5.0, 100.0, 4),
+            Err(DesignError::BandOrder)
+        );
+        assert_eq!(
+            butter_bandpass(0.0, 5.0, 100.0, 4),
+            Err(DesignError::BandOrder)
+        );
+        assert_eq!(
+            butter_bandpass(5.0, 48.0, 100.0, 4),
+            Err(DesignError::AboveLimit)
+        );
+        assert_eq!(
+            butter_bandpass(5.0, 20.0, 100.0, 3),
+            Err(DesignError::Poles)
+        );
+        assert_eq!(
+            butter_bandpass(5.0, 20.0, -100.0, 4),
+            Err(DesignError::SampleRate)
+        );
     }
 }
