@@ -65,6 +65,17 @@ pub fn ring_needed(decimated_rate_hz: f32, min_rpm: f32) -> usize {
     crate::num::f32_to_usize_sat(libm::ceilf(3.0 * rev)).saturating_add(16)
 }
 
+/// Interpolation between decimated envelope samples.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Interpolation {
+    /// 4-tap Catmull-Rom cubic (the default).
+    #[default]
+    CatmullRom,
+    /// 2-tap linear; cheaper and less accurate, kept as a baseline.
+    Linear,
+}
+
 /// Configuration of the order tracker.
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
@@ -80,6 +91,8 @@ pub struct OrderTrackConfig {
     pub delay_input_samples: f32,
     /// Slowest speed to be tracked; sizes the ring check in [`OrderTracker::new`].
     pub min_rpm: f32,
+    /// Interpolation kernel.
+    pub interpolation: Interpolation,
 }
 
 impl Default for OrderTrackConfig {
@@ -90,6 +103,7 @@ impl Default for OrderTrackConfig {
             input_rate_hz: 6_400.0,
             delay_input_samples: 0.0,
             min_rpm: 600.0,
+            interpolation: Interpolation::CatmullRom,
         }
     }
 }
@@ -203,6 +217,7 @@ pub struct OrderTracker<const RING: usize> {
     inv_s: f32,
     decim: f64,
     delay: f64,
+    interp: Interpolation,
     ring: [f32; RING],
     /// Decimated samples pushed so far.
     pushed: u64,
@@ -240,6 +255,7 @@ impl<const RING: usize> OrderTracker<RING> {
             inv_s: 1.0 / f32::from(s),
             decim: f64::from(cfg.decimation),
             delay: f64::from(cfg.delay_input_samples),
+            interp: cfg.interpolation,
             ring: [0.0; RING],
             pushed: 0,
             marks: [0.0; 4],
@@ -415,7 +431,13 @@ impl<const RING: usize> OrderTracker<RING> {
             let k = libm::floorf(off);
             let mu = off - k;
             let j = jb.saturating_add(i64::from(crate::num::f32_to_i32_sat(k)));
-            out(self.catmull_rom(j, mu));
+            out(match self.interp {
+                Interpolation::CatmullRom => self.catmull_rom(j, mu),
+                Interpolation::Linear => {
+                    let y1 = self.at(j);
+                    y1 + mu * (self.at(j + 1) - y1)
+                }
+            });
         }
     }
 
