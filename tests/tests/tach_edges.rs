@@ -3,7 +3,11 @@
 //! Reference: linear interpolation is exact on a linear ramp (Lagrange
 //! interpolation of degree 1); the hysteresis comparator (Schmitt trigger)
 //! suppresses noise smaller than half the threshold gap (common practice).
-#![allow(clippy::unwrap_used, clippy::indexing_slicing, clippy::cast_possible_truncation)]
+#![allow(
+    clippy::unwrap_used,
+    clippy::indexing_slicing,
+    clippy::cast_possible_truncation
+)]
 
 use dsp_core::order_track::{OrderTrackConfig, OrderTracker};
 use dsp_core::tach::{EdgeDetector, SpeedSource, TachConfig, TachTracker};
@@ -56,14 +60,21 @@ fn sub_sample_edge_times_on_smooth_edges() {
             let t = i as f64;
             let v: f64 = truth
                 .iter()
-                .map(|&e| 0.5 * (1.0 + ((t - e) / 1.5).tanh()) - 0.5 * (1.0 + ((t - e - 100.0) / 1.5).tanh()))
+                .map(|&e| {
+                    0.5 * (1.0 + ((t - e) / 1.5).tanh())
+                        - 0.5 * (1.0 + ((t - e - 100.0) / 1.5).tanh())
+                })
                 .sum();
             v as f32
         })
         .collect();
     let e = detect(&x, 0.25, 0.75, 64);
     assert_eq!(e.len(), truth.len());
-    let worst = e.iter().zip(&truth).map(|(a, b)| (a - b).abs()).fold(0.0, f64::max);
+    let worst = e
+        .iter()
+        .zip(&truth)
+        .map(|(a, b)| (a - b).abs())
+        .fold(0.0, f64::max);
     println!("tanh edges: worst edge-time error {worst:.4} samples");
     assert!(worst < 0.05);
 }
@@ -74,18 +85,28 @@ fn hysteresis_rejects_chatter() {
     let mut x = pulse_wave(8200, &truth, 40.0, 150.0); // slow edges: 40 samples in the noise band
     let mut st: u64 = 3;
     for v in &mut x {
-        st = st.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+        st = st
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
         let r = ((st >> 40) as f32 / (1u64 << 24) as f32) * 2.0 - 1.0;
         *v += 0.15 * r; // noise below half the hysteresis gap (0.2)
     }
     let e = detect(&x, 0.3, 0.7, 128);
-    assert_eq!(e.len(), truth.len(), "hysteresis must give one edge per transition");
+    assert_eq!(
+        e.len(),
+        truth.len(),
+        "hysteresis must give one edge per transition"
+    );
     for (a, b) in e.iter().zip(&truth) {
         assert!((a - b).abs() < 8.0, "{a} vs {b}");
     }
     // Negative control: a 0.02 gap chatters on the same signal.
     let chatter = detect(&x, 0.49, 0.51, 128);
-    assert!(chatter.len() > truth.len() + 5, "control found {} edges", chatter.len());
+    assert!(
+        chatter.len() > truth.len() + 5,
+        "control found {} edges",
+        chatter.len()
+    );
 }
 
 #[test]

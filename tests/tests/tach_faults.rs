@@ -2,7 +2,11 @@
 //! Speed definition used throughout: rpm = 60 · fs / (samples per revolution)
 //! (definition of rotational speed). Fault thresholds (0.5x interval = extra
 //! pulse, ~2x = missing pulse) are common practice for tach conditioning.
-#![allow(clippy::unwrap_used, clippy::indexing_slicing, clippy::cast_possible_truncation)]
+#![allow(
+    clippy::unwrap_used,
+    clippy::indexing_slicing,
+    clippy::cast_possible_truncation
+)]
 
 use dsp_core::tach::{RevMark, SpeedSource, SpeedSummary, TachConfig, TachFlags, TachTracker};
 
@@ -27,7 +31,8 @@ fn run(c: TachConfig, ticks: &[u32], end_samples: u64) -> (SpeedSummary, Vec<Rev
     let mut marks = Vec::new();
     for &k in ticks {
         t.push_edge(k, |m| marks.push(m));
-        let now = (k.wrapping_sub(c.tick_at_sample0) as f64 * f64::from(FS) / f64::from(c.tick_hz)) as u64;
+        let now = (k.wrapping_sub(c.tick_at_sample0) as f64 * f64::from(FS) / f64::from(c.tick_hz))
+            as u64;
         t.advance_to(now, |m| marks.push(m));
     }
     t.advance_to(end_samples, |m| marks.push(m));
@@ -38,7 +43,9 @@ fn run(c: TachConfig, ticks: &[u32], end_samples: u64) -> (SpeedSummary, Vec<Rev
 /// Edge ticks of a constant speed, n pulses.
 fn steady(rpm: f64, n: u32) -> Vec<u32> {
     let period = 60.0 * f64::from(TICK_HZ) / rpm;
-    (0..n).map(|k| (1000.0 + f64::from(k) * period).round() as u32).collect()
+    (0..n)
+        .map(|k| (1000.0 + f64::from(k) * period).round() as u32)
+        .collect()
 }
 
 fn end_of(ticks: &[u32]) -> u64 {
@@ -58,7 +65,9 @@ fn clean_steady_speed() {
 
 /// Deterministic pseudo-random in [-1, 1).
 fn lcg(state: &mut u64) -> f64 {
-    *state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+    *state = state
+        .wrapping_mul(6364136223846793005)
+        .wrapping_add(1442695040888963407);
     ((*state >> 11) as f64 / (1u64 << 53) as f64) * 2.0 - 1.0
 }
 
@@ -67,7 +76,9 @@ fn small_jitter_does_not_flag() {
     let period = 40_000.0;
     let mut st = 7;
     // ±1 % of a period of timing jitter on each edge.
-    let e: Vec<u32> = (0..60).map(|k| (1000.0 + f64::from(k) * period + 400.0 * lcg(&mut st)) as u32).collect();
+    let e: Vec<u32> = (0..60)
+        .map(|k| (1000.0 + f64::from(k) * period + 400.0 * lcg(&mut st)) as u32)
+        .collect();
     let (s, marks) = run(cfg(), &e, end_of(&e));
     assert_eq!(marks.len(), 60);
     assert!(!s.flags.is_fault(), "jitter flagged: {:?}", s.flags);
@@ -103,7 +114,11 @@ fn double_pulses_are_dropped_and_flagged() {
     assert_eq!(marks.len(), 40);
     for (m, &k) in marks.iter().zip(&truth) {
         let t = f64::from(k) * f64::from(FS) / f64::from(TICK_HZ);
-        assert!((m.time_samples - t).abs() < 1e-6, "kept the wrong edge at {}", m.index);
+        assert!(
+            (m.time_samples - t).abs() < 1e-6,
+            "kept the wrong edge at {}",
+            m.index
+        );
     }
 }
 
@@ -156,7 +171,9 @@ fn speed_change_beyond_limit_flags() {
     let e = ramp(1500.0, 1800.0, 60); // 20 % change, limit 10 %
     let (s, _) = run(cfg(), &e, end_of(&e));
     assert!(s.flags.contains(TachFlags::SPEED_CHANGE), "{:?}", s.flags);
-    assert!(!s.flags.contains(TachFlags::MISSING_PULSE) && !s.flags.contains(TachFlags::EXTRA_PULSE));
+    assert!(
+        !s.flags.contains(TachFlags::MISSING_PULSE) && !s.flags.contains(TachFlags::EXTRA_PULSE)
+    );
     let e = ramp(1500.0, 1530.0, 60); // 2 %
     let (s, _) = run(cfg(), &e, end_of(&e));
     assert!(!s.flags.contains(TachFlags::SPEED_CHANGE));
@@ -170,7 +187,10 @@ fn stop_during_record_flags_and_restarts() {
     e.extend((1..=20).map(|k| last + 10 * 40_000 + k * 40_000)); // 10 revolutions without pulses
     let (s, marks) = run(cfg(), &e, end_of(&e));
     assert!(s.flags.contains(TachFlags::STOP), "{:?}", s.flags);
-    assert!(!s.flags.contains(TachFlags::MISSING_PULSE), "a stop must not be bridged");
+    assert!(
+        !s.flags.contains(TachFlags::MISSING_PULSE),
+        "a stop must not be bridged"
+    );
     assert_eq!(marks.len(), 40);
     assert!(marks[20].segment_start);
     assert_eq!(s.revs, 38, "no revolution spans the stop");
@@ -190,7 +210,9 @@ fn stop_before_end_of_record_flags() {
 fn counter_wrap_is_not_a_fault() {
     let mut c = cfg();
     c.tick_at_sample0 = u32::MAX - 200_000;
-    let e: Vec<u32> = (0..40u32).map(|k| c.tick_at_sample0.wrapping_add(1000 + k * 40_000)).collect();
+    let e: Vec<u32> = (0..40u32)
+        .map(|k| c.tick_at_sample0.wrapping_add(1000 + k * 40_000))
+        .collect();
     assert!(e.windows(2).any(|w| w[1] < w[0]), "the sequence must wrap");
     let (s, marks) = run(c, &e, 40 * 2048 + 200);
     assert!(!s.flags.is_fault(), "{:?}", s.flags);
@@ -218,7 +240,12 @@ fn ten_minutes_keep_sub_sample_precision() {
     let last = marks.last().unwrap();
     let exact = ((n - 1) * period_ticks + 777) as f64 / 1000.0;
     assert!(exact > 3.0e7);
-    assert!((last.time_samples - exact).abs() < 1e-4, "{} vs {}", last.time_samples, exact);
+    assert!(
+        (last.time_samples - exact).abs() < 1e-4,
+        "{} vs {}",
+        last.time_samples,
+        exact
+    );
     assert!(s.flags.contains(TachFlags::SERIES_TRUNCATED));
     assert_eq!(t.speed_series().len(), dsp_core::tach::SERIES_CAP);
     assert_eq!(s.revs as u64, n - 1, "stats cover all revolutions");
@@ -247,7 +274,10 @@ fn several_pulses_per_rev() {
 
 #[test]
 fn constant_speed_virtual_marks() {
-    let src = SpeedSource::Constant { rpm: 1500.0, sample_rate_hz: FS };
+    let src = SpeedSource::Constant {
+        rpm: 1500.0,
+        sample_rate_hz: FS,
+    };
     let mut t = TachTracker::new(&src).unwrap();
     let mut marks = Vec::new();
     for b in 1..=100u64 {
@@ -272,5 +302,9 @@ fn bad_configs_are_typed_errors() {
     let mut c = cfg();
     c.pulses_per_rev = 0;
     assert!(TachTracker::new(&SpeedSource::Tach(c)).is_err());
-    assert!(TachTracker::new(&SpeedSource::Constant { rpm: -1.0, sample_rate_hz: FS }).is_err());
+    assert!(TachTracker::new(&SpeedSource::Constant {
+        rpm: -1.0,
+        sample_rate_hz: FS
+    })
+    .is_err());
 }
