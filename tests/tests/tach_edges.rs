@@ -192,3 +192,84 @@ proptest! {
         prop_assert_eq!(out, ot.revs_emitted() as usize * 16);
     }
 }
+
+#[derive(Debug, Clone, Copy)]
+enum Glitch {
+    Clean,
+    Jitter(i32),
+    Drop,
+    Double(u32),
+    Gap(u32),
+}
+
+fn glitch() -> impl Strategy<Value = Glitch> {
+    prop_oneof![
+        6 => Just(Glitch::Clean),
+        3 => (-300i32..300).prop_map(Glitch::Jitter),
+        1 => Just(Glitch::Drop),
+        1 => (1u32..39_000).prop_map(Glitch::Double),
+        1 => (1u32..20).prop_map(Glitch::Gap),
+    ]
+}
+
+proptest! {
+    // Plausible pulse trains (1500 rpm, 1 MHz timer) with random dropouts,
+    // double pulses, jitter and stops, through tach and order tracker: no
+    // panic, whole revolutions only, and every glitch kind leaves its flag.
+    #[test]
+    fn glitched_pulse_trains_flag_and_stay_whole(
+        g in proptest::collection::vec(glitch(), 10..80),
+        tick0 in any::<u32>(),
+    ) {
+        use dsp_core::tach::TachFlags;
+        let mut c = TachConfig::default();
+        c.tick_at_sample0 = tick0;
+        c.min_rpm = 600.0;
+        c.max_rpm = 3000.0;
+        let mut tr = TachTracker::new(&SpeedSource::Tach(c)).unwrap();
+        let mut oc = OrderTrackConfig::default();
+        oc.samples_per_rev = 32;
+        oc.decimation = 32;
+        oc.input_rate_hz = 1600.0;
+        oc.min_rpm = 600.0;
+        let mut ot = OrderTracker::<1024>::new(&oc).unwrap();
+        let mut out = 0usize;
+        let mut tick: u64 = 5_000;
+        let mut edges: Vec<u64> = Vec::new();
+        for &x in &g {
+            tick += 40_000;
+            match x {
+                Glitch::Clean => edges.push(tick),
+                Glitch::Jitter(j) => edges.push(tick.saturating_add_signed(i64::from(j))),
+                Glitch::Drop => {}
+                Glitch::Double(d) => { edges.push(tick); edges.push(tick + u64::from(d) / 8); }
+                Glitch::Gap(n) => { tick += u64::from(n) * 40_000 * 4; edges.push(tick); }
+            }
+        }
+        let mut next = 0;
+        let end = tick * 512 / 10_000 + 2_000; // input samples (51.2 per tick·1000)
+        let mut j = 0u64;
+        while j * 32 < end {
+            while next < edges.len() && edges[next] * 512 / 10_000 < (j + 1) * 32 {
+                tr.push_edge(tick0.wrapping_add(edges[next] as u32), |m| ot.push_mark(m, |_| out += 1));
+                next += 1;
+            }
+            tr.advance_to((j + 1) * 32, |m| ot.push_mark(m, |_| out += 1));
+            ot.push_sample(1.0, |_| out += 1);
+            j += 1;
+        }
+        let s = tr.finish(|m| ot.push_mark(m, |_| out += 1));
+        ot.finish(|_| out += 1);
+        prop_assert_eq!(out, ot.revs_emitted() as usize * 32);
+        if g.iter().any(|x| matches!(x, Glitch::Gap(n) if *n >= 1)) {
+            prop_assert!(s.flags.contains(TachFlags::STOP) || s.flags.contains(TachFlags::MISSING_PULSE));
+        }
+        if g.iter().any(|x| matches!(x, Glitch::Double(_))) {
+            prop_assert!(s.flags.contains(TachFlags::EXTRA_PULSE), "{:?}", s.flags);
+        }
+        let dropped = g.windows(2).any(|w| matches!(w[1], Glitch::Drop) && !matches!(w[0], Glitch::Drop));
+        if dropped && !g.iter().any(|x| matches!(x, Glitch::Gap(_))) {
+            prop_assert!(s.flags.is_fault(), "{:?}", s.flags);
+        }
+    }
+}
