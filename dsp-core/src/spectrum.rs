@@ -478,7 +478,7 @@ mod tests {
     fn ram_of_4096() {
         // 4096·4 + 2048·4 bytes of buffers plus the small fields.
         let sz = core::mem::size_of::<OrderSpectrum4096>();
-        assert!(sz >= 24 * 1024 && sz <= 24 * 1024 + 64, "{sz}");
+        assert!((24 * 1024..=24 * 1024 + 64).contains(&sz), "{sz}");
     }
 
     #[test]
