@@ -10,39 +10,20 @@ use core::fmt;
 
 use heapless::{String, Vec};
 
+pub use crate::defects::DefectSearchConfig;
+pub use crate::rectify::Rectifier;
+pub use crate::spectrum::Window;
+pub use crate::velocity::{MachineGroup, Support};
+
 /// Most bearings one measuring point watches.
 pub const MAX_BEARINGS: usize = 4;
 /// Most shafts one measuring point describes (the tach shaft included).
 pub const MAX_SHAFTS: usize = 4;
 /// Longest shaft or bearing name, in bytes.
 pub const NAME_LEN: usize = 16;
-/// Highest harmonic number searched per defect.
-pub const MAX_HARMONICS: u8 = 10;
 
 /// A short name (shaft or bearing), at most [`NAME_LEN`] bytes.
 pub type Name = String<NAME_LEN>;
-
-/// How the envelope is rectified after the band-pass.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub enum Rectification {
-    /// Full-wave absolute value: the envelope spectrum is in g.
-    #[default]
-    Abs,
-    /// Square: the squared envelope, in g²; emphasises impacts over noise.
-    Square,
-}
-
-/// The spectral window of the order spectrum.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub enum WindowKind {
-    /// Hann: good resolution; up to 1.42 dB scalloping loss at half a bin.
-    #[default]
-    Hann,
-    /// Flat-top: amplitude accurate to about 0.1 dB anywhere in a bin, wider lines.
-    FlatTop,
-}
 
 /// Where the shaft speed comes from.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -127,52 +108,6 @@ pub struct Bearing {
     pub kinematics: BearingKinematics,
 }
 
-/// Thresholds of the defect search and the detection rule.
-#[derive(Debug, Clone, Copy, PartialEq)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-#[non_exhaustive]
-pub struct SearchConfig {
-    /// Harmonics searched per defect, 1 to [`MAX_HARMONICS`].
-    pub harmonics: u8,
-    /// Relative slip tolerance of the fundamental (0.02 = 2 %); harmonic h is
-    /// searched within h times this.
-    pub slip_tolerance: f32,
-    /// Prominence over the local floor, in dB, for a harmonic to count as found.
-    pub prominence_db: f32,
-}
-
-impl Default for SearchConfig {
-    fn default() -> Self {
-        SearchConfig {
-            harmonics: 6,
-            slip_tolerance: 0.02,
-            prominence_db: 6.0,
-        }
-    }
-}
-
-/// ISO 20816-3 machine group.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub enum MachineGroup {
-    /// Group 1: large machines, 300 kW to 50 MW.
-    Group1,
-    /// Group 2: medium machines, 15 kW to 300 kW.
-    #[default]
-    Group2,
-}
-
-/// ISO 20816-3 support class.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub enum Support {
-    /// Rigid support.
-    #[default]
-    Rigid,
-    /// Flexible support.
-    Flexible,
-}
-
 /// A measuring point: sensor, band, speed source, record length, and the
 /// bearings to watch.
 ///
@@ -195,7 +130,7 @@ pub struct PointConfig {
     /// Band-pass poles: 2, 4, 6 or 8.
     pub poles: u8,
     /// Rectifier.
-    pub rectification: Rectification,
+    pub rectifier: Rectifier,
     /// Speed source.
     pub speed: SpeedInput,
     /// Lowest plausible tach-shaft speed, rpm (also sizes the resampler).
@@ -210,13 +145,13 @@ pub struct PointConfig {
     /// of one spectrum segment; more revolutions mean more averaged segments).
     pub revolutions: u16,
     /// Spectral window.
-    pub window: WindowKind,
+    pub window: Window,
     /// Shafts; index 0 is the tach shaft (ratio 1).
     pub shafts: Vec<Shaft, MAX_SHAFTS>,
     /// Watched bearings.
     pub bearings: Vec<Bearing, MAX_BEARINGS>,
     /// Defect search thresholds.
-    pub search: SearchConfig,
+    pub search: DefectSearchConfig,
     /// ISO 20816-3 machine group for the velocity zone.
     pub machine_group: MachineGroup,
     /// ISO 20816-3 support class.
@@ -240,18 +175,18 @@ impl Default for PointConfig {
             adc_full_scale: i16::MAX,
             band_hz: None,
             poles: 8,
-            rectification: Rectification::Abs,
+            rectifier: Rectifier::Abs,
             speed: SpeedInput::default(),
             min_rpm: 300.0,
             max_rpm: 3000.0,
             max_speed_change_pct: 60.0,
             samples_per_rev: 64,
             revolutions: 256,
-            window: WindowKind::Hann,
+            window: Window::Hann,
             shafts,
             bearings: Vec::new(),
-            search: SearchConfig::default(),
-            machine_group: MachineGroup::Group2,
+            search: DefectSearchConfig::default(),
+            machine_group: MachineGroup::Medium,
             support: Support::Rigid,
         }
     }
@@ -308,8 +243,8 @@ pub enum ConfigError {
     BearingGeometry,
     /// Given defect multiples not finite and positive.
     BearingMultiples,
-    /// Harmonics outside 1..=10, slip tolerance outside (0, 0.2], or
-    /// prominence threshold not finite and positive.
+    /// The defect search thresholds are out of range (see
+    /// [`DefectSearchConfig::validate`]).
     Search,
     /// The highest watched order does not fit the spectrum: raise
     /// `samples_per_rev`.
@@ -346,7 +281,7 @@ impl fmt::Display for ConfigError {
             }
             ConfigError::BearingMultiples => "defect multiples must be finite and positive",
             ConfigError::Search => {
-                "search: harmonics 1..=10, slip tolerance in (0, 0.2], prominence > 0 dB"
+                "defect search thresholds out of range (harmonics 1..=10, slip in (0, 0.2], thresholds > 0 dB)"
             }
             ConfigError::OrderRange => {
                 "highest watched order exceeds the spectrum; raise samples_per_rev"
@@ -474,15 +409,7 @@ impl PointConfig {
                 }
             }
         }
-        let s = &self.search;
-        if !((1..=MAX_HARMONICS).contains(&s.harmonics)
-            && s.slip_tolerance.is_finite()
-            && s.slip_tolerance > 0.0
-            && s.slip_tolerance <= 0.2
-            && finite_pos(s.prominence_db))
-        {
-            return Err(ConfigError::Search);
-        }
+        self.search.validate().map_err(|_| ConfigError::Search)?;
         Ok(())
     }
 }

@@ -8,8 +8,8 @@
 use std::path::Path;
 
 use dsp_core::config::{
-    name_from, Bearing, BearingKinematics, MachineGroup, PointConfig, Rectification, SearchConfig,
-    Shaft, SpeedInput, Support, WindowKind, MAX_BEARINGS, MAX_SHAFTS, NAME_LEN,
+    name_from, Bearing, BearingKinematics, DefectSearchConfig, MachineGroup, PointConfig,
+    Rectifier, Shaft, SpeedInput, Support, Window, MAX_BEARINGS, MAX_SHAFTS, NAME_LEN,
 };
 use serde::Deserialize;
 
@@ -80,6 +80,8 @@ struct SearchSection {
     harmonics: Option<u8>,
     slip_tolerance: Option<f32>,
     prominence_db: Option<f32>,
+    min_harmonics: Option<u8>,
+    sideband_db: Option<f32>,
 }
 
 #[derive(Debug, Default, Deserialize)]
@@ -144,9 +146,9 @@ pub fn parse(text: &str) -> Result<PointConfig, String> {
         p.poles = v;
     }
     if let Some(r) = &file.envelope.rectifier {
-        p.rectification = match r.as_str() {
-            "abs" => Rectification::Abs,
-            "square" => Rectification::Square,
+        p.rectifier = match r.as_str() {
+            "abs" => Rectifier::Abs,
+            "square" => Rectifier::Square,
             other => {
                 return Err(format!(
                     "envelope.rectifier: `{other}` is not `abs` or `square`"
@@ -195,8 +197,8 @@ pub fn parse(text: &str) -> Result<PointConfig, String> {
     }
     if let Some(w) = &file.spectrum.window {
         p.window = match w.as_str() {
-            "hann" => WindowKind::Hann,
-            "flattop" => WindowKind::FlatTop,
+            "hann" => Window::Hann,
+            "flattop" => Window::FlatTop,
             other => {
                 return Err(format!(
                     "spectrum.window: `{other}` is not `hann` or `flattop`"
@@ -205,22 +207,30 @@ pub fn parse(text: &str) -> Result<PointConfig, String> {
         };
     }
 
-    let mut search = SearchConfig::default();
+    let mut search = DefectSearchConfig::default();
     if let Some(v) = file.search.harmonics {
         search.harmonics = v;
+        search.anchor_harmonics = search.anchor_harmonics.min(v);
+        search.min_harmonics = search.min_harmonics.min(v);
     }
     if let Some(v) = file.search.slip_tolerance {
         search.slip_tolerance = v;
     }
     if let Some(v) = file.search.prominence_db {
-        search.prominence_db = v;
+        search.prominence_threshold_db = v;
+    }
+    if let Some(v) = file.search.min_harmonics {
+        search.min_harmonics = v;
+    }
+    if let Some(v) = file.search.sideband_db {
+        search.sideband_threshold_db = v;
     }
     p.search = search;
 
     if let Some(g) = file.iso.group {
         p.machine_group = match g {
-            1 => MachineGroup::Group1,
-            2 => MachineGroup::Group2,
+            1 => MachineGroup::Large,
+            2 => MachineGroup::Medium,
             other => return Err(format!("iso.group: {other} is not 1 or 2")),
         };
     }
