@@ -14,4 +14,6 @@
     )
 )]
 
+pub mod edges_csv;
 pub mod error;
+pub mod wav;
