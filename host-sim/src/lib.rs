@@ -14,6 +14,8 @@
     )
 )]
 
+pub mod cmd_simulate;
 pub mod edges_csv;
 pub mod error;
+pub mod simulate;
 pub mod wav;
