@@ -14,5 +14,9 @@
     )
 )]
 
+pub mod cmd_simulate;
+pub mod edges_csv;
 pub mod error;
 pub mod point;
+pub mod simulate;
+pub mod wav;

@@ -15,7 +15,10 @@ struct Cli {
 }
 
 #[derive(Subcommand)]
-enum Command {}
+enum Command {
+    /// Write a simulated gearbox record (WAV: ch0 accel g, ch1 tach V).
+    Simulate(host_sim::cmd_simulate::SimulateArgs),
+}
 
 fn main() -> ExitCode {
     let cli = match Cli::try_parse() {
@@ -27,7 +30,9 @@ fn main() -> ExitCode {
             return ExitCode::from(code);
         }
     };
-    let result: Result<(), host_sim::error::CliError> = match cli.command {};
+    let result: Result<(), host_sim::error::CliError> = match cli.command {
+        Command::Simulate(a) => host_sim::cmd_simulate::run(&a),
+    };
     match result {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) => {
