@@ -41,6 +41,11 @@ use crate::spectrum::{OrderSpectrum, SpectrumConfig, SpectrumView};
 use crate::tach::{SpeedSource, TachConfig, TachFlags, TachTracker};
 use crate::velocity::VelocityConfig;
 
+/// Samples per ADC block on the node (one DMA half-buffer). The host
+/// simulator feeds recordings in blocks of this size so its reports equal the
+/// node's.
+pub const ADC_BLOCK: usize = 256;
+
 /// Ring of decimated envelope samples on the node (8 KiB): enough for three
 /// revolutions at the slowest configured speed; see
 /// [`crate::order_track::ring_needed`].
@@ -452,6 +457,7 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
             speed,
             overall,
             band_hz: self.fe.config().band_hz,
+            rectifier: self.point.rectifier,
             decimation: self.decimation(),
             samples_per_rev: self.point.samples_per_rev,
             segments,

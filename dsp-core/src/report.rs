@@ -145,6 +145,8 @@ pub struct Report {
     pub overall: Overall,
     /// Envelope band used, Hz.
     pub band_hz: [f32; 2],
+    /// Rectifier: spectrum amplitudes are in g (`Abs`) or g² (`Square`).
+    pub rectifier: crate::rectify::Rectifier,
     /// Decimation factor of the envelope.
     pub decimation: u16,
     /// Angle-domain samples per revolution.

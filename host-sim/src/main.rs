@@ -16,6 +16,8 @@ struct Cli {
 
 #[derive(Subcommand)]
 enum Command {
+    /// Analyse a recording with a measuring point and print the report.
+    Analyze(host_sim::cmd_analyze::AnalyzeArgs),
     /// Write a simulated gearbox record (WAV: ch0 accel g, ch1 tach V).
     Simulate(host_sim::cmd_simulate::SimulateArgs),
 }
@@ -32,6 +34,7 @@ fn main() -> ExitCode {
     };
     let result: Result<(), host_sim::error::CliError> = match cli.command {
         Command::Simulate(a) => host_sim::cmd_simulate::run(&a),
+        Command::Analyze(a) => host_sim::cmd_analyze::run_cmd(&a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
