@@ -450,6 +450,14 @@ impl TachTracker {
             self.update_ref_from_now(&v);
         }
         let Some(p) = self.pending else {
+            // The held pulse was already committed by `advance_to`: an edge
+            // too close after it can only be dropped.
+            if let (Some(a), Some(e)) = (self.accepted, self.expected()) {
+                if t - a < EXTRA_RATIO * e {
+                    self.note_extra();
+                    return;
+                }
+            }
             self.pending = Some(t);
             return;
         };
@@ -464,9 +472,7 @@ impl TachTracker {
         };
         if close {
             // Two close edges: keep the one nearer an expected position.
-            self.extra = self.extra.saturating_add(1);
-            self.flags.insert(TachFlags::EXTRA_PULSE);
-            self.rev_dirty = true;
+            self.note_extra();
             if let Some(a) = self.accepted {
                 let miss = |x: f64| {
                     let r = (x - a) / expected;
@@ -606,6 +612,12 @@ impl TachTracker {
         self.n_intervals = (self.n_intervals + 1).min(cap);
     }
 
+    fn note_extra(&mut self) {
+        self.extra = self.extra.saturating_add(1);
+        self.flags.insert(TachFlags::EXTRA_PULSE);
+        self.rev_dirty = true;
+    }
+
     fn reset_segment(&mut self) {
         self.accepted = None;
         self.n_intervals = 0;
@@ -636,6 +648,11 @@ impl TachTracker {
         let expected = self.expected().unwrap_or(dt);
         let ratio = dt / expected;
         let first_interval = self.n_intervals == 0;
+        if !first_interval && ratio < EXTRA_RATIO {
+            // Defensive: the look-ahead normally catches this before commit.
+            self.note_extra();
+            return;
+        }
         let too_long = if first_interval {
             dt > STOP_RATIO * v.max_pulse_interval
         } else {

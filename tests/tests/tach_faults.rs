@@ -308,3 +308,28 @@ fn bad_configs_are_typed_errors() {
     })
     .is_err());
 }
+
+#[test]
+fn late_double_pulse_after_commit_is_dropped() {
+    // The held pulse is committed by advance_to (0.6 period later); a bounce
+    // edge 0.1 period after the real one arrives only afterwards.
+    let c = cfg();
+    let mut t = TachTracker::new(&SpeedSource::Tach(c)).unwrap();
+    let mut marks = Vec::new();
+    for k in 0..30u32 {
+        let tick = 1000 + k * 40_000;
+        t.push_edge(tick, |m| marks.push(m));
+        let after = u64::from(tick + 24_000) * 512 / 10_000;
+        t.advance_to(after, |m| marks.push(m));
+        if k == 12 {
+            t.push_edge(tick + 4000, |m| marks.push(m));
+        }
+    }
+    let s = t.finish(|m| marks.push(m));
+    assert!(s.flags.contains(TachFlags::EXTRA_PULSE), "{:?}", s.flags);
+    assert_eq!(marks.len(), 30);
+    for (k, m) in marks.iter().enumerate() {
+        let exact = f64::from(1000 + k as u32 * 40_000) * 0.0512;
+        assert!((m.time_samples - exact).abs() < 1e-6, "mark {k}");
+    }
+}
