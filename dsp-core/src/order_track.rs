@@ -58,11 +58,13 @@ pub fn decimation_for(
 }
 
 /// Ring length (decimated samples) the tracker needs for speeds down to
-/// `min_rpm`: three revolutions (emission waits for mark k+2, plus up to one
-/// pulse of tach look-ahead) and the kernel support.
+/// `min_rpm`: four revolutions and the kernel support. Emission of revolution
+/// k waits for mark k+2; at a segment start the tach tracker holds three
+/// intervals before its first mark (see [`crate::tach`]), so the first
+/// revolution's samples must survive about four revolutions.
 pub fn ring_needed(decimated_rate_hz: f32, min_rpm: f32) -> usize {
     let rev = decimated_rate_hz * 60.0 / min_rpm;
-    crate::num::f32_to_usize_sat(libm::ceilf(3.0 * rev)).saturating_add(16)
+    crate::num::f32_to_usize_sat(libm::ceilf(4.0 * rev)).saturating_add(16)
 }
 
 /// Interpolation between decimated envelope samples.

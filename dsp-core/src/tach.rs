@@ -19,8 +19,13 @@
 //! come a few hundred times per second at most.
 //!
 //! # Validation
-//! Each pulse interval is compared with the expected interval (the mean of
-//! the last accepted intervals, up to one revolution's worth):
+//! At a segment start (the record start or after a stop) four edges are
+//! collected first and the expected interval is seeded with the median of
+//! their three intervals, so one glitch there cannot set a wrong expectation;
+//! this delays the first marks by three pulses. Edges closer than half the
+//! interval at `max_rpm` are dropped as extra pulses already at that stage.
+//! Then each pulse interval is compared with the expected interval (the mean
+//! of the last accepted intervals, up to one revolution's worth, max 16):
 //! * ratio < 0.5: an extra (double) pulse. Of the two close edges the one
 //!   nearer the expected position is kept; one pulse of look-ahead is held for
 //!   that purpose ([`TachFlags::EXTRA_PULSE`]).
@@ -43,6 +48,8 @@ const EXTRA_RATIO: f64 = 0.5;
 const MAX_BRIDGE: f64 = 3.0;
 /// Interval ratio above which the gap counts as a stop (no bridging).
 const STOP_RATIO: f64 = MAX_BRIDGE + 0.5;
+/// Edges collected at a segment start before validation begins (3 intervals, median).
+const BOOT: usize = 4;
 /// Intervals averaged for the expected interval (capped for large `pulses_per_rev`).
 const AVG_CAP: usize = 16;
 
@@ -281,6 +288,10 @@ pub struct TachTracker {
     now: f64,
     edges_seen: u32,
     // --- segment state
+    /// Segment start: edges are collected in `boot` first.
+    booting: bool,
+    boot: [f64; BOOT],
+    n_boot: usize,
     /// Last committed pulse time (None at segment start).
     accepted: Option<f64>,
     /// Candidate pulse awaiting look-ahead.
@@ -372,6 +383,9 @@ impl TachTracker {
             },
             now: 0.0,
             edges_seen: 0,
+            booting: true,
+            boot: [0.0; BOOT],
+            n_boot: 0,
             accepted: None,
             pending: None,
             intervals: [0.0; AVG_CAP],
@@ -440,7 +454,7 @@ impl TachTracker {
             return;
         };
         self.edges_seen = self.edges_seen.saturating_add(1);
-        let latest = self.pending.or(self.accepted);
+        let latest = self.latest_edge();
         if !t.is_finite() || latest.is_some_and(|l| t <= l) {
             self.flags.insert(TachFlags::OUT_OF_ORDER);
             return;
@@ -448,6 +462,40 @@ impl TachTracker {
         if self.now < t {
             self.now = t;
             self.update_ref_from_now(&v);
+        }
+        self.process_edge(t, &v, &mut marks);
+    }
+
+    /// Latest edge held or accepted in the current segment.
+    fn latest_edge(&self) -> Option<f64> {
+        if self.booting {
+            self.n_boot
+                .checked_sub(1)
+                .and_then(|i| self.boot.get(i))
+                .copied()
+        } else {
+            self.pending.or(self.accepted)
+        }
+    }
+
+    fn process_edge(&mut self, t: f64, v: &Validated, marks: &mut impl FnMut(RevMark)) {
+        if self.booting {
+            // Segment start: collect BOOT edges, then judge them against the
+            // median interval so that one glitch cannot set the expectation.
+            if let Some(l) = self.latest_edge() {
+                if t - l < EXTRA_RATIO * v.min_pulse_interval {
+                    self.note_extra();
+                    return;
+                }
+            }
+            if let Some(slot) = self.boot.get_mut(self.n_boot) {
+                *slot = t;
+                self.n_boot += 1;
+            }
+            if self.n_boot >= BOOT {
+                self.end_boot(v, marks);
+            }
+            return;
         }
         let Some(p) = self.pending else {
             // The held pulse was already committed by `advance_to`: an edge
@@ -462,7 +510,7 @@ impl TachTracker {
             return;
         };
         let expected = self.expected().unwrap_or_else(|| {
-            // Segment start: judge against the configured speed range.
+            // No expectation yet: judge against the configured speed range.
             libm::sqrt(v.min_pulse_interval * v.max_pulse_interval)
         });
         let dt = t - p;
@@ -484,8 +532,47 @@ impl TachTracker {
             }
             return;
         }
-        self.commit_with_restart(p, &v, &mut marks);
-        self.pending = Some(t);
+        self.commit_with_restart(p, v, marks);
+        if self.booting {
+            self.process_edge(t, v, marks);
+        } else {
+            self.pending = Some(t);
+        }
+    }
+
+    /// Seeds the expected interval with the median of the boot intervals and
+    /// replays the boot edges through the normal validation.
+    fn end_boot(&mut self, v: &Validated, marks: &mut impl FnMut(RevMark)) {
+        let n = self.n_boot;
+        let edges = self.boot;
+        self.n_boot = 0;
+        self.booting = false;
+        let mut iv = [0.0f64; BOOT];
+        let mut k = 0;
+        for (slot, (a, b)) in iv.iter_mut().zip(
+            edges
+                .iter()
+                .take(n)
+                .zip(edges.iter().skip(1).take(n.saturating_sub(1))),
+        ) {
+            *slot = b - a;
+            k += 1;
+        }
+        let iv = iv.get_mut(..k).unwrap_or_default();
+        iv.sort_unstable_by(f64::total_cmp);
+        let e0 = match k {
+            0 => None,
+            2 => Some(0.5 * iv.iter().sum::<f64>()),
+            _ => iv.get(k / 2).copied(),
+        };
+        self.n_intervals = 0;
+        self.interval_pos = 0;
+        if let Some(e) = e0.filter(|&e| e <= STOP_RATIO * v.max_pulse_interval) {
+            self.record_interval(e, v);
+        }
+        for &e in edges.iter().take(n) {
+            self.process_edge(e, v, marks);
+        }
     }
 
     /// Tells the tracker that all input samples before `input_samples` have
@@ -529,8 +616,18 @@ impl TachTracker {
         let mut constant = false;
         match self.mode {
             Mode::Tach(v) => {
-                if let Some(p) = self.pending.take() {
-                    self.commit_with_restart(p, &v, &mut marks);
+                // Flush the boot buffer and the held pulse (bounded: each
+                // round consumes edges).
+                for _ in 0..2 * BOOT {
+                    if self.booting && self.n_boot > 0 {
+                        self.end_boot(&v, &mut marks);
+                    }
+                    if let Some(p) = self.pending.take() {
+                        self.commit_with_restart(p, &v, &mut marks);
+                    }
+                    if !(self.booting && self.n_boot > 0) {
+                        break;
+                    }
                 }
                 self.check_stop(&v);
                 if self.edges_seen == 0 {
@@ -579,7 +676,7 @@ impl TachTracker {
     }
 
     fn check_stop(&mut self, v: &Validated) {
-        let Some(last) = self.pending.or(self.accepted) else {
+        let Some(last) = self.latest_edge() else {
             return;
         };
         let limit = match self.expected() {
@@ -619,6 +716,8 @@ impl TachTracker {
     }
 
     fn reset_segment(&mut self) {
+        self.booting = true;
+        self.n_boot = 0;
         self.accepted = None;
         self.n_intervals = 0;
         self.interval_pos = 0;
@@ -632,7 +731,7 @@ impl TachTracker {
     fn commit_with_restart(&mut self, p: f64, v: &Validated, marks: &mut impl FnMut(RevMark)) {
         self.commit(p, v, marks);
         if self.accepted.is_none() {
-            self.commit(p, v, marks);
+            self.process_edge(p, v, marks);
         }
     }
 

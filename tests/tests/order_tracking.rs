@@ -114,7 +114,7 @@ fn cubic_beats_linear_under_a_speed_sweep() {
     let mut res = Vec::new();
     for interp in [Interpolation::CatmullRom, Interpolation::Linear] {
         let cfg = ot_cfg(s, d, delay, 600.0, interp);
-        let (out, ot) = stream_exact_marks::<512>(&cfg, &marks, n_dec, |t| sig(ramp.theta(t)));
+        let (out, ot) = stream_exact_marks::<1024>(&cfg, &marks, n_dec, |t| sig(ramp.theta(t)));
         assert!(ot.flags().is_empty(), "{:?}", ot.flags());
         assert!(ot.revs_emitted() >= 110, "{}", ot.revs_emitted());
         assert_eq!(out.len(), ot.revs_emitted() as usize * 64);
@@ -325,12 +325,12 @@ fn constant_speed_equals_perfect_tach() {
 
 #[test]
 fn ring_overflow_is_flagged_not_panicking() {
-    // Configured for >= 600 rpm, fed 200 rpm: revolutions no longer fit the ring.
+    // Configured for >= 600 rpm, fed 100 rpm: revolutions no longer fit the ring.
     let cfg = ot_cfg(32, 32, 0.0, 600.0, Interpolation::CatmullRom);
-    assert!(ring_needed(1600.0, 600.0) <= 512);
-    let period = FS * 60.0 / 200.0;
+    assert!(ring_needed(1600.0, 600.0) <= 1024);
+    let period = FS * 60.0 / 100.0;
     let marks: Vec<f64> = (0..10).map(|k| 500.0 + k as f64 * period).collect();
-    let (out, ot) = stream_exact_marks::<512>(&cfg, &marks, 1600 * 3, |_| 1.0);
+    let (out, ot) = stream_exact_marks::<1024>(&cfg, &marks, 1600 * 3, |_| 1.0);
     assert!(
         ot.flags().contains(OrderFlags::RING_OVERFLOW),
         "{:?}",

@@ -176,7 +176,7 @@ proptest! {
         oc.decimation = 64;
         oc.input_rate_hz = 800.0;
         oc.min_rpm = 600.0;
-        let mut ot = OrderTracker::<256>::new(&oc).unwrap();
+        let mut ot = OrderTracker::<512>::new(&oc).unwrap();
         let mut out = 0usize;
         for o in ops {
             match o {

@@ -333,3 +333,29 @@ fn late_double_pulse_after_commit_is_dropped() {
         assert!((m.time_samples - exact).abs() < 1e-6, "mark {k}");
     }
 }
+
+#[test]
+fn glitch_in_the_first_interval_does_not_mislead() {
+    // 700 rpm (near min_rpm = 600): a period is 4389 samples, far above the
+    // 0.5 x 1024-sample minimum interval, so only the boot median catches these.
+    let truth = steady(700.0, 30);
+    let exact: Vec<f64> = truth.iter().map(|&k| f64::from(k) * 0.0512).collect();
+    // Missing pulse right after the first one.
+    let mut e = truth.clone();
+    e.remove(1);
+    let (s, marks) = run(cfg(), &e, end_of(&e));
+    assert!(s.flags.contains(TachFlags::MISSING_PULSE), "{:?}", s.flags);
+    assert_eq!(marks.len(), 30);
+    assert!((marks[1].time_samples - exact[1]).abs() < 0.5);
+    assert!((s.min_rpm - 700.0).abs() < 0.1, "{s:?}");
+    // Double pulse 0.3 period after the first one.
+    let mut e = truth.clone();
+    e.insert(1, truth[0] + 25_700);
+    let (s, marks) = run(cfg(), &e, end_of(&e));
+    assert!(s.flags.contains(TachFlags::EXTRA_PULSE), "{:?}", s.flags);
+    assert!(!s.flags.contains(TachFlags::MISSING_PULSE) && !s.flags.contains(TachFlags::STOP));
+    assert_eq!(marks.len(), 30);
+    for (m, x) in marks.iter().zip(&exact) {
+        assert!((m.time_samples - x).abs() < 1e-6);
+    }
+}
