@@ -359,3 +359,24 @@ fn glitch_in_the_first_interval_does_not_mislead() {
         assert!((m.time_samples - x).abs() < 1e-6);
     }
 }
+
+#[test]
+fn boot_median_needs_sorting_and_stop_is_seen_while_booting() {
+    // Missing pulse at the second interval: boot intervals [T, 2T, T]; the median is T.
+    let truth = steady(700.0, 30);
+    let mut e = truth.clone();
+    e.remove(2);
+    let (s, marks) = run(cfg(), &e, end_of(&e));
+    assert_eq!(marks.len(), 30, "{s:?}");
+    assert!(
+        (s.min_rpm - 700.0).abs() < 0.1 && (s.max_rpm - 700.0).abs() < 0.1,
+        "{s:?}"
+    );
+    // Three edges, then silence: the stop is flagged live (before finish).
+    let mut t = TachTracker::new(&SpeedSource::Tach(cfg())).unwrap();
+    for &k in &truth[..3] {
+        t.push_edge(k, |_| {});
+    }
+    t.advance_to(51_200 * 2, |_| {});
+    assert!(t.flags().contains(TachFlags::STOP), "{:?}", t.flags());
+}
