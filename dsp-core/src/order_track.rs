@@ -437,7 +437,7 @@ impl<const RING: usize> OrderTracker<RING> {
                 Interpolation::CatmullRom => self.catmull_rom(j, mu),
                 Interpolation::Linear => {
                     let y1 = self.at(j);
-                    y1 + mu * (self.at(j + 1) - y1)
+                    y1 + mu * (self.at(j.saturating_add(1)) - y1)
                 }
             });
         }
@@ -454,7 +454,12 @@ impl<const RING: usize> OrderTracker<RING> {
 
     /// Catmull-Rom cubic between samples `j` and `j + 1` at fraction `mu`.
     fn catmull_rom(&self, j: i64, mu: f32) -> f32 {
-        let (y0, y1, y2, y3) = (self.at(j - 1), self.at(j), self.at(j + 1), self.at(j + 2));
+        let (y0, y1, y2, y3) = (
+            self.at(j.saturating_sub(1)),
+            self.at(j),
+            self.at(j.saturating_add(1)),
+            self.at(j.saturating_add(2)),
+        );
         let a = -0.5 * y0 + 1.5 * y1 - 1.5 * y2 + 0.5 * y3;
         let b = y0 - 2.5 * y1 + 2.0 * y2 - 0.5 * y3;
         let c = -0.5 * y0 + 0.5 * y2;

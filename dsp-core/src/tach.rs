@@ -50,6 +50,8 @@ const MAX_BRIDGE: f64 = 3.0;
 const STOP_RATIO: f64 = MAX_BRIDGE + 0.5;
 /// Edges collected at a segment start before validation begins (3 intervals, median).
 const BOOT: usize = 4;
+/// Largest number of virtual marks one `advance_to` call emits (constant mode).
+const MAX_JUMP_REVS: f64 = 65_536.0;
 /// Intervals averaged for the expected interval (capped for large `pulses_per_rev`).
 const AVG_CAP: usize = 16;
 
@@ -79,6 +81,9 @@ impl TachFlags {
     pub const OUT_OF_ORDER: Self = Self(1 << 8);
     /// More revolutions than [`SERIES_CAP`]: the series holds the first ones, stats cover all.
     pub const SERIES_TRUNCATED: Self = Self(1 << 9);
+    /// Constant mode: `advance_to` jumped more than 65 536 revolutions at once;
+    /// the skipped virtual marks were not emitted and the next mark starts a segment.
+    pub const TIME_JUMP: Self = Self(1 << 10);
 
     /// Flags that make the speed (and anything computed from it) unreliable.
     pub const FAULTS: Self = Self(
@@ -90,7 +95,8 @@ impl TachFlags {
             | Self::SPEED_CHANGE.0
             | Self::STOP.0
             | Self::TOO_FEW_REVS.0
-            | Self::OUT_OF_ORDER.0,
+            | Self::OUT_OF_ORDER.0
+            | Self::TIME_JUMP.0,
     );
 
     /// No flag set.
@@ -365,7 +371,8 @@ impl TachTracker {
                 if !(sample_rate_hz.is_finite() && sample_rate_hz > 0.0) {
                     return Err(TachConfigError::BadSampleRate);
                 }
-                if !(rpm.is_finite() && rpm > 0.0) {
+                // At least 2 input samples per revolution.
+                if !(rpm.is_finite() && rpm > 0.0 && rpm <= 30.0 * sample_rate_hz) {
                     return Err(TachConfigError::BadSpeedRange);
                 }
                 Mode::Constant {
@@ -532,6 +539,7 @@ impl TachTracker {
             }
             return;
         }
+        self.pending = None;
         self.commit_with_restart(p, v, marks);
         if self.booting {
             self.process_edge(t, v, marks);
@@ -585,6 +593,15 @@ impl TachTracker {
         let now = input_samples as f64;
         match self.mode {
             Mode::Constant { period, .. } => {
+                let target = now / period;
+                if target - self.next_virtual as f64 > MAX_JUMP_REVS {
+                    // A jump this large is a caller error; skip instead of looping for ages.
+                    self.flags.insert(TachFlags::TIME_JUMP);
+                    self.next_virtual =
+                        crate::num::f64_to_u64_sat(libm::ceil(target - MAX_JUMP_REVS));
+                    self.new_segment = true;
+                    self.last_mark = None;
+                }
                 loop {
                     let t = self.next_virtual as f64 * period;
                     if t >= now {
@@ -716,6 +733,7 @@ impl TachTracker {
     }
 
     fn reset_segment(&mut self) {
+        self.pending = None;
         self.booting = true;
         self.n_boot = 0;
         self.accepted = None;

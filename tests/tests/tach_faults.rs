@@ -380,3 +380,24 @@ fn boot_median_needs_sorting_and_stop_is_seen_while_booting() {
     t.advance_to(51_200 * 2, |_| {});
     assert!(t.flags().contains(TachFlags::STOP), "{:?}", t.flags());
 }
+
+#[test]
+fn constant_mode_huge_jump_is_flagged_not_hanging() {
+    let src = SpeedSource::Constant {
+        rpm: 1500.0,
+        sample_rate_hz: FS,
+    };
+    let mut t = TachTracker::new(&src).unwrap();
+    let mut n = 0u64;
+    t.advance_to(10_000, |_| n += 1);
+    assert_eq!(n, 5);
+    t.advance_to(u64::MAX, |_| n += 1);
+    let s = t.finish(|_| {});
+    assert!(s.flags.contains(TachFlags::TIME_JUMP));
+    assert!(n <= 5 + 65_537, "{n}");
+    assert!(TachTracker::new(&SpeedSource::Constant {
+        rpm: 1e30,
+        sample_rate_hz: FS
+    })
+    .is_err());
+}
