@@ -811,7 +811,7 @@ impl TachTracker {
         if !is_mark {
             return;
         }
-        if let Some(prev) = self.last_mark {
+        if let Some(prev) = self.last_mark.filter(|&p| t > p) {
             let rpm = crate::num::f64_to_f32(v.fs * 60.0 / (t - prev));
             self.revs = self.revs.saturating_add(1);
             self.sum_rpm += f64::from(rpm);

@@ -153,6 +153,7 @@ fn op() -> impl Strategy<Value = Op> {
 }
 
 proptest! {
+    #![proptest_config(ProptestConfig::with_cases(1024))]
     // Fuzz-like: any edge values in any order, any advance positions and
     // envelope samples (NaN included) never panic and always give a summary.
     #[test]
@@ -223,6 +224,7 @@ fn glitch() -> impl Strategy<Value = Glitch> {
 }
 
 proptest! {
+    #![proptest_config(ProptestConfig::with_cases(1024))]
     // Plausible pulse trains (1500 rpm, 1 MHz timer) with random dropouts,
     // double pulses, jitter and stops, through tach and order tracker: no
     // panic, whole revolutions only, and every glitch kind leaves its flag.
