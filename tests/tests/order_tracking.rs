@@ -375,3 +375,45 @@ fn ram_sizes() {
     assert!(tt < 4 * 1024 + 512, "series dominates: {tt}");
     assert!(o2048 <= 4 * 2048 + 512);
 }
+
+mod fuzz {
+    use super::*;
+    use proptest::prelude::*;
+
+    #[derive(Debug, Clone)]
+    enum Op {
+        Mark(f64, bool),
+        Sample(f32),
+        Samples(u16),
+    }
+
+    fn op() -> impl Strategy<Value = Op> {
+        prop_oneof![
+            (any::<f64>(), any::<bool>()).prop_map(|(t, s)| Op::Mark(t, s)),
+            (-1e6f64..1e7, any::<bool>()).prop_map(|(t, s)| Op::Mark(t, s)),
+            any::<f32>().prop_map(Op::Sample),
+            (0u16..3000).prop_map(Op::Samples),
+        ]
+    }
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(512))]
+        // Arbitrary mark times (NaN, inf, backwards) and samples never panic,
+        // and the output is always whole revolutions.
+        #[test]
+        fn arbitrary_marks_never_panic(ops in proptest::collection::vec(op(), 0..200), delay in -1e4f32..1e4) {
+            let cfg = ot_cfg(16, 8, delay, 600.0, Interpolation::CatmullRom);
+            let mut ot = OrderTracker::<4096>::new(&cfg).unwrap();
+            let mut out = 0usize;
+            for (i, o) in ops.into_iter().enumerate() {
+                match o {
+                    Op::Mark(t, s) => ot.push_mark(RevMark { time_samples: t, index: i as u32, segment_start: s, bridged: false }, |_| out += 1),
+                    Op::Sample(x) => ot.push_sample(x, |_| out += 1),
+                    Op::Samples(n) => for k in 0..n { ot.push_sample(f32::from(k), |_| out += 1) },
+                }
+            }
+            ot.finish(|_| out += 1);
+            prop_assert_eq!(out, ot.revs_emitted() as usize * 16);
+        }
+    }
+}
