@@ -106,31 +106,51 @@ fn cubic_beats_linear_under_a_speed_sweep() {
     let s = 64u16;
     let d = decimation_for(FS as f32, 1200.0, 12.0, s);
     assert_eq!(d, 32); // min(0.4·51200/(12·20), 51200/(1.25·64·20)) = min(85.3, 32)
-    let sig = |theta: f64| (2.0 * PI * 5.4 * theta).sin() + (2.0 * PI * 10.8 * theta).sin();
     let n_dec = (8.0 * FS / f64::from(d)) as usize + 40;
     let last_theta = ramp.theta(n_dec as f64 * f64::from(d)).floor() as usize;
     let marks: Vec<f64> = (0..=last_theta).map(|k| ramp.time_of(k as f64)).collect();
     let delay = 37.5;
-    let mut res = Vec::new();
-    for interp in [Interpolation::CatmullRom, Interpolation::Linear] {
-        let cfg = ot_cfg(s, d, delay, 600.0, interp);
-        let (out, ot) = stream_exact_marks::<1024>(&cfg, &marks, n_dec, |t| sig(ramp.theta(t)));
-        assert!(ot.flags().is_empty(), "{:?}", ot.flags());
-        assert!(ot.revs_emitted() >= 110, "{}", ot.revs_emitted());
-        assert_eq!(out.len(), ot.revs_emitted() as usize * 64);
-        res.push(rms_error(&out, 64, sig));
+    for orders in [&[5.4][..], &[10.8], &[5.4, 10.8]] {
+        let sig = |theta: f64| {
+            orders
+                .iter()
+                .map(|o| (2.0 * PI * o * theta).sin())
+                .sum::<f64>()
+        };
+        let sig_rms = (orders.len() as f64 * 0.5).sqrt();
+        let mut res = Vec::new();
+        for interp in [
+            Interpolation::CatmullRom,
+            Interpolation::Linear,
+            Interpolation::Lagrange,
+        ] {
+            let cfg = ot_cfg(s, d, delay, 600.0, interp);
+            let (out, ot) = stream_exact_marks::<1024>(&cfg, &marks, n_dec, |t| sig(ramp.theta(t)));
+            assert!(ot.flags().is_empty(), "{:?}", ot.flags());
+            assert!(ot.revs_emitted() >= 110, "{}", ot.revs_emitted());
+            assert_eq!(out.len(), ot.revs_emitted() as usize * 64);
+            res.push(rms_error(&out, 64, sig));
+        }
+        println!(
+            "speed sweep 600->1200 rpm, orders {orders:?}, S=64, D=32: RMS error Catmull-Rom {:.5}, linear {:.5} (signal RMS {sig_rms:.3})",
+            res[0], res[1]
+        );
+        assert!(
+            res[0] < 0.25 * res[1],
+            "cubic {} vs linear {}",
+            res[0],
+            res[1]
+        );
+        assert!(res[0] < 0.01 * sig_rms);
+        // Same with 8x denser envelope samples (D = 4): what remains is the
+        // angle-curve (PCHIP through the marks) error.
+        let cfg = ot_cfg(s, 4, delay, 600.0, Interpolation::CatmullRom);
+        let n4 = n_dec * 8;
+        let (out, _) = stream_exact_marks::<8192>(&cfg, &marks, n4, |t| sig(ramp.theta(t)));
+        let floor = rms_error(&out, 64, sig);
+        println!("  same orders with D=4 (angle-curve floor): RMS error {floor:.6}");
+        assert!(floor < 0.5 * res[0]);
     }
-    println!(
-        "speed sweep 600->1200 rpm, orders 5.4+10.8, S=64, D=32: RMS error Catmull-Rom {:.5}, linear {:.5} (signal RMS 1.0)",
-        res[0], res[1]
-    );
-    assert!(
-        res[0] < 0.25 * res[1],
-        "cubic {} vs linear {}",
-        res[0],
-        res[1]
-    );
-    assert!(res[0] < 0.01);
 }
 
 fn hann_spectrum(x: &[f32]) -> Vec<f64> {
