@@ -58,11 +58,13 @@ pub fn decimation_for(
 }
 
 /// Ring length (decimated samples) the tracker needs for speeds down to
-/// `min_rpm`: three revolutions (emission waits for mark k+2, plus up to one
-/// pulse of tach look-ahead) and the kernel support.
+/// `min_rpm`: four revolutions and the kernel support. Emission of revolution
+/// k waits for mark k+2; at a segment start the tach tracker holds three
+/// intervals before its first mark (see [`crate::tach`]), so the first
+/// revolution's samples must survive about four revolutions.
 pub fn ring_needed(decimated_rate_hz: f32, min_rpm: f32) -> usize {
     let rev = decimated_rate_hz * 60.0 / min_rpm;
-    crate::num::f32_to_usize_sat(libm::ceilf(3.0 * rev)).saturating_add(16)
+    crate::num::f32_to_usize_sat(libm::ceilf(4.0 * rev)).saturating_add(16)
 }
 
 /// Interpolation between decimated envelope samples.
@@ -435,7 +437,7 @@ impl<const RING: usize> OrderTracker<RING> {
                 Interpolation::CatmullRom => self.catmull_rom(j, mu),
                 Interpolation::Linear => {
                     let y1 = self.at(j);
-                    y1 + mu * (self.at(j + 1) - y1)
+                    y1 + mu * (self.at(j.saturating_add(1)) - y1)
                 }
             });
         }
@@ -452,7 +454,12 @@ impl<const RING: usize> OrderTracker<RING> {
 
     /// Catmull-Rom cubic between samples `j` and `j + 1` at fraction `mu`.
     fn catmull_rom(&self, j: i64, mu: f32) -> f32 {
-        let (y0, y1, y2, y3) = (self.at(j - 1), self.at(j), self.at(j + 1), self.at(j + 2));
+        let (y0, y1, y2, y3) = (
+            self.at(j.saturating_sub(1)),
+            self.at(j),
+            self.at(j.saturating_add(1)),
+            self.at(j.saturating_add(2)),
+        );
         let a = -0.5 * y0 + 1.5 * y1 - 1.5 * y2 + 0.5 * y3;
         let b = y0 - 2.5 * y1 + 2.0 * y2 - 0.5 * y3;
         let c = -0.5 * y0 + 0.5 * y2;

@@ -19,8 +19,13 @@
 //! come a few hundred times per second at most.
 //!
 //! # Validation
-//! Each pulse interval is compared with the expected interval (the mean of
-//! the last accepted intervals, up to one revolution's worth):
+//! At a segment start (the record start or after a stop) four edges are
+//! collected first and the expected interval is seeded with the median of
+//! their three intervals, so one glitch there cannot set a wrong expectation;
+//! this delays the first marks by three pulses. Edges closer than half the
+//! interval at `max_rpm` are dropped as extra pulses already at that stage.
+//! Then each pulse interval is compared with the expected interval (the mean
+//! of the last accepted intervals, up to one revolution's worth, max 16):
 //! * ratio < 0.5: an extra (double) pulse. Of the two close edges the one
 //!   nearer the expected position is kept; one pulse of look-ahead is held for
 //!   that purpose ([`TachFlags::EXTRA_PULSE`]).
@@ -43,6 +48,10 @@ const EXTRA_RATIO: f64 = 0.5;
 const MAX_BRIDGE: f64 = 3.0;
 /// Interval ratio above which the gap counts as a stop (no bridging).
 const STOP_RATIO: f64 = MAX_BRIDGE + 0.5;
+/// Edges collected at a segment start before validation begins (3 intervals, median).
+const BOOT: usize = 4;
+/// Largest number of virtual marks one `advance_to` call emits (constant mode).
+const MAX_JUMP_REVS: f64 = 65_536.0;
 /// Intervals averaged for the expected interval (capped for large `pulses_per_rev`).
 const AVG_CAP: usize = 16;
 
@@ -72,6 +81,9 @@ impl TachFlags {
     pub const OUT_OF_ORDER: Self = Self(1 << 8);
     /// More revolutions than [`SERIES_CAP`]: the series holds the first ones, stats cover all.
     pub const SERIES_TRUNCATED: Self = Self(1 << 9);
+    /// Constant mode: `advance_to` jumped more than 65 536 revolutions at once;
+    /// the skipped virtual marks were not emitted and the next mark starts a segment.
+    pub const TIME_JUMP: Self = Self(1 << 10);
 
     /// Flags that make the speed (and anything computed from it) unreliable.
     pub const FAULTS: Self = Self(
@@ -83,7 +95,8 @@ impl TachFlags {
             | Self::SPEED_CHANGE.0
             | Self::STOP.0
             | Self::TOO_FEW_REVS.0
-            | Self::OUT_OF_ORDER.0,
+            | Self::OUT_OF_ORDER.0
+            | Self::TIME_JUMP.0,
     );
 
     /// No flag set.
@@ -281,6 +294,10 @@ pub struct TachTracker {
     now: f64,
     edges_seen: u32,
     // --- segment state
+    /// Segment start: edges are collected in `boot` first.
+    booting: bool,
+    boot: [f64; BOOT],
+    n_boot: usize,
     /// Last committed pulse time (None at segment start).
     accepted: Option<f64>,
     /// Candidate pulse awaiting look-ahead.
@@ -354,7 +371,8 @@ impl TachTracker {
                 if !(sample_rate_hz.is_finite() && sample_rate_hz > 0.0) {
                     return Err(TachConfigError::BadSampleRate);
                 }
-                if !(rpm.is_finite() && rpm > 0.0) {
+                // At least 2 input samples per revolution.
+                if !(rpm.is_finite() && rpm > 0.0 && rpm <= 30.0 * sample_rate_hz) {
                     return Err(TachConfigError::BadSpeedRange);
                 }
                 Mode::Constant {
@@ -372,6 +390,9 @@ impl TachTracker {
             },
             now: 0.0,
             edges_seen: 0,
+            booting: true,
+            boot: [0.0; BOOT],
+            n_boot: 0,
             accepted: None,
             pending: None,
             intervals: [0.0; AVG_CAP],
@@ -440,7 +461,7 @@ impl TachTracker {
             return;
         };
         self.edges_seen = self.edges_seen.saturating_add(1);
-        let latest = self.pending.or(self.accepted);
+        let latest = self.latest_edge();
         if !t.is_finite() || latest.is_some_and(|l| t <= l) {
             self.flags.insert(TachFlags::OUT_OF_ORDER);
             return;
@@ -449,12 +470,54 @@ impl TachTracker {
             self.now = t;
             self.update_ref_from_now(&v);
         }
+        self.process_edge(t, &v, &mut marks);
+    }
+
+    /// Latest edge held or accepted in the current segment.
+    fn latest_edge(&self) -> Option<f64> {
+        if self.booting {
+            self.n_boot
+                .checked_sub(1)
+                .and_then(|i| self.boot.get(i))
+                .copied()
+        } else {
+            self.pending.or(self.accepted)
+        }
+    }
+
+    fn process_edge(&mut self, t: f64, v: &Validated, marks: &mut impl FnMut(RevMark)) {
+        if self.booting {
+            // Segment start: collect BOOT edges, then judge them against the
+            // median interval so that one glitch cannot set the expectation.
+            if let Some(l) = self.latest_edge() {
+                if t - l < EXTRA_RATIO * v.min_pulse_interval {
+                    self.note_extra();
+                    return;
+                }
+            }
+            if let Some(slot) = self.boot.get_mut(self.n_boot) {
+                *slot = t;
+                self.n_boot += 1;
+            }
+            if self.n_boot >= BOOT {
+                self.end_boot(v, marks);
+            }
+            return;
+        }
         let Some(p) = self.pending else {
+            // The held pulse was already committed by `advance_to`: an edge
+            // too close after it can only be dropped.
+            if let (Some(a), Some(e)) = (self.accepted, self.expected()) {
+                if t - a < EXTRA_RATIO * e {
+                    self.note_extra();
+                    return;
+                }
+            }
             self.pending = Some(t);
             return;
         };
         let expected = self.expected().unwrap_or_else(|| {
-            // Segment start: judge against the configured speed range.
+            // No expectation yet: judge against the configured speed range.
             libm::sqrt(v.min_pulse_interval * v.max_pulse_interval)
         });
         let dt = t - p;
@@ -464,9 +527,7 @@ impl TachTracker {
         };
         if close {
             // Two close edges: keep the one nearer an expected position.
-            self.extra = self.extra.saturating_add(1);
-            self.flags.insert(TachFlags::EXTRA_PULSE);
-            self.rev_dirty = true;
+            self.note_extra();
             if let Some(a) = self.accepted {
                 let miss = |x: f64| {
                     let r = (x - a) / expected;
@@ -478,8 +539,48 @@ impl TachTracker {
             }
             return;
         }
-        self.commit_with_restart(p, &v, &mut marks);
-        self.pending = Some(t);
+        self.pending = None;
+        self.commit_with_restart(p, v, marks);
+        if self.booting {
+            self.process_edge(t, v, marks);
+        } else {
+            self.pending = Some(t);
+        }
+    }
+
+    /// Seeds the expected interval with the median of the boot intervals and
+    /// replays the boot edges through the normal validation.
+    fn end_boot(&mut self, v: &Validated, marks: &mut impl FnMut(RevMark)) {
+        let n = self.n_boot;
+        let edges = self.boot;
+        self.n_boot = 0;
+        self.booting = false;
+        let mut iv = [0.0f64; BOOT];
+        let mut k = 0;
+        for (slot, (a, b)) in iv.iter_mut().zip(
+            edges
+                .iter()
+                .take(n)
+                .zip(edges.iter().skip(1).take(n.saturating_sub(1))),
+        ) {
+            *slot = b - a;
+            k += 1;
+        }
+        let iv = iv.get_mut(..k).unwrap_or_default();
+        iv.sort_unstable_by(f64::total_cmp);
+        let e0 = match k {
+            0 => None,
+            2 => Some(0.5 * iv.iter().sum::<f64>()),
+            _ => iv.get(k / 2).copied(),
+        };
+        self.n_intervals = 0;
+        self.interval_pos = 0;
+        if let Some(e) = e0.filter(|&e| e <= STOP_RATIO * v.max_pulse_interval) {
+            self.record_interval(e, v);
+        }
+        for &e in edges.iter().take(n) {
+            self.process_edge(e, v, marks);
+        }
     }
 
     /// Tells the tracker that all input samples before `input_samples` have
@@ -492,6 +593,15 @@ impl TachTracker {
         let now = input_samples as f64;
         match self.mode {
             Mode::Constant { period, .. } => {
+                let target = now / period;
+                if target - self.next_virtual as f64 > MAX_JUMP_REVS {
+                    // A jump this large is a caller error; skip instead of looping for ages.
+                    self.flags.insert(TachFlags::TIME_JUMP);
+                    self.next_virtual =
+                        crate::num::f64_to_u64_sat(libm::ceil(target - MAX_JUMP_REVS));
+                    self.new_segment = true;
+                    self.last_mark = None;
+                }
                 loop {
                     let t = self.next_virtual as f64 * period;
                     if t >= now {
@@ -523,8 +633,18 @@ impl TachTracker {
         let mut constant = false;
         match self.mode {
             Mode::Tach(v) => {
-                if let Some(p) = self.pending.take() {
-                    self.commit_with_restart(p, &v, &mut marks);
+                // Flush the boot buffer and the held pulse (bounded: each
+                // round consumes edges).
+                for _ in 0..2 * BOOT {
+                    if self.booting && self.n_boot > 0 {
+                        self.end_boot(&v, &mut marks);
+                    }
+                    if let Some(p) = self.pending.take() {
+                        self.commit_with_restart(p, &v, &mut marks);
+                    }
+                    if !(self.booting && self.n_boot > 0) {
+                        break;
+                    }
                 }
                 self.check_stop(&v);
                 if self.edges_seen == 0 {
@@ -573,7 +693,7 @@ impl TachTracker {
     }
 
     fn check_stop(&mut self, v: &Validated) {
-        let Some(last) = self.pending.or(self.accepted) else {
+        let Some(last) = self.latest_edge() else {
             return;
         };
         let limit = match self.expected() {
@@ -606,7 +726,16 @@ impl TachTracker {
         self.n_intervals = (self.n_intervals + 1).min(cap);
     }
 
+    fn note_extra(&mut self) {
+        self.extra = self.extra.saturating_add(1);
+        self.flags.insert(TachFlags::EXTRA_PULSE);
+        self.rev_dirty = true;
+    }
+
     fn reset_segment(&mut self) {
+        self.pending = None;
+        self.booting = true;
+        self.n_boot = 0;
         self.accepted = None;
         self.n_intervals = 0;
         self.interval_pos = 0;
@@ -620,7 +749,7 @@ impl TachTracker {
     fn commit_with_restart(&mut self, p: f64, v: &Validated, marks: &mut impl FnMut(RevMark)) {
         self.commit(p, v, marks);
         if self.accepted.is_none() {
-            self.commit(p, v, marks);
+            self.process_edge(p, v, marks);
         }
     }
 
@@ -636,6 +765,11 @@ impl TachTracker {
         let expected = self.expected().unwrap_or(dt);
         let ratio = dt / expected;
         let first_interval = self.n_intervals == 0;
+        if !first_interval && ratio < EXTRA_RATIO {
+            // Defensive: the look-ahead normally catches this before commit.
+            self.note_extra();
+            return;
+        }
         let too_long = if first_interval {
             dt > STOP_RATIO * v.max_pulse_interval
         } else {
@@ -677,7 +811,7 @@ impl TachTracker {
         if !is_mark {
             return;
         }
-        if let Some(prev) = self.last_mark {
+        if let Some(prev) = self.last_mark.filter(|&p| t > p) {
             let rpm = crate::num::f64_to_f32(v.fs * 60.0 / (t - prev));
             self.revs = self.revs.saturating_add(1);
             self.sum_rpm += f64::from(rpm);

@@ -106,31 +106,47 @@ fn cubic_beats_linear_under_a_speed_sweep() {
     let s = 64u16;
     let d = decimation_for(FS as f32, 1200.0, 12.0, s);
     assert_eq!(d, 32); // min(0.4·51200/(12·20), 51200/(1.25·64·20)) = min(85.3, 32)
-    let sig = |theta: f64| (2.0 * PI * 5.4 * theta).sin() + (2.0 * PI * 10.8 * theta).sin();
     let n_dec = (8.0 * FS / f64::from(d)) as usize + 40;
     let last_theta = ramp.theta(n_dec as f64 * f64::from(d)).floor() as usize;
     let marks: Vec<f64> = (0..=last_theta).map(|k| ramp.time_of(k as f64)).collect();
     let delay = 37.5;
-    let mut res = Vec::new();
-    for interp in [Interpolation::CatmullRom, Interpolation::Linear] {
-        let cfg = ot_cfg(s, d, delay, 600.0, interp);
-        let (out, ot) = stream_exact_marks::<512>(&cfg, &marks, n_dec, |t| sig(ramp.theta(t)));
-        assert!(ot.flags().is_empty(), "{:?}", ot.flags());
-        assert!(ot.revs_emitted() >= 110, "{}", ot.revs_emitted());
-        assert_eq!(out.len(), ot.revs_emitted() as usize * 64);
-        res.push(rms_error(&out, 64, sig));
+    for orders in [&[5.4][..], &[10.8], &[5.4, 10.8]] {
+        let sig = |theta: f64| {
+            orders
+                .iter()
+                .map(|o| (2.0 * PI * o * theta).sin())
+                .sum::<f64>()
+        };
+        let sig_rms = (orders.len() as f64 * 0.5).sqrt();
+        let mut res = Vec::new();
+        for interp in [Interpolation::CatmullRom, Interpolation::Linear] {
+            let cfg = ot_cfg(s, d, delay, 600.0, interp);
+            let (out, ot) = stream_exact_marks::<1024>(&cfg, &marks, n_dec, |t| sig(ramp.theta(t)));
+            assert!(ot.flags().is_empty(), "{:?}", ot.flags());
+            assert!(ot.revs_emitted() >= 110, "{}", ot.revs_emitted());
+            assert_eq!(out.len(), ot.revs_emitted() as usize * 64);
+            res.push(rms_error(&out, 64, sig));
+        }
+        println!(
+            "speed sweep 600->1200 rpm, orders {orders:?}, S=64, D=32: RMS error Catmull-Rom {:.5}, linear {:.5} (signal RMS {sig_rms:.3})",
+            res[0], res[1]
+        );
+        assert!(
+            res[0] < 0.25 * res[1],
+            "cubic {} vs linear {}",
+            res[0],
+            res[1]
+        );
+        assert!(res[0] < 0.01 * sig_rms);
+        // Same with 8x denser envelope samples (D = 4): what remains is the
+        // angle-curve (PCHIP through the marks) error.
+        let cfg = ot_cfg(s, 4, delay, 600.0, Interpolation::CatmullRom);
+        let n4 = n_dec * 8;
+        let (out, _) = stream_exact_marks::<8192>(&cfg, &marks, n4, |t| sig(ramp.theta(t)));
+        let floor = rms_error(&out, 64, sig);
+        println!("  same orders with D=4 (angle-curve floor): RMS error {floor:.6}");
+        assert!(floor < 0.5 * res[0]);
     }
-    println!(
-        "speed sweep 600->1200 rpm, orders 5.4+10.8, S=64, D=32: RMS error Catmull-Rom {:.5}, linear {:.5} (signal RMS 1.0)",
-        res[0], res[1]
-    );
-    assert!(
-        res[0] < 0.25 * res[1],
-        "cubic {} vs linear {}",
-        res[0],
-        res[1]
-    );
-    assert!(res[0] < 0.01);
 }
 
 fn hann_spectrum(x: &[f32]) -> Vec<f64> {
@@ -325,12 +341,12 @@ fn constant_speed_equals_perfect_tach() {
 
 #[test]
 fn ring_overflow_is_flagged_not_panicking() {
-    // Configured for >= 600 rpm, fed 200 rpm: revolutions no longer fit the ring.
+    // Configured for >= 600 rpm, fed 100 rpm: revolutions no longer fit the ring.
     let cfg = ot_cfg(32, 32, 0.0, 600.0, Interpolation::CatmullRom);
-    assert!(ring_needed(1600.0, 600.0) <= 512);
-    let period = FS * 60.0 / 200.0;
+    assert!(ring_needed(1600.0, 600.0) <= 1024);
+    let period = FS * 60.0 / 100.0;
     let marks: Vec<f64> = (0..10).map(|k| 500.0 + k as f64 * period).collect();
-    let (out, ot) = stream_exact_marks::<512>(&cfg, &marks, 1600 * 3, |_| 1.0);
+    let (out, ot) = stream_exact_marks::<1024>(&cfg, &marks, 1600 * 3, |_| 1.0);
     assert!(
         ot.flags().contains(OrderFlags::RING_OVERFLOW),
         "{:?}",
@@ -374,4 +390,46 @@ fn ram_sizes() {
     );
     assert!(tt < 4 * 1024 + 512, "series dominates: {tt}");
     assert!(o2048 <= 4 * 2048 + 512);
+}
+
+mod fuzz {
+    use super::*;
+    use proptest::prelude::*;
+
+    #[derive(Debug, Clone)]
+    enum Op {
+        Mark(f64, bool),
+        Sample(f32),
+        Samples(u16),
+    }
+
+    fn op() -> impl Strategy<Value = Op> {
+        prop_oneof![
+            (any::<f64>(), any::<bool>()).prop_map(|(t, s)| Op::Mark(t, s)),
+            (-1e6f64..1e7, any::<bool>()).prop_map(|(t, s)| Op::Mark(t, s)),
+            any::<f32>().prop_map(Op::Sample),
+            (0u16..3000).prop_map(Op::Samples),
+        ]
+    }
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(512))]
+        // Arbitrary mark times (NaN, inf, backwards) and samples never panic,
+        // and the output is always whole revolutions.
+        #[test]
+        fn arbitrary_marks_never_panic(ops in proptest::collection::vec(op(), 0..200), delay in -1e4f32..1e4) {
+            let cfg = ot_cfg(16, 8, delay, 600.0, Interpolation::CatmullRom);
+            let mut ot = OrderTracker::<4096>::new(&cfg).unwrap();
+            let mut out = 0usize;
+            for (i, o) in ops.into_iter().enumerate() {
+                match o {
+                    Op::Mark(t, s) => ot.push_mark(RevMark { time_samples: t, index: i as u32, segment_start: s, bridged: false }, |_| out += 1),
+                    Op::Sample(x) => ot.push_sample(x, |_| out += 1),
+                    Op::Samples(n) => for k in 0..n { ot.push_sample(f32::from(k), |_| out += 1) },
+                }
+            }
+            ot.finish(|_| out += 1);
+            prop_assert_eq!(out, ot.revs_emitted() as usize * 16);
+        }
+    }
 }

@@ -308,3 +308,96 @@ fn bad_configs_are_typed_errors() {
     })
     .is_err());
 }
+
+#[test]
+fn late_double_pulse_after_commit_is_dropped() {
+    // The held pulse is committed by advance_to (0.6 period later); a bounce
+    // edge 0.1 period after the real one arrives only afterwards.
+    let c = cfg();
+    let mut t = TachTracker::new(&SpeedSource::Tach(c)).unwrap();
+    let mut marks = Vec::new();
+    for k in 0..30u32 {
+        let tick = 1000 + k * 40_000;
+        t.push_edge(tick, |m| marks.push(m));
+        let after = u64::from(tick + 24_000) * 512 / 10_000;
+        t.advance_to(after, |m| marks.push(m));
+        if k == 12 {
+            t.push_edge(tick + 4000, |m| marks.push(m));
+        }
+    }
+    let s = t.finish(|m| marks.push(m));
+    assert!(s.flags.contains(TachFlags::EXTRA_PULSE), "{:?}", s.flags);
+    assert_eq!(marks.len(), 30);
+    for (k, m) in marks.iter().enumerate() {
+        let exact = f64::from(1000 + k as u32 * 40_000) * 0.0512;
+        assert!((m.time_samples - exact).abs() < 1e-6, "mark {k}");
+    }
+}
+
+#[test]
+fn glitch_in_the_first_interval_does_not_mislead() {
+    // 700 rpm (near min_rpm = 600): a period is 4389 samples, far above the
+    // 0.5 x 1024-sample minimum interval, so only the boot median catches these.
+    let truth = steady(700.0, 30);
+    let exact: Vec<f64> = truth.iter().map(|&k| f64::from(k) * 0.0512).collect();
+    // Missing pulse right after the first one.
+    let mut e = truth.clone();
+    e.remove(1);
+    let (s, marks) = run(cfg(), &e, end_of(&e));
+    assert!(s.flags.contains(TachFlags::MISSING_PULSE), "{:?}", s.flags);
+    assert_eq!(marks.len(), 30);
+    assert!((marks[1].time_samples - exact[1]).abs() < 0.5);
+    assert!((s.min_rpm - 700.0).abs() < 0.1, "{s:?}");
+    // Double pulse 0.3 period after the first one.
+    let mut e = truth.clone();
+    e.insert(1, truth[0] + 25_700);
+    let (s, marks) = run(cfg(), &e, end_of(&e));
+    assert!(s.flags.contains(TachFlags::EXTRA_PULSE), "{:?}", s.flags);
+    assert!(!s.flags.contains(TachFlags::MISSING_PULSE) && !s.flags.contains(TachFlags::STOP));
+    assert_eq!(marks.len(), 30);
+    for (m, x) in marks.iter().zip(&exact) {
+        assert!((m.time_samples - x).abs() < 1e-6);
+    }
+}
+
+#[test]
+fn boot_median_needs_sorting_and_stop_is_seen_while_booting() {
+    // Missing pulse at the second interval: boot intervals [T, 2T, T]; the median is T.
+    let truth = steady(700.0, 30);
+    let mut e = truth.clone();
+    e.remove(2);
+    let (s, marks) = run(cfg(), &e, end_of(&e));
+    assert_eq!(marks.len(), 30, "{s:?}");
+    assert!(
+        (s.min_rpm - 700.0).abs() < 0.1 && (s.max_rpm - 700.0).abs() < 0.1,
+        "{s:?}"
+    );
+    // Three edges, then silence: the stop is flagged live (before finish).
+    let mut t = TachTracker::new(&SpeedSource::Tach(cfg())).unwrap();
+    for &k in &truth[..3] {
+        t.push_edge(k, |_| {});
+    }
+    t.advance_to(51_200 * 2, |_| {});
+    assert!(t.flags().contains(TachFlags::STOP), "{:?}", t.flags());
+}
+
+#[test]
+fn constant_mode_huge_jump_is_flagged_not_hanging() {
+    let src = SpeedSource::Constant {
+        rpm: 1500.0,
+        sample_rate_hz: FS,
+    };
+    let mut t = TachTracker::new(&src).unwrap();
+    let mut n = 0u64;
+    t.advance_to(10_000, |_| n += 1);
+    assert_eq!(n, 5);
+    t.advance_to(u64::MAX, |_| n += 1);
+    let s = t.finish(|_| {});
+    assert!(s.flags.contains(TachFlags::TIME_JUMP));
+    assert!(n <= 5 + 65_537, "{n}");
+    assert!(TachTracker::new(&SpeedSource::Constant {
+        rpm: 1e30,
+        sample_rate_hz: FS
+    })
+    .is_err());
+}
