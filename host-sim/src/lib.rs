@@ -16,6 +16,8 @@
 
 pub mod analysis;
 pub mod cmd_analyze;
+pub mod cmd_batch;
+pub mod cmd_compare;
 pub mod cmd_simulate;
 pub mod edges_csv;
 pub mod error;
