@@ -18,6 +18,7 @@ pub mod analysis;
 pub mod cmd_analyze;
 pub mod cmd_batch;
 pub mod cmd_compare;
+pub mod cmd_demo;
 pub mod cmd_simulate;
 pub mod edges_csv;
 pub mod error;

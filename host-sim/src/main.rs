@@ -16,6 +16,8 @@ struct Cli {
 
 #[derive(Subcommand)]
 enum Command {
+    /// Run the main job on a built-in simulated gearbox (the embedded demo).
+    Demo(host_sim::cmd_demo::DemoArgs),
     /// Analyse a recording with a measuring point and print the report.
     Analyze(host_sim::cmd_analyze::AnalyzeArgs),
     /// Compare two reports (or folders of reports); exit 1 on a difference.
@@ -38,6 +40,7 @@ fn main() -> ExitCode {
     };
     let result: Result<(), host_sim::error::CliError> = match cli.command {
         Command::Simulate(a) => host_sim::cmd_simulate::run(&a),
+        Command::Demo(a) => host_sim::cmd_demo::run_cmd(&a),
         Command::Analyze(a) => host_sim::cmd_analyze::run_cmd(&a),
         Command::Compare(a) => host_sim::cmd_compare::run(&a),
         Command::Batch(a) => host_sim::cmd_batch::run(&a),
