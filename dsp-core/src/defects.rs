@@ -28,11 +28,13 @@
 //!    when its peak in that window reaches the threshold. Without an anchor
 //!    nothing is found. Random noise peaks rarely line up this way, which is
 //!    what keeps the false-alarm rate low.
-//! 5. **Attribution**: a found peak that also lies in the wide window of a
-//!    harmonic `h'` of another kind is shared. It is counted for the kind
-//!    with the lower harmonic number (a peak at BPFO is more plausibly BPFO's
-//!    fundamental than the n-th cage harmonic, since BPFO = n·FTF); with equal
-//!    numbers it counts for neither. `shared_with` reports the other kind.
+//! 5. **Attribution**: a found peak that another kind also found (peaks
+//!    within `refine_bins`) is shared. It is counted for the kind with more
+//!    found harmonics (the more consistent family), then for the lower
+//!    harmonic number (a peak at BPFO is more plausibly BPFO's fundamental
+//!    than the n-th cage harmonic, since BPFO = n·FTF); on a full tie it
+//!    counts for neither. `shared_with` reports the other kind, so
+//!    one peak never supports two detections.
 //! 6. **Sidebands**: BPFI at ± the bearing shaft's order, the 2×BSF line at ±
 //!    FTF, searched (±`refine_bins`, ± slip for FTF) beside each counted
 //!    harmonic among the first three; a pair's value is the weaker side's
@@ -467,7 +469,7 @@ impl DefectSearch {
             mask: cfg.mask_shaft_harmonics,
         };
         let mut results = DefectKind::ALL.map(|k| self.search_kind(&ctx, k, orders.line(k)));
-        self.attribute(&ctx, &mut results, orders);
+        self.attribute(&ctx, &mut results);
         for r in results.iter_mut() {
             self.decide(&ctx, r, orders);
         }
@@ -574,35 +576,37 @@ impl DefectSearch {
         }
     }
 
-    /// Marks found peaks that also fall in another kind's harmonic window and
-    /// counts each for at most one kind (the lower harmonic number).
-    fn attribute(&self, ctx: &Ctx<'_>, results: &mut [DefectResult; 4], orders: &BearingOrders) {
-        let lines = orders.lines();
-        for ki in 0..results.len() {
-            let Some(r) = results.get_mut(ki) else {
-                continue;
-            };
+    /// Resolves peaks claimed by two kinds: a found harmonic whose peak is
+    /// within `refine_bins` of a found harmonic of another kind is shared. It
+    /// counts for the kind with more found harmonics (stronger harmonic
+    /// consistency), then for the lower harmonic number; on a full tie for neither.
+    fn attribute(&self, ctx: &Ctx<'_>, results: &mut [DefectResult; 4]) {
+        // Snapshot of all found peaks: (kind index, harmonic, order).
+        let mut claims: heapless::Vec<(usize, u8, f32), { 4 * MAX_HARMONICS }> =
+            heapless::Vec::new();
+        for (ki, r) in results.iter().enumerate() {
+            for h in r.harmonics.iter().filter(|h| h.found) {
+                // Capacity 4 x MAX_HARMONICS holds every harmonic.
+                let _ = claims.push((ki, h.harmonic, h.found_order));
+            }
+        }
+        let same_peak = self.config.refine_bins * ctx.opb;
+        let found_count = |k: usize| claims.iter().filter(|(kj, _, _)| *kj == k).count();
+        for (ki, r) in results.iter_mut().enumerate() {
             for hr in r.harmonics.iter_mut() {
                 hr.counted = hr.found;
                 if !hr.found {
                     continue;
                 }
-                for (kj, &other_line) in lines.iter().enumerate() {
-                    if kj == ki {
-                        continue;
-                    }
-                    let clash = (1..=self.config.harmonics).find(|&h2| {
-                        let w = self.wide(other_line, h2, ctx.opb);
-                        libm::fabsf(hr.found_order - w.expected) <= w.half
-                    });
-                    if let Some(h2) = clash {
-                        if hr.shared_with.is_none() || h2 <= hr.harmonic {
-                            hr.shared_with = DefectKind::from_index(kj);
-                        }
-                        if h2 <= hr.harmonic {
-                            hr.counted = false;
-                        }
-                    }
+                let mine = (found_count(ki), core::cmp::Reverse(hr.harmonic));
+                let rival = claims
+                    .iter()
+                    .filter(|(kj, _, o)| *kj != ki && libm::fabsf(*o - hr.found_order) <= same_peak)
+                    .map(|&(kj, h2, _)| (kj, (found_count(kj), core::cmp::Reverse(h2))))
+                    .max_by_key(|(_, rank)| *rank);
+                if let Some((kj, rank)) = rival {
+                    hr.shared_with = DefectKind::from_index(kj);
+                    hr.counted = mine > rank;
                 }
             }
         }

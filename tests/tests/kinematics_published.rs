@@ -2,7 +2,9 @@
 //! that follow from the classical formulas.
 #![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing)]
 
-use dsp_core::kinematics::{BearingGeometry, DefectKind, DefectMultiples, Drivetrain, GeometryError, ShaftId, ShaftRatio};
+use dsp_core::kinematics::{
+    BearingGeometry, DefectKind, DefectMultiples, Drivetrain, GeometryError, ShaftId, ShaftRatio,
+};
 use proptest::prelude::*;
 
 fn rel(a: f32, b: f32) -> f32 {
@@ -16,12 +18,21 @@ fn rel(a: f32, b: f32) -> f32 {
 /// (= 2 x BSF).
 #[test]
 fn cwru_drive_end_matches_published_multiples() {
-    let g = BearingGeometry { rollers: 9, roller_diameter: 0.3126, pitch_diameter: 1.537, contact_angle_deg: 0.0 };
+    let g = BearingGeometry {
+        rollers: 9,
+        roller_diameter: 0.3126,
+        pitch_diameter: 1.537,
+        contact_angle_deg: 0.0,
+    };
     let m = g.multiples().unwrap();
     assert!(rel(m.bpfi(), 5.4152) < 5e-4, "BPFI {}", m.bpfi());
     assert!(rel(m.bpfo(), 3.5848) < 5e-4, "BPFO {}", m.bpfo());
     assert!(rel(m.ftf(), 0.39828) < 5e-4, "FTF {}", m.ftf());
-    assert!(rel(m.watched(DefectKind::Bsf), 4.7135) < 5e-4, "2xBSF {}", m.watched(DefectKind::Bsf));
+    assert!(
+        rel(m.watched(DefectKind::Bsf), 4.7135) < 5e-4,
+        "2xBSF {}",
+        m.watched(DefectKind::Bsf)
+    );
 }
 
 /// CWRU fan-end bearing (6203-2RS JEM SKF): 8 balls, d = 0.2656 in,
@@ -29,12 +40,21 @@ fn cwru_drive_end_matches_published_multiples() {
 /// rolling element 3.9874 (= 2 x BSF).
 #[test]
 fn cwru_fan_end_matches_published_multiples() {
-    let g = BearingGeometry { rollers: 8, roller_diameter: 0.2656, pitch_diameter: 1.122, contact_angle_deg: 0.0 };
+    let g = BearingGeometry {
+        rollers: 8,
+        roller_diameter: 0.2656,
+        pitch_diameter: 1.122,
+        contact_angle_deg: 0.0,
+    };
     let m = g.multiples().unwrap();
     assert!(rel(m.bpfi(), 4.9469) < 5e-4, "BPFI {}", m.bpfi());
     assert!(rel(m.bpfo(), 3.0530) < 5e-4, "BPFO {}", m.bpfo());
     assert!(rel(m.ftf(), 0.3817) < 5e-4, "FTF {}", m.ftf());
-    assert!(rel(m.watched(DefectKind::Bsf), 3.9874) < 5e-4, "2xBSF {}", m.watched(DefectKind::Bsf));
+    assert!(
+        rel(m.watched(DefectKind::Bsf), 3.9874) < 5e-4,
+        "2xBSF {}",
+        m.watched(DefectKind::Bsf)
+    );
 }
 
 /// Published multiples given directly (CWRU lists 2 x BSF; halved on entry)
@@ -42,13 +62,24 @@ fn cwru_fan_end_matches_published_multiples() {
 #[test]
 fn direct_multiples_equal_geometry() {
     let direct = DefectMultiples::new(3.5848, 5.4152, 0.39828, 4.7135 / 2.0).unwrap();
-    let g = BearingGeometry { rollers: 9, roller_diameter: 0.3126, pitch_diameter: 1.537, contact_angle_deg: 0.0 };
+    let g = BearingGeometry {
+        rollers: 9,
+        roller_diameter: 0.3126,
+        pitch_diameter: 1.537,
+        contact_angle_deg: 0.0,
+    };
     let m = g.multiples().unwrap();
     for k in DefectKind::ALL {
         assert!(rel(direct.watched(k), m.watched(k)) < 5e-4, "{k}");
     }
-    assert_eq!(DefectMultiples::new(3.0, f32::NAN, 0.4, 2.0), Err(GeometryError::NonFinite));
-    assert_eq!(DefectMultiples::new(3.0, -1.0, 0.4, 2.0), Err(GeometryError::NonPositiveMultiple));
+    assert_eq!(
+        DefectMultiples::new(3.0, f32::NAN, 0.4, 2.0),
+        Err(GeometryError::NonFinite)
+    );
+    assert_eq!(
+        DefectMultiples::new(3.0, -1.0, 0.4, 2.0),
+        Err(GeometryError::NonPositiveMultiple)
+    );
 }
 
 /// Chained gear ratios: driven speed = driver speed x z_driver / z_driven per
@@ -110,14 +141,52 @@ proptest! {
 /// Invalid geometry gives typed errors, never a panic.
 #[test]
 fn invalid_geometry_errors() {
-    let base = BearingGeometry { rollers: 9, roller_diameter: 0.3126, pitch_diameter: 1.537, contact_angle_deg: 0.0 };
+    let base = BearingGeometry {
+        rollers: 9,
+        roller_diameter: 0.3126,
+        pitch_diameter: 1.537,
+        contact_angle_deg: 0.0,
+    };
     let cases = [
-        (BearingGeometry { rollers: 0, ..base }, GeometryError::NoRollers),
-        (BearingGeometry { roller_diameter: 0.0, ..base }, GeometryError::RollerDiameter),
-        (BearingGeometry { roller_diameter: 1.537, ..base }, GeometryError::RollerDiameter),
-        (BearingGeometry { contact_angle_deg: -1.0, ..base }, GeometryError::ContactAngle),
-        (BearingGeometry { contact_angle_deg: 90.0, ..base }, GeometryError::ContactAngle),
-        (BearingGeometry { pitch_diameter: f32::INFINITY, ..base }, GeometryError::NonFinite),
+        (
+            BearingGeometry { rollers: 0, ..base },
+            GeometryError::NoRollers,
+        ),
+        (
+            BearingGeometry {
+                roller_diameter: 0.0,
+                ..base
+            },
+            GeometryError::RollerDiameter,
+        ),
+        (
+            BearingGeometry {
+                roller_diameter: 1.537,
+                ..base
+            },
+            GeometryError::RollerDiameter,
+        ),
+        (
+            BearingGeometry {
+                contact_angle_deg: -1.0,
+                ..base
+            },
+            GeometryError::ContactAngle,
+        ),
+        (
+            BearingGeometry {
+                contact_angle_deg: 90.0,
+                ..base
+            },
+            GeometryError::ContactAngle,
+        ),
+        (
+            BearingGeometry {
+                pitch_diameter: f32::INFINITY,
+                ..base
+            },
+            GeometryError::NonFinite,
+        ),
     ];
     for (g, e) in cases {
         assert_eq!(g.multiples(), Err(e));

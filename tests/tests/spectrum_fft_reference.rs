@@ -1,6 +1,11 @@
 //! microfft (as used by dsp-core) against rustfft, and the full amplitude
 //! spectrum against an f64 rustfft reference with the same window and scale.
-#![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing, clippy::cast_possible_truncation)]
+#![allow(
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::indexing_slicing,
+    clippy::cast_possible_truncation
+)]
 
 use dsp_core::spectrum::{real_fft, OrderSpectrum, SpectrumConfig, SpectrumError, Window};
 use rustfft::num_complex::Complex;
@@ -45,7 +50,10 @@ fn microfft_matches_rustfft() {
         assert!(worst < 1e-5, "N={n}: {worst}");
     }
     let mut odd = vec![0.0f32; 1000];
-    assert_eq!(real_fft(&mut odd).err(), Some(SpectrumError::UnsupportedSize));
+    assert_eq!(
+        real_fft(&mut odd).err(),
+        Some(SpectrumError::UnsupportedSize)
+    );
 }
 
 fn reference_amplitudes(x: &[f32], window: Window) -> Vec<f64> {
@@ -57,7 +65,8 @@ fn reference_amplitudes(x: &[f32], window: Window) -> Vec<f64> {
             match window {
                 Window::Hann => 0.5 - 0.5 * t.cos(),
                 _ => {
-                    0.21557895 - 0.41663158 * t.cos() + 0.277263158 * (2.0 * t).cos() - 0.083578947 * (3.0 * t).cos()
+                    0.21557895 - 0.41663158 * t.cos() + 0.277263158 * (2.0 * t).cos()
+                        - 0.083578947 * (3.0 * t).cos()
                         + 0.006947368 * (4.0 * t).cos()
                 }
             }
@@ -65,9 +74,17 @@ fn reference_amplitudes(x: &[f32], window: Window) -> Vec<f64> {
         .collect();
     let cg = w.iter().sum::<f64>() / n as f64;
     let mean = x.iter().map(|&v| f64::from(v)).sum::<f64>() / n as f64;
-    let mut buf: Vec<Complex<f64>> = x.iter().zip(&w).map(|(&v, &wi)| Complex::new((f64::from(v) - mean) * wi, 0.0)).collect();
-    FftPlanner::<f64>::new().plan_fft_forward(n).process(&mut buf);
-    (0..n / 2).map(|k| buf[k].norm() * if k == 0 { 1.0 } else { 2.0 } / (n as f64 * cg)).collect()
+    let mut buf: Vec<Complex<f64>> = x
+        .iter()
+        .zip(&w)
+        .map(|(&v, &wi)| Complex::new((f64::from(v) - mean) * wi, 0.0))
+        .collect();
+    FftPlanner::<f64>::new()
+        .plan_fft_forward(n)
+        .process(&mut buf);
+    (0..n / 2)
+        .map(|k| buf[k].norm() * if k == 0 { 1.0 } else { 2.0 } / (n as f64 * cg))
+        .collect()
 }
 
 fn check_spectrum<const N: usize, const H: usize>(seed: u64, window: Window) -> f64 {
@@ -79,7 +96,11 @@ fn check_spectrum<const N: usize, const H: usize>(seed: u64, window: Window) -> 
     assert_eq!(s.push_slice(&x), 1);
     let reference = reference_amplitudes(&x, window);
     let scale = reference.iter().cloned().fold(0.0, f64::max);
-    s.amplitudes().iter().zip(&reference).map(|(&a, &r)| (f64::from(a) - r).abs() / scale).fold(0.0, f64::max)
+    s.amplitudes()
+        .iter()
+        .zip(&reference)
+        .map(|(&a, &r)| (f64::from(a) - r).abs() / scale)
+        .fold(0.0, f64::max)
 }
 
 /// Amplitude spectrum (mean removal, window, scaling) against an f64 rustfft

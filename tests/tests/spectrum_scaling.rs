@@ -3,9 +3,16 @@
 //! with the discrete Fourier transform", Proc. IEEE 66(1), Table 1: Hann
 //! scalloping loss 1.42 dB; flat-top windows: scalloping under 0.1 dB (the
 //! 5-term one used here reads -0.0098 dB at half a bin, numpy/scipy).
-#![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing, clippy::cast_possible_truncation)]
+#![allow(
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::indexing_slicing,
+    clippy::cast_possible_truncation
+)]
 
-use dsp_core::spectrum::{Averaging, OrderSpectrum4096, OrderSpectrum512, PushOutcome, SpectrumConfig, Window};
+use dsp_core::spectrum::{
+    Averaging, OrderSpectrum4096, OrderSpectrum512, PushOutcome, SpectrumConfig, Window,
+};
 
 const S: u32 = 32; // samples per revolution; 4096 samples = 128 revolutions
 
@@ -20,7 +27,10 @@ fn read(window: Window, bin: f64, amp: f32) -> (f32, usize) {
     }
     assert_eq!(s.segments(), 1);
     let k0 = bin.floor() as usize;
-    let (k, a) = (k0.saturating_sub(2)..=k0 + 3).map(|k| (k, s.amplitudes()[k])).max_by(|a, b| a.1.total_cmp(&b.1)).unwrap();
+    let (k, a) = (k0.saturating_sub(2)..=k0 + 3)
+        .map(|k| (k, s.amplitudes()[k]))
+        .max_by(|a, b| a.1.total_cmp(&b.1))
+        .unwrap();
     (a, k)
 }
 
@@ -67,7 +77,10 @@ fn order_axis() {
 /// sqrt((0.09 + 0.16) / 2) = 0.35355; `Latest` reads the last segment only.
 #[test]
 fn power_average_of_segments() {
-    for (mode, expected) in [(Averaging::PowerMean, (0.125f32).sqrt()), (Averaging::Latest, 0.4)] {
+    for (mode, expected) in [
+        (Averaging::PowerMean, (0.125f32).sqrt()),
+        (Averaging::Latest, 0.4),
+    ] {
         let mut cfg = SpectrumConfig::with_samples_per_rev(16);
         cfg.averaging = mode;
         let mut s = OrderSpectrum512::new(cfg).unwrap();
@@ -99,7 +112,10 @@ fn non_finite_sample_flags_segment() {
             outcomes.push(o);
         }
     }
-    assert_eq!(outcomes, vec![PushOutcome::SegmentRejected, PushOutcome::SegmentDone]);
+    assert_eq!(
+        outcomes,
+        vec![PushOutcome::SegmentRejected, PushOutcome::SegmentDone]
+    );
     assert_eq!((s.segments(), s.rejected_segments()), (1, 1));
     assert!(s.amplitudes().iter().all(|v| v.is_finite()));
 }
