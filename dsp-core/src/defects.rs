@@ -30,7 +30,8 @@
 //!    what keeps the false-alarm rate low.
 //! 5. **Attribution**: a found peak that another kind also found (peaks
 //!    within `refine_bins`) is shared. It is counted for the kind with more
-//!    found harmonics (the more consistent family), then for the lower
+//!    found harmonics (the more consistent family: a stray one-peak anchor
+//!    cannot take a peak from a family), then for the lower
 //!    harmonic number (a peak at BPFO is more plausibly BPFO's fundamental
 //!    than the n-th cage harmonic, since BPFO = n·FTF); on a full tie it
 //!    counts for neither. `shared_with` reports the other kind, so
@@ -578,8 +579,8 @@ impl DefectSearch {
 
     /// Resolves peaks claimed by two kinds: a found harmonic whose peak is
     /// within `refine_bins` of a found harmonic of another kind is shared. It
-    /// counts for the kind with more found harmonics (stronger harmonic
-    /// consistency), then for the lower harmonic number; on a full tie for neither.
+    /// counts for the kind with more found harmonics (the more consistent
+    /// family), then for the lower harmonic number; on a full tie for neither.
     fn attribute(&self, ctx: &Ctx<'_>, results: &mut [DefectResult; 4]) {
         // Snapshot of all found peaks: (kind index, harmonic, order).
         let mut claims: heapless::Vec<(usize, u8, f32), { 4 * MAX_HARMONICS }> =
