@@ -29,9 +29,12 @@
 //!    nothing is found. Random noise peaks rarely line up this way, which is
 //!    what keeps the false-alarm rate low.
 //! 5. **Attribution**: a found peak that another kind also found (peaks
-//!    within `refine_bins`) is shared. It is counted for the kind with more
-//!    found harmonics (the more consistent family: a stray one-peak anchor
-//!    cannot take a peak from a family), then for the lower
+//!    within `refine_bins`), or that sits on any integer multiple `m` of
+//!    another family's anchored line (e.g. BPFO's 6th harmonic inside a BPFI
+//!    window; that family needing two found harmonics), is shared. It is
+//!    counted for the stronger family (summed prominence in dB of its found
+//!    harmonics: a stray one-peak anchor cannot take a peak from a family),
+//!    then for the lower
 //!    harmonic number (a peak at BPFO is more plausibly BPFO's fundamental
 //!    than the n-th cage harmonic, since BPFO = n·FTF); on a full tie it
 //!    counts for neither. `shared_with` reports the other kind, so
@@ -412,6 +415,16 @@ impl Ctx<'_> {
     }
 }
 
+/// Attribution rank: family strength (dB sum), then lower harmonic number.
+#[derive(Clone, Copy)]
+struct Rank(f32, u8);
+
+impl Rank {
+    fn cmp_rank(&self, other: &Rank) -> core::cmp::Ordering {
+        self.0.total_cmp(&other.0).then(other.1.cmp(&self.1))
+    }
+}
+
 fn not_searched(h: u8, expected: f32) -> HarmonicResult {
     HarmonicResult {
         harmonic: h,
@@ -578,9 +591,11 @@ impl DefectSearch {
     }
 
     /// Resolves peaks claimed by two kinds: a found harmonic whose peak is
-    /// within `refine_bins` of a found harmonic of another kind is shared. It
-    /// counts for the kind with more found harmonics (the more consistent
-    /// family), then for the lower harmonic number; on a full tie for neither.
+    /// within `refine_bins` of a found harmonic of another kind, or on any
+    /// integer multiple of another kind's anchored line (that kind having at
+    /// least two found harmonics), is shared. It counts for the kind with
+    /// the stronger family (summed prominence of its found harmonics), then
+    /// for the lower harmonic number; on a full tie for neither.
     fn attribute(&self, ctx: &Ctx<'_>, results: &mut [DefectResult; 4]) {
         // Snapshot of all found peaks: (kind index, harmonic, order).
         let mut claims: heapless::Vec<(usize, u8, f32), { 4 * MAX_HARMONICS }> =
@@ -593,21 +608,53 @@ impl DefectSearch {
         }
         let same_peak = self.config.refine_bins * ctx.opb;
         let found_count = |k: usize| claims.iter().filter(|(kj, _, _)| *kj == k).count();
+        // Family strength: summed prominence (dB) of the kind's found harmonics.
+        let strength: [f32; 4] = core::array::from_fn(|k| {
+            results.get(k).map_or(0.0, |r| {
+                r.harmonics
+                    .iter()
+                    .filter(|h| h.found)
+                    .map(|h| h.prominence_db.max(0.0))
+                    .sum()
+            })
+        });
+        let rank = |k: usize, h: u8| Rank(strength.get(k).copied().unwrap_or(0.0), h);
+        // Anchored actual line L' = f_a / h_a and anchor harmonic of each kind.
+        let families: [Option<(f32, u8)>; 4] = core::array::from_fn(|k| {
+            let r = results.get(k)?;
+            let ha = r.anchor?;
+            let h = r.harmonics.iter().find(|h| h.harmonic == ha)?;
+            (h.found_order > 0.0).then_some((h.found_order / f32::from(ha), ha))
+        });
         for (ki, r) in results.iter_mut().enumerate() {
             for hr in r.harmonics.iter_mut() {
                 hr.counted = hr.found;
                 if !hr.found {
                     continue;
                 }
-                let mine = (found_count(ki), core::cmp::Reverse(hr.harmonic));
-                let rival = claims
+                let mine = rank(ki, hr.harmonic);
+                let o = hr.found_order;
+                // (a) another kind found the same peak.
+                let same = claims
                     .iter()
-                    .filter(|(kj, _, o)| *kj != ki && libm::fabsf(*o - hr.found_order) <= same_peak)
-                    .map(|&(kj, h2, _)| (kj, (found_count(kj), core::cmp::Reverse(h2))))
-                    .max_by_key(|(_, rank)| *rank);
+                    .filter(|(kj, _, o2)| *kj != ki && libm::fabsf(*o2 - o) <= same_peak)
+                    .map(|&(kj, h2, _)| (kj, rank(kj, h2)));
+                // (b) the peak sits on a harmonic m of another kind's family
+                // (anchored line L'), including harmonics beyond the searched ones.
+                let family = families.iter().enumerate().filter_map(|(kj, f)| {
+                    let (line, ha) = (*f)?;
+                    if kj == ki || found_count(kj) < 2 {
+                        return None;
+                    }
+                    let m = libm::roundf(o / line);
+                    let tol = (self.config.refine_bins + m / (4.0 * f32::from(ha))) * ctx.opb;
+                    let m_u8 = u8::try_from(f32_to_usize_sat(m)).unwrap_or(u8::MAX);
+                    (m >= 1.0 && libm::fabsf(o - m * line) <= tol).then_some((kj, rank(kj, m_u8)))
+                });
+                let rival = same.chain(family).max_by(|a, b| a.1.cmp_rank(&b.1));
                 if let Some((kj, rank)) = rival {
                     hr.shared_with = DefectKind::from_index(kj);
-                    hr.counted = mine > rank;
+                    hr.counted = mine.cmp_rank(&rank) == core::cmp::Ordering::Greater;
                 }
             }
         }
