@@ -49,6 +49,11 @@
 //! or when the fundamental is counted and a sideband pair reaches
 //! `sideband_threshold_db` (BPFI and BSF only).
 //!
+//! # Memory
+//! No heap. [`BearingDiagnosis`] is 1280 bytes (returned by value); the
+//! search uses about 1.5 KiB more stack (the 256-entry floor scratch and a
+//! 40-entry list of found peaks).
+//!
 //! # Score
 //! `score_db = 10·log10(Σ A_h² / Σ F_h²)` over the counted harmonics
 //! (amplitude `A`, floor `F`): the power of the defect's harmonic family over

@@ -2,6 +2,7 @@
 //! ../shared/data/cwru; fault labels and speeds from its manifest): a plain
 //! test-side envelope front end (RBJ band-pass 2-5 kHz, rectify, low-pass,
 //! resample to 64 samples/rev at the recorded constant speed), then the
+//! bearing multiples from the drive-end 6205 geometry (kinematics), the
 //! dsp-core order spectrum and defect search with default thresholds.
 #![allow(
     clippy::unwrap_used,
@@ -157,9 +158,15 @@ fn envelope_angle(x: &[f32], fs: f64, rpm: f64) -> Vec<f32> {
 #[test]
 fn cwru_drive_end_channel() {
     let dir = data_dir();
-    let de = DefectMultiples::new(3.5848, 5.4152, 0.39828, 4.7135 / 2.0)
-        .unwrap()
-        .orders(ShaftRatio::TACH);
+    let de = dsp_core::kinematics::BearingGeometry {
+        rollers: 9,
+        roller_diameter: 0.3126,
+        pitch_diameter: 1.537,
+        contact_angle_deg: 0.0,
+    }
+    .multiples()
+    .unwrap()
+    .orders(ShaftRatio::TACH);
     let search = DefectSearch::new(DefectSearchConfig::default()).unwrap();
     let mut rows = Vec::new();
     let mut too_short = Vec::new();

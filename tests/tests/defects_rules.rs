@@ -255,3 +255,23 @@ fn bad_input_is_typed() {
         .search(&SpectrumView::new(&ok, OPB, Window::Hann).unwrap(), &huge);
     assert_eq!(e.err(), Some(SearchError::InvalidOrders));
 }
+
+/// A peak on a higher harmonic of a strong family (BPFO's 6th, 21.509, not
+/// among the 5 searched BPFO harmonics) that also fits a weak BPFI "family"
+/// (a stray line at 21.509 / 4) is explained by BPFO and does not make BPFI
+/// a detection.
+#[test]
+fn higher_harmonic_of_strong_family_is_not_reused() {
+    let mut s = floor(9, 0.01);
+    for h in 1..=6 {
+        add_line(&mut s, 3.5848 * h as f32, 0.3);
+    }
+    add_line(&mut s, 6.0 * 3.5848 / 4.0, 0.05);
+    let d = run(&s, DefectSearchConfig::default());
+    assert!(d.get(DefectKind::Bpfo).unwrap().detected);
+    let bpfi = d.get(DefectKind::Bpfi).unwrap();
+    let h4 = &bpfi.harmonics[3];
+    assert!(h4.found && !h4.counted, "{h4:?}");
+    assert_eq!(h4.shared_with, Some(DefectKind::Bpfo));
+    assert!(!bpfi.detected, "{bpfi:?}");
+}
