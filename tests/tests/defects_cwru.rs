@@ -16,7 +16,7 @@
 use std::path::{Path, PathBuf};
 
 use dsp_core::defects::{DefectSearch, DefectSearchConfig};
-use dsp_core::kinematics::{DefectKind, DefectMultiples, ShaftRatio};
+use dsp_core::kinematics::{DefectKind, ShaftRatio};
 use dsp_core::spectrum::{OrderSpectrum4096, SpectrumConfig};
 
 const S: u32 = 64;
