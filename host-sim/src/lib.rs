@@ -15,3 +15,4 @@
 )]
 
 pub mod error;
+pub mod gateway;

@@ -4,14 +4,21 @@ use clap::{Parser, Subcommand};
 use std::process::ExitCode;
 
 #[derive(Parser)]
-#[command(name = "envord", version, about = "Bearing envelope order analysis, as the node runs it")]
+#[command(
+    name = "envord",
+    version,
+    about = "Bearing envelope order analysis, as the node runs it"
+)]
 struct Cli {
     #[command(subcommand)]
     command: Command,
 }
 
 #[derive(Subcommand)]
-enum Command {}
+enum Command {
+    /// Read node frames at the plant gateway: decode, import, status, trend.
+    Gateway(host_sim::gateway::GatewayArgs),
+}
 
 fn main() -> ExitCode {
     let cli = match Cli::try_parse() {
@@ -23,7 +30,9 @@ fn main() -> ExitCode {
             return ExitCode::from(code);
         }
     };
-    let result: Result<(), host_sim::error::CliError> = match cli.command {};
+    let result: Result<(), host_sim::error::CliError> = match cli.command {
+        Command::Gateway(a) => host_sim::gateway::run(a),
+    };
     match result {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) => {
