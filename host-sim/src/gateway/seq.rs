@@ -2,8 +2,9 @@
 
 use std::collections::{HashMap, HashSet};
 
-/// A sequence number below this after a backward jump is read as a node
-/// restart (counter reset) rather than a late frame.
+/// A backward jump to a number below this, from more than this far ahead,
+/// is read as a node restart (counter reset); shorter backward jumps are late
+/// frames.
 pub const RESET_WINDOW: u16 = 16;
 
 /// What one frame's sequence number says about the link.
@@ -24,7 +25,7 @@ pub enum SeqEvent {
     },
     /// The same node, number and payload were already seen.
     Duplicate,
-    /// Same number as an earlier frame but different content.
+    /// Same number as the previous frame but different content.
     Conflict,
     /// The counter went back to a small number: the node restarted.
     Reset {
@@ -95,7 +96,6 @@ pub struct NodeSeqStats {
 pub struct SeqTracker {
     nodes: HashMap<u16, NodeSeqStats>,
     seen: HashSet<(u16, u16, Vec<u8>)>,
-    seen_seq: HashSet<(u16, u16)>,
 }
 
 impl SeqTracker {
@@ -112,12 +112,11 @@ impl SeqTracker {
             st.duplicates += 1;
             return SeqEvent::Duplicate;
         }
-        let repeat = !self.seen_seq.insert((node, seq));
         let ev = match st.last {
             None => SeqEvent::First,
             Some(last) => {
                 let d = seq.wrapping_sub(last);
-                if d == 0 || repeat && d >= 0x8000 {
+                if d == 0 {
                     SeqEvent::Conflict
                 } else if d == 1 {
                     SeqEvent::InOrder
@@ -127,7 +126,7 @@ impl SeqTracker {
                         to: seq,
                         missing: d - 1,
                     }
-                } else if seq < RESET_WINDOW {
+                } else if seq < RESET_WINDOW && last.wrapping_sub(seq) > RESET_WINDOW {
                     SeqEvent::Reset {
                         from: last,
                         to: seq,
