@@ -5,7 +5,7 @@
     clippy::cast_possible_truncation
 )]
 
-#[path = "gateway_common.rs"]
+#[path = "gateway_common/mod.rs"]
 mod common;
 
 use common::*;

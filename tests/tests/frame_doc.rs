@@ -2,7 +2,7 @@
 //! hex and the decoded JSON in the document must equal what the code gives.
 #![allow(clippy::unwrap_used, clippy::indexing_slicing)]
 
-#[path = "frame_common.rs"]
+#[path = "frame_common/mod.rs"]
 mod common;
 
 use dsp_core::frame::{

@@ -1,7 +1,7 @@
 //! Each kind of damaged frame gives its own decode error.
 #![allow(clippy::unwrap_used, clippy::indexing_slicing)]
 
-#[path = "frame_common.rs"]
+#[path = "frame_common/mod.rs"]
 mod common;
 
 use dsp_core::frame::crc::crc16;

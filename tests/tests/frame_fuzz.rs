@@ -2,7 +2,7 @@
 //! canonical (re-encoding gives the same bytes).
 #![allow(clippy::unwrap_used, clippy::indexing_slicing)]
 
-#[path = "frame_common.rs"]
+#[path = "frame_common/mod.rs"]
 mod common;
 
 use dsp_core::frame::crc::crc16;

@@ -6,7 +6,7 @@
     clippy::cast_possible_truncation
 )]
 
-#[path = "frame_common.rs"]
+#[path = "frame_common/mod.rs"]
 mod common;
 
 use dsp_core::frame::quantisation::{self as q, Linear};

@@ -3,7 +3,7 @@
 //! application payload (M minus FHDR/FPort, no FOpts) 51 bytes; US915 DR0 11 bytes.
 #![allow(clippy::unwrap_used, clippy::indexing_slicing)]
 
-#[path = "frame_common.rs"]
+#[path = "frame_common/mod.rs"]
 mod common;
 
 use dsp_core::frame::layout::{EU868_DR0_MAX_PAYLOAD, US915_DR0_MAX_PAYLOAD};
