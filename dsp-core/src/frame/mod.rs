@@ -787,8 +787,9 @@ pub fn decode_any(bytes: &[u8]) -> Result<Frame, DecodeError> {
 }
 
 /// Writes the JSON form of `r` into `out` (serde-json-core; NaN becomes
-/// `null`), returning the number of bytes written. A 4-bearing report needs
-/// about 1.6 kB.
+/// `null`), returning the number of bytes written. A 4-bearing report with
+/// long float texts takes 1766 bytes (test `json_of_four_bearings_fits_2k`), so
+/// a 2048-byte buffer is enough; a short buffer gives an error, not a panic.
 pub fn to_json(r: &FrameReport, out: &mut [u8]) -> Result<usize, serde_json_core::ser::Error> {
     serde_json_core::to_slice(r, out)
 }
@@ -840,6 +841,24 @@ mod tests {
         let mut buf = [0u8; 11];
         assert_eq!(encode_reduced(&r, &mut buf), Ok(11));
         assert_eq!(decode_reduced(&buf).unwrap(), red);
+    }
+
+    #[test]
+    fn json_of_four_bearings_fits_2k() {
+        // Worst case for length: long float texts everywhere.
+        let mut r = sample(4);
+        r.speed_rpm = 12345.678;
+        for b in r.bearings.iter_mut() {
+            for d in b.defects.iter_mut() {
+                d.score_db = 61.999_99;
+                d.amplitude_1x_g = 0.000_123_456_79;
+            }
+        }
+        let mut buf = [0u8; 2048];
+        let n = to_json(&r, &mut buf).unwrap();
+        assert!(n > 1200 && n < 2048, "{n}");
+        let mut small = [0u8; 64];
+        assert!(to_json(&r, &mut small).is_err());
     }
 
     #[test]
