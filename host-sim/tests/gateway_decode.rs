@@ -18,7 +18,8 @@ fn tracker_finds_gaps_duplicates_resets_and_wraps() {
     let p = |s: u16| frame(7, s, 5.0, false);
     assert_eq!(t.observe(7, 65533, &p(65533)), SeqEvent::First);
     assert_eq!(t.observe(7, 65534, &p(65534)), SeqEvent::InOrder);
-    // The u16 counter wraps 65535 -> 0: 65535 lost, 0 follows as a gap of one.
+    // RFC 1982 serial number arithmetic (16 bits): 65534 -> 0 is forward by 2,
+    // so 65535 was lost.
     assert_eq!(
         t.observe(7, 0, &p(0)),
         SeqEvent::Gap {

@@ -118,7 +118,8 @@ fn interrupted_import_loses_nothing() {
     child.wait().unwrap();
     let partial = db_count(&db, "reports");
     assert!(partial > 0 && partial < 20_000, "partial {partial}");
-    // Only whole committed batches of 100 frames are in the store.
+    // SQLite commits are atomic even on a killed process (sqlite.org, "Atomic
+    // Commit In SQLite"), so only whole batches of 100 frames are in the store.
     assert_eq!(partial % 100, 0, "partial {partial}");
     let o = run(
         &["gateway", "import", "--db", "gw.sqlite", "big.txt"],
@@ -205,6 +206,7 @@ fn status_states_baselines_and_combined_view() {
     let d = find(3, 0, "bpfo");
     assert_eq!(d["baseline_db"], 5.0);
     assert_eq!(d["baseline_origin"], "learned");
+    // +6 / +12 dB over baseline (common practice for spectral trending).
     // 17.5 dB is rounded to 18 dB by the frame (1 dB steps): +13 dB over 5 -> danger.
     assert_eq!(d["latest_db"], 18.0);
     assert_eq!(d["state"], "danger");

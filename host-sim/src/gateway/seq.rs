@@ -115,6 +115,8 @@ impl SeqTracker {
         let ev = match st.last {
             None => SeqEvent::First,
             Some(last) => {
+                // Serial number arithmetic on 16 bits (RFC 1982): forward when
+                // the difference mod 2^16 is below 2^15.
                 let d = seq.wrapping_sub(last);
                 if d == 0 {
                     SeqEvent::Conflict
