@@ -25,10 +25,7 @@ const PATH: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/../host-sim/js/vectors.
 fn error_name(bytes: &[u8]) -> String {
     let e = decode_any(bytes).unwrap_err();
     let dbg = format!("{e:?}");
-    dbg.split(|c| c == ' ' || c == '(' || c == '{')
-        .next()
-        .unwrap()
-        .to_string()
+    dbg.split([' ', '(', '{']).next().unwrap().to_string()
 }
 
 fn generate() -> String {
