@@ -22,6 +22,7 @@ pub mod cmd_demo;
 pub mod cmd_simulate;
 pub mod edges_csv;
 pub mod error;
+pub mod gateway;
 pub mod plot;
 pub mod point;
 pub mod report_json;

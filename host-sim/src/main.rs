@@ -26,6 +26,8 @@ enum Command {
     Batch(host_sim::cmd_batch::BatchArgs),
     /// Write a simulated gearbox record (WAV: ch0 accel g, ch1 tach V).
     Simulate(host_sim::cmd_simulate::SimulateArgs),
+    /// Read node frames at the plant gateway: decode, import, status, trend.
+    Gateway(host_sim::gateway::GatewayArgs),
 }
 
 fn main() -> ExitCode {
@@ -44,6 +46,7 @@ fn main() -> ExitCode {
         Command::Analyze(a) => host_sim::cmd_analyze::run_cmd(&a),
         Command::Compare(a) => host_sim::cmd_compare::run(&a),
         Command::Batch(a) => host_sim::cmd_batch::run(&a),
+        Command::Gateway(a) => host_sim::gateway::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
