@@ -51,7 +51,14 @@ fn worst_rejection(d: u16, step_hz: usize) -> (f64, f64) {
 #[test]
 fn alias_rejection_at_least_60_db() {
     // Steps chosen to keep the debug-build run short; edges 0.6 fo (240 Hz) are hit.
-    for (d, step) in [(2u16, 1usize), (3, 1), (8, 3), (12, 7), (25, 13), (1024, 997)] {
+    for (d, step) in [
+        (2u16, 1usize),
+        (3, 1),
+        (8, 3),
+        (12, 7),
+        (25, 13),
+        (1024, 997),
+    ] {
         let (rej, f) = worst_rejection(d, step);
         println!("decimate by {d}: worst alias rejection {rej:.1} dB at {f} Hz (fs_out 400 Hz)");
         assert!(rej >= 60.0, "factor {d}: {rej} dB at {f} Hz");

@@ -50,7 +50,10 @@ fn bandpass_magnitude_matches_scipy_within_0p05_db() {
             assert!(
                 err <= 0.05,
                 "fs {} band {}-{} poles {} f {f}: {got} dB vs scipy {want} dB",
-                c.fs, c.lo, c.hi, c.poles
+                c.fs,
+                c.lo,
+                c.hi,
+                c.poles
             );
             checked += 1;
         }

@@ -46,7 +46,8 @@ struct Golden {
 }
 
 fn golden() -> Golden {
-    let s = std::fs::read_to_string(data_path("frontend_golden.json")).expect("frontend_golden.json");
+    let s =
+        std::fs::read_to_string(data_path("frontend_golden.json")).expect("frontend_golden.json");
     serde_json::from_str(&s).unwrap()
 }
 
@@ -100,10 +101,17 @@ fn envelope_matches_scipy_reference() {
         let mut y = Vec::new();
         fe.push_f32(&x, |v| y.push(f64::from(v)));
         assert_eq!(y.len(), c.envelope.len());
-        let num: f64 = y.iter().zip(&c.envelope).map(|(a, b)| (a - b) * (a - b)).sum();
+        let num: f64 = y
+            .iter()
+            .zip(&c.envelope)
+            .map(|(a, b)| (a - b) * (a - b))
+            .sum();
         let den: f64 = c.envelope.iter().map(|b| b * b).sum();
         let rel = (num / den).sqrt();
-        println!("envelope ({}): relative RMS error vs scipy = {rel:.2e}", c.rectifier);
+        println!(
+            "envelope ({}): relative RMS error vs scipy = {rel:.2e}",
+            c.rectifier
+        );
         assert!(rel <= 1e-4, "{}: {rel}", c.rectifier);
     }
 }

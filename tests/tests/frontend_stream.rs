@@ -14,7 +14,11 @@ fn config(abs: bool, decimation: u16) -> FrontEndConfig {
     cfg.band_hz = [2000.0, 5000.0];
     cfg.poles = 8;
     cfg.decimation = decimation;
-    cfg.rectifier = if abs { Rectifier::Abs } else { Rectifier::Square };
+    cfg.rectifier = if abs {
+        Rectifier::Abs
+    } else {
+        Rectifier::Square
+    };
     cfg.counts_to_g = 1.6 / 32768.0;
     cfg.adc_full_scale = 30000;
     cfg
@@ -76,7 +80,7 @@ proptest! {
         prop_assert_eq!(split.overall().non_finite, 2);
 
         // Same for ADC counts (with clipping), and after reset the run repeats exactly.
-        let xi: Vec<i16> = x.iter().map(|&v| (if v.is_finite() { v } else { 0.0 } * 20480.0) as i16).collect();
+        let xi: Vec<i16> = x.iter().map(|&v| (if v.is_finite() { v } else { 0.0 } * 24000.0) as i16).collect();
         let mut whole_i = FrontEnd::new(&config(abs, dec)).unwrap();
         let want_i = run_i16(&mut whole_i, &xi, &[]);
         split.reset();

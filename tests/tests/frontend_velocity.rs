@@ -6,7 +6,13 @@ use dsp_core::frontend::{FrontEnd, FrontEndConfig};
 use dsp_core::velocity::{MachineGroup, Support, Zone, G_MM_S2};
 use envord_tests::frontend::sine;
 
-fn velocity_rms(fs: f32, f_hz: f64, amp_g: f64, offset_g: f32, secs: f64) -> (f32, u32, Option<Zone>) {
+fn velocity_rms(
+    fs: f32,
+    f_hz: f64,
+    amp_g: f64,
+    offset_g: f32,
+    secs: f64,
+) -> (f32, u32, Option<Zone>) {
     let mut cfg = FrontEndConfig::default();
     cfg.sample_rate_hz = fs;
     cfg.band_hz = [0.2 * fs / 2.0, 0.4 * fs / 2.0];
@@ -57,14 +63,18 @@ fn velocity_of_100_hz_sine_within_1_percent() {
 #[test]
 fn band_limits_of_velocity() {
     let fs = 51200.0;
-    let at = |f: f64| velocity_rms(fs, f, 0.5, 0.0, 4.0).0 * (2.0 * std::f32::consts::PI * f as f32);
+    let at =
+        |f: f64| velocity_rms(fs, f, 0.5, 0.0, 4.0).0 * (2.0 * std::f32::consts::PI * f as f32);
     let inband = at(100.0);
     // Acceleration-equivalent gain relative to 100 Hz.
     let g1 = at(1.0) / inband;
     let g10k = at(10000.0) / inband;
     let g10 = at(10.0) / inband;
     println!("velocity band gain (rel. 100 Hz): 1 Hz {g1:.2e}, 10 Hz {g10:.3}, 10 kHz {g10k:.2e}");
-    assert!((g10 - std::f32::consts::FRAC_1_SQRT_2).abs() < 0.02, "-3 dB at 10 Hz: {g10}");
+    assert!(
+        (g10 - std::f32::consts::FRAC_1_SQRT_2).abs() < 0.02,
+        "-3 dB at 10 Hz: {g10}"
+    );
     assert!(g1 < 0.02 && g10k < 0.02);
 }
 
@@ -75,5 +85,8 @@ fn velocity_disabled_gives_no_zone() {
     let mut fe = FrontEnd::new(&cfg).unwrap();
     fe.push_f32(&sine(1.0, 100.0, 51200.0, 51200), |_| {});
     let o = fe.overall();
-    assert_eq!((o.velocity_rms_mm_s, o.velocity_count, o.zone), (0.0, 0, None));
+    assert_eq!(
+        (o.velocity_rms_mm_s, o.velocity_count, o.zone),
+        (0.0, 0, None)
+    );
 }
