@@ -1,12 +1,17 @@
 //! Anti-alias low-pass and integer decimation, multi-stage, computing only
 //! the kept outputs.
 //!
-//! Structure: the factor is split into stages of 2..=8 (largest first, the
-//! smallest prime factor last, because the last stage has the narrowest
-//! transition and is cheapest at the lowest rate). Each stage is a linear
-//! phase FIR designed on the device by the window method: Kaiser window with
+//! Structure: the odd part of the factor (primes 3, 5, 7) is merged into
+//! stages of at most 8, largest first, and every factor 2 is its own
+//! half-band stage after them (the last stages have the narrowest
+//! transitions and run at the lowest rates). Each stage is a linear-phase
+//! FIR designed on the device by the window method: Kaiser window with
 //! Kaiser's formulas for length and beta (the same as `scipy.signal.kaiserord`
 //! and `scipy.signal.firwin(..., window=('kaiser', beta))`, DC gain 1).
+//! Stages of 2 have a cut-off of exactly a quarter of their input rate, i.e.
+//! they are half-band filters: the length is rounded up to 4k + 3 so every
+//! second tap is zero (set exactly to 0 and skipped). All stages use the tap
+//! symmetry (one multiply per tap pair).
 //!
 //! Band plan, with `fo` the final output rate and `fp = 0.4 fo` the protected
 //! band: stage i (output rate `r_i`) passes `[0, fp]` and stops from
@@ -24,8 +29,8 @@ pub const PASS_FRACTION: f64 = 0.4;
 pub const MAX_FACTOR: u16 = 1024;
 /// Maximum factor of one stage.
 pub const MAX_STAGE_FACTOR: u16 = 8;
-/// Maximum number of stages (3^6 = 729 needs six).
-pub const MAX_STAGES: usize = 6;
+/// Maximum number of stages (1024 = 2^10 needs ten half-band stages).
+pub const MAX_STAGES: usize = 10;
 /// Tap pool shared by all stages.
 pub const TAP_POOL: usize = 320;
 
@@ -56,6 +61,7 @@ impl core::error::Error for DecimateError {}
 #[derive(Clone, Copy, Debug, Default)]
 struct Stage {
     factor: u16,
+    halfband: bool,
     taps: usize,
     offset: usize,
     pos: usize,
@@ -79,48 +85,40 @@ pub fn stage_factors(factor: u16) -> Result<([u16; MAX_STAGES], usize), Decimate
     if factor == 0 || factor > MAX_FACTOR {
         return Err(DecimateError::FactorRange);
     }
-    let mut primes = [0u16; 10];
-    let mut np = 0usize;
+    let mut out = [0u16; MAX_STAGES];
+    let mut n = 0usize;
     let mut rest = factor;
-    for p in [7u16, 5, 3, 2] {
+    // Odd primes, largest first, merged greedily while the stage stays <= 8.
+    for p in [7u16, 5, 3] {
         while rest % p == 0 {
-            if let Some(s) = primes.get_mut(np) {
-                *s = p;
-            }
-            np += 1;
             rest /= p;
+            let merge = n > 0
+                && out
+                    .get(n - 1)
+                    .is_some_and(|&c| c.saturating_mul(p) <= MAX_STAGE_FACTOR);
+            if merge {
+                if let Some(c) = out.get_mut(n - 1) {
+                    *c *= p;
+                }
+            } else if let Some(c) = out.get_mut(n) {
+                *c = p;
+                n += 1;
+            }
+        }
+    }
+    if let Some(odd) = out.get_mut(..n) {
+        odd.sort_unstable_by(|a, b| b.cmp(a));
+    }
+    // Then one half-band stage per factor 2.
+    while rest % 2 == 0 {
+        rest /= 2;
+        if let Some(c) = out.get_mut(n) {
+            *c = 2;
+            n += 1;
         }
     }
     if rest != 1 {
         return Err(DecimateError::FactorPrime);
-    }
-    let mut out = [0u16; MAX_STAGES];
-    if np == 0 {
-        return Ok((out, 0));
-    }
-    // Smallest prime alone as the last stage; the others merged greedily (<= 8).
-    let (head, last) = primes.split_at(np.saturating_sub(1));
-    let mut n = 0usize;
-    for &p in head {
-        let merged = n > 0
-            && out
-                .get(n - 1)
-                .is_some_and(|&c| c.saturating_mul(p) <= MAX_STAGE_FACTOR);
-        if merged {
-            if let Some(c) = out.get_mut(n - 1) {
-                *c *= p;
-            }
-        } else if let Some(c) = out.get_mut(n) {
-            *c = p;
-            n += 1;
-        }
-    }
-    if let Some(head) = out.get_mut(..n) {
-        head.sort_unstable_by(|a, b| b.cmp(a));
-    }
-    if let (Some(c), Some(&l)) = (out.get_mut(n), last.first()) {
-        *c = l;
-        n += 1;
     }
     Ok((out, n))
 }
@@ -140,6 +138,15 @@ pub fn kaiser_order(a_db: f64, width: f64) -> (usize, f64) {
         crate::num::f32_to_usize_sat(crate::num::f64_to_f32(n)),
         beta,
     )
+}
+
+/// Rounds a length up to 4k + 3 (odd, outermost taps of a half-band nonzero).
+pub fn halfband_length(n: usize) -> usize {
+    let mut m = n.max(3);
+    while m % 4 != 3 {
+        m += 1;
+    }
+    m
 }
 
 /// Modified Bessel function I0 by its power series (converges for all x).
@@ -208,16 +215,30 @@ impl Decimator {
         for (st, &m) in d.stages.iter_mut().zip(factors.iter()).take(n) {
             let rate_out = rate_in / f64::from(m);
             let width = 2.0 * (rate_out - 2.0 * PASS_FRACTION) / rate_in;
-            let (taps, beta) = kaiser_order(STOP_DB, width);
+            let (mut taps, beta) = kaiser_order(STOP_DB, width);
+            let halfband = m == 2;
+            if halfband {
+                taps = halfband_length(taps);
+            }
             let end = offset + taps;
             let slot = d
                 .taps
                 .get_mut(offset..end)
                 .ok_or(DecimateError::TooManyTaps)?;
             kaiser_lowpass(slot, 1.0 / f64::from(m), beta);
+            if halfband {
+                // Even offsets from the centre are sinc zeros (~1e-17 after rounding).
+                let mid = taps / 2;
+                for (i, h) in slot.iter_mut().enumerate() {
+                    if i != mid && i.abs_diff(mid) % 2 == 0 {
+                        *h = 0.0;
+                    }
+                }
+            }
             slot.reverse();
             *st = Stage {
                 factor: m,
+                halfband,
                 taps,
                 offset,
                 pos: 0,
@@ -305,7 +326,20 @@ impl Decimator {
             st.phase = 0;
             let w = ring.get(base + st.pos..base + st.pos + n).unwrap_or(&[]);
             let h = taps.get(st.offset..st.offset + n).unwrap_or(&[]);
-            v = w.iter().zip(h).fold(0.0f32, |acc, (a, b)| acc + a * b);
+            // Symmetric taps: fold the window, one multiply per pair.
+            let pairs = w.iter().zip(w.iter().rev()).zip(h).take(n / 2);
+            let centre = if n % 2 == 1 {
+                w.get(n / 2).zip(h.get(n / 2)).map_or(0.0, |(a, b)| a * b)
+            } else {
+                0.0
+            };
+            let fold = |acc: f32, ((a, b), c): ((&f32, &f32), &f32)| acc + c * (a + b);
+            v = if st.halfband {
+                // Outermost tap nonzero (length 4k + 3), then every second one.
+                pairs.step_by(2).fold(centre, fold)
+            } else {
+                pairs.fold(centre, fold)
+            };
         }
         Some(v)
     }
@@ -322,11 +356,13 @@ mod tests {
             assert_eq!(&s[..n], want, "{d}");
         };
         f(1, &[]);
-        f(8, &[4, 2]);
-        f(1024, &[8, 8, 8, 2]);
+        f(8, &[2, 2, 2]);
+        f(1024, &[2; 10]);
         f(729, &[3, 3, 3, 3, 3, 3]);
-        f(12, &[6, 2]);
+        f(12, &[3, 2, 2]);
         f(25, &[5, 5]);
+        f(70, &[7, 5, 2]);
+        f(6, &[3, 2]);
         assert_eq!(stage_factors(11), Err(DecimateError::FactorPrime));
         assert_eq!(stage_factors(0), Err(DecimateError::FactorRange));
         assert_eq!(stage_factors(1025), Err(DecimateError::FactorRange));
