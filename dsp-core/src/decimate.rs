@@ -18,8 +18,11 @@
 //! `r_i - fp`, so nothing that folds into `[0, fp]` at any stage survives.
 //! Cut-off = `r_i / 2`. Design attenuation [`STOP_DB`].
 //!
-//! Each stage keeps a doubled ring buffer so the dot product reads one
-//! contiguous window; outputs are computed only every M-th input.
+//! Processing is block-wise per stage: a block of up to [`BLOCK`] inputs is
+//! copied behind the stage's N-1 samples of history in a linear buffer, the
+//! kept outputs (every M-th input) are computed from contiguous windows, and
+//! the last N-1 samples are moved to the front. Per input this costs one
+//! copy plus an amortised (N-1)/block move; only kept outputs are computed.
 
 /// Kaiser design attenuation in dB (margin over the 60 dB requirement).
 pub const STOP_DB: f64 = 66.0;
@@ -33,6 +36,10 @@ pub const MAX_STAGE_FACTOR: u16 = 8;
 pub const MAX_STAGES: usize = 10;
 /// Tap pool shared by all stages.
 pub const TAP_POOL: usize = 320;
+/// Inputs processed per stage block.
+pub const BLOCK: usize = 64;
+/// History pool: N - 1 + BLOCK per stage.
+const HIST_POOL: usize = TAP_POOL + MAX_STAGES * BLOCK;
 
 /// Why a decimator could not be built.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -64,8 +71,8 @@ struct Stage {
     halfband: bool,
     taps: usize,
     offset: usize,
-    pos: usize,
-    phase: u16,
+    hist: usize,
+    phase: usize,
 }
 
 /// Multi-stage FIR decimator with state.
@@ -76,8 +83,8 @@ pub struct Decimator {
     n_stages: usize,
     /// Taps of all stages, each stored time-reversed (oldest sample first).
     taps: [f32; TAP_POOL],
-    /// Doubled ring buffers of all stages (2 x taps each).
-    ring: [f32; 2 * TAP_POOL],
+    /// Linear history buffers of all stages (N - 1 + BLOCK each).
+    hist: [f32; HIST_POOL],
 }
 
 /// Splits `factor` into stage factors (largest first). Returns the count.
@@ -138,6 +145,42 @@ pub fn kaiser_order(a_db: f64, width: f64) -> (usize, f64) {
         crate::num::f32_to_usize_sat(crate::num::f64_to_f32(n)),
         beta,
     )
+}
+
+/// One output of a symmetric FIR over window `w` (oldest first) with taps
+/// `h` of the same length: one multiply per tap pair; half-band filters
+/// (length 4k + 3) visit only the nonzero pairs (even distance from the ends).
+#[inline]
+fn fir_output(w: &[f32], h: &[f32], halfband: bool) -> f32 {
+    let n = w.len().min(h.len());
+    let m = n / 2;
+    let centre = if n % 2 == 1 {
+        w.get(m).zip(h.get(m)).map_or(0.0, |(a, b)| a * b)
+    } else {
+        0.0
+    };
+    if halfband {
+        // Pairs (2j, n-1-2j), j = 0..=k: chunk j of w[..m+1] starts at 2j and
+        // chunk j from the end of w[m..] ends at n-1-2j.
+        let (Some(wl), Some(wh), Some(hl)) = (w.get(..m + 1), w.get(m..n), h.get(..m + 1)) else {
+            return 0.0;
+        };
+        wl.chunks_exact(2)
+            .zip(wh.rchunks_exact(2))
+            .zip(hl.chunks_exact(2))
+            .fold(centre, |acc, ((a, b), c)| match (a, b, c) {
+                ([a, _], [_, b], [c, _]) => acc + c * (a + b),
+                _ => acc,
+            })
+    } else {
+        let (Some(wl), Some(wh), Some(hl)) = (w.get(..m), w.get(n - m..n), h.get(..m)) else {
+            return 0.0;
+        };
+        wl.iter()
+            .zip(wh.iter().rev())
+            .zip(hl)
+            .fold(centre, |acc, ((a, b), c)| acc + c * (a + b))
+    }
 }
 
 /// Rounds a length up to 4k + 3 (odd, outermost taps of a half-band nonzero).
@@ -207,12 +250,12 @@ impl Decimator {
             stages: [Stage::default(); MAX_STAGES],
             n_stages: n,
             taps: [0.0; TAP_POOL],
-            ring: [0.0; 2 * TAP_POOL],
+            hist: [0.0; HIST_POOL],
         };
         // Rate after each stage in units of the output rate.
         let mut rate_in = f64::from(factor);
         let mut offset = 0usize;
-        for (st, &m) in d.stages.iter_mut().zip(factors.iter()).take(n) {
+        for (i, (st, &m)) in d.stages.iter_mut().zip(factors.iter()).take(n).enumerate() {
             let rate_out = rate_in / f64::from(m);
             let width = 2.0 * (rate_out - 2.0 * PASS_FRACTION) / rate_in;
             let (mut taps, beta) = kaiser_order(STOP_DB, width);
@@ -241,7 +284,7 @@ impl Decimator {
                 halfband,
                 taps,
                 offset,
-                pos: 0,
+                hist: offset + i * BLOCK,
                 phase: 0,
             };
             offset = end;
@@ -287,62 +330,84 @@ impl Decimator {
 
     /// Clears the state (taps are kept).
     pub fn reset(&mut self) {
-        self.ring = [0.0; 2 * TAP_POOL];
+        self.hist = [0.0; HIST_POOL];
         for s in self.stages.iter_mut() {
-            s.pos = 0;
             s.phase = 0;
         }
     }
 
     /// Pushes one input sample; returns an output every `factor` inputs
-    /// (after inputs factor-1, 2 factor-1, ...).
-    #[inline]
+    /// (after inputs factor-1, 2 factor-1, ...). Same results as [`Self::process`].
     pub fn push(&mut self, x: f32) -> Option<f32> {
-        let Self {
-            stages,
-            n_stages,
-            taps,
-            ring,
-            ..
-        } = self;
-        let mut v = x;
-        for st in stages.iter_mut().take(*n_stages) {
-            let n = st.taps;
-            let base = 2 * st.offset;
-            if let Some(r) = ring.get_mut(base + st.pos) {
-                *r = v;
-            }
-            if let Some(r) = ring.get_mut(base + st.pos + n) {
-                *r = v;
-            }
-            st.pos += 1;
-            if st.pos >= n {
-                st.pos = 0;
-            }
-            st.phase += 1;
-            if st.phase < st.factor {
-                return None;
-            }
-            st.phase = 0;
-            let w = ring.get(base + st.pos..base + st.pos + n).unwrap_or(&[]);
-            let h = taps.get(st.offset..st.offset + n).unwrap_or(&[]);
-            // Symmetric taps: fold the window, one multiply per pair.
-            let pairs = w.iter().zip(w.iter().rev()).zip(h).take(n / 2);
-            let centre = if n % 2 == 1 {
-                w.get(n / 2).zip(h.get(n / 2)).map_or(0.0, |(a, b)| a * b)
-            } else {
-                0.0
-            };
-            let fold = |acc: f32, ((a, b), c): ((&f32, &f32), &f32)| acc + c * (a + b);
-            v = if st.halfband {
-                // Outermost tap nonzero (length 4k + 3), then every second one.
-                pairs.step_by(2).fold(centre, fold)
-            } else {
-                pairs.fold(centre, fold)
-            };
-        }
-        Some(v)
+        let mut y = None;
+        self.process(&[x], |v| y = Some(v));
+        y
     }
+
+    /// Pushes a block of any length; calls `out` for each kept output, in
+    /// order. Results do not depend on how the input is split.
+    pub fn process(&mut self, input: &[f32], mut out: impl FnMut(f32)) {
+        for chunk in input.chunks(BLOCK) {
+            let mut a = [0f32; BLOCK];
+            let mut b = [0f32; BLOCK];
+            let mut len = chunk.len();
+            if let Some(dst) = a.get_mut(..len) {
+                dst.copy_from_slice(chunk);
+            }
+            let Self {
+                stages,
+                n_stages,
+                taps,
+                hist,
+                ..
+            } = self;
+            for st in stages.iter_mut().take(*n_stages) {
+                let src = a.get(..len).unwrap_or(&[]);
+                len = run_stage(st, taps, hist, src, &mut b);
+                core::mem::swap(&mut a, &mut b);
+                if len == 0 {
+                    break;
+                }
+            }
+            a.iter().take(len).for_each(|&v| out(v));
+        }
+    }
+}
+
+/// Runs one stage over `src` (at most [`BLOCK`] samples), writing kept
+/// outputs to `dst`; returns their count.
+fn run_stage(
+    st: &mut Stage,
+    taps: &[f32],
+    hist: &mut [f32],
+    src: &[f32],
+    dst: &mut [f32],
+) -> usize {
+    let n = st.taps;
+    let m = usize::from(st.factor.max(1));
+    let l = src.len();
+    let keep = n.saturating_sub(1);
+    let (Some(h), Some(t)) = (
+        hist.get_mut(st.hist..st.hist + keep + l),
+        taps.get(st.offset..st.offset + n),
+    ) else {
+        return 0;
+    };
+    if let Some(tail) = h.get_mut(keep..) {
+        tail.copy_from_slice(src);
+    }
+    // Output k of this block ends at block index first + k m.
+    let first = m - 1 - st.phase;
+    let mut count = 0;
+    for (i, d) in (first..l).step_by(m).zip(dst.iter_mut()) {
+        if let Some(w) = h.get(i..i + n) {
+            *d = fir_output(w, t, st.halfband);
+            count += 1;
+        }
+    }
+    st.phase = (st.phase + l) % m;
+    h.copy_within(l.., 0);
+    count
 }
 
 #[cfg(test)]

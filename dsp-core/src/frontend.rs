@@ -200,12 +200,8 @@ impl FrontEnd {
             v.process(buf);
         }
         self.bp.process(buf);
-        let r = self.cfg.rectifier;
-        for &x in buf.iter() {
-            if let Some(y) = self.dec.push(r.apply(x)) {
-                out(y);
-            }
-        }
+        self.cfg.rectifier.apply_block(buf);
+        self.dec.process(buf, out);
     }
 
     /// Rate of the envelope output (Hz).

@@ -16,7 +16,8 @@ fn response(d: u16, f_in: f64) -> f64 {
     let fo = fs / f64::from(d);
     let mut dec = Decimator::new(d).unwrap();
     let x = sine(1.0, f_in, fs, (SETTLE_OUT + N_OUT) * usize::from(d));
-    let y: Vec<f32> = x.iter().filter_map(|&v| dec.push(v)).collect();
+    let mut y = Vec::new();
+    dec.process(&x, |v| y.push(v));
     let folded = {
         let r = f_in.rem_euclid(fo);
         r.min(fo - r)
