@@ -398,10 +398,16 @@ fn run_stage(
     }
     // Output k of this block ends at block index first + k m.
     let first = m - 1 - st.phase;
+    let windows = h.windows(n).skip(first).step_by(m).zip(dst.iter_mut());
     let mut count = 0;
-    for (i, d) in (first..l).step_by(m).zip(dst.iter_mut()) {
-        if let Some(w) = h.get(i..i + n) {
-            *d = fir_output(w, t, st.halfband);
+    if st.halfband {
+        for (w, d) in windows {
+            *d = fir_output(w, t, true);
+            count += 1;
+        }
+    } else {
+        for (w, d) in windows {
+            *d = fir_output(w, t, false);
             count += 1;
         }
     }
