@@ -122,7 +122,16 @@ def frontend_cases(x):
     overall = {"count": int(len(xd)), "mean": mean, "rms_ac": std, "peak": peak,
                "peak_to_peak": float(np.ptp(xd)), "crest_factor": peak / std,
                "kurtosis": float(scipy.stats.kurtosis(xd, fisher=False))}
-    return {"stages": [{"factor": m, "taps": [float(t) for t in h]} for m, h in stages],
+    # Envelope delay in input samples: scipy group delay of the band-pass at the band
+    # centre plus each FIR's group delay (at 0.1 x its rate) scaled to input samples.
+    fc = centre_hz(band[0], band[1], fs)
+    delay = sum(sig.group_delay((s[:3], s[3:]), w=[fc], fs=fs)[1][0] for s in sos)
+    scale = 1
+    for m, h in stages:
+        delay += sig.group_delay((h, [1.0]), w=[0.1], fs=1.0)[1][0] * scale
+        scale *= m
+    return {"delay_input_samples": float(delay),
+            "stages": [{"factor": m, "taps": [float(t) for t in h]} for m, h in stages],
             "cases": out, "overall": overall}
 
 
