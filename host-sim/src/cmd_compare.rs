@@ -267,7 +267,7 @@ pub fn run(args: &CompareArgs) -> Result<(), CliError> {
         }
         _ => {
             return Err(CliError::input(
-                &args.b.display(),
+                args.b.display(),
                 "compare two files or two folders, not one of each",
             ))
         }

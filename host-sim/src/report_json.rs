@@ -32,32 +32,41 @@ fn defect_json(kind: DefectKind, line_order: f32, r: Option<&DefectResult>) -> V
         "score_db": r.map_or(json!(0.0), |r| finite(r.score_db)),
         "searched": r.is_some(),
     });
+    let Some(obj) = v.as_object_mut() else {
+        return v;
+    };
     if kind == DefectKind::Bsf {
-        v["bsf_order"] = finite(0.5 * line_order);
+        obj.insert("bsf_order".into(), finite(0.5 * line_order));
     }
     if let Some(r) = r {
-        v["amplitude"] = finite(r.fundamental_amplitude);
-        v["harmonics_found"] = json!(r.harmonics_found);
-        v["harmonics_searched"] = json!(r.harmonics_searched);
-        v["sideband_db"] = r.sideband_db.map_or(Value::Null, finite);
-        v["harmonics"] = Value::Array(
-            r.harmonics
-                .iter()
-                .map(|h| {
-                    json!({
-                        "h": h.harmonic,
-                        "expected_order": finite(h.expected_order),
-                        "found_order": finite(h.found_order),
-                        "amplitude": finite(h.amplitude),
-                        "floor": finite(h.floor),
-                        "prominence_db": finite(h.prominence_db),
-                        "searched": h.searched,
-                        "found": h.found,
-                        "counted": h.counted,
-                        "shared_with": h.shared_with.map(|k| k.name()),
+        obj.insert("amplitude".into(), finite(r.fundamental_amplitude));
+        obj.insert("harmonics_found".into(), json!(r.harmonics_found));
+        obj.insert("harmonics_searched".into(), json!(r.harmonics_searched));
+        obj.insert(
+            "sideband_db".into(),
+            r.sideband_db.map_or(Value::Null, finite),
+        );
+        obj.insert(
+            "harmonics".into(),
+            Value::Array(
+                r.harmonics
+                    .iter()
+                    .map(|h| {
+                        json!({
+                            "h": h.harmonic,
+                            "expected_order": finite(h.expected_order),
+                            "found_order": finite(h.found_order),
+                            "amplitude": finite(h.amplitude),
+                            "floor": finite(h.floor),
+                            "prominence_db": finite(h.prominence_db),
+                            "searched": h.searched,
+                            "found": h.found,
+                            "counted": h.counted,
+                            "shared_with": h.shared_with.map(|k| k.name()),
+                        })
                     })
-                })
-                .collect(),
+                    .collect(),
+            ),
         );
     }
     v
