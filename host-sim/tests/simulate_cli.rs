@@ -1,6 +1,10 @@
 //! `envord simulate` end to end: the files it writes, read back with the
 //! crate's readers, and its exit codes (0 ok, 2 bad input; see error.rs).
-#![allow(clippy::unwrap_used, clippy::indexing_slicing)]
+#![allow(
+    clippy::field_reassign_with_default,
+    clippy::unwrap_used,
+    clippy::indexing_slicing
+)]
 
 use host_sim::edges_csv::read_edges_csv;
 use host_sim::simulate::{simulate, Fault, MachineSpec, SpeedProfile};

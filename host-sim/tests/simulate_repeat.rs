@@ -1,5 +1,9 @@
 //! Repeatability: the simulator is a pure function of (spec, seed).
-#![allow(clippy::unwrap_used, clippy::indexing_slicing)]
+#![allow(
+    clippy::field_reassign_with_default,
+    clippy::unwrap_used,
+    clippy::indexing_slicing
+)]
 
 use host_sim::simulate::{simulate, Fault, MachineSpec};
 

@@ -1,6 +1,10 @@
 //! Machine descriptions: TOML parsing, the example file, and validation
 //! errors that name the field at fault.
-#![allow(clippy::unwrap_used, clippy::indexing_slicing)]
+#![allow(
+    clippy::field_reassign_with_default,
+    clippy::unwrap_used,
+    clippy::indexing_slicing
+)]
 
 use host_sim::simulate::{simulate, Fault, MachineSpec, SpecError, SpeedProfile};
 
@@ -66,7 +70,8 @@ fn field(e: &SpecError) -> String {
 
 #[test]
 fn bad_values_name_their_field() {
-    let cases: Vec<(&str, Box<dyn FnOnce(&mut MachineSpec)>)> = vec![
+    type Edit = Box<dyn FnOnce(&mut MachineSpec)>;
+    let cases: Vec<(&str, Edit)> = vec![
         (
             "speed.rpm",
             Box::new(|s| s.speed = SpeedProfile::Constant { rpm: f64::NAN }),

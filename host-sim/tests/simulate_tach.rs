@@ -3,6 +3,7 @@
 //! theta(t) = f0 t + (f1 - f0) t^2 / (2T) (calculus), so rev k is at the
 //! positive root of theta(t) = k + phase.
 #![allow(
+    clippy::field_reassign_with_default,
     clippy::unwrap_used,
     clippy::indexing_slicing,
     clippy::cast_possible_truncation
