@@ -14,8 +14,15 @@
     )
 )]
 
+pub mod analysis;
+pub mod cmd_analyze;
+pub mod cmd_batch;
+pub mod cmd_compare;
 pub mod cmd_simulate;
 pub mod edges_csv;
 pub mod error;
+pub mod plot;
+pub mod point;
+pub mod report_json;
 pub mod simulate;
 pub mod wav;

@@ -16,6 +16,12 @@ struct Cli {
 
 #[derive(Subcommand)]
 enum Command {
+    /// Analyse a recording with a measuring point and print the report.
+    Analyze(host_sim::cmd_analyze::AnalyzeArgs),
+    /// Compare two reports (or folders of reports); exit 1 on a difference.
+    Compare(host_sim::cmd_compare::CompareArgs),
+    /// Analyse every WAV in a folder; summary table, reports and a score plot.
+    Batch(host_sim::cmd_batch::BatchArgs),
     /// Write a simulated gearbox record (WAV: ch0 accel g, ch1 tach V).
     Simulate(host_sim::cmd_simulate::SimulateArgs),
 }
@@ -32,6 +38,9 @@ fn main() -> ExitCode {
     };
     let result: Result<(), host_sim::error::CliError> = match cli.command {
         Command::Simulate(a) => host_sim::cmd_simulate::run(&a),
+        Command::Analyze(a) => host_sim::cmd_analyze::run_cmd(&a),
+        Command::Compare(a) => host_sim::cmd_compare::run(&a),
+        Command::Batch(a) => host_sim::cmd_batch::run(&a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
