@@ -6,6 +6,7 @@
 //! BPFO 3.5848, BPFI 5.4152, FTF 0.39828, BSF 2.357 = 4.7135 / 2). Random
 //! slip of 1-2 % per interval is the model of Randall & Antoni 2011 (MSSP 25).
 #![allow(
+    clippy::field_reassign_with_default,
     clippy::unwrap_used,
     clippy::indexing_slicing,
     clippy::cast_possible_truncation
@@ -107,8 +108,8 @@ fn inner_race_amplitudes_follow_the_shaft_rate_load_zone() {
     let (lo, hi) = out.impacts.iter().fold((f64::MAX, 0.0f64), |(l, h), i| {
         (l.min(i.amplitude_g), h.max(i.amplitude_g))
     });
-    assert!(lo >= 0.5 - 1e-9 && lo < 0.52, "min {lo}");
-    assert!(hi <= 1.0 + 1e-9 && hi > 0.98, "max {hi}");
+    assert!((0.5 - 1e-9..0.52).contains(&lo), "min {lo}");
+    assert!((0.98..=1.0 + 1e-9).contains(&hi), "max {hi}");
     let outer = simulate(&bare(Fault::Outer, 1.0, 4.0), 3).unwrap();
     assert!(outer.impacts.iter().all(|i| i.amplitude_g == 1.0));
 }
