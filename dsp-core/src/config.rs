@@ -448,7 +448,8 @@ mod tests {
     #[test]
     fn refuses_each_bad_field() {
         let ok = PointConfig::default();
-        let cases: [(fn(&mut PointConfig), ConfigError); 14] = [
+        type Case = (fn(&mut PointConfig), ConfigError);
+        let cases: [Case; 14] = [
             (|c| c.sample_rate_hz = f32::NAN, ConfigError::SampleRate),
             (|c| c.counts_to_g = f32::INFINITY, ConfigError::Scale),
             (|c| c.band_hz = Some([5000.0, 30_000.0]), ConfigError::Band),
