@@ -37,6 +37,29 @@ pub struct AnalyzeArgs {
     /// Write a plot of the envelope order spectrum (SVG, or PNG by extension).
     #[arg(long)]
     pub plot: Option<PathBuf>,
+    /// Print only the radio frame the node would send, as hex (node id and
+    /// sequence number from --node-id and --seq).
+    #[arg(long)]
+    pub frame_hex: bool,
+    /// Node id written into the frame.
+    #[arg(long, default_value_t = 0)]
+    pub node_id: u16,
+    /// Sequence number written into the frame.
+    #[arg(long, default_value_t = 0)]
+    pub seq: u16,
+}
+
+/// The node's radio frame for a report, as lower-case hex.
+pub fn frame_hex(
+    report: &dsp_core::report::Report,
+    node_id: u16,
+    seq: u16,
+) -> Result<String, CliError> {
+    let fr = dsp_core::frame::FrameReport::from_report(report, node_id, seq);
+    let mut buf = [0u8; 64];
+    let n = dsp_core::frame::encode(&fr, &mut buf)
+        .map_err(|e| CliError::Other(format!("frame: {e}")))?;
+    Ok(buf.iter().take(n).map(|b| format!("{b:02x}")).collect())
 }
 
 /// Loads a recording as the node would see it.
@@ -134,7 +157,9 @@ pub fn run_cmd(args: &AnalyzeArgs) -> Result<(), CliError> {
     if let Some(plot) = &args.plot {
         crate::plot::order_spectrum(plot, &a, &args.recording.display().to_string())?;
     }
-    if args.json {
+    if args.frame_hex {
+        println!("{}", frame_hex(&a.report, args.node_id, args.seq)?);
+    } else if args.json {
         let v = to_json(&a.report, Some(&args.recording.display().to_string()));
         println!(
             "{}",

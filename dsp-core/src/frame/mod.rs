@@ -21,6 +21,7 @@
 //! ```
 
 pub mod crc;
+pub mod from_report;
 pub mod layout;
 pub mod quantisation;
 
