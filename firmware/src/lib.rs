@@ -1,2 +1,32 @@
-//! Chip-independent firmware of an envord node (being written).
+//! Chip-independent firmware of an envord node.
+//!
+//! * [`cycle`]: the measurement cycle as an explicit state machine over
+//!   hardware traits, host-testable with mocks.
+//! * [`hal`]: the small hardware traits boards implement, and the
+//!   [`hal::MeasurementCore`] trait the DSP core is adapted to.
+//! * [`config`]: the measuring-point configuration as a versioned, CRC-checked
+//!   binary record; [`downlink`]: commands that replace it.
+//! * [`quality`]: quality flags and streamed signal-health checks.
+//! * [`crc`]: CRC-32 for stored records.
+//!
+//! `no_std`, no heap, no `unsafe`. Logs go through defmt with the `defmt`
+//! feature and compile to nothing without it.
 #![no_std]
+#![cfg_attr(
+    test,
+    allow(
+        clippy::unwrap_used,
+        clippy::expect_used,
+        clippy::panic,
+        clippy::indexing_slicing,
+        clippy::cast_possible_truncation
+    )
+)]
+
+pub mod config;
+pub mod crc;
+pub mod cycle;
+pub mod downlink;
+pub mod hal;
+mod log;
+pub mod quality;
