@@ -1,5 +1,4 @@
 //! The measurement cycle, transition by transition, with mock hardware.
-#![allow(clippy::cast_possible_truncation)]
 //! The expected behaviour is the node's specification (sleep, wake, power and
 //! settle, streamed acquisition, finish, encode, transmit, listen).
 #![allow(
