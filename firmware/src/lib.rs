@@ -8,6 +8,8 @@
 //!   binary record; [`downlink`]: commands that replace it.
 //! * [`quality`]: quality flags and streamed signal-health checks.
 //! * [`crc`]: CRC-32 for stored records.
+//! * [`overall_core`]: a minimal overall-level core, so board images run the
+//!   whole cycle before the envelope pipeline is adapted.
 //!
 //! `no_std`, no heap, no `unsafe`. Logs go through defmt with the `defmt`
 //! feature and compile to nothing without it.
@@ -29,4 +31,5 @@ pub mod cycle;
 pub mod downlink;
 pub mod hal;
 mod log;
+pub mod overall_core;
 pub mod quality;
