@@ -1,0 +1,85 @@
+//! envord node image for QEMU mps2-an386: runs measurement cycles over a
+//! recording read by semihosting until it is used up, writes every frame out,
+//! and reports the stack high-water mark.
+//!
+//! Exit status: 0 all cycles healthy, 2 a cycle fault, 3 input missing,
+//! 4 HardFault, 101 panic.
+#![no_std]
+#![no_main]
+
+use cortex_m_rt::entry;
+use firmware::cycle::{Devices, Node};
+use firmware::overall_core::OverallCore;
+use qemu_mps2::*;
+
+hardfault_exits!();
+
+#[entry]
+fn main() -> ! {
+    stack::paint();
+    let code = run();
+    let used = stack::high_water();
+    semihosting::eprintln!("stack high-water: {} of {} bytes", used, stack::size());
+    defmt::info!("stack high-water {} bytes", used);
+    semihosting::process::exit(code)
+}
+
+fn run() -> i32 {
+    let (source, radio) = match (FileSource::open(), FileRadio::create()) {
+        (Ok(s), Ok(r)) => (s, r),
+        _ => {
+            semihosting::eprintln!("input missing: recording.i16 in the run directory");
+            return 3;
+        }
+    };
+    let dev = Devices {
+        source,
+        capture: FileCapture::open(),
+        radio,
+        alarm: InstantAlarm,
+        storage: FileStorage,
+        battery: FixedBattery(3_300),
+        watchdog: CountingWatchdog::default(),
+        power: PowerFlag::default(),
+        delay: SpinDelay,
+    };
+    let mut node = Node::new(dev, OverallCore::new());
+    semihosting::eprintln!(
+        "config: {:?}, {} blocks of {} per record",
+        node.config_source(),
+        node.blocks_wanted(),
+        BLOCK_LEN
+    );
+    let mut cycles = 0u32;
+    while node.devices().source.remaining_blocks() >= node.blocks_wanted() {
+        match node.run_cycle() {
+            Ok(s) => {
+                semihosting::eprintln!(
+                    "cycle {}: {} blocks, {} edges, flags {:#04x}, fed {}",
+                    cycles,
+                    s.blocks,
+                    s.edges,
+                    s.flags.bits(),
+                    s.fed_watchdog
+                );
+                defmt::info!("cycle {}: {}", cycles, s);
+            }
+            Err(e) => {
+                semihosting::eprintln!("cycle {} fault: {}", cycles, e);
+                return 2;
+            }
+        }
+        cycles += 1;
+    }
+    semihosting::eprintln!(
+        "done: {} cycles, {} frames, {} watchdog feeds, downlink {:?}",
+        cycles,
+        node.devices().radio.sent(),
+        node.devices().watchdog.feeds,
+        node.downlink()
+    );
+    if cycles == 0 {
+        return 3;
+    }
+    0
+}
