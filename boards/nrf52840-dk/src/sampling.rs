@@ -33,10 +33,16 @@ pub fn init_pins() {
     // P0.03 input, buffer connected, no pull (tach conditioner drives it)
     pac::P0.pin_cnf(TACH_PIN as usize).write(|w| w.0 = 0);
     // P0.11 input with pull-up (button to ground on the DK)
-    pac::P0.pin_cnf(BUTTON_PIN as usize).write(|w| w.0 = 0b11 << 2);
+    pac::P0
+        .pin_cnf(BUTTON_PIN as usize)
+        .write(|w| w.0 = 0b11 << 2);
     // CONFIG: MODE = Event (1), PSEL, POLARITY LoToHi (1) / HiToLo (2)
-    pac::GPIOTE.config(0).write(|w| w.0 = 1 | (TACH_PIN << 8) | (1 << 16));
-    pac::GPIOTE.config(1).write(|w| w.0 = 1 | (BUTTON_PIN << 8) | (2 << 16));
+    pac::GPIOTE
+        .config(0)
+        .write(|w| w.0 = 1 | (TACH_PIN << 8) | (1 << 16));
+    pac::GPIOTE
+        .config(1)
+        .write(|w| w.0 = 1 | (BUTTON_PIN << 8) | (2 << 16));
 
     // TIMER1: 16 MHz timer, 32-bit, CC0 = 625, clear on compare
     let t1 = pac::TIMER1;
@@ -53,14 +59,24 @@ pub fn init_pins() {
 
     let s = pac::SAADC;
     let ppi = pac::PPI;
-    ppi.ch(0).eep().write_value(addr(t1.events_compare(0).as_ptr()));
+    ppi.ch(0)
+        .eep()
+        .write_value(addr(t1.events_compare(0).as_ptr()));
     ppi.ch(0).tep().write_value(addr(s.tasks_sample().as_ptr()));
-    ppi.fork(0).tep().write_value(addr(pac::TIMER2.tasks_count().as_ptr()));
+    ppi.fork(0)
+        .tep()
+        .write_value(addr(pac::TIMER2.tasks_count().as_ptr()));
     ppi.ch(1).eep().write_value(addr(s.events_end().as_ptr()));
     ppi.ch(1).tep().write_value(addr(s.tasks_start().as_ptr()));
-    ppi.fork(1).tep().write_value(addr(pac::TIMER3.tasks_count().as_ptr()));
-    ppi.ch(2).eep().write_value(addr(pac::GPIOTE.events_in(0).as_ptr()));
-    ppi.ch(2).tep().write_value(addr(pac::TIMER2.tasks_capture(1).as_ptr()));
+    ppi.fork(1)
+        .tep()
+        .write_value(addr(pac::TIMER3.tasks_count().as_ptr()));
+    ppi.ch(2)
+        .eep()
+        .write_value(addr(pac::GPIOTE.events_in(0).as_ptr()));
+    ppi.ch(2)
+        .tep()
+        .write_value(addr(pac::TIMER2.tasks_capture(1).as_ptr()));
     ppi.chenset().write(|w| w.0 = 0b111);
 }
 

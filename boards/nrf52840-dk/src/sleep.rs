@@ -31,7 +31,8 @@ impl Alarm for RtcAlarm {
         let r = pac::RTC2;
         let now = r.counter().read().0;
         let ticks = seconds.saturating_mul(RTC_HZ).min(0x00FF_FFFF);
-        r.cc(0).write(|w| w.0 = now.wrapping_add(ticks) & 0x00FF_FFFF);
+        r.cc(0)
+            .write(|w| w.0 = now.wrapping_add(ticks) & 0x00FF_FFFF);
         r.events_compare(0).write_value(0);
         r.evtenset().write(|w| w.0 = 1 << 16);
         r.intenset().write(|w| w.0 = 1 << 16);

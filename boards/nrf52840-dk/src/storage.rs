@@ -44,14 +44,18 @@ impl Storage for FlashStorage {
     fn load(&mut self, slot: Slot, buf: &mut [u8]) -> Result<usize, FlashError> {
         let base = page(slot);
         let mut len = [0u8; 4];
-        self.nvmc.read(base, &mut len).map_err(|_| FlashError::Nvmc)?;
+        self.nvmc
+            .read(base, &mut len)
+            .map_err(|_| FlashError::Nvmc)?;
         let len = u32::from_le_bytes(len);
         if len == u32::MAX {
             return Ok(0);
         }
         let n = usize::try_from(len).map_err(|_| FlashError::TooLong)?;
         let dst = buf.get_mut(..n).ok_or(FlashError::TooLong)?;
-        self.nvmc.read(base + 4, dst).map_err(|_| FlashError::Nvmc)?;
+        self.nvmc
+            .read(base + 4, dst)
+            .map_err(|_| FlashError::Nvmc)?;
         Ok(n)
     }
 
@@ -62,12 +66,18 @@ impl Storage for FlashStorage {
         if n + 4 > img.len() || n + 4 > PAGE_SIZE {
             return Err(FlashError::TooLong);
         }
-        img[..4].copy_from_slice(&u32::try_from(n).map_err(|_| FlashError::TooLong)?.to_le_bytes());
+        img[..4].copy_from_slice(
+            &u32::try_from(n)
+                .map_err(|_| FlashError::TooLong)?
+                .to_le_bytes(),
+        );
         img[4..4 + n].copy_from_slice(data);
         let words = (n + 4).div_ceil(4) * 4;
         self.nvmc
             .erase(base, base + PAGE_SIZE as u32)
             .map_err(|_| FlashError::Nvmc)?;
-        self.nvmc.write(base, &img[..words]).map_err(|_| FlashError::Nvmc)
+        self.nvmc
+            .write(base, &img[..words])
+            .map_err(|_| FlashError::Nvmc)
     }
 }

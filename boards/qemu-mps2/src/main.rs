@@ -25,6 +25,11 @@ fn main() -> ! {
 }
 
 fn run() -> i32 {
+    // CI check of the fault path: an undefined instruction escalates to
+    // HardFault, whose handler must end the run with status 4
+    if semihosting::fs::File::open(c"trigger-hardfault").is_ok() {
+        cortex_m::asm::udf();
+    }
     let (source, radio) = match (FileSource::open(), FileRadio::create()) {
         (Ok(s), Ok(r)) => (s, r),
         _ => {

@@ -124,7 +124,10 @@ impl embedded_hal::delay::DelayNs for NoDelay {
     fn delay_ns(&mut self, _ns: u32) {}
 }
 
-fn devices(blocks: u32, overrun_at: Option<u32>) -> Devices<RamSource, Edges, Radio, NoAlarm, RamStorage, Batt, Dog, Pin, NoDelay> {
+fn devices(
+    blocks: u32,
+    overrun_at: Option<u32>,
+) -> Devices<RamSource, Edges, Radio, NoAlarm, RamStorage, Batt, Dog, Pin, NoDelay> {
     Devices {
         source: RamSource {
             buf: [0; BLOCK],
