@@ -49,6 +49,29 @@ step "frames: host build vs QEMU, byte for byte"
 cmp "$run_dir/host-frames.bin" "$run_dir/frames.bin"
 echo "host and QEMU frames identical ($(stat -c %s "$run_dir/frames.bin") bytes)"
 
+step "configuration downlink under QEMU: good one applied, corrupted one refused"
+gen="$here/qemu-mps2/input/make_input.py"
+for case in good corrupt; do
+    d="$(mktemp -d)"
+    cp qemu-mps2/input/recording.i16 qemu-mps2/input/tach.u32 qemu-mps2/input/config.bin "$d/"
+    if [ "$case" = good ]; then (cd "$d" && python3 "$gen" downlink 8); else (cd "$d" && python3 "$gen" downlink 8 corrupt); fi
+    QEMU_RUN_DIR="$d" DEFMT_RAW="$d/defmt.raw" ./qemu-run.sh "target/$target/release/qemu-mps2" > /dev/null 2> "$d/err"
+    grep -E '^(cycle|done)' "$d/err"
+    if [ "$case" = good ]; then
+        # applied and stored: the stored record is the downlink's, and the
+        # remaining 90 blocks give two more records of 40 blocks
+        tail -c +2 "$d/downlink.bin" | cmp - "$d/config.bin"
+        grep -q '^cycle 0: 80 blocks.*downlink ConfigApplied' "$d/err"
+        grep -q '^cycle 2: 40 blocks' "$d/err"
+        grep -q '^done: 3 cycles, 3 frames, 3 watchdog feeds' "$d/err"
+    else
+        cmp qemu-mps2/input/config.bin "$d/config.bin"
+        grep -q '^cycle 0: 80 blocks.*downlink Refused(Config(BadCrc))' "$d/err"
+        grep -q '^done: 2 cycles, 2 frames, 2 watchdog feeds' "$d/err"
+    fi
+    rm -rf "$d"
+done
+
 step "exit codes under QEMU: HardFault and missing input fail the run"
 expect_exit() { # expect_exit CODE FILE-TO-CREATE...
     local want="$1" dir rc

@@ -10,6 +10,7 @@ firmware (layout from firmware/src/config.rs docs, CRC from zlib.crc32), so
 the image's decoding cross-checks the record format.
 
     python3 make_input.py            # writes recording.i16, tach.u32, config.bin
+    python3 make_input.py downlink REVS [corrupt]   # writes downlink.bin (0x01 + record)
 """
 import struct
 import zlib
@@ -22,11 +23,11 @@ SECONDS = 1.7
 RNG = np.random.default_rng(7)
 
 
-def config_record():
+def config_record(revs=16):
     body = b"EP" + bytes([1, 0])  # magic, version, length patched below
     body += struct.pack("<I", FS)
     body += struct.pack("<ff", 2000.0, 8000.0)  # band
-    body += struct.pack("<BBH", 4, 1, 16)  # poles, pulses/rev, record revolutions
+    body += struct.pack("<BBH", 4, 1, revs)  # poles, pulses/rev, record revolutions
     body += struct.pack("<ff", 1200.0, 3600.0)  # speed range rpm
     body += struct.pack("<I", FS)  # tach ticks = sample clock
     body += struct.pack("<HI", 50, 3600)  # settle ms, interval s
@@ -60,6 +61,15 @@ def recording():
 
 
 if __name__ == "__main__":
+    import sys
+
+    if len(sys.argv) >= 3 and sys.argv[1] == "downlink":
+        rec = bytearray(config_record(int(sys.argv[2])))
+        if len(sys.argv) > 3 and sys.argv[3] == "corrupt":
+            rec[9] ^= 0x01  # one flipped bit: the CRC must catch it
+        with open("downlink.bin", "wb") as f:
+            f.write(b"\x01" + rec)
+        sys.exit(0)
     samples, edges = recording()
     samples.tofile("recording.i16")
     edges.tofile("tach.u32")

@@ -60,12 +60,13 @@ fn run() -> i32 {
         match node.run_cycle() {
             Ok(s) => {
                 semihosting::eprintln!(
-                    "cycle {}: {} blocks, {} edges, flags {:#04x}, fed {}",
+                    "cycle {}: {} blocks, {} edges, flags {:#04x}, fed {}, downlink {:?}",
                     cycles,
                     s.blocks,
                     s.edges,
                     s.flags.bits(),
-                    s.fed_watchdog
+                    s.fed_watchdog,
+                    node.downlink()
                 );
                 defmt::info!("cycle {}: {}", cycles, s);
             }
@@ -77,11 +78,10 @@ fn run() -> i32 {
         cycles += 1;
     }
     semihosting::eprintln!(
-        "done: {} cycles, {} frames, {} watchdog feeds, downlink {:?}",
+        "done: {} cycles, {} frames, {} watchdog feeds",
         cycles,
         node.devices().radio.sent(),
-        node.devices().watchdog.feeds,
-        node.downlink()
+        node.devices().watchdog.feeds
     );
     if cycles == 0 {
         return 3;
