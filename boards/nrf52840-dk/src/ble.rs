@@ -50,7 +50,7 @@ impl Advertiser {
         r.prefix0().write(|w| w.0 = 0x8E);
         r.txaddress().write(|w| w.0 = 0);
         r.crccnf().write(|w| w.0 = 3 | (1 << 8)); // 3 bytes, skip address
-        r.crcpoly().write(|w| w.0 = 0x0006_5B);
+        r.crcpoly().write(|w| w.0 = 0x0000_065B);
         r.crcinit().write(|w| w.0 = 0x55_5555);
         r.txpower().write(|w| w.0 = 0); // 0 dBm
         r.shorts().write(|w| w.0 = 0b11); // READY->START, END->DISABLE

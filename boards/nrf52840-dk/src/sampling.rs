@@ -209,7 +209,7 @@ impl BlockSource for SaadcSource {
         }
         compiler_fence(Ordering::SeqCst);
         self.consumed += 1;
-        let half = usize::from(self.consumed % 2 == 0); // 1st END: half 0, 2nd: half 1, ...
+        let half = usize::from(self.consumed.is_multiple_of(2)); // 1st END: half 0, 2nd: half 1, ...
         self.held = Some(half);
         let overrun = core::mem::take(&mut self.overrun_pending);
         let buf = self

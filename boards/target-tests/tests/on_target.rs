@@ -54,7 +54,7 @@ impl PulseCapture for Edges {
     }
     fn next_edge(&mut self) -> Option<u32> {
         self.0 += 1;
-        (self.0 % 2 == 0).then_some(self.0 * 1000)
+        self.0.is_multiple_of(2).then_some(self.0 * 1000)
     }
     fn stop(&mut self) {}
 }
@@ -202,9 +202,9 @@ mod tests {
 
     #[test]
     fn dsp_core_num_smoke() {
-        // sqrt(0.5) = 0.70710678 (exact value to 8 digits); libm within 1e-6
+        // sqrt(0.5) = 1/sqrt(2) (core::f32::consts, correctly rounded); libm within 1e-6
         let r = dsp_core::num::sqrtf(0.5);
-        defmt::assert!((r - 0.707_106_8).abs() < 1e-6);
+        defmt::assert!((r - core::f32::consts::FRAC_1_SQRT_2).abs() < 1e-6);
         // 20 log10(10) = 20 dB, and non-positive ratios stay finite
         defmt::assert!((dsp_core::num::amplitude_db(10.0) - 20.0).abs() < 1e-5);
         defmt::assert_eq!(dsp_core::num::amplitude_db(0.0), -200.0);
