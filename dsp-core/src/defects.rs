@@ -1,1 +1,680 @@
-//! (module being written)
+//! Defect extraction: harmonics of the bearing lines in an envelope order
+//! spectrum, with a robust local noise floor, harmonic consistency, peak
+//! attribution between coinciding lines, sidebands, a score and a decision.
+//!
+//! # Search (per defect kind, line order `L`, harmonic `h = 1..=harmonics`)
+//! 1. **Wide search**: expected order `h·L`, window half-width
+//!    `max(slip_tolerance · h · L, min_window_bins · Δ)` (`Δ` = orders per
+//!    bin); slip scales every harmonic by the same factor, so the window grows
+//!    with `h`. A harmonic whose window (plus the window main lobe) reaches
+//!    past the last bin, or below bin 1, is reported with `searched = false`.
+//! 2. **Peak**: the largest bin in the window that is a local maximum and not
+//!    masked. Bins within one main-lobe half-width of a harmonic of the
+//!    bearing's shaft are masked when `mask_shaft_harmonics` is set (running
+//!    speed lines are common in envelope spectra and would otherwise be taken
+//!    for, e.g., the 5th cage harmonic). Position by parabolic interpolation
+//!    of the log magnitude; amplitude corrected by the window kernel at that
+//!    offset (Hann; flat-top needs none).
+//! 3. **Floor**: median of the bins in `±(w + lobe + floor_band_orders)`
+//!    around `h·L`, excluding the search window widened by the main lobe and
+//!    masked bins (at most 256 bins on a stack array; wider bands are
+//!    sampled with a stride). Prominence = `20·log10(amplitude / floor)`.
+//! 4. **Harmonic consistency**: the *anchor* is the most prominent harmonic
+//!    among the first `anchor_harmonics` whose prominence reaches
+//!    `prominence_threshold_db`. It fixes the actual line `L' = f_a / h_a`
+//!    (slip included). Every other harmonic is searched again in a narrow
+//!    window at `h·L'` of half-width `(refine_bins + h / (4·h_a)) · Δ` (the
+//!    anchor's position error scales with `h/h_a`). A harmonic is `found`
+//!    when its peak in that window reaches the threshold. Without an anchor
+//!    nothing is found. Random noise peaks rarely line up this way, which is
+//!    what keeps the false-alarm rate low.
+//! 5. **Attribution**: a found peak that also lies in the wide window of a
+//!    harmonic `h'` of another kind is shared. It is counted for the kind
+//!    with the lower harmonic number (a peak at BPFO is more plausibly BPFO's
+//!    fundamental than the n-th cage harmonic, since BPFO = n·FTF); with equal
+//!    numbers it counts for neither. `shared_with` reports the other kind.
+//! 6. **Sidebands**: BPFI at ± the bearing shaft's order, the 2×BSF line at ±
+//!    FTF, searched (±`refine_bins`, ± slip for FTF) beside each counted
+//!    harmonic among the first three; a pair's value is the weaker side's
+//!    prominence over that harmonic's floor, and `sideband_db` is the best pair.
+//!
+//! # Decision
+//! `detected` when at least `min_harmonics` (default 2) harmonics are counted,
+//! or when the fundamental is counted and a sideband pair reaches
+//! `sideband_threshold_db` (BPFI and BSF only).
+//!
+//! # Score
+//! `score_db = 10·log10(Σ A_h² / Σ F_h²)` over the counted harmonics
+//! (amplitude `A`, floor `F`): the power of the defect's harmonic family over
+//! the local floor at the same orders. 0 dB when nothing is counted.
+
+use core::fmt;
+
+use crate::kinematics::{BearingOrders, DefectKind};
+use crate::num::{amplitude_db, f32_to_usize_sat, usize_to_f32};
+use crate::spectrum::{SpectrumView, Window};
+
+/// Maximum harmonics per defect.
+pub const MAX_HARMONICS: usize = 10;
+
+/// Capacity of the stack scratch used for the floor median.
+pub const FLOOR_SCRATCH: usize = 256;
+
+/// Fewest bins a floor estimate may rest on; otherwise the harmonic is not searched.
+const MIN_FLOOR_BINS: usize = 8;
+
+/// Defect search thresholds and windows.
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
+pub struct DefectSearchConfig {
+    /// Harmonics per defect, 1..=10. Default 5.
+    pub harmonics: u8,
+    /// Relative slip tolerance of the wide search, (0, 0.2]. Default 0.02
+    /// (rolling elements slip 1-2 %, common practice).
+    pub slip_tolerance: f32,
+    /// Minimum half-width of the wide window in bins, >= 0.5. Default 1.5.
+    pub min_window_bins: f32,
+    /// Prominence over the local floor a harmonic needs, dB, > 0. Default 10.
+    pub prominence_threshold_db: f32,
+    /// Counted harmonics required for a detection, 1..=harmonics. Default 2.
+    pub min_harmonics: u8,
+    /// Harmonics (from the first) that may serve as anchor, 1..=harmonics. Default 3.
+    pub anchor_harmonics: u8,
+    /// Floor band beyond the excluded window on each side, orders, > 0. Default 0.5.
+    pub floor_band_orders: f32,
+    /// Half-width of the consistency window in bins, >= 0.5. Default 1.5.
+    pub refine_bins: f32,
+    /// Prominence each sideband needs for a sideband pair, dB, > 0. Default 8.
+    pub sideband_threshold_db: f32,
+    /// Mask bins near harmonics of the bearing's shaft. Default true.
+    pub mask_shaft_harmonics: bool,
+}
+
+impl Default for DefectSearchConfig {
+    fn default() -> Self {
+        Self {
+            harmonics: 5,
+            slip_tolerance: 0.02,
+            min_window_bins: 1.5,
+            prominence_threshold_db: 10.0,
+            min_harmonics: 2,
+            anchor_harmonics: 3,
+            floor_band_orders: 0.5,
+            refine_bins: 1.5,
+            sideband_threshold_db: 8.0,
+            mask_shaft_harmonics: true,
+        }
+    }
+}
+
+/// Error of [`DefectSearch::new`].
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum DefectConfigError {
+    /// `harmonics` not in 1..=10.
+    Harmonics,
+    /// `slip_tolerance` not in (0, 0.2].
+    SlipTolerance,
+    /// A window width (`min_window_bins`, `refine_bins`, `floor_band_orders`) out of range or not finite.
+    WindowWidth,
+    /// A dB threshold not finite and positive.
+    Threshold,
+    /// `min_harmonics` or `anchor_harmonics` not in 1..=harmonics.
+    HarmonicCount,
+}
+
+impl fmt::Display for DefectConfigError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(match self {
+            DefectConfigError::Harmonics => "harmonics must be in 1..=10",
+            DefectConfigError::SlipTolerance => "slip tolerance must be in (0, 0.2]",
+            DefectConfigError::WindowWidth => "search or floor window width out of range",
+            DefectConfigError::Threshold => "dB thresholds must be finite and positive",
+            DefectConfigError::HarmonicCount => {
+                "min_harmonics and anchor_harmonics must be in 1..=harmonics"
+            }
+        })
+    }
+}
+
+impl core::error::Error for DefectConfigError {}
+
+/// Error of [`DefectSearch::search`].
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum SearchError {
+    /// A line, shaft or cage order is not finite and positive.
+    InvalidOrders,
+}
+
+impl fmt::Display for SearchError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str("bearing line orders must be finite and positive")
+    }
+}
+
+impl core::error::Error for SearchError {}
+
+/// One harmonic of one defect line.
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct HarmonicResult {
+    /// Harmonic number, 1-based.
+    pub harmonic: u8,
+    /// Expected order `h · L`.
+    pub expected_order: f32,
+    /// Interpolated order of the peak taken (0 if none or not searched).
+    pub found_order: f32,
+    /// Interpolated peak amplitude (spectrum unit; 0 if none).
+    pub amplitude: f32,
+    /// Median local floor (0 if not searched).
+    pub floor: f32,
+    /// `20·log10(amplitude / floor)` (-200 dB if no peak).
+    pub prominence_db: f32,
+    /// The window lay inside the spectrum and the floor had enough bins.
+    pub searched: bool,
+    /// Peak reaches the threshold and is consistent with the anchor.
+    pub found: bool,
+    /// Found and attributed to this kind (counts for the decision).
+    pub counted: bool,
+    /// Another kind whose harmonic window also contains this peak.
+    pub shared_with: Option<DefectKind>,
+}
+
+/// Outcome for one defect kind.
+#[derive(Debug, Clone, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct DefectResult {
+    /// Defect kind.
+    pub kind: DefectKind,
+    /// Watched line order `L` (2 × BSF for BSF).
+    pub line_order: f32,
+    /// Harmonics 1..=harmonics, in order, searched or not.
+    pub harmonics: heapless::Vec<HarmonicResult, MAX_HARMONICS>,
+    /// Harmonics counted for this kind.
+    pub harmonics_found: u8,
+    /// Harmonics that could be searched.
+    pub harmonics_searched: u8,
+    /// Harmonic number of the anchor, if one was found.
+    pub anchor: Option<u8>,
+    /// Amplitude of the first harmonic's peak (0 if not searched).
+    pub fundamental_amplitude: f32,
+    /// Best sideband pair (weaker side) in dB over the floor; BPFI and BSF only.
+    pub sideband_db: Option<f32>,
+    /// Harmonic-family power over floor, dB (see module doc).
+    pub score_db: f32,
+    /// Decision by the documented rule.
+    pub detected: bool,
+}
+
+/// Results for all four kinds, in [`DefectKind::index`] order.
+#[derive(Debug, Clone, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct BearingDiagnosis {
+    /// BPFO, BPFI, FTF, BSF.
+    pub results: [DefectResult; 4],
+}
+
+impl BearingDiagnosis {
+    /// Result of one kind.
+    pub fn get(&self, kind: DefectKind) -> Option<&DefectResult> {
+        self.results.get(kind.index())
+    }
+
+    /// Kinds detected.
+    pub fn detected(&self) -> impl Iterator<Item = DefectKind> + '_ {
+        self.results.iter().filter(|r| r.detected).map(|r| r.kind)
+    }
+}
+
+/// A validated search configuration.
+///
+/// ```
+/// use dsp_core::defects::{DefectSearch, DefectSearchConfig};
+/// use dsp_core::kinematics::{DefectMultiples, ShaftRatio, DefectKind};
+/// use dsp_core::spectrum::{SpectrumView, Window};
+/// // Invented flat spectrum with BPFO-like lines at 3.1, 6.2, 9.3 orders.
+/// let mut amps = [0.01f32; 1024];
+/// let opb = 1.0 / 64.0;
+/// for h in 1..=3 {
+///     let k = (3.1 * h as f32 / opb).round() as usize;
+///     amps[k] = 0.2;
+/// }
+/// let view = SpectrumView::new(&amps, opb, Window::Hann).unwrap();
+/// let m = DefectMultiples::new(3.1, 4.9, 0.387, 2.0).unwrap();
+/// let search = DefectSearch::new(DefectSearchConfig::default()).unwrap();
+/// let d = search.search(&view, &m.orders(ShaftRatio::TACH)).unwrap();
+/// assert!(d.get(DefectKind::Bpfo).unwrap().detected);
+/// assert!(!d.get(DefectKind::Bpfi).unwrap().detected);
+/// ```
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct DefectSearch {
+    config: DefectSearchConfig,
+}
+
+impl DefectSearchConfig {
+    /// Checks every field's range.
+    pub fn validate(&self) -> Result<(), DefectConfigError> {
+        let h = self.harmonics;
+        if !(1..=10).contains(&h) {
+            return Err(DefectConfigError::Harmonics);
+        }
+        if !(self.slip_tolerance > 0.0 && self.slip_tolerance <= 0.2) {
+            return Err(DefectConfigError::SlipTolerance);
+        }
+        let in_range = |v: f32, lo: f32| v.is_finite() && v >= lo && v <= 1000.0;
+        if !(in_range(self.min_window_bins, 0.5)
+            && in_range(self.refine_bins, 0.5)
+            && in_range(self.floor_band_orders, f32::MIN_POSITIVE))
+        {
+            return Err(DefectConfigError::WindowWidth);
+        }
+        let db_ok = |v: f32| v.is_finite() && v > 0.0;
+        if !(db_ok(self.prominence_threshold_db) && db_ok(self.sideband_threshold_db)) {
+            return Err(DefectConfigError::Threshold);
+        }
+        if !(1..=h).contains(&self.min_harmonics) || !(1..=h).contains(&self.anchor_harmonics) {
+            return Err(DefectConfigError::HarmonicCount);
+        }
+        Ok(())
+    }
+}
+
+/// Geometry of one harmonic's search.
+#[derive(Clone, Copy)]
+struct Window1 {
+    expected: f32,
+    half: f32,
+}
+
+/// A peak taken in a window.
+#[derive(Clone, Copy)]
+struct Peak {
+    order: f32,
+    amplitude: f32,
+}
+
+struct Ctx<'a> {
+    amps: &'a [f32],
+    opb: f32,
+    lobe_bins: f32,
+    window: Window,
+    shaft_order: f32,
+    mask: bool,
+}
+
+impl Ctx<'_> {
+    fn amp(&self, k: usize) -> f32 {
+        self.amps.get(k).copied().unwrap_or(0.0)
+    }
+
+    /// Scalloping correction at `delta` bins off-bin (|delta| <= 0.5).
+    fn kernel(&self, delta: f32) -> f32 {
+        self.window.kernel_gain(delta).max(0.1)
+    }
+
+    fn masked(&self, k: usize) -> bool {
+        if !self.mask {
+            return false;
+        }
+        let o = usize_to_f32(k) * self.opb;
+        let j = libm::roundf(o / self.shaft_order);
+        j >= 1.0 && libm::fabsf(o - j * self.shaft_order) <= self.lobe_bins * self.opb
+    }
+
+    /// Bin range `[lo, hi]` covering orders `[a, b]`, clipped to the spectrum.
+    fn bins(&self, a: f32, b: f32) -> Option<(usize, usize)> {
+        let lo = f32_to_usize_sat(libm::ceilf(a / self.opb));
+        let hi =
+            f32_to_usize_sat(libm::floorf(b / self.opb)).min(self.amps.len().saturating_sub(1));
+        (b >= 0.0 && lo <= hi).then_some((lo, hi))
+    }
+
+    /// Whether a window (plus main lobe on both sides) lies within bins 1..len-1.
+    fn fits(&self, w: Window1) -> bool {
+        let guard = self.lobe_bins * self.opb;
+        let lowest = w.expected - w.half - guard;
+        let highest = w.expected + w.half + guard;
+        lowest >= self.opb && highest <= usize_to_f32(self.amps.len().saturating_sub(1)) * self.opb
+    }
+
+    /// Largest unmasked local maximum in the orders `[a, b]`, interpolated.
+    fn peak(&self, a: f32, b: f32) -> Option<Peak> {
+        let (lo, hi) = self.bins(a, b)?;
+        let mut best: Option<(usize, f32)> = None;
+        for k in lo..=hi {
+            let v = self.amp(k);
+            let left = if k == 0 { 0.0 } else { self.amp(k - 1) };
+            let right = self.amp(k + 1);
+            if self.masked(k) || v <= 0.0 || v < left || v < right {
+                continue;
+            }
+            if best.is_none_or(|(_, bv)| v > bv) {
+                best = Some((k, v));
+            }
+        }
+        let (k, v) = best?;
+        let (l, r) = (self.amp(k.saturating_sub(1)), self.amp(k + 1));
+        // Parabola through the log magnitudes (exact for a Gaussian kernel,
+        // close for Hann); offset clamped to half a bin.
+        let delta = if l > 0.0 && r > 0.0 {
+            let (ll, lc, lr) = (libm::logf(l), libm::logf(v), libm::logf(r));
+            let den = ll - 2.0 * lc + lr;
+            if den < 0.0 {
+                (0.5 * (ll - lr) / den).clamp(-0.5, 0.5)
+            } else {
+                0.0
+            }
+        } else {
+            0.0
+        };
+        Some(Peak {
+            order: (usize_to_f32(k) + delta) * self.opb,
+            amplitude: v,
+        })
+    }
+
+    /// Median of the bins around `w`, excluding `w` widened by the main lobe.
+    fn floor(&self, w: Window1, band_orders: f32) -> Option<f32> {
+        let excl = w.half + self.lobe_bins * self.opb;
+        let extra = band_orders.max(usize_to_f32(MIN_FLOOR_BINS) * self.opb);
+        let (lo, hi) = self.bins(
+            (w.expected - excl - extra).max(self.opb),
+            w.expected + excl + extra,
+        )?;
+        let (xlo, xhi) = (w.expected - excl, w.expected + excl);
+        let candidates = |k: &usize| {
+            let o = usize_to_f32(*k) * self.opb;
+            (o < xlo || o > xhi) && !self.masked(*k)
+        };
+        let count = (lo..=hi).filter(candidates).count();
+        if count < MIN_FLOOR_BINS {
+            return None;
+        }
+        let stride = count.div_ceil(FLOOR_SCRATCH).max(1);
+        let mut scratch = [0.0f32; FLOOR_SCRATCH];
+        let mut n = 0usize;
+        for (slot, k) in scratch
+            .iter_mut()
+            .zip((lo..=hi).filter(candidates).step_by(stride))
+        {
+            *slot = self.amp(k);
+            n += 1;
+        }
+        let used = scratch.get_mut(..n)?;
+        let mid = n / 2;
+        let (_, m, _) = used.select_nth_unstable_by(mid, f32::total_cmp);
+        Some(*m)
+    }
+}
+
+fn not_searched(h: u8, expected: f32) -> HarmonicResult {
+    HarmonicResult {
+        harmonic: h,
+        expected_order: expected,
+        found_order: 0.0,
+        amplitude: 0.0,
+        floor: 0.0,
+        prominence_db: -200.0,
+        searched: false,
+        found: false,
+        counted: false,
+        shared_with: None,
+    }
+}
+
+impl DefectSearch {
+    /// Validates the configuration.
+    pub fn new(config: DefectSearchConfig) -> Result<Self, DefectConfigError> {
+        config.validate()?;
+        Ok(Self { config })
+    }
+
+    /// The configuration.
+    pub fn config(&self) -> &DefectSearchConfig {
+        &self.config
+    }
+
+    fn wide(&self, line: f32, h: u8, opb: f32) -> Window1 {
+        let expected = f32::from(h) * line;
+        Window1 {
+            expected,
+            half: (self.config.slip_tolerance * expected).max(self.config.min_window_bins * opb),
+        }
+    }
+
+    /// Searches all four defect kinds of one bearing in a spectrum.
+    pub fn search(
+        &self,
+        spectrum: &SpectrumView<'_>,
+        orders: &BearingOrders,
+    ) -> Result<BearingDiagnosis, SearchError> {
+        let pos = |v: f32| v.is_finite() && v > 0.0;
+        if !(orders.lines().iter().all(|&l| pos(l))
+            && pos(orders.shaft_order())
+            && pos(orders.ftf_order()))
+        {
+            return Err(SearchError::InvalidOrders);
+        }
+        let cfg = &self.config;
+        let ctx = Ctx {
+            amps: spectrum.amplitudes(),
+            opb: spectrum.orders_per_bin(),
+            lobe_bins: spectrum.window().main_lobe_half_width_bins(),
+            window: spectrum.window(),
+            shaft_order: orders.shaft_order(),
+            mask: cfg.mask_shaft_harmonics,
+        };
+        let mut results = DefectKind::ALL.map(|k| self.search_kind(&ctx, k, orders.line(k)));
+        self.attribute(&ctx, &mut results, orders);
+        for r in results.iter_mut() {
+            self.decide(&ctx, r, orders);
+        }
+        Ok(BearingDiagnosis { results })
+    }
+
+    fn search_kind(&self, ctx: &Ctx<'_>, kind: DefectKind, line: f32) -> DefectResult {
+        let cfg = &self.config;
+        let thr = cfg.prominence_threshold_db;
+        let mut harmonics: heapless::Vec<HarmonicResult, MAX_HARMONICS> = heapless::Vec::new();
+        // Stage 1: wide windows.
+        for h in 1..=cfg.harmonics {
+            let w = self.wide(line, h, ctx.opb);
+            let floor = if ctx.fits(w) {
+                ctx.floor(w, cfg.floor_band_orders)
+            } else {
+                None
+            };
+            let hr = match floor {
+                None => not_searched(h, w.expected),
+                Some(floor) => {
+                    let peak = ctx.peak(w.expected - w.half, w.expected + w.half);
+                    let (found_order, amplitude) = peak.map_or((0.0, 0.0), |p| {
+                        let delta = p.order / ctx.opb - libm::roundf(p.order / ctx.opb);
+                        (p.order, p.amplitude / ctx.kernel(delta))
+                    });
+                    HarmonicResult {
+                        harmonic: h,
+                        expected_order: w.expected,
+                        found_order,
+                        amplitude,
+                        floor,
+                        prominence_db: if floor > 0.0 {
+                            amplitude_db(amplitude / floor)
+                        } else if amplitude > 0.0 {
+                            200.0
+                        } else {
+                            -200.0
+                        },
+                        searched: true,
+                        found: false,
+                        counted: false,
+                        shared_with: None,
+                    }
+                }
+            };
+            // Capacity MAX_HARMONICS >= harmonics (validated).
+            let _ = harmonics.push(hr);
+        }
+        // Anchor: most prominent of the first anchor_harmonics above threshold.
+        let anchor = harmonics
+            .iter()
+            .take(usize::from(cfg.anchor_harmonics))
+            .filter(|r| r.searched && r.prominence_db >= thr)
+            .max_by(|a, b| a.prominence_db.total_cmp(&b.prominence_db))
+            .map(|r| (r.harmonic, r.found_order));
+        // Stage 2: narrow windows at h · L'.
+        if let Some((ha, fa)) = anchor {
+            let line_actual = fa / f32::from(ha);
+            for r in harmonics.iter_mut().filter(|r| r.searched) {
+                if r.harmonic == ha {
+                    r.found = true;
+                    continue;
+                }
+                let wide = self.wide(line, r.harmonic, ctx.opb);
+                let c = f32::from(r.harmonic) * line_actual;
+                let half =
+                    (cfg.refine_bins + f32::from(r.harmonic) / (4.0 * f32::from(ha))) * ctx.opb;
+                let a = (c - half).max(wide.expected - wide.half);
+                let b = (c + half).min(wide.expected + wide.half);
+                match ctx.peak(a, b) {
+                    Some(p) => {
+                        let delta = p.order / ctx.opb - libm::roundf(p.order / ctx.opb);
+                        r.found_order = p.order;
+                        r.amplitude = p.amplitude / ctx.kernel(delta);
+                        r.prominence_db = if r.floor > 0.0 {
+                            amplitude_db(r.amplitude / r.floor)
+                        } else {
+                            200.0
+                        };
+                        r.found = r.prominence_db >= thr;
+                    }
+                    None => {
+                        r.found_order = 0.0;
+                        r.amplitude = 0.0;
+                        r.prominence_db = -200.0;
+                    }
+                }
+            }
+        }
+        let harmonics_searched =
+            u8::try_from(harmonics.iter().filter(|r| r.searched).count()).unwrap_or(u8::MAX);
+        DefectResult {
+            kind,
+            line_order: line,
+            fundamental_amplitude: harmonics.first().map_or(0.0, |r| r.amplitude),
+            harmonics,
+            harmonics_found: 0,
+            harmonics_searched,
+            anchor: anchor.map(|(h, _)| h),
+            sideband_db: None,
+            score_db: 0.0,
+            detected: false,
+        }
+    }
+
+    /// Marks found peaks that also fall in another kind's harmonic window and
+    /// counts each for at most one kind (the lower harmonic number).
+    fn attribute(&self, ctx: &Ctx<'_>, results: &mut [DefectResult; 4], orders: &BearingOrders) {
+        let lines = orders.lines();
+        for ki in 0..results.len() {
+            let Some(r) = results.get_mut(ki) else {
+                continue;
+            };
+            for hr in r.harmonics.iter_mut() {
+                hr.counted = hr.found;
+                if !hr.found {
+                    continue;
+                }
+                for (kj, &other_line) in lines.iter().enumerate() {
+                    if kj == ki {
+                        continue;
+                    }
+                    let clash = (1..=self.config.harmonics).find(|&h2| {
+                        let w = self.wide(other_line, h2, ctx.opb);
+                        libm::fabsf(hr.found_order - w.expected) <= w.half
+                    });
+                    if let Some(h2) = clash {
+                        if hr.shared_with.is_none() || h2 <= hr.harmonic {
+                            hr.shared_with = DefectKind::from_index(kj);
+                        }
+                        if h2 <= hr.harmonic {
+                            hr.counted = false;
+                        }
+                    }
+                }
+            }
+        }
+    }
+
+    fn decide(&self, ctx: &Ctx<'_>, r: &mut DefectResult, orders: &BearingOrders) {
+        let cfg = &self.config;
+        let counted = r.harmonics.iter().filter(|h| h.counted);
+        let (sa, sf) = counted.clone().fold((0.0f32, 0.0f32), |(a, f), h| {
+            (a + h.amplitude * h.amplitude, f + h.floor * h.floor)
+        });
+        r.harmonics_found = u8::try_from(counted.count()).unwrap_or(u8::MAX);
+        r.score_db = if r.harmonics_found == 0 {
+            0.0
+        } else if sf > 0.0 {
+            10.0 * crate::num::log10f(sa / sf)
+        } else {
+            200.0
+        };
+        let spacing = match r.kind {
+            DefectKind::Bpfi => Some((orders.shaft_order(), 0.0)),
+            DefectKind::Bsf => Some((orders.ftf_order(), cfg.slip_tolerance * orders.ftf_order())),
+            DefectKind::Bpfo | DefectKind::Ftf => None,
+        };
+        if let Some((sp, slip)) = spacing {
+            let half = (cfg.refine_bins * ctx.opb).max(slip);
+            r.sideband_db = r
+                .harmonics
+                .iter()
+                .take(3)
+                .filter(|h| h.counted)
+                .filter_map(|h| {
+                    let side = |c: f32| {
+                        ctx.peak(c - half, c + half)
+                            .map_or(-200.0, |p| amplitude_db(p.amplitude / h.floor))
+                    };
+                    let lower = side(h.found_order - sp);
+                    let upper = side(h.found_order + sp);
+                    (h.found_order - sp - half > 0.0).then_some(lower.min(upper))
+                })
+                .max_by(f32::total_cmp);
+        }
+        let fundamental_counted = r.harmonics.first().is_some_and(|h| h.counted);
+        let sideband_pair = r
+            .sideband_db
+            .is_some_and(|s| s >= cfg.sideband_threshold_db);
+        r.detected =
+            r.harmonics_found >= cfg.min_harmonics || (fundamental_counted && sideband_pair);
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn config_validation() {
+        assert!(DefectSearch::new(DefectSearchConfig::default()).is_ok());
+        let c = DefectSearchConfig {
+            harmonics: 11,
+            ..Default::default()
+        };
+        assert_eq!(DefectSearch::new(c), Err(DefectConfigError::Harmonics));
+        let c = DefectSearchConfig {
+            slip_tolerance: f32::NAN,
+            ..Default::default()
+        };
+        assert_eq!(DefectSearch::new(c), Err(DefectConfigError::SlipTolerance));
+        let c = DefectSearchConfig {
+            min_harmonics: 6,
+            ..Default::default()
+        };
+        assert_eq!(DefectSearch::new(c), Err(DefectConfigError::HarmonicCount));
+    }
+}

@@ -1,1 +1,188 @@
-//! (module being written)
+//! Overall indicators of the raw acceleration, accumulated in the same pass
+//! as the envelope path.
+//!
+//! Accumulation: shifted sums. The shift `K` is the first finite sample
+//! (close to the mean, so no catastrophic cancellation); per sample the
+//! powers of `d = x - K` are summed in f32 (cheap on the M4F FPU), and every
+//! [`FLUSH_EVERY`] counted samples the partial sums are added to f64 totals.
+//! The flush points depend on the sample count only, never on block
+//! boundaries, so the result is bit-identical for any split of the input.
+//!
+//! Definitions (documented choices):
+//! * `peak` = max |x - mean| = max(max - mean, mean - min) (AC peak).
+//! * `crest_factor` = peak / AC RMS.
+//! * `kurtosis` = m4 / m2^2 (4th standardised moment, normal = 3).
+//! * non-finite samples are skipped here (not counted in `count`) and
+//!   counted in `non_finite`; clipped samples are counted in `clipped` and
+//!   still included in the statistics.
+
+use crate::velocity::Zone;
+
+/// Partial sums are moved to f64 after this many samples.
+pub const FLUSH_EVERY: u32 = 256;
+
+/// Snapshot of the overall indicators.
+#[derive(Clone, Copy, Debug, PartialEq, Default)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Overall {
+    /// Finite samples accumulated.
+    pub count: u32,
+    /// DC mean (g).
+    pub mean: f32,
+    /// AC RMS, i.e. standard deviation with 1/n (g).
+    pub rms_ac: f32,
+    /// max |x - mean| (g).
+    pub peak: f32,
+    /// max - min (g).
+    pub peak_to_peak: f32,
+    /// peak / rms_ac (0 when rms_ac is 0).
+    pub crest_factor: f32,
+    /// 4th standardised moment (normal = 3; 0 when rms_ac is 0).
+    pub kurtosis: f32,
+    /// Samples at or beyond the ADC full scale.
+    pub clipped: u32,
+    /// Non-finite input samples (replaced by 0 in the filters, skipped here).
+    pub non_finite: u32,
+    /// Velocity RMS in mm/s over the configured band (0 when disabled or not settled).
+    pub velocity_rms_mm_s: f32,
+    /// Velocity samples in the RMS (after the settling time).
+    pub velocity_count: u32,
+    /// ISO 20816-3 zone of `velocity_rms_mm_s`, `None` when velocity is disabled or has no samples.
+    pub zone: Option<Zone>,
+}
+
+/// Streaming accumulator of [`Overall`].
+#[derive(Clone, Debug, Default)]
+pub struct OverallAcc {
+    shift: Option<f32>,
+    count: u32,
+    pending: u32,
+    p: [f32; 4],
+    t: [f64; 4],
+    min: f32,
+    max: f32,
+    clipped: u32,
+    non_finite: u32,
+}
+
+impl OverallAcc {
+    /// Empty accumulator.
+    pub fn new() -> Self {
+        Self::default()
+    }
+
+    /// Clears everything.
+    pub fn reset(&mut self) {
+        *self = Self::default();
+    }
+
+    /// Counts one clipped sample.
+    #[inline]
+    pub fn add_clipped(&mut self) {
+        self.clipped = self.clipped.saturating_add(1);
+    }
+
+    /// Adds one sample; returns the value for the filters (0 for non-finite).
+    #[inline]
+    pub fn add(&mut self, x: f32) -> f32 {
+        if !x.is_finite() {
+            self.non_finite = self.non_finite.saturating_add(1);
+            return 0.0;
+        }
+        let k = match self.shift {
+            Some(k) => k,
+            None => {
+                self.shift = Some(x);
+                self.min = x;
+                self.max = x;
+                x
+            }
+        };
+        let d = x - k;
+        let d2 = d * d;
+        self.p[0] += d;
+        self.p[1] += d2;
+        self.p[2] += d2 * d;
+        self.p[3] += d2 * d2;
+        self.min = self.min.min(x);
+        self.max = self.max.max(x);
+        self.count = self.count.saturating_add(1);
+        self.pending += 1;
+        if self.pending >= FLUSH_EVERY {
+            self.flush();
+        }
+        x
+    }
+
+    fn flush(&mut self) {
+        for (t, p) in self.t.iter_mut().zip(self.p.iter_mut()) {
+            *t += f64::from(*p);
+            *p = 0.0;
+        }
+        self.pending = 0;
+    }
+
+    /// Snapshot (velocity fields left at their defaults).
+    pub fn snapshot(&self) -> Overall {
+        let mut o = Overall {
+            clipped: self.clipped,
+            non_finite: self.non_finite,
+            count: self.count,
+            ..Overall::default()
+        };
+        let Some(k) = self.shift else { return o };
+        let n = f64::from(self.count.max(1));
+        let mut s = [0f64; 4];
+        for ((s, t), p) in s.iter_mut().zip(self.t).zip(self.p) {
+            *s = (t + f64::from(p)) / n;
+        }
+        let [s1, s2, s3, s4] = s;
+        let mu = s1;
+        let m2 = (s2 - mu * mu).max(0.0);
+        let m4 = (s4 - 4.0 * mu * s3 + 6.0 * mu * mu * s2 - 3.0 * mu * mu * mu * mu).max(0.0);
+        let mean = f64::from(k) + mu;
+        let rms = libm::sqrt(m2);
+        let peak = (f64::from(self.max) - mean).max(mean - f64::from(self.min));
+        o.mean = crate::num::f64_to_f32(mean);
+        o.rms_ac = crate::num::f64_to_f32(rms);
+        o.peak = crate::num::f64_to_f32(peak);
+        o.peak_to_peak = self.max - self.min;
+        if m2 > 0.0 {
+            o.crest_factor = crate::num::f64_to_f32(peak / rms);
+            o.kurtosis = crate::num::f64_to_f32(m4 / (m2 * m2));
+        }
+        o
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn square_wave_moments() {
+        // +-1 around 5: mean 5, rms 1, peak 1, crest 1, kurtosis 1 (two-point distribution).
+        let mut a = OverallAcc::new();
+        for i in 0..1000 {
+            a.add(if i % 2 == 0 { 6.0 } else { 4.0 });
+        }
+        let o = a.snapshot();
+        assert_eq!(o.count, 1000);
+        assert!((o.mean - 5.0).abs() < 1e-6);
+        assert!((o.rms_ac - 1.0).abs() < 1e-6);
+        assert!((o.kurtosis - 1.0).abs() < 1e-5);
+        assert!((o.crest_factor - 1.0).abs() < 1e-5);
+        assert_eq!(o.peak_to_peak, 2.0);
+    }
+
+    #[test]
+    fn non_finite_is_flagged_and_skipped() {
+        let mut a = OverallAcc::new();
+        assert_eq!(a.add(f32::NAN), 0.0);
+        assert_eq!(a.add(f32::INFINITY), 0.0);
+        a.add(1.0);
+        let o = a.snapshot();
+        assert_eq!((o.count, o.non_finite), (1, 2));
+        assert!(o.mean == 1.0 && o.rms_ac == 0.0 && o.kurtosis == 0.0);
+    }
+}

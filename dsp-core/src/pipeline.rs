@@ -1,1 +1,525 @@
-//! (module being written)
+//! One pipeline object: configure from a measuring point, push ADC blocks
+//! and tach edges as they arrive, finish, get a [`Report`].
+//!
+//! ```text
+//! push_i16 / push_f32 ─► FrontEnd ─► OrderTracker ─► OrderSpectrum (N points, averaged)
+//! push_edge ─────────► TachTracker ─┘ (revolution marks)
+//! finish ─► SpeedSummary + Overall + DefectSearch per bearing ─► Report
+//! ```
+//!
+//! The raw record is never stored: each block is filtered, rectified and
+//! decimated as it arrives, the envelope is resampled to shaft angle as soon
+//! as the bracketing revolution marks are known, and the angle-domain samples
+//! fill the spectrum's segment buffer, the only large buffer.
+//!
+//! # Choices made from the configuration
+//! * Decimation: the largest factor (with prime factors <= 7, as the
+//!   decimator needs) that keeps at least 1.25 x `samples_per_rev` envelope
+//!   samples per revolution at `max_rpm` and half the angle-domain rate
+//!   (S/2 orders) inside the decimator's pass band (0.4 x output rate).
+//! * Search band: defects are searched up to S/4 orders. Between S/4 and S/2
+//!   the angle-domain sampling can fold in envelope content that the
+//!   decimator's transition band lets through (above 0.4 x its output rate,
+//!   attenuated >= 60 dB only beyond 0.6 x), so that part of the spectrum is
+//!   reported but never searched.
+//! * Record: `revolutions` is rounded down to whole segments of N/S
+//!   revolutions; the pipeline is [`complete`](Pipeline::complete) once they
+//!   are averaged, and later samples only update the overall values.
+
+use core::fmt;
+
+use heapless::Vec;
+
+use crate::config::{BearingKinematics, ConfigError, PointConfig, SpeedInput, MAX_BEARINGS};
+use crate::defects::DefectSearch;
+use crate::frontend::{FrontEnd, FrontEndConfig};
+use crate::kinematics::{BearingGeometry, BearingOrders, DefectMultiples, ShaftRatio};
+use crate::num::usize_to_f32;
+use crate::order_track::{decimation_for, OrderFlags, OrderTrackConfig, OrderTracker};
+use crate::report::{BearingReport, QualityFlags, Report};
+use crate::spectrum::{OrderSpectrum, SpectrumConfig, SpectrumView};
+use crate::tach::{SpeedSource, TachConfig, TachFlags, TachTracker};
+use crate::velocity::VelocityConfig;
+
+/// Samples per ADC block on the node (one DMA half-buffer). The host
+/// simulator feeds recordings in blocks of this size so its reports equal the
+/// node's.
+pub const ADC_BLOCK: usize = 256;
+
+/// Ring of decimated envelope samples on the node (8 KiB): enough for three
+/// revolutions at the slowest configured speed; see
+/// [`crate::order_track::ring_needed`].
+pub const NODE_RING: usize = 2048;
+
+/// The node's pipeline: 4096-point spectrum, 2048 bins.
+pub type NodePipeline = Pipeline<4096, 2048, NODE_RING>;
+
+/// RMS below this many ADC counts means a flat (disconnected) channel.
+const FLAT_RMS_COUNTS: f32 = 1.0;
+/// More than this share of clipped samples means a saturated channel.
+const SATURATED_SHARE: f32 = 0.01;
+
+/// Why [`Pipeline::new`] refused a measuring point.
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum PipelineError {
+    /// The point itself is invalid.
+    Config(ConfigError),
+    /// The front end refused the band, rate or decimation.
+    FrontEnd(crate::frontend::FrontEndError),
+    /// The speed source was refused.
+    Tach(crate::tach::TachConfigError),
+    /// The order tracker was refused: usually the speed range is too wide
+    /// for the resampler ring at this decimation (narrow the range or lower
+    /// `samples_per_rev`).
+    OrderTrack(crate::order_track::OrderTrackError),
+    /// The spectrum refused `samples_per_rev` for this FFT size.
+    Spectrum(crate::spectrum::SpectrumError),
+}
+
+impl fmt::Display for PipelineError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            PipelineError::Config(e) => write!(f, "measuring point: {e}"),
+            PipelineError::FrontEnd(e) => write!(f, "front end: {e}"),
+            PipelineError::Tach(e) => write!(f, "speed source: {e}"),
+            PipelineError::OrderTrack(e) => write!(f, "order tracking: {e}"),
+            PipelineError::Spectrum(e) => write!(f, "spectrum: {e}"),
+        }
+    }
+}
+
+impl core::error::Error for PipelineError {}
+
+impl From<ConfigError> for PipelineError {
+    fn from(e: ConfigError) -> Self {
+        PipelineError::Config(e)
+    }
+}
+
+/// The streaming diagnosis of one measuring point, with an `N`-point
+/// spectrum (`H = N / 2` bins) and a `RING`-sample resampler ring.
+///
+/// ```
+/// use dsp_core::config::{PointConfig, SpeedInput};
+/// use dsp_core::pipeline::Pipeline;
+/// let mut point = PointConfig::default();
+/// point.speed = SpeedInput::Constant { rpm: 1500.0 };
+/// point.revolutions = 64;
+/// let mut p = Pipeline::<1024, 512, 2048>::new(&point).unwrap();
+/// let block = [0i16; 256];
+/// while !p.complete() {
+///     p.push_i16(&block);
+/// }
+/// let report = p.finish();
+/// assert_eq!(report.segments, 4);
+/// // An all-zero input is a flat channel: flagged, not diagnosed.
+/// assert!(!report.analysed());
+/// ```
+pub struct Pipeline<const N: usize, const H: usize, const RING: usize> {
+    point: PointConfig,
+    fe: FrontEnd,
+    tach: TachTracker,
+    ot: OrderTracker<RING>,
+    spectrum: OrderSpectrum<N, H>,
+    search: DefectSearch,
+    orders: Vec<BearingOrders, MAX_BEARINGS>,
+    samples: u64,
+    segments_wanted: u32,
+    max_search_order: f32,
+    raised: QualityFlags,
+}
+
+impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
+    /// Validates the point and sets every stage up.
+    pub fn new(point: &PointConfig) -> Result<Self, PipelineError> {
+        point.validate()?;
+        let s = point.samples_per_rev;
+        let s_f = f32::from(s);
+        let (min_rpm, max_rpm) = match point.speed {
+            SpeedInput::Constant { rpm } => (rpm, rpm),
+            SpeedInput::Tach { .. } => (point.min_rpm, point.max_rpm),
+        };
+
+        let decimation =
+            smooth_at_most(decimation_for(point.sample_rate_hz, max_rpm, 0.5 * s_f, s));
+        let velocity = VelocityConfig {
+            group: point.machine_group,
+            support: point.support,
+            ..VelocityConfig::default()
+        };
+        let fe = FrontEnd::new(&FrontEndConfig {
+            sample_rate_hz: point.sample_rate_hz,
+            band_hz: point.band(),
+            poles: point.poles,
+            rectifier: point.rectifier,
+            decimation,
+            counts_to_g: point.counts_to_g,
+            adc_full_scale: point.adc_full_scale,
+            velocity,
+        })
+        .map_err(PipelineError::FrontEnd)?;
+
+        let seg_revs = N / usize::from(s).max(1);
+        let seg_revs_u32 = u32::try_from(seg_revs).unwrap_or(u32::MAX).max(1);
+        let segments_wanted = u32::from(point.revolutions) / seg_revs_u32;
+        if segments_wanted == 0 {
+            return Err(ConfigError::Revolutions.into());
+        }
+
+        let source = match point.speed {
+            SpeedInput::Tach {
+                pulses_per_rev,
+                tick_hz,
+                tick_at_sample0,
+            } => SpeedSource::Tach(TachConfig {
+                tick_hz,
+                tick_at_sample0,
+                sample_rate_hz: point.sample_rate_hz,
+                pulses_per_rev,
+                min_rpm: point.min_rpm,
+                max_rpm: point.max_rpm,
+                max_speed_change_pct: point.max_speed_change_pct,
+                min_good_revs: u16::try_from(seg_revs).unwrap_or(u16::MAX),
+            }),
+            SpeedInput::Constant { rpm } => SpeedSource::Constant {
+                rpm,
+                sample_rate_hz: point.sample_rate_hz,
+            },
+        };
+        let tach = TachTracker::new(&source).map_err(PipelineError::Tach)?;
+
+        let ot = OrderTracker::new(&OrderTrackConfig {
+            samples_per_rev: s,
+            decimation,
+            input_rate_hz: fe.output_rate_hz(),
+            delay_input_samples: fe.delay_input_samples(),
+            min_rpm,
+            ..OrderTrackConfig::default()
+        })
+        .map_err(PipelineError::OrderTrack)?;
+
+        let spectrum = OrderSpectrum::new(SpectrumConfig {
+            samples_per_rev: u32::from(s),
+            window: point.window,
+            ..SpectrumConfig::default()
+        })
+        .map_err(PipelineError::Spectrum)?;
+
+        let search = DefectSearch::new(point.search).map_err(|_| ConfigError::Search)?;
+
+        let max_search_order = 0.25 * s_f;
+        let mut orders = Vec::new();
+        for b in &point.bearings {
+            let multiples = match b.kinematics {
+                BearingKinematics::Geometry {
+                    rollers,
+                    roller_diameter,
+                    pitch_diameter,
+                    contact_angle_deg,
+                } => BearingGeometry {
+                    rollers,
+                    roller_diameter,
+                    pitch_diameter,
+                    contact_angle_deg,
+                }
+                .multiples()
+                .map_err(|_| ConfigError::BearingGeometry)?,
+                BearingKinematics::Multiples {
+                    bpfo_x,
+                    bpfi_x,
+                    ftf_x,
+                    bsf_x,
+                } => DefectMultiples::new(bpfo_x, bpfi_x, ftf_x, bsf_x)
+                    .map_err(|_| ConfigError::BearingMultiples)?,
+            };
+            let ratio = point
+                .shafts
+                .get(usize::from(b.shaft))
+                .map(|sh| sh.ratio)
+                .ok_or(ConfigError::BearingShaft)?;
+            let ratio = ShaftRatio::new(ratio).map_err(|_| ConfigError::ShaftRatio)?;
+            let o = multiples.orders(ratio);
+            if o.lines().iter().any(|&l| l > max_search_order) {
+                return Err(ConfigError::OrderRange.into());
+            }
+            // Capacity equals the config's bearing capacity.
+            orders
+                .push(o)
+                .map_err(|_| PipelineError::Config(ConfigError::BearingShaft))?;
+        }
+
+        Ok(Pipeline {
+            point: point.clone(),
+            fe,
+            tach,
+            ot,
+            spectrum,
+            search,
+            orders,
+            samples: 0,
+            segments_wanted,
+            max_search_order,
+            raised: QualityFlags::empty(),
+        })
+    }
+
+    /// The validated measuring point.
+    pub fn point(&self) -> &PointConfig {
+        &self.point
+    }
+
+    /// Decimation factor chosen for the envelope.
+    pub fn decimation(&self) -> u16 {
+        self.fe.config().decimation
+    }
+
+    /// Spectrum segments still missing; 0 once [`complete`](Self::complete).
+    pub fn segments_missing(&self) -> u32 {
+        self.segments_wanted
+            .saturating_sub(self.spectrum.segments())
+    }
+
+    /// All configured revolutions are in the spectrum: the firmware may stop
+    /// acquiring and call [`finish`](Self::finish).
+    pub fn complete(&self) -> bool {
+        self.segments_missing() == 0
+    }
+
+    /// Input samples pushed so far.
+    pub fn samples(&self) -> u64 {
+        self.samples
+    }
+
+    /// Adds flags that only the caller can know (DMA overrun, low battery)
+    /// to the next report.
+    pub fn raise(&mut self, flags: QualityFlags) {
+        self.raised.insert(flags);
+    }
+
+    /// Pushes one tach edge (capture-timer ticks, see [`crate::tach`]).
+    /// Push the edges captured during a block before the block itself.
+    pub fn push_edge(&mut self, tick: u32) {
+        let Self {
+            tach,
+            ot,
+            spectrum,
+            segments_wanted,
+            ..
+        } = self;
+        tach.push_edge(tick, |m| {
+            ot.push_mark(m, |a| feed(spectrum, *segments_wanted, a));
+        });
+    }
+
+    /// Pushes a block of ADC counts (any length).
+    pub fn push_i16(&mut self, block: &[i16]) {
+        let Self {
+            fe,
+            ot,
+            spectrum,
+            segments_wanted,
+            ..
+        } = self;
+        fe.push_i16(block, |e| {
+            ot.push_sample(e, |a| feed(spectrum, *segments_wanted, a));
+        });
+        self.advance(block.len());
+    }
+
+    /// Pushes a block of samples in g (any length).
+    pub fn push_f32(&mut self, block: &[f32]) {
+        let Self {
+            fe,
+            ot,
+            spectrum,
+            segments_wanted,
+            ..
+        } = self;
+        fe.push_f32(block, |e| {
+            ot.push_sample(e, |a| feed(spectrum, *segments_wanted, a));
+        });
+        self.advance(block.len());
+    }
+
+    fn advance(&mut self, n: usize) {
+        self.samples = self
+            .samples
+            .saturating_add(u64::try_from(n).unwrap_or(u64::MAX));
+        let Self {
+            tach,
+            ot,
+            spectrum,
+            segments_wanted,
+            samples,
+            ..
+        } = self;
+        tach.advance_to(*samples, |m| {
+            ot.push_mark(m, |a| feed(spectrum, *segments_wanted, a));
+        });
+    }
+
+    /// The averaged envelope order spectrum so far (peak amplitude per bin,
+    /// in g for `abs` rectification, g² for `square`).
+    pub fn spectrum(&self) -> &[f32] {
+        self.spectrum.amplitudes()
+    }
+
+    /// Orders per spectrum bin.
+    pub fn orders_per_bin(&self) -> f32 {
+        self.spectrum.orders_per_bin()
+    }
+
+    /// Per-revolution speed series of the record so far, rpm.
+    pub fn speed_series(&self) -> &[f32] {
+        self.tach.speed_series()
+    }
+
+    /// Ends the record and diagnoses it. Afterwards the pipeline holds the
+    /// finished state (spectrum, speed series) for inspection; build a new
+    /// one for the next measurement.
+    pub fn finish(&mut self) -> Report {
+        let Self {
+            tach,
+            ot,
+            spectrum,
+            segments_wanted,
+            ..
+        } = self;
+        let speed = tach.finish(|m| {
+            ot.push_mark(m, |a| feed(spectrum, *segments_wanted, a));
+        });
+        ot.finish(|a| feed(spectrum, *segments_wanted, a));
+
+        let overall = self.fe.overall();
+        let mut flags = self.raised;
+        flags.insert(tach_flags(speed.flags));
+        let of = self.ot.flags();
+        if of.contains(OrderFlags::RING_OVERFLOW)
+            || of.contains(OrderFlags::JOB_OVERFLOW)
+            || of.contains(OrderFlags::BAD_MARK)
+        {
+            flags.insert(QualityFlags::RESAMPLER);
+        }
+        if overall.non_finite > 0
+            || of.contains(OrderFlags::NON_FINITE_INPUT)
+            || self.spectrum.rejected_segments() > 0
+        {
+            flags.insert(QualityFlags::NON_FINITE);
+        }
+        if overall.clipped > 0 {
+            flags.insert(QualityFlags::CLIPPING);
+        }
+        let count = usize_to_f32(usize::try_from(overall.count).unwrap_or(usize::MAX));
+        let clipped = usize_to_f32(usize::try_from(overall.clipped).unwrap_or(usize::MAX));
+        if overall.count == 0
+            || overall.rms_ac < FLAT_RMS_COUNTS * self.point.counts_to_g
+            || clipped > SATURATED_SHARE * count
+        {
+            flags.insert(QualityFlags::SENSOR_FAULT);
+        }
+        let segments = self.spectrum.segments();
+        if segments < self.segments_wanted {
+            flags.insert(QualityFlags::INCOMPLETE);
+        }
+        if segments == 0 {
+            flags.insert(QualityFlags::TOO_FEW_REVS);
+        }
+
+        let analysable = !flags.intersects(QualityFlags::NOT_ANALYSABLE);
+        let amps = self.spectrum.amplitudes();
+        let opb = self.spectrum.orders_per_bin();
+        // Bins strictly below the search limit (see the module docs).
+        let search_bins = crate::num::f32_to_usize_sat(self.max_search_order / opb)
+            .saturating_add(1)
+            .min(amps.len());
+        let view = amps
+            .get(..search_bins)
+            .and_then(|a| SpectrumView::new(a, opb, self.point.window).ok());
+
+        let mut bearings = Vec::new();
+        for (b, orders) in self.point.bearings.iter().zip(self.orders.iter()) {
+            let diagnosis = match (&view, analysable) {
+                (Some(v), true) => self.search.search(v, orders).ok(),
+                _ => None,
+            };
+            // Same capacity as the point's bearing list.
+            let _ = bearings.push(BearingReport {
+                name: b.name.clone(),
+                orders: *orders,
+                diagnosis,
+            });
+        }
+
+        let revs_per_segment = N / usize::from(self.point.samples_per_rev).max(1);
+        Report {
+            flags,
+            speed,
+            overall,
+            band_hz: self.fe.config().band_hz,
+            rectifier: self.point.rectifier,
+            decimation: self.decimation(),
+            samples_per_rev: self.point.samples_per_rev,
+            segments,
+            revolutions: segments
+                .saturating_mul(u32::try_from(revs_per_segment).unwrap_or(u32::MAX)),
+            orders_per_bin: opb,
+            max_search_order: self.max_search_order,
+            bearings,
+        }
+    }
+}
+
+/// Feeds one angle-domain sample to the spectrum until enough segments are in.
+fn feed<const N: usize, const H: usize>(s: &mut OrderSpectrum<N, H>, wanted: u32, a: f32) {
+    if s.segments() < wanted {
+        let _ = s.push(a);
+    }
+}
+
+fn tach_flags(t: TachFlags) -> QualityFlags {
+    let mut q = QualityFlags::empty();
+    let map = [
+        (TachFlags::NO_PULSES, QualityFlags::TACH_MISSING),
+        (TachFlags::MISSING_PULSE, QualityFlags::TACH_IRREGULAR),
+        (TachFlags::EXTRA_PULSE, QualityFlags::TACH_IRREGULAR),
+        (TachFlags::STOP, QualityFlags::TACH_IRREGULAR),
+        (TachFlags::OUT_OF_ORDER, QualityFlags::TACH_IRREGULAR),
+        (TachFlags::BELOW_MIN_RPM, QualityFlags::SPEED_OUT_OF_RANGE),
+        (TachFlags::ABOVE_MAX_RPM, QualityFlags::SPEED_OUT_OF_RANGE),
+        (TachFlags::SPEED_CHANGE, QualityFlags::SPEED_UNSTABLE),
+        (TachFlags::TOO_FEW_REVS, QualityFlags::TOO_FEW_REVS),
+    ];
+    for (tf, qf) in map {
+        if t.contains(tf) {
+            q.insert(qf);
+        }
+    }
+    q
+}
+
+/// The largest factor <= `d` whose prime factors are all <= 7 (at least 1).
+fn smooth_at_most(d: u16) -> u16 {
+    let smooth = |mut x: u16| {
+        for p in [2u16, 3, 5, 7] {
+            while x % p == 0 {
+                x /= p;
+            }
+        }
+        x == 1
+    };
+    (1..=d.max(1)).rev().find(|&x| smooth(x)).unwrap_or(1)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn smooth_factors() {
+        assert_eq!(smooth_at_most(143), 140);
+        assert_eq!(smooth_at_most(1024), 1024);
+        assert_eq!(smooth_at_most(11), 10);
+        assert_eq!(smooth_at_most(0), 1);
+    }
+}

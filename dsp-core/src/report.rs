@@ -1,1 +1,171 @@
-//! (module being written)
+//! The result of one measurement: speed, quality flags, overall values and
+//! each watched bearing's defect results.
+
+use core::fmt;
+
+use heapless::Vec;
+
+use crate::config::{Name, MAX_BEARINGS};
+use crate::defects::BearingDiagnosis;
+use crate::kinematics::{BearingOrders, DefectKind};
+use crate::overall::Overall;
+use crate::tach::SpeedSummary;
+
+/// Quality flags of a report: what went wrong or is doubtful. A report with
+/// any of [`QualityFlags::NOT_ANALYSABLE`] carries no defect results.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Hash)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct QualityFlags(pub u16);
+
+impl QualityFlags {
+    /// No tach pulses at all.
+    pub const TACH_MISSING: Self = Self(1 << 0);
+    /// Missing, extra or out-of-order pulses, or a stop during the record.
+    pub const TACH_IRREGULAR: Self = Self(1 << 1);
+    /// Speed outside the configured range.
+    pub const SPEED_OUT_OF_RANGE: Self = Self(1 << 2);
+    /// Speed changed more than the configured limit over the record.
+    pub const SPEED_UNSTABLE: Self = Self(1 << 3);
+    /// Too few good revolutions for a spectrum.
+    pub const TOO_FEW_REVS: Self = Self(1 << 4);
+    /// Samples at ADC full scale.
+    pub const CLIPPING: Self = Self(1 << 5);
+    /// Sensor fault: a flat (disconnected) or saturated channel.
+    pub const SENSOR_FAULT: Self = Self(1 << 6);
+    /// Non-finite input samples were replaced.
+    pub const NON_FINITE: Self = Self(1 << 7);
+    /// Processing could not keep up (set by the firmware on DMA overrun).
+    pub const OVERRUN: Self = Self(1 << 8);
+    /// Battery low (set by the firmware).
+    pub const LOW_BATTERY: Self = Self(1 << 9);
+    /// Fewer spectrum segments than configured were completed.
+    pub const INCOMPLETE: Self = Self(1 << 10);
+    /// The order tracker lost samples (ring overflow, bad marks).
+    pub const RESAMPLER: Self = Self(1 << 11);
+
+    /// Conditions under which no defect is evaluated.
+    pub const NOT_ANALYSABLE: Self =
+        Self(Self::TACH_MISSING.0 | Self::TOO_FEW_REVS.0 | Self::SENSOR_FAULT.0);
+
+    /// No flag set.
+    pub const fn empty() -> Self {
+        Self(0)
+    }
+
+    /// All of `other`'s flags are set.
+    pub const fn contains(self, other: Self) -> bool {
+        self.0 & other.0 == other.0
+    }
+
+    /// Any of `other`'s flags is set.
+    pub const fn intersects(self, other: Self) -> bool {
+        self.0 & other.0 != 0
+    }
+
+    /// Sets `other`'s flags.
+    pub fn insert(&mut self, other: Self) {
+        self.0 |= other.0;
+    }
+
+    /// The raw bits.
+    pub const fn bits(self) -> u16 {
+        self.0
+    }
+
+    /// Names of the set flags, in bit order.
+    pub fn names(self) -> impl Iterator<Item = &'static str> {
+        FLAG_NAMES
+            .iter()
+            .filter(move |(f, _)| self.contains(*f))
+            .map(|(_, n)| *n)
+    }
+}
+
+/// Every flag with its report name.
+pub const FLAG_NAMES: [(QualityFlags, &str); 12] = [
+    (QualityFlags::TACH_MISSING, "tach_missing"),
+    (QualityFlags::TACH_IRREGULAR, "tach_irregular"),
+    (QualityFlags::SPEED_OUT_OF_RANGE, "speed_out_of_range"),
+    (QualityFlags::SPEED_UNSTABLE, "speed_unstable"),
+    (QualityFlags::TOO_FEW_REVS, "too_few_revolutions"),
+    (QualityFlags::CLIPPING, "clipping"),
+    (QualityFlags::SENSOR_FAULT, "sensor_fault"),
+    (QualityFlags::NON_FINITE, "non_finite_samples"),
+    (QualityFlags::OVERRUN, "processing_overrun"),
+    (QualityFlags::LOW_BATTERY, "low_battery"),
+    (QualityFlags::INCOMPLETE, "incomplete_record"),
+    (QualityFlags::RESAMPLER, "resampler_fault"),
+];
+
+impl fmt::Display for QualityFlags {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let mut first = true;
+        for n in self.names() {
+            if !first {
+                f.write_str(",")?;
+            }
+            f.write_str(n)?;
+            first = false;
+        }
+        if first {
+            f.write_str("ok")?;
+        }
+        Ok(())
+    }
+}
+
+/// One watched bearing in a report.
+#[derive(Clone, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct BearingReport {
+    /// Name from the measuring point.
+    pub name: Name,
+    /// Its watched lines as orders of the tach shaft.
+    pub orders: BearingOrders,
+    /// Defect results; `None` when the record was not analysable.
+    pub diagnosis: Option<BearingDiagnosis>,
+}
+
+impl BearingReport {
+    /// Kinds detected on this bearing (none when not analysed).
+    pub fn detected(&self) -> impl Iterator<Item = DefectKind> + '_ {
+        self.diagnosis.iter().flat_map(|d| d.detected())
+    }
+}
+
+/// The diagnosis of one measurement.
+#[derive(Clone, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Report {
+    /// Quality flags.
+    pub flags: QualityFlags,
+    /// Speed of the tach shaft over the record.
+    pub speed: SpeedSummary,
+    /// Overall values of the raw acceleration (g, mm/s) and the ISO zone.
+    pub overall: Overall,
+    /// Envelope band used, Hz.
+    pub band_hz: [f32; 2],
+    /// Rectifier: spectrum amplitudes are in g (`Abs`) or g² (`Square`).
+    pub rectifier: crate::rectify::Rectifier,
+    /// Decimation factor of the envelope.
+    pub decimation: u16,
+    /// Angle-domain samples per revolution.
+    pub samples_per_rev: u16,
+    /// Averaged spectrum segments.
+    pub segments: u32,
+    /// Revolutions that went into the spectrum.
+    pub revolutions: u32,
+    /// Order resolution of the spectrum (orders per bin).
+    pub orders_per_bin: f32,
+    /// Highest order searched for defects.
+    pub max_search_order: f32,
+    /// Watched bearings in point order.
+    pub bearings: Vec<BearingReport, MAX_BEARINGS>,
+}
+
+impl Report {
+    /// Whether defects were evaluated.
+    pub fn analysed(&self) -> bool {
+        !self.flags.intersects(QualityFlags::NOT_ANALYSABLE) && self.segments > 0
+    }
+}

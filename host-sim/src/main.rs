@@ -1,2 +1,52 @@
-//! `envord`: the host simulator and gateway command (being written).
-fn main() {}
+//! `envord`: run the node's diagnosis core on a PC, and read node reports at
+//! the gateway. See README.md for the commands.
+use clap::{Parser, Subcommand};
+use std::process::ExitCode;
+
+#[derive(Parser)]
+#[command(
+    name = "envord",
+    version,
+    about = "Bearing envelope order analysis, as the node runs it"
+)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Analyse a recording with a measuring point and print the report.
+    Analyze(host_sim::cmd_analyze::AnalyzeArgs),
+    /// Compare two reports (or folders of reports); exit 1 on a difference.
+    Compare(host_sim::cmd_compare::CompareArgs),
+    /// Analyse every WAV in a folder; summary table, reports and a score plot.
+    Batch(host_sim::cmd_batch::BatchArgs),
+    /// Write a simulated gearbox record (WAV: ch0 accel g, ch1 tach V).
+    Simulate(host_sim::cmd_simulate::SimulateArgs),
+}
+
+fn main() -> ExitCode {
+    let cli = match Cli::try_parse() {
+        Ok(c) => c,
+        Err(e) => {
+            // clap prints help/version to stdout and usage errors to stderr.
+            let code = if e.use_stderr() { 2 } else { 0 };
+            let _ = e.print();
+            return ExitCode::from(code);
+        }
+    };
+    let result: Result<(), host_sim::error::CliError> = match cli.command {
+        Command::Simulate(a) => host_sim::cmd_simulate::run(&a),
+        Command::Analyze(a) => host_sim::cmd_analyze::run_cmd(&a),
+        Command::Compare(a) => host_sim::cmd_compare::run(&a),
+        Command::Batch(a) => host_sim::cmd_batch::run(&a),
+    };
+    match result {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) => {
+            eprintln!("envord: {e}");
+            ExitCode::from(e.exit_code())
+        }
+    }
+}

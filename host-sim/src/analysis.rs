@@ -1,0 +1,146 @@
+//! Running the node's pipeline on a recording, exactly as the firmware does:
+//! the same [`NodePipeline`] type, ADC-sized blocks of
+//! [`ADC_BLOCK`](dsp_core::pipeline::ADC_BLOCK) samples, tach edges as
+//! capture-timer ticks pushed before the block in which they occurred, and
+//! acquisition stopped once the configured revolutions are in.
+
+use dsp_core::config::{PointConfig, SpeedInput};
+use dsp_core::pipeline::{NodePipeline, ADC_BLOCK};
+use dsp_core::report::Report;
+use dsp_core::tach::EdgeDetector;
+
+use crate::error::CliError;
+
+/// The acceleration channel of a recording.
+#[derive(Debug, Clone)]
+pub enum Accel {
+    /// ADC counts (int16 files): the node's `push_i16` path, scaled by the
+    /// point's `counts_to_g`.
+    Counts(Vec<i16>),
+    /// Samples in g (float or 24/32-bit files): the `push_f32` path.
+    G(Vec<f32>),
+}
+
+impl Accel {
+    /// Number of samples.
+    pub fn len(&self) -> usize {
+        match self {
+            Accel::Counts(v) => v.len(),
+            Accel::G(v) => v.len(),
+        }
+    }
+
+    /// True when there are no samples.
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+}
+
+/// A record to analyse.
+#[derive(Debug, Clone)]
+pub struct Record {
+    /// Sample rate, Hz.
+    pub sample_rate_hz: f32,
+    /// Acceleration.
+    pub accel: Accel,
+    /// Tach edge times in seconds from the first sample, if any.
+    pub edges_s: Option<Vec<f64>>,
+}
+
+/// A report plus what the host shows beside it.
+#[derive(Debug, Clone)]
+pub struct Analysis {
+    /// The node's report.
+    pub report: Report,
+    /// The averaged envelope order spectrum (peak amplitude per bin).
+    pub spectrum: Vec<f32>,
+    /// Orders per spectrum bin.
+    pub orders_per_bin: f32,
+    /// Speed per revolution, rpm.
+    pub speed_series: Vec<f32>,
+    /// Input samples the node consumed before its record was complete.
+    pub samples_used: u64,
+}
+
+/// Converts edge times to capture-timer ticks (wrapping u32), as the node's
+/// capture timer would have stamped them.
+pub fn edges_to_ticks(edges_s: &[f64], tick_hz: u32, tick_at_sample0: u32) -> Vec<u32> {
+    edges_s
+        .iter()
+        .map(|&t| {
+            let ticks = (t * f64::from(tick_hz)).round();
+            // Wrap like the 32-bit hardware counter.
+            let wrapped = ticks.rem_euclid(4_294_967_296.0);
+            #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
+            let w = wrapped as u32;
+            w.wrapping_add(tick_at_sample0)
+        })
+        .collect()
+}
+
+/// Finds rising edges in a digitised tach channel: hysteresis at 30 % and
+/// 70 % of the channel's range, sub-sample interpolation. Times in seconds.
+pub fn edges_from_channel(tach: &[f32], sample_rate_hz: f32) -> Result<Vec<f64>, String> {
+    let finite = tach.iter().copied().filter(|x| x.is_finite());
+    let lo = finite.clone().fold(f32::INFINITY, f32::min);
+    let hi = finite.fold(f32::NEG_INFINITY, f32::max);
+    if !(lo.is_finite() && hi.is_finite()) || hi - lo <= 0.0 {
+        return Ok(Vec::new()); // a flat channel has no edges: the core flags it
+    }
+    let span = hi - lo;
+    let mut det = EdgeDetector::new(lo + 0.3 * span, lo + 0.7 * span)
+        .map_err(|e| format!("tach channel: {e}"))?;
+    let mut out = Vec::new();
+    det.process(tach, |t| out.push(t / f64::from(sample_rate_hz)));
+    Ok(out)
+}
+
+/// Runs the node pipeline over a record.
+pub fn run(point: &PointConfig, rec: &Record) -> Result<Analysis, CliError> {
+    let mut point = point.clone();
+    point.sample_rate_hz = rec.sample_rate_hz;
+    let mut p = Box::new(NodePipeline::new(&point).map_err(|e| CliError::input("point", e))?);
+    let ticks = match (&point.speed, &rec.edges_s) {
+        (
+            SpeedInput::Tach {
+                tick_hz,
+                tick_at_sample0,
+                ..
+            },
+            Some(e),
+        ) => Some((edges_to_ticks(e, *tick_hz, *tick_at_sample0), e.as_slice())),
+        _ => None,
+    };
+    let fs = f64::from(rec.sample_rate_hz);
+    let mut next_edge = 0usize;
+    let n = rec.accel.len();
+    let mut start = 0usize;
+    while start < n && !p.complete() {
+        let end = (start + ADC_BLOCK).min(n);
+        if let Some((ticks, times)) = &ticks {
+            // Edges that occurred before the end of this block.
+            #[allow(clippy::cast_precision_loss)]
+            let block_end_s = end as f64 / fs;
+            while let (Some(&t), Some(&tick)) = (times.get(next_edge), ticks.get(next_edge)) {
+                if t >= block_end_s {
+                    break;
+                }
+                p.push_edge(tick);
+                next_edge += 1;
+            }
+        }
+        match &rec.accel {
+            Accel::Counts(v) => p.push_i16(v.get(start..end).unwrap_or(&[])),
+            Accel::G(v) => p.push_f32(v.get(start..end).unwrap_or(&[])),
+        }
+        start = end;
+    }
+    let report = p.finish();
+    Ok(Analysis {
+        spectrum: p.spectrum().to_vec(),
+        orders_per_bin: p.orders_per_bin(),
+        speed_series: p.speed_series().to_vec(),
+        samples_used: p.samples(),
+        report,
+    })
+}

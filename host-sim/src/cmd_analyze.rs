@@ -1,0 +1,147 @@
+//! `envord analyze`: run the node's core on a recording and print its report.
+
+use std::path::{Path, PathBuf};
+
+use clap::Args;
+use dsp_core::config::{PointConfig, SpeedInput};
+
+use crate::analysis::{edges_from_channel, run, Accel, Analysis, Record};
+use crate::edges_csv::read_edges_csv;
+use crate::error::CliError;
+use crate::report_json::{to_json, to_table};
+use crate::wav::{read_wav, ReadOptions, SampleFormat};
+
+/// Arguments of `envord analyze`.
+#[derive(Debug, Args)]
+pub struct AnalyzeArgs {
+    /// Recording (WAV: int16, int24, int32 or float32; one or more channels).
+    pub recording: PathBuf,
+    /// Measuring point (TOML point file).
+    #[arg(long)]
+    pub point: PathBuf,
+    /// Known constant speed of the tach shaft, rpm (no tach needed).
+    #[arg(long)]
+    pub rpm: Option<f32>,
+    /// Channel holding the acceleration (0-based).
+    #[arg(long, default_value_t = 0)]
+    pub channel: usize,
+    /// Channel holding a digitised tach pulse (0-based).
+    #[arg(long, conflicts_with = "tach")]
+    pub tach_channel: Option<usize>,
+    /// Tach edges as CSV (`time_s` or `sample` column).
+    #[arg(long)]
+    pub tach: Option<PathBuf>,
+    /// Print the report as JSON instead of a table.
+    #[arg(long)]
+    pub json: bool,
+    /// Write a plot of the envelope order spectrum (SVG, or PNG by extension).
+    #[arg(long)]
+    pub plot: Option<PathBuf>,
+}
+
+/// Loads a recording as the node would see it.
+pub fn load_record(
+    path: &Path,
+    channel: usize,
+    tach_channel: Option<usize>,
+    tach_csv: Option<&Path>,
+) -> Result<Record, CliError> {
+    let wav =
+        read_wav(path, ReadOptions::strict()).map_err(|e| CliError::input(path.display(), e))?;
+    let n_ch = wav.channels.len();
+    let pick = |c: usize, what: &str| {
+        if c >= n_ch {
+            Err(CliError::input(
+                path.display(),
+                format!("{what} {c} does not exist: the file has {n_ch} channel(s)"),
+            ))
+        } else {
+            Ok(c)
+        }
+    };
+    let ch = pick(channel, "--channel")?;
+    let fs = wav.info.sample_rate;
+    #[allow(clippy::cast_precision_loss)]
+    let fs_f = fs as f32;
+    let accel = match (&wav.raw_i16, wav.info.format) {
+        (Some(raw), SampleFormat::Int16) => Accel::Counts(raw.get(ch).cloned().unwrap_or_default()),
+        _ => Accel::G(wav.channels.get(ch).cloned().unwrap_or_default()),
+    };
+    if accel.is_empty() {
+        return Err(CliError::input(
+            path.display(),
+            "the recording has no samples",
+        ));
+    }
+    let edges_s = match (tach_channel, tach_csv) {
+        (Some(t), _) => {
+            let t = pick(t, "--tach-channel")?;
+            let tach = wav.channels.get(t).map_or(&[][..], Vec::as_slice);
+            Some(edges_from_channel(tach, fs_f).map_err(|e| CliError::input(path.display(), e))?)
+        }
+        (None, Some(csv)) => {
+            let e = read_edges_csv(csv).map_err(|e| CliError::input(csv.display(), e))?;
+            Some(e.to_seconds(f64::from(fs)))
+        }
+        (None, None) => None,
+    };
+    Ok(Record {
+        sample_rate_hz: fs_f,
+        accel,
+        edges_s,
+    })
+}
+
+/// Applies `--rpm` to a point, or checks that a tach is given when the point expects one.
+pub fn speed_for(
+    mut point: PointConfig,
+    rpm: Option<f32>,
+    has_tach: bool,
+    source: &Path,
+) -> Result<PointConfig, CliError> {
+    if let Some(rpm) = rpm {
+        if !(rpm.is_finite() && rpm > 0.0) {
+            return Err(CliError::input("--rpm", "must be a positive number"));
+        }
+        point.speed = SpeedInput::Constant { rpm };
+        point.min_rpm = point.min_rpm.min(rpm);
+        point.max_rpm = point.max_rpm.max(rpm);
+    } else if matches!(point.speed, SpeedInput::Tach { .. }) && !has_tach {
+        return Err(CliError::input(
+            source.display(),
+            "the point expects a tach: give --tach-channel N, --tach edges.csv or --rpm R",
+        ));
+    }
+    Ok(point)
+}
+
+/// Loads the point and recording of `args` and analyses them.
+pub fn analyze(args: &AnalyzeArgs) -> Result<Analysis, CliError> {
+    let point = crate::point::load(&args.point)?;
+    let rec = load_record(
+        &args.recording,
+        args.channel,
+        args.tach_channel,
+        args.tach.as_deref(),
+    )?;
+    let point = speed_for(point, args.rpm, rec.edges_s.is_some(), &args.recording)?;
+    run(&point, &rec)
+}
+
+/// Runs `envord analyze`.
+pub fn run_cmd(args: &AnalyzeArgs) -> Result<(), CliError> {
+    let a = analyze(args)?;
+    if let Some(plot) = &args.plot {
+        crate::plot::order_spectrum(plot, &a, &args.recording.display().to_string())?;
+    }
+    if args.json {
+        let v = to_json(&a.report, Some(&args.recording.display().to_string()));
+        println!(
+            "{}",
+            serde_json::to_string_pretty(&v).map_err(|e| CliError::Other(e.to_string()))?
+        );
+    } else {
+        print!("{}", to_table(&a.report));
+    }
+    Ok(())
+}

@@ -1,0 +1,188 @@
+//! `envord batch`: many recordings with one measuring point. Writes one JSON
+//! report per file, a summary table (Markdown and CSV) and a plot of the
+//! scores per file. A file that cannot be analysed is listed in the summary
+//! with its reason, and the command then exits 2; it never disappears silently.
+
+use std::fmt::Write as _;
+use std::path::PathBuf;
+
+use clap::Args;
+use dsp_core::kinematics::DefectKind;
+
+use crate::cmd_analyze::{load_record, speed_for};
+use crate::error::CliError;
+use crate::plot::{scores, ScoreRow};
+use crate::report_json::to_json;
+
+/// Arguments of `envord batch`.
+#[derive(Debug, Args)]
+pub struct BatchArgs {
+    /// Folder of WAV recordings.
+    pub folder: PathBuf,
+    /// Measuring point (TOML point file).
+    #[arg(long)]
+    pub point: PathBuf,
+    /// Known constant speed of the tach shaft, rpm.
+    #[arg(long)]
+    pub rpm: Option<f32>,
+    /// Acceleration channel (0-based).
+    #[arg(long, default_value_t = 0)]
+    pub channel: usize,
+    /// Digitised tach channel (0-based).
+    #[arg(long)]
+    pub tach_channel: Option<usize>,
+    /// Output folder (default: `envord-batch` in the current folder).
+    #[arg(long, default_value = "envord-batch")]
+    pub out: PathBuf,
+}
+
+struct Row {
+    file: String,
+    result: Result<(f32, String, [f32; 4], Vec<String>), String>,
+}
+
+/// Runs `envord batch`.
+pub fn run(args: &BatchArgs) -> Result<(), CliError> {
+    let point = crate::point::load(&args.point)?;
+    let mut files: Vec<PathBuf> = std::fs::read_dir(&args.folder)
+        .map_err(|e| CliError::input(args.folder.display(), format!("cannot list: {e}")))?
+        .flatten()
+        .map(|e| e.path())
+        .filter(|p| p.extension().is_some_and(|x| x.eq_ignore_ascii_case("wav")))
+        .collect();
+    files.sort();
+    if files.is_empty() {
+        return Err(CliError::input(
+            args.folder.display(),
+            "no .wav files in the folder",
+        ));
+    }
+    std::fs::create_dir_all(&args.out)
+        .map_err(|e| CliError::Other(format!("{}: {e}", args.out.display())))?;
+
+    let bar = indicatif::ProgressBar::new(u64::try_from(files.len()).unwrap_or(u64::MAX));
+    bar.set_style(
+        indicatif::ProgressStyle::with_template("{bar:40} {pos}/{len} {msg}")
+            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+    );
+    let mut rows = Vec::new();
+    for f in &files {
+        let name = f
+            .file_name()
+            .and_then(|n| n.to_str())
+            .unwrap_or("?")
+            .to_string();
+        bar.set_message(name.clone());
+        let result = (|| -> Result<_, CliError> {
+            let rec = load_record(f, args.channel, args.tach_channel, None)?;
+            let p = speed_for(point.clone(), args.rpm, rec.edges_s.is_some(), f)?;
+            let a = crate::analysis::run(&p, &rec)?;
+            let json = to_json(&a.report, Some(&name));
+            let out = args.out.join(format!("{name}.json"));
+            std::fs::write(
+                &out,
+                serde_json::to_string_pretty(&json).map_err(|e| CliError::Other(e.to_string()))?,
+            )
+            .map_err(|e| CliError::Other(format!("{}: {e}", out.display())))?;
+            let mut best = [0.0f32; 4];
+            let mut detected = Vec::new();
+            for b in &a.report.bearings {
+                for k in DefectKind::ALL {
+                    if let Some(d) = b.diagnosis.as_ref().and_then(|d| d.get(k)) {
+                        if let Some(slot) = best.get_mut(k.index()) {
+                            *slot = slot.max(d.score_db);
+                        }
+                        if d.detected {
+                            detected.push(format!("{} {}", b.name.as_str(), k.name()));
+                        }
+                    }
+                }
+            }
+            Ok((
+                a.report.speed.mean_rpm,
+                a.report.flags.to_string(),
+                best,
+                detected,
+            ))
+        })();
+        rows.push(Row {
+            file: name,
+            result: result.map_err(|e| e.to_string()),
+        });
+        bar.inc(1);
+    }
+    bar.finish_and_clear();
+
+    let mut md = String::from(
+        "| file | speed rpm | flags | BPFO dB | BPFI dB | FTF dB | BSF dB | detected |\n|---|---|---|---|---|---|---|---|\n",
+    );
+    let mut csv =
+        String::from("file,speed_rpm,flags,bpfo_db,bpfi_db,ftf_db,bsf_db,detected,error\n");
+    let mut plot_rows = Vec::new();
+    let mut failed = 0usize;
+    for r in &rows {
+        match &r.result {
+            Ok((rpm, flags, s, det)) => {
+                let _ = writeln!(
+                    md,
+                    "| {} | {rpm:.1} | {flags} | {:.1} | {:.1} | {:.1} | {:.1} | {} |",
+                    r.file,
+                    s[0],
+                    s[1],
+                    s[2],
+                    s[3],
+                    if det.is_empty() {
+                        "-".into()
+                    } else {
+                        det.join(", ")
+                    }
+                );
+                let _ = writeln!(
+                    csv,
+                    "{},{rpm:.3},{flags},{:.2},{:.2},{:.2},{:.2},{},",
+                    r.file,
+                    s[0],
+                    s[1],
+                    s[2],
+                    s[3],
+                    det.join(";")
+                );
+                plot_rows.push(ScoreRow {
+                    label: r.file.clone(),
+                    scores: *s,
+                });
+            }
+            Err(e) => {
+                failed += 1;
+                let _ = writeln!(md, "| {} | - | error: {e} | | | | | |", r.file);
+                let _ = writeln!(csv, "{},,,,,,,,\"{}\"", r.file, e.replace('"', "'"));
+            }
+        }
+    }
+    let write = |name: &str, text: &str| {
+        let p = args.out.join(name);
+        std::fs::write(&p, text).map_err(|e| CliError::Other(format!("{}: {e}", p.display())))
+    };
+    write("summary.md", &md)?;
+    write("summary.csv", &csv)?;
+    if !plot_rows.is_empty() {
+        scores(
+            &args.out.join("scores.svg"),
+            &plot_rows,
+            "Highest defect score per file",
+        )?;
+    }
+    print!("{md}");
+    println!(
+        "\n{} file(s), {} analysed, {failed} failed; reports in {}",
+        rows.len(),
+        rows.len() - failed,
+        args.out.display()
+    );
+    if failed > 0 {
+        return Err(CliError::Input(format!(
+            "{failed} file(s) could not be analysed (see summary.md)"
+        )));
+    }
+    Ok(())
+}

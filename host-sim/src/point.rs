@@ -1,0 +1,491 @@
+//! The point file: a measuring point described in TOML (a contract outside
+//! scripts rely on; extend it, do not break it).
+//!
+//! See `host-sim/examples/point.toml` for a commented example. Every key is
+//! checked: unknown keys, wrong types and impossible values are refused with
+//! a message naming the file and the key (or line) at fault.
+
+use std::path::Path;
+
+use dsp_core::config::{
+    name_from, Bearing, BearingKinematics, DefectSearchConfig, MachineGroup, PointConfig,
+    Rectifier, Shaft, SpeedInput, Support, Window, MAX_BEARINGS, MAX_SHAFTS, NAME_LEN,
+};
+use serde::Deserialize;
+
+use crate::error::CliError;
+
+const MM_PER_IN: f32 = 25.4;
+
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct PointFile {
+    #[serde(default)]
+    sensor: SensorSection,
+    #[serde(default)]
+    envelope: EnvelopeSection,
+    #[serde(default)]
+    speed: SpeedSection,
+    #[serde(default)]
+    spectrum: SpectrumSection,
+    #[serde(default)]
+    search: SearchSection,
+    #[serde(default)]
+    iso: IsoSection,
+    #[serde(default)]
+    shaft: Vec<ShaftEntry>,
+    #[serde(default)]
+    bearing: Vec<BearingEntry>,
+}
+
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct SensorSection {
+    sample_rate_hz: Option<f32>,
+    counts_to_g: Option<f32>,
+    adc_full_scale: Option<i16>,
+}
+
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct EnvelopeSection {
+    band_hz: Option<[f32; 2]>,
+    poles: Option<u8>,
+    rectifier: Option<String>,
+}
+
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct SpeedSection {
+    source: Option<String>,
+    rpm: Option<f32>,
+    pulses_per_rev: Option<u8>,
+    tick_hz: Option<u32>,
+    min_rpm: Option<f32>,
+    max_rpm: Option<f32>,
+    max_change_pct: Option<f32>,
+}
+
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct SpectrumSection {
+    samples_per_rev: Option<u16>,
+    revolutions: Option<u16>,
+    window: Option<String>,
+}
+
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct SearchSection {
+    harmonics: Option<u8>,
+    slip_tolerance: Option<f32>,
+    prominence_db: Option<f32>,
+    min_harmonics: Option<u8>,
+    sideband_db: Option<f32>,
+}
+
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct IsoSection {
+    group: Option<u8>,
+    support: Option<String>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct ShaftEntry {
+    name: String,
+    ratio: Option<f32>,
+    /// Name of the shaft that drives this one through a gear mesh.
+    driven_by: Option<String>,
+    /// `[driver teeth, driven teeth]` of that mesh.
+    teeth: Option<[u16; 2]>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct BearingEntry {
+    name: String,
+    shaft: Option<String>,
+    rollers: Option<u16>,
+    roller_diameter_mm: Option<f32>,
+    roller_diameter_in: Option<f32>,
+    pitch_diameter_mm: Option<f32>,
+    pitch_diameter_in: Option<f32>,
+    contact_angle_deg: Option<f32>,
+    bpfo_x: Option<f32>,
+    bpfi_x: Option<f32>,
+    ftf_x: Option<f32>,
+    bsf_x: Option<f32>,
+}
+
+/// Reads and validates a point file.
+pub fn load(path: &Path) -> Result<PointConfig, CliError> {
+    let text = std::fs::read_to_string(path)
+        .map_err(|e| CliError::input(path.display(), format!("cannot read point file: {e}")))?;
+    parse(&text).map_err(|m| CliError::input(path.display(), m))
+}
+
+/// Parses and validates point-file text; the error names the key or line.
+pub fn parse(text: &str) -> Result<PointConfig, String> {
+    let file: PointFile = toml::from_str(text).map_err(|e| e.to_string())?;
+    let mut p = PointConfig::default();
+
+    if let Some(v) = file.sensor.sample_rate_hz {
+        p.sample_rate_hz = v;
+    }
+    if let Some(v) = file.sensor.counts_to_g {
+        p.counts_to_g = v;
+    }
+    if let Some(v) = file.sensor.adc_full_scale {
+        p.adc_full_scale = v;
+    }
+
+    p.band_hz = file.envelope.band_hz;
+    if let Some(v) = file.envelope.poles {
+        p.poles = v;
+    }
+    if let Some(r) = &file.envelope.rectifier {
+        p.rectifier = match r.as_str() {
+            "abs" => Rectifier::Abs,
+            "square" => Rectifier::Square,
+            other => {
+                return Err(format!(
+                    "envelope.rectifier: `{other}` is not `abs` or `square`"
+                ))
+            }
+        };
+    }
+
+    let s = &file.speed;
+    if let Some(v) = s.min_rpm {
+        p.min_rpm = v;
+    }
+    if let Some(v) = s.max_rpm {
+        p.max_rpm = v;
+    }
+    if let Some(v) = s.max_change_pct {
+        p.max_speed_change_pct = v;
+    }
+    let source = s
+        .source
+        .as_deref()
+        .unwrap_or(if s.rpm.is_some() { "constant" } else { "tach" });
+    p.speed = match source {
+        "tach" => SpeedInput::Tach {
+            pulses_per_rev: s.pulses_per_rev.unwrap_or(1),
+            tick_hz: s.tick_hz.unwrap_or(1_000_000),
+            tick_at_sample0: 0,
+        },
+        "constant" => SpeedInput::Constant {
+            rpm: s
+                .rpm
+                .ok_or("speed.rpm: required when speed.source = \"constant\"")?,
+        },
+        other => {
+            return Err(format!(
+                "speed.source: `{other}` is not `tach` or `constant`"
+            ))
+        }
+    };
+
+    if let Some(v) = file.spectrum.samples_per_rev {
+        p.samples_per_rev = v;
+    }
+    if let Some(v) = file.spectrum.revolutions {
+        p.revolutions = v;
+    }
+    if let Some(w) = &file.spectrum.window {
+        p.window = match w.as_str() {
+            "hann" => Window::Hann,
+            "flattop" => Window::FlatTop,
+            other => {
+                return Err(format!(
+                    "spectrum.window: `{other}` is not `hann` or `flattop`"
+                ))
+            }
+        };
+    }
+
+    let mut search = DefectSearchConfig::default();
+    if let Some(v) = file.search.harmonics {
+        search.harmonics = v;
+        search.anchor_harmonics = search.anchor_harmonics.min(v);
+        search.min_harmonics = search.min_harmonics.min(v);
+    }
+    if let Some(v) = file.search.slip_tolerance {
+        search.slip_tolerance = v;
+    }
+    if let Some(v) = file.search.prominence_db {
+        search.prominence_threshold_db = v;
+    }
+    if let Some(v) = file.search.min_harmonics {
+        search.min_harmonics = v;
+    }
+    if let Some(v) = file.search.sideband_db {
+        search.sideband_threshold_db = v;
+    }
+    p.search = search;
+
+    if let Some(g) = file.iso.group {
+        p.machine_group = match g {
+            1 => MachineGroup::Large,
+            2 => MachineGroup::Medium,
+            other => return Err(format!("iso.group: {other} is not 1 or 2")),
+        };
+    }
+    if let Some(sup) = &file.iso.support {
+        p.support = match sup.as_str() {
+            "rigid" => Support::Rigid,
+            "flexible" => Support::Flexible,
+            other => {
+                return Err(format!(
+                    "iso.support: `{other}` is not `rigid` or `flexible`"
+                ))
+            }
+        };
+    }
+
+    shafts(&file.shaft, &mut p)?;
+    bearings(&file.bearing, &mut p)?;
+
+    p.validate()
+        .map_err(|e| format!("{e} ({})", config_key(e)))?;
+    Ok(p)
+}
+
+fn check_name(what: &str, name: &str) -> Result<(), String> {
+    if name.is_empty() || name.len() > NAME_LEN {
+        return Err(format!(
+            "{what}.name `{name}`: must be 1 to {NAME_LEN} bytes"
+        ));
+    }
+    Ok(())
+}
+
+fn shafts(entries: &[ShaftEntry], p: &mut PointConfig) -> Result<(), String> {
+    if entries.is_empty() {
+        return Ok(()); // the default single tach shaft, ratio 1
+    }
+    if entries.len() > MAX_SHAFTS {
+        return Err(format!(
+            "shaft: {} shafts given, at most {MAX_SHAFTS} fit",
+            entries.len()
+        ));
+    }
+    p.shafts.clear();
+    for (i, e) in entries.iter().enumerate() {
+        check_name("shaft", &e.name)?;
+        let ratio = match (e.ratio, &e.driven_by, e.teeth) {
+            (Some(r), None, None) => r,
+            (None, Some(by), Some([z_driver, z_driven])) => {
+                let driver = p
+                    .shafts
+                    .iter()
+                    .find(|s| s.name.as_str() == by)
+                    .ok_or_else(|| {
+                        format!(
+                            "shaft `{}`.driven_by: `{by}` is not a shaft listed before it",
+                            e.name
+                        )
+                    })?;
+                if z_driver == 0 || z_driven == 0 {
+                    return Err(format!(
+                        "shaft `{}`.teeth: tooth counts must be > 0",
+                        e.name
+                    ));
+                }
+                driver.ratio * f32::from(z_driver) / f32::from(z_driven)
+            }
+            (None, None, None) if i == 0 => 1.0,
+            _ => {
+                return Err(format!(
+                    "shaft `{}`: give either `ratio`, or `driven_by` with `teeth`",
+                    e.name
+                ))
+            }
+        };
+        if i == 0 && (ratio - 1.0).abs() > f32::EPSILON {
+            return Err(format!(
+                "shaft `{}`: the first shaft is the tach shaft and has ratio 1",
+                e.name
+            ));
+        }
+        p.shafts
+            .push(Shaft {
+                name: name_from(&e.name),
+                ratio,
+            })
+            .map_err(|_| "shaft: capacity exceeded".to_string())?;
+    }
+    Ok(())
+}
+
+fn length(
+    bearing: &str,
+    key: &str,
+    mm: Option<f32>,
+    inch: Option<f32>,
+) -> Result<Option<f32>, String> {
+    match (mm, inch) {
+        (Some(_), Some(_)) => Err(format!(
+            "bearing `{bearing}`: give {key}_mm or {key}_in, not both"
+        )),
+        (Some(v), None) => Ok(Some(v)),
+        (None, Some(v)) => Ok(Some(v * MM_PER_IN)),
+        (None, None) => Ok(None),
+    }
+}
+
+fn bearings(entries: &[BearingEntry], p: &mut PointConfig) -> Result<(), String> {
+    if entries.len() > MAX_BEARINGS {
+        return Err(format!(
+            "bearing: {} bearings given, at most {MAX_BEARINGS} fit one measuring point",
+            entries.len()
+        ));
+    }
+    for e in entries {
+        check_name("bearing", &e.name)?;
+        let shaft = match &e.shaft {
+            None => 0,
+            Some(s) => p
+                .shafts
+                .iter()
+                .position(|x| x.name.as_str() == s)
+                .ok_or_else(|| format!("bearing `{}`.shaft: no shaft named `{s}`", e.name))?,
+        };
+        let d = length(
+            &e.name,
+            "roller_diameter",
+            e.roller_diameter_mm,
+            e.roller_diameter_in,
+        )?;
+        let pd = length(
+            &e.name,
+            "pitch_diameter",
+            e.pitch_diameter_mm,
+            e.pitch_diameter_in,
+        )?;
+        let geometry = e.rollers.is_some() || d.is_some() || pd.is_some();
+        let multiples = [e.bpfo_x, e.bpfi_x, e.ftf_x, e.bsf_x];
+        let kinematics = match (geometry, multiples) {
+            (true, [None, None, None, None]) => BearingKinematics::Geometry {
+                rollers: e
+                    .rollers
+                    .ok_or_else(|| format!("bearing `{}`.rollers: missing", e.name))?,
+                roller_diameter: d.ok_or_else(|| {
+                    format!("bearing `{}`: roller_diameter_mm or _in missing", e.name)
+                })?,
+                pitch_diameter: pd.ok_or_else(|| {
+                    format!("bearing `{}`: pitch_diameter_mm or _in missing", e.name)
+                })?,
+                contact_angle_deg: e.contact_angle_deg.unwrap_or(0.0),
+            },
+            (false, [Some(bpfo_x), Some(bpfi_x), Some(ftf_x), Some(bsf_x)]) => {
+                BearingKinematics::Multiples {
+                    bpfo_x,
+                    bpfi_x,
+                    ftf_x,
+                    bsf_x,
+                }
+            }
+            _ => {
+                return Err(format!(
+                    "bearing `{}`: give either geometry (rollers, roller_diameter_*, \
+                     pitch_diameter_*, contact_angle_deg) or all of bpfo_x, bpfi_x, ftf_x, bsf_x",
+                    e.name
+                ))
+            }
+        };
+        p.bearings
+            .push(Bearing {
+                name: name_from(&e.name),
+                shaft: u8::try_from(shaft).unwrap_or(u8::MAX),
+                kinematics,
+            })
+            .map_err(|_| "bearing: capacity exceeded".to_string())?;
+    }
+    Ok(())
+}
+
+/// The point-file key a configuration error refers to.
+fn config_key(e: dsp_core::config::ConfigError) -> &'static str {
+    use dsp_core::config::ConfigError as E;
+    match e {
+        E::SampleRate => "sensor.sample_rate_hz",
+        E::Scale => "sensor.counts_to_g",
+        E::FullScale => "sensor.adc_full_scale",
+        E::Band => "envelope.band_hz",
+        E::Poles => "envelope.poles",
+        E::Tach => "speed.pulses_per_rev / speed.tick_hz",
+        E::ConstantSpeed => "speed.rpm",
+        E::SpeedRange => "speed.min_rpm / speed.max_rpm",
+        E::SpeedChange => "speed.max_change_pct",
+        E::SamplesPerRev => "spectrum.samples_per_rev",
+        E::Revolutions => "spectrum.revolutions",
+        E::ShaftRatio => "shaft.ratio",
+        E::DuplicateName => "shaft.name / bearing.name",
+        E::BearingShaft => "bearing.shaft",
+        E::BearingGeometry => "bearing geometry",
+        E::BearingMultiples => "bearing.*_x",
+        E::Search => "search",
+        E::OrderRange => "spectrum.samples_per_rev",
+        _ => "point",
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn example_point_file_parses() {
+        let text = include_str!("../examples/point.toml");
+        let p = parse(text).unwrap();
+        assert_eq!(p.bearings.len(), 3);
+        assert_eq!(p.shafts.len(), 3);
+        // intermediate shaft: 1 x 19/71 (tooth counts of the example)
+        assert!((p.shafts[1].ratio - 19.0 / 71.0).abs() < 1e-6);
+    }
+
+    #[test]
+    fn bad_keys_are_named() {
+        let cases = [
+            ("[envelope]\nband_hz = [5000.0]\n", "band_hz"),
+            ("[envelope]\npoles = 5\n", "envelope.poles"),
+            ("[speed]\nsource = \"laser\"\n", "speed.source"),
+            ("[sensr]\n", "sensr"),
+            (
+                "[[bearing]]\nname = \"a\"\nrollers = 0\nroller_diameter_mm = 8\npitch_diameter_mm = 40\n",
+                "bearing geometry",
+            ),
+            (
+                "[[bearing]]\nname = \"a\"\nrollers = 9\nroller_diameter_mm = 8\n",
+                "pitch_diameter",
+            ),
+            (
+                "[[bearing]]\nname = \"a\"\nbpfo_x = 3.5\n",
+                "either geometry",
+            ),
+            ("[envelope]\nband_hz = [nan, 4000.0]\n", "envelope.band_hz"),
+        ];
+        for (text, key) in cases {
+            let err = parse(text).unwrap_err();
+            assert!(
+                err.contains(key),
+                "{text:?} gave {err:?}, want mention of {key}"
+            );
+        }
+    }
+
+    #[test]
+    fn too_many_bearings_refused() {
+        let mut text = String::new();
+        for i in 0..5 {
+            text.push_str(&format!(
+                "[[bearing]]\nname = \"b{i}\"\nbpfo_x = 3.0\nbpfi_x = 5.0\nftf_x = 0.4\nbsf_x = 2.0\n"
+            ));
+        }
+        assert!(parse(&text).unwrap_err().contains("at most 4"));
+    }
+}

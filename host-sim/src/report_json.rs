@@ -1,0 +1,207 @@
+//! The JSON form of a report (a contract outside scripts rely on: extend it,
+//! do not break it).
+//!
+//! Top level: `speed_rpm` (mean tach-shaft speed) and `bearings`, a list of
+//! `{ "name", "defects": [ { "kind": "BPFO" | "BPFI" | "FTF" | "BSF",
+//! "order", "detected", "score_db", ... } ] }`. A rolling-element defect,
+//! searched at 2 x BSF, is reported under kind "BSF" with `order` the watched
+//! line (2 x BSF) and `bsf_order` the single-sided ball spin order. Everything
+//! else (`flags`, `overall`, `speed`, per-harmonic detail) is added beside it.
+
+use dsp_core::defects::DefectResult;
+use dsp_core::kinematics::DefectKind;
+use dsp_core::report::Report;
+use serde_json::{json, Value};
+
+/// Version of this JSON layout (bumped only for incompatible changes).
+pub const JSON_VERSION: u32 = 1;
+
+fn finite(x: f32) -> Value {
+    if x.is_finite() {
+        json!(f64::from(x))
+    } else {
+        Value::Null
+    }
+}
+
+fn defect_json(kind: DefectKind, line_order: f32, r: Option<&DefectResult>) -> Value {
+    let mut v = json!({
+        "kind": kind.name(),
+        "order": finite(line_order),
+        "detected": r.is_some_and(|r| r.detected),
+        "score_db": r.map_or(json!(0.0), |r| finite(r.score_db)),
+        "searched": r.is_some(),
+    });
+    if kind == DefectKind::Bsf {
+        v["bsf_order"] = finite(0.5 * line_order);
+    }
+    if let Some(r) = r {
+        v["amplitude"] = finite(r.fundamental_amplitude);
+        v["harmonics_found"] = json!(r.harmonics_found);
+        v["harmonics_searched"] = json!(r.harmonics_searched);
+        v["sideband_db"] = r.sideband_db.map_or(Value::Null, finite);
+        v["harmonics"] = Value::Array(
+            r.harmonics
+                .iter()
+                .map(|h| {
+                    json!({
+                        "h": h.harmonic,
+                        "expected_order": finite(h.expected_order),
+                        "found_order": finite(h.found_order),
+                        "amplitude": finite(h.amplitude),
+                        "floor": finite(h.floor),
+                        "prominence_db": finite(h.prominence_db),
+                        "searched": h.searched,
+                        "found": h.found,
+                        "counted": h.counted,
+                        "shared_with": h.shared_with.map(|k| k.name()),
+                    })
+                })
+                .collect(),
+        );
+    }
+    v
+}
+
+/// The report as JSON; `file` names the recording when there is one.
+pub fn to_json(report: &Report, file: Option<&str>) -> Value {
+    let s = &report.speed;
+    let o = &report.overall;
+    let bearings: Vec<Value> = report
+        .bearings
+        .iter()
+        .map(|b| {
+            let defects: Vec<Value> = DefectKind::ALL
+                .iter()
+                .map(|&k| {
+                    let r = b.diagnosis.as_ref().and_then(|d| d.get(k));
+                    defect_json(k, b.orders.line(k), r)
+                })
+                .collect();
+            json!({
+                "name": b.name.as_str(),
+                "shaft_order": finite(b.orders.shaft_order()),
+                "defects": defects,
+            })
+        })
+        .collect();
+    json!({
+        "envord_json": JSON_VERSION,
+        "file": file,
+        "speed_rpm": finite(s.mean_rpm),
+        "speed": {
+            "mean_rpm": finite(s.mean_rpm),
+            "min_rpm": finite(s.min_rpm),
+            "max_rpm": finite(s.max_rpm),
+            "revolutions": s.revs,
+            "good_revolutions": s.good_revs,
+            "missing_pulses": s.missing_pulses,
+            "extra_pulses": s.extra_pulses,
+            "constant_speed": s.constant_speed,
+        },
+        "flags": report.flags.names().collect::<Vec<_>>(),
+        "analysed": report.analysed(),
+        "overall": {
+            "samples": o.count,
+            "mean_g": finite(o.mean),
+            "rms_g": finite(o.rms_ac),
+            "peak_g": finite(o.peak),
+            "peak_to_peak_g": finite(o.peak_to_peak),
+            "crest_factor": finite(o.crest_factor),
+            "kurtosis": finite(o.kurtosis),
+            "clipped_samples": o.clipped,
+            "non_finite_samples": o.non_finite,
+            "velocity_rms_mm_s": finite(o.velocity_rms_mm_s),
+            "iso20816_zone": o.zone.map(|z| format!("{z:?}")),
+        },
+        "envelope": {
+            "band_hz": [finite(report.band_hz[0]), finite(report.band_hz[1])],
+            "rectifier": match report.rectifier {
+                dsp_core::rectify::Rectifier::Abs => "abs",
+                dsp_core::rectify::Rectifier::Square => "square",
+            },
+            "amplitude_unit": match report.rectifier {
+                dsp_core::rectify::Rectifier::Abs => "g",
+                dsp_core::rectify::Rectifier::Square => "g^2",
+            },
+            "decimation": report.decimation,
+            "samples_per_rev": report.samples_per_rev,
+            "segments": report.segments,
+            "revolutions": report.revolutions,
+            "orders_per_bin": finite(report.orders_per_bin),
+            "max_search_order": finite(report.max_search_order),
+        },
+        "bearings": bearings,
+    })
+}
+
+/// A short human table of a report.
+pub fn to_table(report: &Report) -> String {
+    use std::fmt::Write;
+    let mut out = String::new();
+    let s = &report.speed;
+    let o = &report.overall;
+    let _ = writeln!(
+        out,
+        "speed      {:.1} rpm (min {:.1}, max {:.1}) over {} revolutions{}",
+        s.mean_rpm,
+        s.min_rpm,
+        s.max_rpm,
+        s.revs,
+        if s.constant_speed { " [constant]" } else { "" }
+    );
+    let _ = writeln!(out, "quality    {}", report.flags);
+    let _ = writeln!(
+        out,
+        "overall    rms {:.3} g, peak {:.3} g, crest {:.2}, kurtosis {:.2}, velocity {:.2} mm/s{}",
+        o.rms_ac,
+        o.peak,
+        o.crest_factor,
+        o.kurtosis,
+        o.velocity_rms_mm_s,
+        o.zone
+            .map(|z| format!(" (ISO 20816 zone {z:?})"))
+            .unwrap_or_default()
+    );
+    let _ = writeln!(
+        out,
+        "envelope   {:.0}-{:.0} Hz, decimation {}, {} segments, {:.4} orders/bin",
+        report.band_hz[0],
+        report.band_hz[1],
+        report.decimation,
+        report.segments,
+        report.orders_per_bin
+    );
+    if !report.analysed() {
+        let _ = writeln!(out, "defects    not evaluated: record not analysable");
+    }
+    let _ = writeln!(
+        out,
+        "{:<16} {:<5} {:>8} {:>9} {:>5} {:>10}  detected",
+        "bearing", "kind", "order", "score dB", "harm", "1x amp"
+    );
+    for b in &report.bearings {
+        for k in DefectKind::ALL {
+            let r = b.diagnosis.as_ref().and_then(|d| d.get(k));
+            let _ = writeln!(
+                out,
+                "{:<16} {:<5} {:>8.3} {:>9} {:>5} {:>10}  {}",
+                b.name.as_str(),
+                k.name(),
+                b.orders.line(k),
+                r.map_or("-".into(), |r| format!("{:.1}", r.score_db)),
+                r.map_or("-".into(), |r| format!(
+                    "{}/{}",
+                    r.harmonics_found, r.harmonics_searched
+                )),
+                r.map_or("-".into(), |r| format!("{:.2e}", r.fundamental_amplitude)),
+                if r.is_some_and(|r| r.detected) {
+                    "YES"
+                } else {
+                    "no"
+                }
+            );
+        }
+    }
+    out
+}

@@ -1,0 +1,764 @@
+//! RIFF/WAVE reading and writing (own parser, std only).
+//!
+//! Reads PCM int16, int24, int32 and IEEE float32 samples, plain or in a
+//! `WAVE_FORMAT_EXTENSIBLE` header with one of those sub-formats, any channel
+//! count from 1 to [`MAX_CHANNELS`]. Samples come back per channel as `f32`
+//! (floats as stored, integers scaled so full scale is [-1, 1)); int16 files
+//! also give the raw counts so the node's i16 ADC path can be fed exactly.
+//!
+//! Robustness contract: bad input gives a [`WavError`] naming the problem,
+//! never a panic, and nothing is allocated from a header size without
+//! checking it against the bytes really present.
+//!
+//! **Truncation policy.** A `data` chunk that claims more bytes than the file
+//! holds, or that ends in a partial frame, is an error
+//! ([`WavError::Truncated`], [`WavError::PartialFrame`]) by default, so data
+//! loss is never silent. With [`ReadOptions::accept_truncated`] the whole
+//! frames that exist are returned and [`WavData::truncation`] records what
+//! was missing; the caller decides. Non-finite float samples are returned as
+//! they are and counted in [`WavData::non_finite`].
+
+use std::fmt;
+use std::path::Path;
+
+/// Largest channel count accepted; more is treated as a corrupt header.
+pub const MAX_CHANNELS: u16 = 64;
+/// Largest file read, in bytes (records are tens of MB; this stops a
+/// mistaken multi-GB read).
+pub const MAX_FILE_BYTES: u64 = 1 << 30;
+
+const FORMAT_PCM: u16 = 0x0001;
+const FORMAT_IEEE_FLOAT: u16 = 0x0003;
+const FORMAT_EXTENSIBLE: u16 = 0xFFFE;
+/// Tail shared by the KSDATAFORMAT_SUBTYPE_PCM / _IEEE_FLOAT GUIDs (bytes 2..16
+/// as stored in the file; Microsoft mmreg.h / ksmedia.h).
+const KS_GUID_TAIL: [u8; 14] = [
+    0x00, 0x00, 0x00, 0x00, 0x10, 0x00, 0x80, 0x00, 0x00, 0xAA, 0x00, 0x38, 0x9B, 0x71,
+];
+
+/// Sample encoding of a WAV file's `data` chunk.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SampleFormat {
+    /// Signed 16-bit little-endian integers.
+    Int16,
+    /// Signed 24-bit little-endian integers (3 bytes per sample).
+    Int24,
+    /// Signed 32-bit little-endian integers.
+    Int32,
+    /// IEEE-754 32-bit floats.
+    Float32,
+}
+
+impl SampleFormat {
+    /// Bytes one sample occupies in the file.
+    pub fn bytes(self) -> usize {
+        match self {
+            SampleFormat::Int16 => 2,
+            SampleFormat::Int24 => 3,
+            SampleFormat::Int32 | SampleFormat::Float32 => 4,
+        }
+    }
+}
+
+impl fmt::Display for SampleFormat {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(match self {
+            SampleFormat::Int16 => "int16",
+            SampleFormat::Int24 => "int24",
+            SampleFormat::Int32 => "int32",
+            SampleFormat::Float32 => "float32",
+        })
+    }
+}
+
+/// What the `fmt ` chunk says.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct WavInfo {
+    /// Frames per second.
+    pub sample_rate: u32,
+    /// Channel count (1..=[`MAX_CHANNELS`]).
+    pub channels: u16,
+    /// Sample encoding.
+    pub format: SampleFormat,
+    /// True if the header was `WAVE_FORMAT_EXTENSIBLE`.
+    pub extensible: bool,
+}
+
+/// What was missing from a truncated `data` chunk (only with
+/// [`ReadOptions::accept_truncated`]).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Truncation {
+    /// Bytes the `data` chunk header declared.
+    pub declared_bytes: u64,
+    /// Bytes of it actually present in the file.
+    pub present_bytes: u64,
+    /// Trailing bytes dropped because they did not make a whole frame.
+    pub partial_frame_bytes: usize,
+}
+
+/// A decoded WAV file.
+#[derive(Debug, Clone, PartialEq)]
+pub struct WavData {
+    /// Header facts.
+    pub info: WavInfo,
+    /// One vector per channel, all the same length (frames).
+    pub channels: Vec<Vec<f32>>,
+    /// Raw counts per channel, for int16 files only.
+    pub raw_i16: Option<Vec<Vec<i16>>>,
+    /// Number of NaN or infinite samples (float files only); returned as is.
+    pub non_finite: usize,
+    /// Set when the data chunk was short and truncation was accepted.
+    pub truncation: Option<Truncation>,
+}
+
+impl WavData {
+    /// Frames (samples per channel).
+    pub fn frames(&self) -> usize {
+        self.channels.first().map_or(0, Vec::len)
+    }
+
+    /// Duration in seconds.
+    pub fn duration_s(&self) -> f64 {
+        if self.info.sample_rate == 0 {
+            return 0.0;
+        }
+        self.frames() as f64 / f64::from(self.info.sample_rate)
+    }
+}
+
+/// Reader options. The default is strict.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+#[non_exhaustive]
+pub struct ReadOptions {
+    /// Return the whole frames present when the `data` chunk is short or
+    /// ends mid-frame, flagged in [`WavData::truncation`], instead of failing.
+    pub accept_truncated: bool,
+}
+
+impl ReadOptions {
+    /// Strict reading (the default): truncation is an error.
+    pub fn strict() -> Self {
+        Self::default()
+    }
+
+    /// Lenient reading: truncation is flagged, not an error.
+    pub fn accept_truncated() -> Self {
+        Self {
+            accept_truncated: true,
+        }
+    }
+}
+
+/// Why a WAV file could not be read.
+#[derive(Debug)]
+pub enum WavError {
+    /// The file could not be opened or read.
+    Io(std::io::Error),
+    /// The file has zero bytes.
+    Empty,
+    /// The file is larger than [`MAX_FILE_BYTES`].
+    TooLarge {
+        /// File length in bytes.
+        bytes: u64,
+    },
+    /// Shorter than the 12-byte RIFF/WAVE header.
+    TooShort {
+        /// File length in bytes.
+        bytes: usize,
+    },
+    /// The first four bytes are not `RIFF` (e.g. `RIFX`/`RF64` or not a WAV).
+    NotRiff {
+        /// The four bytes found.
+        found: [u8; 4],
+    },
+    /// The RIFF form type is not `WAVE`.
+    NotWave {
+        /// The four bytes found.
+        found: [u8; 4],
+    },
+    /// No `fmt ` chunk before the end of the file (or before `data`).
+    NoFmtChunk,
+    /// No `data` chunk.
+    NoDataChunk,
+    /// The `fmt ` chunk is shorter than its format requires.
+    FmtTooShort {
+        /// Bytes present.
+        bytes: usize,
+    },
+    /// A format tag other than PCM, IEEE float or extensible.
+    UnsupportedFormat {
+        /// The format tag (for extensible files, the sub-format's tag).
+        tag: u16,
+    },
+    /// A bit depth this reader does not decode for the format.
+    UnsupportedBitDepth {
+        /// Format tag.
+        tag: u16,
+        /// Bits per sample.
+        bits: u16,
+    },
+    /// The header says zero channels.
+    ZeroChannels,
+    /// More channels than [`MAX_CHANNELS`].
+    TooManyChannels {
+        /// The header's channel count.
+        channels: u16,
+    },
+    /// The header says a sample rate of zero.
+    ZeroSampleRate,
+    /// `block_align` disagrees with channels x bytes per sample.
+    BadBlockAlign {
+        /// The header's block_align.
+        block_align: u16,
+        /// What channels x bytes per sample give.
+        expected: usize,
+    },
+    /// The `data` chunk declares more bytes than the file holds.
+    Truncated {
+        /// Bytes declared.
+        declared_bytes: u64,
+        /// Bytes present.
+        present_bytes: u64,
+    },
+    /// The `data` chunk ends in a partial frame.
+    PartialFrame {
+        /// Bytes left over after the last whole frame.
+        extra_bytes: usize,
+        /// Bytes per frame.
+        frame_bytes: usize,
+    },
+    /// A chunk other than `data` runs past the end of the file before the
+    /// `fmt ` and `data` chunks were both found.
+    ChunkOverrun {
+        /// Chunk id.
+        id: [u8; 4],
+        /// Declared size.
+        declared_bytes: u64,
+        /// Bytes present.
+        present_bytes: u64,
+    },
+}
+
+fn show_id(id: &[u8; 4]) -> String {
+    id.iter()
+        .map(|&b| {
+            if b.is_ascii_graphic() || b == b' ' {
+                char::from(b).to_string()
+            } else {
+                format!("\\x{b:02x}")
+            }
+        })
+        .collect()
+}
+
+impl fmt::Display for WavError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            WavError::Io(e) => write!(f, "cannot read WAV file: {e}"),
+            WavError::Empty => write!(f, "WAV file is empty (0 bytes)"),
+            WavError::TooLarge { bytes } => {
+                write!(f, "WAV file is {bytes} bytes, over the {MAX_FILE_BYTES}-byte limit")
+            }
+            WavError::TooShort { bytes } => {
+                write!(f, "WAV file is only {bytes} bytes, shorter than a RIFF/WAVE header")
+            }
+            WavError::NotRiff { found } => {
+                write!(f, "not a RIFF file (starts with \"{}\")", show_id(found))
+            }
+            WavError::NotWave { found } => {
+                write!(f, "RIFF form type is \"{}\", not WAVE", show_id(found))
+            }
+            WavError::NoFmtChunk => write!(f, "no 'fmt ' chunk before the sample data"),
+            WavError::NoDataChunk => write!(f, "no 'data' chunk"),
+            WavError::FmtTooShort { bytes } => write!(f, "'fmt ' chunk too short ({bytes} bytes)"),
+            WavError::UnsupportedFormat { tag } => write!(
+                f,
+                "unsupported WAV format tag 0x{tag:04x} (supported: PCM, IEEE float, extensible)"
+            ),
+            WavError::UnsupportedBitDepth { tag, bits } => write!(
+                f,
+                "unsupported bit depth {bits} for format tag 0x{tag:04x} (supported: PCM 16/24/32, float 32)"
+            ),
+            WavError::ZeroChannels => write!(f, "header says 0 channels"),
+            WavError::TooManyChannels { channels } => write!(
+                f,
+                "header says {channels} channels (more than {MAX_CHANNELS}; corrupt header?)"
+            ),
+            WavError::ZeroSampleRate => write!(f, "header says a sample rate of 0 Hz"),
+            WavError::BadBlockAlign {
+                block_align,
+                expected,
+            } => write!(
+                f,
+                "block_align is {block_align}, expected {expected} (channels x bytes per sample)"
+            ),
+            WavError::Truncated {
+                declared_bytes,
+                present_bytes,
+            } => write!(
+                f,
+                "truncated: data chunk declares {declared_bytes} bytes but only {present_bytes} are present"
+            ),
+            WavError::PartialFrame {
+                extra_bytes,
+                frame_bytes,
+            } => write!(
+                f,
+                "truncated final frame: {extra_bytes} bytes left over ({frame_bytes} bytes per frame)"
+            ),
+            WavError::ChunkOverrun {
+                id,
+                declared_bytes,
+                present_bytes,
+            } => write!(
+                f,
+                "chunk \"{}\" declares {declared_bytes} bytes but only {present_bytes} remain in the file",
+                show_id(id)
+            ),
+        }
+    }
+}
+
+impl std::error::Error for WavError {
+    fn source(&self) -> Option<&(dyn std::error::Error + 'static)> {
+        match self {
+            WavError::Io(e) => Some(e),
+            _ => None,
+        }
+    }
+}
+
+impl From<std::io::Error> for WavError {
+    fn from(e: std::io::Error) -> Self {
+        WavError::Io(e)
+    }
+}
+
+/// Reads a WAV file from disk.
+///
+/// The file length is checked against [`MAX_FILE_BYTES`] before reading.
+pub fn read_wav(path: impl AsRef<Path>, opts: ReadOptions) -> Result<WavData, WavError> {
+    let path = path.as_ref();
+    let len = std::fs::metadata(path)?.len();
+    if len > MAX_FILE_BYTES {
+        return Err(WavError::TooLarge { bytes: len });
+    }
+    let bytes = std::fs::read(path)?;
+    parse_wav(&bytes, opts)
+}
+
+fn u16_at(b: &[u8], at: usize) -> Option<u16> {
+    let s = b.get(at..at.checked_add(2)?)?;
+    let mut a = [0u8; 2];
+    a.copy_from_slice(s);
+    Some(u16::from_le_bytes(a))
+}
+
+fn u32_at(b: &[u8], at: usize) -> Option<u32> {
+    let s = b.get(at..at.checked_add(4)?)?;
+    let mut a = [0u8; 4];
+    a.copy_from_slice(s);
+    Some(u32::from_le_bytes(a))
+}
+
+fn id_at(b: &[u8], at: usize) -> Option<[u8; 4]> {
+    let s = b.get(at..at.checked_add(4)?)?;
+    let mut a = [0u8; 4];
+    a.copy_from_slice(s);
+    Some(a)
+}
+
+/// Parses the `fmt ` chunk body.
+fn parse_fmt(body: &[u8]) -> Result<WavInfo, WavError> {
+    let short = || WavError::FmtTooShort { bytes: body.len() };
+    let tag = u16_at(body, 0).ok_or_else(short)?;
+    let channels = u16_at(body, 2).ok_or_else(short)?;
+    let sample_rate = u32_at(body, 4).ok_or_else(short)?;
+    let block_align = u16_at(body, 12).ok_or_else(short)?;
+    let bits = u16_at(body, 14).ok_or_else(short)?;
+
+    let (eff_tag, extensible) = if tag == FORMAT_EXTENSIBLE {
+        // cbSize(2) validBits(2) channelMask(4) subFormat GUID(16) after 16 bytes.
+        let guid = body.get(24..40).ok_or_else(short)?;
+        let sub = u16_at(guid, 0).ok_or_else(short)?;
+        if guid.get(2..) != Some(&KS_GUID_TAIL[..]) {
+            return Err(WavError::UnsupportedFormat { tag: sub });
+        }
+        (sub, true)
+    } else {
+        (tag, false)
+    };
+
+    let format = match (eff_tag, bits) {
+        (FORMAT_PCM, 16) => SampleFormat::Int16,
+        (FORMAT_PCM, 24) => SampleFormat::Int24,
+        (FORMAT_PCM, 32) => SampleFormat::Int32,
+        (FORMAT_IEEE_FLOAT, 32) => SampleFormat::Float32,
+        (FORMAT_PCM | FORMAT_IEEE_FLOAT, _) => {
+            return Err(WavError::UnsupportedBitDepth { tag: eff_tag, bits })
+        }
+        _ => return Err(WavError::UnsupportedFormat { tag: eff_tag }),
+    };
+    if channels == 0 {
+        return Err(WavError::ZeroChannels);
+    }
+    if channels > MAX_CHANNELS {
+        return Err(WavError::TooManyChannels { channels });
+    }
+    if sample_rate == 0 {
+        return Err(WavError::ZeroSampleRate);
+    }
+    let expected = usize::from(channels) * format.bytes();
+    if usize::from(block_align) != expected {
+        return Err(WavError::BadBlockAlign {
+            block_align,
+            expected,
+        });
+    }
+    Ok(WavInfo {
+        sample_rate,
+        channels,
+        format,
+        extensible,
+    })
+}
+
+/// Parses a WAV file held in memory.
+///
+/// ```
+/// use host_sim::wav::{encode_wav_f32, parse_wav, ReadOptions};
+/// let bytes = encode_wav_f32(8000, &[&[0.5f32, -0.25][..]]).unwrap();
+/// let wav = parse_wav(&bytes, ReadOptions::strict()).unwrap();
+/// assert_eq!(wav.channels, vec![vec![0.5, -0.25]]);
+/// ```
+pub fn parse_wav(bytes: &[u8], opts: ReadOptions) -> Result<WavData, WavError> {
+    if bytes.is_empty() {
+        return Err(WavError::Empty);
+    }
+    let riff = id_at(bytes, 0).ok_or(WavError::TooShort { bytes: bytes.len() })?;
+    if &riff != b"RIFF" {
+        return Err(WavError::NotRiff { found: riff });
+    }
+    let wave = id_at(bytes, 8).ok_or(WavError::TooShort { bytes: bytes.len() })?;
+    if &wave != b"WAVE" {
+        return Err(WavError::NotWave { found: wave });
+    }
+    // The RIFF size field is ignored: many writers get it wrong, and the real
+    // length of the buffer is what bounds every read below.
+
+    let mut info: Option<WavInfo> = None;
+    let mut pos: usize = 12;
+    while let (Some(id), Some(size)) = (id_at(bytes, pos), u32_at(bytes, pos.saturating_add(4))) {
+        let body_start = pos.saturating_add(8);
+        let present = bytes.len().saturating_sub(body_start);
+        let declared = usize::try_from(size).unwrap_or(usize::MAX);
+        if &id == b"data" {
+            let info = info.ok_or(WavError::NoFmtChunk)?;
+            let body = bytes
+                .get(body_start..body_start + declared.min(present))
+                .unwrap_or(&[]);
+            let short = declared > present;
+            if short && !opts.accept_truncated {
+                return Err(WavError::Truncated {
+                    declared_bytes: u64::from(size),
+                    present_bytes: present as u64,
+                });
+            }
+            return decode_data(info, body, short.then_some(u64::from(size)), opts);
+        }
+        if declared > present {
+            // A non-data chunk overruns the file: nothing after it can be found.
+            return Err(WavError::ChunkOverrun {
+                id,
+                declared_bytes: u64::from(size),
+                present_bytes: present as u64,
+            });
+        }
+        if &id == b"fmt " {
+            let body = bytes.get(body_start..body_start + declared).unwrap_or(&[]);
+            info = Some(parse_fmt(body)?);
+        }
+        // Chunks are padded to even length (RIFF spec).
+        pos = body_start
+            .saturating_add(declared)
+            .saturating_add(declared & 1);
+    }
+    if info.is_none() {
+        Err(WavError::NoFmtChunk)
+    } else {
+        Err(WavError::NoDataChunk)
+    }
+}
+
+fn decode_data(
+    info: WavInfo,
+    body: &[u8],
+    declared_if_short: Option<u64>,
+    opts: ReadOptions,
+) -> Result<WavData, WavError> {
+    let nch = usize::from(info.channels);
+    let sb = info.format.bytes();
+    let frame_bytes = nch * sb;
+    let extra = body.len() % frame_bytes;
+    if extra != 0 && !opts.accept_truncated {
+        return Err(WavError::PartialFrame {
+            extra_bytes: extra,
+            frame_bytes,
+        });
+    }
+    let frames = body.len() / frame_bytes;
+    let truncation = (declared_if_short.is_some() || extra != 0).then(|| Truncation {
+        declared_bytes: declared_if_short.unwrap_or(body.len() as u64),
+        present_bytes: body.len() as u64,
+        partial_frame_bytes: extra,
+    });
+
+    // Capacities come from the bytes present, never from a header field.
+    let mut channels: Vec<Vec<f32>> = (0..nch).map(|_| Vec::with_capacity(frames)).collect();
+    let mut raw: Option<Vec<Vec<i16>>> = (info.format == SampleFormat::Int16)
+        .then(|| (0..nch).map(|_| Vec::with_capacity(frames)).collect());
+    let mut non_finite = 0usize;
+
+    for frame in body.chunks_exact(frame_bytes) {
+        for (ci, s) in frame.chunks_exact(sb).enumerate() {
+            let v = match (info.format, s) {
+                (SampleFormat::Int16, &[a, b]) => {
+                    let c = i16::from_le_bytes([a, b]);
+                    if let Some(ch) = raw.as_mut().and_then(|r| r.get_mut(ci)) {
+                        ch.push(c);
+                    }
+                    f32::from(c) / 32_768.0
+                }
+                (SampleFormat::Int24, &[a, b, c]) => {
+                    // Sign-extend by placing the 3 bytes in the top of an i32.
+                    let x = i32::from_le_bytes([0, a, b, c]) >> 8;
+                    x as f32 / 8_388_608.0
+                }
+                (SampleFormat::Int32, &[a, b, c, d]) => {
+                    i32::from_le_bytes([a, b, c, d]) as f32 / 2_147_483_648.0
+                }
+                (SampleFormat::Float32, &[a, b, c, d]) => {
+                    let x = f32::from_le_bytes([a, b, c, d]);
+                    if !x.is_finite() {
+                        non_finite += 1;
+                    }
+                    x
+                }
+                // chunks_exact(sb) always yields sb bytes, matching the format.
+                _ => 0.0,
+            };
+            if let Some(ch) = channels.get_mut(ci) {
+                ch.push(v);
+            }
+        }
+    }
+    Ok(WavData {
+        info,
+        channels,
+        raw_i16: raw,
+        non_finite,
+        truncation,
+    })
+}
+
+/// Why a WAV file could not be written.
+#[derive(Debug)]
+pub enum WavWriteError {
+    /// No channels given.
+    NoChannels,
+    /// More than [`MAX_CHANNELS`] channels.
+    TooManyChannels {
+        /// Channel count given.
+        channels: usize,
+    },
+    /// Channels of different lengths.
+    RaggedChannels {
+        /// Index of the first channel whose length differs from channel 0.
+        channel: usize,
+        /// Its length.
+        len: usize,
+        /// Channel 0's length.
+        expected: usize,
+    },
+    /// Sample rate of zero.
+    ZeroSampleRate,
+    /// The data would not fit a 32-bit RIFF size.
+    TooLong {
+        /// Data bytes needed.
+        bytes: u64,
+    },
+    /// A NaN or infinite sample (refused so our tools never emit bad files).
+    NonFinite {
+        /// Channel index.
+        channel: usize,
+        /// Frame index.
+        frame: usize,
+    },
+    /// Writing the file failed.
+    Io(std::io::Error),
+}
+
+impl fmt::Display for WavWriteError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            WavWriteError::NoChannels => write!(f, "no channels to write"),
+            WavWriteError::TooManyChannels { channels } => {
+                write!(f, "{channels} channels, more than {MAX_CHANNELS}")
+            }
+            WavWriteError::RaggedChannels {
+                channel,
+                len,
+                expected,
+            } => write!(
+                f,
+                "channel {channel} has {len} samples but channel 0 has {expected}"
+            ),
+            WavWriteError::ZeroSampleRate => write!(f, "sample rate of 0 Hz"),
+            WavWriteError::TooLong { bytes } => {
+                write!(f, "{bytes} data bytes do not fit a WAV file (4 GiB limit)")
+            }
+            WavWriteError::NonFinite { channel, frame } => {
+                write!(f, "non-finite sample at channel {channel}, frame {frame}")
+            }
+            WavWriteError::Io(e) => write!(f, "cannot write WAV file: {e}"),
+        }
+    }
+}
+
+impl std::error::Error for WavWriteError {
+    fn source(&self) -> Option<&(dyn std::error::Error + 'static)> {
+        match self {
+            WavWriteError::Io(e) => Some(e),
+            _ => None,
+        }
+    }
+}
+
+impl From<std::io::Error> for WavWriteError {
+    fn from(e: std::io::Error) -> Self {
+        WavWriteError::Io(e)
+    }
+}
+
+fn check_channels<T>(sample_rate: u32, chans: &[&[T]]) -> Result<usize, WavWriteError> {
+    if sample_rate == 0 {
+        return Err(WavWriteError::ZeroSampleRate);
+    }
+    let first = chans.first().ok_or(WavWriteError::NoChannels)?;
+    if chans.len() > usize::from(MAX_CHANNELS) {
+        return Err(WavWriteError::TooManyChannels {
+            channels: chans.len(),
+        });
+    }
+    let n = first.len();
+    if let Some((channel, c)) = chans.iter().enumerate().find(|(_, c)| c.len() != n) {
+        return Err(WavWriteError::RaggedChannels {
+            channel,
+            len: c.len(),
+            expected: n,
+        });
+    }
+    Ok(n)
+}
+
+/// Builds a canonical 44-byte header (PCM or IEEE float, `fmt ` size 16),
+/// the layout of the original RIFF spec. Returns the buffer with room
+/// reserved for the data.
+fn header(
+    tag: u16,
+    sample_rate: u32,
+    nch: usize,
+    sample_bytes: usize,
+    frames: usize,
+) -> Result<Vec<u8>, WavWriteError> {
+    let data_bytes = (frames as u64) * (nch as u64) * (sample_bytes as u64);
+    let too_long = WavWriteError::TooLong { bytes: data_bytes };
+    let data_u32 = u32::try_from(data_bytes)
+        .ok()
+        .filter(|d| *d <= u32::MAX - 36)
+        .ok_or(too_long)?;
+    let nch16 = u16::try_from(nch).map_err(|_| WavWriteError::TooManyChannels { channels: nch })?;
+    let block = u16::try_from(nch * sample_bytes)
+        .map_err(|_| WavWriteError::TooManyChannels { channels: nch })?;
+    let bits = u16::try_from(sample_bytes * 8).unwrap_or(0);
+    let mut v = Vec::with_capacity(44 + usize::try_from(data_u32).unwrap_or(0));
+    v.extend_from_slice(b"RIFF");
+    v.extend_from_slice(&(36 + data_u32).to_le_bytes());
+    v.extend_from_slice(b"WAVEfmt ");
+    v.extend_from_slice(&16u32.to_le_bytes());
+    v.extend_from_slice(&tag.to_le_bytes());
+    v.extend_from_slice(&nch16.to_le_bytes());
+    v.extend_from_slice(&sample_rate.to_le_bytes());
+    v.extend_from_slice(&(sample_rate.saturating_mul(u32::from(block))).to_le_bytes());
+    v.extend_from_slice(&block.to_le_bytes());
+    v.extend_from_slice(&bits.to_le_bytes());
+    v.extend_from_slice(b"data");
+    v.extend_from_slice(&data_u32.to_le_bytes());
+    Ok(v)
+}
+
+/// Encodes channels (equal lengths) as an IEEE float32 WAV in memory.
+/// Non-finite samples are refused.
+pub fn encode_wav_f32(sample_rate: u32, chans: &[&[f32]]) -> Result<Vec<u8>, WavWriteError> {
+    let frames = check_channels(sample_rate, chans)?;
+    for (channel, c) in chans.iter().enumerate() {
+        if let Some(frame) = c.iter().position(|x| !x.is_finite()) {
+            return Err(WavWriteError::NonFinite { channel, frame });
+        }
+    }
+    let mut v = header(FORMAT_IEEE_FLOAT, sample_rate, chans.len(), 4, frames)?;
+    for i in 0..frames {
+        for c in chans {
+            if let Some(x) = c.get(i) {
+                v.extend_from_slice(&x.to_le_bytes());
+            }
+        }
+    }
+    Ok(v)
+}
+
+/// Encodes channels (equal lengths) of raw counts as a PCM int16 WAV in memory.
+pub fn encode_wav_i16(sample_rate: u32, chans: &[&[i16]]) -> Result<Vec<u8>, WavWriteError> {
+    let frames = check_channels(sample_rate, chans)?;
+    let mut v = header(FORMAT_PCM, sample_rate, chans.len(), 2, frames)?;
+    for i in 0..frames {
+        for c in chans {
+            if let Some(x) = c.get(i) {
+                v.extend_from_slice(&x.to_le_bytes());
+            }
+        }
+    }
+    Ok(v)
+}
+
+/// Writes an IEEE float32 WAV file (one slice per channel, equal lengths).
+pub fn write_wav_f32(
+    path: impl AsRef<Path>,
+    sample_rate: u32,
+    chans: &[&[f32]],
+) -> Result<(), WavWriteError> {
+    let v = encode_wav_f32(sample_rate, chans)?;
+    std::fs::write(path, v)?;
+    Ok(())
+}
+
+/// Writes a PCM int16 WAV file (one slice of counts per channel, equal lengths).
+pub fn write_wav_i16(
+    path: impl AsRef<Path>,
+    sample_rate: u32,
+    chans: &[&[i16]],
+) -> Result<(), WavWriteError> {
+    let v = encode_wav_i16(sample_rate, chans)?;
+    std::fs::write(path, v)?;
+    Ok(())
+}
+
+/// Quantises a full-scale float sample (1.0 = full scale) to an int16 count,
+/// rounding to nearest and saturating; NaN gives 0.
+pub fn f32_to_i16_count(x: f32) -> i16 {
+    let v = (x * 32_768.0).round().clamp(-32_768.0, 32_767.0);
+    // In range after the clamp; NaN maps to 0 (Rust `as` semantics).
+    #[allow(clippy::cast_possible_truncation)]
+    let c = v as i16;
+    c
+}
