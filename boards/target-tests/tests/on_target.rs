@@ -210,4 +210,41 @@ mod tests {
         defmt::assert_eq!(dsp_core::num::amplitude_db(0.0), -200.0);
         defmt::assert_eq!(dsp_core::num::f32_to_usize_sat(f32::NAN), 0);
     }
+
+    #[test]
+    fn dsp_pipeline_overall_of_a_sine() {
+        // The real dsp-core pipeline on target: an 800 Hz sine of 8000 counts
+        // at 51.2 kHz (64 samples per period). Handbook values for a sine:
+        // RMS = A/sqrt(2), crest factor sqrt(2), kurtosis 1.5.
+        use dsp_core::config::{PointConfig, SpeedInput};
+        use dsp_core::pipeline::Pipeline;
+        let mut point = PointConfig::default();
+        point.speed = SpeedInput::Constant { rpm: 1500.0 };
+        point.revolutions = 64;
+        point.counts_to_g = 1.0 / 1000.0;
+        let mut p = Pipeline::<1024, 512, 2048>::new(&point).unwrap();
+        let mut period = [0i16; 64];
+        for (i, s) in period.iter_mut().enumerate() {
+            let ph = 2.0 * core::f32::consts::PI * (i as f32) / 64.0;
+            *s = libm::roundf(8000.0 * libm::sinf(ph)) as i16;
+        }
+        let mut block = [0i16; 256];
+        for (i, s) in block.iter_mut().enumerate() {
+            *s = period[i % 64];
+        }
+        let mut blocks = 0u32;
+        while !p.complete() && blocks < 10_000 {
+            p.push_i16(&block);
+            blocks += 1;
+        }
+        defmt::assert!(p.complete());
+        let r = p.finish();
+        let o = r.overall;
+        defmt::info!("overall {}", o);
+        let rms = 8.0 * core::f32::consts::FRAC_1_SQRT_2; // g
+        defmt::assert!((o.rms_ac - rms).abs() < 1e-3 * rms);
+        defmt::assert!((o.crest_factor - core::f32::consts::SQRT_2).abs() < 2e-3);
+        defmt::assert!((o.kurtosis - 1.5).abs() < 2e-3);
+        defmt::assert_eq!(o.clipped, 0);
+    }
 }
