@@ -10,8 +10,9 @@
 //! 32 settle_ms u16      34 interval_s u32     38 flat_counts u16
 //! 40 clip_level i16     42 clip_permille u16  44 saturated_permille u16
 //! 46 low_battery_mv u16 48 alert_db f32       52 alarm_db f32
-//! 56 bearing count u8   57 reserved u8 = 0
-//! 58 bearings, 22 bytes each:
+//! 56 counts_to_g f32 (sensor and ADC sensitivity, g per count)
+//! 60 bearing count u8   61 reserved u8 = 0
+//! 62 bearings, 22 bytes each:
 //!    +0 kind u8 (0 = defect orders given, 1 = geometry)  +1 rolling elements u8
 //!    +2 shaft_ratio f32 (bearing shaft speed / tach shaft speed)
 //!    +6 four f32: kind 0: BPFO, BPFI, FTF, BSF in orders of the bearing shaft
@@ -32,7 +33,7 @@ pub const VERSION: u8 = 1;
 pub const MAGIC: [u8; 2] = *b"EP";
 /// Most bearings one measuring point describes.
 pub const MAX_BEARINGS: usize = 4;
-const HEADER_LEN: usize = 58;
+const HEADER_LEN: usize = 62;
 const BEARING_LEN: usize = 22;
 /// Largest encoded record in bytes.
 pub const MAX_RECORD_LEN: usize = HEADER_LEN + MAX_BEARINGS * BEARING_LEN + 4;
@@ -110,6 +111,8 @@ pub struct PointRecord {
     pub alert_db: f32,
     /// Defect-level alarm threshold, dB over baseline.
     pub alarm_db: f32,
+    /// Acceleration per ADC count, g (sensor sensitivity and ADC gain).
+    pub counts_to_g: f32,
     /// Monitored bearings (1 to [`MAX_BEARINGS`]).
     pub bearings: Vec<BearingSpec, MAX_BEARINGS>,
 }
@@ -145,6 +148,8 @@ impl Default for PointRecord {
             low_battery_mv: 3_000,
             alert_db: 6.0,
             alarm_db: 12.0,
+            // 100 mV/g sensor, 3.6 V over 4096 counts: 0.879 mV per count
+            counts_to_g: 0.008_789,
             bearings,
         }
     }
@@ -301,6 +306,7 @@ impl PointRecord {
         )?;
         check(in_range(self.alert_db, 0.0, 60.0), "alert_db")?;
         check(in_range(self.alarm_db, self.alert_db, 60.0), "alarm_db")?;
+        check(in_range(self.counts_to_g, 1e-7, 1.0), "counts_to_g")?;
         check(!self.bearings.is_empty(), "bearings")?;
         for b in &self.bearings {
             check(in_range(b.shaft_ratio, 0.01, 100.0), "shaft_ratio")?;
@@ -365,6 +371,7 @@ impl PointRecord {
         w.put(&self.low_battery_mv.to_le_bytes())?;
         w.put(&self.alert_db.to_le_bytes())?;
         w.put(&self.alarm_db.to_le_bytes())?;
+        w.put(&self.counts_to_g.to_le_bytes())?;
         w.put(&[count, 0])?;
         for b in &self.bearings {
             let (kind, elements, v) = match b.model {
@@ -439,6 +446,7 @@ impl PointRecord {
         let low_battery_mv = r.u16()?;
         let alert_db = r.f32()?;
         let alarm_db = r.f32()?;
+        let counts_to_g = r.f32()?;
         let count = usize::from(r.u8()?);
         let _reserved = r.u8()?;
         if count > MAX_BEARINGS || len != HEADER_LEN + count * BEARING_LEN + 4 {
@@ -485,6 +493,7 @@ impl PointRecord {
             low_battery_mv,
             alert_db,
             alarm_db,
+            counts_to_g,
             bearings,
         };
         rec.validate()?;

@@ -31,7 +31,7 @@ fn round_trip_preserves_every_field() {
     let c = sample();
     let bytes = encode(&c);
     assert_eq!(bytes.len(), c.encoded_len());
-    assert_eq!(bytes.len(), 58 + 2 * 22 + 4);
+    assert_eq!(bytes.len(), 62 + 2 * 22 + 4);
     assert!(bytes.len() <= MAX_RECORD_LEN);
     assert_eq!(PointRecord::decode(&bytes).unwrap(), c);
 }
@@ -144,21 +144,28 @@ fn out_of_range_fields_are_refused_even_with_a_good_crc() {
     );
     // element diameter larger than pitch diameter (impossible geometry)
     let mut b = good.clone();
-    b[58 + 6..58 + 10].copy_from_slice(&50.0f32.to_le_bytes());
+    b[62 + 6..62 + 10].copy_from_slice(&50.0f32.to_le_bytes());
     assert_eq!(
         PointRecord::decode(&reseal(b)),
         Err(ConfigError::OutOfRange("element_mm"))
     );
+    // zero sensitivity
+    let mut b = good.clone();
+    b[56..60].copy_from_slice(&0.0f32.to_le_bytes());
+    assert_eq!(
+        PointRecord::decode(&reseal(b)),
+        Err(ConfigError::OutOfRange("counts_to_g"))
+    );
     // unknown bearing kind
     let mut b = good.clone();
-    b[58] = 7;
+    b[62] = 7;
     assert_eq!(
         PointRecord::decode(&reseal(b)),
         Err(ConfigError::OutOfRange("bearing_kind"))
     );
     // bearing count that does not match the length
     let mut b = good;
-    b[56] = 1;
+    b[60] = 1;
     assert_eq!(PointRecord::decode(&reseal(b)), Err(ConfigError::BadLength));
 }
 

@@ -34,6 +34,7 @@ def config_record(revs=16):
     body += struct.pack("<HhHH", 4, 2047, 1, 100)  # flat, clip level, clip/saturated per mille
     body += struct.pack("<H", 3000)  # low battery mV
     body += struct.pack("<ff", 6.0, 12.0)  # alert / alarm dB
+    body += struct.pack("<f", 0.008789)  # g per count: 100 mV/g sensor, 3.6 V / 4096 counts
     body += bytes([1, 0])  # one bearing
     # geometry: 9 elements, 7.94 mm, pitch 39.04 mm, 0 deg (fictional bearing)
     body += bytes([1, 9]) + struct.pack("<f", 1.0) + struct.pack("<ffff", 7.94, 39.04, 0.0, 0.0)

@@ -170,7 +170,8 @@ mod tests {
         defmt::assert_eq!(c.record_revs, 16);
         // 16 revolutions at 1200 rpm = 0.8 s = 20480 samples = 320 blocks of 64
         defmt::assert_eq!(c.record_blocks(BLOCK, 10_000), 320);
-        let mut bad = [0u8; 84];
+        let mut bad = [0u8; 88];
+        defmt::assert_eq!(CONFIG.len(), 88);
         bad.copy_from_slice(CONFIG);
         bad[9] ^= 0x01;
         defmt::assert!(PointRecord::decode(&bad).is_err());
