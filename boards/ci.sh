@@ -54,19 +54,19 @@ gen="$here/qemu-mps2/input/make_input.py"
 for case in good corrupt; do
     d="$(mktemp -d)"
     cp qemu-mps2/input/recording.i16 qemu-mps2/input/tach.u32 qemu-mps2/input/config.bin "$d/"
-    if [ "$case" = good ]; then (cd "$d" && python3 "$gen" downlink 8); else (cd "$d" && python3 "$gen" downlink 8 corrupt); fi
+    if [ "$case" = good ]; then (cd "$d" && python3 "$gen" downlink 32); else (cd "$d" && python3 "$gen" downlink 32 corrupt); fi
     QEMU_RUN_DIR="$d" DEFMT_RAW="$d/defmt.raw" ./qemu-run.sh "target/$target/release/qemu-mps2" > /dev/null 2> "$d/err"
     grep -E '^(cycle|done)' "$d/err"
     if [ "$case" = good ]; then
         # applied and stored: the stored record is the downlink's, and the
-        # remaining 90 blocks give two more records of 40 blocks
+        # remaining 285 blocks give four more records of 69 blocks (32 rev at 1400 rpm)
         tail -c +2 "$d/downlink.bin" | cmp - "$d/config.bin"
-        grep -q '^cycle 0: 80 blocks.*downlink ConfigApplied' "$d/err"
-        grep -q '^cycle 2: 40 blocks' "$d/err"
-        grep -q '^done: 3 cycles, 3 frames, 3 watchdog feeds' "$d/err"
+        grep -q '^cycle 0: 275 blocks.*downlink ConfigApplied' "$d/err"
+        grep -q '^cycle 4: 69 blocks' "$d/err"
+        grep -q '^done: 5 cycles, 5 frames, 5 watchdog feeds' "$d/err"
     else
         cmp qemu-mps2/input/config.bin "$d/config.bin"
-        grep -q '^cycle 0: 80 blocks.*downlink Refused(Config(BadCrc))' "$d/err"
+        grep -q '^cycle 0: 275 blocks.*downlink Refused(Config(BadCrc))' "$d/err"
         grep -q '^done: 2 cycles, 2 frames, 2 watchdog feeds' "$d/err"
     fi
     rm -rf "$d"

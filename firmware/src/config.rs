@@ -139,7 +139,9 @@ impl Default for PointRecord {
             poles: 4,
             pulses_per_rev: 1,
             record_revs: 64,
-            speed_min_rpm: 600.0,
+            // the node pipeline's resampler ring bounds the speed range (2048
+            // samples cover 1000..3600 rpm at this rate; 600 rpm would not fit)
+            speed_min_rpm: 1_000.0,
             speed_max_rpm: 3_600.0,
             tach_tick_hz: 25_600,
             settle_ms: 200,

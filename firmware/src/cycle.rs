@@ -397,14 +397,13 @@ where
                 if self.summary.edges < 2 {
                     self.summary.flags.insert(QualityFlags::TACH_MISSING);
                 }
-                self.core.finish().map_err(|_| Fault::Core)?;
+                self.core
+                    .finish(self.summary.flags)
+                    .map_err(|_| Fault::Core)?;
                 State::Encode
             }
             State::Encode => {
-                let n = self
-                    .core
-                    .encode(self.summary.flags, &mut self.frame)
-                    .map_err(|_| Fault::Core)?;
+                let n = self.core.encode(&mut self.frame).map_err(|_| Fault::Core)?;
                 self.summary.frame_len = n.min(FRAME_CAPACITY);
                 State::Transmit
             }

@@ -122,9 +122,9 @@ pub trait MeasurementCore {
     fn push_block(&mut self, samples: &[i16]);
     /// Adds one tach edge (timer ticks, same time base as the samples).
     fn push_edge(&mut self, tick: u32);
-    /// Ends the record and computes the report.
-    fn finish(&mut self) -> Result<(), Self::Error>;
-    /// Encodes the finished report with the firmware's quality flags merged
-    /// in; returns the number of bytes written to `frame`.
-    fn encode(&mut self, flags: QualityFlags, frame: &mut [u8]) -> Result<usize, Self::Error>;
+    /// Ends the record and computes the report, with the firmware's quality
+    /// flags (overrun, sensor fault, tach loss, low battery) merged in.
+    fn finish(&mut self, flags: QualityFlags) -> Result<(), Self::Error>;
+    /// Encodes the finished report; returns the number of bytes written.
+    fn encode(&mut self, frame: &mut [u8]) -> Result<usize, Self::Error>;
 }

@@ -8,6 +8,7 @@
 //!   binary record; [`downlink`]: commands that replace it.
 //! * [`quality`]: quality flags and streamed signal-health checks.
 //! * [`crc`]: CRC-32 for stored records.
+//! * [`point`]: the record as `dsp-core`'s measuring point, for the pipeline adapter.
 //! * [`overall_core`]: a minimal overall-level core, so board images run the
 //!   whole cycle before the envelope pipeline is adapted.
 //!
@@ -32,4 +33,5 @@ pub mod downlink;
 pub mod hal;
 mod log;
 pub mod overall_core;
+pub mod point;
 pub mod quality;

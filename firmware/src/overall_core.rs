@@ -69,6 +69,7 @@ pub struct OverallCore {
     last_tick: u32,
     tick_hz: u32,
     pulses_per_rev: u8,
+    flags: QualityFlags,
     result: Option<Overall>,
 }
 
@@ -131,7 +132,8 @@ impl MeasurementCore for OverallCore {
     }
 
     #[allow(clippy::cast_precision_loss)] // sums up to 2^63 into f64 for one division
-    fn finish(&mut self) -> Result<(), OverallError> {
+    fn finish(&mut self, flags: QualityFlags) -> Result<(), OverallError> {
+        self.flags = flags;
         let mut o = Overall {
             samples: u32::try_from(self.n).unwrap_or(u32::MAX),
             ..Overall::default()
@@ -162,7 +164,8 @@ impl MeasurementCore for OverallCore {
     }
 
     /// Writes the 12-byte overall frame described in the module docs.
-    fn encode(&mut self, flags: QualityFlags, frame: &mut [u8]) -> Result<usize, OverallError> {
+    fn encode(&mut self, frame: &mut [u8]) -> Result<usize, OverallError> {
+        let flags = self.flags;
         let o = self.result.ok_or(OverallError::NotFinished)?;
         let out = frame
             .get_mut(..FRAME_LEN)

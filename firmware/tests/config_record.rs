@@ -184,9 +184,9 @@ fn encode_refuses_an_invalid_record() {
 
 #[test]
 fn record_length_follows_revolutions_and_lowest_speed() {
-    // 64 revolutions at 600 rpm = 6.4 s; at 25.6 kHz that is 163 840 samples = 640 blocks of 256
+    // 64 revolutions at 1000 rpm = 3.84 s; at 25.6 kHz that is 98 304 samples = 384 blocks of 256
     let c = PointRecord::default();
-    assert_eq!(c.record_blocks(256, 10_000), 640);
+    assert_eq!(c.record_blocks(256, 10_000), 384);
     assert_eq!(c.record_blocks(256, 100), 100); // capped
                                                 // 4 revolutions at 7000 rpm: 0.0342857 s * 25600 = 877.7 samples -> 4 blocks (rounded up)
     let mut c = PointRecord::default();

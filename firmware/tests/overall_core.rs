@@ -30,7 +30,7 @@ fn sine_rms_peak_crest_match_handbook() {
     for b in x.chunks(256) {
         core.push_block(b);
     }
-    core.finish().unwrap();
+    core.finish(QualityFlags::empty()).unwrap();
     let o = core.result().unwrap();
     assert!((o.rms - 707.107).abs() < 0.5, "rms {}", o.rms);
     assert!((o.peak - 1000.0).abs() < 1.0, "peak {}", o.peak);
@@ -51,7 +51,7 @@ fn speed_from_edges() {
     for k in 0..11u32 {
         core.push_edge(5 + (f64::from(k) * 25_600.0 * 60.0 / 1480.0).round() as u32);
     }
-    core.finish().unwrap();
+    core.finish(QualityFlags::empty()).unwrap();
     assert!((core.result().unwrap().speed_rpm - 1480.0).abs() < 0.2);
 }
 
@@ -61,22 +61,19 @@ fn frame_layout() {
     let mut core = OverallCore::new();
     core.start(&cfg).unwrap();
     let mut buf = [0u8; 64];
-    assert_eq!(
-        core.encode(QualityFlags::empty(), &mut buf),
-        Err(OverallError::NotFinished)
-    );
+    assert_eq!(core.encode(&mut buf), Err(OverallError::NotFinished));
     core.push_block(&[100, -100, 100, -100]); // rms 100, peak 100, crest 1
     core.push_edge(0);
     core.push_edge(25_600); // one revolution per second = 60 rpm
-    core.finish().unwrap();
-    let n = core.encode(QualityFlags::CLIPPING, &mut buf).unwrap();
+    core.finish(QualityFlags::CLIPPING).unwrap();
+    let n = core.encode(&mut buf).unwrap();
     assert_eq!(n, FRAME_LEN);
     assert_eq!(
         buf[..n],
         [FRAME_KIND, 0x02, 0xE8, 0x03, 100, 0, 0xE8, 0x03, 0x58, 0x02, 0, 0]
     );
     assert_eq!(
-        core.encode(QualityFlags::empty(), &mut buf[..5]),
+        core.encode(&mut buf[..5]),
         Err(OverallError::BufferTooSmall)
     );
 }

@@ -19,16 +19,16 @@ import numpy as np
 
 FS = 25_600
 RPM = 1480.0
-SECONDS = 1.7
+SECONDS = 5.6
 RNG = np.random.default_rng(7)
 
 
-def config_record(revs=16):
+def config_record(revs=64):
     body = b"EP" + bytes([1, 0])  # magic, version, length patched below
     body += struct.pack("<I", FS)
     body += struct.pack("<ff", 2000.0, 8000.0)  # band
     body += struct.pack("<BBH", 4, 1, revs)  # poles, pulses/rev, record revolutions
-    body += struct.pack("<ff", 1200.0, 3600.0)  # speed range rpm
+    body += struct.pack("<ff", 1400.0, 3600.0)  # speed range rpm
     body += struct.pack("<I", FS)  # tach ticks = sample clock
     body += struct.pack("<HI", 50, 3600)  # settle ms, interval s
     body += struct.pack("<HhHH", 4, 2047, 1, 100)  # flat, clip level, clip/saturated per mille

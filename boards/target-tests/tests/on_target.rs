@@ -167,9 +167,9 @@ mod tests {
     fn python_written_config_decodes() {
         let c = PointRecord::decode(CONFIG).unwrap();
         defmt::assert_eq!(c.sample_rate_hz, 25_600);
-        defmt::assert_eq!(c.record_revs, 16);
-        // 16 revolutions at 1200 rpm = 0.8 s = 20480 samples = 320 blocks of 64
-        defmt::assert_eq!(c.record_blocks(BLOCK, 10_000), 320);
+        defmt::assert_eq!(c.record_revs, 64);
+        // 64 revolutions at 1400 rpm = 2.742857 s = 70217.1 samples -> 1098 blocks of 64
+        defmt::assert_eq!(c.record_blocks(BLOCK, 10_000), 1098);
         let mut bad = [0u8; 88];
         defmt::assert_eq!(CONFIG.len(), 88);
         bad.copy_from_slice(CONFIG);
@@ -179,10 +179,10 @@ mod tests {
 
     #[test]
     fn cycle_with_fake_source() {
-        let mut node = Node::new(devices(320, None), OverallCore::new());
+        let mut node = Node::new(devices(1098, None), OverallCore::new());
         let s = node.run_cycle().unwrap();
         defmt::assert_eq!(node.state(), State::Sleep);
-        defmt::assert_eq!(s.blocks, 320);
+        defmt::assert_eq!(s.blocks, 1098);
         defmt::assert!(s.fed_watchdog);
         defmt::assert_eq!(node.devices().watchdog.0, 1);
         let f = node.frame();
@@ -195,7 +195,7 @@ mod tests {
 
     #[test]
     fn overrun_cycle_does_not_feed() {
-        let mut node = Node::new(devices(320, Some(100)), OverallCore::new());
+        let mut node = Node::new(devices(1098, Some(100)), OverallCore::new());
         let s = node.run_cycle().unwrap();
         defmt::assert!(s.flags.contains(QualityFlags::PROCESSING_OVERRUN));
         defmt::assert_eq!(node.devices().watchdog.0, 0);

@@ -30,8 +30,8 @@ pub enum Ev {
     CoreStart,
     CorePush(usize),
     CoreEdge(u32),
-    CoreFinish,
-    CoreEncode(QualityFlags),
+    CoreFinish(QualityFlags),
+    CoreEncode,
     Send(Vec<u8>),
     Receive,
     Store(Slot),
@@ -245,6 +245,7 @@ pub struct MockCore {
     pub edges: Vec<u32>,
     pub baseline: Option<Vec<u8>>,
     pub fail_finish: bool,
+    pub flags: QualityFlags,
 }
 
 impl MeasurementCore for MockCore {
@@ -270,16 +271,18 @@ impl MeasurementCore for MockCore {
         self.edges.push(tick);
         self.log.borrow_mut().push(Ev::CoreEdge(tick));
     }
-    fn finish(&mut self) -> Result<(), ()> {
-        self.log.borrow_mut().push(Ev::CoreFinish);
+    fn finish(&mut self, flags: QualityFlags) -> Result<(), ()> {
+        self.flags = flags;
+        self.log.borrow_mut().push(Ev::CoreFinish(flags));
         if self.fail_finish {
             Err(())
         } else {
             Ok(())
         }
     }
-    fn encode(&mut self, flags: QualityFlags, frame: &mut [u8]) -> Result<usize, ()> {
-        self.log.borrow_mut().push(Ev::CoreEncode(flags));
+    fn encode(&mut self, frame: &mut [u8]) -> Result<usize, ()> {
+        let flags = self.flags;
+        self.log.borrow_mut().push(Ev::CoreEncode);
         let n = u16::try_from(self.samples.len())
             .unwrap_or(u16::MAX)
             .to_le_bytes();
@@ -394,6 +397,7 @@ impl Bench {
             edges: Vec::new(),
             baseline: None,
             fail_finish: self.core_fails_finish,
+            flags: QualityFlags::empty(),
         };
         let node = Node::new(dev, core);
         log.borrow_mut().clear();
