@@ -59,11 +59,11 @@ for case in good corrupt; do
     grep -E '^(cycle|done)' "$d/err"
     if [ "$case" = good ]; then
         # applied and stored: the stored record is the downlink's, and the
-        # remaining 285 blocks give four more records of 69 blocks (32 rev at 1400 rpm)
+        # remaining 285 blocks give two more records of 138 blocks (32 rev at 1400 rpm)
         tail -c +2 "$d/downlink.bin" | cmp - "$d/config.bin"
         grep -q '^cycle 0: 275 blocks.*downlink ConfigApplied' "$d/err"
-        grep -q '^cycle 4: 69 blocks' "$d/err"
-        grep -q '^done: 5 cycles, 5 frames, 5 watchdog feeds' "$d/err"
+        grep -q '^cycle 2: 138 blocks' "$d/err"
+        grep -q '^done: 3 cycles, 3 frames, 3 watchdog feeds' "$d/err"
     else
         cmp qemu-mps2/input/config.bin "$d/config.bin"
         grep -q '^cycle 0: 275 blocks.*downlink Refused(Config(BadCrc))' "$d/err"

@@ -86,3 +86,24 @@ fn too_short_a_record_is_refused_by_the_node_pipeline() {
     let ok = Box::new(NodePipeline::new(&point_config(&rec).unwrap()));
     assert!(ok.is_ok(), "{:?}", ok.as_ref().as_ref().err());
 }
+
+#[test]
+fn more_shaft_ratios_than_dsp_core_holds_are_refused() {
+    // tach shaft + 4 distinct ratios = 5 shafts > dsp_core::config::MAX_SHAFTS (4)
+    let mut rec = PointRecord::default();
+    rec.bearings.clear();
+    for ratio in [0.5, 2.0, 3.0, 4.0] {
+        rec.bearings
+            .push(BearingSpec {
+                shaft_ratio: ratio,
+                model: BearingModel::Orders {
+                    bpfo: 3.1,
+                    bpfi: 4.9,
+                    ftf: 0.39,
+                    bsf: 2.0,
+                },
+            })
+            .unwrap();
+    }
+    assert_eq!(point_config(&rec), Err(PointError::TooManyShafts));
+}
