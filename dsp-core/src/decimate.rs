@@ -1,20 +1,28 @@
 //! Anti-alias low-pass and integer decimation, multi-stage, computing only
 //! the kept outputs.
 //!
-//! Structure: the factor is split into stages of 2..=8 (largest first, the
-//! smallest prime factor last, because the last stage has the narrowest
-//! transition and is cheapest at the lowest rate). Each stage is a linear
-//! phase FIR designed on the device by the window method: Kaiser window with
+//! Structure: the odd part of the factor (primes 3, 5, 7) is merged into
+//! stages of at most 8, largest first, and every factor 2 is its own
+//! half-band stage after them (the last stages have the narrowest
+//! transitions and run at the lowest rates). Each stage is a linear-phase
+//! FIR designed on the device by the window method: Kaiser window with
 //! Kaiser's formulas for length and beta (the same as `scipy.signal.kaiserord`
 //! and `scipy.signal.firwin(..., window=('kaiser', beta))`, DC gain 1).
+//! Stages of 2 have a cut-off of exactly a quarter of their input rate, i.e.
+//! they are half-band filters: the length is rounded up to 4k + 3 so every
+//! second tap is zero (set exactly to 0 and skipped). All stages use the tap
+//! symmetry (one multiply per tap pair).
 //!
 //! Band plan, with `fo` the final output rate and `fp = 0.4 fo` the protected
 //! band: stage i (output rate `r_i`) passes `[0, fp]` and stops from
 //! `r_i - fp`, so nothing that folds into `[0, fp]` at any stage survives.
 //! Cut-off = `r_i / 2`. Design attenuation [`STOP_DB`].
 //!
-//! Each stage keeps a doubled ring buffer so the dot product reads one
-//! contiguous window; outputs are computed only every M-th input.
+//! Processing is block-wise per stage: a block of up to [`BLOCK`] inputs is
+//! copied behind the stage's N-1 samples of history in a linear buffer, the
+//! kept outputs (every M-th input) are computed from contiguous windows, and
+//! the last N-1 samples are moved to the front. Per input this costs one
+//! copy plus an amortised (N-1)/block move; only kept outputs are computed.
 
 /// Kaiser design attenuation in dB (margin over the 60 dB requirement).
 pub const STOP_DB: f64 = 66.0;
@@ -24,10 +32,14 @@ pub const PASS_FRACTION: f64 = 0.4;
 pub const MAX_FACTOR: u16 = 1024;
 /// Maximum factor of one stage.
 pub const MAX_STAGE_FACTOR: u16 = 8;
-/// Maximum number of stages (3^6 = 729 needs six).
-pub const MAX_STAGES: usize = 6;
+/// Maximum number of stages (1024 = 2^10 needs ten half-band stages).
+pub const MAX_STAGES: usize = 10;
 /// Tap pool shared by all stages.
 pub const TAP_POOL: usize = 320;
+/// Inputs processed per stage block.
+pub const BLOCK: usize = 64;
+/// History pool: N - 1 + BLOCK per stage.
+const HIST_POOL: usize = TAP_POOL + MAX_STAGES * BLOCK;
 
 /// Why a decimator could not be built.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -56,10 +68,11 @@ impl core::error::Error for DecimateError {}
 #[derive(Clone, Copy, Debug, Default)]
 struct Stage {
     factor: u16,
+    halfband: bool,
     taps: usize,
     offset: usize,
-    pos: usize,
-    phase: u16,
+    hist: usize,
+    phase: usize,
 }
 
 /// Multi-stage FIR decimator with state.
@@ -70,8 +83,8 @@ pub struct Decimator {
     n_stages: usize,
     /// Taps of all stages, each stored time-reversed (oldest sample first).
     taps: [f32; TAP_POOL],
-    /// Doubled ring buffers of all stages (2 x taps each).
-    ring: [f32; 2 * TAP_POOL],
+    /// Linear history buffers of all stages (N - 1 + BLOCK each).
+    hist: [f32; HIST_POOL],
 }
 
 /// Splits `factor` into stage factors (largest first). Returns the count.
@@ -79,48 +92,40 @@ pub fn stage_factors(factor: u16) -> Result<([u16; MAX_STAGES], usize), Decimate
     if factor == 0 || factor > MAX_FACTOR {
         return Err(DecimateError::FactorRange);
     }
-    let mut primes = [0u16; 10];
-    let mut np = 0usize;
+    let mut out = [0u16; MAX_STAGES];
+    let mut n = 0usize;
     let mut rest = factor;
-    for p in [7u16, 5, 3, 2] {
+    // Odd primes, largest first, merged greedily while the stage stays <= 8.
+    for p in [7u16, 5, 3] {
         while rest % p == 0 {
-            if let Some(s) = primes.get_mut(np) {
-                *s = p;
-            }
-            np += 1;
             rest /= p;
+            let merge = n > 0
+                && out
+                    .get(n - 1)
+                    .is_some_and(|&c| c.saturating_mul(p) <= MAX_STAGE_FACTOR);
+            if merge {
+                if let Some(c) = out.get_mut(n - 1) {
+                    *c *= p;
+                }
+            } else if let Some(c) = out.get_mut(n) {
+                *c = p;
+                n += 1;
+            }
+        }
+    }
+    if let Some(odd) = out.get_mut(..n) {
+        odd.sort_unstable_by(|a, b| b.cmp(a));
+    }
+    // Then one half-band stage per factor 2.
+    while rest % 2 == 0 {
+        rest /= 2;
+        if let Some(c) = out.get_mut(n) {
+            *c = 2;
+            n += 1;
         }
     }
     if rest != 1 {
         return Err(DecimateError::FactorPrime);
-    }
-    let mut out = [0u16; MAX_STAGES];
-    if np == 0 {
-        return Ok((out, 0));
-    }
-    // Smallest prime alone as the last stage; the others merged greedily (<= 8).
-    let (head, last) = primes.split_at(np.saturating_sub(1));
-    let mut n = 0usize;
-    for &p in head {
-        let merged = n > 0
-            && out
-                .get(n - 1)
-                .is_some_and(|&c| c.saturating_mul(p) <= MAX_STAGE_FACTOR);
-        if merged {
-            if let Some(c) = out.get_mut(n - 1) {
-                *c *= p;
-            }
-        } else if let Some(c) = out.get_mut(n) {
-            *c = p;
-            n += 1;
-        }
-    }
-    if let Some(head) = out.get_mut(..n) {
-        head.sort_unstable_by(|a, b| b.cmp(a));
-    }
-    if let (Some(c), Some(&l)) = (out.get_mut(n), last.first()) {
-        *c = l;
-        n += 1;
     }
     Ok((out, n))
 }
@@ -140,6 +145,51 @@ pub fn kaiser_order(a_db: f64, width: f64) -> (usize, f64) {
         crate::num::f32_to_usize_sat(crate::num::f64_to_f32(n)),
         beta,
     )
+}
+
+/// One output of a symmetric FIR over window `w` (oldest first) with taps
+/// `h` of the same length: one multiply per tap pair; half-band filters
+/// (length 4k + 3) visit only the nonzero pairs (even distance from the ends).
+#[inline]
+fn fir_output(w: &[f32], h: &[f32], halfband: bool) -> f32 {
+    let n = w.len().min(h.len());
+    let m = n / 2;
+    let centre = if n % 2 == 1 {
+        w.get(m).zip(h.get(m)).map_or(0.0, |(a, b)| a * b)
+    } else {
+        0.0
+    };
+    if halfband {
+        // Pairs (2j, n-1-2j), j = 0..=k: chunk j of w[..m+1] starts at 2j and
+        // chunk j from the end of w[m..] ends at n-1-2j.
+        let (Some(wl), Some(wh), Some(hl)) = (w.get(..m + 1), w.get(m..n), h.get(..m + 1)) else {
+            return 0.0;
+        };
+        wl.chunks_exact(2)
+            .zip(wh.rchunks_exact(2))
+            .zip(hl.chunks_exact(2))
+            .fold(centre, |acc, ((a, b), c)| match (a, b, c) {
+                ([a, _], [_, b], [c, _]) => acc + c * (a + b),
+                _ => acc,
+            })
+    } else {
+        let (Some(wl), Some(wh), Some(hl)) = (w.get(..m), w.get(n - m..n), h.get(..m)) else {
+            return 0.0;
+        };
+        wl.iter()
+            .zip(wh.iter().rev())
+            .zip(hl)
+            .fold(centre, |acc, ((a, b), c)| acc + c * (a + b))
+    }
+}
+
+/// Rounds a length up to 4k + 3 (odd, outermost taps of a half-band nonzero).
+pub fn halfband_length(n: usize) -> usize {
+    let mut m = n.max(3);
+    while m % 4 != 3 {
+        m += 1;
+    }
+    m
 }
 
 /// Modified Bessel function I0 by its power series (converges for all x).
@@ -200,27 +250,41 @@ impl Decimator {
             stages: [Stage::default(); MAX_STAGES],
             n_stages: n,
             taps: [0.0; TAP_POOL],
-            ring: [0.0; 2 * TAP_POOL],
+            hist: [0.0; HIST_POOL],
         };
         // Rate after each stage in units of the output rate.
         let mut rate_in = f64::from(factor);
         let mut offset = 0usize;
-        for (st, &m) in d.stages.iter_mut().zip(factors.iter()).take(n) {
+        for (i, (st, &m)) in d.stages.iter_mut().zip(factors.iter()).take(n).enumerate() {
             let rate_out = rate_in / f64::from(m);
             let width = 2.0 * (rate_out - 2.0 * PASS_FRACTION) / rate_in;
-            let (taps, beta) = kaiser_order(STOP_DB, width);
+            let (mut taps, beta) = kaiser_order(STOP_DB, width);
+            let halfband = m == 2;
+            if halfband {
+                taps = halfband_length(taps);
+            }
             let end = offset + taps;
             let slot = d
                 .taps
                 .get_mut(offset..end)
                 .ok_or(DecimateError::TooManyTaps)?;
             kaiser_lowpass(slot, 1.0 / f64::from(m), beta);
+            if halfband {
+                // Even offsets from the centre are sinc zeros (~1e-17 after rounding).
+                let mid = taps / 2;
+                for (i, h) in slot.iter_mut().enumerate() {
+                    if i != mid && i.abs_diff(mid) % 2 == 0 {
+                        *h = 0.0;
+                    }
+                }
+            }
             slot.reverse();
             *st = Stage {
                 factor: m,
+                halfband,
                 taps,
                 offset,
-                pos: 0,
+                hist: offset + i * BLOCK,
                 phase: 0,
             };
             offset = end;
@@ -266,49 +330,90 @@ impl Decimator {
 
     /// Clears the state (taps are kept).
     pub fn reset(&mut self) {
-        self.ring = [0.0; 2 * TAP_POOL];
+        self.hist = [0.0; HIST_POOL];
         for s in self.stages.iter_mut() {
-            s.pos = 0;
             s.phase = 0;
         }
     }
 
     /// Pushes one input sample; returns an output every `factor` inputs
-    /// (after inputs factor-1, 2 factor-1, ...).
-    #[inline]
+    /// (after inputs factor-1, 2 factor-1, ...). Same results as [`Self::process`].
     pub fn push(&mut self, x: f32) -> Option<f32> {
-        let Self {
-            stages,
-            n_stages,
-            taps,
-            ring,
-            ..
-        } = self;
-        let mut v = x;
-        for st in stages.iter_mut().take(*n_stages) {
-            let n = st.taps;
-            let base = 2 * st.offset;
-            if let Some(r) = ring.get_mut(base + st.pos) {
-                *r = v;
-            }
-            if let Some(r) = ring.get_mut(base + st.pos + n) {
-                *r = v;
-            }
-            st.pos += 1;
-            if st.pos >= n {
-                st.pos = 0;
-            }
-            st.phase += 1;
-            if st.phase < st.factor {
-                return None;
-            }
-            st.phase = 0;
-            let w = ring.get(base + st.pos..base + st.pos + n).unwrap_or(&[]);
-            let h = taps.get(st.offset..st.offset + n).unwrap_or(&[]);
-            v = w.iter().zip(h).fold(0.0f32, |acc, (a, b)| acc + a * b);
-        }
-        Some(v)
+        let mut y = None;
+        self.process(&[x], |v| y = Some(v));
+        y
     }
+
+    /// Pushes a block of any length; calls `out` for each kept output, in
+    /// order. Results do not depend on how the input is split.
+    pub fn process(&mut self, input: &[f32], mut out: impl FnMut(f32)) {
+        for chunk in input.chunks(BLOCK) {
+            let mut a = [0f32; BLOCK];
+            let mut b = [0f32; BLOCK];
+            let mut len = chunk.len();
+            if let Some(dst) = a.get_mut(..len) {
+                dst.copy_from_slice(chunk);
+            }
+            let Self {
+                stages,
+                n_stages,
+                taps,
+                hist,
+                ..
+            } = self;
+            for st in stages.iter_mut().take(*n_stages) {
+                let src = a.get(..len).unwrap_or(&[]);
+                len = run_stage(st, taps, hist, src, &mut b);
+                core::mem::swap(&mut a, &mut b);
+                if len == 0 {
+                    break;
+                }
+            }
+            a.iter().take(len).for_each(|&v| out(v));
+        }
+    }
+}
+
+/// Runs one stage over `src` (at most [`BLOCK`] samples), writing kept
+/// outputs to `dst`; returns their count.
+fn run_stage(
+    st: &mut Stage,
+    taps: &[f32],
+    hist: &mut [f32],
+    src: &[f32],
+    dst: &mut [f32],
+) -> usize {
+    let n = st.taps;
+    let m = usize::from(st.factor.max(1));
+    let l = src.len();
+    let keep = n.saturating_sub(1);
+    let (Some(h), Some(t)) = (
+        hist.get_mut(st.hist..st.hist + keep + l),
+        taps.get(st.offset..st.offset + n),
+    ) else {
+        return 0;
+    };
+    if let Some(tail) = h.get_mut(keep..) {
+        tail.copy_from_slice(src);
+    }
+    // Output k of this block ends at block index first + k m.
+    let first = m - 1 - st.phase;
+    let windows = h.windows(n).skip(first).step_by(m).zip(dst.iter_mut());
+    let mut count = 0;
+    if st.halfband {
+        for (w, d) in windows {
+            *d = fir_output(w, t, true);
+            count += 1;
+        }
+    } else {
+        for (w, d) in windows {
+            *d = fir_output(w, t, false);
+            count += 1;
+        }
+    }
+    st.phase = (st.phase + l) % m;
+    h.copy_within(l.., 0);
+    count
 }
 
 #[cfg(test)]
@@ -322,11 +427,13 @@ mod tests {
             assert_eq!(&s[..n], want, "{d}");
         };
         f(1, &[]);
-        f(8, &[4, 2]);
-        f(1024, &[8, 8, 8, 2]);
+        f(8, &[2, 2, 2]);
+        f(1024, &[2; 10]);
         f(729, &[3, 3, 3, 3, 3, 3]);
-        f(12, &[6, 2]);
+        f(12, &[3, 2, 2]);
         f(25, &[5, 5]);
+        f(70, &[7, 5, 2]);
+        f(6, &[3, 2]);
         assert_eq!(stage_factors(11), Err(DecimateError::FactorPrime));
         assert_eq!(stage_factors(0), Err(DecimateError::FactorRange));
         assert_eq!(stage_factors(1025), Err(DecimateError::FactorRange));

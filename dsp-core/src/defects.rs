@@ -28,11 +28,17 @@
 //!    when its peak in that window reaches the threshold. Without an anchor
 //!    nothing is found. Random noise peaks rarely line up this way, which is
 //!    what keeps the false-alarm rate low.
-//! 5. **Attribution**: a found peak that also lies in the wide window of a
-//!    harmonic `h'` of another kind is shared. It is counted for the kind
-//!    with the lower harmonic number (a peak at BPFO is more plausibly BPFO's
-//!    fundamental than the n-th cage harmonic, since BPFO = n·FTF); with equal
-//!    numbers it counts for neither. `shared_with` reports the other kind.
+//! 5. **Attribution**: a found peak that another kind also found (peaks
+//!    within `refine_bins`), or that sits on any integer multiple `m` of
+//!    another family's anchored line (e.g. BPFO's 6th harmonic inside a BPFI
+//!    window; that family needing two found harmonics), is shared. It is
+//!    counted for the stronger family (summed prominence in dB of its found
+//!    harmonics: a stray one-peak anchor cannot take a peak from a family),
+//!    then for the lower
+//!    harmonic number (a peak at BPFO is more plausibly BPFO's fundamental
+//!    than the n-th cage harmonic, since BPFO = n·FTF); on a full tie it
+//!    counts for neither. `shared_with` reports the other kind, so
+//!    one peak never supports two detections.
 //! 6. **Sidebands**: BPFI at ± the bearing shaft's order, the 2×BSF line at ±
 //!    FTF, searched (±`refine_bins`, ± slip for FTF) beside each counted
 //!    harmonic among the first three; a pair's value is the weaker side's
@@ -42,6 +48,11 @@
 //! `detected` when at least `min_harmonics` (default 2) harmonics are counted,
 //! or when the fundamental is counted and a sideband pair reaches
 //! `sideband_threshold_db` (BPFI and BSF only).
+//!
+//! # Memory
+//! No heap. [`BearingDiagnosis`] is 1280 bytes (returned by value); the
+//! search uses about 1.5 KiB more stack (the 256-entry floor scratch and a
+//! 40-entry list of found peaks).
 //!
 //! # Score
 //! `score_db = 10·log10(Σ A_h² / Σ F_h²)` over the counted harmonics
@@ -409,6 +420,16 @@ impl Ctx<'_> {
     }
 }
 
+/// Attribution rank: family strength (dB sum), then lower harmonic number.
+#[derive(Clone, Copy)]
+struct Rank(f32, u8);
+
+impl Rank {
+    fn cmp_rank(&self, other: &Rank) -> core::cmp::Ordering {
+        self.0.total_cmp(&other.0).then(other.1.cmp(&self.1))
+    }
+}
+
 fn not_searched(h: u8, expected: f32) -> HarmonicResult {
     HarmonicResult {
         harmonic: h,
@@ -467,7 +488,7 @@ impl DefectSearch {
             mask: cfg.mask_shaft_harmonics,
         };
         let mut results = DefectKind::ALL.map(|k| self.search_kind(&ctx, k, orders.line(k)));
-        self.attribute(&ctx, &mut results, orders);
+        self.attribute(&ctx, &mut results);
         for r in results.iter_mut() {
             self.decide(&ctx, r, orders);
         }
@@ -574,35 +595,71 @@ impl DefectSearch {
         }
     }
 
-    /// Marks found peaks that also fall in another kind's harmonic window and
-    /// counts each for at most one kind (the lower harmonic number).
-    fn attribute(&self, ctx: &Ctx<'_>, results: &mut [DefectResult; 4], orders: &BearingOrders) {
-        let lines = orders.lines();
-        for ki in 0..results.len() {
-            let Some(r) = results.get_mut(ki) else {
-                continue;
-            };
+    /// Resolves peaks claimed by two kinds: a found harmonic whose peak is
+    /// within `refine_bins` of a found harmonic of another kind, or on any
+    /// integer multiple of another kind's anchored line (that kind having at
+    /// least two found harmonics), is shared. It counts for the kind with
+    /// the stronger family (summed prominence of its found harmonics), then
+    /// for the lower harmonic number; on a full tie for neither.
+    fn attribute(&self, ctx: &Ctx<'_>, results: &mut [DefectResult; 4]) {
+        // Snapshot of all found peaks: (kind index, harmonic, order).
+        let mut claims: heapless::Vec<(usize, u8, f32), { 4 * MAX_HARMONICS }> =
+            heapless::Vec::new();
+        for (ki, r) in results.iter().enumerate() {
+            for h in r.harmonics.iter().filter(|h| h.found) {
+                // Capacity 4 x MAX_HARMONICS holds every harmonic.
+                let _ = claims.push((ki, h.harmonic, h.found_order));
+            }
+        }
+        let same_peak = self.config.refine_bins * ctx.opb;
+        let found_count = |k: usize| claims.iter().filter(|(kj, _, _)| *kj == k).count();
+        // Family strength: summed prominence (dB) of the kind's found harmonics.
+        let strength: [f32; 4] = core::array::from_fn(|k| {
+            results.get(k).map_or(0.0, |r| {
+                r.harmonics
+                    .iter()
+                    .filter(|h| h.found)
+                    .map(|h| h.prominence_db.max(0.0))
+                    .sum()
+            })
+        });
+        let rank = |k: usize, h: u8| Rank(strength.get(k).copied().unwrap_or(0.0), h);
+        // Anchored actual line L' = f_a / h_a and anchor harmonic of each kind.
+        let families: [Option<(f32, u8)>; 4] = core::array::from_fn(|k| {
+            let r = results.get(k)?;
+            let ha = r.anchor?;
+            let h = r.harmonics.iter().find(|h| h.harmonic == ha)?;
+            (h.found_order > 0.0).then_some((h.found_order / f32::from(ha), ha))
+        });
+        for (ki, r) in results.iter_mut().enumerate() {
             for hr in r.harmonics.iter_mut() {
                 hr.counted = hr.found;
                 if !hr.found {
                     continue;
                 }
-                for (kj, &other_line) in lines.iter().enumerate() {
-                    if kj == ki {
-                        continue;
+                let mine = rank(ki, hr.harmonic);
+                let o = hr.found_order;
+                // (a) another kind found the same peak.
+                let same = claims
+                    .iter()
+                    .filter(|(kj, _, o2)| *kj != ki && libm::fabsf(*o2 - o) <= same_peak)
+                    .map(|&(kj, h2, _)| (kj, rank(kj, h2)));
+                // (b) the peak sits on a harmonic m of another kind's family
+                // (anchored line L'), including harmonics beyond the searched ones.
+                let family = families.iter().enumerate().filter_map(|(kj, f)| {
+                    let (line, ha) = (*f)?;
+                    if kj == ki || found_count(kj) < 2 {
+                        return None;
                     }
-                    let clash = (1..=self.config.harmonics).find(|&h2| {
-                        let w = self.wide(other_line, h2, ctx.opb);
-                        libm::fabsf(hr.found_order - w.expected) <= w.half
-                    });
-                    if let Some(h2) = clash {
-                        if hr.shared_with.is_none() || h2 <= hr.harmonic {
-                            hr.shared_with = DefectKind::from_index(kj);
-                        }
-                        if h2 <= hr.harmonic {
-                            hr.counted = false;
-                        }
-                    }
+                    let m = libm::roundf(o / line);
+                    let tol = (self.config.refine_bins + m / (4.0 * f32::from(ha))) * ctx.opb;
+                    let m_u8 = u8::try_from(f32_to_usize_sat(m)).unwrap_or(u8::MAX);
+                    (m >= 1.0 && libm::fabsf(o - m * line) <= tol).then_some((kj, rank(kj, m_u8)))
+                });
+                let rival = same.chain(family).max_by(|a, b| a.1.cmp_rank(&b.1));
+                if let Some((kj, rank)) = rival {
+                    hr.shared_with = DefectKind::from_index(kj);
+                    hr.counted = mine.cmp_rank(&rank) == core::cmp::Ordering::Greater;
                 }
             }
         }

@@ -13,8 +13,11 @@
 //! * `crest_factor` = peak / AC RMS.
 //! * `kurtosis` = m4 / m2^2 (4th standardised moment, normal = 3).
 //! * non-finite samples are skipped here (not counted in `count`) and
-//!   counted in `non_finite`; clipped samples are counted in `clipped` and
-//!   still included in the statistics.
+//!   counted in `non_finite`; the filters get the last finite sample instead
+//!   (0 before the first), so a dropout neither propagates NaN nor injects a
+//!   step of the DC offset that would look like an impact in the envelope.
+//!   Clipped samples are counted in `clipped` and still included in the
+//!   statistics.
 
 use crate::velocity::Zone;
 
@@ -41,7 +44,7 @@ pub struct Overall {
     pub kurtosis: f32,
     /// Samples at or beyond the ADC full scale.
     pub clipped: u32,
-    /// Non-finite input samples (replaced by 0 in the filters, skipped here).
+    /// Non-finite input samples (last finite sample held in the filters, skipped here).
     pub non_finite: u32,
     /// Velocity RMS in mm/s over the configured band (0 when disabled or not settled).
     pub velocity_rms_mm_s: f32,
@@ -63,6 +66,7 @@ pub struct OverallAcc {
     max: f32,
     clipped: u32,
     non_finite: u32,
+    last: f32,
 }
 
 impl OverallAcc {
@@ -82,13 +86,15 @@ impl OverallAcc {
         self.clipped = self.clipped.saturating_add(1);
     }
 
-    /// Adds one sample; returns the value for the filters (0 for non-finite).
+    /// Adds one sample; returns the value for the filters (for a non-finite
+    /// sample the last finite one, 0 before any).
     #[inline]
     pub fn add(&mut self, x: f32) -> f32 {
         if !x.is_finite() {
             self.non_finite = self.non_finite.saturating_add(1);
-            return 0.0;
+            return self.last;
         }
+        self.last = x;
         let k = match self.shift {
             Some(k) => k,
             None => {
@@ -181,8 +187,9 @@ mod tests {
         assert_eq!(a.add(f32::NAN), 0.0);
         assert_eq!(a.add(f32::INFINITY), 0.0);
         a.add(1.0);
+        assert_eq!(a.add(f32::NAN), 1.0);
         let o = a.snapshot();
-        assert_eq!((o.count, o.non_finite), (1, 2));
+        assert_eq!((o.count, o.non_finite), (1, 3));
         assert!(o.mean == 1.0 && o.rms_ac == 0.0 && o.kurtosis == 0.0);
     }
 }

@@ -205,19 +205,33 @@ impl VelocityMeter {
 
     /// Feeds raw acceleration (g, finite).
     pub fn process(&mut self, block: &[f32]) {
-        for &x in block {
-            let k = *self.shift.get_or_insert(x);
-            if let Some(a) = self.dec.push(x - k) {
-                let mut v = [a];
-                self.filt.process(&mut v);
-                let [v] = v;
-                if self.seen >= self.settle {
-                    self.sumsq += f64::from(v) * f64::from(v);
-                    self.count = self.count.saturating_add(1);
-                } else {
-                    self.seen += 1;
-                }
+        let Some(&x0) = block.first() else { return };
+        let k = *self.shift.get_or_insert(x0);
+        let mut buf = [0f32; crate::decimate::BLOCK];
+        for chunk in block.chunks(crate::decimate::BLOCK) {
+            for (b, &x) in buf.iter_mut().zip(chunk) {
+                *b = x - k;
             }
+            let Self {
+                dec,
+                filt,
+                settle,
+                seen,
+                sumsq,
+                count,
+                ..
+            } = self;
+            dec.process(buf.get(..chunk.len()).unwrap_or(&[]), |a| {
+                let mut v = [a];
+                filt.process(&mut v);
+                let [v] = v;
+                if *seen >= *settle {
+                    *sumsq += f64::from(v) * f64::from(v);
+                    *count = count.saturating_add(1);
+                } else {
+                    *seen += 1;
+                }
+            });
         }
     }
 

@@ -16,6 +16,8 @@ struct Cli {
 
 #[derive(Subcommand)]
 enum Command {
+    /// Run the main job on a built-in simulated gearbox (the embedded demo).
+    Demo(host_sim::cmd_demo::DemoArgs),
     /// Analyse a recording with a measuring point and print the report.
     Analyze(host_sim::cmd_analyze::AnalyzeArgs),
     /// Compare two reports (or folders of reports); exit 1 on a difference.
@@ -24,6 +26,8 @@ enum Command {
     Batch(host_sim::cmd_batch::BatchArgs),
     /// Write a simulated gearbox record (WAV: ch0 accel g, ch1 tach V).
     Simulate(host_sim::cmd_simulate::SimulateArgs),
+    /// Read node frames at the plant gateway: decode, import, status, trend.
+    Gateway(host_sim::gateway::GatewayArgs),
 }
 
 fn main() -> ExitCode {
@@ -38,9 +42,11 @@ fn main() -> ExitCode {
     };
     let result: Result<(), host_sim::error::CliError> = match cli.command {
         Command::Simulate(a) => host_sim::cmd_simulate::run(&a),
+        Command::Demo(a) => host_sim::cmd_demo::run_cmd(&a),
         Command::Analyze(a) => host_sim::cmd_analyze::run_cmd(&a),
         Command::Compare(a) => host_sim::cmd_compare::run(&a),
         Command::Batch(a) => host_sim::cmd_batch::run(&a),
+        Command::Gateway(a) => host_sim::gateway::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

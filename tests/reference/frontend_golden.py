@@ -36,34 +36,46 @@ PASS_FRACTION = 0.4
 
 
 def stage_factors(d):
-    primes = []
-    rest = d
-    for p in (7, 5, 3, 2):
-        while rest % p == 0:
-            primes.append(p)
-            rest //= p
-    assert rest == 1
-    if not primes:
-        return []
-    head, last = primes[:-1], primes[-1]
+    """Odd primes (7, 5, 3) merged greedily into stages <= 8, sorted largest first,
+    then one half-band stage per factor 2."""
     out = []
-    for p in head:
-        if out and out[-1] * p <= 8:
-            out[-1] *= p
-        else:
-            out.append(p)
+    rest = d
+    for p in (7, 5, 3):
+        while rest % p == 0:
+            rest //= p
+            if out and out[-1] * p <= 8:
+                out[-1] *= p
+            else:
+                out.append(p)
     out.sort(reverse=True)
-    return out + [last]
+    while rest % 2 == 0:
+        rest //= 2
+        out.append(2)
+    assert rest == 1
+    return out
 
 
 def decimator_taps(d):
+    """Per stage: kaiserord(STOP_DB, width) and firwin(n, 1/M, window=('kaiser', beta));
+    factor-2 stages are half-bands: n rounded up to 4k+3 and the sinc zeros at even
+    offsets from the centre set to exactly 0."""
     taps = []
     rate_in = float(d)
     for m in stage_factors(d):
         rate_out = rate_in / m
         width = 2.0 * (rate_out - 2.0 * PASS_FRACTION) / rate_in
         n, beta = sig.kaiserord(STOP_DB, width)
-        taps.append((m, sig.firwin(n, 1.0 / m, window=("kaiser", beta))))
+        if m == 2:
+            n = max(n, 3)
+            while n % 4 != 3:
+                n += 1
+        h = sig.firwin(n, 1.0 / m, window=("kaiser", beta))
+        if m == 2:
+            mid = n // 2
+            for i in range(n):
+                if i != mid and abs(i - mid) % 2 == 0:
+                    h[i] = 0.0
+        taps.append((m, h))
         rate_in = rate_out
     return taps
 
@@ -110,7 +122,16 @@ def frontend_cases(x):
     overall = {"count": int(len(xd)), "mean": mean, "rms_ac": std, "peak": peak,
                "peak_to_peak": float(np.ptp(xd)), "crest_factor": peak / std,
                "kurtosis": float(scipy.stats.kurtosis(xd, fisher=False))}
-    return {"stages": [{"factor": m, "taps": [float(t) for t in h]} for m, h in stages],
+    # Envelope delay in input samples: scipy group delay of the band-pass at the band
+    # centre plus each FIR's group delay (at 0.1 x its rate) scaled to input samples.
+    fc = centre_hz(band[0], band[1], fs)
+    delay = sum(sig.group_delay((s[:3], s[3:]), w=[fc], fs=fs)[1][0] for s in sos)
+    scale = 1
+    for m, h in stages:
+        delay += sig.group_delay((h, [1.0]), w=[0.1], fs=1.0)[1][0] * scale
+        scale *= m
+    return {"delay_input_samples": float(delay),
+            "stages": [{"factor": m, "taps": [float(t) for t in h]} for m, h in stages],
             "cases": out, "overall": overall}
 
 

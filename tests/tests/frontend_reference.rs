@@ -40,6 +40,7 @@ struct OverallRef {
 
 #[derive(Deserialize)]
 struct Golden {
+    delay_input_samples: f64,
     stages: Vec<Stage>,
     cases: Vec<Case>,
     overall: OverallRef,
@@ -139,4 +140,18 @@ fn overall_indicators_match_numpy() {
     assert!(rel(o.crest_factor, r.crest_factor) < 1e-5);
     assert!(rel(o.kurtosis, r.kurtosis) < 1e-4);
     assert_eq!((o.clipped, o.non_finite), (0, 0));
+}
+
+/// Source: scipy.signal.group_delay of the scipy band-pass at the band centre
+/// plus group_delay of each FIR stage, scaled to input samples.
+#[test]
+fn envelope_delay_matches_scipy_group_delay() {
+    let g = golden();
+    let fe = FrontEnd::new(&config(&g.cases[0])).unwrap();
+    let d = f64::from(fe.delay_input_samples());
+    println!(
+        "envelope delay: {d:.4} input samples vs scipy {:.4}",
+        g.delay_input_samples
+    );
+    assert!((d - g.delay_input_samples).abs() < 1e-3 * g.delay_input_samples);
 }

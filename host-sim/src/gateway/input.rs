@@ -1,0 +1,257 @@
+//! Reading frames from text lines (hex or base64, optionally preceded by a
+//! receive time) or from raw binary files of concatenated frames.
+
+use crate::error::CliError;
+use dsp_core::frame::layout::{
+    full_frame_len, OFF_COUNT_ZONE, REDUCED_LEN, TYPE_FULL, TYPE_REDUCED,
+};
+use std::io::Read;
+
+/// How payloads are written in the input.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum)]
+pub enum InputFormat {
+    /// Per line: hex if the token is all hex digits of even length, else base64.
+    Auto,
+    /// One hex payload per line.
+    Hex,
+    /// One base64 payload per line.
+    Base64,
+    /// A raw binary file of concatenated frames.
+    Binary,
+}
+
+/// One payload read from the input, with where it came from.
+#[derive(Clone, Debug)]
+pub struct InputItem {
+    /// File name or "-" for stdin.
+    pub source: String,
+    /// 1-based line number (text) or frame index (binary).
+    pub line: usize,
+    /// Receive time token when the line had two tokens.
+    pub rx_time: Option<String>,
+    /// The text of the payload as given (hex for binary input).
+    pub text: String,
+    /// Payload bytes, or why they could not be read.
+    pub bytes: Result<Vec<u8>, String>,
+}
+
+/// Decodes hex (upper or lower case, even length).
+pub fn parse_hex(s: &str) -> Result<Vec<u8>, String> {
+    if s.len() % 2 != 0 {
+        return Err(format!("odd number of hex digits ({})", s.len()));
+    }
+    s.as_bytes()
+        .chunks_exact(2)
+        .map(|p| {
+            let t = std::str::from_utf8(p).map_err(|_| "not ASCII".to_string())?;
+            u8::from_str_radix(t, 16).map_err(|_| format!("bad hex digits {t:?}"))
+        })
+        .collect()
+}
+
+fn b64_value(c: u8) -> Option<u32> {
+    match c {
+        b'A'..=b'Z' => Some(u32::from(c - b'A')),
+        b'a'..=b'z' => Some(u32::from(c - b'a') + 26),
+        b'0'..=b'9' => Some(u32::from(c - b'0') + 52),
+        b'+' | b'-' => Some(62),
+        b'/' | b'_' => Some(63),
+        _ => None,
+    }
+}
+
+/// Decodes base64 (RFC 4648, standard or URL alphabet, padding optional).
+pub fn parse_base64(s: &str) -> Result<Vec<u8>, String> {
+    let body = s.trim_end_matches('=');
+    let mut out = Vec::with_capacity(body.len() * 3 / 4);
+    let mut acc = 0u32;
+    let mut nbits = 0u32;
+    for c in body.bytes() {
+        let v = b64_value(c).ok_or_else(|| format!("bad base64 character {:?}", char::from(c)))?;
+        acc = (acc << 6) | v;
+        nbits += 6;
+        if nbits >= 8 {
+            nbits -= 8;
+            out.push(u8::try_from((acc >> nbits) & 0xFF).unwrap_or(0));
+        }
+    }
+    // RFC 4648: leftover bits must be padding zeros; 6 leftover bits is an impossible length.
+    if nbits >= 6 || acc & ((1 << nbits) - 1) != 0 {
+        return Err("base64 length or padding bits invalid".into());
+    }
+    Ok(out)
+}
+
+/// Encodes base64 (standard alphabet, padded); used by tests and vectors.
+pub fn to_base64(b: &[u8]) -> String {
+    const A: &[u8; 64] = b"ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
+    let mut s = String::new();
+    for chunk in b.chunks(3) {
+        let n = chunk
+            .iter()
+            .enumerate()
+            .fold(0u32, |acc, (i, &x)| acc | u32::from(x) << (16 - 8 * i));
+        for i in 0..=chunk.len() {
+            let idx = usize::try_from((n >> (18 - 6 * i)) & 63).unwrap_or(0);
+            s.push(char::from(A.get(idx).copied().unwrap_or(b'A')));
+        }
+        for _ in chunk.len()..3 {
+            s.push('=');
+        }
+    }
+    s
+}
+
+/// Hex text of bytes.
+pub fn to_hex(b: &[u8]) -> String {
+    b.iter().map(|x| format!("{x:02x}")).collect()
+}
+
+fn parse_token(tok: &str, fmt: InputFormat) -> Result<Vec<u8>, String> {
+    match fmt {
+        InputFormat::Hex => parse_hex(tok),
+        InputFormat::Base64 => parse_base64(tok),
+        _ => {
+            if tok.len() % 2 == 0 && tok.bytes().all(|c| c.is_ascii_hexdigit()) {
+                parse_hex(tok)
+            } else {
+                parse_base64(tok)
+            }
+        }
+    }
+}
+
+/// Items of a text input: one payload per line, `[RX_TIME] PAYLOAD`; blank
+/// lines and lines starting with `#` are skipped.
+pub fn parse_text(source: &str, text: &str, fmt: InputFormat) -> Vec<InputItem> {
+    let mut items = Vec::new();
+    for (i, raw) in text.lines().enumerate() {
+        let line = raw.trim();
+        if line.is_empty() || line.starts_with('#') {
+            continue;
+        }
+        let toks: Vec<&str> = line.split_whitespace().collect();
+        let (rx_time, tok, bytes) = match toks.as_slice() {
+            [p] => (None, *p, parse_token(p, fmt)),
+            [t, p] => (Some((*t).to_string()), *p, parse_token(p, fmt)),
+            _ => (
+                None,
+                line,
+                Err(format!(
+                    "expected `[RX_TIME] PAYLOAD`, got {} fields",
+                    toks.len()
+                )),
+            ),
+        };
+        items.push(InputItem {
+            source: source.to_string(),
+            line: i + 1,
+            rx_time,
+            text: tok.to_string(),
+            bytes,
+        });
+    }
+    items
+}
+
+/// Splits a binary file of concatenated frames using the lengths their
+/// headers imply. An unknown header stops the split: the rest of the file
+/// becomes one item that the decoder will reject (nothing is dropped).
+pub fn split_binary(source: &str, data: &[u8]) -> Vec<InputItem> {
+    let mut items = Vec::new();
+    let mut rest = data;
+    let mut index = 1;
+    while !rest.is_empty() {
+        let b0 = rest.first().copied().unwrap_or(0);
+        let len = match b0 & 0x0F {
+            TYPE_FULL if b0 >> 4 == 1 => rest
+                .get(OFF_COUNT_ZONE)
+                .map(|c| usize::from(c & 7))
+                .filter(|&n| n <= 4)
+                .map(full_frame_len),
+            TYPE_REDUCED if b0 >> 4 == 1 => Some(REDUCED_LEN),
+            _ => None,
+        };
+        let take = len.unwrap_or(rest.len()).min(rest.len());
+        let (frame, tail) = rest.split_at(take);
+        items.push(InputItem {
+            source: source.to_string(),
+            line: index,
+            rx_time: None,
+            text: to_hex(frame),
+            bytes: Ok(frame.to_vec()),
+        });
+        rest = tail;
+        index += 1;
+    }
+    items
+}
+
+/// Reads every input (`-` or no file means stdin).
+pub fn read_inputs(files: &[String], fmt: InputFormat) -> Result<Vec<InputItem>, CliError> {
+    let names: Vec<String> = if files.is_empty() {
+        vec!["-".to_string()]
+    } else {
+        files.to_vec()
+    };
+    let mut items = Vec::new();
+    for name in names {
+        let mut data = Vec::new();
+        if name == "-" {
+            std::io::stdin()
+                .read_to_end(&mut data)
+                .map_err(|e| CliError::input("stdin", e))?;
+        } else {
+            data = std::fs::read(&name).map_err(|e| CliError::input(&name, e))?;
+        }
+        if fmt == InputFormat::Binary {
+            items.extend(split_binary(&name, &data));
+        } else {
+            let text = String::from_utf8(data).map_err(|e| {
+                CliError::input(&name, format!("not UTF-8 text ({e}); use --format binary"))
+            })?;
+            items.extend(parse_text(&name, &text, fmt));
+        }
+    }
+    Ok(items)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn base64_rfc4648_vectors() {
+        // RFC 4648 section 10 test vectors.
+        for (plain, enc) in [
+            ("", ""),
+            ("f", "Zg=="),
+            ("fo", "Zm8="),
+            ("foo", "Zm9v"),
+            ("foob", "Zm9vYg=="),
+            ("fooba", "Zm9vYmE="),
+            ("foobar", "Zm9vYmFy"),
+        ] {
+            assert_eq!(to_base64(plain.as_bytes()), enc);
+            assert_eq!(parse_base64(enc).unwrap(), plain.as_bytes());
+        }
+        assert!(parse_base64("Zm9v!").is_err());
+        assert!(parse_base64("Z").is_err());
+    }
+
+    #[test]
+    fn hex_and_lines() {
+        assert_eq!(parse_hex("0aFF").unwrap(), vec![0x0a, 0xff]);
+        assert!(parse_hex("abc").is_err());
+        let items = parse_text(
+            "x",
+            "# c\n\n0a0b\n2026-01-01T00:00:00Z Cgs=\na b c\n",
+            InputFormat::Auto,
+        );
+        assert_eq!(items.len(), 3);
+        assert_eq!(items[0].line, 3);
+        assert_eq!(items[1].bytes.as_ref().unwrap(), &vec![0x0a, 0x0b]);
+        assert_eq!(items[1].rx_time.as_deref(), Some("2026-01-01T00:00:00Z"));
+        assert!(items[2].bytes.is_err());
+    }
+}

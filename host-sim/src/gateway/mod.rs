@@ -1,0 +1,731 @@
+//! `envord gateway ...`: reading node frames at the plant gateway.
+//!
+//! * `decode`: frames (hex/base64 lines or raw binary) to JSON lines or a
+//!   table, with sequence tracking and a reject log.
+//! * `import`: into the SQLite store (docs/gateway.md), idempotent and safe
+//!   against interruption (batched transactions, unique node+seq+payload).
+//! * `status`: alarm state of every watched bearing, per sensor and per
+//!   physical bearing (gateway map), plus link statistics.
+//! * `trend`: one bearing's scores over time, as a table and an SVG plot.
+//! * `baseline`: set or clear a hand-set baseline.
+
+pub mod input;
+pub mod map;
+pub mod plot;
+pub mod seq;
+pub mod store;
+pub mod trend;
+
+use crate::error::CliError;
+use dsp_core::frame::{decode_any, DefectKind, Frame};
+use input::{read_inputs, InputFormat, InputItem};
+use seq::{SeqEvent, SeqTracker};
+use std::io::Write;
+use trend::{Limits, State};
+
+/// Arguments of `envord gateway`.
+#[derive(clap::Args, Debug)]
+pub struct GatewayArgs {
+    #[command(subcommand)]
+    command: GatewayCommand,
+}
+
+#[derive(clap::Subcommand, Debug)]
+enum GatewayCommand {
+    /// Decode frames and print them (JSON lines by default).
+    Decode(DecodeArgs),
+    /// Store frames in the gateway database.
+    Import(ImportArgs),
+    /// Print the alarm state of every watched bearing and the link statistics.
+    Status(StatusArgs),
+    /// Print one bearing's scores over arrival order and plot them as SVG.
+    Trend(TrendArgs),
+    /// Set or clear the hand-set baseline of one defect.
+    Baseline(BaselineArgs),
+}
+
+#[derive(clap::Args, Debug)]
+struct DecodeArgs {
+    /// Input files (none or "-" for stdin).
+    files: Vec<String>,
+    /// How payloads are written.
+    #[arg(long, value_enum, default_value = "auto")]
+    format: InputFormat,
+    /// Print a table instead of JSON lines.
+    #[arg(long)]
+    table: bool,
+    /// Append rejected frames (JSON lines with the reason) to this file.
+    #[arg(long)]
+    rejects: Option<String>,
+    /// Exit with code 2 if any frame was rejected.
+    #[arg(long)]
+    strict: bool,
+}
+
+#[derive(clap::Args, Debug)]
+struct ImportArgs {
+    /// Gateway database file (created if missing).
+    #[arg(long)]
+    db: String,
+    /// Input files (none or "-" for stdin).
+    files: Vec<String>,
+    /// How payloads are written.
+    #[arg(long, value_enum, default_value = "auto")]
+    format: InputFormat,
+    /// Frames per transaction.
+    #[arg(long, default_value_t = 500)]
+    batch_size: usize,
+    /// Pause after each committed batch (ms); lets tests interrupt an import.
+    #[arg(long, default_value_t = 0, hide = true)]
+    batch_pause_ms: u64,
+    /// Print each sequence event, not only the summary.
+    #[arg(long)]
+    verbose: bool,
+}
+
+#[derive(clap::Args, Debug)]
+struct LimitArgs {
+    /// Reports averaged into a learned baseline.
+    #[arg(long, default_value_t = 5)]
+    baseline_count: usize,
+    /// Alert at this rise over the baseline (dB).
+    #[arg(long, default_value_t = 6.0)]
+    alert_rise: f64,
+    /// Danger at this rise over the baseline (dB).
+    #[arg(long, default_value_t = 12.0)]
+    danger_rise: f64,
+    /// Alert at or above this score (dB).
+    #[arg(long, default_value_t = 20.0)]
+    alert_abs: f64,
+    /// Danger at or above this score (dB).
+    #[arg(long, default_value_t = 30.0)]
+    danger_abs: f64,
+}
+
+impl LimitArgs {
+    fn limits(&self) -> Result<Limits, CliError> {
+        let l = Limits {
+            baseline_count: self.baseline_count,
+            alert_rise_db: self.alert_rise,
+            danger_rise_db: self.danger_rise,
+            alert_abs_db: self.alert_abs,
+            danger_abs_db: self.danger_abs,
+        };
+        let finite = [
+            l.alert_rise_db,
+            l.danger_rise_db,
+            l.alert_abs_db,
+            l.danger_abs_db,
+        ]
+        .iter()
+        .all(|x| x.is_finite());
+        if !finite || l.alert_rise_db > l.danger_rise_db || l.alert_abs_db > l.danger_abs_db {
+            return Err(CliError::input(
+                "command line",
+                "limits must be finite with alert <= danger (--alert-rise/--danger-rise, --alert-abs/--danger-abs)",
+            ));
+        }
+        Ok(l)
+    }
+}
+
+#[derive(clap::Args, Debug)]
+struct StatusArgs {
+    /// Gateway database file.
+    #[arg(long)]
+    db: String,
+    /// Gateway map (TOML) naming physical bearings.
+    #[arg(long)]
+    map: Option<String>,
+    /// Print JSON instead of tables.
+    #[arg(long)]
+    json: bool,
+    #[command(flatten)]
+    limits: LimitArgs,
+}
+
+#[derive(clap::Args, Debug)]
+struct TrendArgs {
+    /// Gateway database file.
+    #[arg(long)]
+    db: String,
+    /// Node id.
+    #[arg(long)]
+    node: u16,
+    /// Bearing index at the node.
+    #[arg(long)]
+    bearing: u8,
+    /// Only this defect (bpfo, bpfi, ftf, bsf); all four by default.
+    #[arg(long)]
+    defect: Option<String>,
+    /// Write an SVG plot here.
+    #[arg(long)]
+    svg: Option<String>,
+    #[command(flatten)]
+    limits: LimitArgs,
+}
+
+#[derive(clap::Args, Debug)]
+struct BaselineArgs {
+    /// Gateway database file.
+    #[arg(long)]
+    db: String,
+    /// Node id.
+    #[arg(long)]
+    node: u16,
+    /// Bearing index at the node.
+    #[arg(long)]
+    bearing: u8,
+    /// Defect kind (bpfo, bpfi, ftf, bsf).
+    #[arg(long)]
+    defect: String,
+    /// Baseline score in dB.
+    #[arg(long, conflicts_with = "clear", required_unless_present = "clear")]
+    score_db: Option<f64>,
+    /// Remove the hand-set baseline (back to learning from the first reports).
+    #[arg(long)]
+    clear: bool,
+}
+
+/// Runs `envord gateway ...`.
+pub fn run(args: GatewayArgs) -> Result<(), CliError> {
+    match args.command {
+        GatewayCommand::Decode(a) => decode_cmd(a),
+        GatewayCommand::Import(a) => import_cmd(a),
+        GatewayCommand::Status(a) => status_cmd(a),
+        GatewayCommand::Trend(a) => trend_cmd(a),
+        GatewayCommand::Baseline(a) => baseline_cmd(a),
+    }
+}
+
+fn parse_kind(s: &str) -> Result<DefectKind, CliError> {
+    DefectKind::ALL
+        .iter()
+        .copied()
+        .find(|k| k.name().eq_ignore_ascii_case(s))
+        .ok_or_else(|| {
+            CliError::input(
+                "--defect",
+                format!("{s:?} is not one of bpfo, bpfi, ftf, bsf"),
+            )
+        })
+}
+
+/// Decodes one input item: the frame or the reject reason.
+pub fn decode_item(item: &InputItem) -> Result<Frame, String> {
+    let bytes = item
+        .bytes
+        .as_ref()
+        .map_err(|e| format!("unreadable payload: {e}"))?;
+    decode_any(bytes).map_err(|e| format!("{e}"))
+}
+
+fn seq_json(ev: &SeqEvent) -> serde_json::Value {
+    match ev {
+        SeqEvent::Gap { from, to, missing } => {
+            serde_json::json!({"event": "gap", "from": from, "to": to, "missing": missing})
+        }
+        SeqEvent::Reset { from, to } => {
+            serde_json::json!({"event": "reset", "from": from, "to": to})
+        }
+        SeqEvent::Backward { from, to } => {
+            serde_json::json!({"event": "backward", "from": from, "to": to})
+        }
+        e => serde_json::json!({"event": e.name()}),
+    }
+}
+
+fn out_err(e: std::io::Error) -> CliError {
+    CliError::Other(format!("stdout: {e}"))
+}
+
+fn decode_cmd(a: DecodeArgs) -> Result<(), CliError> {
+    let items = read_inputs(&a.files, a.format)?;
+    let mut tracker = SeqTracker::new();
+    let stdout = std::io::stdout();
+    let mut out = stdout.lock();
+    let mut reject_log = match &a.rejects {
+        Some(p) => Some(
+            std::fs::OpenOptions::new()
+                .create(true)
+                .append(true)
+                .open(p)
+                .map_err(|e| CliError::Other(format!("{p}: {e}")))?,
+        ),
+        None => None,
+    };
+    let mut first_reject: Option<String> = None;
+    if a.table {
+        writeln!(
+            out,
+            "{:<16} {:>5} {:<8} {:>6} {:>6} {:>9} {:<22} detail",
+            "source:line", "node", "frame", "seq", "flags", "speed", "sequence"
+        )
+        .map_err(out_err)?;
+    }
+    for item in &items {
+        match decode_item(item) {
+            Ok(frame) => {
+                let (node, seq) = store::node_seq(&frame);
+                let ev = tracker.observe(node, seq, item.bytes.as_deref().unwrap_or(&[]));
+                if a.table {
+                    let (kind, flags, speed, detail) = match &frame {
+                        Frame::Full(r) => {
+                            let worst = dsp_core::frame::ReducedReport::from_report(r).worst;
+                            (
+                                "full",
+                                r.flags.to_bits(),
+                                format!("{:.2}", r.speed_rpm),
+                                worst_text(worst),
+                            )
+                        }
+                        Frame::Reduced(r) => (
+                            "reduced",
+                            r.flags.to_bits(),
+                            "-".into(),
+                            worst_text(r.worst),
+                        ),
+                    };
+                    writeln!(
+                        out,
+                        "{:<16} {:>5} {:<8} {:>6} {:>#6x} {:>9} {:<22} {}",
+                        format!("{}:{}", item.source, item.line),
+                        node,
+                        kind,
+                        seq,
+                        flags,
+                        speed,
+                        ev.describe(),
+                        detail
+                    )
+                    .map_err(out_err)?;
+                } else {
+                    let v = serde_json::json!({
+                        "type": "report", "source": item.source, "line": item.line,
+                        "rx_time": item.rx_time, "sequence": seq_json(&ev), "report": frame,
+                    });
+                    writeln!(out, "{v}").map_err(out_err)?;
+                }
+            }
+            Err(reason) => {
+                let v = serde_json::json!({
+                    "type": "reject", "source": item.source, "line": item.line,
+                    "rx_time": item.rx_time, "text": item.text, "reason": reason,
+                });
+                if a.table {
+                    writeln!(
+                        out,
+                        "{:<16} REJECT {}: {}",
+                        format!("{}:{}", item.source, item.line),
+                        reason,
+                        item.text
+                    )
+                    .map_err(out_err)?;
+                } else {
+                    writeln!(out, "{v}").map_err(out_err)?;
+                }
+                if let Some(f) = reject_log.as_mut() {
+                    writeln!(f, "{v}").map_err(|e| CliError::Other(format!("reject log: {e}")))?;
+                }
+                first_reject.get_or_insert(format!("{}:{}: {reason}", item.source, item.line));
+            }
+        }
+    }
+    out.flush().map_err(out_err)?;
+    match first_reject {
+        Some(r) if a.strict => Err(CliError::Input(format!("rejected frame(s), first at {r}"))),
+        _ => Ok(()),
+    }
+}
+
+fn worst_text(w: Option<dsp_core::frame::WorstDefect>) -> String {
+    match w {
+        Some(w) => format!(
+            "worst: bearing {} {} {:.0} dB{}",
+            w.bearing,
+            w.kind.name(),
+            w.score_db,
+            if w.detected { " detected" } else { "" }
+        ),
+        None => "no bearings".into(),
+    }
+}
+
+fn sql_err(e: rusqlite::Error) -> CliError {
+    CliError::Other(format!("database: {e}"))
+}
+
+fn import_cmd(a: ImportArgs) -> Result<(), CliError> {
+    if a.batch_size == 0 {
+        return Err(CliError::input("--batch-size", "must be at least 1"));
+    }
+    let items = read_inputs(&a.files, a.format)?;
+    let mut conn = store::open(&a.db)?;
+    // Seed the tracker with what is stored so events refer to the full history.
+    let mut tracker = SeqTracker::new();
+    for (node, seq, payload) in store::arrivals(&conn).map_err(sql_err)? {
+        tracker.observe(node, seq, &payload);
+    }
+    let (mut new, mut known, mut rejected, mut new_rejects) = (0u64, 0u64, 0u64, 0u64);
+    let mut events: Vec<String> = Vec::new();
+    for batch in items.chunks(a.batch_size) {
+        let tx = conn.transaction().map_err(sql_err)?;
+        for item in batch {
+            match decode_item(item) {
+                Ok(frame) => {
+                    let payload = item.bytes.as_deref().unwrap_or(&[]);
+                    let origin = store::Origin {
+                        source: &item.source,
+                        line: item.line,
+                        rx_time: item.rx_time.as_deref(),
+                    };
+                    if store::insert_frame(&tx, &frame, payload, &origin).map_err(sql_err)? {
+                        new += 1;
+                        let (node, seq) = store::node_seq(&frame);
+                        let ev = tracker.observe(node, seq, payload);
+                        if !matches!(ev, SeqEvent::InOrder | SeqEvent::First) {
+                            events.push(format!(
+                                "{}:{}: node {node} seq {seq}: {}",
+                                item.source,
+                                item.line,
+                                ev.describe()
+                            ));
+                        }
+                    } else {
+                        known += 1;
+                    }
+                }
+                Err(reason) => {
+                    rejected += 1;
+                    if store::insert_reject(&tx, &item.source, item.line, &item.text, &reason)
+                        .map_err(sql_err)?
+                    {
+                        new_rejects += 1;
+                    }
+                    events.push(format!("{}:{}: rejected: {reason}", item.source, item.line));
+                }
+            }
+        }
+        tx.commit().map_err(sql_err)?;
+        if a.batch_pause_ms > 0 {
+            std::thread::sleep(std::time::Duration::from_millis(a.batch_pause_ms));
+        }
+    }
+    if a.verbose {
+        for e in &events {
+            println!("{e}");
+        }
+    }
+    let gaps = events.iter().filter(|e| e.contains(": gap")).count();
+    println!(
+        "imported {new} new frame(s), {known} already stored, {rejected} rejected ({new_rejects} new in the reject table), {gaps} gap event(s); see `envord gateway status`"
+    );
+    Ok(())
+}
+
+fn status_cmd(a: StatusArgs) -> Result<(), CliError> {
+    let limits = a.limits.limits()?;
+    let gmap = match &a.map {
+        Some(p) => Some(map::GatewayMap::load(p)?),
+        None => None,
+    };
+    let conn = store::open(&a.db)?;
+    let obs = store::observations(&conn).map_err(sql_err)?;
+    let manual = |n: u16, b: u8, k: &str| store::manual_baseline(&conn, n, b, k).ok().flatten();
+    let states = trend::evaluate(&obs, &limits, &manual);
+    let mut tracker = SeqTracker::new();
+    for (node, seq, payload) in store::arrivals(&conn).map_err(sql_err)? {
+        tracker.observe(node, seq, &payload);
+    }
+    let rejects = store::count(&conn, "rejects").map_err(sql_err)?;
+    let combined = gmap
+        .as_ref()
+        .map(|m| combine(m, &states))
+        .unwrap_or_default();
+    if a.json {
+        let links: Vec<serde_json::Value> = tracker
+            .stats()
+            .iter()
+            .map(|(n, s)| serde_json::json!({"node": n, "frames": s.frames, "missing": s.missing, "gaps": s.gaps, "duplicates": s.duplicates, "conflicts": s.conflicts, "resets": s.resets, "backward": s.backward, "last_seq": s.last}))
+            .collect();
+        let v = serde_json::json!({"defects": states, "bearings": bearing_states(&states), "physical": combined, "links": links, "rejects": rejects});
+        println!("{v}");
+        return Ok(());
+    }
+    println!(
+        "bearings (state = worst defect; limits: +{} / +{} dB over baseline, {} / {} dB absolute)",
+        limits.alert_rise_db, limits.danger_rise_db, limits.alert_abs_db, limits.danger_abs_db
+    );
+    println!(
+        "{:>5} {:>7} {:<9} {:<5} {:>8} {:>9} {:>7}  name",
+        "node", "bearing", "state", "worst", "score", "baseline", "rise"
+    );
+    for b in bearing_states(&states) {
+        let name = gmap
+            .as_ref()
+            .and_then(|m| m.name_of(b.node, b.bearing))
+            .unwrap_or("-");
+        let w = &b.worst;
+        println!(
+            "{:>5} {:>7} {:<9} {:<5} {:>8} {:>9} {:>7}  {name}",
+            b.node,
+            b.bearing,
+            w.state.label(),
+            w.kind,
+            fmt_db(w.latest_db),
+            fmt_db(w.baseline_db),
+            fmt_db(w.latest_db.zip(w.baseline_db).map(|(s, b)| s - b))
+        );
+    }
+    if !combined.is_empty() {
+        println!("\nphysical bearings (sensors combined: worst latest score, sensors detecting / sensors)");
+        for p in &combined {
+            println!("{:<9} {}", p.state.label(), p.name);
+            for d in &p.defects {
+                println!(
+                    "          {:<5} worst {:>7}  detected by {}/{}  state {}",
+                    d.kind,
+                    fmt_db(d.worst_db),
+                    d.detecting,
+                    p.sensors,
+                    d.state.label()
+                );
+            }
+        }
+    }
+    println!("\nlinks");
+    println!(
+        "{:>5} {:>8} {:>8} {:>5} {:>10} {:>9} {:>6} {:>8} {:>8}",
+        "node",
+        "frames",
+        "missing",
+        "gaps",
+        "duplicates",
+        "conflicts",
+        "resets",
+        "backward",
+        "last_seq"
+    );
+    for (n, s) in tracker.stats() {
+        println!(
+            "{n:>5} {:>8} {:>8} {:>5} {:>10} {:>9} {:>6} {:>8} {:>8}",
+            s.frames,
+            s.missing,
+            s.gaps,
+            s.duplicates,
+            s.conflicts,
+            s.resets,
+            s.backward,
+            s.last.map_or("-".into(), |x| x.to_string())
+        );
+    }
+    println!("rejected inputs stored: {rejects}");
+    Ok(())
+}
+
+fn fmt_db(x: Option<f64>) -> String {
+    x.map_or("-".into(), |v| format!("{v:.1}"))
+}
+
+/// State of one sensor channel (node + bearing index): its worst defect.
+#[derive(Debug, serde::Serialize)]
+pub struct BearingState {
+    /// Node.
+    pub node: u16,
+    /// Bearing index.
+    pub bearing: u8,
+    /// The defect in the worst state (highest latest score on ties).
+    pub worst: trend::DefectState,
+}
+
+/// Worst defect state per (node, bearing).
+pub fn bearing_states(states: &[trend::DefectState]) -> Vec<BearingState> {
+    let mut out: Vec<BearingState> = Vec::new();
+    for s in states {
+        let key = |d: &trend::DefectState| (d.state, d.latest_db.unwrap_or(f64::NEG_INFINITY));
+        match out
+            .iter_mut()
+            .find(|b| b.node == s.node && b.bearing == s.bearing)
+        {
+            Some(b) => {
+                if key(s) > key(&b.worst) {
+                    b.worst = s.clone();
+                }
+            }
+            None => out.push(BearingState {
+                node: s.node,
+                bearing: s.bearing,
+                worst: s.clone(),
+            }),
+        }
+    }
+    out
+}
+
+/// Combined view of one defect of a physical bearing.
+#[derive(Debug, serde::Serialize)]
+pub struct CombinedDefect {
+    /// Defect kind name.
+    pub kind: String,
+    /// Worst latest score over the sensors.
+    pub worst_db: Option<f64>,
+    /// Sensors whose latest report detects this defect.
+    pub detecting: usize,
+    /// Worst state over the sensors.
+    pub state: State,
+}
+
+/// Combined view of a physical bearing of the gateway map.
+#[derive(Debug, serde::Serialize)]
+pub struct CombinedBearing {
+    /// Name from the map.
+    pub name: String,
+    /// Sensors mapped to it.
+    pub sensors: usize,
+    /// Worst state over sensors and defects.
+    pub state: State,
+    /// Per defect kind.
+    pub defects: Vec<CombinedDefect>,
+}
+
+/// Combines the sensors of each physical bearing.
+pub fn combine(m: &map::GatewayMap, states: &[trend::DefectState]) -> Vec<CombinedBearing> {
+    m.bearing
+        .iter()
+        .map(|pb| {
+            let defects: Vec<CombinedDefect> = DefectKind::ALL
+                .iter()
+                .map(|k| {
+                    let mine: Vec<&trend::DefectState> = states
+                        .iter()
+                        .filter(|s| {
+                            s.kind == k.name()
+                                && pb.sensors.contains(&map::SensorRef {
+                                    node: s.node,
+                                    bearing: s.bearing,
+                                })
+                        })
+                        .collect();
+                    CombinedDefect {
+                        kind: k.name().to_string(),
+                        worst_db: mine.iter().filter_map(|s| s.latest_db).reduce(f64::max),
+                        detecting: mine.iter().filter(|s| s.detected).count(),
+                        state: mine.iter().map(|s| s.state).max().unwrap_or(State::NoData),
+                    }
+                })
+                .collect();
+            CombinedBearing {
+                name: pb.name.clone(),
+                sensors: pb.sensors.len(),
+                state: defects
+                    .iter()
+                    .map(|d| d.state)
+                    .max()
+                    .unwrap_or(State::NoData),
+                defects,
+            }
+        })
+        .collect()
+}
+
+fn trend_cmd(a: TrendArgs) -> Result<(), CliError> {
+    let limits = a.limits.limits()?;
+    let only = a.defect.as_deref().map(parse_kind).transpose()?;
+    let conn = store::open(&a.db)?;
+    let obs: Vec<store::Observation> = store::observations(&conn)
+        .map_err(sql_err)?
+        .into_iter()
+        .filter(|o| o.node == a.node && o.bearing == a.bearing)
+        .filter(|o| only.is_none_or(|k| o.kind == k.name()))
+        .collect();
+    if obs.is_empty() {
+        return Err(CliError::input(
+            &a.db,
+            format!("no reports for node {} bearing {}", a.node, a.bearing),
+        ));
+    }
+    println!(
+        "{:>6} {:>6} {:<22} {:<5} {:>7} detected",
+        "report", "seq", "rx_time", "kind", "score"
+    );
+    for o in &obs {
+        println!(
+            "{:>6} {:>6} {:<22} {:<5} {:>7} {}",
+            o.report_id,
+            o.seq,
+            o.rx_time.as_deref().unwrap_or("-"),
+            o.kind,
+            fmt_db(o.score_db),
+            if o.detected { "yes" } else { "no" }
+        );
+    }
+    if let Some(path) = &a.svg {
+        let colours = ["#1f77b4", "#d62728", "#2ca02c", "#9467bd"];
+        let series: Vec<plot::Series<'_>> = DefectKind::ALL
+            .iter()
+            .zip(colours)
+            .filter(|(k, _)| only.is_none_or(|o| o == **k))
+            .map(|(k, c)| plot::Series {
+                label: k.name(),
+                colour: c,
+                points: obs
+                    .iter()
+                    .filter(|o| o.kind == k.name())
+                    .map(|o| {
+                        (
+                            f64::from(u32::try_from(o.report_id).unwrap_or(0)),
+                            o.score_db,
+                        )
+                    })
+                    .collect(),
+            })
+            .collect();
+        let manual = |n: u16, b: u8, k: &str| store::manual_baseline(&conn, n, b, k).ok().flatten();
+        let states = trend::evaluate(&obs, &limits, &manual);
+        let mut levels: Vec<(&str, f64, &str)> = vec![
+            ("alert abs", limits.alert_abs_db, "#ff7f0e"),
+            ("danger abs", limits.danger_abs_db, "#d62728"),
+        ];
+        // Baseline levels only when one defect is plotted (else the plot gets crowded).
+        if let (Some(_), Some(b)) = (only, states.first().and_then(|s| s.baseline_db)) {
+            levels.push(("baseline", b, "#7f7f7f"));
+            levels.push(("alert", b + limits.alert_rise_db, "#ff7f0e"));
+            levels.push(("danger", b + limits.danger_rise_db, "#d62728"));
+        }
+        let title = format!("node {} bearing {}: defect scores", a.node, a.bearing);
+        let svg = plot::svg(&title, "report (arrival order)", &series, &levels);
+        std::fs::write(path, svg).map_err(|e| CliError::Other(format!("{path}: {e}")))?;
+        println!("wrote {path}");
+    }
+    Ok(())
+}
+
+fn baseline_cmd(a: BaselineArgs) -> Result<(), CliError> {
+    let kind = parse_kind(&a.defect)?;
+    if a.bearing > 3 {
+        return Err(CliError::input("--bearing", "bearing index must be 0..=3"));
+    }
+    if let Some(v) = a.score_db {
+        if !v.is_finite() {
+            return Err(CliError::input("--score-db", "must be finite"));
+        }
+    }
+    let conn = store::open(&a.db)?;
+    let v = if a.clear { None } else { a.score_db };
+    store::set_baseline(&conn, a.node, a.bearing, kind.name(), v).map_err(sql_err)?;
+    match v {
+        Some(x) => println!(
+            "baseline of node {} bearing {} {} set to {x:.1} dB",
+            a.node,
+            a.bearing,
+            kind.name()
+        ),
+        None => println!(
+            "baseline of node {} bearing {} {} cleared",
+            a.node,
+            a.bearing,
+            kind.name()
+        ),
+    }
+    Ok(())
+}

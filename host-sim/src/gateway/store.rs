@@ -1,0 +1,330 @@
+//! The gateway's SQLite store: schema, versioned migrations (`user_version`),
+//! idempotent inserts. Described in docs/gateway.md.
+
+use crate::error::CliError;
+use dsp_core::frame::{DefectKind, Frame, IsoZone};
+use rusqlite::{params, Connection, OptionalExtension};
+
+/// Migrations in order; migration i brings `user_version` from i to i + 1.
+pub const MIGRATIONS: &[&str] = &[
+    // 1: reports, their defect rows, rejects, manual baselines.
+    "CREATE TABLE reports (
+        id INTEGER PRIMARY KEY,
+        node_id INTEGER NOT NULL,
+        seq INTEGER NOT NULL,
+        frame_type TEXT NOT NULL CHECK (frame_type IN ('full', 'reduced')),
+        payload BLOB NOT NULL,
+        rx_time TEXT,
+        source TEXT NOT NULL,
+        line INTEGER NOT NULL,
+        flags INTEGER NOT NULL,
+        speed_rpm REAL,
+        accel_rms_g REAL,
+        peak_g REAL,
+        crest_factor REAL,
+        kurtosis REAL,
+        velocity_rms_mm_s REAL,
+        iso_zone TEXT,
+        json TEXT NOT NULL,
+        UNIQUE (node_id, seq, payload)
+    );
+    CREATE TABLE defects (
+        report_id INTEGER NOT NULL REFERENCES reports(id),
+        bearing INTEGER NOT NULL,
+        kind TEXT NOT NULL,
+        score_db REAL,
+        amplitude_1x_g REAL,
+        harmonics INTEGER,
+        detected INTEGER NOT NULL,
+        PRIMARY KEY (report_id, bearing, kind)
+    );
+    CREATE TABLE rejects (
+        id INTEGER PRIMARY KEY,
+        source TEXT NOT NULL,
+        line INTEGER NOT NULL,
+        text TEXT NOT NULL,
+        reason TEXT NOT NULL,
+        UNIQUE (text, reason)
+    );
+    CREATE TABLE baselines (
+        node_id INTEGER NOT NULL,
+        bearing INTEGER NOT NULL,
+        kind TEXT NOT NULL,
+        score_db REAL NOT NULL,
+        PRIMARY KEY (node_id, bearing, kind)
+    );
+    CREATE INDEX defects_by_kind ON defects (bearing, kind);",
+];
+
+/// Schema version this build writes.
+pub fn schema_version() -> i64 {
+    i64::try_from(MIGRATIONS.len()).unwrap_or(i64::MAX)
+}
+
+fn db_err(path: &str) -> impl Fn(rusqlite::Error) -> CliError + '_ {
+    move |e| CliError::Other(format!("{path}: {e}"))
+}
+
+/// Opens (creating if needed) and migrates the store at `path`.
+pub fn open(path: &str) -> Result<Connection, CliError> {
+    let mut conn = Connection::open(path).map_err(db_err(path))?;
+    conn.pragma_update(None, "journal_mode", "WAL")
+        .map_err(db_err(path))?;
+    conn.pragma_update(None, "synchronous", "FULL")
+        .map_err(db_err(path))?;
+    conn.busy_timeout(std::time::Duration::from_secs(10))
+        .map_err(db_err(path))?;
+    migrate(&mut conn, path)?;
+    Ok(conn)
+}
+
+/// Applies the migrations past the file's `user_version`, each in its own
+/// transaction together with the version bump.
+pub fn migrate(conn: &mut Connection, path: &str) -> Result<(), CliError> {
+    let current: i64 = conn
+        .query_row("PRAGMA user_version", [], |r| r.get(0))
+        .map_err(db_err(path))?;
+    if current > schema_version() {
+        return Err(CliError::input(
+            path,
+            format!(
+                "store schema version {current} is newer than this build's {}",
+                schema_version()
+            ),
+        ));
+    }
+    for (i, sql) in MIGRATIONS
+        .iter()
+        .enumerate()
+        .skip(usize::try_from(current).unwrap_or(0))
+    {
+        let tx = conn.transaction().map_err(db_err(path))?;
+        tx.execute_batch(sql).map_err(db_err(path))?;
+        tx.pragma_update(
+            None,
+            "user_version",
+            i64::try_from(i + 1).unwrap_or(i64::MAX),
+        )
+        .map_err(db_err(path))?;
+        tx.commit().map_err(db_err(path))?;
+    }
+    Ok(())
+}
+
+fn opt(x: f32) -> Option<f64> {
+    x.is_finite().then_some(f64::from(x))
+}
+
+fn zone_name(z: Option<IsoZone>) -> Option<&'static str> {
+    z.map(|z| match z {
+        IsoZone::A => "A",
+        IsoZone::B => "B",
+        IsoZone::C => "C",
+        IsoZone::D => "D",
+    })
+}
+
+/// Node and sequence number of a decoded frame.
+pub fn node_seq(f: &Frame) -> (u16, u16) {
+    match f {
+        Frame::Full(r) => (r.node_id, r.seq),
+        Frame::Reduced(r) => (r.node_id, r.seq),
+    }
+}
+
+/// Where a frame came from.
+pub struct Origin<'a> {
+    /// Input file name.
+    pub source: &'a str,
+    /// Line or frame index.
+    pub line: usize,
+    /// Receive time, if given.
+    pub rx_time: Option<&'a str>,
+}
+
+/// Inserts a decoded frame unless the same node+seq+payload is stored;
+/// returns whether it was new. Call inside a transaction.
+pub fn insert_frame(
+    conn: &Connection,
+    f: &Frame,
+    payload: &[u8],
+    o: &Origin<'_>,
+) -> rusqlite::Result<bool> {
+    let (node, seq) = node_seq(f);
+    let json = serde_json::to_string(f).unwrap_or_default();
+    let line = i64::try_from(o.line).unwrap_or(i64::MAX);
+    let n = match f {
+        Frame::Full(r) => conn.execute(
+            "INSERT OR IGNORE INTO reports (node_id, seq, frame_type, payload, rx_time, source, line, flags,
+               speed_rpm, accel_rms_g, peak_g, crest_factor, kurtosis, velocity_rms_mm_s, iso_zone, json)
+             VALUES (?1, ?2, 'full', ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15)",
+            params![
+                node, seq, payload, o.rx_time, o.source, line, r.flags.to_bits(),
+                opt(r.speed_rpm), opt(r.overall.accel_rms_g), opt(r.overall.peak_g),
+                opt(r.overall.crest_factor), opt(r.overall.kurtosis), opt(r.overall.velocity_rms_mm_s),
+                zone_name(r.overall.iso_zone), json
+            ],
+        )?,
+        Frame::Reduced(r) => conn.execute(
+            "INSERT OR IGNORE INTO reports (node_id, seq, frame_type, payload, rx_time, source, line, flags, json)
+             VALUES (?1, ?2, 'reduced', ?3, ?4, ?5, ?6, ?7, ?8)",
+            params![node, seq, payload, o.rx_time, o.source, line, r.flags.to_bits(), json],
+        )?,
+    };
+    if n == 0 {
+        return Ok(false);
+    }
+    let id = conn.last_insert_rowid();
+    let mut stmt = conn.prepare_cached(
+        "INSERT INTO defects (report_id, bearing, kind, score_db, amplitude_1x_g, harmonics, detected)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
+    )?;
+    match f {
+        Frame::Full(r) => {
+            for (b, br) in (0u8..).zip(r.bearings.iter()) {
+                for (k, d) in DefectKind::ALL.iter().zip(br.defects.iter()) {
+                    stmt.execute(params![
+                        id,
+                        b,
+                        k.name(),
+                        opt(d.score_db),
+                        opt(d.amplitude_1x_g),
+                        d.harmonics,
+                        d.detected
+                    ])?;
+                }
+            }
+        }
+        Frame::Reduced(r) => {
+            if let Some(w) = r.worst {
+                stmt.execute(params![
+                    id,
+                    w.bearing,
+                    w.kind.name(),
+                    opt(w.score_db),
+                    None::<f64>,
+                    None::<i64>,
+                    w.detected
+                ])?;
+            }
+        }
+    }
+    Ok(true)
+}
+
+/// Records a rejected input line; returns whether it was new.
+pub fn insert_reject(
+    conn: &Connection,
+    source: &str,
+    line: usize,
+    text: &str,
+    reason: &str,
+) -> rusqlite::Result<bool> {
+    let n = conn.execute(
+        "INSERT OR IGNORE INTO rejects (source, line, text, reason) VALUES (?1, ?2, ?3, ?4)",
+        params![
+            source,
+            i64::try_from(line).unwrap_or(i64::MAX),
+            text,
+            reason
+        ],
+    )?;
+    Ok(n > 0)
+}
+
+/// (node, seq, payload) of every stored report in arrival order.
+pub fn arrivals(conn: &Connection) -> rusqlite::Result<Vec<(u16, u16, Vec<u8>)>> {
+    let mut stmt = conn.prepare("SELECT node_id, seq, payload FROM reports ORDER BY id")?;
+    let rows = stmt.query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))?;
+    rows.collect()
+}
+
+/// One stored score observation.
+#[derive(Clone, Debug)]
+pub struct Observation {
+    /// Report row id (arrival order).
+    pub report_id: i64,
+    /// Node.
+    pub node: u16,
+    /// Sequence number.
+    pub seq: u16,
+    /// Receive time if known.
+    pub rx_time: Option<String>,
+    /// Bearing index.
+    pub bearing: u8,
+    /// Defect kind name.
+    pub kind: String,
+    /// Score, None when invalid.
+    pub score_db: Option<f64>,
+    /// Detected bit.
+    pub detected: bool,
+}
+
+/// Every defect observation in arrival order.
+pub fn observations(conn: &Connection) -> rusqlite::Result<Vec<Observation>> {
+    let mut stmt = conn.prepare(
+        "SELECT r.id, r.node_id, r.seq, r.rx_time, d.bearing, d.kind, d.score_db, d.detected
+         FROM defects d JOIN reports r ON r.id = d.report_id ORDER BY r.id, d.bearing, d.kind",
+    )?;
+    let rows = stmt.query_map([], |r| {
+        Ok(Observation {
+            report_id: r.get(0)?,
+            node: r.get(1)?,
+            seq: r.get(2)?,
+            rx_time: r.get(3)?,
+            bearing: r.get(4)?,
+            kind: r.get(5)?,
+            score_db: r.get(6)?,
+            detected: r.get(7)?,
+        })
+    })?;
+    rows.collect()
+}
+
+/// The hand-set baseline of one defect, if any.
+pub fn manual_baseline(
+    conn: &Connection,
+    node: u16,
+    bearing: u8,
+    kind: &str,
+) -> rusqlite::Result<Option<f64>> {
+    conn.query_row(
+        "SELECT score_db FROM baselines WHERE node_id = ?1 AND bearing = ?2 AND kind = ?3",
+        params![node, bearing, kind],
+        |r| r.get(0),
+    )
+    .optional()
+}
+
+/// Sets (Some) or clears (None) a hand-set baseline.
+pub fn set_baseline(
+    conn: &Connection,
+    node: u16,
+    bearing: u8,
+    kind: &str,
+    v: Option<f64>,
+) -> rusqlite::Result<()> {
+    match v {
+        Some(x) => conn.execute(
+            "INSERT INTO baselines (node_id, bearing, kind, score_db) VALUES (?1, ?2, ?3, ?4)
+             ON CONFLICT (node_id, bearing, kind) DO UPDATE SET score_db = excluded.score_db",
+            params![node, bearing, kind, x],
+        )?,
+        None => conn.execute(
+            "DELETE FROM baselines WHERE node_id = ?1 AND bearing = ?2 AND kind = ?3",
+            params![node, bearing, kind],
+        )?,
+    };
+    Ok(())
+}
+
+/// Count of rows in a table of this schema.
+pub fn count(conn: &Connection, table: &str) -> rusqlite::Result<i64> {
+    let sql = match table {
+        "reports" => "SELECT COUNT(*) FROM reports",
+        "defects" => "SELECT COUNT(*) FROM defects",
+        "rejects" => "SELECT COUNT(*) FROM rejects",
+        _ => "SELECT COUNT(*) FROM baselines",
+    };
+    conn.query_row(sql, [], |r| r.get(0))
+}

@@ -1,0 +1,69 @@
+// Shared helpers of the gateway tests (included with `#[path]`).
+#![allow(dead_code)]
+use dsp_core::frame::{encode, encode_reduced, BearingResult, DefectResult, FrameReport};
+use std::path::Path;
+use std::process::{Command, Output};
+
+pub const BIN: &str = env!("CARGO_BIN_EXE_envord");
+
+/// A full frame of an invented node: bearing 0 BPFO score `bpfo_db`, others quiet.
+pub fn frame(node: u16, seq: u16, bpfo_db: f32, detected: bool) -> Vec<u8> {
+    let mut r = FrameReport {
+        node_id: node,
+        seq,
+        speed_rpm: 1200.0,
+        ..FrameReport::default()
+    };
+    for b in 0..2 {
+        let mut br = BearingResult::default();
+        for (k, d) in br.defects.iter_mut().enumerate() {
+            *d = DefectResult {
+                score_db: 3.0 + k as f32,
+                amplitude_1x_g: 0.001,
+                harmonics: 1,
+                detected: false,
+            };
+        }
+        if b == 0 {
+            br.defects[0] = DefectResult {
+                score_db: bpfo_db,
+                amplitude_1x_g: 0.01,
+                harmonics: 4,
+                detected,
+            };
+        }
+        r.bearings.push(br).unwrap();
+    }
+    let mut buf = [0u8; 64];
+    let n = encode(&r, &mut buf).unwrap();
+    buf[..n].to_vec()
+}
+
+pub fn reduced(node: u16, seq: u16, bpfo_db: f32) -> Vec<u8> {
+    let full = dsp_core::frame::decode(&frame(node, seq, bpfo_db, true)).unwrap();
+    let mut buf = [0u8; 11];
+    encode_reduced(&full, &mut buf).unwrap();
+    buf.to_vec()
+}
+
+pub fn hex(b: &[u8]) -> String {
+    b.iter().map(|x| format!("{x:02x}")).collect()
+}
+
+pub fn run(args: &[&str], cwd: &Path) -> Output {
+    Command::new(BIN)
+        .args(args)
+        .current_dir(cwd)
+        .output()
+        .unwrap()
+}
+
+pub fn stdout(o: &Output) -> String {
+    String::from_utf8_lossy(&o.stdout).into_owned()
+}
+
+pub fn db_count(db: &Path, table: &str) -> i64 {
+    let c = rusqlite::Connection::open(db).unwrap();
+    c.query_row(&format!("SELECT COUNT(*) FROM {table}"), [], |r| r.get(0))
+        .unwrap()
+}

@@ -1,0 +1,381 @@
+//! `envord gateway import/status/trend/baseline` against the SQLite store.
+#![allow(
+    clippy::unwrap_used,
+    clippy::indexing_slicing,
+    clippy::cast_possible_truncation
+)]
+
+#[path = "gateway_common/mod.rs"]
+mod common;
+
+use common::*;
+use std::process::Command;
+use std::time::{Duration, Instant};
+
+fn write_lines(path: &std::path::Path, frames: &[Vec<u8>]) {
+    let text: Vec<String> = frames.iter().map(|f| hex(f)).collect();
+    std::fs::write(path, text.join("\n") + "\n").unwrap();
+}
+
+#[test]
+fn reimport_is_idempotent_and_schema_is_versioned() {
+    let dir = tempfile::tempdir().unwrap();
+    let frames: Vec<Vec<u8>> = (0..50u16)
+        .map(|s| frame(1, s, 5.0, false))
+        .chain([frame(1, 10, 5.0, false)])
+        .collect();
+    write_lines(&dir.path().join("a.txt"), &frames);
+    std::fs::write(dir.path().join("b.txt"), "0102\n").unwrap();
+    let o = run(
+        &["gateway", "import", "--db", "gw.sqlite", "a.txt", "b.txt"],
+        dir.path(),
+    );
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    assert!(
+        stdout(&o).contains("imported 50 new frame(s), 1 already stored, 1 rejected"),
+        "{}",
+        stdout(&o)
+    );
+    let db = dir.path().join("gw.sqlite");
+    assert_eq!(db_count(&db, "reports"), 50);
+    assert_eq!(db_count(&db, "defects"), 50 * 8);
+    assert_eq!(db_count(&db, "rejects"), 1);
+    // Same input again: nothing new, nothing lost.
+    let o = run(
+        &["gateway", "import", "--db", "gw.sqlite", "a.txt", "b.txt"],
+        dir.path(),
+    );
+    assert!(
+        stdout(&o).contains("imported 0 new frame(s), 51 already stored, 1 rejected (0 new"),
+        "{}",
+        stdout(&o)
+    );
+    assert_eq!(db_count(&db, "reports"), 50);
+    assert_eq!(db_count(&db, "rejects"), 1);
+    let c = rusqlite::Connection::open(&db).unwrap();
+    let v: i64 = c
+        .query_row("PRAGMA user_version", [], |r| r.get(0))
+        .unwrap();
+    assert_eq!(v, 1);
+    // A store from a newer build is refused as bad input.
+    c.pragma_update(None, "user_version", 9).unwrap();
+    drop(c);
+    let o = run(&["gateway", "status", "--db", "gw.sqlite"], dir.path());
+    assert_eq!(o.status.code(), Some(2));
+}
+
+#[test]
+fn interrupted_import_loses_nothing() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut frames = Vec::new();
+    for i in 0..20_000u32 {
+        frames.push(frame(
+            (i % 4) as u16 + 1,
+            (i / 4) as u16,
+            (i % 30) as f32,
+            i % 7 == 0,
+        ));
+    }
+    // 500 repeats of earlier lines, as a gateway forwarding twice would give.
+    for i in 0..500 {
+        frames.push(frames[i * 37].clone());
+    }
+    write_lines(&dir.path().join("big.txt"), &frames);
+    let db = dir.path().join("gw.sqlite");
+    let mut child = Command::new(BIN)
+        .args([
+            "gateway",
+            "import",
+            "--db",
+            "gw.sqlite",
+            "big.txt",
+            "--batch-size",
+            "100",
+            "--batch-pause-ms",
+            "20",
+        ])
+        .current_dir(dir.path())
+        .spawn()
+        .unwrap();
+    // Wait until some batches are committed, then kill the process hard.
+    let t0 = Instant::now();
+    let mut seen = 0;
+    while seen < 300 && t0.elapsed() < Duration::from_secs(60) {
+        std::thread::sleep(Duration::from_millis(10));
+        if db.exists() {
+            seen = rusqlite::Connection::open(&db)
+                .and_then(|c| {
+                    c.query_row("SELECT COUNT(*) FROM reports", [], |r| r.get::<_, i64>(0))
+                })
+                .unwrap_or(0);
+        }
+    }
+    assert!(
+        child.try_wait().unwrap().is_none(),
+        "import finished before it could be interrupted"
+    );
+    child.kill().unwrap(); // SIGKILL on Unix
+    child.wait().unwrap();
+    let partial = db_count(&db, "reports");
+    assert!(partial > 0 && partial < 20_000, "partial {partial}");
+    // SQLite commits are atomic even on a killed process (sqlite.org, "Atomic
+    // Commit In SQLite"), so only whole batches of 100 frames are in the store.
+    assert_eq!(partial % 100, 0, "partial {partial}");
+    let o = run(
+        &["gateway", "import", "--db", "gw.sqlite", "big.txt"],
+        dir.path(),
+    );
+    assert!(o.status.success());
+    assert_eq!(db_count(&db, "reports"), 20_000);
+    assert_eq!(db_count(&db, "defects"), 20_000 * 8);
+    let c = rusqlite::Connection::open(&db).unwrap();
+    let distinct: i64 = c
+        .query_row(
+            "SELECT COUNT(*) FROM (SELECT DISTINCT node_id, seq FROM reports)",
+            [],
+            |r| r.get(0),
+        )
+        .unwrap();
+    assert_eq!(distinct, 20_000);
+}
+
+/// An invented gearbox: node 3 and node 4 both watch its output-shaft bearing
+/// (their bearing index 0). Node 3's BPFO score rises from a 5 dB baseline.
+fn scenario(dir: &std::path::Path) {
+    let mut frames = Vec::new();
+    for (s, db) in [5.0f32, 5.0, 5.0, 5.0, 5.0, 8.0, 11.2].iter().enumerate() {
+        frames.push(frame(3, s as u16, *db, false));
+    }
+    frames.push(frame(3, 9, 17.5, true)); // 7 and 8 lost
+    for s in 0..5u16 {
+        frames.push(frame(4, s, 4.0, false));
+    }
+    frames.push(frame(4, 5, 9.0, false));
+    write_lines(&dir.join("uplinks.txt"), &frames);
+    std::fs::write(
+        dir.join("map.toml"),
+        "[[bearing]]\nname = \"demo gearbox output shaft\"\nsensors = [{ node = 3, bearing = 0 }, { node = 4, bearing = 0 }]\n\n[[bearing]]\nname = \"demo gearbox input shaft\"\nsensors = [{ node = 3, bearing = 1 }]\n",
+    )
+    .unwrap();
+    let o = run(
+        &[
+            "gateway",
+            "import",
+            "--db",
+            "gw.sqlite",
+            "uplinks.txt",
+            "--verbose",
+        ],
+        dir,
+    );
+    assert!(o.status.success());
+    assert!(
+        stdout(&o).contains("node 3 seq 9: gap: 2 lost between 6 and 9"),
+        "{}",
+        stdout(&o)
+    );
+}
+
+#[test]
+fn status_states_baselines_and_combined_view() {
+    let dir = tempfile::tempdir().unwrap();
+    scenario(dir.path());
+    let o = run(
+        &[
+            "gateway",
+            "status",
+            "--db",
+            "gw.sqlite",
+            "--map",
+            "map.toml",
+            "--json",
+        ],
+        dir.path(),
+    );
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let v: serde_json::Value = serde_json::from_str(&stdout(&o)).unwrap();
+    let find = |node: u64, b: u64, k: &str| {
+        v["defects"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|d| d["node"] == node && d["bearing"] == b && d["kind"] == k)
+            .unwrap()
+            .clone()
+    };
+    let d = find(3, 0, "bpfo");
+    assert_eq!(d["baseline_db"], 5.0);
+    assert_eq!(d["baseline_origin"], "learned");
+    // +6 / +12 dB over baseline (common practice for spectral trending).
+    // 17.5 dB is rounded to 18 dB by the frame (1 dB steps): +13 dB over 5 -> danger.
+    assert_eq!(d["latest_db"], 18.0);
+    assert_eq!(d["state"], "danger");
+    assert_eq!(find(4, 0, "bpfo")["state"], "normal"); // 9 - 4 = 5 dB < 6
+    assert_eq!(find(3, 1, "bsf")["state"], "normal");
+    let phys = v["physical"].as_array().unwrap();
+    assert_eq!(phys[0]["name"], "demo gearbox output shaft");
+    assert_eq!(phys[0]["state"], "danger");
+    assert_eq!(phys[0]["defects"][0]["worst_db"], 18.0);
+    assert_eq!(phys[0]["defects"][0]["detecting"], 1);
+    assert_eq!(phys[0]["sensors"], 2);
+    assert_eq!(phys[1]["state"], "normal");
+    let link3 = v["links"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|l| l["node"] == 3)
+        .unwrap();
+    assert_eq!(link3["missing"], 2);
+    // Stricter limits move node 3 from danger to... danger, and node 4 to alert.
+    let o = run(
+        &[
+            "gateway",
+            "status",
+            "--db",
+            "gw.sqlite",
+            "--json",
+            "--alert-rise",
+            "3",
+            "--danger-rise",
+            "20",
+        ],
+        dir.path(),
+    );
+    let v: serde_json::Value = serde_json::from_str(&stdout(&o)).unwrap();
+    let n4 = v["defects"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|d| d["node"] == 4 && d["bearing"] == 0 && d["kind"] == "bpfo")
+        .unwrap();
+    assert_eq!(n4["state"], "alert");
+    // A hand-set baseline replaces the learned one.
+    let o = run(
+        &[
+            "gateway",
+            "baseline",
+            "--db",
+            "gw.sqlite",
+            "--node",
+            "3",
+            "--bearing",
+            "0",
+            "--defect",
+            "bpfo",
+            "--score-db",
+            "15",
+        ],
+        dir.path(),
+    );
+    assert!(o.status.success());
+    let o = run(
+        &[
+            "gateway",
+            "status",
+            "--db",
+            "gw.sqlite",
+            "--map",
+            "map.toml",
+        ],
+        dir.path(),
+    );
+    let table = stdout(&o);
+    let row = table
+        .lines()
+        .find(|l| l.contains("demo gearbox output shaft") && l.trim_start().starts_with('3'))
+        .unwrap();
+    assert!(row.contains("NORMAL") && row.contains("15.0"), "{row}");
+    // Bad limits are bad input.
+    let o = run(
+        &[
+            "gateway",
+            "status",
+            "--db",
+            "gw.sqlite",
+            "--alert-rise",
+            "20",
+            "--danger-rise",
+            "10",
+        ],
+        dir.path(),
+    );
+    assert_eq!(o.status.code(), Some(2));
+}
+
+#[test]
+fn bad_map_names_the_file() {
+    let dir = tempfile::tempdir().unwrap();
+    scenario(dir.path());
+    std::fs::write(
+        dir.path().join("bad.toml"),
+        "[[bearing]]\nname = \"x\"\nsensors = [{ node = 3, bearing = 7 }]\n",
+    )
+    .unwrap();
+    let o = run(
+        &[
+            "gateway",
+            "status",
+            "--db",
+            "gw.sqlite",
+            "--map",
+            "bad.toml",
+        ],
+        dir.path(),
+    );
+    assert_eq!(o.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("bad.toml"));
+}
+
+#[test]
+fn trend_plots_one_bearing() {
+    let dir = tempfile::tempdir().unwrap();
+    scenario(dir.path());
+    let o = run(
+        &[
+            "gateway",
+            "trend",
+            "--db",
+            "gw.sqlite",
+            "--node",
+            "3",
+            "--bearing",
+            "0",
+            "--defect",
+            "bpfo",
+            "--svg",
+            "trend.svg",
+        ],
+        dir.path(),
+    );
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    // Header + 8 reports + "wrote" line.
+    assert_eq!(stdout(&o).lines().count(), 10);
+    let svg = std::fs::read_to_string(dir.path().join("trend.svg")).unwrap();
+    assert!(svg.starts_with("<svg"));
+    let poly = svg
+        .lines()
+        .find(|l| l.contains("class=\"series\""))
+        .unwrap();
+    let pts = poly
+        .split("points=\"")
+        .nth(1)
+        .unwrap()
+        .trim_end_matches("\"/>");
+    assert_eq!(pts.split(' ').count(), 8);
+    // Baseline, alert and danger levels plus the two absolute ones.
+    assert_eq!(svg.matches("class=\"level\"").count(), 5);
+    let o = run(
+        &[
+            "gateway",
+            "trend",
+            "--db",
+            "gw.sqlite",
+            "--node",
+            "99",
+            "--bearing",
+            "0",
+        ],
+        dir.path(),
+    );
+    assert_eq!(o.status.code(), Some(2));
+}
