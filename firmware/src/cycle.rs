@@ -373,15 +373,17 @@ where
                     self.summary.overruns = self.summary.overruns.saturating_add(1);
                     self.summary.flags.insert(QualityFlags::PROCESSING_OVERRUN);
                 }
-                self.health
-                    .observe(block.samples, self.config.health.clip_level);
-                self.core.push_block(block.samples);
-                self.summary.blocks = self.summary.blocks.saturating_add(1);
+                // edges captured up to now happened during or before this
+                // block: the core gets them first (as the host simulator does)
                 while let Some(tick) = self.dev.capture.next_edge() {
                     self.core.push_edge(tick);
                     self.summary.edges = self.summary.edges.saturating_add(1);
                 }
-                if self.summary.blocks >= self.blocks_wanted {
+                self.health
+                    .observe(block.samples, self.config.health.clip_level);
+                self.core.push_block(block.samples);
+                self.summary.blocks = self.summary.blocks.saturating_add(1);
+                if self.summary.blocks >= self.blocks_wanted || self.core.complete() {
                     self.dev.source.stop();
                     self.dev.capture.stop();
                     self.dev.power.set_low().map_err(|_| Fault::PowerPin)?;

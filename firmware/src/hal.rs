@@ -37,6 +37,9 @@ pub trait BlockSource {
 }
 
 /// Once-per-revolution pulse capture on the same time base as the ADC clock.
+///
+/// Timestamps count from the first sample of the record: the capture time
+/// base restarts with the sample clock at each record (tick 0 = sample 0).
 pub trait PulseCapture {
     /// Driver error.
     type Error;
@@ -121,7 +124,13 @@ pub trait MeasurementCore {
     /// Processes one block as it arrives; the block is not kept.
     fn push_block(&mut self, samples: &[i16]);
     /// Adds one tach edge (timer ticks, same time base as the samples).
+    /// Edges that occurred during a block are pushed before that block.
     fn push_edge(&mut self, tick: u32);
+    /// True once the core has all the record it needs; acquisition then
+    /// stops early (the configured length is the limit at the lowest speed).
+    fn complete(&self) -> bool {
+        false
+    }
     /// Ends the record and computes the report, with the firmware's quality
     /// flags (overrun, sensor fault, tach loss, low battery) merged in.
     fn finish(&mut self, flags: QualityFlags) -> Result<(), Self::Error>;

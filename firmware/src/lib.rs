@@ -8,6 +8,7 @@
 //!   binary record; [`downlink`]: commands that replace it.
 //! * [`quality`]: quality flags and streamed signal-health checks.
 //! * [`crc`]: CRC-32 for stored records.
+//! * [`pipeline_core`]: the adapter to the `dsp-core` pipeline and frame codec.
 //! * [`point`]: the record as `dsp-core`'s measuring point, for the pipeline adapter.
 //! * [`overall_core`]: a minimal overall-level core, so board images run the
 //!   whole cycle before the envelope pipeline is adapted.
@@ -33,5 +34,6 @@ pub mod downlink;
 pub mod hal;
 mod log;
 pub mod overall_core;
+pub mod pipeline_core;
 pub mod point;
 pub mod quality;

@@ -10,119 +10,9 @@
     missing_docs
 )]
 
-use firmware::cycle::{Devices, Node};
-use firmware::hal::*;
+mod replay_common;
 use firmware::overall_core::OverallCore;
-use std::cell::Cell;
-use std::path::PathBuf;
-use std::rc::Rc;
-
-const BLOCK: usize = 256;
-
-fn input(name: &str) -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
-        .join("../boards/qemu-mps2/input")
-        .join(name)
-}
-
-/// Same delivery rule as the QEMU board: blocks in order, each edge released
-/// once the sample clock has passed it.
-struct Src {
-    samples: Vec<i16>,
-    pos: usize,
-    clock: Rc<Cell<u32>>,
-}
-impl BlockSource for Src {
-    type Error = ();
-    fn block_len(&self) -> usize {
-        BLOCK
-    }
-    fn start(&mut self) -> Result<(), ()> {
-        Ok(())
-    }
-    fn next_block(&mut self) -> Result<Block<'_>, ()> {
-        let b = self.samples.get(self.pos..self.pos + BLOCK).ok_or(())?;
-        self.pos += BLOCK;
-        self.clock.set(self.pos as u32);
-        Ok(Block {
-            samples: b,
-            overrun: false,
-        })
-    }
-    fn stop(&mut self) {}
-}
-struct Cap {
-    edges: std::collections::VecDeque<u32>,
-    clock: Rc<Cell<u32>>,
-}
-impl PulseCapture for Cap {
-    type Error = ();
-    fn start(&mut self) -> Result<(), ()> {
-        Ok(())
-    }
-    fn next_edge(&mut self) -> Option<u32> {
-        let e = *self.edges.front()?;
-        (e < self.clock.get()).then(|| self.edges.pop_front().unwrap())
-    }
-    fn stop(&mut self) {}
-}
-struct Radio(Vec<u8>);
-impl RadioLink for Radio {
-    type Error = ();
-    fn send(&mut self, f: &[u8]) -> Result<(), ()> {
-        self.0.extend_from_slice(f);
-        Ok(())
-    }
-    fn receive(&mut self, _b: &mut [u8]) -> Result<Option<usize>, ()> {
-        Ok(None)
-    }
-}
-struct NoSleep;
-impl Alarm for NoSleep {
-    fn sleep(&mut self, _s: u32) -> WakeReason {
-        WakeReason::Schedule
-    }
-}
-struct Store(Vec<u8>);
-impl Storage for Store {
-    type Error = ();
-    fn load(&mut self, slot: Slot, buf: &mut [u8]) -> Result<usize, ()> {
-        if slot != Slot::Config {
-            return Ok(0);
-        }
-        buf[..self.0.len()].copy_from_slice(&self.0);
-        Ok(self.0.len())
-    }
-    fn store(&mut self, _s: Slot, _d: &[u8]) -> Result<(), ()> {
-        Ok(())
-    }
-}
-struct Batt;
-impl Battery for Batt {
-    fn millivolts(&mut self) -> u16 {
-        3300
-    }
-}
-struct Dog;
-impl Watchdog for Dog {
-    fn feed(&mut self) {}
-}
-struct Pin;
-impl embedded_hal::digital::ErrorType for Pin {
-    type Error = core::convert::Infallible;
-}
-impl embedded_hal::digital::OutputPin for Pin {
-    fn set_low(&mut self) -> Result<(), Self::Error> {
-        Ok(())
-    }
-    fn set_high(&mut self) -> Result<(), Self::Error> {
-        Ok(())
-    }
-}
-struct NoDelay;
-impl embedded_hal::delay::DelayNs for NoDelay {
-    fn delay_ns(&mut self, _ns: u32) {}
-}
+use replay_common::{input, replay};
 
 fn fields(f: &[u8]) -> [u32; 5] {
     let u16le = |i: usize| u32::from(u16::from_le_bytes([f[i], f[i + 1]]));
@@ -137,38 +27,7 @@ fn fields(f: &[u8]) -> [u32; 5] {
 
 #[test]
 fn replay_matches_numpy_reference() {
-    let raw = std::fs::read(input("recording.i16")).unwrap();
-    let samples: Vec<i16> = raw
-        .chunks_exact(2)
-        .map(|b| i16::from_le_bytes([b[0], b[1]]))
-        .collect();
-    let tach = std::fs::read(input("tach.u32")).unwrap();
-    let edges = tach
-        .chunks_exact(4)
-        .map(|b| u32::from_le_bytes([b[0], b[1], b[2], b[3]]))
-        .collect();
-    let clock = Rc::new(Cell::new(0));
-    let dev = Devices {
-        source: Src {
-            samples,
-            pos: 0,
-            clock: clock.clone(),
-        },
-        capture: Cap { edges, clock },
-        radio: Radio(Vec::new()),
-        alarm: NoSleep,
-        storage: Store(std::fs::read(input("config.bin")).unwrap()),
-        battery: Batt,
-        watchdog: Dog,
-        power: Pin,
-        delay: NoDelay,
-    };
-    let mut node = Node::new(dev, OverallCore::new());
-    assert_eq!(node.config_source(), firmware::cycle::ConfigSource::Stored);
-    let per = node.blocks_wanted() as usize * BLOCK;
-    while node.devices().source.samples.len() - node.devices().source.pos >= per {
-        node.run_cycle().unwrap();
-    }
+    let node = replay(OverallCore::new());
     let got = node.devices().radio.0.clone();
     if let Some(out) = std::env::var_os("ENVORD_HOST_FRAMES_OUT") {
         std::fs::write(out, &got).unwrap();

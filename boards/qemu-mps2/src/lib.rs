@@ -128,6 +128,7 @@ impl BlockSource for FileSource {
 pub struct FileCapture {
     file: Option<File>,
     pending: Option<u32>,
+    origin: u32,
 }
 
 impl FileCapture {
@@ -136,6 +137,7 @@ impl FileCapture {
         Self {
             file: File::open(c"tach.u32").ok(),
             pending: None,
+            origin: 0,
         }
     }
 }
@@ -143,24 +145,32 @@ impl FileCapture {
 impl PulseCapture for FileCapture {
     type Error = BoardError;
     fn start(&mut self) -> Result<(), BoardError> {
+        // ticks count from the first sample of this record, as on the nRF52840
+        // where the capture timer restarts with the sample clock
+        self.origin = SAMPLE_CLOCK.load(Ordering::Relaxed);
         Ok(())
     }
     fn next_edge(&mut self) -> Option<u32> {
-        if self.pending.is_none() {
-            let file = self.file.as_mut()?;
-            let mut b = [0u8; 4];
-            if read_full(file, &mut b).ok()? < 4 {
-                self.file = None;
-                return None;
+        loop {
+            if self.pending.is_none() {
+                let file = self.file.as_mut()?;
+                let mut b = [0u8; 4];
+                if read_full(file, &mut b).ok()? < 4 {
+                    self.file = None;
+                    return None;
+                }
+                self.pending = Some(u32::from_le_bytes(b));
             }
-            self.pending = Some(u32::from_le_bytes(b));
-        }
-        let edge = self.pending?;
-        if edge < SAMPLE_CLOCK.load(Ordering::Relaxed) {
-            self.pending = None;
-            Some(edge)
-        } else {
-            None
+            let edge = self.pending?;
+            if edge < self.origin {
+                self.pending = None; // before this record: not ours
+                continue;
+            }
+            if edge < SAMPLE_CLOCK.load(Ordering::Relaxed) {
+                self.pending = None;
+                return Some(edge - self.origin);
+            }
+            return None;
         }
     }
     fn stop(&mut self) {}
