@@ -29,31 +29,48 @@ cargo build -p target-tests --tests
 step "on-target tests under QEMU (defmt-test)"
 cargo test -p target-tests
 
-step "qemu-mps2 image on the committed input"
+step "qemu-mps2 image on the committed input: dsp-core pipeline (default core)"
 run_dir="$(mktemp -d)"
 trap 'rm -rf "$run_dir"' EXIT
-cp qemu-mps2/input/recording.i16 qemu-mps2/input/tach.u32 qemu-mps2/input/config.bin "$run_dir/"
-QEMU_RUN_DIR="$run_dir" DEFMT_RAW="$run_dir/defmt.raw" \
-    ./qemu-run.sh "target/$target/release/qemu-mps2" 2> "$run_dir/stderr.txt" \
+input_files=(qemu-mps2/input/recording.i16 qemu-mps2/input/tach.u32 qemu-mps2/input/config.bin)
+mkdir -p "$run_dir/pipe" "$run_dir/overall"
+cp "${input_files[@]}" "$run_dir/pipe/"
+QEMU_RUN_DIR="$run_dir/pipe" DEFMT_RAW="$run_dir/pipe/defmt.raw" \
+    ./qemu-run.sh "target/$target/release/qemu-mps2" 2> "$run_dir/pipe/stderr.txt" \
     | { grep -v '^$' || true; }
-cat "$run_dir/stderr.txt"
-grep -q '^done: 2 cycles, 2 frames, 2 watchdog feeds' "$run_dir/stderr.txt"
+cat "$run_dir/pipe/stderr.txt"
+grep -q '^done: 2 cycles, 2 frames, 2 watchdog feeds' "$run_dir/pipe/stderr.txt"
 
-step "frames vs numpy reference"
-(cd qemu-mps2/input && python3 reference_frames.py --check "$run_dir/frames.bin")
+step "pipeline frames: host build vs QEMU, byte for byte"
+(cd "$root" && ENVORD_HOST_PIPELINE_FRAMES_OUT="$run_dir/host-pipe.bin" \
+    cargo test -q -p firmware --test pipeline_core)
+cmp "$run_dir/host-pipe.bin" "$run_dir/pipe/frames.bin"
+echo "host and QEMU pipeline frames identical ($(stat -c %s "$run_dir/pipe/frames.bin") bytes)"
+
+step "qemu-mps2 image with the overall-only core"
+cp "${input_files[@]}" "$run_dir/overall/"
+: > "$run_dir/overall/core-overall"
+QEMU_RUN_DIR="$run_dir/overall" DEFMT_RAW="$run_dir/overall/defmt.raw" \
+    ./qemu-run.sh "target/$target/release/qemu-mps2" 2> "$run_dir/overall/stderr.txt" > /dev/null
+cat "$run_dir/overall/stderr.txt"
+grep -q '^done: 2 cycles, 2 frames, 2 watchdog feeds' "$run_dir/overall/stderr.txt"
+
+step "overall frames vs numpy reference"
+(cd qemu-mps2/input && python3 reference_frames.py --check "$run_dir/overall/frames.bin")
 git -C "$root" diff --exit-code -- boards/qemu-mps2/input/expected_frames.txt
 
-step "frames: host build vs QEMU, byte for byte"
-(cd "$root" && ENVORD_HOST_FRAMES_OUT="$run_dir/host-frames.bin" \
+step "overall frames: host build vs QEMU, byte for byte"
+(cd "$root" && ENVORD_HOST_FRAMES_OUT="$run_dir/host-overall.bin" \
     cargo test -q -p firmware --test replay)
-cmp "$run_dir/host-frames.bin" "$run_dir/frames.bin"
-echo "host and QEMU frames identical ($(stat -c %s "$run_dir/frames.bin") bytes)"
+cmp "$run_dir/host-overall.bin" "$run_dir/overall/frames.bin"
+echo "host and QEMU overall frames identical ($(stat -c %s "$run_dir/overall/frames.bin") bytes)"
 
 step "configuration downlink under QEMU: good one applied, corrupted one refused"
 gen="$here/qemu-mps2/input/make_input.py"
 for case in good corrupt; do
     d="$(mktemp -d)"
     cp qemu-mps2/input/recording.i16 qemu-mps2/input/tach.u32 qemu-mps2/input/config.bin "$d/"
+    : > "$d/core-overall" # record lengths below are the configured ones (no early stop)
     if [ "$case" = good ]; then (cd "$d" && python3 "$gen" downlink 32); else (cd "$d" && python3 "$gen" downlink 32 corrupt); fi
     QEMU_RUN_DIR="$d" DEFMT_RAW="$d/defmt.raw" ./qemu-run.sh "target/$target/release/qemu-mps2" > /dev/null 2> "$d/err"
     grep -E '^(cycle|done)' "$d/err"

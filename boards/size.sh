@@ -41,4 +41,8 @@ cp qemu-mps2/input/recording.i16 qemu-mps2/input/tach.u32 qemu-mps2/input/config
 log="$run_dir/stderr.txt"
 QEMU_RUN_DIR="$run_dir" DEFMT_RAW="$run_dir/defmt.raw" QEMU_TIMEOUT="${QEMU_TIMEOUT:-120}" \
     ./qemu-run.sh "target/$target/release/qemu-mps2" > /dev/null 2> "$log"
-grep -E '^stack high-water' "$log" | sed 's/^/qemu-mps2 /'
+grep -E '^stack high-water' "$log" | sed 's/^/qemu-mps2 (dsp-core pipeline) /'
+: > "$run_dir/core-overall"
+QEMU_RUN_DIR="$run_dir" DEFMT_RAW="$run_dir/defmt.raw" QEMU_TIMEOUT="${QEMU_TIMEOUT:-120}" \
+    ./qemu-run.sh "target/$target/release/qemu-mps2" > /dev/null 2> "$log"
+grep -E '^stack high-water' "$log" | sed 's/^/qemu-mps2 (overall-only core) /'

@@ -137,3 +137,29 @@ pub trait MeasurementCore {
     /// Encodes the finished report; returns the number of bytes written.
     fn encode(&mut self, frame: &mut [u8]) -> Result<usize, Self::Error>;
 }
+
+/// A core held by reference (e.g. a large core placed in a `static`).
+impl<C: MeasurementCore + ?Sized> MeasurementCore for &mut C {
+    type Error = C::Error;
+    fn load_baseline(&mut self, data: &[u8]) -> Result<(), Self::Error> {
+        (**self).load_baseline(data)
+    }
+    fn start(&mut self, config: &PointRecord) -> Result<(), Self::Error> {
+        (**self).start(config)
+    }
+    fn push_block(&mut self, samples: &[i16]) {
+        (**self).push_block(samples);
+    }
+    fn push_edge(&mut self, tick: u32) {
+        (**self).push_edge(tick);
+    }
+    fn complete(&self) -> bool {
+        (**self).complete()
+    }
+    fn finish(&mut self, flags: QualityFlags) -> Result<(), Self::Error> {
+        (**self).finish(flags)
+    }
+    fn encode(&mut self, frame: &mut [u8]) -> Result<usize, Self::Error> {
+        (**self).encode(frame)
+    }
+}

@@ -1,6 +1,8 @@
 //! The pipeline adapter end to end on the host: the committed fictional
 //! recording (outer-race defect, boards/qemu-mps2/input/make_input.py)
 //! through the node with the real dsp-core pipeline and frame codec.
+//! With ENVORD_HOST_PIPELINE_FRAMES_OUT set, the frames are written there so
+//! boards/ci.sh can compare them byte for byte with the QEMU image's.
 #![allow(
     clippy::unwrap_used,
     clippy::indexing_slicing,
@@ -23,13 +25,17 @@ fn baseline_is_refused_not_ignored() {
 
 #[test]
 fn outer_race_defect_recording_gives_a_bpfo_detection_in_the_frame() {
-    let node = replay_common::replay(NodeCore::new(7));
+    let node = replay_common::replay(NodeCore::new(1)); // NODE_ID of the qemu-mps2 image
     let bytes = node.devices().radio.0.clone();
+    // for boards/ci.sh: the QEMU image must send these bytes exactly
+    if let Some(out) = std::env::var_os("ENVORD_HOST_PIPELINE_FRAMES_OUT") {
+        std::fs::write(out, &bytes).unwrap();
+    }
     // full frame for one bearing: 30 bytes (dsp_core::frame::layout::full_frame_len(1))
     assert_eq!(bytes.len(), 2 * 30);
     for (seq, f) in bytes.chunks(30).enumerate() {
         let r = dsp_core::frame::decode(f).unwrap();
-        assert_eq!(r.node_id, 7);
+        assert_eq!(r.node_id, 1);
         assert_eq!(usize::from(r.seq), seq);
         assert_eq!(
             r.flags,

@@ -2,6 +2,10 @@
 //! recording read by semihosting until it is used up, writes every frame out,
 //! and reports the stack high-water mark.
 //!
+//! The core is the dsp-core envelope pipeline (`NodeCore`, full frames), or
+//! the overall-only core when a file `core-overall` exists in the run
+//! directory (12-byte frames, checked against numpy in CI).
+//!
 //! Exit status: 0 all cycles healthy, 2 a cycle fault, 3 input missing,
 //! 4 HardFault, 101 panic.
 #![no_std]
@@ -9,7 +13,9 @@
 
 use cortex_m_rt::entry;
 use firmware::cycle::{Devices, Node};
+use firmware::hal::MeasurementCore;
 use firmware::overall_core::OverallCore;
+use firmware::pipeline_core::NodeCore;
 use qemu_mps2::*;
 
 hardfault_exits!();
@@ -24,12 +30,33 @@ fn main() -> ! {
     semihosting::process::exit(code)
 }
 
+/// Node id written into pipeline frames.
+const NODE_ID: u16 = 1;
+
 fn run() -> i32 {
     // CI check of the fault path: an undefined instruction escalates to
     // HardFault, whose handler must end the run with status 4
     if semihosting::fs::File::open(c"trigger-hardfault").is_ok() {
         cortex_m::asm::udf();
     }
+    if semihosting::fs::File::open(c"core-overall").is_ok() {
+        return run_with(OverallCore::new());
+    }
+    match node_core() {
+        Some(core) => run_with(core),
+        None => 2,
+    }
+}
+
+/// The pipeline core (~55 KiB) in .bss rather than on the stack. Its own
+/// frame, so the initialising temporary is not part of `run`'s frame.
+#[inline(never)]
+fn node_core() -> Option<&'static mut NodeCore> {
+    cortex_m::singleton!(: NodeCore = NodeCore::new(NODE_ID))
+}
+
+#[inline(never)] // each core's frame apart: the stack figure then belongs to that core
+fn run_with<C: MeasurementCore>(core: C) -> i32 {
     let (source, radio) = match (FileSource::open(), FileRadio::create()) {
         (Ok(s), Ok(r)) => (s, r),
         _ => {
@@ -48,7 +75,7 @@ fn run() -> i32 {
         power: PowerFlag::default(),
         delay: SpinDelay,
     };
-    let mut node = Node::new(dev, OverallCore::new());
+    let mut node = Node::new(dev, core);
     semihosting::eprintln!(
         "config: {:?}, {} blocks of {} per record",
         node.config_source(),
