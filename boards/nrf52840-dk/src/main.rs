@@ -27,8 +27,11 @@ use embassy_nrf::gpio::{Level, Output, OutputDrive};
 use embassy_nrf::{bind_interrupts, config, saadc, wdt};
 use firmware::cycle::{Devices, Node};
 use firmware::hal::Watchdog;
-use firmware::overall_core::OverallCore;
+use firmware::pipeline_core::NodeCore;
 use panic_probe as _;
+
+/// Node id written into every frame (set per installed node).
+const NODE_ID: u16 = 1;
 
 bind_interrupts!(struct Irqs {
     SAADC => saadc::InterruptHandler;
@@ -93,7 +96,11 @@ fn main() -> ! {
         power: Output::new(p.P0_28, Level::Low, OutputDrive::Standard),
         delay: SpinDelay,
     };
-    let mut node = Node::new(dev, OverallCore::new());
+    // the pipeline core (~55 KiB) in .bss, not on the stack
+    let Some(core) = cortex_m::singleton!(: NodeCore = NodeCore::new(NODE_ID)) else {
+        panic!("core taken twice");
+    };
+    let mut node = Node::new(dev, core);
     defmt::info!("envord nRF52840 DK: config {}", node.config_source());
     loop {
         match node.run_cycle() {
