@@ -4,6 +4,10 @@
 #
 #   boards/size.sh            # builds if needed
 #
+# Also prints instructions per ADC block of the pipeline image under
+# `-icount shift=10` (an instruction count, a lower bound for cycles; the
+# block budget at 25.6 kHz is 10 ms, 640 000 cycles at 64 MHz).
+#
 # Flash = .text + .rodata + .data (load image); static RAM = .data + .bss
 # (+ .uninit). The stack is the rest of RAM; its measured use is printed last.
 set -euo pipefail
@@ -42,6 +46,12 @@ log="$run_dir/stderr.txt"
 QEMU_RUN_DIR="$run_dir" DEFMT_RAW="$run_dir/defmt.raw" QEMU_TIMEOUT="${QEMU_TIMEOUT:-120}" \
     ./qemu-run.sh "target/$target/release/qemu-mps2" > /dev/null 2> "$log"
 grep -E '^stack high-water' "$log" | sed 's/^/qemu-mps2 (dsp-core pipeline) /'
+# deterministic instruction counts per block (-icount shift=10, CMSDK timer0)
+: > "$run_dir/count-instructions"
+QEMU_ICOUNT=1 QEMU_RUN_DIR="$run_dir" DEFMT_RAW="$run_dir/defmt.raw" QEMU_TIMEOUT="${QEMU_TIMEOUT:-120}" \
+    ./qemu-run.sh "target/$target/release/qemu-mps2" > /dev/null 2> "$log"
+grep -E '^instructions' "$log" | sed 's/^/qemu-mps2 (dsp-core pipeline) /'
+rm -f "$run_dir/count-instructions"
 : > "$run_dir/core-overall"
 QEMU_RUN_DIR="$run_dir" DEFMT_RAW="$run_dir/defmt.raw" QEMU_TIMEOUT="${QEMU_TIMEOUT:-120}" \
     ./qemu-run.sh "target/$target/release/qemu-mps2" > /dev/null 2> "$log"

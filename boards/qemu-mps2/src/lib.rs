@@ -353,6 +353,34 @@ pub mod stack {
     }
 }
 
+/// The CMSDK APB timer0 of the mps2 board (25 MHz down-counter). Under
+/// `qemu-system-arm -icount shift=10` every instruction advances virtual time
+/// by 1024 ns, so instructions = ticks / 25.6 exactly.
+pub mod ticks {
+    const BASE: usize = 0x4000_0000;
+
+    /// Starts the counter from its top.
+    pub fn start() {
+        // SAFETY: CMSDK timer0 registers of the mps2-an386 memory map.
+        unsafe {
+            core::ptr::write_volatile((BASE + 8) as *mut u32, u32::MAX); // RELOAD
+            core::ptr::write_volatile((BASE + 4) as *mut u32, u32::MAX); // VALUE
+            core::ptr::write_volatile(BASE as *mut u32, 1); // CTRL: enable
+        }
+    }
+
+    /// Present counter value (counts down).
+    pub fn now() -> u32 {
+        // SAFETY: read of the VALUE register.
+        unsafe { core::ptr::read_volatile((BASE + 4) as *const u32) }
+    }
+
+    /// Instructions between two readings (valid with `-icount shift=10`).
+    pub fn instructions(earlier: u32, later: u32) -> u64 {
+        u64::from(earlier.wrapping_sub(later)) * 10 / 256
+    }
+}
+
 /// Installs a HardFault handler that reports and exits with status 4, so a
 /// fault under QEMU fails the run instead of hanging it.
 #[macro_export]

@@ -12,7 +12,7 @@
 #![no_main]
 
 use cortex_m_rt::entry;
-use firmware::cycle::{Devices, Node};
+use firmware::cycle::{Devices, Node, State};
 use firmware::hal::MeasurementCore;
 use firmware::overall_core::OverallCore;
 use firmware::pipeline_core::NodeCore;
@@ -82,9 +82,40 @@ fn run_with<C: MeasurementCore>(core: C) -> i32 {
         node.blocks_wanted(),
         BLOCK_LEN
     );
+    // instruction counts per state (meaningful only under QEMU_ICOUNT=1)
+    let count = semihosting::fs::File::open(c"count-instructions").is_ok();
+    ticks::start();
+    let (mut acq_sum, mut acq_n, mut acq_max, mut fin_max) = (0u64, 0u64, 0u64, 0u64);
+    let mut acq_max_at = 0u32;
     let mut cycles = 0u32;
     while node.devices().source.remaining_blocks() >= node.blocks_wanted() {
-        match node.run_cycle() {
+        let result = loop {
+            let from = node.state();
+            let t0 = ticks::now();
+            let r = node.step();
+            let n = ticks::instructions(t0, ticks::now());
+            match from {
+                State::Acquire => {
+                    acq_sum += n;
+                    acq_n += 1;
+                    if n > acq_max {
+                        acq_max = n;
+                        acq_max_at = node.summary().blocks;
+                    }
+                    if n > 1_000_000 && count {
+                        semihosting::eprintln!("  block {}: {} instructions", node.summary().blocks, n);
+                    }
+                }
+                State::Finish | State::Encode => fin_max = fin_max.max(n),
+                _ => {}
+            }
+            match r {
+                Ok(State::Sleep) => break Ok(*node.summary()),
+                Ok(_) => {}
+                Err(e) => break Err(e),
+            }
+        };
+        match result {
             Ok(s) => {
                 semihosting::eprintln!(
                     "cycle {}: {} blocks, {} edges, flags {:#04x}, fed {}, downlink {:?}",
@@ -110,6 +141,16 @@ fn run_with<C: MeasurementCore>(core: C) -> i32 {
         node.devices().radio.sent(),
         node.devices().watchdog.feeds
     );
+    if count && acq_n > 0 {
+        semihosting::eprintln!(
+            "instructions per {}-sample block (incl. the semihosting read): mean {}, max {} (block {}); finish or encode step max {}",
+            BLOCK_LEN,
+            acq_sum / acq_n,
+            acq_max,
+            acq_max_at,
+            fin_max
+        );
+    }
     if cycles == 0 {
         return 3;
     }
