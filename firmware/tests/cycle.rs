@@ -356,3 +356,30 @@ fn stored_baseline_is_loaded_at_boot_only_if_its_crc_matches() {
     let (node, _) = bench.build();
     assert_eq!(node.core().baseline, None);
 }
+
+#[test]
+fn acquisition_stops_when_the_core_is_complete() {
+    let mut bench = Bench::new(8, 256).with_config_blocks(8);
+    bench.core_complete_after = Some(3 * 256);
+    let (mut node, log) = bench.build();
+    let s = node.run_cycle().unwrap();
+    assert_eq!(s.blocks, 3);
+    assert_eq!(count(&log, |e| matches!(e, Ev::Block(_))), 3);
+    assert_eq!(count(&log, |e| *e == Ev::SourceStop), 1);
+}
+
+#[test]
+fn edges_reach_the_core_before_their_block() {
+    let (mut node, log) = Bench::new(2, 256).with_config_blocks(2).build();
+    node.run_cycle().unwrap();
+    let l = log.borrow();
+    let edge = l.iter().position(|e| *e == Ev::CoreEdge(1007)).unwrap();
+    let pushes: Vec<usize> = l
+        .iter()
+        .enumerate()
+        .filter(|(_, e)| matches!(e, Ev::CorePush(_)))
+        .map(|(i, _)| i)
+        .collect();
+    // the edge seen with block 1 is pushed after block 0 and before block 1
+    assert!(pushes[0] < edge && edge < pushes[1]);
+}

@@ -246,6 +246,8 @@ pub struct MockCore {
     pub baseline: Option<Vec<u8>>,
     pub fail_finish: bool,
     pub flags: QualityFlags,
+    /// Reports `complete()` once this many samples arrived.
+    pub complete_after: Option<usize>,
 }
 
 impl MeasurementCore for MockCore {
@@ -270,6 +272,9 @@ impl MeasurementCore for MockCore {
     fn push_edge(&mut self, tick: u32) {
         self.edges.push(tick);
         self.log.borrow_mut().push(Ev::CoreEdge(tick));
+    }
+    fn complete(&self) -> bool {
+        self.complete_after.is_some_and(|n| self.samples.len() >= n)
     }
     fn finish(&mut self, flags: QualityFlags) -> Result<(), ()> {
         self.flags = flags;
@@ -323,6 +328,7 @@ pub struct Bench {
     pub radio_fails: bool,
     pub core_fails_finish: bool,
     pub pin_fails: bool,
+    pub core_complete_after: Option<usize>,
 }
 
 /// A healthy block: a triangle wave of +-1000 counts (well inside 12 bits).
@@ -351,6 +357,7 @@ impl Bench {
             radio_fails: false,
             core_fails_finish: false,
             pin_fails: false,
+            core_complete_after: None,
         }
     }
 
@@ -398,6 +405,7 @@ impl Bench {
             baseline: None,
             fail_finish: self.core_fails_finish,
             flags: QualityFlags::empty(),
+            complete_after: self.core_complete_after,
         };
         let node = Node::new(dev, core);
         log.borrow_mut().clear();
