@@ -103,7 +103,11 @@ fn run_with<C: MeasurementCore>(core: C) -> i32 {
                         acq_max_at = node.summary().blocks;
                     }
                     if n > 1_000_000 && count {
-                        semihosting::eprintln!("  block {}: {} instructions", node.summary().blocks, n);
+                        semihosting::eprintln!(
+                            "  block {}: {} instructions",
+                            node.summary().blocks,
+                            n
+                        );
                     }
                 }
                 State::Finish | State::Encode => fin_max = fin_max.max(n),
