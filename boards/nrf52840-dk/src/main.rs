@@ -102,6 +102,16 @@ fn main() -> ! {
     };
     let mut node = Node::new(dev, core);
     defmt::info!("envord nRF52840 DK: config {}", node.config_source());
+    // the sampling chain runs at a fixed 25.6 kHz with tach ticks in samples
+    let c = node.config();
+    if c.sample_rate_hz != sampling::SAMPLE_RATE_HZ || c.tach_tick_hz != sampling::SAMPLE_RATE_HZ {
+        defmt::error!(
+            "configuration expects {} Hz sampling / {} Hz tach ticks; this board gives {} Hz for both",
+            c.sample_rate_hz,
+            c.tach_tick_hz,
+            sampling::SAMPLE_RATE_HZ
+        );
+    }
     loop {
         match node.run_cycle() {
             Ok(s) => defmt::info!("cycle done: {}", s),
