@@ -1,0 +1,221 @@
+//! The adapter from [`MeasurementCore`] to `dsp-core`'s envelope pipeline
+//! and frame codec: the core the node runs once configured.
+//!
+//! * `start` converts the stored record ([`crate::point::point_config`]) and
+//!   builds a fresh [`Pipeline`]; a point dsp-core refuses aborts the cycle.
+//! * Blocks and edges go straight to the pipeline (nothing is buffered here).
+//! * `finish` raises the firmware's flags in the pipeline, then keeps its
+//!   [`Report`]; `encode` fills a [`FrameReport`] and packs the full frame
+//!   (`dsp_core::frame::encode`, at most 58 bytes for 4 bearings).
+//!
+//! Report flags without a frame bit: SPEED_UNSTABLE is sent as
+//! `tach_irregular` and NON_FINITE as `sensor_fault`; INCOMPLETE,
+//! TOO_FEW_REVS and RESAMPLER make the report unanalysable, which the frame
+//! shows as invalid (NaN) defect scores.
+
+use crate::config::PointRecord;
+use crate::hal::MeasurementCore;
+use crate::point::{point_config, PointError};
+use crate::quality::QualityFlags;
+use dsp_core::frame::{self, BearingResult, DefectResult, EncodeError, FrameReport, IsoZone};
+use dsp_core::pipeline::{Pipeline, PipelineError, NODE_RING};
+use dsp_core::report::{QualityFlags as ReportFlags, Report};
+use dsp_core::velocity::Zone;
+
+/// The node's core: 4096-point spectrum, node-sized resampler ring.
+pub type NodeCore = PipelineCore<4096, 2048, NODE_RING>;
+
+/// Why the pipeline core failed.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum PipelineCoreError {
+    /// The record could not become a measuring point.
+    Point(PointError),
+    /// dsp-core refused the point for its pipeline.
+    Pipeline(PipelineError),
+    /// `finish` before `start`, or `encode` before `finish`.
+    OutOfOrder,
+    /// The frame codec refused the report or the buffer.
+    Encode(EncodeError),
+    /// The pipeline takes no baseline yet; the downlink is refused.
+    BaselineUnsupported,
+}
+
+impl core::fmt::Display for PipelineCoreError {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        match self {
+            Self::Point(e) => write!(f, "{e}"),
+            Self::Pipeline(e) => write!(f, "pipeline: {e}"),
+            Self::OutOfOrder => f.write_str("core called out of order"),
+            Self::Encode(e) => write!(f, "frame: {e}"),
+            Self::BaselineUnsupported => f.write_str("baseline not supported by the pipeline"),
+        }
+    }
+}
+
+impl core::error::Error for PipelineCoreError {}
+
+/// [`MeasurementCore`] over an `N`-point pipeline.
+pub struct PipelineCore<const N: usize, const H: usize, const RING: usize> {
+    node_id: u16,
+    seq: u16,
+    pipeline: Option<Pipeline<N, H, RING>>,
+    report: Option<Report>,
+}
+
+impl<const N: usize, const H: usize, const RING: usize> PipelineCore<N, H, RING> {
+    /// A core for node `node_id`; frame sequence numbers start at 0.
+    pub const fn new(node_id: u16) -> Self {
+        Self {
+            node_id,
+            seq: 0,
+            pipeline: None,
+            report: None,
+        }
+    }
+
+    /// The last finished report.
+    pub fn report(&self) -> Option<&Report> {
+        self.report.as_ref()
+    }
+}
+
+/// Firmware flags as the pipeline's report flags.
+pub fn report_flags(f: QualityFlags) -> ReportFlags {
+    let mut r = ReportFlags::empty();
+    let map = [
+        (QualityFlags::TACH_MISSING, ReportFlags::TACH_MISSING),
+        (QualityFlags::CLIPPING, ReportFlags::CLIPPING),
+        (QualityFlags::SENSOR_FAULT, ReportFlags::SENSOR_FAULT),
+        (QualityFlags::PROCESSING_OVERRUN, ReportFlags::OVERRUN),
+        (QualityFlags::LOW_BATTERY, ReportFlags::LOW_BATTERY),
+    ];
+    for (ours, theirs) in map {
+        if f.contains(ours) {
+            r.insert(theirs);
+        }
+    }
+    r
+}
+
+/// A pipeline report as the frame codec's input.
+pub fn frame_report(r: &Report, node_id: u16, seq: u16) -> FrameReport {
+    let has = |x: ReportFlags| r.flags.contains(x);
+    let flags = frame::QualityFlags {
+        tach_missing: has(ReportFlags::TACH_MISSING),
+        tach_irregular: has(ReportFlags::TACH_IRREGULAR) || has(ReportFlags::SPEED_UNSTABLE),
+        speed_out_of_range: has(ReportFlags::SPEED_OUT_OF_RANGE),
+        clipping: has(ReportFlags::CLIPPING),
+        sensor_fault: has(ReportFlags::SENSOR_FAULT) || has(ReportFlags::NON_FINITE),
+        processing_overrun: has(ReportFlags::OVERRUN),
+        low_battery: has(ReportFlags::LOW_BATTERY),
+    };
+    let speed_rpm = if r.speed.revs > 0 && !flags.tach_missing {
+        r.speed.mean_rpm
+    } else {
+        f32::NAN
+    };
+    let o = &r.overall;
+    let overall = frame::OverallIndicators {
+        accel_rms_g: o.rms_ac,
+        peak_g: o.peak,
+        crest_factor: o.crest_factor,
+        kurtosis: o.kurtosis,
+        velocity_rms_mm_s: o.velocity_rms_mm_s,
+        iso_zone: o.zone.map(|z| match z {
+            Zone::A => IsoZone::A,
+            Zone::B => IsoZone::B,
+            Zone::C => IsoZone::C,
+            Zone::D => IsoZone::D,
+        }),
+    };
+    let mut bearings = heapless::Vec::new();
+    let analysed = r.analysed();
+    for b in &r.bearings {
+        let mut out = BearingResult::default();
+        for (slot, i) in out.defects.iter_mut().zip(0..) {
+            let d = b
+                .diagnosis
+                .as_ref()
+                .filter(|_| analysed)
+                .and_then(|d| d.results.get(i));
+            *slot = match d {
+                Some(d) => DefectResult {
+                    score_db: d.score_db,
+                    amplitude_1x_g: d.fundamental_amplitude,
+                    harmonics: d.harmonics_found,
+                    detected: d.detected,
+                },
+                None => DefectResult {
+                    score_db: f32::NAN,
+                    amplitude_1x_g: f32::NAN,
+                    harmonics: 0,
+                    detected: false,
+                },
+            };
+        }
+        // both capacities are MAX_BEARINGS (4)
+        let _ = bearings.push(out);
+    }
+    FrameReport {
+        node_id,
+        seq,
+        flags,
+        speed_rpm,
+        overall,
+        bearings,
+        ..FrameReport::default()
+    }
+}
+
+impl<const N: usize, const H: usize, const RING: usize> MeasurementCore
+    for PipelineCore<N, H, RING>
+{
+    type Error = PipelineCoreError;
+
+    fn load_baseline(&mut self, _data: &[u8]) -> Result<(), PipelineCoreError> {
+        Err(PipelineCoreError::BaselineUnsupported)
+    }
+
+    fn start(&mut self, config: &PointRecord) -> Result<(), PipelineCoreError> {
+        self.report = None;
+        self.pipeline = None; // free the old one before building the next
+        let point = point_config(config).map_err(PipelineCoreError::Point)?;
+        self.pipeline = Some(Pipeline::new(&point).map_err(PipelineCoreError::Pipeline)?);
+        Ok(())
+    }
+
+    fn push_block(&mut self, samples: &[i16]) {
+        if let Some(p) = self.pipeline.as_mut() {
+            p.push_i16(samples);
+        }
+    }
+
+    fn push_edge(&mut self, tick: u32) {
+        if let Some(p) = self.pipeline.as_mut() {
+            p.push_edge(tick);
+        }
+    }
+
+    fn complete(&self) -> bool {
+        self.pipeline.as_ref().is_some_and(|p| p.complete())
+    }
+
+    fn finish(&mut self, flags: QualityFlags) -> Result<(), PipelineCoreError> {
+        let p = self
+            .pipeline
+            .as_mut()
+            .ok_or(PipelineCoreError::OutOfOrder)?;
+        p.raise(report_flags(flags));
+        self.report = Some(p.finish());
+        Ok(())
+    }
+
+    fn encode(&mut self, out: &mut [u8]) -> Result<usize, PipelineCoreError> {
+        let r = self.report.as_ref().ok_or(PipelineCoreError::OutOfOrder)?;
+        let fr = frame_report(r, self.node_id, self.seq);
+        let n = frame::encode(&fr, out).map_err(PipelineCoreError::Encode)?;
+        self.seq = self.seq.wrapping_add(1);
+        Ok(n)
+    }
+}

@@ -1,0 +1,170 @@
+//! Quality flags carried by every frame, and the signal-health checks that
+//! raise them while blocks stream past (no raw record is kept).
+
+/// Bit set of conditions that make a measurement doubtful.
+///
+/// The bit layout is the firmware's own; the adapter to the frame codec maps
+/// each bit to the frame's flag field.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct QualityFlags(u8);
+
+impl QualityFlags {
+    /// No once-per-revolution pulse (or only one) during the record.
+    pub const TACH_MISSING: Self = Self(1 << 0);
+    /// Some samples reached the clip level.
+    pub const CLIPPING: Self = Self(1 << 1);
+    /// Sensor fault: flat (open or shorted sensor) or saturated signal.
+    pub const SENSOR_FAULT: Self = Self(1 << 2);
+    /// The sample source overran: processing was too slow and blocks were lost.
+    pub const PROCESSING_OVERRUN: Self = Self(1 << 3);
+    /// Battery below the configured threshold (measured under load).
+    pub const LOW_BATTERY: Self = Self(1 << 4);
+
+    /// No flags.
+    pub const fn empty() -> Self {
+        Self(0)
+    }
+
+    /// Raw bits.
+    pub const fn bits(self) -> u8 {
+        self.0
+    }
+
+    /// From raw bits; unknown bits are dropped.
+    pub const fn from_bits_truncate(bits: u8) -> Self {
+        Self(bits & 0x1F)
+    }
+
+    /// True when every bit of `other` is set.
+    pub const fn contains(self, other: Self) -> bool {
+        self.0 & other.0 == other.0
+    }
+
+    /// Sets the bits of `other`.
+    pub fn insert(&mut self, other: Self) {
+        self.0 |= other.0;
+    }
+
+    /// True when no flag is set.
+    pub const fn is_empty(self) -> bool {
+        self.0 == 0
+    }
+}
+
+impl core::ops::BitOr for QualityFlags {
+    type Output = Self;
+    fn bitor(self, rhs: Self) -> Self {
+        Self(self.0 | rhs.0)
+    }
+}
+
+/// Thresholds for [`SignalHealth`], taken from the stored configuration.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct HealthLimits {
+    /// A record whose peak-to-peak span is at most this many counts is "flat".
+    pub flat_counts: u16,
+    /// Magnitude at or above which a sample counts as clipped.
+    pub clip_level: i16,
+    /// Clipped samples, per mille of the record, from which CLIPPING is raised.
+    pub clip_permille: u16,
+    /// Clipped samples, per mille, from which the sensor is called saturated.
+    pub saturated_permille: u16,
+}
+
+impl Default for HealthLimits {
+    fn default() -> Self {
+        // 12-bit ADC in a signed 16-bit container (common practice); flat span
+        // of a few counts covers ADC noise on a dead input.
+        Self {
+            flat_counts: 4,
+            clip_level: 2047,
+            clip_permille: 1,
+            saturated_permille: 100,
+        }
+    }
+}
+
+/// Running min/max/clip counts over a streamed record.
+#[derive(Clone, Copy, Debug)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct SignalHealth {
+    min: i16,
+    max: i16,
+    samples: u32,
+    clipped: u32,
+}
+
+impl Default for SignalHealth {
+    fn default() -> Self {
+        Self::new()
+    }
+}
+
+impl SignalHealth {
+    /// Nothing seen yet.
+    pub const fn new() -> Self {
+        Self {
+            min: i16::MAX,
+            max: i16::MIN,
+            samples: 0,
+            clipped: 0,
+        }
+    }
+
+    /// Accounts for one block.
+    pub fn observe(&mut self, block: &[i16], clip_level: i16) {
+        let clip = clip_level.unsigned_abs();
+        for &s in block {
+            self.min = self.min.min(s);
+            self.max = self.max.max(s);
+            if s.unsigned_abs() >= clip {
+                self.clipped = self.clipped.saturating_add(1);
+            }
+        }
+        let n = u32::try_from(block.len()).unwrap_or(u32::MAX);
+        self.samples = self.samples.saturating_add(n);
+    }
+
+    /// Samples seen.
+    pub const fn samples(&self) -> u32 {
+        self.samples
+    }
+
+    /// Samples at or above the clip level.
+    pub const fn clipped(&self) -> u32 {
+        self.clipped
+    }
+
+    /// Peak-to-peak span in counts (0 before any sample).
+    pub fn span(&self) -> u32 {
+        if self.samples == 0 {
+            return 0;
+        }
+        let span = i32::from(self.max) - i32::from(self.min);
+        u32::try_from(span).unwrap_or(0)
+    }
+
+    /// Flags for what was seen: SENSOR_FAULT for a flat, saturated or empty
+    /// record, CLIPPING when the clipped share reaches the limit.
+    pub fn flags(&self, limits: &HealthLimits) -> QualityFlags {
+        let mut f = QualityFlags::empty();
+        if self.samples == 0 {
+            f.insert(QualityFlags::SENSOR_FAULT);
+            return f;
+        }
+        if self.span() <= u32::from(limits.flat_counts) {
+            f.insert(QualityFlags::SENSOR_FAULT);
+        }
+        // per mille without overflow: clipped * 1000 in u64
+        let permille = u64::from(self.clipped) * 1000 / u64::from(self.samples);
+        if self.clipped > 0 && permille >= u64::from(limits.clip_permille) {
+            f.insert(QualityFlags::CLIPPING);
+        }
+        if permille >= u64::from(limits.saturated_permille) {
+            f.insert(QualityFlags::SENSOR_FAULT);
+        }
+        f
+    }
+}

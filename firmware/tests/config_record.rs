@@ -1,0 +1,196 @@
+//! The stored configuration record: round trip, CRC, version and ranges.
+#![allow(
+    clippy::cast_possible_truncation,
+    clippy::unwrap_used,
+    clippy::indexing_slicing,
+    missing_docs
+)]
+mod common;
+use common::encode;
+use firmware::config::{BearingModel, BearingSpec, ConfigError, PointRecord, MAX_RECORD_LEN};
+
+fn sample() -> PointRecord {
+    let mut c = PointRecord::default();
+    // a second bearing given by defect orders (values of a fictional bearing)
+    c.bearings
+        .push(BearingSpec {
+            shaft_ratio: 0.25,
+            model: BearingModel::Orders {
+                bpfo: 3.58,
+                bpfi: 5.42,
+                ftf: 0.398,
+                bsf: 2.36,
+            },
+        })
+        .unwrap();
+    c
+}
+
+#[test]
+fn round_trip_preserves_every_field() {
+    let c = sample();
+    let bytes = encode(&c);
+    assert_eq!(bytes.len(), c.encoded_len());
+    assert_eq!(bytes.len(), 62 + 2 * 22 + 4);
+    assert!(bytes.len() <= MAX_RECORD_LEN);
+    assert_eq!(PointRecord::decode(&bytes).unwrap(), c);
+}
+
+#[test]
+fn trailing_bytes_are_ignored() {
+    let mut bytes = encode(&sample());
+    bytes.extend_from_slice(&[0xFF; 16]); // erased flash after the record
+    assert_eq!(PointRecord::decode(&bytes).unwrap(), sample());
+}
+
+#[test]
+fn crc_trailer_is_zlib_crc32_of_the_body() {
+    // independent recomputation with the catalogue's CRC-32 (same as zlib.crc32)
+    let bytes = encode(&sample());
+    let (body, crc) = bytes.split_at(bytes.len() - 4);
+    assert_eq!(
+        u32::from_le_bytes(crc.try_into().unwrap()),
+        firmware::crc::crc32(body)
+    );
+    assert_eq!(&bytes[..3], b"EP\x01");
+}
+
+#[test]
+fn every_single_bit_flip_is_refused() {
+    // CRC-32 detects all single-bit errors (property of any CRC with >1 term).
+    let bytes = encode(&sample());
+    for i in 0..bytes.len() {
+        for bit in 0..8 {
+            let mut b = bytes.clone();
+            b[i] ^= 1 << bit;
+            assert!(
+                PointRecord::decode(&b).is_err(),
+                "flip at byte {i} bit {bit} accepted"
+            );
+        }
+    }
+}
+
+#[test]
+fn corrupted_payload_gives_bad_crc() {
+    let mut bytes = encode(&sample());
+    bytes[10] ^= 0x40;
+    assert_eq!(PointRecord::decode(&bytes), Err(ConfigError::BadCrc));
+}
+
+#[test]
+fn truncated_record_is_refused() {
+    let bytes = encode(&sample());
+    for n in [0, 1, 3, 4, 40, bytes.len() - 1] {
+        assert_eq!(
+            PointRecord::decode(&bytes[..n]),
+            Err(ConfigError::Truncated),
+            "len {n}"
+        );
+    }
+}
+
+#[test]
+fn wrong_magic_and_version_are_refused() {
+    let mut bytes = encode(&sample());
+    bytes[0] = b'X';
+    assert_eq!(PointRecord::decode(&bytes), Err(ConfigError::BadMagic));
+    let mut bytes = encode(&sample());
+    bytes[2] = 2;
+    assert_eq!(
+        PointRecord::decode(&bytes),
+        Err(ConfigError::UnsupportedVersion(2))
+    );
+}
+
+/// Re-seals a modified body so that only the range check can refuse it.
+fn reseal(mut bytes: Vec<u8>) -> Vec<u8> {
+    let n = bytes.len() - 4;
+    let crc = firmware::crc::crc32(&bytes[..n]);
+    bytes[n..].copy_from_slice(&crc.to_le_bytes());
+    bytes
+}
+
+#[test]
+fn out_of_range_fields_are_refused_even_with_a_good_crc() {
+    let good = encode(&sample());
+    // band upper edge above Nyquist (fs/2 = 12.8 kHz, sampling theorem)
+    let mut b = good.clone();
+    b[12..16].copy_from_slice(&13_000.0f32.to_le_bytes());
+    assert_eq!(
+        PointRecord::decode(&reseal(b)),
+        Err(ConfigError::OutOfRange("band_hi_hz"))
+    );
+    // NaN band edge
+    let mut b = good.clone();
+    b[8..12].copy_from_slice(&f32::NAN.to_le_bytes());
+    assert_eq!(
+        PointRecord::decode(&reseal(b)),
+        Err(ConfigError::OutOfRange("band_lo_hz"))
+    );
+    // odd filter order
+    let mut b = good.clone();
+    b[16] = 3;
+    assert_eq!(
+        PointRecord::decode(&reseal(b)),
+        Err(ConfigError::OutOfRange("poles"))
+    );
+    // minimum speed above maximum
+    let mut b = good.clone();
+    b[20..24].copy_from_slice(&5_000.0f32.to_le_bytes());
+    assert_eq!(
+        PointRecord::decode(&reseal(b)),
+        Err(ConfigError::OutOfRange("speed_max_rpm"))
+    );
+    // element diameter larger than pitch diameter (impossible geometry)
+    let mut b = good.clone();
+    b[62 + 6..62 + 10].copy_from_slice(&50.0f32.to_le_bytes());
+    assert_eq!(
+        PointRecord::decode(&reseal(b)),
+        Err(ConfigError::OutOfRange("element_mm"))
+    );
+    // zero sensitivity
+    let mut b = good.clone();
+    b[56..60].copy_from_slice(&0.0f32.to_le_bytes());
+    assert_eq!(
+        PointRecord::decode(&reseal(b)),
+        Err(ConfigError::OutOfRange("counts_to_g"))
+    );
+    // unknown bearing kind
+    let mut b = good.clone();
+    b[62] = 7;
+    assert_eq!(
+        PointRecord::decode(&reseal(b)),
+        Err(ConfigError::OutOfRange("bearing_kind"))
+    );
+    // bearing count that does not match the length
+    let mut b = good;
+    b[60] = 1;
+    assert_eq!(PointRecord::decode(&reseal(b)), Err(ConfigError::BadLength));
+}
+
+#[test]
+fn encode_refuses_an_invalid_record() {
+    let mut c = sample();
+    c.alarm_db = 3.0; // below alert_db = 6
+    let mut buf = [0u8; MAX_RECORD_LEN];
+    assert_eq!(c.encode(&mut buf), Err(ConfigError::OutOfRange("alarm_db")));
+    let mut c = sample();
+    c.bearings.clear();
+    assert_eq!(c.encode(&mut buf), Err(ConfigError::OutOfRange("bearings")));
+    let c = sample();
+    assert_eq!(c.encode(&mut buf[..20]), Err(ConfigError::BufferTooSmall));
+}
+
+#[test]
+fn record_length_follows_revolutions_and_lowest_speed() {
+    // 64 revolutions at 1000 rpm = 3.84 s; at 25.6 kHz that is 98 304 samples = 384 blocks of 256
+    let c = PointRecord::default();
+    assert_eq!(c.record_blocks(256, 10_000), 384);
+    assert_eq!(c.record_blocks(256, 100), 100); // capped
+                                                // 4 revolutions at 7000 rpm: 0.0342857 s * 25600 = 877.7 samples -> 4 blocks (rounded up)
+    let mut c = PointRecord::default();
+    c.record_revs = 4;
+    c.speed_min_rpm = 7_000.0;
+    assert_eq!(c.record_blocks(256, 10_000), 4);
+}

@@ -1,0 +1,176 @@
+//! Host replay harness: the committed QEMU input through a node with the
+//! same delivery rules as the qemu-mps2 board.
+#![allow(
+    dead_code,
+    clippy::unwrap_used,
+    clippy::indexing_slicing,
+    clippy::cast_possible_truncation,
+    missing_docs
+)]
+
+use firmware::cycle::{Devices, Node};
+use firmware::hal::*;
+
+use std::cell::Cell;
+use std::path::PathBuf;
+use std::rc::Rc;
+
+pub const BLOCK: usize = 256;
+
+pub fn input(name: &str) -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+        .join("../boards/qemu-mps2/input")
+        .join(name)
+}
+
+/// Same delivery rule as the QEMU board: blocks in order, each edge released
+/// once the sample clock has passed it.
+pub struct Src {
+    pub samples: Vec<i16>,
+    pub pos: usize,
+    clock: Rc<Cell<u32>>,
+}
+impl BlockSource for Src {
+    type Error = ();
+    fn block_len(&self) -> usize {
+        BLOCK
+    }
+    fn start(&mut self) -> Result<(), ()> {
+        Ok(())
+    }
+    fn next_block(&mut self) -> Result<Block<'_>, ()> {
+        let b = self.samples.get(self.pos..self.pos + BLOCK).ok_or(())?;
+        self.pos += BLOCK;
+        self.clock.set(self.pos as u32);
+        Ok(Block {
+            samples: b,
+            overrun: false,
+        })
+    }
+    fn stop(&mut self) {}
+}
+pub struct Cap {
+    edges: std::collections::VecDeque<u32>,
+    clock: Rc<Cell<u32>>,
+    origin: u32,
+}
+impl PulseCapture for Cap {
+    type Error = ();
+    fn start(&mut self) -> Result<(), ()> {
+        // ticks count from the first sample of this record
+        self.origin = self.clock.get();
+        while self.edges.front().is_some_and(|&e| e < self.origin) {
+            self.edges.pop_front();
+        }
+        Ok(())
+    }
+    fn next_edge(&mut self) -> Option<u32> {
+        let e = *self.edges.front()?;
+        (e < self.clock.get()).then(|| self.edges.pop_front().unwrap() - self.origin)
+    }
+    fn stop(&mut self) {}
+}
+pub struct Radio(pub Vec<u8>);
+impl RadioLink for Radio {
+    type Error = ();
+    fn send(&mut self, f: &[u8]) -> Result<(), ()> {
+        self.0.extend_from_slice(f);
+        Ok(())
+    }
+    fn receive(&mut self, _b: &mut [u8]) -> Result<Option<usize>, ()> {
+        Ok(None)
+    }
+}
+pub struct NoSleep;
+impl Alarm for NoSleep {
+    fn sleep(&mut self, _s: u32) -> WakeReason {
+        WakeReason::Schedule
+    }
+}
+pub struct Store(Vec<u8>);
+impl Storage for Store {
+    type Error = ();
+    fn load(&mut self, slot: Slot, buf: &mut [u8]) -> Result<usize, ()> {
+        if slot != Slot::Config {
+            return Ok(0);
+        }
+        buf[..self.0.len()].copy_from_slice(&self.0);
+        Ok(self.0.len())
+    }
+    fn store(&mut self, _s: Slot, _d: &[u8]) -> Result<(), ()> {
+        Ok(())
+    }
+}
+pub struct Batt;
+impl Battery for Batt {
+    fn millivolts(&mut self) -> u16 {
+        3300
+    }
+}
+pub struct Dog;
+impl Watchdog for Dog {
+    fn feed(&mut self) {}
+}
+pub struct Pin;
+impl embedded_hal::digital::ErrorType for Pin {
+    type Error = core::convert::Infallible;
+}
+impl embedded_hal::digital::OutputPin for Pin {
+    fn set_low(&mut self) -> Result<(), Self::Error> {
+        Ok(())
+    }
+    fn set_high(&mut self) -> Result<(), Self::Error> {
+        Ok(())
+    }
+}
+pub struct NoDelay;
+impl embedded_hal::delay::DelayNs for NoDelay {
+    fn delay_ns(&mut self, _ns: u32) {}
+}
+
+pub type ReplayNode<C> = Node<Src, Cap, Radio, NoSleep, Store, Batt, Dog, Pin, NoDelay, C>;
+
+/// Runs cycles over the committed input until no full record is left;
+/// returns the node (frames in `devices().radio.0`).
+pub fn replay<C: MeasurementCore>(core: C) -> ReplayNode<C>
+where
+    C::Error: core::fmt::Debug,
+{
+    let raw = std::fs::read(input("recording.i16")).unwrap();
+    let samples: Vec<i16> = raw
+        .chunks_exact(2)
+        .map(|b| i16::from_le_bytes([b[0], b[1]]))
+        .collect();
+    let tach = std::fs::read(input("tach.u32")).unwrap();
+    let edges = tach
+        .chunks_exact(4)
+        .map(|b| u32::from_le_bytes([b[0], b[1], b[2], b[3]]))
+        .collect();
+    let clock = Rc::new(Cell::new(0));
+    let dev = Devices {
+        source: Src {
+            samples,
+            pos: 0,
+            clock: clock.clone(),
+        },
+        capture: Cap {
+            edges,
+            clock,
+            origin: 0,
+        },
+        radio: Radio(Vec::new()),
+        alarm: NoSleep,
+        storage: Store(std::fs::read(input("config.bin")).unwrap()),
+        battery: Batt,
+        watchdog: Dog,
+        power: Pin,
+        delay: NoDelay,
+    };
+    let mut node = Node::new(dev, core);
+    assert_eq!(node.config_source(), firmware::cycle::ConfigSource::Stored);
+    let per = node.blocks_wanted() as usize * BLOCK;
+    while node.devices().source.samples.len() - node.devices().source.pos >= per {
+        node.run_cycle().unwrap();
+    }
+    node
+}
