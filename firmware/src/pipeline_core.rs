@@ -17,10 +17,9 @@ use crate::config::PointRecord;
 use crate::hal::MeasurementCore;
 use crate::point::{point_config, PointError};
 use crate::quality::QualityFlags;
-use dsp_core::frame::{self, BearingResult, DefectResult, EncodeError, FrameReport, IsoZone};
+use dsp_core::frame::{self, EncodeError, FrameReport};
 use dsp_core::pipeline::{Pipeline, PipelineError, NODE_RING};
 use dsp_core::report::{QualityFlags as ReportFlags, Report};
-use dsp_core::velocity::Zone;
 
 /// The node's core: 4096-point spectrum, node-sized resampler ring.
 pub type NodeCore = PipelineCore<4096, 2048, NODE_RING>;
@@ -98,74 +97,10 @@ pub fn report_flags(f: QualityFlags) -> ReportFlags {
     r
 }
 
-/// A pipeline report as the frame codec's input.
+/// A pipeline report as the frame codec's input (the mapping is
+/// [`FrameReport::from_report`], shared with the host simulator).
 pub fn frame_report(r: &Report, node_id: u16, seq: u16) -> FrameReport {
-    let has = |x: ReportFlags| r.flags.contains(x);
-    let flags = frame::QualityFlags {
-        tach_missing: has(ReportFlags::TACH_MISSING),
-        tach_irregular: has(ReportFlags::TACH_IRREGULAR) || has(ReportFlags::SPEED_UNSTABLE),
-        speed_out_of_range: has(ReportFlags::SPEED_OUT_OF_RANGE),
-        clipping: has(ReportFlags::CLIPPING),
-        sensor_fault: has(ReportFlags::SENSOR_FAULT) || has(ReportFlags::NON_FINITE),
-        processing_overrun: has(ReportFlags::OVERRUN),
-        low_battery: has(ReportFlags::LOW_BATTERY),
-    };
-    let speed_rpm = if r.speed.revs > 0 && !flags.tach_missing {
-        r.speed.mean_rpm
-    } else {
-        f32::NAN
-    };
-    let o = &r.overall;
-    let overall = frame::OverallIndicators {
-        accel_rms_g: o.rms_ac,
-        peak_g: o.peak,
-        crest_factor: o.crest_factor,
-        kurtosis: o.kurtosis,
-        velocity_rms_mm_s: o.velocity_rms_mm_s,
-        iso_zone: o.zone.map(|z| match z {
-            Zone::A => IsoZone::A,
-            Zone::B => IsoZone::B,
-            Zone::C => IsoZone::C,
-            Zone::D => IsoZone::D,
-        }),
-    };
-    let mut bearings = heapless::Vec::new();
-    let analysed = r.analysed();
-    for b in &r.bearings {
-        let mut out = BearingResult::default();
-        for (slot, i) in out.defects.iter_mut().zip(0..) {
-            let d = b
-                .diagnosis
-                .as_ref()
-                .filter(|_| analysed)
-                .and_then(|d| d.results.get(i));
-            *slot = match d {
-                Some(d) => DefectResult {
-                    score_db: d.score_db,
-                    amplitude_1x_g: d.fundamental_amplitude,
-                    harmonics: d.harmonics_found,
-                    detected: d.detected,
-                },
-                None => DefectResult {
-                    score_db: f32::NAN,
-                    amplitude_1x_g: f32::NAN,
-                    harmonics: 0,
-                    detected: false,
-                },
-            };
-        }
-        // both capacities are MAX_BEARINGS (4)
-        let _ = bearings.push(out);
-    }
-    FrameReport {
-        node_id,
-        seq,
-        flags,
-        speed_rpm,
-        overall,
-        bearings,
-        ..FrameReport::default()
-    }
+    FrameReport::from_report(r, node_id, seq)
 }
 
 impl<const N: usize, const H: usize, const RING: usize> MeasurementCore

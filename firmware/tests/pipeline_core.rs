@@ -88,10 +88,14 @@ fn firmware_flags_reach_the_frame() {
         r.flags
     );
     // not analysed: defect scores are sent as invalid, not as zeros
-    assert!(r.bearings[0]
-        .defects
-        .iter()
-        .all(|d| d.score_db.is_nan() && !d.detected));
+    assert!(
+        r.bearings[0]
+            .defects
+            .iter()
+            .all(|d| d.score_db.is_nan() && !d.detected),
+        "{:?}",
+        r.bearings[0].defects
+    );
     assert!(r.speed_rpm.is_nan());
 }
 

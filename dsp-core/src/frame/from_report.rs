@@ -14,8 +14,10 @@
 //! | `processing_overrun` | `OVERRUN`, `RESAMPLER` |
 //! | `low_battery` | `LOW_BATTERY` |
 //!
-//! A bearing that was not analysed is sent with every defect at score 0,
-//! amplitude "invalid" (NaN), no harmonics and not detected; the flags say why.
+//! A bearing that was not analysed is sent with every defect's score and
+//! amplitude "invalid" (NaN), no harmonics and not detected, so a reader
+//! never takes it for a healthy 0 dB; the flags say why. The speed is
+//! "invalid" when no revolution was measured or the tach is missing.
 
 use super::{BearingResult, DefectResult, FrameReport, IsoZone, OverallIndicators, QualityFlags};
 use crate::kinematics::DefectKind as Kind;
@@ -75,7 +77,7 @@ impl FrameReport {
                     detected: d.detected,
                 },
                 None => DefectResult {
-                    score_db: 0.0,
+                    score_db: f32::NAN,
                     amplitude_1x_g: f32::NAN,
                     harmonics: 0,
                     detected: false,
@@ -84,11 +86,12 @@ impl FrameReport {
             // Both lists hold at most MAX_BEARINGS (4) bearings.
             let _ = bearings.push(BearingResult { defects });
         }
+        let flags = flags(r.flags);
         FrameReport {
             node_id,
             seq,
-            flags: flags(r.flags),
-            speed_rpm: if r.speed.revs > 0 {
+            flags,
+            speed_rpm: if r.speed.revs > 0 && !flags.tach_missing {
                 r.speed.mean_rpm
             } else {
                 f32::NAN
