@@ -47,6 +47,17 @@ step "pipeline frames: host build vs QEMU, byte for byte"
 cmp "$run_dir/host-pipe.bin" "$run_dir/pipe/frames.bin"
 echo "host and QEMU pipeline frames identical ($(stat -c %s "$run_dir/pipe/frames.bin") bytes)"
 
+step "first pipeline frame: envord analyze on the host vs QEMU, byte for byte"
+python3 qemu-mps2/input/to_wav.py "$run_dir"
+envord_hex="$(cd "$root" && cargo run -q -p host-sim -- analyze "$run_dir/recording.wav" \
+    --point boards/qemu-mps2/input/point.toml --tach "$run_dir/edges.csv" \
+    --frame-hex --node-id 1 --seq 0)"
+qemu_hex="$(head -c "$(( ${#envord_hex} / 2 ))" "$run_dir/pipe/frames.bin" | od -An -v -tx1 | tr -d ' \n')"
+echo "envord: $envord_hex"
+echo "QEMU:   $qemu_hex"
+[ "$envord_hex" = "$qemu_hex" ] || { echo "envord and QEMU frames differ"; exit 1; }
+echo "envord analyze and the QEMU image send the same frame"
+
 step "qemu-mps2 image with the overall-only core"
 cp "${input_files[@]}" "$run_dir/overall/"
 : > "$run_dir/overall/core-overall"
