@@ -23,8 +23,10 @@
 
 use core::fmt;
 
-/// The four classical bearing defect frequencies.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+/// The four classical bearing defect frequencies (serialised in lower case,
+/// as the frame's JSON form uses them).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub enum DefectKind {
     /// Ball pass frequency, outer race.

@@ -203,15 +203,15 @@ fn status_states_baselines_and_combined_view() {
             .unwrap()
             .clone()
     };
-    let d = find(3, 0, "bpfo");
+    let d = find(3, 0, "BPFO");
     assert_eq!(d["baseline_db"], 5.0);
     assert_eq!(d["baseline_origin"], "learned");
     // +6 / +12 dB over baseline (common practice for spectral trending).
     // 17.5 dB is rounded to 18 dB by the frame (1 dB steps): +13 dB over 5 -> danger.
     assert_eq!(d["latest_db"], 18.0);
     assert_eq!(d["state"], "danger");
-    assert_eq!(find(4, 0, "bpfo")["state"], "normal"); // 9 - 4 = 5 dB < 6
-    assert_eq!(find(3, 1, "bsf")["state"], "normal");
+    assert_eq!(find(4, 0, "BPFO")["state"], "normal"); // 9 - 4 = 5 dB < 6
+    assert_eq!(find(3, 1, "BSF")["state"], "normal");
     let phys = v["physical"].as_array().unwrap();
     assert_eq!(phys[0]["name"], "demo gearbox output shaft");
     assert_eq!(phys[0]["state"], "danger");
@@ -246,7 +246,7 @@ fn status_states_baselines_and_combined_view() {
         .as_array()
         .unwrap()
         .iter()
-        .find(|d| d["node"] == 4 && d["bearing"] == 0 && d["kind"] == "bpfo")
+        .find(|d| d["node"] == 4 && d["bearing"] == 0 && d["kind"] == "BPFO")
         .unwrap();
     assert_eq!(n4["state"], "alert");
     // A hand-set baseline replaces the learned one.

@@ -36,59 +36,18 @@ use layout::{
 };
 use quantisation as q;
 
-/// Bearing defect kinds, in their fixed frame order.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-#[serde(rename_all = "lowercase")]
-pub enum DefectKind {
-    /// Ball pass frequency, outer race.
-    Bpfo,
-    /// Ball pass frequency, inner race.
-    Bpfi,
-    /// Fundamental train (cage) frequency.
-    Ftf,
-    /// Ball (rolling element) spin frequency.
-    Bsf,
+/// Bearing defect kinds, in their fixed frame order (BPFO, BPFI, FTF, BSF):
+/// the core's own kinds, coded in frames by [`crate::kinematics::DefectKind::index`].
+pub use crate::kinematics::DefectKind;
+
+/// The 2-bit frame code of a kind.
+fn kind_code(k: DefectKind) -> u8 {
+    u8::try_from(k.index()).unwrap_or(0) & 3
 }
 
-impl DefectKind {
-    /// All kinds in frame order.
-    pub const ALL: [DefectKind; 4] = [
-        DefectKind::Bpfo,
-        DefectKind::Bpfi,
-        DefectKind::Ftf,
-        DefectKind::Bsf,
-    ];
-
-    /// Index in frame order (0..=3).
-    pub fn index(self) -> u8 {
-        match self {
-            DefectKind::Bpfo => 0,
-            DefectKind::Bpfi => 1,
-            DefectKind::Ftf => 2,
-            DefectKind::Bsf => 3,
-        }
-    }
-
-    /// Kind of a 2-bit frame index (only the low two bits are used).
-    pub fn from_index(i: u8) -> DefectKind {
-        match i & 3 {
-            0 => DefectKind::Bpfo,
-            1 => DefectKind::Bpfi,
-            2 => DefectKind::Ftf,
-            _ => DefectKind::Bsf,
-        }
-    }
-
-    /// Lower-case name as used in JSON ("bpfo", ...).
-    pub fn name(self) -> &'static str {
-        match self {
-            DefectKind::Bpfo => "bpfo",
-            DefectKind::Bpfi => "bpfi",
-            DefectKind::Ftf => "ftf",
-            DefectKind::Bsf => "bsf",
-        }
-    }
+/// The kind of a 2-bit frame code (only the low two bits are used).
+fn kind_from_code(c: u8) -> DefectKind {
+    DefectKind::from_index(usize::from(c & 3)).unwrap_or(DefectKind::Bsf)
 }
 
 /// ISO 20816 evaluation zones (A best .. D worst).
@@ -589,7 +548,7 @@ pub fn encode_reduced_report(r: &ReducedReport, out: &mut [u8]) -> Result<usize,
     put_u16(frame, OFF_FLAGS, r.flags.to_bits());
     if let Some(w) = &r.worst {
         if let Some(b) = frame.get_mut(7) {
-            *b = 0x80 | (w.bearing & 3) << 5 | w.kind.index() << 3 | u8::from(w.detected) << 2;
+            *b = 0x80 | (w.bearing & 3) << 5 | kind_code(w.kind) << 3 | u8::from(w.detected) << 2;
         }
         if let Some(b) = frame.get_mut(8) {
             *b = code8(q::SCORE_DB.encode(w.score_db)) << 2;
@@ -748,7 +707,7 @@ fn decode_reduced_checked(bytes: &[u8]) -> Result<ReducedReport, DecodeError> {
     }
     let worst = present.then(|| WorstDefect {
         bearing: (b7 >> 5) & 3,
-        kind: DefectKind::from_index(b7 >> 3),
+        kind: kind_from_code(b7 >> 3),
         score_db: q::SCORE_DB.decode(u32::from(b8 >> 2)),
         detected: b7 & 0x04 != 0,
     });
