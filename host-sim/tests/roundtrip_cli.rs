@@ -54,6 +54,7 @@ fn roundtrip(fault: Fault, profile: SpeedProfile, seed: u64) {
     let point_file = dir.join(format!("{tag}-point.toml"));
     std::fs::write(&point_file, point_text(lo, hi)).unwrap();
     let wav = dir.join(format!("{tag}.wav"));
+    let edges_file = dir.join(format!("{tag}-edges.csv"));
     let seed_s = seed.to_string();
     envord(&[
         "simulate".as_ref(),
@@ -63,6 +64,8 @@ fn roundtrip(fault: Fault, profile: SpeedProfile, seed: u64) {
         seed_s.as_ref(),
         "--out".as_ref(),
         wav.as_os_str(),
+        "--edges-csv".as_ref(),
+        edges_file.as_os_str(),
     ]);
     let o = envord(&[
         "analyze".as_ref(),
@@ -75,14 +78,24 @@ fn roundtrip(fault: Fault, profile: SpeedProfile, seed: u64) {
     ]);
     let v: Value = serde_json::from_slice(&o.stdout).unwrap();
 
-    // Mean speed: the simulated profile's mean over the analysed revolutions
-    // (constant: exact; linear ramp over the record: its midpoint, within 3 %).
+    // Mean speed: the mean over the report's revolutions of the true
+    // per-revolution speeds (60 / period, from the simulator's true rev
+    // times), within 0.5 % (the tach edges carry 2 us jitter).
     let rpm = v["speed_rpm"].as_f64().unwrap();
-    let want_rpm = 0.5 * (lo + hi);
-    let tol = if lo == hi { 1e-3 } else { 0.03 };
+    let revs = v["speed"]["revolutions"].as_u64().unwrap() as usize;
+    let t = host_sim::edges_csv::read_edges_csv(&edges_file)
+        .unwrap()
+        .to_seconds(FS_HZ);
+    assert!(t.len() > revs, "{tag}: {revs} revolutions, {} true edges", t.len());
+    let want_rpm = t
+        .windows(2)
+        .take(revs)
+        .map(|w| 60.0 / (w[1] - w[0]))
+        .sum::<f64>()
+        / revs as f64;
     assert!(
-        (rpm - want_rpm).abs() <= tol * want_rpm,
-        "{tag}: speed_rpm {rpm}, simulated {want_rpm}"
+        (rpm - want_rpm).abs() <= 0.005 * want_rpm,
+        "{tag}: speed_rpm {rpm}, simulated {want_rpm} over {revs} revolutions"
     );
     assert_eq!(v["flags"].as_array().unwrap().len(), 0, "{tag}: {}", v["flags"]);
 
