@@ -31,7 +31,7 @@ use roundtrip_common::*;
 /// Seeds per cell.
 const SEEDS: u64 = 4;
 /// Impact amplitudes, g, against NOISE_G = 0.2 g RMS.
-const IMPACTS_G: [f64; 9] = [0.02, 0.03, 0.04, 0.05, 0.07, 0.1, 0.14, 0.2, 0.5];
+const IMPACTS_G: [f64; 10] = [0.1, 0.15, 0.2, 0.25, 0.3, 0.35, 0.4, 0.5, 0.7, 1.0];
 
 fn cell(fault: Fault, profile: SpeedProfile, impact_g: f64) -> (u64, u64) {
     let want = kind_of(fault).unwrap();
@@ -45,9 +45,10 @@ fn cell(fault: Fault, profile: SpeedProfile, impact_g: f64) -> (u64, u64) {
         if faulty.iter().any(|&(k, d, _)| k == want && d) && top_kind(&faulty) == want {
             ok += 1;
         }
-        let wrong = faulty.iter().any(|&(k, d, _)| {
-            d && k != want && !(fault == Fault::Ball && k == DefectKind::Ftf)
-        }) || healthy.iter().any(|x| x.1);
+        let wrong = faulty
+            .iter()
+            .any(|&(k, d, _)| d && k != want && !(fault == Fault::Ball && k == DefectKind::Ftf))
+            || healthy.iter().any(|x| x.1);
         if wrong {
             stray += 1;
         }
@@ -76,7 +77,11 @@ fn main() {
     );
     let mut header = format!("{:>8} {:>7}", "impact g", "ratio");
     for (f, s) in &cols {
-        header.push_str(&format!(" | {:>5} {:<14}", kind_of(*f).unwrap().name(), profile_name(*s)));
+        header.push_str(&format!(
+            " | {:>5} {:<14}",
+            kind_of(*f).unwrap().name(),
+            profile_name(*s)
+        ));
     }
     println!("{header}");
     for &imp in &IMPACTS_G {
@@ -99,10 +104,7 @@ fn main() {
             all.sort_by_key(|x| x.0);
             all.into_iter().map(|x| x.1).collect()
         });
-        let mut line = format!(
-            "{imp:>8.3} {:>5.1}dB",
-            20.0 * (imp / NOISE_G).log10()
-        );
+        let mut line = format!("{imp:>8.3} {:>5.1}dB", 20.0 * (imp / NOISE_G).log10());
         for (ok, stray) in results {
             let mark = if stray > 0 {
                 format!("!{stray}")

@@ -86,7 +86,11 @@ fn roundtrip(fault: Fault, profile: SpeedProfile, seed: u64) {
     let t = host_sim::edges_csv::read_edges_csv(&edges_file)
         .unwrap()
         .to_seconds(FS_HZ);
-    assert!(t.len() > revs, "{tag}: {revs} revolutions, {} true edges", t.len());
+    assert!(
+        t.len() > revs,
+        "{tag}: {revs} revolutions, {} true edges",
+        t.len()
+    );
     let want_rpm = t
         .windows(2)
         .take(revs)
@@ -97,7 +101,12 @@ fn roundtrip(fault: Fault, profile: SpeedProfile, seed: u64) {
         (rpm - want_rpm).abs() <= 0.005 * want_rpm,
         "{tag}: speed_rpm {rpm}, simulated {want_rpm} over {revs} revolutions"
     );
-    assert_eq!(v["flags"].as_array().unwrap().len(), 0, "{tag}: {}", v["flags"]);
+    assert_eq!(
+        v["flags"].as_array().unwrap().len(),
+        0,
+        "{tag}: {}",
+        v["flags"]
+    );
 
     let want = kind_of(fault).unwrap().name();
     let b = v["bearings"]
