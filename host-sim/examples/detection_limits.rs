@@ -12,7 +12,9 @@
 //! cell counts a seed as correct when the fault's kind is detected on the
 //! faulty bearing and is that bearing's highest score; `!` after a cell
 //! marks seeds with a detection of a wrong kind (on either bearing) and is
-//! followed by how many.
+//! followed by how many; `cN` (rolling-element columns) counts seeds whose
+//! highest score was the cage line FTF (undetected, left out of the
+//! comparison, see `companions` in roundtrip_common).
 #![allow(
     clippy::unwrap_used,
     clippy::expect_used,
@@ -33,17 +35,23 @@ const SEEDS: u64 = 4;
 /// Impact amplitudes, g, against NOISE_G = 0.2 g RMS.
 const IMPACTS_G: [f64; 10] = [0.1, 0.15, 0.2, 0.25, 0.3, 0.35, 0.4, 0.5, 0.7, 1.0];
 
-fn cell(fault: Fault, profile: SpeedProfile, impact_g: f64) -> (u64, u64) {
+fn cell(fault: Fault, profile: SpeedProfile, impact_g: f64) -> (u64, u64, u64) {
     let want = kind_of(fault).unwrap();
     let mut ok = 0;
     let mut stray = 0;
+    let mut cage_top = 0;
     for seed in 0..SEEDS {
         let spec = machine(profile, fault, impact_g, NOISE_G);
         let a = analyse(&spec, 500 + seed);
         let faulty = bearing_result(&a.report, FAULTY);
         let healthy = bearing_result(&a.report, HEALTHY);
-        if faulty.iter().any(|&(k, d, _)| k == want && d) && top_kind(&faulty) == want {
+        if faulty.iter().any(|&(k, d, _)| k == want && d)
+            && top_kind(&faulty, companions(fault)) == want
+        {
             ok += 1;
+        }
+        if fault == Fault::Ball && top_kind(&faulty, &[]) == DefectKind::Ftf {
+            cage_top += 1;
         }
         let wrong = faulty
             .iter()
@@ -53,7 +61,7 @@ fn cell(fault: Fault, profile: SpeedProfile, impact_g: f64) -> (u64, u64) {
             stray += 1;
         }
     }
-    (ok, stray)
+    (ok, stray, cage_top)
 }
 
 fn main() {
@@ -86,7 +94,7 @@ fn main() {
     println!("{header}");
     for &imp in &IMPACTS_G {
         // Two workers, one per core.
-        let results: Vec<(u64, u64)> = std::thread::scope(|sc| {
+        let results: Vec<(u64, u64, u64)> = std::thread::scope(|sc| {
             let hs: Vec<_> = (0..2usize)
                 .map(|w| {
                     let cols = &cols;
@@ -99,18 +107,20 @@ fn main() {
                     })
                 })
                 .collect();
-            let mut all: Vec<(usize, (u64, u64))> =
+            let mut all: Vec<(usize, (u64, u64, u64))> =
                 hs.into_iter().flat_map(|h| h.join().unwrap()).collect();
             all.sort_by_key(|x| x.0);
             all.into_iter().map(|x| x.1).collect()
         });
         let mut line = format!("{imp:>8.3} {:>5.1}dB", 20.0 * (imp / NOISE_G).log10());
-        for (ok, stray) in results {
-            let mark = if stray > 0 {
-                format!("!{stray}")
-            } else {
-                String::new()
-            };
+        for (ok, stray, cage_top) in results {
+            let mut mark = String::new();
+            if stray > 0 {
+                mark.push_str(&format!("!{stray}"));
+            }
+            if cage_top > 0 {
+                mark.push_str(&format!(" c{cage_top}"));
+            }
             line.push_str(&format!(" | {:>5}{:<15}", format!("{ok}/{SEEDS}"), mark));
         }
         println!("{line}");

@@ -2,8 +2,9 @@
 //! built binary end to end: a float32 two-channel WAV (acceleration in g,
 //! tach pulse in V), the point file on disk, the JSON contract parsed back.
 //! Each fault kind must come out as that kind on the faulty bearing, with
-//! the highest score of that bearing, and the mean speed must be the
-//! simulated one.
+//! the highest score of that bearing (the cage line of a rolling-element
+//! fault left out, see `roundtrip_common::companions`), and the mean speed
+//! must be the simulated one.
 //!
 //! Outside references as in roundtrip_detect.rs (CWRU 6205 multiples;
 //! defect signatures after Randall & Antoni 2011, from memory).
@@ -119,8 +120,9 @@ fn roundtrip(fault: Fault, profile: SpeedProfile, seed: u64) {
     let own = defects.iter().find(|d| d["kind"] == want).unwrap();
     assert_eq!(own["detected"], true, "{tag}: {want} not detected: {b}");
     let own_score = own["score_db"].as_f64().unwrap();
+    let skip: Vec<&str> = companions(fault).iter().map(|k| k.name()).collect();
     for d in defects {
-        if d["kind"] != want {
+        if d["kind"] != want && !skip.iter().any(|s| d["kind"] == *s) {
             assert!(
                 d["score_db"].as_f64().unwrap() < own_score,
                 "{tag}: {} outscores {want}: {b}",
