@@ -71,6 +71,9 @@ pub const MAX_HARMONICS: usize = 10;
 /// Capacity of the stack scratch used for the floor median.
 pub const FLOOR_SCRATCH: usize = 256;
 
+/// Detected families compared by [`DefectSearch::attribute_bearings`] (4 kinds x 8 bearings).
+const MAX_FAMILIES: usize = 32;
+
 /// Fewest bins a floor estimate may rest on; otherwise the harmonic is not searched.
 const MIN_FLOOR_BINS: usize = 8;
 
@@ -191,6 +194,10 @@ pub struct HarmonicResult {
     pub counted: bool,
     /// Another kind whose harmonic window also contains this peak.
     pub shared_with: Option<DefectKind>,
+    /// Index (in the point's bearing list) of another bearing whose stronger
+    /// detected family explains this peak (see
+    /// [`DefectSearch::attribute_bearings`]); `None` within one bearing.
+    pub shared_bearing: Option<u8>,
 }
 
 /// Outcome for one defect kind.
@@ -209,6 +216,8 @@ pub struct DefectResult {
     pub harmonics_searched: u8,
     /// Harmonic number of the anchor, if one was found.
     pub anchor: Option<u8>,
+    /// Actual line `L' = f_a / h_a` fixed by the anchor (slip included); 0 without one.
+    pub line_actual: f32,
     /// Amplitude of the first harmonic's peak (0 if not searched).
     pub fundamental_amplitude: f32,
     /// Best sideband pair (weaker side) in dB over the floor; BPFI and BSF only.
@@ -442,6 +451,7 @@ fn not_searched(h: u8, expected: f32) -> HarmonicResult {
         found: false,
         counted: false,
         shared_with: None,
+        shared_bearing: None,
     }
 }
 
@@ -495,6 +505,85 @@ impl DefectSearch {
         Ok(BearingDiagnosis { results })
     }
 
+    /// Cross-bearing attribution, run once every bearing of a point has been
+    /// searched in the same spectrum (`diagnoses[i]` from `orders[i]`).
+    ///
+    /// Lines of different bearings can coincide (a 4th outer-race harmonic of
+    /// one bearing within 2 % of another bearing's BPFI). A counted peak of
+    /// one bearing's family that lies on a harmonic `m >= 1` of a *detected*
+    /// family of another bearing (its anchored line `L'`, tolerance as in
+    /// step 5 of the module doc), where that family is stronger (summed
+    /// prominence of its counted harmonics), is not counted for the weaker
+    /// one; `shared_bearing` and `shared_with` name the other bearing and
+    /// kind. Scores and decisions are then made again. Strengths are taken
+    /// before any change, so the order of the bearings does not matter.
+    pub fn attribute_bearings(
+        &self,
+        spectrum: &SpectrumView<'_>,
+        orders: &[BearingOrders],
+        diagnoses: &mut [&mut Option<BearingDiagnosis>],
+    ) {
+        let opb = spectrum.orders_per_bin();
+        let strength = |r: &DefectResult| -> f32 {
+            r.harmonics
+                .iter()
+                .filter(|h| h.counted)
+                .map(|h| h.prominence_db.max(0.0))
+                .sum()
+        };
+        // Detected families: (bearing, kind, L', anchor harmonic, strength).
+        let mut fams: heapless::Vec<(usize, DefectKind, f32, u8, f32), MAX_FAMILIES> =
+            heapless::Vec::new();
+        for (bi, d) in diagnoses.iter().enumerate() {
+            let Some(d) = &**d else { continue };
+            for r in d
+                .results
+                .iter()
+                .filter(|r| r.detected && r.line_actual > 0.0)
+            {
+                if let Some(ha) = r.anchor {
+                    // Capacity 4 kinds x 8 bearings; more are not compared.
+                    let _ = fams.push((bi, r.kind, r.line_actual, ha, strength(r)));
+                }
+            }
+        }
+        for (bi, (d, o)) in diagnoses.iter_mut().zip(orders.iter()).enumerate() {
+            let Some(d) = &mut **d else { continue };
+            let ctx = Ctx {
+                amps: spectrum.amplitudes(),
+                opb,
+                lobe_bins: spectrum.window().main_lobe_half_width_bins(),
+                window: spectrum.window(),
+                shaft_order: o.shaft_order(),
+                mask: self.config.mask_shaft_harmonics,
+            };
+            for r in d.results.iter_mut() {
+                let mine = strength(r);
+                let mut changed = false;
+                for hr in r.harmonics.iter_mut().filter(|h| h.counted) {
+                    let f = hr.found_order;
+                    let rival = fams.iter().find(|&&(bj, _, line, ha, st)| {
+                        if bj == bi || st <= mine {
+                            return false;
+                        }
+                        let m = libm::roundf(f / line);
+                        let tol = (self.config.refine_bins + m / (4.0 * f32::from(ha))) * opb;
+                        m >= 1.0 && libm::fabsf(f - m * line) <= tol
+                    });
+                    if let Some(&(bj, kind, ..)) = rival {
+                        hr.counted = false;
+                        hr.shared_with = Some(kind);
+                        hr.shared_bearing = u8::try_from(bj).ok();
+                        changed = true;
+                    }
+                }
+                if changed {
+                    self.decide(&ctx, r, o);
+                }
+            }
+        }
+    }
+
     fn search_kind(&self, ctx: &Ctx<'_>, kind: DefectKind, line: f32) -> DefectResult {
         let cfg = &self.config;
         let thr = cfg.prominence_threshold_db;
@@ -532,6 +621,7 @@ impl DefectSearch {
                         found: false,
                         counted: false,
                         shared_with: None,
+                        shared_bearing: None,
                     }
                 }
             };
@@ -589,6 +679,7 @@ impl DefectSearch {
             harmonics_found: 0,
             harmonics_searched,
             anchor: anchor.map(|(h, _)| h),
+            line_actual: anchor.map_or(0.0, |(h, f)| f / f32::from(h)),
             sideband_db: None,
             score_db: 0.0,
             detected: false,
