@@ -321,6 +321,7 @@ struct Ctx<'a> {
     lobe_bins: f32,
     window: Window,
     shaft_order: f32,
+    ftf_order: f32,
     mask: bool,
 }
 
@@ -429,6 +430,42 @@ impl Ctx<'_> {
     }
 }
 
+/// Sideband orders `k` (`1 <= |k| <= MAX_SIDEBAND_ORDER`) of a modulated
+/// family that attribution explains (inner-race load-zone modulation shows
+/// several orders of shaft sidebands: common practice).
+const MAX_SIDEBAND_ORDER: i8 = 3;
+
+/// Whether order `o` lies on harmonic `m` of a family with anchored line
+/// `line` (anchor harmonic `ha`, nominal line `nominal`), or on one of its
+/// modulation sidebands `m·line + k·spacing` (`spacing` 0: none). The
+/// sideband spacing is known to within the line's own relative deviation
+/// from nominal (speed error or slip), which widens the tolerance. Returns `m`.
+fn on_family(
+    o: f32,
+    line: f32,
+    ha: u8,
+    nominal: f32,
+    spacing: f32,
+    cfg: &DefectSearchConfig,
+    opb: f32,
+) -> Option<u8> {
+    let ks = if spacing > 0.0 { MAX_SIDEBAND_ORDER } else { 0 };
+    let dev = if nominal > 0.0 {
+        libm::fabsf(line / nominal - 1.0)
+    } else {
+        0.0
+    };
+    (-ks..=ks).find_map(|k| {
+        let kf = f32::from(k);
+        let c = o - kf * spacing;
+        let m = libm::roundf(c / line);
+        let tol =
+            (cfg.refine_bins + m / (4.0 * f32::from(ha))) * opb + libm::fabsf(kf) * spacing * dev;
+        (m >= 1.0 && libm::fabsf(c - m * line) <= tol)
+            .then(|| u8::try_from(f32_to_usize_sat(m)).unwrap_or(u8::MAX))
+    })
+}
+
 /// Attribution rank: family strength (dB sum), then lower harmonic number.
 #[derive(Clone, Copy)]
 struct Rank(f32, u8);
@@ -495,6 +532,7 @@ impl DefectSearch {
             lobe_bins: spectrum.window().main_lobe_half_width_bins(),
             window: spectrum.window(),
             shaft_order: orders.shaft_order(),
+            ftf_order: orders.ftf_order(),
             mask: cfg.mask_shaft_harmonics,
         };
         let mut results = DefectKind::ALL.map(|k| self.search_kind(&ctx, k, orders.line(k)));
@@ -502,6 +540,7 @@ impl DefectSearch {
         for r in results.iter_mut() {
             self.decide(&ctx, r, orders);
         }
+        Self::cage_as_modulation(&mut results);
         Ok(BearingDiagnosis { results })
     }
 
@@ -555,6 +594,7 @@ impl DefectSearch {
                 lobe_bins: spectrum.window().main_lobe_half_width_bins(),
                 window: spectrum.window(),
                 shaft_order: o.shaft_order(),
+                ftf_order: o.ftf_order(),
                 mask: self.config.mask_shaft_harmonics,
             };
             for r in d.results.iter_mut() {
@@ -581,6 +621,7 @@ impl DefectSearch {
                     self.decide(&ctx, r, o);
                 }
             }
+            Self::cage_as_modulation(&mut d.results);
         }
     }
 
@@ -715,6 +756,16 @@ impl DefectSearch {
             })
         });
         let rank = |k: usize, h: u8| Rank(strength.get(k).copied().unwrap_or(0.0), h);
+        // Modulation spacing of each kind's family: BPFI at the shaft order
+        // (the inner race turns through the load zone), BSF at FTF (the
+        // element turns with the cage); BPFO and FTF none.
+        let spacing: [f32; 4] = core::array::from_fn(|k| match DefectKind::from_index(k) {
+            Some(DefectKind::Bpfi) => ctx.shaft_order,
+            Some(DefectKind::Bsf) => ctx.ftf_order,
+            _ => 0.0,
+        });
+        let nominal: [f32; 4] =
+            core::array::from_fn(|k| results.get(k).map_or(0.0, |r| r.line_order));
         // Anchored actual line L' = f_a / h_a and anchor harmonic of each kind.
         let families: [Option<(f32, u8)>; 4] = core::array::from_fn(|k| {
             let r = results.get(k)?;
@@ -742,10 +793,10 @@ impl DefectSearch {
                     if kj == ki || found_count(kj) < 2 {
                         return None;
                     }
-                    let m = libm::roundf(o / line);
-                    let tol = (self.config.refine_bins + m / (4.0 * f32::from(ha))) * ctx.opb;
-                    let m_u8 = u8::try_from(f32_to_usize_sat(m)).unwrap_or(u8::MAX);
-                    (m >= 1.0 && libm::fabsf(o - m * line) <= tol).then_some((kj, rank(kj, m_u8)))
+                    let nominal = nominal.get(kj).copied().unwrap_or(line);
+                    let sp = spacing.get(kj).copied().unwrap_or(0.0);
+                    let m_u8 = on_family(o, line, ha, nominal, sp, &self.config, ctx.opb)?;
+                    Some((kj, rank(kj, m_u8)))
                 });
                 let rival = same.chain(family).max_by(|a, b| a.1.cmp_rank(&b.1));
                 if let Some((kj, rank)) = rival {
@@ -797,8 +848,33 @@ impl DefectSearch {
         let sideband_pair = r
             .sideband_db
             .is_some_and(|s| s >= cfg.sideband_threshold_db);
-        r.detected =
-            r.harmonics_found >= cfg.min_harmonics || (fundamental_counted && sideband_pair);
+        let family = r.harmonics_found >= cfg.min_harmonics;
+        let strong_family = r.harmonics_found > cfg.min_harmonics;
+        r.detected = match r.kind {
+            // Inner race: the load-zone modulation (shaft sidebands) is the
+            // hallmark; without it, one more harmonic is required.
+            DefectKind::Bpfi => ((family || fundamental_counted) && sideband_pair) || strong_family,
+            // Rolling element: harmonics, or fundamental plus cage sidebands.
+            DefectKind::Bsf => family || (fundamental_counted && sideband_pair),
+            DefectKind::Bpfo => family,
+            // Cage: one more harmonic and the fundamental (cage lines are
+            // rarely a primary envelope finding); see `cage_as_modulation`.
+            DefectKind::Ftf => strong_family && fundamental_counted,
+        };
+    }
+
+    /// Cage lines beside a detected race or rolling-element family of the
+    /// same bearing are read as that family's modulation (the same elements
+    /// return once per cage turn), not as a cage defect (common practice).
+    fn cage_as_modulation(results: &mut [DefectResult; 4]) {
+        let other = results
+            .iter()
+            .any(|r| r.kind != DefectKind::Ftf && r.detected);
+        if other {
+            for r in results.iter_mut().filter(|r| r.kind == DefectKind::Ftf) {
+                r.detected = false;
+            }
+        }
     }
 }
 

@@ -352,8 +352,14 @@ mod tests {
     #[test]
     fn bank_layout() {
         let s = BandSurvey::new(12_000.0).unwrap();
-        // 1 kHz .. 4.8 kHz: octaves with lo <= 2.4 kHz (7), thirds with hi <= 4.8 kHz (11).
-        assert_eq!(s.band_count(), 18);
+        // Upper edge <= 4.8 kHz, lower edges 1 kHz x 2^(k/6): octaves k = 0..=7
+        // (2^(k/6) <= 2.4), thirds k = 0..=11 (2^(k/6) <= 4.8 / 2^(1/3) = 3.81).
+        assert_eq!(s.band_count(), 20);
+        // 51.2 kS/s: 21 octaves + 25 thirds fit the capacity.
+        assert_eq!(BandSurvey::new(51_200.0).unwrap().band_count(), 46);
+        // RAM stated in the module doc: 48 bands x 160 bytes plus bookkeeping.
+        let size = core::mem::size_of::<BandSurvey>();
+        assert!(size <= 48 * 160 + 64, "{size}");
         assert_eq!(
             BandSurvey::new(f32::NAN).err(),
             Some(SurveyError::SampleRate)
