@@ -31,7 +31,11 @@
 //! 5. **Attribution**: a found peak that another kind also found (peaks
 //!    within `refine_bins`), or that sits on any integer multiple `m` of
 //!    another family's anchored line (e.g. BPFO's 6th harmonic inside a BPFI
-//!    window; that family needing two found harmonics), is shared. It is
+//!    window; that family needing two found harmonics), or on a modulation
+//!    sideband `m·L' ± k·s` of it (`k` = 1..=3; `s` = the shaft order for
+//!    BPFI, whose race turns through the load zone, FTF for BSF, whose
+//!    element turns with the cage; the tolerance widened by `k·s` times the
+//!    family's relative deviation from nominal), is shared. It is
 //!    counted for the stronger family (summed prominence in dB of its found
 //!    harmonics: a stray one-peak anchor cannot take a peak from a family),
 //!    then for the lower
@@ -45,9 +49,29 @@
 //!    prominence over that harmonic's floor, and `sideband_db` is the best pair.
 //!
 //! # Decision
-//! `detected` when at least `min_harmonics` (default 2) harmonics are counted,
-//! or when the fundamental is counted and a sideband pair reaches
-//! `sideband_threshold_db` (BPFI and BSF only).
+//! With `n` counted harmonics, `M = min_harmonics` (default 2) and a
+//! sideband pair reaching `sideband_threshold_db`:
+//! * BPFO: `n >= M`.
+//! * BPFI: a sideband pair with the fundamental counted or `n >= M`, or
+//!   `n >= M + 1` (the shaft-rate modulation is the inner-race hallmark;
+//!   without it one more harmonic is needed, so a fundamental plus a 2nd
+//!   harmonic that is really 3 x BPFO is not enough).
+//! * BSF: `n >= M`, or the fundamental counted with a cage sideband pair.
+//! * FTF: `n >= M + 1` with the fundamental counted, and only when no other
+//!   kind of the same bearing is detected: beside a detected race or
+//!   rolling-element family, cage lines are that family's modulation (the
+//!   same elements return once per cage turn), and cage lines are rarely a
+//!   primary envelope finding (common practice).
+//!
+//! # Across bearings
+//! [`DefectSearch::attribute_bearings`] runs after every bearing of a point
+//! has been searched (the pipeline calls it): a counted peak that lies on a
+//! harmonic of a stronger *detected* family of another bearing is not
+//! counted for the weaker one (`shared_bearing`), and the decisions are made
+//! again. Lines of different bearings on one shaft train can coincide.
+//!
+//! These rules were checked on open bearing data (`envord validate`,
+//! docs/validation.md).
 //!
 //! # Memory
 //! No heap. [`BearingDiagnosis`] is 1280 bytes (returned by value); the

@@ -554,8 +554,8 @@ pub fn run_cmd(args: &ValidateArgs) -> Result<(), CliError> {
         );
     } else {
         println!(
-            "{:<40} {:>3} {:<5} {:>6} {:>6} {:>6} {:>6} {:>11} {:<14} {}",
-            "record", "ch", "want", "BPFO", "BPFI", "FTF", "BSF", "band Hz", "detected", "ok"
+            "{:<40} {:>3} {:<5} {:>6} {:>6} {:>6} {:>6} {:>11} {:<14} ok",
+            "record", "ch", "want", "BPFO", "BPFI", "FTF", "BSF", "band Hz", "detected"
         );
         for r in &results {
             let det = kind_names(&r.detected).join(",");
