@@ -85,6 +85,9 @@ pub struct ValidateArgs {
     /// Also print, per record, the harmonics each kind found (table mode).
     #[arg(long)]
     pub detail: bool,
+    /// Exit 1 when fewer scored records than this are right (a CI floor).
+    #[arg(long)]
+    pub min_correct: Option<usize>,
 }
 
 /// One manifest record.
@@ -594,5 +597,91 @@ pub fn run_cmd(args: &ValidateArgs) -> Result<(), CliError> {
         }
         println!("correct {correct} of {total} scored records");
     }
-    Ok(())
+    match args.min_correct {
+        Some(min) if correct < min => Err(CliError::Difference(format!(
+            "validate: {correct} of {total} scored records right, fewer than --min-correct {min}"
+        ))),
+        _ => Ok(()),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// CWRU lists the drive-end "rolling element" multiple 4.7135, twice the
+    /// ball spin 2.357 of Smith & Randall 2015 Table 2; MFPT's rig value
+    /// 2.55456 (from its geometry, manifest) is already 1 x BSF.
+    #[test]
+    fn bsf_convention_from_kinematics() {
+        assert!((single_sided_bsf(0.39828, 4.7135) - 2.357).abs() < 0.001);
+        assert!((single_sided_bsf(0.40562, 2.55456) - 2.55456).abs() < 1e-6);
+        // No simple rolling bearing (FTF >= 0.5, e.g. a planet bearing's
+        // multiples of the carrier): taken as given.
+        assert_eq!(single_sided_bsf(1.12, 4.73), 4.73);
+    }
+
+    #[test]
+    fn judging() {
+        let s = [20.0, 30.0, 0.0, 10.0];
+        assert!(judge(
+            Some(DefectKind::Bpfi),
+            &[DefectKind::Bpfi, DefectKind::Bsf],
+            &s
+        ));
+        assert!(!judge(
+            Some(DefectKind::Bsf),
+            &[DefectKind::Bpfi, DefectKind::Bsf],
+            &s
+        ));
+        assert!(!judge(Some(DefectKind::Bpfo), &[], &s));
+        assert!(judge(None, &[], &s));
+        assert!(!judge(None, &[DefectKind::Ftf], &s));
+        assert_eq!(expected_kind("outer_race"), Some(Some(DefectKind::Bpfo)));
+        assert_eq!(expected_kind("faulty bearing; race not stated"), None);
+    }
+
+    #[test]
+    fn manifest_records() {
+        let text = r#"
+[[recording]]
+file = "a.wav"
+sample_rate_hz = 12000
+shaft_rpm = 1772.0
+fault_location = "inner_race"
+channel = "DE"
+n_rollers = 9
+roller_diameter_in = 0.3126
+pitch_diameter_in = 1.537
+contact_angle_deg = 0.0
+bsf_x = 4.7135
+
+[[recording]]
+file = "b.wav"
+sample_rate_hz = 48828
+shaft_rpm = 379.7
+fault_location = "faulty bearing"
+bpfi_x = 10.72
+bpfo_x = 8.2
+ftf_x = 0.436
+bsf_x = 3.84
+"#;
+        let r = parse_manifest(text).unwrap();
+        assert_eq!(r.len(), 2);
+        assert!(matches!(
+            r[0].kinematics,
+            BearingKinematics::Geometry { rollers: 9, .. }
+        ));
+        assert!(matches!(
+            r[1].kinematics,
+            BearingKinematics::Multiples { bsf_x, .. } if (bsf_x - 3.84).abs() < 1e-6
+        ));
+        let err = parse_manifest("[[recording]]\nfile = \"x.wav\"\n").unwrap_err();
+        assert!(err.contains("sample_rate_hz"), "{err}");
+        // A record shorter than one 64-revolution segment gets 128 samples/rev.
+        let p = validation_point(&r[1], 488_280);
+        assert_eq!(p.samples_per_rev, 128);
+        let p = validation_point(&r[0], 122_000);
+        assert_eq!((p.samples_per_rev, p.revolutions), (64, 256));
+    }
 }
