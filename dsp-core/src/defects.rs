@@ -31,7 +31,11 @@
 //! 5. **Attribution**: a found peak that another kind also found (peaks
 //!    within `refine_bins`), or that sits on any integer multiple `m` of
 //!    another family's anchored line (e.g. BPFO's 6th harmonic inside a BPFI
-//!    window; that family needing two found harmonics), is shared. It is
+//!    window; that family needing two found harmonics), or on a modulation
+//!    sideband `m·L' ± k·s` of it (`k` = 1..=3; `s` = the shaft order for
+//!    BPFI, whose race turns through the load zone, FTF for BSF, whose
+//!    element turns with the cage; the tolerance widened by `k·s` times the
+//!    family's relative deviation from nominal), is shared. It is
 //!    counted for the stronger family (summed prominence in dB of its found
 //!    harmonics: a stray one-peak anchor cannot take a peak from a family),
 //!    then for the lower
@@ -45,9 +49,29 @@
 //!    prominence over that harmonic's floor, and `sideband_db` is the best pair.
 //!
 //! # Decision
-//! `detected` when at least `min_harmonics` (default 2) harmonics are counted,
-//! or when the fundamental is counted and a sideband pair reaches
-//! `sideband_threshold_db` (BPFI and BSF only).
+//! With `n` counted harmonics, `M = min_harmonics` (default 2) and a
+//! sideband pair reaching `sideband_threshold_db`:
+//! * BPFO: `n >= M`.
+//! * BPFI: a sideband pair with the fundamental counted or `n >= M`, or
+//!   `n >= M + 1` (the shaft-rate modulation is the inner-race hallmark;
+//!   without it one more harmonic is needed, so a fundamental plus a 2nd
+//!   harmonic that is really 3 x BPFO is not enough).
+//! * BSF: `n >= M`, or the fundamental counted with a cage sideband pair.
+//! * FTF: `n >= M + 1` with the fundamental counted, and only when no other
+//!   kind of the same bearing is detected: beside a detected race or
+//!   rolling-element family, cage lines are that family's modulation (the
+//!   same elements return once per cage turn), and cage lines are rarely a
+//!   primary envelope finding (common practice).
+//!
+//! # Across bearings
+//! [`DefectSearch::attribute_bearings`] runs after every bearing of a point
+//! has been searched (the pipeline calls it): a counted peak that lies on a
+//! harmonic of a stronger *detected* family of another bearing is not
+//! counted for the weaker one (`shared_bearing`), and the decisions are made
+//! again. Lines of different bearings on one shaft train can coincide.
+//!
+//! These rules were checked on open bearing data (`envord validate`,
+//! docs/validation.md).
 //!
 //! # Memory
 //! No heap. [`BearingDiagnosis`] is 1280 bytes (returned by value); the
@@ -70,6 +94,9 @@ pub const MAX_HARMONICS: usize = 10;
 
 /// Capacity of the stack scratch used for the floor median.
 pub const FLOOR_SCRATCH: usize = 256;
+
+/// Detected families compared by [`DefectSearch::attribute_bearings`] (4 kinds x 8 bearings).
+const MAX_FAMILIES: usize = 32;
 
 /// Fewest bins a floor estimate may rest on; otherwise the harmonic is not searched.
 const MIN_FLOOR_BINS: usize = 8;
@@ -191,6 +218,10 @@ pub struct HarmonicResult {
     pub counted: bool,
     /// Another kind whose harmonic window also contains this peak.
     pub shared_with: Option<DefectKind>,
+    /// Index (in the point's bearing list) of another bearing whose stronger
+    /// detected family explains this peak (see
+    /// [`DefectSearch::attribute_bearings`]); `None` within one bearing.
+    pub shared_bearing: Option<u8>,
 }
 
 /// Outcome for one defect kind.
@@ -209,6 +240,8 @@ pub struct DefectResult {
     pub harmonics_searched: u8,
     /// Harmonic number of the anchor, if one was found.
     pub anchor: Option<u8>,
+    /// Actual line `L' = f_a / h_a` fixed by the anchor (slip included); 0 without one.
+    pub line_actual: f32,
     /// Amplitude of the first harmonic's peak (0 if not searched).
     pub fundamental_amplitude: f32,
     /// Best sideband pair (weaker side) in dB over the floor; BPFI and BSF only.
@@ -312,6 +345,7 @@ struct Ctx<'a> {
     lobe_bins: f32,
     window: Window,
     shaft_order: f32,
+    ftf_order: f32,
     mask: bool,
 }
 
@@ -420,6 +454,42 @@ impl Ctx<'_> {
     }
 }
 
+/// Sideband orders `k` (`1 <= |k| <= MAX_SIDEBAND_ORDER`) of a modulated
+/// family that attribution explains (inner-race load-zone modulation shows
+/// several orders of shaft sidebands: common practice).
+const MAX_SIDEBAND_ORDER: i8 = 3;
+
+/// Whether order `o` lies on harmonic `m` of a family with anchored line
+/// `line` (anchor harmonic `ha`, nominal line `nominal`), or on one of its
+/// modulation sidebands `m·line + k·spacing` (`spacing` 0: none). The
+/// sideband spacing is known to within the line's own relative deviation
+/// from nominal (speed error or slip), which widens the tolerance. Returns `m`.
+fn on_family(
+    o: f32,
+    line: f32,
+    ha: u8,
+    nominal: f32,
+    spacing: f32,
+    cfg: &DefectSearchConfig,
+    opb: f32,
+) -> Option<u8> {
+    let ks = if spacing > 0.0 { MAX_SIDEBAND_ORDER } else { 0 };
+    let dev = if nominal > 0.0 {
+        libm::fabsf(line / nominal - 1.0)
+    } else {
+        0.0
+    };
+    (-ks..=ks).find_map(|k| {
+        let kf = f32::from(k);
+        let c = o - kf * spacing;
+        let m = libm::roundf(c / line);
+        let tol =
+            (cfg.refine_bins + m / (4.0 * f32::from(ha))) * opb + libm::fabsf(kf) * spacing * dev;
+        (m >= 1.0 && libm::fabsf(c - m * line) <= tol)
+            .then(|| u8::try_from(f32_to_usize_sat(m)).unwrap_or(u8::MAX))
+    })
+}
+
 /// Attribution rank: family strength (dB sum), then lower harmonic number.
 #[derive(Clone, Copy)]
 struct Rank(f32, u8);
@@ -442,6 +512,7 @@ fn not_searched(h: u8, expected: f32) -> HarmonicResult {
         found: false,
         counted: false,
         shared_with: None,
+        shared_bearing: None,
     }
 }
 
@@ -485,6 +556,7 @@ impl DefectSearch {
             lobe_bins: spectrum.window().main_lobe_half_width_bins(),
             window: spectrum.window(),
             shaft_order: orders.shaft_order(),
+            ftf_order: orders.ftf_order(),
             mask: cfg.mask_shaft_harmonics,
         };
         let mut results = DefectKind::ALL.map(|k| self.search_kind(&ctx, k, orders.line(k)));
@@ -492,7 +564,89 @@ impl DefectSearch {
         for r in results.iter_mut() {
             self.decide(&ctx, r, orders);
         }
+        Self::cage_as_modulation(&mut results);
         Ok(BearingDiagnosis { results })
+    }
+
+    /// Cross-bearing attribution, run once every bearing of a point has been
+    /// searched in the same spectrum (`diagnoses[i]` from `orders[i]`).
+    ///
+    /// Lines of different bearings can coincide (a 4th outer-race harmonic of
+    /// one bearing within 2 % of another bearing's BPFI). A counted peak of
+    /// one bearing's family that lies on a harmonic `m >= 1` of a *detected*
+    /// family of another bearing (its anchored line `L'`, tolerance as in
+    /// step 5 of the module doc), where that family is stronger (summed
+    /// prominence of its counted harmonics), is not counted for the weaker
+    /// one; `shared_bearing` and `shared_with` name the other bearing and
+    /// kind. Scores and decisions are then made again. Strengths are taken
+    /// before any change, so the order of the bearings does not matter.
+    pub fn attribute_bearings(
+        &self,
+        spectrum: &SpectrumView<'_>,
+        orders: &[BearingOrders],
+        diagnoses: &mut [&mut Option<BearingDiagnosis>],
+    ) {
+        let opb = spectrum.orders_per_bin();
+        let strength = |r: &DefectResult| -> f32 {
+            r.harmonics
+                .iter()
+                .filter(|h| h.counted)
+                .map(|h| h.prominence_db.max(0.0))
+                .sum()
+        };
+        // Detected families: (bearing, kind, L', anchor harmonic, strength).
+        let mut fams: heapless::Vec<(usize, DefectKind, f32, u8, f32), MAX_FAMILIES> =
+            heapless::Vec::new();
+        for (bi, d) in diagnoses.iter().enumerate() {
+            let Some(d) = &**d else { continue };
+            for r in d
+                .results
+                .iter()
+                .filter(|r| r.detected && r.line_actual > 0.0)
+            {
+                if let Some(ha) = r.anchor {
+                    // Capacity 4 kinds x 8 bearings; more are not compared.
+                    let _ = fams.push((bi, r.kind, r.line_actual, ha, strength(r)));
+                }
+            }
+        }
+        for (bi, (d, o)) in diagnoses.iter_mut().zip(orders.iter()).enumerate() {
+            let Some(d) = &mut **d else { continue };
+            let ctx = Ctx {
+                amps: spectrum.amplitudes(),
+                opb,
+                lobe_bins: spectrum.window().main_lobe_half_width_bins(),
+                window: spectrum.window(),
+                shaft_order: o.shaft_order(),
+                ftf_order: o.ftf_order(),
+                mask: self.config.mask_shaft_harmonics,
+            };
+            for r in d.results.iter_mut() {
+                let mine = strength(r);
+                let mut changed = false;
+                for hr in r.harmonics.iter_mut().filter(|h| h.counted) {
+                    let f = hr.found_order;
+                    let rival = fams.iter().find(|&&(bj, _, line, ha, st)| {
+                        if bj == bi || st <= mine {
+                            return false;
+                        }
+                        let m = libm::roundf(f / line);
+                        let tol = (self.config.refine_bins + m / (4.0 * f32::from(ha))) * opb;
+                        m >= 1.0 && libm::fabsf(f - m * line) <= tol
+                    });
+                    if let Some(&(bj, kind, ..)) = rival {
+                        hr.counted = false;
+                        hr.shared_with = Some(kind);
+                        hr.shared_bearing = u8::try_from(bj).ok();
+                        changed = true;
+                    }
+                }
+                if changed {
+                    self.decide(&ctx, r, o);
+                }
+            }
+            Self::cage_as_modulation(&mut d.results);
+        }
     }
 
     fn search_kind(&self, ctx: &Ctx<'_>, kind: DefectKind, line: f32) -> DefectResult {
@@ -532,6 +686,7 @@ impl DefectSearch {
                         found: false,
                         counted: false,
                         shared_with: None,
+                        shared_bearing: None,
                     }
                 }
             };
@@ -589,6 +744,7 @@ impl DefectSearch {
             harmonics_found: 0,
             harmonics_searched,
             anchor: anchor.map(|(h, _)| h),
+            line_actual: anchor.map_or(0.0, |(h, f)| f / f32::from(h)),
             sideband_db: None,
             score_db: 0.0,
             detected: false,
@@ -624,6 +780,16 @@ impl DefectSearch {
             })
         });
         let rank = |k: usize, h: u8| Rank(strength.get(k).copied().unwrap_or(0.0), h);
+        // Modulation spacing of each kind's family: BPFI at the shaft order
+        // (the inner race turns through the load zone), BSF at FTF (the
+        // element turns with the cage); BPFO and FTF none.
+        let spacing: [f32; 4] = core::array::from_fn(|k| match DefectKind::from_index(k) {
+            Some(DefectKind::Bpfi) => ctx.shaft_order,
+            Some(DefectKind::Bsf) => ctx.ftf_order,
+            _ => 0.0,
+        });
+        let nominal: [f32; 4] =
+            core::array::from_fn(|k| results.get(k).map_or(0.0, |r| r.line_order));
         // Anchored actual line L' = f_a / h_a and anchor harmonic of each kind.
         let families: [Option<(f32, u8)>; 4] = core::array::from_fn(|k| {
             let r = results.get(k)?;
@@ -651,10 +817,10 @@ impl DefectSearch {
                     if kj == ki || found_count(kj) < 2 {
                         return None;
                     }
-                    let m = libm::roundf(o / line);
-                    let tol = (self.config.refine_bins + m / (4.0 * f32::from(ha))) * ctx.opb;
-                    let m_u8 = u8::try_from(f32_to_usize_sat(m)).unwrap_or(u8::MAX);
-                    (m >= 1.0 && libm::fabsf(o - m * line) <= tol).then_some((kj, rank(kj, m_u8)))
+                    let nominal = nominal.get(kj).copied().unwrap_or(line);
+                    let sp = spacing.get(kj).copied().unwrap_or(0.0);
+                    let m_u8 = on_family(o, line, ha, nominal, sp, &self.config, ctx.opb)?;
+                    Some((kj, rank(kj, m_u8)))
                 });
                 let rival = same.chain(family).max_by(|a, b| a.1.cmp_rank(&b.1));
                 if let Some((kj, rank)) = rival {
@@ -706,8 +872,33 @@ impl DefectSearch {
         let sideband_pair = r
             .sideband_db
             .is_some_and(|s| s >= cfg.sideband_threshold_db);
-        r.detected =
-            r.harmonics_found >= cfg.min_harmonics || (fundamental_counted && sideband_pair);
+        let family = r.harmonics_found >= cfg.min_harmonics;
+        let strong_family = r.harmonics_found > cfg.min_harmonics;
+        r.detected = match r.kind {
+            // Inner race: the load-zone modulation (shaft sidebands) is the
+            // hallmark; without it, one more harmonic is required.
+            DefectKind::Bpfi => ((family || fundamental_counted) && sideband_pair) || strong_family,
+            // Rolling element: harmonics, or fundamental plus cage sidebands.
+            DefectKind::Bsf => family || (fundamental_counted && sideband_pair),
+            DefectKind::Bpfo => family,
+            // Cage: one more harmonic and the fundamental (cage lines are
+            // rarely a primary envelope finding); see `cage_as_modulation`.
+            DefectKind::Ftf => strong_family && fundamental_counted,
+        };
+    }
+
+    /// Cage lines beside a detected race or rolling-element family of the
+    /// same bearing are read as that family's modulation (the same elements
+    /// return once per cage turn), not as a cage defect (common practice).
+    fn cage_as_modulation(results: &mut [DefectResult; 4]) {
+        let other = results
+            .iter()
+            .any(|r| r.kind != DefectKind::Ftf && r.detected);
+        if other {
+            for r in results.iter_mut().filter(|r| r.kind == DefectKind::Ftf) {
+                r.detected = false;
+            }
+        }
     }
 }
 

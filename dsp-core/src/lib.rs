@@ -47,5 +47,6 @@ pub mod pipeline;
 pub mod rectify;
 pub mod report;
 pub mod spectrum;
+pub mod survey;
 pub mod tach;
 pub mod velocity;

@@ -450,6 +450,14 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
                 diagnosis,
             });
         }
+        if let (Some(v), true) = (&view, analysable) {
+            // Peaks explained by a stronger family of another bearing on
+            // this point do not count for the weaker one.
+            let mut diagnoses: Vec<&mut Option<crate::defects::BearingDiagnosis>, MAX_BEARINGS> =
+                bearings.iter_mut().map(|b| &mut b.diagnosis).collect();
+            self.search
+                .attribute_bearings(v, &self.orders, &mut diagnoses);
+        }
 
         let revs_per_segment = N / usize::from(self.point.samples_per_rev).max(1);
         Report {

@@ -140,6 +140,15 @@ pub fn speed_for(
 
 /// Loads the point and recording of `args` and analyses them.
 pub fn analyze(args: &AnalyzeArgs) -> Result<Analysis, CliError> {
+    analyze_auto(args).map(|(a, _)| a)
+}
+
+/// As [`analyze`]; when the point file gives no `[envelope] band_hz`, the
+/// band survey ([`dsp_core::survey`]) runs on the record first and its
+/// choice (returned beside the analysis) sets the band.
+pub fn analyze_auto(
+    args: &AnalyzeArgs,
+) -> Result<(Analysis, Option<dsp_core::survey::SurveyResult>), CliError> {
     let point = crate::point::load(&args.point)?;
     let rec = load_record(
         &args.recording,
@@ -147,25 +156,53 @@ pub fn analyze(args: &AnalyzeArgs) -> Result<Analysis, CliError> {
         args.tach_channel,
         args.tach.as_deref(),
     )?;
-    let point = speed_for(point, args.rpm, rec.edges_s.is_some(), &args.recording)?;
-    run(&point, &rec)
+    let mut point = speed_for(point, args.rpm, rec.edges_s.is_some(), &args.recording)?;
+    let mut survey = None;
+    if point.band_hz.is_none() {
+        point.sample_rate_hz = rec.sample_rate_hz;
+        let min_bw = crate::cmd_validate::survey_min_bandwidth_hz(&point);
+        let x: Vec<f32> = match &rec.accel {
+            Accel::G(v) => v.clone(),
+            Accel::Counts(v) => v.iter().map(|&c| f32::from(c)).collect(),
+        };
+        let r = crate::cmd_validate::survey_record(&x, rec.sample_rate_hz, min_bw)
+            .map_err(|e| CliError::input(args.recording.display(), format!("band survey: {e}")))?;
+        point.band_hz = Some(r.band_hz);
+        survey = Some(r);
+    }
+    Ok((run(&point, &rec)?, survey))
 }
 
 /// Runs `envord analyze`.
 pub fn run_cmd(args: &AnalyzeArgs) -> Result<(), CliError> {
-    let a = analyze(args)?;
+    let (a, survey) = analyze_auto(args)?;
     if let Some(plot) = &args.plot {
         crate::plot::order_spectrum(plot, &a, &args.recording.display().to_string())?;
     }
     if args.frame_hex {
         println!("{}", frame_hex(&a.report, args.node_id, args.seq)?);
     } else if args.json {
-        let v = to_json(&a.report, Some(&args.recording.display().to_string()));
+        let mut v = to_json(&a.report, Some(&args.recording.display().to_string()));
+        if let Some(env) = v.get_mut("envelope").and_then(|e| e.as_object_mut()) {
+            env.insert("band_auto".into(), serde_json::json!(survey.is_some()));
+            if let Some(r) = &survey {
+                env.insert(
+                    "band_kurtosis".into(),
+                    serde_json::json!(f64::from(r.kurtosis)),
+                );
+            }
+        }
         println!(
             "{}",
             serde_json::to_string_pretty(&v).map_err(|e| CliError::Other(e.to_string()))?
         );
     } else {
+        if let Some(r) = &survey {
+            println!(
+                "band       {:.0}-{:.0} Hz chosen by the band survey (spectral kurtosis {:.2})",
+                r.band_hz[0], r.band_hz[1], r.kurtosis
+            );
+        }
         print!("{}", to_table(&a.report));
     }
     Ok(())

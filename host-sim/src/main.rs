@@ -28,6 +28,8 @@ enum Command {
     Simulate(host_sim::cmd_simulate::SimulateArgs),
     /// Read node frames at the plant gateway: decode, import, status, trend.
     Gateway(host_sim::gateway::GatewayArgs),
+    /// Check the diagnosis on a labelled data folder (manifest.toml + WAVs).
+    Validate(host_sim::cmd_validate::ValidateArgs),
 }
 
 fn main() -> ExitCode {
@@ -47,6 +49,7 @@ fn main() -> ExitCode {
         Command::Compare(a) => host_sim::cmd_compare::run(&a),
         Command::Batch(a) => host_sim::cmd_batch::run(&a),
         Command::Gateway(a) => host_sim::gateway::run(a),
+        Command::Validate(a) => host_sim::cmd_validate::run_cmd(&a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
