@@ -1,5 +1,5 @@
 //! Link-time proof that no panic path is reachable from dsp-core's public
-//! API when built for thumbv7em-none-eabihf in release mode.
+//! API (and the firmware's downlink check) when built for thumbv7em-none-eabihf in release mode.
 //!
 //! The panic handler calls `envord_panic_is_reachable`, a function that is
 //! declared but defined nowhere. If, after optimisation, any call to a panic
@@ -132,6 +132,25 @@ fn tach() {
     }
 }
 
+/// Downlink authentication on arbitrary radio bytes.
+fn downlink() {
+    use firmware::downlink_auth::{sign, verify, DownlinkKey};
+    let key = DownlinkKey::new(black_box([0u8; 32]));
+    let bytes = [0u8; 64];
+    if let Ok(a) = verify(&key, black_box(1), black_box(0), black_box(&bytes[..])) {
+        black_box(a.counter);
+        black_box(a.payload);
+    }
+    let mut out = [0u8; 64];
+    let _ = black_box(sign(
+        &key,
+        black_box(1),
+        black_box(2),
+        black_box(&bytes[..]),
+        black_box(&mut out[..]),
+    ));
+}
+
 #[entry]
 fn main() -> ! {
     loop {
@@ -145,5 +164,6 @@ fn main() -> ! {
         black_box(NodePipeline::new(&opaque_point()).is_ok());
         frames();
         tach();
+        downlink();
     }
 }
