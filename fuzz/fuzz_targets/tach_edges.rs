@@ -17,8 +17,12 @@ fuzz_target!(|data: &[u8]| {
         return;
     };
     let tick_hz = [1_000_000u32, 32_768, 16_000_000, 1][usize::from(rate_sel & 3)];
-    let (min_rpm, max_rpm) = [(300.0, 3000.0), (60.0, 6000.0), (1.0, 1.5), (1000.0, 1001.0)]
-        [usize::from(range_sel & 3)];
+    let (min_rpm, max_rpm) = [
+        (300.0, 3000.0),
+        (60.0, 6000.0),
+        (1.0, 1.5),
+        (1000.0, 1001.0),
+    ][usize::from(range_sel & 3)];
 
     // Each 5-byte record: a tick (u32 LE) and how many samples to advance.
     let ops: Vec<(u32, u64)> = rest
