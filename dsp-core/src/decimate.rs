@@ -386,6 +386,10 @@ fn run_stage(
     let n = st.taps;
     let m = usize::from(st.factor.max(1));
     let l = src.len();
+    if n == 0 {
+        // `windows(0)` panics; a stage always has taps (checked in `new`).
+        return 0;
+    }
     let keep = n.saturating_sub(1);
     let (Some(h), Some(t)) = (
         hist.get_mut(st.hist..st.hist + keep + l),
@@ -412,7 +416,9 @@ fn run_stage(
         }
     }
     st.phase = (st.phase + l) % m;
-    h.copy_within(l.., 0);
+    if l <= h.len() {
+        h.copy_within(l.., 0);
+    }
     count
 }
 

@@ -448,9 +448,50 @@ impl Ctx<'_> {
             n += 1;
         }
         let used = scratch.get_mut(..n)?;
-        let mid = n / 2;
-        let (_, m, _) = used.select_nth_unstable_by(mid, f32::total_cmp);
-        Some(*m)
+        // Not `select_nth_unstable_by`: core's selection keeps bounds-check
+        // panics that the optimiser cannot remove (no-panic link check).
+        heap_sort_total(used);
+        used.get(n / 2).copied()
+    }
+}
+
+/// Sorts by `f32::total_cmp` (heapsort: O(n log n), no panic path).
+fn heap_sort_total(v: &mut [f32]) {
+    let n = v.len();
+    for start in (0..n / 2).rev() {
+        sift_down(v, start, n);
+    }
+    for end in (1..n).rev() {
+        if end < v.len() {
+            v.swap(0, end);
+        }
+        sift_down(v, 0, end);
+    }
+}
+
+/// Restores the max-heap property below `root` within `v[..end]`.
+fn sift_down(v: &mut [f32], mut root: usize, end: usize) {
+    let end = end.min(v.len());
+    let greater = |v: &[f32], a: usize, b: usize| match (v.get(a), v.get(b)) {
+        (Some(x), Some(y)) => x.total_cmp(y).is_gt(),
+        _ => false,
+    };
+    loop {
+        let mut child = root.saturating_mul(2).saturating_add(1);
+        if child >= end {
+            return;
+        }
+        let right = child.saturating_add(1);
+        if right < end && greater(v, right, child) {
+            child = right;
+        }
+        if !greater(v, child, root) {
+            return;
+        }
+        if root < end {
+            v.swap(root, child);
+        }
+        root = child;
     }
 }
 

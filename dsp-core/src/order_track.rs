@@ -489,7 +489,9 @@ fn pchip_slope(p0: f64, p1: f64) -> f64 {
 /// period `p_near`, `p_far` being the following one; kept within `0..=3·p_near`.
 fn end_slope(p_near: f64, p_far: f64) -> f64 {
     let d = 0.5 * (3.0 * p_near - p_far);
-    d.clamp(0.0, 3.0 * p_near)
+    // Not `clamp`: it panics when the upper bound is negative or NaN (a
+    // corrupt period); `max`/`min` return the non-NaN operand instead.
+    d.max(0.0).min((3.0 * p_near).max(0.0))
 }
 
 #[cfg(test)]

@@ -806,7 +806,9 @@ impl TachTracker {
 
     /// One accepted (real or bridged) pulse; every `pulses_per_rev`-th is a mark.
     fn pulse(&mut self, t: f64, bridged: bool, v: &Validated, marks: &mut impl FnMut(RevMark)) {
-        let is_mark = self.pulses_in_segment % v.pulses_per_rev == 0;
+        // `max(1)`: validated non-zero, but the target build must not keep a
+        // division-by-zero panic path (no-panic link check).
+        let is_mark = self.pulses_in_segment % v.pulses_per_rev.max(1) == 0;
         self.pulses_in_segment = self.pulses_in_segment.wrapping_add(1);
         if !is_mark {
             return;

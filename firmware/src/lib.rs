@@ -31,6 +31,7 @@ pub mod config;
 pub mod crc;
 pub mod cycle;
 pub mod downlink;
+pub mod downlink_auth;
 pub mod hal;
 mod log;
 pub mod overall_core;

@@ -139,6 +139,8 @@ pub fn to_json(report: &Report, file: Option<&str>) -> Value {
             "revolutions": report.revolutions,
             "orders_per_bin": finite(report.orders_per_bin),
             "max_search_order": finite(report.max_search_order),
+            // Set to true by `envord analyze` when the band survey chose the band.
+            "band_auto": false,
         },
         "bearings": bearings,
     })
