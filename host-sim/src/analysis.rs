@@ -99,7 +99,15 @@ pub fn edges_from_channel(tach: &[f32], sample_rate_hz: f32) -> Result<Vec<f64>,
 pub fn run(point: &PointConfig, rec: &Record) -> Result<Analysis, CliError> {
     let mut point = point.clone();
     point.sample_rate_hz = rec.sample_rate_hz;
-    let mut p = Box::new(NodePipeline::new(&point).map_err(|e| CliError::input("point", e))?);
+    let mut p = Box::new(NodePipeline::new(&point).map_err(|e| {
+        CliError::input(
+            format!(
+                "measuring point at the recording's {} Hz sample rate",
+                rec.sample_rate_hz
+            ),
+            e,
+        )
+    })?);
     let ticks = match (&point.speed, &rec.edges_s) {
         (
             SpeedInput::Tach {
