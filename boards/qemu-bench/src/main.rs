@@ -267,7 +267,7 @@ fn bench_order_tracker(m: &Meter) {
     cfg.decimation = 8;
     cfg.input_rate_hz = FS / 8.0;
     cfg.delay_input_samples = 40.0;
-    cfg.min_rpm = 600.0;
+    cfg.min_rpm = 1200.0;
     let Ok(mut ot) = OrderTracker::<NODE_RING>::new(&cfg) else {
         report("order_track", -1.0, "error", "tracker refused");
         return;
