@@ -347,31 +347,85 @@ impl Decimator {
     /// Pushes a block of any length; calls `out` for each kept output, in
     /// order. Results do not depend on how the input is split.
     pub fn process(&mut self, input: &[f32], mut out: impl FnMut(f32)) {
+        let Self {
+            stages,
+            n_stages,
+            taps,
+            hist,
+            ..
+        } = self;
+        let Some((first, rest)) = stages.get_mut(..*n_stages).and_then(|s| s.split_first_mut())
+        else {
+            // Factor 1: pass-through.
+            input.iter().for_each(|&v| out(v));
+            return;
+        };
+        // Every stage decimates by >= 2, so BLOCK / 2 outputs fit. The scratch
+        // buffers are swapped by reference (no copies); the first stage reads
+        // the caller's block directly.
+        let mut a = [0f32; BLOCK / 2];
+        let mut b = [0f32; BLOCK / 2];
         for chunk in input.chunks(BLOCK) {
-            let mut a = [0f32; BLOCK];
-            let mut b = [0f32; BLOCK];
-            let mut len = chunk.len();
-            if let Some(dst) = a.get_mut(..len) {
-                dst.copy_from_slice(chunk);
-            }
-            let Self {
-                stages,
-                n_stages,
-                taps,
-                hist,
-                ..
-            } = self;
-            for st in stages.iter_mut().take(*n_stages) {
-                let src = a.get(..len).unwrap_or(&[]);
-                len = run_stage(st, taps, hist, src, &mut b);
-                core::mem::swap(&mut a, &mut b);
+            let (mut src, mut dst) = (&mut a, &mut b);
+            let mut len = run_stage(first, taps, hist, chunk, src);
+            for st in rest.iter_mut() {
                 if len == 0 {
                     break;
                 }
+                len = run_stage(st, taps, hist, src.get(..len).unwrap_or(&[]), dst);
+                core::mem::swap(&mut src, &mut dst);
             }
-            a.iter().take(len).for_each(|&v| out(v));
+            src.iter().take(len).for_each(|&v| out(v));
         }
     }
+}
+
+/// Kept outputs of a factor-2 half-band stage over the linear history `h`
+/// (windows start at `first`, `first + 2`, ...). Lengths the designs produce
+/// get a kernel with the length fixed at compile time (unrolled, taps in
+/// registers); the arithmetic is that of [`fir_output`], so the results are
+/// the same bit for bit.
+fn halfband_outputs(h: &[f32], t: &[f32], first: usize, dst: &mut [f32]) -> usize {
+    macro_rules! dispatch {
+        ($($n:literal),*) => {
+            match t.len() {
+                $($n => halfband_fixed::<$n>(h, t, first, dst),)*
+                _ => {
+                    let windows = h.windows(t.len()).skip(first).step_by(2).zip(dst.iter_mut());
+                    let mut count = 0;
+                    for (w, d) in windows {
+                        *d = fir_output(w, t, true);
+                        count += 1;
+                    }
+                    count
+                }
+            }
+        };
+    }
+    dispatch!(3, 7, 11, 15, 19, 23, 27, 31, 35, 39, 43, 47)
+}
+
+#[inline(always)]
+fn halfband_fixed<const N: usize>(h: &[f32], t: &[f32], first: usize, dst: &mut [f32]) -> usize {
+    let Ok(taps) = <&[f32; N]>::try_from(t) else {
+        return 0;
+    };
+    // Local copy: the compiler keeps the taps in FPU registers over the block.
+    let taps: [f32; N] = *taps;
+    let mut count = 0;
+    let mut start = first;
+    for d in dst.iter_mut() {
+        let Some(w) = h
+            .get(start..start + N)
+            .and_then(|s| <&[f32; N]>::try_from(s).ok())
+        else {
+            break;
+        };
+        *d = fir_output(w, &taps, true);
+        count += 1;
+        start += 2;
+    }
+    count
 }
 
 /// Runs one stage over `src` (at most [`BLOCK`] samples), writing kept
@@ -398,14 +452,11 @@ fn run_stage(
     }
     // Output k of this block ends at block index first + k m.
     let first = m - 1 - st.phase;
-    let windows = h.windows(n).skip(first).step_by(m).zip(dst.iter_mut());
     let mut count = 0;
     if st.halfband {
-        for (w, d) in windows {
-            *d = fir_output(w, t, true);
-            count += 1;
-        }
+        count = halfband_outputs(h, t, first, dst);
     } else {
+        let windows = h.windows(n).skip(first).step_by(m).zip(dst.iter_mut());
         for (w, d) in windows {
             *d = fir_output(w, t, false);
             count += 1;
