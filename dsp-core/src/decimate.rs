@@ -37,9 +37,10 @@ pub const MAX_STAGES: usize = 10;
 /// Tap pool shared by all stages.
 pub const TAP_POOL: usize = 320;
 /// Inputs processed per stage block.
-pub const BLOCK: usize = 64;
-/// History pool: N - 1 + BLOCK per stage.
-const HIST_POOL: usize = TAP_POOL + MAX_STAGES * BLOCK;
+pub const BLOCK: usize = 128;
+/// History pool: N - 1 + (input block capacity) per stage. Stage inputs
+/// shrink by >= 2 per stage, so the capacities sum to < 2 BLOCK + MAX_STAGES.
+const HIST_POOL: usize = TAP_POOL + 2 * BLOCK + MAX_STAGES;
 
 /// Why a decimator could not be built.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -83,7 +84,7 @@ pub struct Decimator {
     n_stages: usize,
     /// Taps of all stages, each stored time-reversed (oldest sample first).
     taps: [f32; TAP_POOL],
-    /// Linear history buffers of all stages (N - 1 + BLOCK each).
+    /// Linear history buffers of all stages (N - 1 + input capacity each).
     hist: [f32; HIST_POOL],
 }
 
@@ -255,7 +256,8 @@ impl Decimator {
         // Rate after each stage in units of the output rate.
         let mut rate_in = f64::from(factor);
         let mut offset = 0usize;
-        for (i, (st, &m)) in d.stages.iter_mut().zip(factors.iter()).take(n).enumerate() {
+        let (mut hist, mut cap) = (0usize, BLOCK);
+        for (st, &m) in d.stages.iter_mut().zip(factors.iter()).take(n) {
             let rate_out = rate_in / f64::from(m);
             let width = 2.0 * (rate_out - 2.0 * PASS_FRACTION) / rate_in;
             let (mut taps, beta) = kaiser_order(STOP_DB, width);
@@ -284,10 +286,12 @@ impl Decimator {
                 halfband,
                 taps,
                 offset,
-                hist: offset + i * BLOCK,
+                hist,
                 phase: 0,
             };
             offset = end;
+            hist += taps - 1 + cap;
+            cap = cap.div_ceil(usize::from(m));
             rate_in = rate_out;
         }
         Ok(d)
@@ -354,7 +358,9 @@ impl Decimator {
             hist,
             ..
         } = self;
-        let Some((first, rest)) = stages.get_mut(..*n_stages).and_then(|s| s.split_first_mut())
+        let Some((first, rest)) = stages
+            .get_mut(..*n_stages)
+            .and_then(|s| s.split_first_mut())
         else {
             // Factor 1: pass-through.
             input.iter().for_each(|&v| out(v));

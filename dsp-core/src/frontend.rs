@@ -29,8 +29,9 @@ use crate::overall::{Overall, OverallAcc};
 use crate::rectify::Rectifier;
 use crate::velocity::{zone, VelocityConfig, VelocityError, VelocityMeter};
 
-/// Samples processed per internal chunk (stack buffer of 256 bytes).
-pub const CHUNK: usize = 64;
+/// Samples processed per internal chunk (stack buffer of 512 bytes); the
+/// decimator's block, so each chunk is one pass through its stages.
+pub const CHUNK: usize = crate::decimate::BLOCK;
 
 /// Configuration of the front end.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -186,9 +187,11 @@ impl FrontEnd {
                 if x.is_finite() && x.abs() >= self.clip_g {
                     self.acc.add_clipped();
                 }
-                *b = self.acc.add(x);
+                *b = x;
             }
-            self.run(buf.get_mut(..n).unwrap_or(&mut []), &mut out);
+            let buf = buf.get_mut(..n).unwrap_or(&mut []);
+            self.acc.add_block(buf);
+            self.run(buf, &mut out);
         }
     }
 
@@ -199,13 +202,18 @@ impl FrontEnd {
         let k = self.cfg.counts_to_g;
         for chunk in block.chunks(CHUNK) {
             let n = chunk.len();
+            let neg = fsc.saturating_neg();
+            let mut clipped = 0u32;
             for (b, &c) in buf.iter_mut().zip(chunk) {
-                if c >= fsc || c <= fsc.saturating_neg() {
-                    self.acc.add_clipped();
-                }
-                *b = self.acc.add(f32::from(c) * k);
+                clipped += u32::from(c >= fsc || c <= neg);
+                *b = f32::from(c) * k;
             }
-            self.run(buf.get_mut(..n).unwrap_or(&mut []), &mut out);
+            for _ in 0..clipped {
+                self.acc.add_clipped();
+            }
+            let buf = buf.get_mut(..n).unwrap_or(&mut []);
+            self.acc.add_block(buf);
+            self.run(buf, &mut out);
         }
     }
 
@@ -213,8 +221,11 @@ impl FrontEnd {
         if let Some(v) = self.vel.as_mut() {
             v.process(buf);
         }
-        self.bp.process(buf);
-        self.cfg.rectifier.apply_block(buf);
+        // Rectifier fused into the band-pass loop (one pass over the chunk).
+        match self.cfg.rectifier {
+            Rectifier::Abs => self.bp.process_map(buf, f32::abs),
+            Rectifier::Square => self.bp.process_map(buf, |v| v * v),
+        }
         self.dec.process(buf, out);
     }
 
