@@ -105,7 +105,7 @@ fn bench_fft(c: &mut Criterion) {
                 for (m, c) in mags.iter_mut().zip(bins.iter()) {
                     *m = libm::sqrtf(c.re * c.re + c.im * c.im);
                 }
-                mags[1]
+                mags.get(1).copied()
             })
         });
     }
