@@ -89,7 +89,7 @@ def main():
     envord, core = build()
     with tempfile.TemporaryDirectory() as tmp:
         wav = os.path.join(tmp, "rec.wav")
-        subprocess.run([envord, "simulate", wav, "--seconds", str(SECONDS), "--rpm", str(RPM)],
+        subprocess.run([envord, "simulate", "--out", wav, "--seconds", str(SECONDS), "--rpm", str(RPM)],
                        check=True, stdout=subprocess.DEVNULL)
         fs, data = scipy.io.wavfile.read(wav)
         x32 = np.ascontiguousarray(data[:, 0] if data.ndim > 1 else data, dtype=np.float32)

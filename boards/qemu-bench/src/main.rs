@@ -96,7 +96,10 @@ struct Signal {
 
 impl Signal {
     fn new() -> Self {
-        Signal { n: 0, rng: 0x1234_5678 }
+        Signal {
+            n: 0,
+            rng: 0x1234_5678,
+        }
     }
     fn next(&mut self) -> f32 {
         self.rng ^= self.rng << 13;
@@ -150,7 +153,12 @@ fn bench_front_end_stages(m: &Meter) {
         total += m.instr(&mut || bp.process(black_box(&mut blk)));
     }
     black_box(&blk);
-    report("bandpass8", total / samples, "instr/sample", "band-pass, 8 poles (4 sections), blocks of 256");
+    report(
+        "bandpass8",
+        total / samples,
+        "instr/sample",
+        "band-pass, 8 poles (4 sections), blocks of 256",
+    );
 
     let mut bp = BiquadCascade::new(sos);
     let mut total = 0.0;
@@ -159,16 +167,29 @@ fn bench_front_end_stages(m: &Meter) {
         total += m.instr(&mut || bp.process_map(black_box(&mut blk), |v| v * v));
     }
     black_box(&blk);
-    report("bandpass8_square", total / samples, "instr/sample", "band-pass 8 poles with the square rectifier fused (as the front end runs it)");
+    report(
+        "bandpass8_square",
+        total / samples,
+        "instr/sample",
+        "band-pass 8 poles with the square rectifier fused (as the front end runs it)",
+    );
 
-    for (key, r) in [("rectify_square", Rectifier::Square), ("rectify_abs", Rectifier::Abs)] {
+    for (key, r) in [
+        ("rectify_square", Rectifier::Square),
+        ("rectify_abs", Rectifier::Abs),
+    ] {
         let mut total = 0.0;
         for _ in 0..BLOCKS {
             fill(&mut blk, &mut sig);
             total += m.instr(&mut || r.apply_block(black_box(&mut blk)));
         }
         black_box(&blk);
-        report(key, total / samples, "instr/sample", "rectifier alone, blocks of 256");
+        report(
+            key,
+            total / samples,
+            "instr/sample",
+            "rectifier alone, blocks of 256",
+        );
     }
 
     let mut acc = dsp_core::overall::OverallAcc::new();
@@ -178,7 +199,12 @@ fn bench_front_end_stages(m: &Meter) {
         total += m.instr(&mut || acc.add_block(black_box(&mut blk)));
     }
     black_box(acc.snapshot());
-    report("overall_stats", total / samples, "instr/sample", "overall indicators (mean, RMS, peak, crest, kurtosis sums), blocks of 256");
+    report(
+        "overall_stats",
+        total / samples,
+        "instr/sample",
+        "overall indicators (mean, RMS, peak, crest, kurtosis sums), blocks of 256",
+    );
 
     if let Ok(mut dec) = Decimator::new(8) {
         let mut total = 0.0;
@@ -189,8 +215,17 @@ fn bench_front_end_stages(m: &Meter) {
         }
         black_box(sink);
         let taps: usize = dec.stages().map(|s| s.1).sum();
-        eprintln!("INFO|decimator stages (factor, taps): {:?} total taps {}", Stages(&dec), taps);
-        report("decimate8", total / samples, "instr/sample", "decimator by 8 (>= 60 dB alias rejection), per input sample");
+        eprintln!(
+            "INFO|decimator stages (factor, taps): {:?} total taps {}",
+            Stages(&dec),
+            taps
+        );
+        report(
+            "decimate8",
+            total / samples,
+            "instr/sample",
+            "decimator by 8 (>= 60 dB alias rejection), per input sample",
+        );
     }
 
     for (key, vel, what) in [
@@ -229,6 +264,7 @@ fn bench_fft<const N: usize>(m: &Meter, key_fft: &str, key_mag: &str) {
     let mut mags = [0f32; N];
     let mut t_fft = 0.0;
     let mut t_mag = 0.0;
+    let mut t_mag_libm = 0.0;
     let reps = 3;
     for _ in 0..reps {
         fill(&mut buf, &mut sig);
@@ -238,8 +274,18 @@ fn bench_fft<const N: usize>(m: &Meter, key_fft: &str, key_mag: &str) {
             report(key_fft, -1.0, "error", "unsupported size");
             return;
         }
-        // Magnitudes of the N/2 bins as the spectrum stage does (accurate sqrt).
+        // Magnitudes of the N/2 bins with the spectrum stage's square root
+        // (within 1 ulp of libm), and with libm for comparison.
         t_mag += m.instr(&mut || {
+            let bins = buf.chunks_exact(2);
+            for (o, c) in mags.iter_mut().zip(bins) {
+                if let [re, im] = c {
+                    *o = dsp_core::num::sqrtf_fast(re * re + im * im);
+                }
+            }
+        });
+        black_box(&mags);
+        t_mag_libm += m.instr(&mut || {
             let bins = buf.chunks_exact(2);
             for (o, c) in mags.iter_mut().zip(bins) {
                 if let [re, im] = c {
@@ -249,10 +295,25 @@ fn bench_fft<const N: usize>(m: &Meter, key_fft: &str, key_mag: &str) {
         });
         black_box(&mags);
     }
-    report(key_fft, t_fft / f64::from(reps), "instr/transform", "dsp_core::spectrum::real_fft (microfft)");
+    report(
+        key_fft,
+        t_fft / f64::from(reps),
+        "instr/transform",
+        "dsp_core::spectrum::real_fft (microfft)",
+    );
     #[allow(clippy::cast_precision_loss)]
     let bins = (N / 2) as f64;
-    report(key_mag, t_mag / f64::from(reps) / bins, "instr/bin", "magnitude sqrt(re^2+im^2), libm sqrtf");
+    report(
+        key_mag,
+        t_mag / f64::from(reps) / bins,
+        "instr/bin",
+        "magnitude sqrt(re^2+im^2), dsp_core::num::sqrtf_fast",
+    );
+    eprintln!(
+        "INFO|{} with libm sqrtf: {:.2} instr/bin",
+        key_mag,
+        t_mag_libm / f64::from(reps) / bins
+    );
 }
 
 fn bench_order_spectrum(m: &Meter) {
@@ -275,8 +336,18 @@ fn bench_order_spectrum(m: &Meter) {
             black_box(sp.push(black_box(x)));
         });
     }
-    report("order_spectrum_4096_segment", t_seg / f64::from(segs), "instr/segment", "OrderSpectrum<4096> push completing a segment: mean, Hann, rfft, power average (sqrt)");
-    report("order_spectrum_4096_buffer", t_buf / f64::from(segs) / 4095.0, "instr/sample", "OrderSpectrum<4096> push of a buffered sample (incl. call)");
+    report(
+        "order_spectrum_4096_segment",
+        t_seg / f64::from(segs),
+        "instr/segment",
+        "OrderSpectrum<4096> push completing a segment: mean, Hann, rfft, power average (sqrt)",
+    );
+    report(
+        "order_spectrum_4096_buffer",
+        t_buf / f64::from(segs) / 4095.0,
+        "instr/sample",
+        "OrderSpectrum<4096> push of a buffered sample (incl. call)",
+    );
 }
 
 fn bench_order_tracker(m: &Meter) {
@@ -312,8 +383,16 @@ fn bench_order_tracker(m: &Meter) {
         let x = sig.next().abs();
         total += m.instr(&mut || ot.push_sample(black_box(x), |_| outs += 1));
     }
-    report("order_track", total / f64::from(outs.max(1)), "instr/output", "OrderTracker (Catmull-Rom, 64/rev) per angle-domain output sample, marks included");
-    eprintln!("INFO|order tracker: {} outputs from {} envelope samples", outs, n_env);
+    report(
+        "order_track",
+        total / f64::from(outs.max(1)),
+        "instr/output",
+        "OrderTracker (Catmull-Rom, 64/rev) per angle-domain output sample, marks included",
+    );
+    eprintln!(
+        "INFO|order tracker: {} outputs from {} envelope samples",
+        outs, n_env
+    );
 }
 
 fn geometry(rollers: u16, d: f32, pd: f32, angle: f32, ratio: f32) -> Option<BearingOrders> {
@@ -362,7 +441,12 @@ fn bench_defects(m: &Meter) {
         });
     }
     black_box(found);
-    report("defects_3_bearings", total, "instr/report", "DefectSearch::search for 3 bearings (4 kinds x 5 harmonics each), 2048 bins");
+    report(
+        "defects_3_bearings",
+        total,
+        "instr/report",
+        "DefectSearch::search for 3 bearings (4 kinds x 5 harmonics each), 2048 bins",
+    );
 }
 
 fn point() -> PointConfig {
@@ -409,9 +493,24 @@ fn bench_pipeline(m: &Meter) {
     });
     #[allow(clippy::cast_precision_loss)]
     let samples = f64::from(blocks) * ADC_BLOCK as f64;
-    report("pipeline_per_sample", total / samples, "instr/sample", "NodePipeline (4096 points, 3 bearings, constant 1500 rpm) push_i16, per input sample");
-    report("pipeline_finish", t_fin, "instr/report", "NodePipeline::finish (defect search, overall, report)");
-    report("pipeline_record", total + t_fin, "instr/record", "whole record incl. finish");
+    report(
+        "pipeline_per_sample",
+        total / samples,
+        "instr/sample",
+        "NodePipeline (4096 points, 3 bearings, constant 1500 rpm) push_i16, per input sample",
+    );
+    report(
+        "pipeline_finish",
+        t_fin,
+        "instr/report",
+        "NodePipeline::finish (defect search, overall, report)",
+    );
+    report(
+        "pipeline_record",
+        total + t_fin,
+        "instr/record",
+        "whole record incl. finish",
+    );
     eprintln!(
         "INFO|pipeline: decimation {}, {} samples ({:.2} s), {} segments",
         p.decimation(),
@@ -427,15 +526,39 @@ fn memory() {
         #[allow(clippy::cast_precision_loss)]
         report(k, n as f64, "bytes", what);
     };
-    r("mem_node_pipeline", size_of::<NodePipeline>(), "NodePipeline = Pipeline<4096, 2048, 2048>");
+    r(
+        "mem_node_pipeline",
+        size_of::<NodePipeline>(),
+        "NodePipeline = Pipeline<4096, 2048, 2048>",
+    );
     r("mem_frontend", size_of::<FrontEnd>(), "FrontEnd");
     r("mem_bandpass", size_of::<BiquadCascade>(), "BiquadCascade");
     r("mem_decimator", size_of::<Decimator>(), "Decimator");
-    r("mem_order_tracker", size_of::<OrderTracker<NODE_RING>>(), "OrderTracker<2048>");
-    r("mem_order_spectrum", size_of::<OrderSpectrum4096>(), "OrderSpectrum<4096>");
-    r("mem_tach", size_of::<dsp_core::tach::TachTracker>(), "TachTracker");
-    r("mem_defect_search", size_of::<DefectSearch>(), "DefectSearch");
-    r("mem_point", size_of::<PointConfig>(), "PointConfig (copy held by the pipeline)");
+    r(
+        "mem_order_tracker",
+        size_of::<OrderTracker<NODE_RING>>(),
+        "OrderTracker<2048>",
+    );
+    r(
+        "mem_order_spectrum",
+        size_of::<OrderSpectrum4096>(),
+        "OrderSpectrum<4096>",
+    );
+    r(
+        "mem_tach",
+        size_of::<dsp_core::tach::TachTracker>(),
+        "TachTracker",
+    );
+    r(
+        "mem_defect_search",
+        size_of::<DefectSearch>(),
+        "DefectSearch",
+    );
+    r(
+        "mem_point",
+        size_of::<PointConfig>(),
+        "PointConfig (copy held by the pipeline)",
+    );
 }
 
 #[entry]
