@@ -9,18 +9,15 @@
 //! finite sample in the filters, skipped by the statistics and counted in
 //! [`Overall::non_finite`].
 //!
-//! Cost on the Cortex-M4F (estimated from the thumbv7em release assembly,
-//! rustc 1.95, 8-pole band-pass, square, decimate by 8 = half-band stages of
-//! 15, 15 and 43 taps): band-pass loop 29 instructions per sample (12
-//! multiplies), rectifier ~5, decimator ~70 (10 instructions per nonzero tap
-//! pair, ~25 per kept output, ~3 per input for block copies; 5.25 multiplies
-//! per input). About 100 instructions per input sample in total, above the
-//! 45 target: see the report of the decimator for what would close the gap
-//! (unrolled pair loop, shorter equiripple first half-band). Overall
-//! indicators (~20) and the velocity path (~15 at 51.2 kHz) come on top.
+//! Cost on the Cortex-M4F, measured by `boards/qemu-bench` (instruction
+//! counts under QEMU, rustc 1.95; see docs/benchmarks.md): 8-pole band-pass
+//! with the rectifier fused 22 instructions per input sample, decimate by 8
+//! (half-bands of 7, 11 and 39 taps) 32, overall indicators 28; the whole
+//! `push_i16` path 102 with velocity off, 168 with the velocity path.
 //!
-//! RAM: one `FrontEnd` is 11.5 KB on the host (two decimators of 5.5 KB:
-//! 320-tap pool plus history); stack use per call about 0.8 KB (chunk buffers).
+//! RAM: one `FrontEnd` is 8.1 KB on the target (two decimators of 3.8 KB:
+//! 320-tap pool plus history); stack use per call about 1.5 KB (chunk buffers
+//! of [`CHUNK`] samples here, in the decimator and in the velocity path).
 
 use crate::biquad::BiquadCascade;
 use crate::decimate::{DecimateError, Decimator};
