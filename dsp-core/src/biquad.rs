@@ -44,6 +44,23 @@ impl BiquadCascade {
     /// assert!(x[0] > 0.0);
     /// ```
     pub fn process(&mut self, buf: &mut [f32]) {
+        self.process_map(buf, |v| v);
+    }
+
+    /// Filters `buf` in place and applies `map` to each output sample in the
+    /// same pass (e.g. the envelope rectifier), saving a second pass.
+    ///
+    /// ```
+    /// use dsp_core::{biquad::BiquadCascade, design::butter_bandpass};
+    /// let sos = butter_bandpass(100.0, 200.0, 1000.0, 4).unwrap();
+    /// let (mut a, mut b) = (BiquadCascade::new(sos), BiquadCascade::new(sos));
+    /// let mut x = [1.0f32, 0.0, -0.5, 0.25];
+    /// let mut y = x;
+    /// a.process_map(&mut x, |v| v * v);
+    /// b.process(&mut y);
+    /// assert!(x.iter().zip(&y).all(|(s, v)| *s == v * v));
+    /// ```
+    pub fn process_map(&mut self, buf: &mut [f32], map: impl Fn(f32) -> f32) {
         // Band-pass sections (b = g [1, 0, -1], as designed here) take the
         // fused path: sample-major with all states in registers, 7 flops per
         // section. Bit-identical to the general form (0 * x and -b0 x are exact).
@@ -53,15 +70,18 @@ impl BiquadCascade {
             .iter()
             .all(|s| s.b[1] == 0.0 && s.b[2] == -s.b[0]);
         match (bandpass, self.sos.len()) {
-            (true, 4) => self.run_bandpass::<4>(buf),
-            (true, 3) => self.run_bandpass::<3>(buf),
-            (true, 2) => self.run_bandpass::<2>(buf),
-            (true, 1) => self.run_bandpass::<1>(buf),
-            _ => self.run_general(buf),
+            (true, 4) => self.run_bandpass::<4>(buf, map),
+            (true, 3) => self.run_bandpass::<3>(buf, map),
+            (true, 2) => self.run_bandpass::<2>(buf, map),
+            (true, 1) => self.run_bandpass::<1>(buf, map),
+            _ => {
+                self.run_general(buf);
+                buf.iter_mut().for_each(|x| *x = map(*x));
+            }
         }
     }
 
-    fn run_bandpass<const N: usize>(&mut self, buf: &mut [f32]) {
+    fn run_bandpass<const N: usize>(&mut self, buf: &mut [f32], map: impl Fn(f32) -> f32) {
         let (mut b0, mut a1, mut a2) = ([0f32; N], [0f32; N], [0f32; N]);
         let (mut s1, mut s2) = ([0f32; N], [0f32; N]);
         let secs = self.sos.sections().iter().zip(self.state.iter());
@@ -86,7 +106,7 @@ impl BiquadCascade {
                 *w = -(t + q * y);
                 v = y;
             }
-            *x = v;
+            *x = map(v);
         }
         for (st, (u, w)) in self.state.iter_mut().zip(s1.iter().zip(s2.iter())) {
             *st = [*u, *w];

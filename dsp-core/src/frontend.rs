@@ -9,18 +9,15 @@
 //! finite sample in the filters, skipped by the statistics and counted in
 //! [`Overall::non_finite`].
 //!
-//! Cost on the Cortex-M4F (estimated from the thumbv7em release assembly,
-//! rustc 1.95, 8-pole band-pass, square, decimate by 8 = half-band stages of
-//! 15, 15 and 43 taps): band-pass loop 29 instructions per sample (12
-//! multiplies), rectifier ~5, decimator ~70 (10 instructions per nonzero tap
-//! pair, ~25 per kept output, ~3 per input for block copies; 5.25 multiplies
-//! per input). About 100 instructions per input sample in total, above the
-//! 45 target: see the report of the decimator for what would close the gap
-//! (unrolled pair loop, shorter equiripple first half-band). Overall
-//! indicators (~20) and the velocity path (~15 at 51.2 kHz) come on top.
+//! Cost on the Cortex-M4F, measured by `boards/qemu-bench` (instruction
+//! counts under QEMU, rustc 1.95; see docs/benchmarks.md): 8-pole band-pass
+//! with the rectifier fused 22 instructions per input sample, decimate by 8
+//! (half-bands of 7, 11 and 39 taps) 32, overall indicators 28; the whole
+//! `push_i16` path 102 with velocity off, 168 with the velocity path.
 //!
-//! RAM: one `FrontEnd` is 11.5 KB on the host (two decimators of 5.5 KB:
-//! 320-tap pool plus history); stack use per call about 0.8 KB (chunk buffers).
+//! RAM: one `FrontEnd` is 8.1 KB on the target (two decimators of 3.8 KB:
+//! 320-tap pool plus history); stack use per call about 1.5 KB (chunk buffers
+//! of [`CHUNK`] samples here, in the decimator and in the velocity path).
 
 use crate::biquad::BiquadCascade;
 use crate::decimate::{DecimateError, Decimator};
@@ -29,8 +26,9 @@ use crate::overall::{Overall, OverallAcc};
 use crate::rectify::Rectifier;
 use crate::velocity::{zone, VelocityConfig, VelocityError, VelocityMeter};
 
-/// Samples processed per internal chunk (stack buffer of 256 bytes).
-pub const CHUNK: usize = 64;
+/// Samples processed per internal chunk (stack buffer of 512 bytes); the
+/// decimator's block, so each chunk is one pass through its stages.
+pub const CHUNK: usize = crate::decimate::BLOCK;
 
 /// Configuration of the front end.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -186,9 +184,11 @@ impl FrontEnd {
                 if x.is_finite() && x.abs() >= self.clip_g {
                     self.acc.add_clipped();
                 }
-                *b = self.acc.add(x);
+                *b = x;
             }
-            self.run(buf.get_mut(..n).unwrap_or(&mut []), &mut out);
+            let buf = buf.get_mut(..n).unwrap_or(&mut []);
+            self.acc.add_block(buf);
+            self.run(buf, &mut out);
         }
     }
 
@@ -199,13 +199,18 @@ impl FrontEnd {
         let k = self.cfg.counts_to_g;
         for chunk in block.chunks(CHUNK) {
             let n = chunk.len();
+            let neg = fsc.saturating_neg();
+            let mut clipped = 0u32;
             for (b, &c) in buf.iter_mut().zip(chunk) {
-                if c >= fsc || c <= fsc.saturating_neg() {
-                    self.acc.add_clipped();
-                }
-                *b = self.acc.add(f32::from(c) * k);
+                clipped += u32::from(c >= fsc || c <= neg);
+                *b = f32::from(c) * k;
             }
-            self.run(buf.get_mut(..n).unwrap_or(&mut []), &mut out);
+            for _ in 0..clipped {
+                self.acc.add_clipped();
+            }
+            let buf = buf.get_mut(..n).unwrap_or(&mut []);
+            self.acc.add_block(buf);
+            self.run(buf, &mut out);
         }
     }
 
@@ -213,8 +218,11 @@ impl FrontEnd {
         if let Some(v) = self.vel.as_mut() {
             v.process(buf);
         }
-        self.bp.process(buf);
-        self.cfg.rectifier.apply_block(buf);
+        // Rectifier fused into the band-pass loop (one pass over the chunk).
+        match self.cfg.rectifier {
+            Rectifier::Abs => self.bp.process_map(buf, f32::abs),
+            Rectifier::Square => self.bp.process_map(buf, |v| v * v),
+        }
         self.dec.process(buf, out);
     }
 

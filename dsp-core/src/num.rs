@@ -73,6 +73,27 @@ pub fn sqrtf(x: f32) -> f32 {
     libm::sqrtf(x)
 }
 
+/// Square root for per-bin spectrum magnitudes: reciprocal square root by
+/// Newton's iteration from the classic bit-level first guess, then one
+/// Newton correction of the root. Within 1 ulp of `libm::sqrtf` for normal
+/// positive inputs (tested on a log sweep); zero, subnormal, infinite, NaN
+/// and negative inputs go to libm. About 20 instructions on the Cortex-M4F
+/// against about 60 for libm's software square root (no hardware square
+/// root is reachable from safe, stable `no_std` Rust).
+#[inline]
+pub fn sqrtf_fast(x: f32) -> f32 {
+    if !(x.is_normal() && x > 0.0) {
+        return libm::sqrtf(x);
+    }
+    let h = 0.5 * x;
+    let mut r = f32::from_bits(0x5f37_59df - (x.to_bits() >> 1));
+    // First guess within 0.18 %: two steps reach ~3e-11 (below f32 rounding).
+    r *= 1.5 - h * r * r;
+    r *= 1.5 - h * r * r;
+    let y = x * r;
+    y + r * (h - 0.5 * y * y)
+}
+
 /// Accurate base-10 logarithm (libm), for dB values.
 #[inline]
 pub fn log10f(x: f32) -> f32 {
@@ -95,6 +116,24 @@ pub fn amplitude_db(ratio: f32) -> f32 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn sqrtf_fast_within_one_ulp_of_libm() {
+        // Reference: libm::sqrtf (correctly rounded). Log sweep over the
+        // normal range plus the special values.
+        let mut x = f32::MIN_POSITIVE;
+        let mut worst = 0u32;
+        while x < f32::MAX / 1.0001 {
+            let (a, b) = (sqrtf_fast(x), libm::sqrtf(x));
+            worst = worst.max(a.to_bits().abs_diff(b.to_bits()));
+            x *= 1.000_37;
+        }
+        assert!(worst <= 1, "worst {worst} ulp");
+        assert_eq!(sqrtf_fast(0.0), 0.0);
+        assert_eq!(sqrtf_fast(4.0), 2.0);
+        assert!(sqrtf_fast(-1.0).is_nan() && sqrtf_fast(f32::NAN).is_nan());
+        assert_eq!(sqrtf_fast(f32::INFINITY), f32::INFINITY);
+    }
 
     #[test]
     fn saturating_conversions() {

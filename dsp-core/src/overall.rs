@@ -110,14 +110,87 @@ impl OverallAcc {
         self.p[1] += d2;
         self.p[2] += d2 * d;
         self.p[3] += d2 * d2;
-        self.min = self.min.min(x);
-        self.max = self.max.max(x);
+        // Comparisons, not f32::min/max: those are libm calls on the M4F
+        // (x is finite here, so the result is the same).
+        if x < self.min {
+            self.min = x;
+        }
+        if x > self.max {
+            self.max = x;
+        }
         self.count = self.count.saturating_add(1);
         self.pending += 1;
         if self.pending >= FLUSH_EVERY {
             self.flush();
         }
         x
+    }
+
+    /// Adds a block in place: the same arithmetic as [`Self::add`] sample by
+    /// sample (so results do not depend on the block split), with the sums
+    /// held in registers between flushes. Non-finite samples are replaced by
+    /// the last finite one, as `add` returns it.
+    ///
+    /// ```
+    /// use dsp_core::overall::OverallAcc;
+    /// let (mut a, mut b) = (OverallAcc::new(), OverallAcc::new());
+    /// let mut xs = [1.0f32, f32::NAN, -2.0, 0.5];
+    /// let ys: Vec<f32> = xs.iter().map(|&x| b.add(x)).collect();
+    /// a.add_block(&mut xs);
+    /// assert_eq!(xs.to_vec(), ys);
+    /// assert_eq!(a.snapshot(), b.snapshot());
+    /// ```
+    pub fn add_block(&mut self, xs: &mut [f32]) {
+        let mut rest = xs;
+        // Until the shift is known, the scalar path (it sets shift, min, max).
+        while self.shift.is_none() {
+            let Some((x, tail)) = rest.split_first_mut() else {
+                return;
+            };
+            *x = self.add(*x);
+            rest = tail;
+        }
+        let k = self.shift.unwrap_or(0.0);
+        while !rest.is_empty() {
+            let room = usize::try_from(FLUSH_EVERY.saturating_sub(self.pending))
+                .unwrap_or(usize::MAX)
+                .max(1);
+            let (run, tail) = rest.split_at_mut(room.min(rest.len()));
+            let [mut p0, mut p1, mut p2, mut p3] = self.p;
+            let (mut lo, mut hi, mut last) = (self.min, self.max, self.last);
+            let mut bad = 0u32;
+            for x in run.iter_mut() {
+                let v = *x;
+                if !v.is_finite() {
+                    bad += 1;
+                    *x = last;
+                    continue;
+                }
+                last = v;
+                let d = v - k;
+                let d2 = d * d;
+                p0 += d;
+                p1 += d2;
+                p2 += d2 * d;
+                p3 += d2 * d2;
+                if v < lo {
+                    lo = v;
+                }
+                if v > hi {
+                    hi = v;
+                }
+            }
+            let good = u32::try_from(run.len()).unwrap_or(u32::MAX) - bad;
+            self.p = [p0, p1, p2, p3];
+            (self.min, self.max, self.last) = (lo, hi, last);
+            self.non_finite = self.non_finite.saturating_add(bad);
+            self.count = self.count.saturating_add(good);
+            self.pending += good;
+            if self.pending >= FLUSH_EVERY {
+                self.flush();
+            }
+            rest = tail;
+        }
     }
 
     fn flush(&mut self) {
@@ -164,6 +237,37 @@ impl OverallAcc {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn block_path_equals_sample_path_across_flushes() {
+        // 1000 samples (several FLUSH_EVERY periods) with non-finite ones,
+        // split into uneven blocks: same outputs and statistics bit for bit.
+        let mut xs = [0f32; 1000];
+        for (i, x) in xs.iter_mut().enumerate() {
+            *x = libm::sinf(i as f32 * 0.77) * 3.0 + 0.25;
+        }
+        xs[0] = f32::NAN;
+        xs[255] = f32::INFINITY;
+        xs[256] = f32::NAN;
+        xs[700] = f32::NEG_INFINITY;
+        let (mut a, mut b) = (OverallAcc::new(), OverallAcc::new());
+        let mut want = [0f32; 1000];
+        for (w, &x) in want.iter_mut().zip(&xs) {
+            *w = b.add(x);
+        }
+        let mut got = xs;
+        let (p, q) = got.split_at_mut(300);
+        let (p1, p2) = p.split_at_mut(7);
+        a.add_block(p1);
+        a.add_block(p2);
+        a.add_block(q);
+        assert!(got
+            .iter()
+            .zip(&want)
+            .all(|(x, y)| x.to_bits() == y.to_bits()));
+        assert_eq!(a.snapshot(), b.snapshot());
+        assert_eq!(a.snapshot().non_finite, 4);
+    }
 
     #[test]
     fn square_wave_moments() {

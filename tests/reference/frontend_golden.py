@@ -6,8 +6,9 @@ Outputs (into OUTDIR, default tests/data/frontend):
                         magnitude (sosfreqz) on a grid and group delay at the band centre.
   frontend_golden.json  whole front end on the committed CWRU excerpt:
                         sosfilt(scipy design) -> square or abs -> for each decimator stage
-                        lfilter(h, 1, x)[M-1::M], where the stage taps h are re-derived here with
-                        scipy.signal.kaiserord + firwin(window=('kaiser', beta)) using the band
+                        lfilter(h, 1, x)[M-1::M], where the stage taps h are re-derived here
+                        (odd stages scipy.signal.kaiserord + firwin(window=('kaiser', beta)),
+                        half-bands scipy.signal.remez via halfband_tables.py) using the band
                         plan documented in dsp-core/src/decimate.rs. Also numpy/scipy.stats
                         overall indicators of the raw excerpt.
 
@@ -22,6 +23,9 @@ import numpy as np
 import scipy.io.wavfile
 import scipy.signal as sig
 import scipy.stats
+
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+import halfband_tables  # noqa: E402
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 DATA = os.path.normpath(os.path.join(HERE, "..", "data", "frontend"))
@@ -56,25 +60,20 @@ def stage_factors(d):
 
 
 def decimator_taps(d):
-    """Per stage: kaiserord(STOP_DB, width) and firwin(n, 1/M, window=('kaiser', beta));
-    factor-2 stages are half-bands: n rounded up to 4k+3 and the sinc zeros at even
-    offsets from the centre set to exactly 0."""
+    """Per stage: odd factors kaiserord(STOP_DB, width) and firwin(n, 1/M,
+    window=('kaiser', beta)); factor-2 stages the equiripple half-band designed
+    by halfband_tables.py (scipy.signal.remez) for the stage's input rate."""
     taps = []
     rate_in = float(d)
     for m in stage_factors(d):
         rate_out = rate_in / m
         width = 2.0 * (rate_out - 2.0 * PASS_FRACTION) / rate_in
-        n, beta = sig.kaiserord(STOP_DB, width)
         if m == 2:
-            n = max(n, 3)
-            while n % 4 != 3:
-                n += 1
-        h = sig.firwin(n, 1.0 / m, window=("kaiser", beta))
-        if m == 2:
-            mid = n // 2
-            for i in range(n):
-                if i != mid and abs(i - mid) % 2 == 0:
-                    h[i] = 0.0
+            # Equiripple half-band (scipy.signal.remez), as the tables in decimate.rs.
+            n, h, _, _ = halfband_tables.shortest(min(round(rate_in), 8))
+        else:
+            n, beta = sig.kaiserord(STOP_DB, width)
+            h = sig.firwin(n, 1.0 / m, window=("kaiser", beta))
         taps.append((m, h))
         rate_in = rate_out
     return taps

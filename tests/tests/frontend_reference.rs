@@ -2,7 +2,8 @@
 //! recording (CWRU record 106, drive end, 12 kHz; see tests/data/frontend/README.md).
 //! Reference (tests/reference/frontend_golden.py): scipy.signal.butter + sosfilt in
 //! f64, square or abs, then per decimator stage lfilter(h, 1, x)[M-1::M] with taps
-//! re-derived by scipy.signal.kaiserord + firwin; overall indicators by numpy and
+//! re-derived by scipy (odd stages kaiserord + firwin, half-bands remez via
+//! tests/reference/halfband_tables.py); overall indicators by numpy and
 //! scipy.stats.kurtosis(fisher=False).
 #![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing)]
 
@@ -72,10 +73,10 @@ fn config(c: &Case) -> FrontEndConfig {
     cfg
 }
 
-/// Source: scipy.signal.kaiserord/firwin taps. Our on-device Kaiser design must
-/// give the same stage structure and taps (f32 rounding only).
+/// Source: scipy taps (kaiserord/firwin for odd stages, remez half-bands for
+/// factor-2 stages). Our stage structure and taps must match (f32 rounding only).
 #[test]
-fn decimator_taps_match_scipy_firwin() {
+fn decimator_taps_match_scipy() {
     let g = golden();
     let fe = FrontEnd::new(&config(&g.cases[0])).unwrap();
     let stages: Vec<(u16, usize)> = fe.decimator().stages().collect();
@@ -88,7 +89,7 @@ fn decimator_taps_match_scipy_firwin() {
             worst = worst.max((f64::from(*a) - b).abs());
         }
     }
-    println!("decimator taps: max |error| vs scipy firwin = {worst:.2e}; stages {stages:?}");
+    println!("decimator taps: max |error| vs scipy = {worst:.2e}; stages {stages:?}");
     assert!(worst < 1e-7);
 }
 

@@ -1,0 +1,585 @@
+//! Instruction-count benchmarks of dsp-core on QEMU mps2-an386 (Cortex-M4F).
+//!
+//! Method (see docs/benchmarks.md): QEMU runs with `-icount shift=10`, so each
+//! guest instruction advances virtual time by 1024 ns; the CMSDK APB timer0
+//! (25 MHz, 32-bit down-counter at 0x4000_0000) then counts exactly 25.6
+//! ticks per instruction. Every figure is (ticks - ticks of an empty
+//! interval) / 25.6 over the timed calls only; inputs are prepared outside
+//! the timed intervals. Results are deterministic, run to run.
+//!
+//! Output: one line per figure on semihosting stderr,
+//! `BENCH|key|value|unit|description`, parsed by `format.py`.
+#![no_std]
+#![no_main]
+
+use core::hint::black_box;
+use core::ptr::{read_volatile, write_volatile};
+
+use cortex_m_rt::{entry, exception, ExceptionFrame};
+use dsp_core::biquad::BiquadCascade;
+use dsp_core::config::{Bearing, BearingKinematics, PointConfig, SpeedInput};
+use dsp_core::decimate::Decimator;
+use dsp_core::defects::{DefectSearch, DefectSearchConfig};
+use dsp_core::design::butter_bandpass;
+use dsp_core::frontend::{FrontEnd, FrontEndConfig};
+use dsp_core::kinematics::{BearingGeometry, BearingOrders, ShaftRatio};
+use dsp_core::order_track::{OrderTrackConfig, OrderTracker};
+use dsp_core::pipeline::{NodePipeline, ADC_BLOCK, NODE_RING};
+use dsp_core::rectify::Rectifier;
+use dsp_core::spectrum::{real_fft, OrderSpectrum4096, SpectrumConfig, SpectrumView, Window};
+use dsp_core::tach::RevMark;
+use semihosting::{eprintln, process};
+
+/// CMSDK APB timer0 registers (CTRL +0, VALUE +4, RELOAD +8).
+const TIMER0: usize = 0x4000_0000;
+/// Timer ticks per guest instruction under `-icount shift=10` (25 MHz x 1024 ns).
+const TICKS_PER_INSTR: f64 = 25.6;
+/// Input rate of the front end (Hz).
+const FS: f32 = 51_200.0;
+
+#[allow(unsafe_code)] // memory-mapped timer of the QEMU board
+fn timer_init() {
+    // SAFETY: timer0 of mps2-an386 is a plain MMIO block at this address.
+    unsafe {
+        write_volatile((TIMER0 + 8) as *mut u32, u32::MAX);
+        write_volatile((TIMER0 + 4) as *mut u32, u32::MAX);
+        write_volatile(TIMER0 as *mut u32, 1);
+    }
+}
+
+#[allow(unsafe_code)]
+#[inline(always)]
+fn now() -> u32 {
+    // SAFETY: read of the timer0 VALUE register.
+    unsafe { read_volatile((TIMER0 + 4) as *const u32) }
+}
+
+/// Ticks of one call of `f` (down-counter: start - end).
+#[inline(never)]
+fn ticks(f: &mut dyn FnMut()) -> u32 {
+    let a = now();
+    f();
+    let b = now();
+    a.wrapping_sub(b)
+}
+
+struct Meter {
+    empty: u32,
+}
+
+impl Meter {
+    fn new() -> Self {
+        timer_init();
+        let mut nop = || {};
+        // Warm up once, then take the empty interval (call overhead included).
+        let _ = ticks(&mut nop);
+        let empty = ticks(&mut nop);
+        Meter { empty }
+    }
+
+    /// Instructions of one call of `f`, net of the empty interval.
+    fn instr(&self, f: &mut dyn FnMut()) -> f64 {
+        f64::from(ticks(f).saturating_sub(self.empty)) / TICKS_PER_INSTR
+    }
+}
+
+fn report(key: &str, value: f64, unit: &str, what: &str) {
+    eprintln!("BENCH|{}|{:.2}|{}|{}", key, value, unit, what);
+}
+
+/// Deterministic test signal: in-band carrier amplitude-modulated at a
+/// "defect" rate plus broadband noise (xorshift32), in g.
+struct Signal {
+    n: u32,
+    rng: u32,
+}
+
+impl Signal {
+    fn new() -> Self {
+        Signal {
+            n: 0,
+            rng: 0x1234_5678,
+        }
+    }
+    fn next(&mut self) -> f32 {
+        self.rng ^= self.rng << 13;
+        self.rng ^= self.rng >> 17;
+        self.rng ^= self.rng << 5;
+        #[allow(clippy::cast_precision_loss)]
+        let noise = (self.rng >> 8) as f32 / 16_777_216.0 - 0.5;
+        #[allow(clippy::cast_precision_loss)]
+        let t = self.n as f32 / FS;
+        self.n = self.n.wrapping_add(1);
+        let am = 1.0 + 0.5 * libm_sin(2.0 * core::f32::consts::PI * 87.0 * t);
+        0.3 * noise + 0.2 * am * libm_sin(2.0 * core::f32::consts::PI * 7_000.0 * t)
+    }
+    fn next_i16(&mut self, counts_per_g: f32) -> i16 {
+        let v = (self.next() * counts_per_g).clamp(-32767.0, 32767.0);
+        #[allow(clippy::cast_possible_truncation)]
+        let c = v as i16;
+        c
+    }
+}
+
+fn libm_sin(x: f32) -> f32 {
+    // Range-reduced Taylor series; accuracy is irrelevant for a load signal.
+    let tau = 2.0 * core::f32::consts::PI;
+    #[allow(clippy::cast_possible_truncation, clippy::cast_precision_loss)]
+    let k = (x / tau) as i32 as f32;
+    let mut r = x - k * tau;
+    if r > core::f32::consts::PI {
+        r -= tau;
+    }
+    let r2 = r * r;
+    r * (1.0 - r2 / 6.0 * (1.0 - r2 / 20.0 * (1.0 - r2 / 42.0 * (1.0 - r2 / 72.0))))
+}
+
+const BLOCKS: usize = 40;
+
+fn fill(buf: &mut [f32], sig: &mut Signal) {
+    buf.iter_mut().for_each(|v| *v = sig.next());
+}
+
+fn bench_front_end_stages(m: &Meter) {
+    let mut sig = Signal::new();
+    let mut blk = [0f32; ADC_BLOCK];
+    let samples = (BLOCKS * ADC_BLOCK) as f64;
+
+    let sos = butter_bandpass(5_000.0, 10_000.0, FS, 8).unwrap_or_default();
+    let mut bp = BiquadCascade::new(sos);
+    let mut total = 0.0;
+    for _ in 0..BLOCKS {
+        fill(&mut blk, &mut sig);
+        total += m.instr(&mut || bp.process(black_box(&mut blk)));
+    }
+    black_box(&blk);
+    report(
+        "bandpass8",
+        total / samples,
+        "instr/sample",
+        "band-pass, 8 poles (4 sections), blocks of 256",
+    );
+
+    let mut bp = BiquadCascade::new(sos);
+    let mut total = 0.0;
+    for _ in 0..BLOCKS {
+        fill(&mut blk, &mut sig);
+        total += m.instr(&mut || bp.process_map(black_box(&mut blk), |v| v * v));
+    }
+    black_box(&blk);
+    report(
+        "bandpass8_square",
+        total / samples,
+        "instr/sample",
+        "band-pass 8 poles with the square rectifier fused (as the front end runs it)",
+    );
+
+    for (key, r) in [
+        ("rectify_square", Rectifier::Square),
+        ("rectify_abs", Rectifier::Abs),
+    ] {
+        let mut total = 0.0;
+        for _ in 0..BLOCKS {
+            fill(&mut blk, &mut sig);
+            total += m.instr(&mut || r.apply_block(black_box(&mut blk)));
+        }
+        black_box(&blk);
+        report(
+            key,
+            total / samples,
+            "instr/sample",
+            "rectifier alone, blocks of 256",
+        );
+    }
+
+    let mut acc = dsp_core::overall::OverallAcc::new();
+    let mut total = 0.0;
+    for _ in 0..BLOCKS {
+        fill(&mut blk, &mut sig);
+        total += m.instr(&mut || acc.add_block(black_box(&mut blk)));
+    }
+    black_box(acc.snapshot());
+    report(
+        "overall_stats",
+        total / samples,
+        "instr/sample",
+        "overall indicators (mean, RMS, peak, crest, kurtosis sums), blocks of 256",
+    );
+
+    if let Ok(mut dec) = Decimator::new(8) {
+        let mut total = 0.0;
+        let mut sink = 0f32;
+        for _ in 0..BLOCKS {
+            fill(&mut blk, &mut sig);
+            total += m.instr(&mut || dec.process(black_box(&blk), |y| sink += y));
+        }
+        black_box(sink);
+        let taps: usize = dec.stages().map(|s| s.1).sum();
+        eprintln!(
+            "INFO|decimator stages (factor, taps): {:?} total taps {}",
+            Stages(&dec),
+            taps
+        );
+        report(
+            "decimate8",
+            total / samples,
+            "instr/sample",
+            "decimator by 8 (>= 60 dB alias rejection), per input sample",
+        );
+    }
+
+    for (key, vel, what) in [
+        ("frontend_envelope", false, "front end as run: i16 blocks of 256, band-pass+square+decimate 8 + overall stats, velocity off"),
+        ("frontend_firmware", true, "front end as the firmware runs it (default config incl. velocity RMS path)"),
+    ] {
+        let mut cfg = FrontEndConfig::default();
+        cfg.velocity.enabled = vel;
+        let Ok(mut fe) = FrontEnd::new(&cfg) else {
+            report(key, -1.0, "error", "front end refused");
+            continue;
+        };
+        let mut iblk = [0i16; ADC_BLOCK];
+        let mut total = 0.0;
+        let mut sink = 0f32;
+        for _ in 0..BLOCKS {
+            iblk.iter_mut().for_each(|c| *c = sig.next_i16(2048.0));
+            total += m.instr(&mut || fe.push_i16(black_box(&iblk), |y| sink += y));
+        }
+        black_box(sink);
+        report(key, total / samples, "instr/sample", what);
+    }
+}
+
+struct Stages<'a>(&'a Decimator);
+impl core::fmt::Debug for Stages<'_> {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        f.debug_list().entries(self.0.stages()).finish()
+    }
+}
+
+fn bench_fft<const N: usize>(m: &Meter, key_fft: &str, key_mag: &str) {
+    let mut sig = Signal::new();
+    let mut buf = [0f32; N];
+    fill(&mut buf, &mut sig);
+    let mut mags = [0f32; N];
+    let mut t_fft = 0.0;
+    let mut t_mag = 0.0;
+    let mut t_mag_libm = 0.0;
+    let reps = 3;
+    for _ in 0..reps {
+        fill(&mut buf, &mut sig);
+        let mut ok = true;
+        t_fft += m.instr(&mut || ok &= real_fft(black_box(&mut buf)).is_ok());
+        if !ok {
+            report(key_fft, -1.0, "error", "unsupported size");
+            return;
+        }
+        // Magnitudes of the N/2 bins with the spectrum stage's square root
+        // (within 1 ulp of libm), and with libm for comparison.
+        t_mag += m.instr(&mut || {
+            let bins = buf.chunks_exact(2);
+            for (o, c) in mags.iter_mut().zip(bins) {
+                if let [re, im] = c {
+                    *o = dsp_core::num::sqrtf_fast(re * re + im * im);
+                }
+            }
+        });
+        black_box(&mags);
+        t_mag_libm += m.instr(&mut || {
+            let bins = buf.chunks_exact(2);
+            for (o, c) in mags.iter_mut().zip(bins) {
+                if let [re, im] = c {
+                    *o = dsp_core::num::sqrtf(re * re + im * im);
+                }
+            }
+        });
+        black_box(&mags);
+    }
+    report(
+        key_fft,
+        t_fft / f64::from(reps),
+        "instr/transform",
+        "dsp_core::spectrum::real_fft (microfft)",
+    );
+    #[allow(clippy::cast_precision_loss)]
+    let bins = (N / 2) as f64;
+    report(
+        key_mag,
+        t_mag / f64::from(reps) / bins,
+        "instr/bin",
+        "magnitude sqrt(re^2+im^2), dsp_core::num::sqrtf_fast",
+    );
+    eprintln!(
+        "INFO|{} with libm sqrtf: {:.2} instr/bin",
+        key_mag,
+        t_mag_libm / f64::from(reps) / bins
+    );
+}
+
+fn bench_order_spectrum(m: &Meter) {
+    let Ok(mut sp) = OrderSpectrum4096::new(SpectrumConfig::with_samples_per_rev(64)) else {
+        return;
+    };
+    let mut sig = Signal::new();
+    let mut t_buf = 0.0;
+    let mut t_seg = 0.0;
+    let segs = 2;
+    for _ in 0..segs {
+        for _ in 0..4095 {
+            let x = sig.next();
+            t_buf += m.instr(&mut || {
+                black_box(sp.push(black_box(x)));
+            });
+        }
+        let x = sig.next();
+        t_seg += m.instr(&mut || {
+            black_box(sp.push(black_box(x)));
+        });
+    }
+    report(
+        "order_spectrum_4096_segment",
+        t_seg / f64::from(segs),
+        "instr/segment",
+        "OrderSpectrum<4096> push completing a segment: mean, Hann, rfft, power average (sqrt)",
+    );
+    report(
+        "order_spectrum_4096_buffer",
+        t_buf / f64::from(segs) / 4095.0,
+        "instr/sample",
+        "OrderSpectrum<4096> push of a buffered sample (incl. call)",
+    );
+}
+
+fn bench_order_tracker(m: &Meter) {
+    let mut cfg = OrderTrackConfig::default();
+    cfg.samples_per_rev = 64;
+    cfg.decimation = 8;
+    cfg.input_rate_hz = FS / 8.0;
+    cfg.delay_input_samples = 40.0;
+    cfg.min_rpm = 1200.0;
+    let Ok(mut ot) = OrderTracker::<NODE_RING>::new(&cfg) else {
+        report("order_track", -1.0, "error", "tracker refused");
+        return;
+    };
+    // 1500 rpm: one revolution = 2048 input samples = 256 envelope samples.
+    let rev = 2048.0f64;
+    let mut sig = Signal::new();
+    let mut outs = 0u32;
+    let mut total = 0.0;
+    let mut next_mark = 0u32;
+    let n_env = 6400u32; // one second of envelope
+    for j in 0..n_env {
+        let t_in = f64::from(j + 1) * 8.0 - 1.0;
+        while f64::from(next_mark) * rev + 100.0 <= t_in {
+            let mk = RevMark {
+                time_samples: f64::from(next_mark) * rev + 100.0,
+                index: next_mark,
+                segment_start: next_mark == 0,
+                bridged: false,
+            };
+            total += m.instr(&mut || ot.push_mark(mk, |_| outs += 1));
+            next_mark += 1;
+        }
+        let x = sig.next().abs();
+        total += m.instr(&mut || ot.push_sample(black_box(x), |_| outs += 1));
+    }
+    report(
+        "order_track",
+        total / f64::from(outs.max(1)),
+        "instr/output",
+        "OrderTracker (Catmull-Rom, 64/rev) per angle-domain output sample, marks included",
+    );
+    eprintln!(
+        "INFO|order tracker: {} outputs from {} envelope samples",
+        outs, n_env
+    );
+}
+
+fn geometry(rollers: u16, d: f32, pd: f32, angle: f32, ratio: f32) -> Option<BearingOrders> {
+    let mult = BearingGeometry {
+        rollers,
+        roller_diameter: d,
+        pitch_diameter: pd,
+        contact_angle_deg: angle,
+    }
+    .multiples()
+    .ok()?;
+    Some(mult.orders(ShaftRatio::new(ratio).ok()?))
+}
+
+fn bench_defects(m: &Meter) {
+    // Synthetic 2048-bin order spectrum, 1/64 order per bin (64 samples/rev,
+    // 4096 points): noisy floor plus a few peaks.
+    let mut amps = [0f32; 2048];
+    let mut sig = Signal::new();
+    for (k, a) in amps.iter_mut().enumerate() {
+        *a = 1e-3 * (1.0 + sig.next().abs());
+        if k % 229 == 0 {
+            *a += 0.05;
+        }
+    }
+    let opb = 1.0 / 64.0;
+    let (Ok(view), Ok(search)) = (
+        SpectrumView::new(&amps, opb, Window::Hann),
+        DefectSearch::new(DefectSearchConfig::default()),
+    ) else {
+        return;
+    };
+    // Three fictional bearings on shafts at 1x, 0.6x and 0.25x the tach.
+    let bearings = [
+        geometry(9, 7.9, 39.0, 0.0, 1.0),
+        geometry(13, 9.5, 52.0, 0.0, 0.6),
+        geometry(16, 12.0, 80.0, 15.0, 0.25),
+    ];
+    let mut total = 0.0;
+    let mut found = 0usize;
+    for o in bearings.iter().flatten() {
+        total += m.instr(&mut || {
+            if let Ok(d) = search.search(black_box(&view), o) {
+                found += d.detected().count();
+            }
+        });
+    }
+    black_box(found);
+    report(
+        "defects_3_bearings",
+        total,
+        "instr/report",
+        "DefectSearch::search for 3 bearings (4 kinds x 5 harmonics each), 2048 bins",
+    );
+}
+
+fn point() -> PointConfig {
+    let mut p = PointConfig::default();
+    p.speed = SpeedInput::Constant { rpm: 1500.0 };
+    let mut push = |name: &str, rollers, d, pd| {
+        let _ = p.bearings.push(Bearing {
+            name: dsp_core::config::name_from(name),
+            shaft: 0,
+            kinematics: BearingKinematics::Geometry {
+                rollers,
+                roller_diameter: d,
+                pitch_diameter: pd,
+                contact_angle_deg: 0.0,
+            },
+        });
+    };
+    push("drive-end", 9, 7.9, 39.0);
+    push("fan-end", 8, 6.7, 31.0);
+    push("idler", 12, 9.5, 52.0);
+    p
+}
+
+fn bench_pipeline(m: &Meter) {
+    let point = point();
+    let Ok(mut p) = NodePipeline::new(&point) else {
+        report("pipeline", -1.0, "error", "pipeline refused");
+        return;
+    };
+    let mut sig = Signal::new();
+    let mut blk = [0i16; ADC_BLOCK];
+    let mut total = 0.0;
+    let mut blocks = 0u32;
+    let counts_per_g = 32_768.0 / 50.0;
+    while !p.complete() && blocks < 4000 {
+        blk.iter_mut().for_each(|c| *c = sig.next_i16(counts_per_g));
+        total += m.instr(&mut || p.push_i16(black_box(&blk)));
+        blocks += 1;
+    }
+    let mut segs = 0u32;
+    let t_fin = m.instr(&mut || {
+        let r = p.finish();
+        segs = r.segments;
+    });
+    #[allow(clippy::cast_precision_loss)]
+    let samples = f64::from(blocks) * ADC_BLOCK as f64;
+    report(
+        "pipeline_per_sample",
+        total / samples,
+        "instr/sample",
+        "NodePipeline (4096 points, 3 bearings, constant 1500 rpm) push_i16, per input sample",
+    );
+    report(
+        "pipeline_finish",
+        t_fin,
+        "instr/report",
+        "NodePipeline::finish (defect search, overall, report)",
+    );
+    report(
+        "pipeline_record",
+        total + t_fin,
+        "instr/record",
+        "whole record incl. finish",
+    );
+    eprintln!(
+        "INFO|pipeline: decimation {}, {} samples ({:.2} s), {} segments",
+        p.decimation(),
+        samples,
+        samples / f64::from(FS),
+        segs
+    );
+}
+
+fn memory() {
+    use core::mem::size_of;
+    let r = |k: &str, n: usize, what: &str| {
+        #[allow(clippy::cast_precision_loss)]
+        report(k, n as f64, "bytes", what);
+    };
+    r(
+        "mem_node_pipeline",
+        size_of::<NodePipeline>(),
+        "NodePipeline = Pipeline<4096, 2048, 2048>",
+    );
+    r("mem_frontend", size_of::<FrontEnd>(), "FrontEnd");
+    r("mem_bandpass", size_of::<BiquadCascade>(), "BiquadCascade");
+    r("mem_decimator", size_of::<Decimator>(), "Decimator");
+    r(
+        "mem_order_tracker",
+        size_of::<OrderTracker<NODE_RING>>(),
+        "OrderTracker<2048>",
+    );
+    r(
+        "mem_order_spectrum",
+        size_of::<OrderSpectrum4096>(),
+        "OrderSpectrum<4096>",
+    );
+    r(
+        "mem_tach",
+        size_of::<dsp_core::tach::TachTracker>(),
+        "TachTracker",
+    );
+    r(
+        "mem_defect_search",
+        size_of::<DefectSearch>(),
+        "DefectSearch",
+    );
+    r(
+        "mem_point",
+        size_of::<PointConfig>(),
+        "PointConfig (copy held by the pipeline)",
+    );
+}
+
+#[entry]
+fn main() -> ! {
+    let m = Meter::new();
+    eprintln!("INFO|empty interval {} ticks", m.empty);
+    memory();
+    bench_front_end_stages(&m);
+    bench_fft::<1024>(&m, "rfft_1024", "magnitude_1024");
+    bench_fft::<4096>(&m, "rfft_4096", "magnitude_4096");
+    bench_order_spectrum(&m);
+    bench_order_tracker(&m);
+    bench_defects(&m);
+    bench_pipeline(&m);
+    eprintln!("INFO|done");
+    process::exit(0)
+}
+
+#[exception]
+#[allow(unsafe_code)]
+unsafe fn HardFault(_ef: &ExceptionFrame) -> ! {
+    eprintln!("HardFault");
+    process::exit(3)
+}
