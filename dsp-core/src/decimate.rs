@@ -348,7 +348,7 @@ impl Decimator {
             };
             offset = end;
             hist += taps - 1 + cap;
-            cap = cap.div_ceil(usize::from(m));
+            cap = cap.div_ceil(usize::from(m).max(1));
             rate_in = rate_out;
         }
         Ok(d)
@@ -454,7 +454,8 @@ fn halfband_outputs(h: &[f32], t: &[f32], first: usize, dst: &mut [f32]) -> usiz
             match t.len() {
                 $($n => halfband_fixed::<$n>(h, t, first, dst),)*
                 _ => {
-                    let windows = h.windows(t.len()).skip(first).step_by(2).zip(dst.iter_mut());
+                    // `max(1)`: an empty kernel gives no outputs instead of a panic path.
+                    let windows = h.windows(t.len().max(1)).skip(first).step_by(2).zip(dst.iter_mut());
                     let mut count = 0;
                     for (w, d) in windows {
                         *d = fir_output(w, t, true);
@@ -523,7 +524,11 @@ fn run_stage(
     if st.halfband {
         count = halfband_outputs(h, t, first, dst);
     } else {
-        let windows = h.windows(n).skip(first).step_by(m).zip(dst.iter_mut());
+        let windows = h
+            .windows(n.max(1))
+            .skip(first)
+            .step_by(m.max(1))
+            .zip(dst.iter_mut());
         for (w, d) in windows {
             *d = fir_output(w, t, false);
             count += 1;

@@ -155,7 +155,9 @@ impl OverallAcc {
             let room = usize::try_from(FLUSH_EVERY.saturating_sub(self.pending))
                 .unwrap_or(usize::MAX)
                 .max(1);
-            let (run, tail) = rest.split_at_mut(room.min(rest.len()));
+            let Some((run, tail)) = rest.split_at_mut_checked(room.min(rest.len())) else {
+                break;
+            };
             let [mut p0, mut p1, mut p2, mut p3] = self.p;
             let (mut lo, mut hi, mut last) = (self.min, self.max, self.last);
             let mut bad = 0u32;

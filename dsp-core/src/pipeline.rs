@@ -453,8 +453,13 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
         if let (Some(v), true) = (&view, analysable) {
             // Peaks explained by a stronger family of another bearing on
             // this point do not count for the weaker one.
+            // Filled by push, not collect: heapless' collect panics on overflow
+            // (both lists hold at most MAX_BEARINGS).
             let mut diagnoses: Vec<&mut Option<crate::defects::BearingDiagnosis>, MAX_BEARINGS> =
-                bearings.iter_mut().map(|b| &mut b.diagnosis).collect();
+                Vec::new();
+            for b in bearings.iter_mut() {
+                let _ = diagnoses.push(&mut b.diagnosis);
+            }
             self.search
                 .attribute_bearings(v, &self.orders, &mut diagnoses);
         }

@@ -132,6 +132,20 @@ fn tach() {
     }
 }
 
+/// The band survey (automatic envelope band) on arbitrary samples.
+fn survey() {
+    use dsp_core::survey::BandSurvey;
+    if let Ok(mut s) = BandSurvey::new(black_box(51_200.0)) {
+        let counts = [0i16; 64];
+        let gs = [0f32; 64];
+        s.push_i16(black_box(&counts[..]));
+        s.push_f32(black_box(&gs[..]));
+        black_box(s.band_count());
+        black_box(s.samples());
+        let _ = black_box(s.finish());
+    }
+}
+
 /// Downlink authentication on arbitrary radio bytes.
 fn downlink() {
     use firmware::downlink_auth::{sign, verify, DownlinkKey};
@@ -164,6 +178,7 @@ fn main() -> ! {
         black_box(NodePipeline::new(&opaque_point()).is_ok());
         frames();
         tach();
+        survey();
         downlink();
     }
 }
