@@ -108,6 +108,35 @@ pub struct Bearing {
     pub kinematics: BearingKinematics,
 }
 
+impl Bearing {
+    /// The bearing's defect multiples of its own shaft speed (from the
+    /// geometry by the kinematic formulas, or as given).
+    pub fn multiples(&self) -> Result<crate::kinematics::DefectMultiples, ConfigError> {
+        match self.kinematics {
+            BearingKinematics::Geometry {
+                rollers,
+                roller_diameter,
+                pitch_diameter,
+                contact_angle_deg,
+            } => crate::kinematics::BearingGeometry {
+                rollers,
+                roller_diameter,
+                pitch_diameter,
+                contact_angle_deg,
+            }
+            .multiples()
+            .map_err(|_| ConfigError::BearingGeometry),
+            BearingKinematics::Multiples {
+                bpfo_x,
+                bpfi_x,
+                ftf_x,
+                bsf_x,
+            } => crate::kinematics::DefectMultiples::new(bpfo_x, bpfi_x, ftf_x, bsf_x)
+                .map_err(|_| ConfigError::BearingMultiples),
+        }
+    }
+}
+
 /// A measuring point: sensor, band, speed source, record length, and the
 /// bearings to watch.
 ///

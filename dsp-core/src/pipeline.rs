@@ -30,10 +30,10 @@ use core::fmt;
 
 use heapless::Vec;
 
-use crate::config::{BearingKinematics, ConfigError, PointConfig, SpeedInput, MAX_BEARINGS};
+use crate::config::{ConfigError, PointConfig, SpeedInput, MAX_BEARINGS};
 use crate::defects::DefectSearch;
 use crate::frontend::{FrontEnd, FrontEndConfig};
-use crate::kinematics::{BearingGeometry, BearingOrders, DefectMultiples, ShaftRatio};
+use crate::kinematics::{BearingOrders, ShaftRatio};
 use crate::num::usize_to_f32;
 use crate::order_track::{decimation_for, OrderFlags, OrderTrackConfig, OrderTracker};
 use crate::report::{BearingReport, QualityFlags, Report};
@@ -211,28 +211,7 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
         let max_search_order = 0.25 * s_f;
         let mut orders = Vec::new();
         for b in &point.bearings {
-            let multiples = match b.kinematics {
-                BearingKinematics::Geometry {
-                    rollers,
-                    roller_diameter,
-                    pitch_diameter,
-                    contact_angle_deg,
-                } => BearingGeometry {
-                    rollers,
-                    roller_diameter,
-                    pitch_diameter,
-                    contact_angle_deg,
-                }
-                .multiples()
-                .map_err(|_| ConfigError::BearingGeometry)?,
-                BearingKinematics::Multiples {
-                    bpfo_x,
-                    bpfi_x,
-                    ftf_x,
-                    bsf_x,
-                } => DefectMultiples::new(bpfo_x, bpfi_x, ftf_x, bsf_x)
-                    .map_err(|_| ConfigError::BearingMultiples)?,
-            };
+            let multiples = b.multiples()?;
             let ratio = point
                 .shafts
                 .get(usize::from(b.shaft))

@@ -25,7 +25,7 @@ use std::path::{Path, PathBuf};
 
 use clap::Args;
 use dsp_core::config::{name_from, Bearing, BearingKinematics, PointConfig, SpeedInput};
-use dsp_core::kinematics::{BearingGeometry, DefectKind, DefectMultiples, ShaftRatio};
+use dsp_core::kinematics::{DefectKind, ShaftRatio};
 use dsp_core::survey::{BandSurvey, SurveyConfig, SurveyError, SurveyResult};
 use serde_json::{json, Value};
 
@@ -323,27 +323,7 @@ pub fn survey_min_bandwidth_hz(point: &PointConfig) -> f32 {
     };
     let mut top = 0.0f32;
     for b in &point.bearings {
-        let m = match b.kinematics {
-            BearingKinematics::Geometry {
-                rollers,
-                roller_diameter,
-                pitch_diameter,
-                contact_angle_deg,
-            } => BearingGeometry {
-                rollers,
-                roller_diameter,
-                pitch_diameter,
-                contact_angle_deg,
-            }
-            .multiples()
-            .ok(),
-            BearingKinematics::Multiples {
-                bpfo_x,
-                bpfi_x,
-                ftf_x,
-                bsf_x,
-            } => DefectMultiples::new(bpfo_x, bpfi_x, ftf_x, bsf_x).ok(),
-        };
+        let m = b.multiples().ok();
         let ratio = point
             .shafts
             .get(usize::from(b.shaft))
