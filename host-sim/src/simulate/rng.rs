@@ -73,7 +73,7 @@ mod tests {
     fn xoshiro_matches_reference_output() {
         // Reference: xoshiro256starstar.c (prng.di.unimi.it) with state
         // s = {1, 2, 3, 4} gives 11520, 0, 1509978240, 1215971899390074240
-        // (computed with a Python transcription of that C code, from memory of it).
+        // (computed with a Python port of that C code, written from memory of it).
         let mut r = Rng {
             s: [1, 2, 3, 4],
             spare: None,
