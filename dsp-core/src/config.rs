@@ -19,6 +19,8 @@ pub use crate::velocity::{MachineGroup, Support};
 pub const MAX_BEARINGS: usize = 4;
 /// Most shafts one measuring point describes (the tach shaft included).
 pub const MAX_SHAFTS: usize = 4;
+/// Most gear meshes one measuring point watches.
+pub const MAX_MESHES: usize = 4;
 /// Longest shaft or bearing name, in bytes.
 pub const NAME_LEN: usize = 16;
 
@@ -108,6 +110,19 @@ pub struct Bearing {
     pub kinematics: BearingKinematics,
 }
 
+/// A gear mesh watched as an optional line at its mesh order (teeth of a
+/// gear times the order of the shaft that carries it).
+#[derive(Debug, Clone, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Mesh {
+    /// Name, unique among the meshes.
+    pub name: Name,
+    /// Index into [`PointConfig::shafts`] of the shaft carrying the gear.
+    pub shaft: u8,
+    /// Teeth of that gear.
+    pub teeth: u16,
+}
+
 impl Bearing {
     /// The bearing's defect multiples of its own shaft speed (from the
     /// geometry by the kinematic formulas, or as given).
@@ -179,6 +194,8 @@ pub struct PointConfig {
     pub shafts: Vec<Shaft, MAX_SHAFTS>,
     /// Watched bearings.
     pub bearings: Vec<Bearing, MAX_BEARINGS>,
+    /// Gear meshes watched as optional lines (reported, never "detected").
+    pub meshes: Vec<Mesh, MAX_MESHES>,
     /// Defect search thresholds.
     pub search: DefectSearchConfig,
     /// ISO 20816-3 machine group for the velocity zone.
@@ -214,6 +231,7 @@ impl Default for PointConfig {
             window: Window::Hann,
             shafts,
             bearings: Vec::new(),
+            meshes: Vec::new(),
             search: DefectSearchConfig::default(),
             machine_group: MachineGroup::Medium,
             support: Support::Rigid,
@@ -278,6 +296,9 @@ pub enum ConfigError {
     /// The highest watched order does not fit the spectrum: raise
     /// `samples_per_rev`.
     OrderRange,
+    /// A gear mesh with no teeth, on a shaft that does not exist, or a
+    /// duplicate mesh name.
+    Mesh,
 }
 
 impl fmt::Display for ConfigError {
@@ -311,6 +332,9 @@ impl fmt::Display for ConfigError {
             ConfigError::BearingMultiples => "defect multiples must be finite and positive",
             ConfigError::Search => {
                 "defect search thresholds out of range (harmonics 1..=10, slip in (0, 0.2], thresholds > 0 dB)"
+            }
+            ConfigError::Mesh => {
+                "gear mesh needs teeth >= 1, an existing shaft and a unique name"
             }
             ConfigError::OrderRange => {
                 "highest watched order exceeds the spectrum; raise samples_per_rev"
@@ -437,6 +461,14 @@ impl PointConfig {
                     }
                 }
             }
+        }
+        if has_duplicates(self.meshes.iter().map(|m| m.name.as_str()))
+            || self
+                .meshes
+                .iter()
+                .any(|m| m.teeth == 0 || usize::from(m.shaft) >= self.shafts.len())
+        {
+            return Err(ConfigError::Mesh);
         }
         self.search.validate().map_err(|_| ConfigError::Search)?;
         Ok(())

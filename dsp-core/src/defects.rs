@@ -557,6 +557,42 @@ fn not_searched(h: u8, expected: f32) -> HarmonicResult {
     }
 }
 
+/// One watched line that is not a bearing defect (a gear-mesh order, for
+/// example) measured in a spectrum: the largest local maximum within the
+/// slip window of its order and its prominence over the local median floor,
+/// found as for a defect harmonic (no shaft masking, no window-kernel
+/// correction: `amplitude` is the bin value).
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct LineMeasurement {
+    /// Expected order of the line.
+    pub order: f32,
+    /// The window and its floor band fit inside the spectrum.
+    pub searched: bool,
+    /// Interpolated order of the peak (0 when none).
+    pub found_order: f32,
+    /// Peak amplitude, spectrum units (0 when none).
+    pub amplitude: f32,
+    /// Median floor around the window (0 when not searched).
+    pub floor: f32,
+    /// `20 log10(amplitude / floor)`; -200 dB when nothing was found.
+    pub prominence_db: f32,
+}
+
+impl LineMeasurement {
+    /// A line at `order` that was not searched.
+    pub const fn not_searched(order: f32) -> Self {
+        LineMeasurement {
+            order,
+            searched: false,
+            found_order: 0.0,
+            amplitude: 0.0,
+            floor: 0.0,
+            prominence_db: -200.0,
+        }
+    }
+}
+
 impl DefectSearch {
     /// Validates the configuration.
     pub fn new(config: DefectSearchConfig) -> Result<Self, DefectConfigError> {
@@ -575,6 +611,54 @@ impl DefectSearch {
             expected,
             half: (self.config.slip_tolerance * expected).max(self.config.min_window_bins * opb),
         }
+    }
+
+    /// Measures one watched line at `order` (see [`LineMeasurement`]).
+    ///
+    /// ```
+    /// use dsp_core::defects::{DefectSearch, DefectSearchConfig};
+    /// use dsp_core::spectrum::{SpectrumView, Window};
+    /// let mut amps = [0.01f32; 1024];
+    /// amps[320] = 0.5; // a line at order 5.0 with 64 bins per order
+    /// let view = SpectrumView::new(&amps, 1.0 / 64.0, Window::Hann).unwrap();
+    /// let m = DefectSearch::new(DefectSearchConfig::default()).unwrap().measure_line(&view, 5.0);
+    /// assert!(m.searched && (m.found_order - 5.0).abs() < 0.02);
+    /// assert!((m.prominence_db - 33.98).abs() < 0.1); // 20 log10(0.5 / 0.01)
+    /// ```
+    pub fn measure_line(&self, spectrum: &SpectrumView<'_>, order: f32) -> LineMeasurement {
+        let opb = spectrum.orders_per_bin();
+        let ctx = Ctx {
+            amps: spectrum.amplitudes(),
+            opb,
+            lobe_bins: spectrum.window().main_lobe_half_width_bins(),
+            window: spectrum.window(),
+            shaft_order: 1.0,
+            ftf_order: 1.0,
+            mask: false,
+        };
+        let mut m = LineMeasurement::not_searched(order);
+        if !(order.is_finite() && order > 0.0) {
+            return m;
+        }
+        let w = self.wide(order, 1, opb);
+        if !ctx.fits(w) {
+            return m;
+        }
+        let Some(floor) = ctx.floor(w, self.config.floor_band_orders) else {
+            return m;
+        };
+        m.searched = true;
+        m.floor = floor;
+        if let Some(p) = ctx.peak(w.expected - w.half, w.expected + w.half) {
+            m.found_order = p.order;
+            m.amplitude = p.amplitude;
+            m.prominence_db = if floor > 0.0 {
+                amplitude_db(p.amplitude / floor)
+            } else {
+                200.0
+            };
+        }
+        m
     }
 
     /// Searches all four defect kinds of one bearing in a spectrum.

@@ -30,13 +30,13 @@ use core::fmt;
 
 use heapless::Vec;
 
-use crate::config::{ConfigError, PointConfig, SpeedInput, MAX_BEARINGS};
+use crate::config::{ConfigError, PointConfig, SpeedInput, MAX_BEARINGS, MAX_MESHES};
 use crate::defects::DefectSearch;
 use crate::frontend::{FrontEnd, FrontEndConfig};
 use crate::kinematics::{BearingOrders, ShaftRatio};
 use crate::num::usize_to_f32;
 use crate::order_track::{decimation_for, OrderFlags, OrderTrackConfig, OrderTracker};
-use crate::report::{BearingReport, QualityFlags, Report};
+use crate::report::{BearingReport, LineReport, QualityFlags, Report};
 use crate::spectrum::{OrderSpectrum, SpectrumConfig, SpectrumView};
 use crate::tach::{SpeedSource, TachConfig, TachFlags, TachTracker};
 use crate::velocity::VelocityConfig;
@@ -124,6 +124,8 @@ pub struct Pipeline<const N: usize, const H: usize, const RING: usize> {
     spectrum: OrderSpectrum<N, H>,
     search: DefectSearch,
     orders: Vec<BearingOrders, MAX_BEARINGS>,
+    /// Gear-mesh orders of the tach shaft, in point order.
+    mesh_orders: Vec<f32, MAX_MESHES>,
     samples: u64,
     segments_wanted: u32,
     max_search_order: f32,
@@ -227,6 +229,16 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
                 .push(o)
                 .map_err(|_| PipelineError::Config(ConfigError::BearingShaft))?;
         }
+        let mut mesh_orders = Vec::new();
+        for m in &point.meshes {
+            let ratio = point
+                .shafts
+                .get(usize::from(m.shaft))
+                .map(|sh| sh.ratio)
+                .ok_or(ConfigError::Mesh)?;
+            // Same capacity as the point's mesh list.
+            let _ = mesh_orders.push(f32::from(m.teeth) * ratio);
+        }
 
         Ok(Pipeline {
             point: point.clone(),
@@ -236,6 +248,7 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
             spectrum,
             search,
             orders,
+            mesh_orders,
             samples: 0,
             segments_wanted,
             max_search_order,
@@ -443,6 +456,19 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
                 .attribute_bearings(v, &self.orders, &mut diagnoses);
         }
 
+        let mut lines = Vec::new();
+        for (m, &order) in self.point.meshes.iter().zip(self.mesh_orders.iter()) {
+            let measurement = match (&view, analysable) {
+                (Some(v), true) => self.search.measure_line(v, order),
+                _ => crate::defects::LineMeasurement::not_searched(order),
+            };
+            // Same capacity as the point's mesh list.
+            let _ = lines.push(LineReport {
+                name: m.name.clone(),
+                measurement,
+            });
+        }
+
         let revs_per_segment = N / usize::from(self.point.samples_per_rev).max(1);
         Report {
             flags,
@@ -458,6 +484,7 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
             orders_per_bin: opb,
             max_search_order: self.max_search_order,
             bearings,
+            lines,
         }
     }
 }
@@ -506,6 +533,48 @@ fn smooth_at_most(d: u16) -> u16 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn gear_mesh_lines_are_measured_and_out_of_range_ones_marked() {
+        use crate::config::{name_from, Mesh};
+        let mut point = PointConfig {
+            speed: SpeedInput::Constant { rpm: 1500.0 },
+            revolutions: 64,
+            ..PointConfig::default()
+        };
+        for (name, teeth) in [("mesh7", 7u16), ("mesh40", 40)] {
+            let _ = point.meshes.push(Mesh {
+                name: name_from(name),
+                shaft: 0,
+                teeth,
+            });
+        }
+        let mut p = Pipeline::<4096, 2048, 2048>::new(&point).unwrap();
+        // A 7 kHz resonance amplitude-modulated at 7 x 25 Hz: its envelope
+        // has a line at order 7 (common practice: mesh modulation).
+        let fs = 51_200.0f64;
+        let mut n = 0u64;
+        let mut block = [0f32; 256];
+        while !p.complete() {
+            for x in block.iter_mut() {
+                #[allow(clippy::cast_precision_loss)]
+                let t = n as f64 / fs;
+                let env = 1.0 + 0.5 * libm::cos(2.0 * core::f64::consts::PI * 175.0 * t);
+                *x = crate::num::f64_to_f32(
+                    env * libm::sin(2.0 * core::f64::consts::PI * 7000.0 * t),
+                );
+                n += 1;
+            }
+            p.push_f32(&block);
+        }
+        let r = p.finish();
+        let near = &r.lines[0].measurement;
+        assert!(near.searched, "{near:?}");
+        assert!((near.found_order - 7.0).abs() < 0.05, "{near:?}");
+        assert!(near.prominence_db > 20.0, "{near:?}");
+        // Order 40 lies beyond the search range (S/4 = 16 orders).
+        assert!(!r.lines[1].measurement.searched);
+    }
 
     #[test]
     fn smooth_factors() {

@@ -5,8 +5,8 @@ use core::fmt;
 
 use heapless::Vec;
 
-use crate::config::{Name, MAX_BEARINGS};
-use crate::defects::BearingDiagnosis;
+use crate::config::{Name, MAX_BEARINGS, MAX_MESHES};
+use crate::defects::{BearingDiagnosis, LineMeasurement};
 use crate::kinematics::{BearingOrders, DefectKind};
 use crate::overall::Overall;
 use crate::tach::SpeedSummary;
@@ -133,6 +133,17 @@ impl BearingReport {
     }
 }
 
+/// One watched gear-mesh line in a report.
+#[derive(Clone, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct LineReport {
+    /// Mesh name from the measuring point.
+    pub name: Name,
+    /// The measurement (`searched` false when the record was not analysable
+    /// or the order lies beyond the search range).
+    pub measurement: LineMeasurement,
+}
+
 /// The diagnosis of one measurement.
 #[derive(Clone, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
@@ -161,6 +172,8 @@ pub struct Report {
     pub max_search_order: f32,
     /// Watched bearings in point order.
     pub bearings: Vec<BearingReport, MAX_BEARINGS>,
+    /// Watched gear-mesh lines in point order.
+    pub lines: Vec<LineReport, MAX_MESHES>,
 }
 
 impl Report {

@@ -8,8 +8,8 @@
 use std::path::Path;
 
 use dsp_core::config::{
-    name_from, Bearing, BearingKinematics, DefectSearchConfig, MachineGroup, PointConfig,
-    Rectifier, Shaft, SpeedInput, Support, Window, MAX_BEARINGS, MAX_SHAFTS, NAME_LEN,
+    name_from, Bearing, BearingKinematics, DefectSearchConfig, MachineGroup, Mesh, PointConfig,
+    Rectifier, Shaft, SpeedInput, Support, Window, MAX_BEARINGS, MAX_MESHES, MAX_SHAFTS, NAME_LEN,
 };
 use serde::Deserialize;
 
@@ -36,6 +36,16 @@ struct PointFile {
     shaft: Vec<ShaftEntry>,
     #[serde(default)]
     bearing: Vec<BearingEntry>,
+    #[serde(default)]
+    mesh: Vec<MeshEntry>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct MeshEntry {
+    name: String,
+    shaft: Option<String>,
+    teeth: u16,
 }
 
 #[derive(Debug, Default, Deserialize)]
@@ -248,6 +258,7 @@ pub fn parse(text: &str) -> Result<PointConfig, String> {
 
     shafts(&file.shaft, &mut p)?;
     bearings(&file.bearing, &mut p)?;
+    meshes(&file.mesh, &mut p)?;
 
     p.validate()
         .map_err(|e| format!("{e} ({})", config_key(e)))?;
@@ -408,6 +419,34 @@ fn bearings(entries: &[BearingEntry], p: &mut PointConfig) -> Result<(), String>
     Ok(())
 }
 
+fn meshes(entries: &[MeshEntry], p: &mut PointConfig) -> Result<(), String> {
+    if entries.len() > MAX_MESHES {
+        return Err(format!(
+            "mesh: {} meshes given, at most {MAX_MESHES} fit one measuring point",
+            entries.len()
+        ));
+    }
+    for e in entries {
+        check_name("mesh", &e.name)?;
+        let shaft = match &e.shaft {
+            None => 0,
+            Some(s) => p
+                .shafts
+                .iter()
+                .position(|x| x.name.as_str() == s)
+                .ok_or_else(|| format!("mesh `{}`.shaft: no shaft named `{s}`", e.name))?,
+        };
+        p.meshes
+            .push(Mesh {
+                name: name_from(&e.name),
+                shaft: u8::try_from(shaft).unwrap_or(u8::MAX),
+                teeth: e.teeth,
+            })
+            .map_err(|_| "mesh: capacity exceeded".to_string())?;
+    }
+    Ok(())
+}
+
 /// The point-file key a configuration error refers to.
 fn config_key(e: dsp_core::config::ConfigError) -> &'static str {
     use dsp_core::config::ConfigError as E;
@@ -430,6 +469,7 @@ fn config_key(e: dsp_core::config::ConfigError) -> &'static str {
         E::BearingMultiples => "bearing.*_x",
         E::Search => "search",
         E::OrderRange => "spectrum.samples_per_rev",
+        E::Mesh => "mesh",
         _ => "point",
     }
 }
@@ -443,6 +483,8 @@ mod tests {
         let text = include_str!("../examples/point.toml");
         let p = parse(text).unwrap();
         assert_eq!(p.bearings.len(), 3);
+        assert_eq!(p.meshes.len(), 2);
+        assert_eq!((p.meshes[1].shaft, p.meshes[1].teeth), (1, 23));
         assert_eq!(p.shafts.len(), 3);
         // intermediate shaft: 1 x 19/71 (tooth counts of the example)
         assert!((p.shafts[1].ratio - 19.0 / 71.0).abs() < 1e-6);
@@ -468,6 +510,8 @@ mod tests {
                 "either geometry",
             ),
             ("[envelope]\nband_hz = [nan, 4000.0]\n", "envelope.band_hz"),
+            ("[[mesh]]\nname = \"m\"\nteeth = 0\n", "mesh"),
+            ("[[mesh]]\nname = \"m\"\nshaft = \"x\"\nteeth = 9\n", "no shaft named"),
         ];
         for (text, key) in cases {
             let err = parse(text).unwrap_err();

@@ -143,6 +143,23 @@ pub fn to_json(report: &Report, file: Option<&str>) -> Value {
             "band_auto": false,
         },
         "bearings": bearings,
+        "lines": report
+            .lines
+            .iter()
+            .map(|l| {
+                let m = &l.measurement;
+                json!({
+                    "name": l.name.as_str(),
+                    "kind": "mesh",
+                    "order": finite(m.order),
+                    "searched": m.searched,
+                    "found_order": finite(m.found_order),
+                    "amplitude": finite(m.amplitude),
+                    "floor": finite(m.floor),
+                    "prominence_db": finite(m.prominence_db),
+                })
+            })
+            .collect::<Vec<_>>(),
     })
 }
 
@@ -213,6 +230,21 @@ pub fn to_table(report: &Report) -> String {
                 }
             );
         }
+    }
+    for l in &report.lines {
+        let m = &l.measurement;
+        let _ = writeln!(
+            out,
+            "{:<16} {:<5} {:>8.3} {:>9}  (gear mesh, watched line)",
+            l.name.as_str(),
+            "MESH",
+            m.order,
+            if m.searched {
+                format!("{:.1}", m.prominence_db)
+            } else {
+                "-".into()
+            },
+        );
     }
     out
 }
