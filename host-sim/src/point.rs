@@ -278,12 +278,7 @@ fn shafts(entries: &[ShaftEntry], p: &mut PointConfig) -> Result<(), String> {
     if entries.is_empty() {
         return Ok(()); // the default single tach shaft, ratio 1
     }
-    if entries.len() > MAX_SHAFTS {
-        return Err(format!(
-            "shaft: {} shafts given, at most {MAX_SHAFTS} fit",
-            entries.len()
-        ));
-    }
+    check_count("shaft", entries.len(), MAX_SHAFTS)?;
     p.shafts.clear();
     for (i, e) in entries.iter().enumerate() {
         check_name("shaft", &e.name)?;
@@ -348,23 +343,34 @@ fn length(
     }
 }
 
-fn bearings(entries: &[BearingEntry], p: &mut PointConfig) -> Result<(), String> {
-    if entries.len() > MAX_BEARINGS {
+fn check_count(what: &str, n: usize, cap: usize) -> Result<(), String> {
+    if n > cap {
         return Err(format!(
-            "bearing: {} bearings given, at most {MAX_BEARINGS} fit one measuring point",
-            entries.len()
+            "{what}: {n} given, at most {cap} fit one measuring point"
         ));
     }
+    Ok(())
+}
+
+/// Index of the shaft `shaft` names (the tach shaft when absent).
+fn shaft_of(p: &PointConfig, what: &str, owner: &str, shaft: Option<&str>) -> Result<u8, String> {
+    let i = match shaft {
+        None => 0,
+        Some(s) => p
+            .shafts
+            .iter()
+            .position(|x| x.name.as_str() == s)
+            .ok_or_else(|| format!("{what} `{owner}`.shaft: no shaft named `{s}`"))?,
+    };
+    // At most MAX_SHAFTS (4) shafts exist.
+    Ok(u8::try_from(i).unwrap_or(u8::MAX))
+}
+
+fn bearings(entries: &[BearingEntry], p: &mut PointConfig) -> Result<(), String> {
+    check_count("bearing", entries.len(), MAX_BEARINGS)?;
     for e in entries {
         check_name("bearing", &e.name)?;
-        let shaft = match &e.shaft {
-            None => 0,
-            Some(s) => p
-                .shafts
-                .iter()
-                .position(|x| x.name.as_str() == s)
-                .ok_or_else(|| format!("bearing `{}`.shaft: no shaft named `{s}`", e.name))?,
-        };
+        let shaft = shaft_of(p, "bearing", &e.name, e.shaft.as_deref())?;
         let d = length(
             &e.name,
             "roller_diameter",
@@ -411,7 +417,7 @@ fn bearings(entries: &[BearingEntry], p: &mut PointConfig) -> Result<(), String>
         p.bearings
             .push(Bearing {
                 name: name_from(&e.name),
-                shaft: u8::try_from(shaft).unwrap_or(u8::MAX),
+                shaft,
                 kinematics,
             })
             .map_err(|_| "bearing: capacity exceeded".to_string())?;
@@ -420,26 +426,14 @@ fn bearings(entries: &[BearingEntry], p: &mut PointConfig) -> Result<(), String>
 }
 
 fn meshes(entries: &[MeshEntry], p: &mut PointConfig) -> Result<(), String> {
-    if entries.len() > MAX_MESHES {
-        return Err(format!(
-            "mesh: {} meshes given, at most {MAX_MESHES} fit one measuring point",
-            entries.len()
-        ));
-    }
+    check_count("mesh", entries.len(), MAX_MESHES)?;
     for e in entries {
         check_name("mesh", &e.name)?;
-        let shaft = match &e.shaft {
-            None => 0,
-            Some(s) => p
-                .shafts
-                .iter()
-                .position(|x| x.name.as_str() == s)
-                .ok_or_else(|| format!("mesh `{}`.shaft: no shaft named `{s}`", e.name))?,
-        };
+        let shaft = shaft_of(p, "mesh", &e.name, e.shaft.as_deref())?;
         p.meshes
             .push(Mesh {
                 name: name_from(&e.name),
-                shaft: u8::try_from(shaft).unwrap_or(u8::MAX),
+                shaft,
                 teeth: e.teeth,
             })
             .map_err(|_| "mesh: capacity exceeded".to_string())?;
