@@ -16,6 +16,8 @@ fuzz_target!(|data: &[u8]| {
                 encode(r, &mut buf).expect("decoded report must encode")
             }
             Frame::Reduced(r) => encode_reduced_report(r, &mut buf).expect("decoded report must encode"),
+            Frame::Status(r) => dsp_core::frame::status::encode_status(r, &mut buf)
+                .expect("decoded status must encode"),
         };
         assert_eq!(&buf[..n], data);
     }

@@ -15,6 +15,18 @@ var FLAG_NAMES = ["tach_missing", "tach_irregular", "speed_out_of_range", "clipp
 var FULL_HEADER_LEN = 18;
 var DEFECT_BITS = 19;
 var REDUCED_LEN = 11;
+var STATUS_LEN = 27;
+var BAND_SOURCES = ["configured", "survey", "unset"];
+var BOOT_CONFIGS = ["stored", "default_empty", "default_invalid"];
+// Status frame codes (docs/frame-format.md, dsp_core::frame::status).
+var DOWNLINK_RESULTS = {
+  0: "none", 1: "config_applied", 2: "measure_now", 3: "baseline_applied",
+  4: "survey_requested", 5: "not_stored", 16: "truncated", 17: "unknown_version",
+  18: "wrong_node", 19: "bad_tag", 20: "replayed", 21: "not_provisioned",
+  22: "empty_command", 23: "unknown_command", 24: "invalid_config", 25: "invalid_baseline"
+};
+var SURVEY_STATES = ["not_run", "stored", "not_stored", "signal_fault", "flat",
+  "too_few_samples", "no_band", "config", "unsupported"];
 
 function fullFrameLen(bearings) {
   return FULL_HEADER_LEN + Math.ceil(bearings * 4 * DEFECT_BITS / 8) + 2;
@@ -35,6 +47,22 @@ function crc16(bytes, len) {
 
 function u16(bytes, off) {
   return (bytes[off] << 8) | bytes[off + 1];
+}
+
+function u32(bytes, off) {
+  return ((bytes[off] << 24) >>> 0) + (bytes[off + 1] << 16) + (bytes[off + 2] << 8) + bytes[off + 3];
+}
+
+// IEEE 754 binary32, big-endian, without typed arrays (plain ES5 sandboxes).
+// Returns NaN for NaN, +-Infinity for infinities.
+function f32(bytes, off) {
+  var bits = u32(bytes, off);
+  var sign = bits >>> 31 ? -1 : 1;
+  var exp = (bits >>> 23) & 0xFF;
+  var frac = bits & 0x7FFFFF;
+  if (exp === 0xFF) { return frac ? NaN : sign * Infinity; }
+  if (exp === 0) { return sign * frac * Math.pow(2, -149); }
+  return sign * (1 + frac / 8388608) * Math.pow(2, exp - 127);
 }
 
 // Linear field: code * step; the invalid code gives null.
@@ -109,6 +137,8 @@ function checkEnvelope(bytes) {
     expected = fullFrameLen(count);
   } else if (type === 1) {
     expected = REDUCED_LEN;
+  } else if (type === 2) {
+    expected = STATUS_LEN;
   } else {
     throw new DecodeError("UnknownFrameType", "frame type " + type);
   }
@@ -203,6 +233,53 @@ function decodeReduced(bytes) {
   };
 }
 
+function decodeStatus(bytes) {
+  var flags = flagsOf(bytes);
+  var state = bytes[7];
+  var source = state & 0x03;
+  var boot = (state >> 2) & 0x03;
+  var last = DOWNLINK_RESULTS[bytes[12]];
+  var survey = SURVEY_STATES[bytes[14]];
+  var lo = f32(bytes, 15);
+  var hi = f32(bytes, 19);
+  var k = (bytes[23] << 8) | bytes[24];
+  if (state & 0xE0) {
+    throw new DecodeError("ReservedBits", "reserved bits set in byte 7");
+  }
+  if (source > 2) {
+    throw new DecodeError("InvalidField", "band_source code " + source);
+  }
+  if (boot > 2) {
+    throw new DecodeError("InvalidField", "boot_config code " + boot);
+  }
+  if (last === undefined) {
+    throw new DecodeError("InvalidField", "last_downlink code " + bytes[12]);
+  }
+  if (survey === undefined) {
+    throw new DecodeError("InvalidField", "survey code " + bytes[14]);
+  }
+  if (!(isFinite(lo) && isFinite(hi) && lo > 0 && hi > lo)) {
+    throw new DecodeError("InvalidField", "band_hz " + lo + ", " + hi);
+  }
+  if (k >= 0x8000) { k -= 0x10000; }
+  return {
+    frame: "status",
+    version: ENVORD_VERSION,
+    node_id: u16(bytes, 1),
+    seq: u16(bytes, 3),
+    flags: flags,
+    band_source: BAND_SOURCES[source],
+    boot_config: BOOT_CONFIGS[boot],
+    provisioned: (state & 0x10) !== 0,
+    downlink_counter: u32(bytes, 8),
+    last_downlink: last,
+    refused_downlinks: bytes[13],
+    survey: survey,
+    band_hz: [lo, hi],
+    band_kurtosis: k === -32768 ? null : k / 100
+  };
+}
+
 /**
  * TS013 uplink decoder.
  * @param {{bytes: number[], fPort: number, recvTime?: Date}} input
@@ -224,7 +301,7 @@ function decodeUplink(input) {
   }
   try {
     type = checkEnvelope(bytes);
-    data = type === 0 ? decodeFull(bytes) : decodeReduced(bytes);
+    data = type === 0 ? decodeFull(bytes) : type === 1 ? decodeReduced(bytes) : decodeStatus(bytes);
   } catch (e) {
     if (e instanceof DecodeError) {
       return { errors: [e.message], warnings: [] };
@@ -234,9 +311,12 @@ function decodeUplink(input) {
   var warnings = [];
   if (data.flags.sensor_fault) { warnings.push("sensor fault flagged by the node"); }
   if (data.flags.low_battery) { warnings.push("low battery flagged by the node"); }
+  if (type === 2 && data.last_downlink !== "none" && bytes[12] >= 16) {
+    warnings.push("the node refused its last downlink: " + data.last_downlink);
+  }
   return { data: data, errors: [], warnings: warnings };
 }
 
 if (typeof module !== "undefined" && module.exports) {
-  module.exports = { decodeUplink: decodeUplink, crc16: crc16, fullFrameLen: fullFrameLen };
+  module.exports = { decodeUplink: decodeUplink, crc16: crc16, fullFrameLen: fullFrameLen, f32: f32 };
 }

@@ -37,6 +37,16 @@ var n = 0;
 // CRC catalogue check value (CRC-16/IBM-3740 alias CCITT-FALSE): 0x29B1 for "123456789".
 assert.strictEqual(codec.crc16([49, 50, 51, 52, 53, 54, 55, 56, 57], 9), 0x29B1);
 assert.deepStrictEqual([1, 2, 3, 4].map(codec.fullFrameLen), [30, 39, 49, 58]);
+// binary32 decoding against the typed-array reference of the JS engine itself.
+(function () {
+  var dv = new DataView(new ArrayBuffer(4));
+  [0, -0, 1, -2.5, 2519.8420410156, 3.4028234663852886e38, 1e-45, 1.17549435e-38, Infinity].forEach(function (x) {
+    dv.setFloat32(0, x);
+    var b = [dv.getUint8(0), dv.getUint8(1), dv.getUint8(2), dv.getUint8(3)];
+    assert.strictEqual(codec.f32(b, 0), dv.getFloat32(0), "f32 of " + x);
+  });
+  assert.ok(isNaN(codec.f32([0x7f, 0xc0, 0, 0], 0)));
+})();
 
 vectors.valid.forEach(function (v, i) {
   var r = codec.decodeUplink({ bytes: hexBytes(v.hex), fPort: 10 });
@@ -65,9 +75,11 @@ for (var t = 0; t < 20000; t++) {
   var len = rnd() % 64;
   var b = [];
   for (var j = 0; j < len; j++) { b.push(rnd() % 256); }
-  if (rnd() % 2) { b[0] = 0x10 | (rnd() % 2); }
+  if (rnd() % 2) { b[0] = 0x10 | (rnd() % 3); }
   var res = codec.decodeUplink({ bytes: b, fPort: 10 });
   assert.ok(Array.isArray(res.errors) && Array.isArray(res.warnings));
 }
 
-console.log("envord-codec.js: " + n + " vectors ok (" + vectors.valid.length + " valid, " + vectors.invalid.length + " invalid), 20000 random payloads ok");
+var statuses = vectors.valid.filter(function (v) { return v.expected.frame === "status"; }).length;
+assert.ok(statuses >= 50, "status vectors: " + statuses);
+console.log("envord-codec.js: " + n + " vectors ok (" + vectors.valid.length + " valid of which " + statuses + " status, " + vectors.invalid.length + " invalid), 20000 random payloads ok");

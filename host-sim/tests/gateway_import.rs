@@ -1,5 +1,6 @@
 //! `envord gateway import/status/trend/baseline` against the SQLite store.
 #![allow(
+    clippy::panic,
     clippy::unwrap_used,
     clippy::indexing_slicing,
     clippy::cast_possible_truncation
@@ -56,12 +57,82 @@ fn reimport_is_idempotent_and_schema_is_versioned() {
     let v: i64 = c
         .query_row("PRAGMA user_version", [], |r| r.get(0))
         .unwrap();
-    assert_eq!(v, 1);
+    assert_eq!(v, 2);
     // A store from a newer build is refused as bad input.
     c.pragma_update(None, "user_version", 9).unwrap();
     drop(c);
     let o = run(&["gateway", "status", "--db", "gw.sqlite"], dir.path());
     assert_eq!(o.status.code(), Some(2));
+}
+
+#[test]
+fn status_frames_are_stored_apart_and_shown_per_node() {
+    let dir = tempfile::tempdir().unwrap();
+    // reports 0..4 of node 3 with status frames (their own sequence) between
+    let frames = vec![
+        frame(3, 0, 5.0, false),
+        status(3, 0, 0, 0),
+        frame(3, 1, 5.0, false),
+        frame(3, 2, 5.0, false),
+        status(3, 1, 7, 0),
+        frame(3, 3, 5.0, false),
+        status(3, 2, 7, 2),
+    ];
+    write_lines(&dir.path().join("a.txt"), &frames);
+    let o = run(
+        &[
+            "gateway",
+            "import",
+            "--db",
+            "gw.sqlite",
+            "a.txt",
+            "--verbose",
+        ],
+        dir.path(),
+    );
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    // no gap or backward event from the interleaved status sequence
+    assert!(
+        stdout(&o).contains("imported 7 new frame(s), 0 already stored, 0 rejected"),
+        "{}",
+        stdout(&o)
+    );
+    assert!(
+        stdout(&o).contains(" 0 gap event(s)") && !stdout(&o).contains("backward"),
+        "{}",
+        stdout(&o)
+    );
+    let db = dir.path().join("gw.sqlite");
+    assert_eq!(db_count(&db, "reports"), 4);
+    assert_eq!(db_count(&db, "node_status"), 3);
+    let o = run(&["gateway", "status", "--db", "gw.sqlite"], dir.path());
+    let text = stdout(&o);
+    assert!(text.contains("nodes (latest status frame)"), "{text}");
+    let row = text
+        .lines()
+        .find(|l| l.trim_start().starts_with("3 ") && l.contains("bad_tag"))
+        .unwrap_or_else(|| panic!("no node 3 status row in {text}"));
+    assert!(row.contains("2520-5040") && row.contains("survey"), "{row}");
+    let o = run(
+        &["gateway", "status", "--db", "gw.sqlite", "--json"],
+        dir.path(),
+    );
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let n = &v["nodes"][0];
+    assert_eq!(n["node"], 3);
+    assert_eq!(n["downlink_counter"], 7);
+    assert_eq!(n["refused_downlinks"], 2);
+    assert_eq!(n["last_downlink"], "bad_tag");
+    assert_eq!(v["links"][0]["frames"], 4);
+    assert_eq!(v["links"][0]["missing"], 0);
+    // decode prints status frames as their own line type
+    let o = run(&["gateway", "decode", "a.txt"], dir.path());
+    let kinds: Vec<String> = stdout(&o)
+        .lines()
+        .map(|l| serde_json::from_str::<serde_json::Value>(l).unwrap()["type"].to_string())
+        .collect();
+    assert_eq!(kinds.iter().filter(|k| k.contains("status")).count(), 3);
+    assert_eq!(kinds.iter().filter(|k| k.contains("report")).count(), 4);
 }
 
 #[test]

@@ -15,6 +15,7 @@ fn check(bytes: &[u8]) -> Result<(), TestCaseError> {
         let n = match &f {
             Frame::Full(r) => encode(r, &mut buf).unwrap(),
             Frame::Reduced(r) => encode_reduced_report(r, &mut buf).unwrap(),
+            Frame::Status(r) => dsp_core::frame::status::encode_status(r, &mut buf).unwrap(),
         };
         prop_assert_eq!(&buf[..n], bytes);
     }

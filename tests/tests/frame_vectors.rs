@@ -14,11 +14,14 @@
 mod common;
 
 use dsp_core::frame::crc::crc16;
+use dsp_core::frame::status::encode_status;
 use dsp_core::frame::{decode_any, encode, encode_reduced};
 use serde_json::{json, Value};
 
-/// Valid vectors generated (a fifth of them reduced frames).
+/// Valid report vectors generated (a fifth of them reduced frames).
 const COUNT: usize = 400;
+/// Valid status-frame vectors generated after the reports.
+const STATUS_COUNT: usize = 60;
 
 const PATH: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/../host-sim/js/vectors.json");
 
@@ -66,6 +69,42 @@ fn generate() -> String {
             }
         }
     }
+    // Status frames, from their own generator so the report vectors above
+    // stay as they were.
+    let mut rng = common::Rng(0x5747_0002);
+    for i in 0..STATUS_COUNT {
+        let r = common::random_status(&mut rng);
+        let mut buf = [0u8; 64];
+        let n = encode_status(&r, &mut buf).unwrap();
+        let bytes = &buf[..n];
+        let decoded = serde_json::to_value(decode_any(bytes).unwrap()).unwrap();
+        valid.push(json!({ "hex": common::to_hex(bytes), "expected": decoded }));
+        let mut bad = bytes.to_vec();
+        let reseal = |b: &mut Vec<u8>| {
+            let c = crc16(&b[..n - 2]);
+            b[n - 2..].copy_from_slice(&c.to_be_bytes());
+        };
+        match i % 6 {
+            0 => bad.truncate(rng.below(n as u64) as usize),
+            1 => bad.push(0),
+            2 => bad[rng.below(n as u64 - 2) as usize + 1] ^= 0x10,
+            3 => {
+                bad[7] |= 0x80; // reserved bit
+                reseal(&mut bad);
+            }
+            4 => {
+                bad[12] = 6; // undefined downlink result
+                reseal(&mut bad);
+            }
+            _ => {
+                bad[15..19].copy_from_slice(&f32::NAN.to_be_bytes()); // band
+                reseal(&mut bad);
+            }
+        }
+        if decode_any(&bad).is_err() {
+            invalid.push(json!({ "hex": common::to_hex(&bad), "error": error_name(&bad) }));
+        }
+    }
     // One vector per line keeps the file small and its diffs readable.
     let lines = |v: &[Value]| {
         v.iter()
@@ -93,7 +132,7 @@ fn committed_vectors_equal_rust_codec_output() {
         "host-sim/js/vectors.json differs from the Rust codec's output"
     );
     let v: Value = serde_json::from_str(&committed).unwrap();
-    assert_eq!(v["valid"].as_array().unwrap().len(), COUNT);
+    assert_eq!(v["valid"].as_array().unwrap().len(), COUNT + STATUS_COUNT);
     // All error kinds the damage produces are represented.
     let kinds: std::collections::BTreeSet<&str> = v["invalid"]
         .as_array()
@@ -108,6 +147,7 @@ fn committed_vectors_equal_rust_codec_output() {
         "UnknownVersion",
         "ReservedBits",
         "UnknownFrameType",
+        "InvalidField",
     ] {
         assert!(kinds.contains(k), "no {k} vector");
     }

@@ -91,6 +91,11 @@ fn frames() {
     match decode_any(input) {
         Ok(Frame::Full(r)) => black_box(encode(&r, black_box(&mut out[..]))).ok(),
         Ok(Frame::Reduced(r)) => black_box(encode_reduced_report(&r, black_box(&mut out[..]))).ok(),
+        Ok(Frame::Status(r)) => black_box(dsp_core::frame::status::encode_status(
+            &r,
+            black_box(&mut out[..]),
+        ))
+        .ok(),
         Err(e) => {
             black_box(e);
             None

@@ -7,6 +7,8 @@ pub const FORMAT_VERSION: u8 = 1;
 pub const TYPE_FULL: u8 = 0;
 /// Frame type (low nibble of byte 0): reduced report (worst defect only).
 pub const TYPE_REDUCED: u8 = 1;
+/// Frame type (low nibble of byte 0): node status (configuration, downlinks, band).
+pub const TYPE_STATUS: u8 = 2;
 
 /// Bytes before the packed defect fields in a full frame.
 pub const FULL_HEADER_LEN: usize = 18;
@@ -20,6 +22,8 @@ pub const DEFECTS_PER_BEARING: usize = 4;
 pub const MAX_BEARINGS: usize = 4;
 /// Length of a reduced frame.
 pub const REDUCED_LEN: usize = 11;
+/// Length of a status frame.
+pub const STATUS_LEN: usize = 27;
 /// Application payload limit of LoRaWAN EU868 DR0-DR2 (RP002 Regional Parameters).
 pub const EU868_DR0_MAX_PAYLOAD: usize = 51;
 /// Application payload limit of LoRaWAN US915 DR0 (RP002 Regional Parameters).

@@ -4,9 +4,12 @@
 //! [`FrameReport`] is plain data in physical units, filled from the pipeline
 //! report. [`encode`] packs it into a full frame (49 bytes for 3 bearings, so
 //! it fits the 51-byte LoRaWAN EU868 DR0-DR2 payload), [`encode_reduced`] into
-//! an 11-byte frame with the worst defect only (US915 DR0). [`decode`],
-//! [`decode_reduced`] and [`decode_any`] validate length, version, CRC and
-//! reserved bits and never panic. docs/frame-format.md describes every bit.
+//! an 11-byte frame with the worst defect only (US915 DR0). The node's own
+//! state (configuration origin, downlink results, envelope band) travels in
+//! the 27-byte status frame of [`status`]. [`decode`], [`decode_reduced`],
+//! [`status::decode_status`] and [`decode_any`] validate length, version,
+//! CRC and reserved bits and never panic. docs/frame-format.md describes
+//! every bit.
 //!
 //! ```
 //! use dsp_core::frame::{decode, encode, FrameReport, BearingResult};
@@ -24,6 +27,7 @@ pub mod crc;
 pub mod from_report;
 pub mod layout;
 pub mod quantisation;
+pub mod status;
 
 use core::fmt;
 use heapless::Vec;
@@ -32,9 +36,10 @@ use serde::{Deserialize, Serialize};
 use layout::{
     full_frame_len, BitReader, BitWriter, CRC_LEN, DEFECTS_PER_BEARING, DEFECT_BITS,
     FORMAT_VERSION, FULL_HEADER_LEN, MAX_BEARINGS, OFF_COUNT_ZONE, OFF_FLAGS, REDUCED_LEN,
-    TYPE_FULL, TYPE_REDUCED,
+    STATUS_LEN, TYPE_FULL, TYPE_REDUCED, TYPE_STATUS,
 };
 use quantisation as q;
+pub use status::StatusReport;
 
 /// Bearing defect kinds, in their fixed frame order (BPFO, BPFI, FTF, BSF):
 /// the core's own kinds, coded in frames by [`crate::kinematics::DefectKind::index`].
@@ -261,8 +266,8 @@ fn rank(w: &WorstDefect) -> (bool, f32) {
     (w.detected, s)
 }
 
-/// A decoded frame of either type (serialises with a `"frame": "full"` /
-/// `"reduced"` tag).
+/// A decoded frame of any type (serialises with a `"frame": "full"` /
+/// `"reduced"` / `"status"` tag).
 // No heap to box the full report into; the enum lives on the stack briefly.
 #[allow(clippy::large_enum_variant)]
 #[derive(Clone, Debug, PartialEq, Serialize)]
@@ -272,6 +277,8 @@ pub enum Frame {
     Full(FrameReport),
     /// A reduced frame.
     Reduced(ReducedReport),
+    /// A node status frame.
+    Status(StatusReport),
 }
 
 /// Why encoding failed.
@@ -299,6 +306,8 @@ pub enum EncodeError {
     },
     /// `FrameReport::version` is not [`FORMAT_VERSION`].
     UnsupportedVersion(u8),
+    /// A status frame's band is not finite with 0 < lo < hi.
+    BandOutOfRange,
 }
 
 impl fmt::Display for EncodeError {
@@ -325,6 +334,9 @@ impl fmt::Display for EncodeError {
                     f,
                     "report version {v}, this encoder writes {FORMAT_VERSION}"
                 )
+            }
+            EncodeError::BandOutOfRange => {
+                f.write_str("status band must be finite with 0 < lo < hi")
             }
         }
     }
@@ -583,6 +595,7 @@ fn check_envelope(bytes: &[u8]) -> Result<u8, DecodeError> {
             full_frame_len(usize::from(count))
         }
         TYPE_REDUCED => REDUCED_LEN,
+        TYPE_STATUS => STATUS_LEN,
         t => return Err(DecodeError::UnknownFrameType(t)),
     };
     if got < expected {
@@ -737,11 +750,12 @@ pub fn decode_reduced(bytes: &[u8]) -> Result<ReducedReport, DecodeError> {
     }
 }
 
-/// Decodes a frame of either type.
+/// Decodes a frame of any type.
 pub fn decode_any(bytes: &[u8]) -> Result<Frame, DecodeError> {
     match check_envelope(bytes)? {
         TYPE_FULL => decode_full_checked(bytes).map(Frame::Full),
         TYPE_REDUCED => decode_reduced_checked(bytes).map(Frame::Reduced),
+        TYPE_STATUS => status::decode_status_checked(bytes).map(Frame::Status),
         t => Err(DecodeError::UnknownFrameType(t)),
     }
 }

@@ -3,7 +3,7 @@
 
 use crate::error::CliError;
 use dsp_core::frame::layout::{
-    full_frame_len, OFF_COUNT_ZONE, REDUCED_LEN, TYPE_FULL, TYPE_REDUCED,
+    full_frame_len, OFF_COUNT_ZONE, REDUCED_LEN, STATUS_LEN, TYPE_FULL, TYPE_REDUCED, TYPE_STATUS,
 };
 use std::io::Read;
 
@@ -170,6 +170,7 @@ pub fn split_binary(source: &str, data: &[u8]) -> Vec<InputItem> {
                 .filter(|&n| n <= 4)
                 .map(full_frame_len),
             TYPE_REDUCED if b0 >> 4 == 1 => Some(REDUCED_LEN),
+            TYPE_STATUS if b0 >> 4 == 1 => Some(STATUS_LEN),
             _ => None,
         };
         let take = len.unwrap_or(rest.len()).min(rest.len());

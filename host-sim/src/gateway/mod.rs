@@ -8,6 +8,9 @@
 //!   physical bearing (gateway map), plus link statistics.
 //! * `trend`: one bearing's scores over time, as a table and an SVG plot.
 //! * `baseline`: set or clear a hand-set baseline.
+//! * `downlink`: build a signed downlink (configuration, measure now, band
+//!   survey) for a node from its key file; `provision`: make a node's key and
+//!   identity record.
 
 pub mod input;
 pub mod map;
@@ -267,7 +270,13 @@ fn decode_cmd(a: DecodeArgs) -> Result<(), CliError> {
         match decode_item(item) {
             Ok(frame) => {
                 let (node, seq) = store::node_seq(&frame);
-                let ev = tracker.observe(node, seq, item.bytes.as_deref().unwrap_or(&[]));
+                // status frames count their own sequence: not link-tracked
+                let ev = if store::is_report(&frame) {
+                    Some(tracker.observe(node, seq, item.bytes.as_deref().unwrap_or(&[])))
+                } else {
+                    None
+                };
+                let ev_text = ev.as_ref().map_or("-".to_string(), |e| e.describe());
                 if a.table {
                     let (kind, flags, speed, detail) = match &frame {
                         Frame::Full(r) => {
@@ -285,6 +294,9 @@ fn decode_cmd(a: DecodeArgs) -> Result<(), CliError> {
                             "-".into(),
                             worst_text(r.worst),
                         ),
+                        Frame::Status(r) => {
+                            ("status", r.flags.to_bits(), "-".into(), status_text(r))
+                        }
                     };
                     writeln!(
                         out,
@@ -295,15 +307,21 @@ fn decode_cmd(a: DecodeArgs) -> Result<(), CliError> {
                         seq,
                         flags,
                         speed,
-                        ev.describe(),
+                        ev_text,
                         detail
                     )
                     .map_err(out_err)?;
                 } else {
-                    let v = serde_json::json!({
-                        "type": "report", "source": item.source, "line": item.line,
-                        "rx_time": item.rx_time, "sequence": seq_json(&ev), "report": frame,
-                    });
+                    let v = match &ev {
+                        Some(ev) => serde_json::json!({
+                            "type": "report", "source": item.source, "line": item.line,
+                            "rx_time": item.rx_time, "sequence": seq_json(ev), "report": frame,
+                        }),
+                        None => serde_json::json!({
+                            "type": "status", "source": item.source, "line": item.line,
+                            "rx_time": item.rx_time, "status": frame,
+                        }),
+                    };
                     writeln!(out, "{v}").map_err(out_err)?;
                 }
             }
@@ -336,6 +354,25 @@ fn decode_cmd(a: DecodeArgs) -> Result<(), CliError> {
         Some(r) if a.strict => Err(CliError::Input(format!("rejected frame(s), first at {r}"))),
         _ => Ok(()),
     }
+}
+
+fn status_text(r: &dsp_core::frame::StatusReport) -> String {
+    let name = |v: serde_json::Value| v.as_str().unwrap_or("?").to_string();
+    format!(
+        "counter {} last downlink {} refused {} band {:.0}-{:.0} Hz ({}{}) survey {}",
+        r.downlink_counter,
+        name(serde_json::json!(r.last_downlink)),
+        r.refused_downlinks,
+        r.band_hz[0],
+        r.band_hz[1],
+        name(serde_json::json!(r.band_source)),
+        if r.band_kurtosis.is_finite() {
+            format!(", kurtosis {:.2}", r.band_kurtosis)
+        } else {
+            String::new()
+        },
+        name(serde_json::json!(r.survey)),
+    )
 }
 
 fn worst_text(w: Option<dsp_core::frame::WorstDefect>) -> String {
@@ -381,6 +418,9 @@ fn import_cmd(a: ImportArgs) -> Result<(), CliError> {
                     };
                     if store::insert_frame(&tx, &frame, payload, &origin).map_err(sql_err)? {
                         new += 1;
+                        if !store::is_report(&frame) {
+                            continue; // status frames: their own sequence
+                        }
                         let (node, seq) = store::node_seq(&frame);
                         let ev = tracker.observe(node, seq, payload);
                         if !matches!(ev, SeqEvent::InOrder | SeqEvent::First) {
@@ -438,6 +478,7 @@ fn status_cmd(a: StatusArgs) -> Result<(), CliError> {
         tracker.observe(node, seq, &payload);
     }
     let rejects = store::count(&conn, "rejects").map_err(sql_err)?;
+    let nodes = store::latest_status(&conn).map_err(sql_err)?;
     let combined = gmap
         .as_ref()
         .map(|m| combine(m, &states))
@@ -448,7 +489,7 @@ fn status_cmd(a: StatusArgs) -> Result<(), CliError> {
             .iter()
             .map(|(n, s)| serde_json::json!({"node": n, "frames": s.frames, "missing": s.missing, "gaps": s.gaps, "duplicates": s.duplicates, "conflicts": s.conflicts, "resets": s.resets, "backward": s.backward, "last_seq": s.last}))
             .collect();
-        let v = serde_json::json!({"defects": states, "bearings": bearing_states(&states), "physical": combined, "links": links, "rejects": rejects});
+        let v = serde_json::json!({"defects": states, "bearings": bearing_states(&states), "physical": combined, "links": links, "nodes": nodes, "rejects": rejects});
         println!("{v}");
         return Ok(());
     }
@@ -518,6 +559,33 @@ fn status_cmd(a: StatusArgs) -> Result<(), CliError> {
             s.backward,
             s.last.map_or("-".into(), |x| x.to_string())
         );
+    }
+    if !nodes.is_empty() {
+        println!("\nnodes (latest status frame)");
+        println!(
+            "{:>5} {:>8} {:<17} {:>7} {:<15} {:<11} {:>17} {:>8}",
+            "node",
+            "counter",
+            "last_downlink",
+            "refused",
+            "survey",
+            "band_source",
+            "band Hz",
+            "kurtosis"
+        );
+        for n in &nodes {
+            println!(
+                "{:>5} {:>8} {:<17} {:>7} {:<15} {:<11} {:>17} {:>8}",
+                n.node,
+                n.downlink_counter,
+                n.last_downlink,
+                n.refused_downlinks,
+                n.survey,
+                n.band_source,
+                format!("{:.0}-{:.0}", n.band_hz[0], n.band_hz[1]),
+                n.band_kurtosis.map_or("-".into(), |k| format!("{k:.2}"))
+            );
+        }
     }
     println!("rejected inputs stored: {rejects}");
     Ok(())

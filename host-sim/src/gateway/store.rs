@@ -54,6 +54,27 @@ pub const MIGRATIONS: &[&str] = &[
         PRIMARY KEY (node_id, bearing, kind)
     );
     CREATE INDEX defects_by_kind ON defects (bearing, kind);",
+    // 2: node status frames (configuration origin, downlink results, band).
+    "CREATE TABLE node_status (
+        id INTEGER PRIMARY KEY,
+        node_id INTEGER NOT NULL,
+        seq INTEGER NOT NULL,
+        payload BLOB NOT NULL,
+        rx_time TEXT,
+        source TEXT NOT NULL,
+        line INTEGER NOT NULL,
+        flags INTEGER NOT NULL,
+        downlink_counter INTEGER NOT NULL,
+        last_downlink TEXT NOT NULL,
+        refused_downlinks INTEGER NOT NULL,
+        survey TEXT NOT NULL,
+        band_source TEXT NOT NULL,
+        band_lo_hz REAL NOT NULL,
+        band_hi_hz REAL NOT NULL,
+        band_kurtosis REAL,
+        json TEXT NOT NULL,
+        UNIQUE (node_id, seq, payload)
+    );",
 ];
 
 /// Schema version this build writes.
@@ -124,12 +145,113 @@ fn zone_name(z: Option<IsoZone>) -> Option<&'static str> {
     })
 }
 
-/// Node and sequence number of a decoded frame.
+/// Node and sequence number of a decoded frame. Status frames count their
+/// own sequence; the link statistics track reports only ([`is_report`]).
 pub fn node_seq(f: &Frame) -> (u16, u16) {
     match f {
         Frame::Full(r) => (r.node_id, r.seq),
         Frame::Reduced(r) => (r.node_id, r.seq),
+        Frame::Status(r) => (r.node_id, r.seq),
     }
+}
+
+/// True for report frames (full, reduced), false for status frames.
+pub fn is_report(f: &Frame) -> bool {
+    !matches!(f, Frame::Status(_))
+}
+
+/// JSON name of a serde unit variant (e.g. `"config_applied"`).
+fn name_of<T: serde::Serialize>(v: &T) -> String {
+    serde_json::to_value(v)
+        .ok()
+        .and_then(|x| x.as_str().map(str::to_string))
+        .unwrap_or_default()
+}
+
+/// Inserts a status frame unless stored; returns whether it was new.
+fn insert_status(
+    conn: &Connection,
+    r: &dsp_core::frame::StatusReport,
+    payload: &[u8],
+    json: &str,
+    o: &Origin<'_>,
+) -> rusqlite::Result<bool> {
+    let line = i64::try_from(o.line).unwrap_or(i64::MAX);
+    let n = conn.execute(
+        "INSERT OR IGNORE INTO node_status (node_id, seq, payload, rx_time, source, line, flags,
+           downlink_counter, last_downlink, refused_downlinks, survey, band_source, band_lo_hz,
+           band_hi_hz, band_kurtosis, json)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16)",
+        params![
+            r.node_id,
+            r.seq,
+            payload,
+            o.rx_time,
+            o.source,
+            line,
+            r.flags.to_bits(),
+            r.downlink_counter,
+            name_of(&r.last_downlink),
+            r.refused_downlinks,
+            name_of(&r.survey),
+            name_of(&r.band_source),
+            f64::from(r.band_hz[0]),
+            f64::from(r.band_hz[1]),
+            opt(r.band_kurtosis),
+            json
+        ],
+    )?;
+    Ok(n > 0)
+}
+
+/// The latest status frame of one node.
+#[derive(Clone, Debug, serde::Serialize)]
+pub struct NodeStatus {
+    /// Node.
+    pub node: u16,
+    /// Status sequence number.
+    pub seq: u16,
+    /// Receive time if known.
+    pub rx_time: Option<String>,
+    /// Replay counter the node stores.
+    pub downlink_counter: u32,
+    /// Result of its last downlink.
+    pub last_downlink: String,
+    /// Downlinks it refused since its boot.
+    pub refused_downlinks: u8,
+    /// Result of its last band survey.
+    pub survey: String,
+    /// Origin of its band.
+    pub band_source: String,
+    /// Band in use, Hz.
+    pub band_hz: [f64; 2],
+    /// Spectral kurtosis of a survey-chosen band.
+    pub band_kurtosis: Option<f64>,
+}
+
+/// The latest (last arrived) status frame of every node, by node.
+pub fn latest_status(conn: &Connection) -> rusqlite::Result<Vec<NodeStatus>> {
+    let mut stmt = conn.prepare(
+        "SELECT node_id, seq, rx_time, downlink_counter, last_downlink, refused_downlinks, survey,
+                band_source, band_lo_hz, band_hi_hz, band_kurtosis
+         FROM node_status WHERE id IN (SELECT MAX(id) FROM node_status GROUP BY node_id)
+         ORDER BY node_id",
+    )?;
+    let rows = stmt.query_map([], |r| {
+        Ok(NodeStatus {
+            node: r.get(0)?,
+            seq: r.get(1)?,
+            rx_time: r.get(2)?,
+            downlink_counter: r.get(3)?,
+            last_downlink: r.get(4)?,
+            refused_downlinks: r.get(5)?,
+            survey: r.get(6)?,
+            band_source: r.get(7)?,
+            band_hz: [r.get(8)?, r.get(9)?],
+            band_kurtosis: r.get(10)?,
+        })
+    })?;
+    rows.collect()
 }
 
 /// Where a frame came from.
@@ -143,7 +265,8 @@ pub struct Origin<'a> {
 }
 
 /// Inserts a decoded frame unless the same node+seq+payload is stored;
-/// returns whether it was new. Call inside a transaction.
+/// returns whether it was new. Reports go to `reports` (and `defects`),
+/// status frames to `node_status`. Call inside a transaction.
 pub fn insert_frame(
     conn: &Connection,
     f: &Frame,
@@ -153,6 +276,9 @@ pub fn insert_frame(
     let (node, seq) = node_seq(f);
     let json = serde_json::to_string(f).unwrap_or_default();
     let line = i64::try_from(o.line).unwrap_or(i64::MAX);
+    if let Frame::Status(r) = f {
+        return insert_status(conn, r, payload, &json, o);
+    }
     let n = match f {
         Frame::Full(r) => conn.execute(
             "INSERT OR IGNORE INTO reports (node_id, seq, frame_type, payload, rx_time, source, line, flags,
@@ -170,6 +296,7 @@ pub fn insert_frame(
              VALUES (?1, ?2, 'reduced', ?3, ?4, ?5, ?6, ?7, ?8)",
             params![node, seq, payload, o.rx_time, o.source, line, r.flags.to_bits(), json],
         )?,
+        Frame::Status(_) => 0,
     };
     if n == 0 {
         return Ok(false);
@@ -208,6 +335,7 @@ pub fn insert_frame(
                 ])?;
             }
         }
+        Frame::Status(_) => {}
     }
     Ok(true)
 }
@@ -324,6 +452,7 @@ pub fn count(conn: &Connection, table: &str) -> rusqlite::Result<i64> {
         "reports" => "SELECT COUNT(*) FROM reports",
         "defects" => "SELECT COUNT(*) FROM defects",
         "rejects" => "SELECT COUNT(*) FROM rejects",
+        "node_status" => "SELECT COUNT(*) FROM node_status",
         _ => "SELECT COUNT(*) FROM baselines",
     };
     conn.query_row(sql, [], |r| r.get(0))

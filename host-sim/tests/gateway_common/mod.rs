@@ -46,6 +46,33 @@ pub fn reduced(node: u16, seq: u16, bpfo_db: f32) -> Vec<u8> {
     buf.to_vec()
 }
 
+/// A status frame of an invented node after a refused downlink.
+pub fn status(node: u16, seq: u16, counter: u32, refused: u8) -> Vec<u8> {
+    use dsp_core::frame::status::{
+        encode_status, BandSource, DownlinkResult, StatusReport, SurveyStatus,
+    };
+    let r = StatusReport {
+        node_id: node,
+        seq,
+        provisioned: true,
+        downlink_counter: counter,
+        last_downlink: if refused > 0 {
+            DownlinkResult::BadTag
+        } else {
+            DownlinkResult::ConfigApplied
+        },
+        refused_downlinks: refused,
+        survey: SurveyStatus::Stored,
+        band_source: BandSource::Survey,
+        band_hz: [2519.842, 5039.684],
+        band_kurtosis: 6.5,
+        ..StatusReport::default()
+    };
+    let mut buf = [0u8; 32];
+    let n = encode_status(&r, &mut buf).unwrap();
+    buf[..n].to_vec()
+}
+
 pub fn hex(b: &[u8]) -> String {
     b.iter().map(|x| format!("{x:02x}")).collect()
 }

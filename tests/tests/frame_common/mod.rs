@@ -75,6 +75,48 @@ pub fn random_report(rng: &mut Rng) -> FrameReport {
     r
 }
 
+/// A random status report (every defined code, bands from 1 Hz to 100 kHz,
+/// kurtosis from -3 to 400 or none; above 327.67 it saturates).
+pub fn random_status(rng: &mut Rng) -> dsp_core::frame::StatusReport {
+    use dsp_core::frame::status::{
+        BandSource, BootConfig, DownlinkResult, StatusReport, SurveyStatus,
+    };
+    let pick = |rng: &mut Rng, n: u64| rng.below(n) as u8;
+    let downlink = loop {
+        if let Some(d) = DownlinkResult::from_code(pick(rng, 26)) {
+            break d;
+        }
+    };
+    let lo = 10f32.powf(rng.range(0.0, 4.7));
+    StatusReport {
+        node_id: rng.next_u64() as u16,
+        seq: rng.next_u64() as u16,
+        flags: QualityFlags::from_bits(rng.next_u64() as u16 & 0x7F),
+        band_source: [
+            BandSource::Configured,
+            BandSource::Survey,
+            BandSource::Unset,
+        ][rng.below(3) as usize],
+        boot_config: [
+            BootConfig::Stored,
+            BootConfig::DefaultEmpty,
+            BootConfig::DefaultInvalid,
+        ][rng.below(3) as usize],
+        provisioned: rng.below(2) == 1,
+        downlink_counter: rng.next_u64() as u32,
+        last_downlink: downlink,
+        refused_downlinks: rng.next_u64() as u8,
+        survey: SurveyStatus::from_code(pick(rng, 9)).unwrap(),
+        band_hz: [lo, lo * rng.range(1.01, 4.0)],
+        band_kurtosis: if rng.below(4) == 0 {
+            f32::NAN
+        } else {
+            rng.range(-3.0, 400.0)
+        },
+        ..StatusReport::default()
+    }
+}
+
 pub fn to_hex(b: &[u8]) -> String {
     b.iter().map(|x| format!("{x:02x}")).collect()
 }
