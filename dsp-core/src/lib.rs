@@ -32,6 +32,7 @@
     )
 )]
 
+pub mod band_choice;
 pub mod biquad;
 pub mod config;
 pub mod decimate;

@@ -1,0 +1,89 @@
+//! The band survey ([`crate::survey`]) set up for a measuring point: one
+//! rule shared by the node's commissioning cycle and the host tools, so both
+//! choose the same band, bit for bit, from the same samples.
+//!
+//! The rule: the default [`SurveyConfig`] (octave and 1/3-octave bands from
+//! 1 kHz to 0.8 x Nyquist, 4 poles, 512 settling samples) with the narrowest
+//! band set to 3 x the highest watched defect line at the point's highest
+//! speed, so the chosen band passes the defect harmonics as sidebands of the
+//! resonance (common practice). Samples go in blocks of
+//! [`crate::pipeline::ADC_BLOCK`], as the node's DMA delivers them: the
+//! survey's running sums depend on the block boundaries, so the host feeds
+//! the same block length.
+//!
+//! ```
+//! use dsp_core::band_choice::{min_bandwidth_hz, new_survey};
+//! use dsp_core::config::PointConfig;
+//! // The default point watches no bearing: any band width is allowed.
+//! let point = PointConfig::default();
+//! assert_eq!(min_bandwidth_hz(&point), 0.0);
+//! assert!(new_survey(&point).unwrap().band_count() > 0);
+//! ```
+
+use crate::config::{PointConfig, SpeedInput};
+use crate::kinematics::ShaftRatio;
+use crate::survey::{BandSurvey, SurveyConfig, SurveyError};
+
+/// Narrowest band the survey may choose for `point`: 3 x the highest watched
+/// defect line (BPFO, BPFI, FTF, BSF of every bearing on its shaft) at the
+/// constant speed, or at `max_rpm` with a tach. 0 without bearings.
+pub fn min_bandwidth_hz(point: &PointConfig) -> f32 {
+    let rpm = match point.speed {
+        SpeedInput::Constant { rpm } => rpm,
+        SpeedInput::Tach { .. } => point.max_rpm,
+    };
+    let mut top = 0.0f32;
+    for b in &point.bearings {
+        let m = b.multiples().ok();
+        let ratio = point
+            .shafts
+            .get(usize::from(b.shaft))
+            .and_then(|s| ShaftRatio::new(s.ratio).ok());
+        if let (Some(m), Some(r)) = (m, ratio) {
+            for l in m.orders(r).lines() {
+                top = top.max(l * rpm / 60.0);
+            }
+        }
+    }
+    3.0 * top
+}
+
+/// The survey settings for `point` (see the module docs).
+pub fn survey_config(point: &PointConfig) -> SurveyConfig {
+    SurveyConfig {
+        min_bandwidth_hz: min_bandwidth_hz(point),
+        ..SurveyConfig::default()
+    }
+}
+
+/// A band survey for `point` at its sample rate, ready for blocks.
+pub fn new_survey(point: &PointConfig) -> Result<BandSurvey, SurveyError> {
+    BandSurvey::with_config(point.sample_rate_hz, survey_config(point))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::config::{name_from, Bearing, BearingKinematics};
+
+    #[test]
+    fn min_bandwidth_is_three_times_the_highest_line() {
+        let mut p = PointConfig::default();
+        p.bearings.clear();
+        assert_eq!(min_bandwidth_hz(&p), 0.0);
+        let _ = p.bearings.push(Bearing {
+            name: name_from("b"),
+            shaft: 0,
+            kinematics: BearingKinematics::Multiples {
+                bpfo_x: 3.0,
+                bpfi_x: 5.0,
+                ftf_x: 0.4,
+                bsf_x: 2.0,
+            },
+        });
+        p.speed = SpeedInput::Constant { rpm: 1200.0 };
+        // BPFI 5 orders at 20 Hz shaft speed: 100 Hz, times 3.
+        assert!((min_bandwidth_hz(&p) - 300.0).abs() < 1e-3);
+        assert_eq!(survey_config(&p).min_bandwidth_hz, min_bandwidth_hz(&p));
+    }
+}
