@@ -1,9 +1,9 @@
 //! The measuring-point configuration as a compact, versioned binary record.
 //!
-//! Layout, version 1, all fields little-endian (offsets in bytes):
+//! Layout, version 2, all fields little-endian (offsets in bytes):
 //!
 //! ```text
-//!  0 magic "EP"          2 version u8 = 1      3 total length u8 (incl. CRC)
+//!  0 magic "EP"          2 version u8 = 2      3 total length u8 (incl. CRC)
 //!  4 sample_rate_hz u32  8 band_lo_hz f32     12 band_hi_hz f32
 //! 16 poles u8           17 pulses_per_rev u8  18 record_revs u16
 //! 20 speed_min_rpm f32  24 speed_max_rpm f32  28 tach_tick_hz u32
@@ -11,8 +11,11 @@
 //! 40 clip_level i16     42 clip_permille u16  44 saturated_permille u16
 //! 46 low_battery_mv u16 48 alert_db f32       52 alarm_db f32
 //! 56 counts_to_g f32 (sensor and ADC sensitivity, g per count)
-//! 60 bearing count u8   61 reserved u8 = 0
-//! 62 bearings, 22 bytes each:
+//! 60 bearing count u8   61 band source u8: 0 configured, 1 chosen by the
+//!                          node's band survey, 2 none (band fields 0: the
+//!                          node surveys, meanwhile dsp-core's default band)
+//! 62 survey kurtosis f32 (source 1: spectral kurtosis of the band; else 0)
+//! 66 bearings, 22 bytes each:
 //!    +0 kind u8 (0 = defect orders given, 1 = geometry)  +1 rolling elements u8
 //!    +2 shaft_ratio f32 (bearing shaft speed / tach shaft speed)
 //!    +6 four f32: kind 0: BPFO, BPFI, FTF, BSF in orders of the bearing shaft
@@ -20,23 +23,49 @@
 //!  end: CRC-32 (ISO-HDLC) of all preceding bytes
 //! ```
 //!
+//! Version 1 records (no kurtosis field, byte 61 reserved and zero, bearings
+//! from offset 62) are still read, as configured bands.
+//!
 //! A record is decoded and validated in one step ([`PointRecord::decode`]);
-//! once it exists, its accessors cannot fail.
+//! once it exists, its accessors cannot fail. What the node stores is a
+//! [`StoredConfig`]: the record plus the replay counter of the downlink that
+//! brought it, in one write (crate::store).
 
 use crate::crc::crc32;
 use crate::quality::HealthLimits;
 use heapless::Vec;
 
 /// Format version written by this firmware.
-pub const VERSION: u8 = 1;
+pub const VERSION: u8 = 2;
+/// The previous version, still read.
+pub const VERSION_1: u8 = 1;
 /// Record magic.
 pub const MAGIC: [u8; 2] = *b"EP";
 /// Most bearings one measuring point describes.
 pub const MAX_BEARINGS: usize = 4;
-const HEADER_LEN: usize = 62;
+const HEADER_LEN: usize = 66;
+const HEADER_LEN_V1: usize = 62;
 const BEARING_LEN: usize = 22;
 /// Largest encoded record in bytes.
 pub const MAX_RECORD_LEN: usize = HEADER_LEN + MAX_BEARINGS * BEARING_LEN + 4;
+/// Largest stored configuration ([`StoredConfig`]: counter + record).
+pub const MAX_STORED_LEN: usize = 4 + MAX_RECORD_LEN;
+
+/// Where the envelope band of a record comes from.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum BandSource {
+    /// Set by the operator.
+    Configured,
+    /// Chosen by the node's band survey (commissioning).
+    Survey {
+        /// Spectral kurtosis of the chosen band (finite).
+        kurtosis: f32,
+    },
+    /// No band: the node runs a band survey; until one is stored it
+    /// measures with dsp-core's default band. The band fields are 0.
+    Unset,
+}
 
 /// How a bearing's defect frequencies are given.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -83,10 +112,12 @@ pub struct BearingSpec {
 pub struct PointRecord {
     /// ADC sample rate in Hz.
     pub sample_rate_hz: u32,
-    /// Band-pass lower edge in Hz.
+    /// Band-pass lower edge in Hz (0 when [`BandSource::Unset`]).
     pub band_lo_hz: f32,
-    /// Band-pass upper edge in Hz.
+    /// Band-pass upper edge in Hz (0 when [`BandSource::Unset`]).
     pub band_hi_hz: f32,
+    /// Where the band comes from.
+    pub band_source: BandSource,
     /// Band-pass order (poles), even.
     pub poles: u8,
     /// Tach pulses per revolution of the tach shaft.
@@ -136,6 +167,7 @@ impl Default for PointRecord {
             sample_rate_hz: 25_600,
             band_lo_hz: 2_000.0,
             band_hi_hz: 8_000.0,
+            band_source: BandSource::Configured,
             poles: 4,
             pulses_per_rev: 1,
             record_revs: 64,
@@ -269,12 +301,23 @@ impl PointRecord {
         )?;
         // u32 -> f32 is exact below 2^24, and the range above keeps it there
         let nyquist = f32::from(u16::try_from(self.sample_rate_hz / 2).unwrap_or(u16::MAX));
-        check(in_range(self.band_lo_hz, 1.0, nyquist), "band_lo_hz")?;
-        check(
-            in_range(self.band_hi_hz, self.band_lo_hz, nyquist)
-                && self.band_hi_hz > self.band_lo_hz,
-            "band_hi_hz",
-        )?;
+        if self.band_source == BandSource::Unset {
+            // canonical form, so decode(encode(x)) == x
+            check(
+                self.band_lo_hz == 0.0 && self.band_hi_hz == 0.0,
+                "band_lo_hz",
+            )?;
+        } else {
+            check(in_range(self.band_lo_hz, 1.0, nyquist), "band_lo_hz")?;
+            check(
+                in_range(self.band_hi_hz, self.band_lo_hz, nyquist)
+                    && self.band_hi_hz > self.band_lo_hz,
+                "band_hi_hz",
+            )?;
+        }
+        if let BandSource::Survey { kurtosis } = self.band_source {
+            check(in_range(kurtosis, -3.0, 1.0e6), "band_kurtosis")?;
+        }
         check(matches!(self.poles, 2 | 4 | 6 | 8), "poles")?;
         check((1..=64).contains(&self.pulses_per_rev), "pulses_per_rev")?;
         check((4..=1_000).contains(&self.record_revs), "record_revs")?;
@@ -374,7 +417,13 @@ impl PointRecord {
         w.put(&self.alert_db.to_le_bytes())?;
         w.put(&self.alarm_db.to_le_bytes())?;
         w.put(&self.counts_to_g.to_le_bytes())?;
-        w.put(&[count, 0])?;
+        let (source, kurtosis) = match self.band_source {
+            BandSource::Configured => (0u8, 0.0f32),
+            BandSource::Survey { kurtosis } => (1, kurtosis),
+            BandSource::Unset => (2, 0.0),
+        };
+        w.put(&[count, source])?;
+        w.put(&kurtosis.to_le_bytes())?;
         for b in &self.bearings {
             let (kind, elements, v) = match b.model {
                 BearingModel::Orders {
@@ -401,19 +450,21 @@ impl PointRecord {
         Ok(w.pos)
     }
 
-    /// Parses, checks the CRC, version and every range. Trailing bytes after
-    /// the declared length are ignored (storage pages are larger).
+    /// Parses, checks the CRC, version (1 or 2) and every range. Trailing
+    /// bytes after the declared length are ignored.
     pub fn decode(data: &[u8]) -> Result<Self, ConfigError> {
         let head = data.get(..4).ok_or(ConfigError::Truncated)?;
         if head.get(..2) != Some(&MAGIC[..]) {
             return Err(ConfigError::BadMagic);
         }
         let version = head.get(2).copied().unwrap_or(0);
-        if version != VERSION {
-            return Err(ConfigError::UnsupportedVersion(version));
-        }
+        let header_len = match version {
+            VERSION => HEADER_LEN,
+            VERSION_1 => HEADER_LEN_V1,
+            v => return Err(ConfigError::UnsupportedVersion(v)),
+        };
         let len = usize::from(head.get(3).copied().unwrap_or(0));
-        if len < HEADER_LEN + 4 {
+        if len < header_len + 4 {
             return Err(ConfigError::BadLength);
         }
         let record = data.get(..len).ok_or(ConfigError::Truncated)?;
@@ -450,10 +501,17 @@ impl PointRecord {
         let alarm_db = r.f32()?;
         let counts_to_g = r.f32()?;
         let count = usize::from(r.u8()?);
-        let _reserved = r.u8()?;
-        if count > MAX_BEARINGS || len != HEADER_LEN + count * BEARING_LEN + 4 {
+        let source = r.u8()?;
+        let kurtosis = if version == VERSION { r.f32()? } else { 0.0 };
+        if count > MAX_BEARINGS || len != header_len + count * BEARING_LEN + 4 {
             return Err(ConfigError::BadLength);
         }
+        let band_source = match (version, source) {
+            (VERSION_1, 0) | (VERSION, 0) if kurtosis == 0.0 => BandSource::Configured,
+            (VERSION, 1) => BandSource::Survey { kurtosis },
+            (VERSION, 2) if kurtosis == 0.0 => BandSource::Unset,
+            _ => return Err(ConfigError::OutOfRange("band_source")),
+        };
         let mut bearings = Vec::new();
         for _ in 0..count {
             let kind = r.u8()?;
@@ -483,6 +541,7 @@ impl PointRecord {
             sample_rate_hz,
             band_lo_hz,
             band_hi_hz,
+            band_source,
             poles,
             pulses_per_rev,
             record_revs,
@@ -500,6 +559,22 @@ impl PointRecord {
         };
         rec.validate()?;
         Ok(rec)
+    }
+
+    /// The band edges, when the record has one.
+    pub fn band_hz(&self) -> Option<[f32; 2]> {
+        (self.band_source != BandSource::Unset).then_some([self.band_lo_hz, self.band_hi_hz])
+    }
+
+    /// This record with the band a survey chose (`kurtosis` its spectral
+    /// kurtosis), validated.
+    pub fn with_survey_band(&self, band_hz: [f32; 2], kurtosis: f32) -> Result<Self, ConfigError> {
+        let mut r = self.clone();
+        r.band_lo_hz = band_hz[0];
+        r.band_hi_hz = band_hz[1];
+        r.band_source = BandSource::Survey { kurtosis };
+        r.validate()?;
+        Ok(r)
     }
 
     /// Blocks of `block_len` samples to record: `record_revs` revolutions at
@@ -528,4 +603,40 @@ fn ceil_to_u32(x: f64) -> u32 {
 fn f64_to_u32(x: f64) -> u32 {
     // float-to-int `as` saturates and maps NaN to 0 (Rust reference)
     x as u32
+}
+
+/// What the node stores in its configuration slot: the record and the replay
+/// counter of the downlink that last changed the node's state, written
+/// together so that a power cycle can never separate them.
+///
+/// Layout: counter u32 LE, then the [`PointRecord`] bytes.
+#[derive(Clone, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct StoredConfig {
+    /// Counter of the last accepted downlink (0 at provisioning).
+    pub counter: u32,
+    /// The configuration.
+    pub record: PointRecord,
+}
+
+impl StoredConfig {
+    /// Writes the counter and the validated record; returns the length.
+    pub fn encode(&self, buf: &mut [u8]) -> Result<usize, ConfigError> {
+        let (head, rest) = buf
+            .split_at_mut_checked(4)
+            .ok_or(ConfigError::BufferTooSmall)?;
+        head.copy_from_slice(&self.counter.to_le_bytes());
+        Ok(4 + self.record.encode(rest)?)
+    }
+
+    /// Reads what [`StoredConfig::encode`] wrote.
+    pub fn decode(data: &[u8]) -> Result<Self, ConfigError> {
+        let (head, rest) = data.split_at_checked(4).ok_or(ConfigError::Truncated)?;
+        let mut c = [0u8; 4];
+        c.copy_from_slice(head);
+        Ok(Self {
+            counter: u32::from_le_bytes(c),
+            record: PointRecord::decode(rest)?,
+        })
+    }
 }

@@ -10,27 +10,52 @@
 //! state with mock hardware. Blocks go to the core as they arrive; no raw
 //! record is kept. Any hardware or core error powers the sensor down, stops
 //! the drivers and returns to `Sleep` without feeding the watchdog.
+//!
+//! A cycle is a measurement or a commissioning survey ([`CycleKind`]). A
+//! survey cycle runs when the configuration has no band (once per boot and
+//! configuration) or when an authenticated `0x04` downlink asks for one: the
+//! same states, but the blocks feed the core's band survey, `Finish` stores
+//! the chosen band in the configuration, and the uplink is the status frame
+//! ([`dsp_core::frame::status`]) that reports it.
+//!
+//! Downlinks are verified before they are parsed ([`downlink::open`]); a
+//! refused one changes nothing and is counted. The node sends a status
+//! frame after the report of the first cycle after boot and of the cycle
+//! after any downlink, so the gateway sees what became of it.
 
-use crate::config::{PointRecord, MAX_RECORD_LEN};
+use crate::commission::{CommissionError, SurveyChoice};
+use crate::config::{BandSource, PointRecord, StoredConfig, MAX_STORED_LEN};
 use crate::crc::crc32;
 use crate::downlink::{self, Command, DownlinkError, MAX_BASELINE_LEN};
+use crate::downlink_auth::AuthError;
 use crate::hal::{
     Alarm, Battery, BlockSource, MeasurementCore, PulseCapture, RadioLink, Slot, Storage,
     WakeReason, Watchdog,
 };
+use crate::identity::{Identity, IDENTITY_LEN};
 use crate::log::{log_info, log_warn};
 use crate::quality::{QualityFlags, SignalHealth};
+use dsp_core::frame::status::{
+    encode_status, BandSource as FrameBandSource, BootConfig, DownlinkResult, StatusReport,
+    SurveyStatus,
+};
+use dsp_core::frame::QualityFlags as FrameFlags;
+use dsp_core::survey::SurveyError;
 use embedded_hal::delay::DelayNs;
 use embedded_hal::digital::OutputPin;
 
 /// Capacity of the uplink frame buffer (frames are at most 51 bytes).
 pub const FRAME_CAPACITY: usize = 64;
-/// Largest downlink accepted (command byte + largest record).
-pub const DOWNLINK_CAPACITY: usize = 1 + if MAX_RECORD_LEN > MAX_BASELINE_LEN {
-    MAX_RECORD_LEN
-} else {
-    MAX_BASELINE_LEN
-};
+/// Largest downlink accepted (authentication header and tag, command byte,
+/// largest record).
+pub const DOWNLINK_CAPACITY: usize = crate::downlink_auth::HEADER_LEN
+    + crate::downlink_auth::TAG_LEN
+    + 1
+    + if crate::config::MAX_RECORD_LEN > MAX_BASELINE_LEN {
+        crate::config::MAX_RECORD_LEN
+    } else {
+        MAX_BASELINE_LEN
+    };
 /// Upper bound on blocks per record whatever the configuration says.
 pub const MAX_RECORD_BLOCKS: u32 = 4_096;
 
@@ -72,6 +97,8 @@ pub enum Fault {
     Core,
     /// The radio failed to send or receive.
     Radio,
+    /// The status frame could not be encoded.
+    Status,
 }
 
 /// A cycle aborted in `state` because of `fault`.
@@ -108,22 +135,102 @@ pub enum ConfigSource {
     DefaultInvalid,
 }
 
-/// What became of the last downlink.
+/// What a cycle does with its blocks.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum CycleKind {
+    /// A measurement: report frame (and a status frame when one is due).
+    Measure,
+    /// A commissioning band survey: status frame with the chosen band.
+    Survey,
+}
+
+/// What became of a downlink.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub enum DownlinkOutcome {
     /// No downlink in the last receive window.
     None,
-    /// New configuration validated, stored and in use.
+    /// New configuration validated, stored with its counter and in use.
     ConfigApplied,
     /// Measure-now request accepted.
     MeasureNow,
+    /// Band survey request accepted: it runs in the next cycle.
+    SurveyRequested,
     /// New baseline accepted by the core and stored.
     BaselineApplied,
     /// Refused; everything kept as it was.
     Refused(DownlinkError),
-    /// Valid, but storage or the core failed; old values kept.
+    /// Authentic and valid, but storage or the core failed; old values kept.
     NotStored,
+}
+
+impl DownlinkOutcome {
+    /// The code the status frame carries.
+    pub fn result(self) -> DownlinkResult {
+        match self {
+            Self::None => DownlinkResult::None,
+            Self::ConfigApplied => DownlinkResult::ConfigApplied,
+            Self::MeasureNow => DownlinkResult::MeasureNow,
+            Self::SurveyRequested => DownlinkResult::SurveyRequested,
+            Self::BaselineApplied => DownlinkResult::BaselineApplied,
+            Self::NotStored => DownlinkResult::NotStored,
+            Self::Refused(e) => match e {
+                DownlinkError::NotProvisioned => DownlinkResult::NotProvisioned,
+                DownlinkError::Auth(a) => match a {
+                    AuthError::TooShort { .. } => DownlinkResult::Truncated,
+                    AuthError::UnknownVersion(_) => DownlinkResult::UnknownVersion,
+                    AuthError::WrongNode { .. } => DownlinkResult::WrongNode,
+                    AuthError::BadTag => DownlinkResult::BadTag,
+                    AuthError::Replayed { .. } => DownlinkResult::Replayed,
+                },
+                DownlinkError::Empty => DownlinkResult::EmptyCommand,
+                DownlinkError::UnknownCommand(_) => DownlinkResult::UnknownCommand,
+                DownlinkError::Config(_) => DownlinkResult::InvalidConfig,
+                DownlinkError::BadBaseline => DownlinkResult::InvalidBaseline,
+            },
+        }
+    }
+}
+
+/// What became of the last band survey.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum SurveyOutcome {
+    /// No survey since boot.
+    NotRun,
+    /// Band chosen, stored in the configuration and in use.
+    Stored(SurveyChoice),
+    /// Band chosen but storing it failed: the configuration is unchanged.
+    NotStored(SurveyChoice),
+    /// The capture was clipped, flat or overrun (these flags): discarded.
+    SignalFault(QualityFlags),
+    /// The survey could not run or choose.
+    Failed(CommissionError),
+}
+
+impl SurveyOutcome {
+    /// The code the status frame carries.
+    pub fn status(self) -> SurveyStatus {
+        match self {
+            Self::NotRun => SurveyStatus::NotRun,
+            Self::Stored(_) => SurveyStatus::Stored,
+            Self::NotStored(_) => SurveyStatus::NotStored,
+            Self::SignalFault(_) => SurveyStatus::SignalFault,
+            Self::Failed(e) => match e {
+                CommissionError::Unsupported | CommissionError::NotStarted => {
+                    SurveyStatus::Unsupported
+                }
+                CommissionError::Point(_) => SurveyStatus::Config,
+                CommissionError::Survey(s) => match s {
+                    SurveyError::Flat => SurveyStatus::Flat,
+                    SurveyError::TooFewSamples => SurveyStatus::TooFewSamples,
+                    SurveyError::NoBand => SurveyStatus::NoBand,
+                    SurveyError::SampleRate | SurveyError::Config => SurveyStatus::Config,
+                },
+            },
+        }
+    }
 }
 
 /// Figures of the last completed (or aborted) cycle.
@@ -132,6 +239,8 @@ pub enum DownlinkOutcome {
 pub struct CycleSummary {
     /// Why the cycle ran.
     pub reason: WakeReason,
+    /// Measurement or band survey.
+    pub kind: CycleKind,
     /// Quality flags put into the frame.
     pub flags: QualityFlags,
     /// Blocks pushed to the core.
@@ -142,6 +251,9 @@ pub struct CycleSummary {
     pub edges: u32,
     /// Bytes of the frame sent (0 if none).
     pub frame_len: usize,
+    /// A status frame went out in this cycle (after the report, or as the
+    /// survey cycle's only frame).
+    pub status_sent: bool,
     /// Battery voltage read under load, mV.
     pub battery_mv: u16,
     /// The fault that aborted the cycle, if any.
@@ -151,14 +263,16 @@ pub struct CycleSummary {
 }
 
 impl CycleSummary {
-    const fn new(reason: WakeReason) -> Self {
+    const fn new(reason: WakeReason, kind: CycleKind) -> Self {
         Self {
             reason,
+            kind,
             flags: QualityFlags::empty(),
             blocks: 0,
             overruns: 0,
             edges: 0,
             frame_len: 0,
+            status_sent: false,
             battery_mv: 0,
             fault: None,
             fed_watchdog: false,
@@ -188,19 +302,71 @@ pub struct Devices<S, P, R, A, St, B, W, Pw, D> {
     pub delay: D,
 }
 
+/// Downlink and survey bookkeeping since boot, for the status frame.
+#[derive(Clone, Copy, Debug)]
+struct LinkState {
+    /// Result of the last downlink since boot.
+    last_downlink: DownlinkOutcome,
+    /// Downlinks refused since boot.
+    refused: u8,
+    /// Result of the last survey since boot.
+    survey: SurveyOutcome,
+    /// A survey was asked for by a downlink.
+    survey_requested: bool,
+    /// A survey already ran for the present (unset) band since boot or the
+    /// last configuration change: not retried every cycle.
+    survey_tried: bool,
+    /// A status frame goes out with the next uplink.
+    status_pending: bool,
+    /// Sequence number of the next status frame.
+    status_seq: u16,
+}
+
 /// The node: devices, core, configuration and the cycle state.
 pub struct Node<S, P, R, A, St, B, W, Pw, D, C> {
     dev: Devices<S, P, R, A, St, B, W, Pw, D>,
     core: C,
     config: PointRecord,
+    counter: u32,
+    identity: Option<Identity>,
     config_source: ConfigSource,
     state: State,
+    kind: CycleKind,
     health: SignalHealth,
     summary: CycleSummary,
     blocks_wanted: u32,
     measure_now: bool,
     downlink: DownlinkOutcome,
+    link: LinkState,
     frame: [u8; FRAME_CAPACITY],
+}
+
+/// Firmware flags as the frame's flag field.
+pub fn frame_flags(f: QualityFlags) -> FrameFlags {
+    FrameFlags {
+        tach_missing: f.contains(QualityFlags::TACH_MISSING),
+        clipping: f.contains(QualityFlags::CLIPPING),
+        sensor_fault: f.contains(QualityFlags::SENSOR_FAULT),
+        processing_overrun: f.contains(QualityFlags::PROCESSING_OVERRUN),
+        low_battery: f.contains(QualityFlags::LOW_BATTERY),
+        ..FrameFlags::default()
+    }
+}
+
+/// The band a record measures with: its own, or dsp-core's default band for
+/// its sample rate when it has none.
+pub fn band_in_use(config: &PointRecord) -> [f32; 2] {
+    match config.band_hz() {
+        Some(b) => b,
+        None => {
+            let mut p = dsp_core::config::PointConfig::default();
+            // validated range 1 kHz..200 kHz: exact in f32
+            p.sample_rate_hz = f32::from(u16::try_from(config.sample_rate_hz / 10).unwrap_or(0))
+                * 10.0
+                + f32::from(u8::try_from(config.sample_rate_hz % 10).unwrap_or(0));
+            p.default_band_hz()
+        }
+    }
 }
 
 impl<S, P, R, A, St, B, W, Pw, D, C> Node<S, P, R, A, St, B, W, Pw, D, C>
@@ -216,21 +382,41 @@ where
     D: DelayNs,
     C: MeasurementCore,
 {
-    /// Boots: loads and checks the stored configuration (falling back to the
-    /// built-in default when it is missing or invalid) and the stored
-    /// baseline, switches the sensor off and starts in `Sleep`.
+    /// Boots: reads the provisioned identity (without one every downlink is
+    /// refused), loads and checks the stored configuration and its replay
+    /// counter (falling back to the built-in default, counter 0, when it is
+    /// missing or invalid) and the stored baseline, switches the sensor off
+    /// and starts in `Sleep`.
     pub fn new(mut dev: Devices<S, P, R, A, St, B, W, Pw, D>, mut core: C) -> Self {
         // Sensor off first: a failing pin shows up again at PowerSensor.
         let _ = dev.power.set_low();
-        let mut buf = [0u8; MAX_RECORD_LEN];
-        let (config, config_source) = match dev.storage.load(Slot::Config, &mut buf) {
-            Ok(0) => (PointRecord::default(), ConfigSource::DefaultEmpty),
-            Ok(n) => match buf.get(..n).map(PointRecord::decode) {
-                Some(Ok(c)) => (c, ConfigSource::Stored),
-                _ => (PointRecord::default(), ConfigSource::DefaultInvalid),
-            },
-            Err(_) => (PointRecord::default(), ConfigSource::DefaultInvalid),
+        let mut idb = [0u8; IDENTITY_LEN];
+        let identity = match dev.storage.load(Slot::Identity, &mut idb) {
+            Ok(0) => None,
+            Ok(n) => idb.get(..n).and_then(|b| Identity::decode(b).ok()),
+            Err(_) => None,
         };
+        if let Some(id) = &identity {
+            core.set_node_id(id.node_id());
+        } else {
+            log_warn!("no valid identity: downlinks will be refused");
+        }
+        let mut buf = [0u8; MAX_STORED_LEN];
+        let (stored, config_source) = match dev.storage.load(Slot::Config, &mut buf) {
+            Ok(0) => (None, ConfigSource::DefaultEmpty),
+            Ok(n) => match buf.get(..n).map(StoredConfig::decode) {
+                Some(Ok(c)) => (Some(c), ConfigSource::Stored),
+                _ => (None, ConfigSource::DefaultInvalid),
+            },
+            Err(_) => (None, ConfigSource::DefaultInvalid),
+        };
+        let StoredConfig {
+            counter,
+            record: config,
+        } = stored.unwrap_or(StoredConfig {
+            counter: 0,
+            record: PointRecord::default(),
+        });
         let mut bl = [0u8; MAX_BASELINE_LEN + 4];
         if let Ok(n) = dev.storage.load(Slot::Baseline, &mut bl) {
             if let Some(payload) = bl.get(..n).and_then(unseal) {
@@ -239,18 +425,31 @@ where
                 }
             }
         }
-        log_info!("boot: config {}", config_source);
+        log_info!("boot: config {}, counter {}", config_source, counter);
         Self {
             dev,
             core,
             config,
+            counter,
+            identity,
             config_source,
             state: State::Sleep,
+            kind: CycleKind::Measure,
             health: SignalHealth::new(),
-            summary: CycleSummary::new(WakeReason::Schedule),
+            summary: CycleSummary::new(WakeReason::Schedule, CycleKind::Measure),
             blocks_wanted: 0,
             measure_now: false,
             downlink: DownlinkOutcome::None,
+            link: LinkState {
+                last_downlink: DownlinkOutcome::None,
+                refused: 0,
+                survey: SurveyOutcome::NotRun,
+                survey_requested: false,
+                survey_tried: false,
+                // the gateway learns of every boot
+                status_pending: true,
+                status_seq: 0,
+            },
             frame: [0; FRAME_CAPACITY],
         }
     }
@@ -265,6 +464,16 @@ where
         &self.config
     }
 
+    /// Replay counter stored with the configuration.
+    pub fn counter(&self) -> u32 {
+        self.counter
+    }
+
+    /// Node id of the provisioned identity, if any.
+    pub fn node_id(&self) -> Option<u16> {
+        self.identity.as_ref().map(Identity::node_id)
+    }
+
     /// Where the configuration came from at boot.
     pub fn config_source(&self) -> ConfigSource {
         self.config_source
@@ -275,12 +484,23 @@ where
         &self.summary
     }
 
-    /// What became of the last downlink.
+    /// What became of the downlink of the last receive window.
     pub fn downlink(&self) -> DownlinkOutcome {
         self.downlink
     }
 
-    /// The last frame sent (empty before the first).
+    /// Downlinks refused since boot (saturating).
+    pub fn refused_downlinks(&self) -> u8 {
+        self.link.refused
+    }
+
+    /// What became of the last band survey since boot.
+    pub fn survey(&self) -> SurveyOutcome {
+        self.link.survey
+    }
+
+    /// The last frame the cycle built (report, or status in a survey
+    /// cycle; empty before the first).
     pub fn frame(&self) -> &[u8] {
         self.frame.get(..self.summary.frame_len).unwrap_or(&[])
     }
@@ -296,9 +516,51 @@ where
         &self.dev
     }
 
+    /// Gives the devices back (tests: a reboot over the same storage).
+    pub fn into_devices(self) -> Devices<S, P, R, A, St, B, W, Pw, D> {
+        self.dev
+    }
+
     /// The core.
     pub fn core(&self) -> &C {
         &self.core
+    }
+
+    /// The status the next status frame would carry (sequence number
+    /// included; the flags are those of the last cycle).
+    pub fn status(&self) -> StatusReport {
+        let (band_source, band_kurtosis) = match self.config.band_source {
+            BandSource::Configured => (FrameBandSource::Configured, f32::NAN),
+            BandSource::Survey { kurtosis } => (FrameBandSource::Survey, kurtosis),
+            BandSource::Unset => (FrameBandSource::Unset, f32::NAN),
+        };
+        StatusReport {
+            node_id: self.node_id().unwrap_or(0),
+            seq: self.link.status_seq,
+            flags: frame_flags(self.summary.flags),
+            band_source,
+            boot_config: match self.config_source {
+                ConfigSource::Stored => BootConfig::Stored,
+                ConfigSource::DefaultEmpty => BootConfig::DefaultEmpty,
+                ConfigSource::DefaultInvalid => BootConfig::DefaultInvalid,
+            },
+            provisioned: self.identity.is_some(),
+            downlink_counter: self.counter,
+            last_downlink: self.link.last_downlink.result(),
+            refused_downlinks: self.link.refused,
+            survey: self.link.survey.status(),
+            band_hz: band_in_use(&self.config),
+            band_kurtosis,
+            ..StatusReport::default()
+        }
+    }
+
+    /// Encodes the status frame into `out` and advances its sequence number.
+    fn encode_status_frame(&mut self, out: &mut [u8]) -> Result<usize, Fault> {
+        let n = encode_status(&self.status(), out).map_err(|_| Fault::Status)?;
+        self.link.status_seq = self.link.status_seq.wrapping_add(1);
+        self.link.status_pending = false;
+        Ok(n)
     }
 
     /// Performs one transition and returns the new state. On a fault the
@@ -335,7 +597,8 @@ where
     fn transition(&mut self, from: State) -> Result<State, Fault> {
         Ok(match from {
             State::Sleep => {
-                let reason = if core::mem::take(&mut self.measure_now) {
+                let now = core::mem::take(&mut self.measure_now) || self.link.survey_requested;
+                let reason = if now {
                     WakeReason::Command
                 } else {
                     self.dev.alarm.sleep(self.config.interval_s)
@@ -343,11 +606,24 @@ where
                 State::Wake(reason)
             }
             State::Wake(reason) => {
-                self.summary = CycleSummary::new(reason);
+                let unset = self.config.band_source == BandSource::Unset;
+                self.kind = if core::mem::take(&mut self.link.survey_requested)
+                    || (unset && !self.link.survey_tried)
+                {
+                    CycleKind::Survey
+                } else {
+                    CycleKind::Measure
+                };
+                self.summary = CycleSummary::new(reason, self.kind);
                 self.health = SignalHealth::new();
                 self.downlink = DownlinkOutcome::None;
                 self.blocks_wanted = self.blocks_wanted();
-                log_info!("wake {}: {} blocks", reason, self.blocks_wanted);
+                log_info!(
+                    "wake {}: {} of {} blocks",
+                    reason,
+                    self.kind,
+                    self.blocks_wanted
+                );
                 State::PowerSensor
             }
             State::PowerSensor => {
@@ -362,8 +638,20 @@ where
                 if mv < self.config.low_battery_mv {
                     self.summary.flags.insert(QualityFlags::LOW_BATTERY);
                 }
-                self.core.start(&self.config).map_err(|_| Fault::Core)?;
-                self.dev.capture.start().map_err(|_| Fault::Capture)?;
+                match self.kind {
+                    CycleKind::Measure => {
+                        self.core.start(&self.config).map_err(|_| Fault::Core)?;
+                        self.dev.capture.start().map_err(|_| Fault::Capture)?;
+                    }
+                    CycleKind::Survey => {
+                        if let Err(e) = self.core.start_survey(&self.config) {
+                            // nothing to capture: report why, sensor off
+                            self.dev.power.set_low().map_err(|_| Fault::PowerPin)?;
+                            self.end_survey(SurveyOutcome::Failed(e));
+                            return Ok(State::Encode);
+                        }
+                    }
+                }
                 self.dev.source.start().map_err(|_| Fault::Source)?;
                 State::Acquire
             }
@@ -373,19 +661,24 @@ where
                     self.summary.overruns = self.summary.overruns.saturating_add(1);
                     self.summary.flags.insert(QualityFlags::PROCESSING_OVERRUN);
                 }
-                // edges captured up to now happened during or before this
-                // block: the core gets them first (as the host simulator does)
-                while let Some(tick) = self.dev.capture.next_edge() {
-                    self.core.push_edge(tick);
-                    self.summary.edges = self.summary.edges.saturating_add(1);
+                if self.kind == CycleKind::Measure {
+                    // edges captured up to now happened during or before this
+                    // block: the core gets them first (as the host simulator does)
+                    while let Some(tick) = self.dev.capture.next_edge() {
+                        self.core.push_edge(tick);
+                        self.summary.edges = self.summary.edges.saturating_add(1);
+                    }
                 }
                 self.health
                     .observe(block.samples, self.config.health.clip_level);
                 self.core.push_block(block.samples);
                 self.summary.blocks = self.summary.blocks.saturating_add(1);
-                if self.summary.blocks >= self.blocks_wanted || self.core.complete() {
+                let early = self.kind == CycleKind::Measure && self.core.complete();
+                if self.summary.blocks >= self.blocks_wanted || early {
                     self.dev.source.stop();
-                    self.dev.capture.stop();
+                    if self.kind == CycleKind::Measure {
+                        self.dev.capture.stop();
+                    }
                     self.dev.power.set_low().map_err(|_| Fault::PowerPin)?;
                     State::Finish
                 } else {
@@ -395,17 +688,36 @@ where
             State::Finish => {
                 let f = self.health.flags(&self.config.health);
                 self.summary.flags.insert(f);
-                // one edge gives no period: speed unknown (tach loss)
-                if self.summary.edges < 2 {
-                    self.summary.flags.insert(QualityFlags::TACH_MISSING);
+                match self.kind {
+                    CycleKind::Measure => {
+                        // one edge gives no period: speed unknown (tach loss)
+                        if self.summary.edges < 2 {
+                            self.summary.flags.insert(QualityFlags::TACH_MISSING);
+                        }
+                        self.core
+                            .finish(self.summary.flags)
+                            .map_err(|_| Fault::Core)?;
+                    }
+                    CycleKind::Survey => {
+                        let outcome = self.survey_outcome();
+                        self.end_survey(outcome);
+                    }
                 }
-                self.core
-                    .finish(self.summary.flags)
-                    .map_err(|_| Fault::Core)?;
                 State::Encode
             }
             State::Encode => {
-                let n = self.core.encode(&mut self.frame).map_err(|_| Fault::Core)?;
+                let n = match self.kind {
+                    CycleKind::Measure => {
+                        self.core.encode(&mut self.frame).map_err(|_| Fault::Core)?
+                    }
+                    CycleKind::Survey => {
+                        let mut buf = [0u8; FRAME_CAPACITY];
+                        let n = self.encode_status_frame(&mut buf)?;
+                        self.frame = buf;
+                        self.summary.status_sent = true;
+                        n
+                    }
+                };
                 self.summary.frame_len = n.min(FRAME_CAPACITY);
                 State::Transmit
             }
@@ -413,6 +725,13 @@ where
                 let frame = self.frame.get(..self.summary.frame_len).unwrap_or(&[]);
                 self.dev.radio.send(frame).map_err(|_| Fault::Radio)?;
                 log_info!("sent {} bytes, flags {}", frame.len(), self.summary.flags);
+                if self.link.status_pending {
+                    let mut buf = [0u8; FRAME_CAPACITY];
+                    let n = self.encode_status_frame(&mut buf)?;
+                    let status = buf.get(..n).unwrap_or(&[]);
+                    self.dev.radio.send(status).map_err(|_| Fault::Radio)?;
+                    self.summary.status_sent = true;
+                }
                 State::Listen
             }
             State::Listen => {
@@ -437,31 +756,125 @@ where
         })
     }
 
-    /// Applies one downlink message; a refused one changes nothing.
-    pub fn apply_downlink(&mut self, msg: &[u8]) -> DownlinkOutcome {
-        match downlink::parse(msg) {
-            Err(e) => DownlinkOutcome::Refused(e),
-            Ok(Command::MeasureNow) => {
-                self.measure_now = true;
-                DownlinkOutcome::MeasureNow
+    /// The survey's choice, unless the capture was unhealthy.
+    fn survey_outcome(&mut self) -> SurveyOutcome {
+        let choice = match self.core.finish_survey() {
+            Ok(c) => c,
+            Err(e) => return SurveyOutcome::Failed(e),
+        };
+        // a clipped, dead or gapped capture makes its kurtosis meaningless
+        let mut bad = QualityFlags::empty();
+        for f in [
+            QualityFlags::CLIPPING,
+            QualityFlags::SENSOR_FAULT,
+            QualityFlags::PROCESSING_OVERRUN,
+        ] {
+            if self.summary.flags.contains(f) {
+                bad.insert(f);
             }
-            Ok(Command::SetConfig(rec)) => {
-                let mut buf = [0u8; MAX_RECORD_LEN];
-                let stored = rec
-                    .encode(&mut buf)
-                    .ok()
-                    .and_then(|n| buf.get(..n))
-                    .map(|bytes| self.dev.storage.store(Slot::Config, bytes).is_ok());
-                if stored == Some(true) {
+        }
+        if !bad.is_empty() {
+            return SurveyOutcome::SignalFault(bad);
+        }
+        match self
+            .config
+            .with_survey_band(choice.band_hz, choice.kurtosis)
+        {
+            Ok(rec) if self.store_config(self.counter, &rec) => {
+                self.config = rec;
+                SurveyOutcome::Stored(choice)
+            }
+            Ok(_) => SurveyOutcome::NotStored(choice),
+            Err(_) => SurveyOutcome::Failed(CommissionError::Survey(SurveyError::NoBand)),
+        }
+    }
+
+    fn end_survey(&mut self, outcome: SurveyOutcome) {
+        log_info!("survey {}", outcome);
+        self.link.survey = outcome;
+        self.link.survey_tried = true;
+        self.link.status_pending = true;
+    }
+
+    /// Writes the configuration with its counter in one record.
+    fn store_config(&mut self, counter: u32, record: &PointRecord) -> bool {
+        let mut buf = [0u8; MAX_STORED_LEN];
+        let stored = StoredConfig {
+            counter,
+            record: record.clone(),
+        };
+        stored
+            .encode(&mut buf)
+            .ok()
+            .and_then(|n| buf.get(..n))
+            .is_some_and(|bytes| self.dev.storage.store(Slot::Config, bytes).is_ok())
+    }
+
+    /// Advances the stored counter (same record, new counter) before a
+    /// command that changes no configuration takes effect, so it cannot be
+    /// replayed after a power cycle either.
+    fn commit_counter(&mut self, counter: u32) -> bool {
+        let record = self.config.clone();
+        let ok = self.store_config(counter, &record);
+        if ok {
+            self.counter = counter;
+        }
+        ok
+    }
+
+    /// Applies one received downlink: verified under the node's key first
+    /// ([`downlink::open`]), then parsed. A refused one changes nothing and
+    /// is counted; either way a status frame goes out with the next uplink.
+    pub fn apply_downlink(&mut self, msg: &[u8]) -> DownlinkOutcome {
+        let outcome = self.apply_verified(msg);
+        if let DownlinkOutcome::Refused(_e) = outcome {
+            log_warn!("downlink refused: {}", _e);
+            self.link.refused = self.link.refused.saturating_add(1);
+        }
+        self.link.last_downlink = outcome;
+        self.link.status_pending = true;
+        outcome
+    }
+
+    fn apply_verified(&mut self, msg: &[u8]) -> DownlinkOutcome {
+        let (counter, cmd) = match downlink::open(self.identity.as_ref(), self.counter, msg) {
+            Ok(x) => x,
+            Err(e) => return DownlinkOutcome::Refused(e),
+        };
+        match cmd {
+            Command::SetConfig(rec) => {
+                if self.store_config(counter, &rec) {
                     self.config = rec;
+                    self.counter = counter;
+                    // a new configuration without a band gets its survey
+                    self.link.survey_tried = false;
                     DownlinkOutcome::ConfigApplied
                 } else {
                     DownlinkOutcome::NotStored
                 }
             }
-            Ok(Command::SetBaseline(data)) => {
+            Command::MeasureNow => {
+                if self.commit_counter(counter) {
+                    self.measure_now = true;
+                    DownlinkOutcome::MeasureNow
+                } else {
+                    DownlinkOutcome::NotStored
+                }
+            }
+            Command::Survey => {
+                if self.commit_counter(counter) {
+                    self.link.survey_requested = true;
+                    DownlinkOutcome::SurveyRequested
+                } else {
+                    DownlinkOutcome::NotStored
+                }
+            }
+            Command::SetBaseline(data) => {
                 if self.core.load_baseline(data).is_err() {
                     return DownlinkOutcome::Refused(DownlinkError::BadBaseline);
+                }
+                if !self.commit_counter(counter) {
+                    return DownlinkOutcome::NotStored;
                 }
                 let mut buf = [0u8; MAX_BASELINE_LEN + 4];
                 match seal(data, &mut buf) {

@@ -4,6 +4,7 @@
 //! The sensor power switch and the settling delay use embedded-hal 1.0
 //! traits directly (`OutputPin`, `DelayNs`).
 
+use crate::commission::{CommissionError, SurveyChoice};
 use crate::config::PointRecord;
 use crate::quality::QualityFlags;
 
@@ -87,6 +88,9 @@ pub enum Slot {
     Config,
     /// The baseline the core compares against (opaque to the firmware).
     Baseline,
+    /// The node's identity (node id and downlink key,
+    /// [`crate::identity`]), written at provisioning. The node only reads it.
+    Identity,
 }
 
 /// Persistent storage (flash pages, EEPROM, FRAM).
@@ -95,7 +99,9 @@ pub trait Storage {
     type Error;
     /// Copies a stored record into `buf`; `Ok(0)` when the slot is empty.
     fn load(&mut self, slot: Slot, buf: &mut [u8]) -> Result<usize, Self::Error>;
-    /// Replaces a stored record.
+    /// Replaces a stored record. A power loss during `store` must leave the
+    /// old record or the new one loadable, never a mix
+    /// ([`crate::store::FlashStore`] does this on NOR flash).
     fn store(&mut self, slot: Slot, data: &[u8]) -> Result<(), Self::Error>;
 }
 
@@ -136,6 +142,18 @@ pub trait MeasurementCore {
     fn finish(&mut self, flags: QualityFlags) -> Result<(), Self::Error>;
     /// Encodes the finished report; returns the number of bytes written.
     fn encode(&mut self, frame: &mut [u8]) -> Result<usize, Self::Error>;
+    /// Takes the node id from the provisioned identity (called at boot).
+    fn set_node_id(&mut self, _node_id: u16) {}
+    /// Starts a band survey (commissioning) over the next blocks, which
+    /// `push_block` then feeds to it instead of the measurement. Cores
+    /// without a survey refuse.
+    fn start_survey(&mut self, _config: &PointRecord) -> Result<(), CommissionError> {
+        Err(CommissionError::Unsupported)
+    }
+    /// Ends the survey and returns its choice.
+    fn finish_survey(&mut self) -> Result<SurveyChoice, CommissionError> {
+        Err(CommissionError::Unsupported)
+    }
 }
 
 /// A core held by reference (e.g. a large core placed in a `static`).
@@ -161,5 +179,14 @@ impl<C: MeasurementCore + ?Sized> MeasurementCore for &mut C {
     }
     fn encode(&mut self, frame: &mut [u8]) -> Result<usize, Self::Error> {
         (**self).encode(frame)
+    }
+    fn set_node_id(&mut self, node_id: u16) {
+        (**self).set_node_id(node_id);
+    }
+    fn start_survey(&mut self, config: &PointRecord) -> Result<(), CommissionError> {
+        (**self).start_survey(config)
+    }
+    fn finish_survey(&mut self) -> Result<SurveyChoice, CommissionError> {
+        (**self).finish_survey()
     }
 }

@@ -5,7 +5,12 @@
 //! * [`hal`]: the small hardware traits boards implement, and the
 //!   [`hal::MeasurementCore`] trait the DSP core is adapted to.
 //! * [`config`]: the measuring-point configuration as a versioned, CRC-checked
-//!   binary record; [`downlink`]: commands that replace it.
+//!   binary record; [`downlink`]: commands that replace it, accepted only
+//!   when [`downlink_auth`] verifies them under the node's key
+//!   ([`identity`], written at provisioning).
+//! * [`store`]: power-safe record storage on NOR flash (two pages per record,
+//!   sequence number and CRC, newest valid copy wins).
+//! * [`commission`]: the band survey that chooses the envelope band on the node.
 //! * [`quality`]: quality flags and streamed signal-health checks.
 //! * [`crc`]: CRC-32 for stored records.
 //! * [`pipeline_core`]: the adapter to the `dsp-core` pipeline and frame codec.
@@ -27,14 +32,17 @@
     )
 )]
 
+pub mod commission;
 pub mod config;
 pub mod crc;
 pub mod cycle;
 pub mod downlink;
 pub mod downlink_auth;
 pub mod hal;
+pub mod identity;
 mod log;
 pub mod overall_core;
 pub mod pipeline_core;
 pub mod point;
 pub mod quality;
+pub mod store;

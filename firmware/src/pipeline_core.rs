@@ -8,11 +8,16 @@
 //!   [`Report`]; `encode` fills a [`FrameReport`] and packs the full frame
 //!   (`dsp_core::frame::encode`, at most 58 bytes for 4 bearings).
 //!
+//! * `start_survey` swaps the pipeline for a band survey
+//!   ([`crate::commission::Commissioning`]) that takes the blocks instead,
+//!   until `finish_survey`.
+//!
 //! Report flags without a frame bit: SPEED_UNSTABLE is sent as
 //! `tach_irregular` and NON_FINITE as `sensor_fault`; INCOMPLETE,
 //! TOO_FEW_REVS and RESAMPLER make the report unanalysable, which the frame
 //! shows as invalid (NaN) defect scores.
 
+use crate::commission::{CommissionError, Commissioning, SurveyChoice};
 use crate::config::PointRecord;
 use crate::hal::MeasurementCore;
 use crate::point::{point_config, PointError};
@@ -60,6 +65,7 @@ pub struct PipelineCore<const N: usize, const H: usize, const RING: usize> {
     seq: u16,
     pipeline: Option<Pipeline<N, H, RING>>,
     report: Option<Report>,
+    survey: Option<Commissioning>,
 }
 
 impl<const N: usize, const H: usize, const RING: usize> PipelineCore<N, H, RING> {
@@ -70,6 +76,7 @@ impl<const N: usize, const H: usize, const RING: usize> PipelineCore<N, H, RING>
             seq: 0,
             pipeline: None,
             report: None,
+            survey: None,
         }
     }
 
@@ -114,6 +121,7 @@ impl<const N: usize, const H: usize, const RING: usize> MeasurementCore
 
     fn start(&mut self, config: &PointRecord) -> Result<(), PipelineCoreError> {
         self.report = None;
+        self.survey = None;
         self.pipeline = None; // free the old one before building the next
         let point = point_config(config).map_err(PipelineCoreError::Point)?;
         self.pipeline = Some(Pipeline::new(&point).map_err(PipelineCoreError::Pipeline)?);
@@ -121,7 +129,9 @@ impl<const N: usize, const H: usize, const RING: usize> MeasurementCore
     }
 
     fn push_block(&mut self, samples: &[i16]) {
-        if let Some(p) = self.pipeline.as_mut() {
+        if let Some(s) = self.survey.as_mut() {
+            s.push_block(samples);
+        } else if let Some(p) = self.pipeline.as_mut() {
             p.push_i16(samples);
         }
     }
@@ -152,5 +162,24 @@ impl<const N: usize, const H: usize, const RING: usize> MeasurementCore
         let n = frame::encode(&fr, out).map_err(PipelineCoreError::Encode)?;
         self.seq = self.seq.wrapping_add(1);
         Ok(n)
+    }
+
+    fn set_node_id(&mut self, node_id: u16) {
+        self.node_id = node_id;
+    }
+
+    fn start_survey(&mut self, config: &PointRecord) -> Result<(), CommissionError> {
+        self.report = None;
+        self.pipeline = None;
+        self.survey = None;
+        self.survey = Some(Commissioning::new(config)?);
+        Ok(())
+    }
+
+    fn finish_survey(&mut self) -> Result<SurveyChoice, CommissionError> {
+        self.survey
+            .take()
+            .ok_or(CommissionError::NotStarted)?
+            .finish()
     }
 }

@@ -50,7 +50,7 @@ pub fn point_config(rec: &PointRecord) -> Result<PointConfig, PointError> {
         + f32::from(u8::try_from(rec.sample_rate_hz % 10).unwrap_or(0));
     p.counts_to_g = rec.counts_to_g;
     p.adc_full_scale = rec.health.clip_level;
-    p.band_hz = Some([rec.band_lo_hz, rec.band_hi_hz]);
+    p.band_hz = rec.band_hz(); // None: dsp-core's default band until a survey ran
     p.poles = rec.poles;
     p.speed = SpeedInput::Tach {
         pulses_per_rev: rec.pulses_per_rev,

@@ -7,7 +7,9 @@
 )]
 mod common;
 use common::encode;
-use firmware::config::{BearingModel, BearingSpec, ConfigError, PointRecord, MAX_RECORD_LEN};
+use firmware::config::{
+    BandSource, BearingModel, BearingSpec, ConfigError, PointRecord, StoredConfig, MAX_RECORD_LEN,
+};
 
 fn sample() -> PointRecord {
     let mut c = PointRecord::default();
@@ -31,7 +33,7 @@ fn round_trip_preserves_every_field() {
     let c = sample();
     let bytes = encode(&c);
     assert_eq!(bytes.len(), c.encoded_len());
-    assert_eq!(bytes.len(), 62 + 2 * 22 + 4);
+    assert_eq!(bytes.len(), 66 + 2 * 22 + 4);
     assert!(bytes.len() <= MAX_RECORD_LEN);
     assert_eq!(PointRecord::decode(&bytes).unwrap(), c);
 }
@@ -52,7 +54,7 @@ fn crc_trailer_is_zlib_crc32_of_the_body() {
         u32::from_le_bytes(crc.try_into().unwrap()),
         firmware::crc::crc32(body)
     );
-    assert_eq!(&bytes[..3], b"EP\x01");
+    assert_eq!(&bytes[..3], b"EP\x02");
 }
 
 #[test]
@@ -96,10 +98,10 @@ fn wrong_magic_and_version_are_refused() {
     bytes[0] = b'X';
     assert_eq!(PointRecord::decode(&bytes), Err(ConfigError::BadMagic));
     let mut bytes = encode(&sample());
-    bytes[2] = 2;
+    bytes[2] = 3;
     assert_eq!(
         PointRecord::decode(&bytes),
-        Err(ConfigError::UnsupportedVersion(2))
+        Err(ConfigError::UnsupportedVersion(3))
     );
 }
 
@@ -144,7 +146,7 @@ fn out_of_range_fields_are_refused_even_with_a_good_crc() {
     );
     // element diameter larger than pitch diameter (impossible geometry)
     let mut b = good.clone();
-    b[62 + 6..62 + 10].copy_from_slice(&50.0f32.to_le_bytes());
+    b[66 + 6..66 + 10].copy_from_slice(&50.0f32.to_le_bytes());
     assert_eq!(
         PointRecord::decode(&reseal(b)),
         Err(ConfigError::OutOfRange("element_mm"))
@@ -158,7 +160,7 @@ fn out_of_range_fields_are_refused_even_with_a_good_crc() {
     );
     // unknown bearing kind
     let mut b = good.clone();
-    b[62] = 7;
+    b[66] = 7;
     assert_eq!(
         PointRecord::decode(&reseal(b)),
         Err(ConfigError::OutOfRange("bearing_kind"))
@@ -193,4 +195,84 @@ fn record_length_follows_revolutions_and_lowest_speed() {
     c.record_revs = 4;
     c.speed_min_rpm = 7_000.0;
     assert_eq!(c.record_blocks(256, 10_000), 4);
+}
+
+#[test]
+fn version_1_records_still_decode_as_configured_bands() {
+    // The committed QEMU input is a version-1 record written by an
+    // independent Python encoder (boards/qemu-mps2/input/make_input.py).
+    let path = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/../boards/qemu-mps2/input/config.bin"
+    );
+    let v1 = std::fs::read(path).unwrap();
+    assert_eq!(&v1[..3], b"EP\x01");
+    assert_eq!(v1.len(), 62 + 22 + 4);
+    let r = PointRecord::decode(&v1).unwrap();
+    assert_eq!(r.band_source, BandSource::Configured);
+    assert_eq!(r.band_hz(), Some([2000.0, 8000.0]));
+    // re-encoded as version 2: 4 bytes longer (the kurtosis field)
+    let v2 = encode(&r);
+    assert_eq!(&v2[..4], &[b'E', b'P', 2, 92]);
+    assert_eq!(PointRecord::decode(&v2).unwrap(), r);
+    // a v1 record with a non-zero reserved byte 61 is refused
+    let mut b = v1.clone();
+    b[61] = 1;
+    assert_eq!(
+        PointRecord::decode(&reseal(b)),
+        Err(ConfigError::OutOfRange("band_source"))
+    );
+}
+
+#[test]
+fn band_sources_round_trip_and_are_checked() {
+    let mut c = sample();
+    c.band_source = BandSource::Unset;
+    // an unset band must carry zero edges (canonical form)
+    let mut buf = [0u8; MAX_RECORD_LEN];
+    assert_eq!(
+        c.encode(&mut buf),
+        Err(ConfigError::OutOfRange("band_lo_hz"))
+    );
+    c.band_lo_hz = 0.0;
+    c.band_hi_hz = 0.0;
+    let b = encode(&c);
+    assert_eq!((b[61], &b[62..66]), (2, &[0u8; 4][..]));
+    assert_eq!(PointRecord::decode(&b).unwrap(), c);
+    assert_eq!(c.band_hz(), None);
+    let s = c.with_survey_band([2519.842, 5039.684], 7.25).unwrap();
+    let b = encode(&s);
+    assert_eq!(b[61], 1);
+    assert_eq!(&b[62..66], &7.25f32.to_le_bytes());
+    assert_eq!(PointRecord::decode(&b).unwrap(), s);
+    assert_eq!(s.band_hz(), Some([2519.842, 5039.684]));
+    assert_eq!(
+        c.with_survey_band([2000.0, 20_000.0], 1.0),
+        Err(ConfigError::OutOfRange("band_hi_hz"))
+    );
+    assert_eq!(
+        c.with_survey_band([2000.0, 4000.0], f32::NAN),
+        Err(ConfigError::OutOfRange("band_kurtosis"))
+    );
+    // a configured band with a non-zero kurtosis field is refused
+    let mut b = encode(&sample());
+    b[62..66].copy_from_slice(&1.0f32.to_le_bytes());
+    assert_eq!(
+        PointRecord::decode(&reseal(b)),
+        Err(ConfigError::OutOfRange("band_source"))
+    );
+}
+
+#[test]
+fn stored_config_carries_the_counter_with_the_record() {
+    let s = StoredConfig {
+        counter: 0xDEAD_BEEF,
+        record: sample(),
+    };
+    let mut buf = [0u8; firmware::config::MAX_STORED_LEN];
+    let n = s.encode(&mut buf).unwrap();
+    assert_eq!(&buf[..4], &0xDEAD_BEEFu32.to_le_bytes());
+    assert_eq!(&buf[4..n], &encode(&sample())[..]);
+    assert_eq!(StoredConfig::decode(&buf[..n]).unwrap(), s);
+    assert_eq!(StoredConfig::decode(&buf[..3]), Err(ConfigError::Truncated));
 }

@@ -15,7 +15,7 @@ use firmware::quality::QualityFlags;
 
 #[test]
 fn each_transition_of_a_healthy_cycle() {
-    let (mut node, log) = Bench::new(4, 256).with_config_blocks(4).build();
+    let (mut node, log) = Bench::new(8, 256).with_config_blocks(4).build();
     assert_eq!(node.config_source(), ConfigSource::Stored);
     assert_eq!(node.blocks_wanted(), 4);
     assert_eq!(node.state(), State::Sleep);
@@ -60,6 +60,25 @@ fn each_transition_of_a_healthy_cycle() {
     // the frame the core encoded is what went to the radio
     assert_eq!(node.frame(), &[0, 0x00, 0x04, 4]);
     assert!(log.borrow().contains(&Ev::Send(vec![0, 0x00, 0x04, 4])));
+    // first cycle after boot: a status frame follows the report
+    let sends: Vec<Vec<u8>> = log
+        .borrow()
+        .iter()
+        .filter_map(|e| match e {
+            Ev::Send(f) => Some(f.clone()),
+            _ => None,
+        })
+        .collect();
+    assert_eq!(sends.len(), 2);
+    let st = dsp_core::frame::status::decode_status(&sends[1]).unwrap();
+    assert_eq!(st.node_id, NODE_ID);
+    assert_eq!(st.boot_config, dsp_core::frame::status::BootConfig::Stored);
+    assert!(st.provisioned && s.status_sent);
+    // later cycles without a downlink send the report only
+    let mark = log.borrow().len();
+    assert!(!node.run_cycle().unwrap().status_sent);
+    assert_eq!(count(&log, |e| matches!(e, Ev::Send(_))), 3);
+    assert!(log.borrow().len() > mark);
 }
 
 #[test]
@@ -84,7 +103,7 @@ fn blocks_are_processed_as_they_arrive() {
 fn command_wake_skips_the_alarm() {
     let mut bench = Bench::new(8, 256).with_config_blocks(4);
     bench.reasons = vec![WakeReason::Command];
-    bench.downlinks = vec![vec![0x02]]; // measure now, after the first cycle
+    bench.downlinks = vec![signed(1, &[0x02])]; // measure now, after the first cycle
     let (mut node, log) = bench.build();
     let s = node.run_cycle().unwrap();
     assert_eq!(s.reason, WakeReason::Command);
@@ -261,15 +280,15 @@ fn missing_config_uses_default_and_invalid_is_reported() {
 #[test]
 fn good_config_downlink_is_stored_and_used() {
     let new = config_for_blocks(2);
-    let mut msg = vec![0x01];
-    msg.extend(encode(&new));
     let mut bench = Bench::new(6, 256).with_config_blocks(4);
-    bench.downlinks = vec![msg];
+    bench.downlinks = vec![config_downlink(5, &new)];
     let (mut node, log) = bench.build();
     node.run_cycle().unwrap();
     assert_eq!(node.downlink(), DownlinkOutcome::ConfigApplied);
     assert_eq!(node.config(), &new);
-    assert_eq!(node.devices().storage.slots["config"], encode(&new));
+    assert_eq!(node.counter(), 5);
+    // the counter is stored in the same record as the configuration
+    assert_eq!(node.devices().storage.slots["config"], stored(5, &new));
     assert_eq!(count(&log, |e| *e == Ev::Store(Slot::Config)), 1);
     // next cycle records 2 blocks
     assert_eq!(node.run_cycle().unwrap().blocks, 2);
@@ -293,7 +312,7 @@ fn bad_config_downlink_is_refused_and_old_kept() {
         let mut msg = vec![0x01];
         msg.extend(payload);
         let mut bench = Bench::new(4, 256).with_config_blocks(4);
-        bench.downlinks = vec![msg];
+        bench.downlinks = vec![signed(1, &msg)];
         let (mut node, log) = bench.build();
         node.run_cycle().unwrap();
         assert!(
@@ -302,7 +321,7 @@ fn bad_config_downlink_is_refused_and_old_kept() {
             node.downlink()
         );
         assert_eq!(node.config(), &old);
-        assert_eq!(node.devices().storage.slots["config"], encode(&old));
+        assert_eq!(node.devices().storage.slots["config"], stored(0, &old));
         assert_eq!(count(&log, |e| matches!(e, Ev::Store(_))), 0);
         // a refused downlink is the gateway's problem, not an unhealthy node
         assert!(node.summary().fed_watchdog);
@@ -311,29 +330,30 @@ fn bad_config_downlink_is_refused_and_old_kept() {
 
 #[test]
 fn config_not_stored_when_storage_fails() {
-    let mut msg = vec![0x01];
-    msg.extend(encode(&config_for_blocks(2)));
+    let msg = config_downlink(1, &config_for_blocks(2));
     let mut bench = Bench::new(4, 256).with_config_blocks(4);
     bench.storage.fail_store = true;
     let (mut node, _) = bench.build();
     assert_eq!(node.apply_downlink(&msg), DownlinkOutcome::NotStored);
     assert_eq!(node.config(), &config_for_blocks(4));
+    assert_eq!(node.counter(), 0);
 }
 
 #[test]
 fn baseline_downlink_goes_to_core_and_storage_with_crc() {
     let (mut node, _) = Bench::new(1, 256).with_config_blocks(4).build();
     assert_eq!(
-        node.apply_downlink(&[0x03, 1, 2, 3]),
+        node.apply_downlink(&signed(1, &[0x03, 1, 2, 3])),
         DownlinkOutcome::BaselineApplied
     );
+    assert_eq!(node.counter(), 1);
     assert_eq!(node.core().baseline.as_deref(), Some(&[1u8, 2, 3][..]));
     let stored = node.devices().storage.slots["baseline"].clone();
     // payload then CRC-32 (zlib.crc32(bytes([1,2,3])) = 0x55BC801D)
     assert_eq!(stored, [1, 2, 3, 0x1D, 0x80, 0xBC, 0x55]);
     // refused by the core: nothing stored
     assert_eq!(
-        node.apply_downlink(&[0x03, 0xFF]),
+        node.apply_downlink(&signed(2, &[0x03, 0xFF])),
         DownlinkOutcome::Refused(firmware::downlink::DownlinkError::BadBaseline)
     );
     assert_eq!(node.devices().storage.slots["baseline"], stored);

@@ -12,7 +12,7 @@
 
 mod replay_common;
 use firmware::overall_core::OverallCore;
-use replay_common::{input, replay};
+use replay_common::{input, replay, split_frames};
 
 fn fields(f: &[u8]) -> [u32; 5] {
     let u16le = |i: usize| u32::from(u16::from_le_bytes([f[i], f[i + 1]]));
@@ -43,8 +43,17 @@ fn replay_matches_numpy_reference() {
         })
         .collect();
     assert_eq!(expected.len(), 2);
-    assert_eq!(got.len(), 12 * expected.len());
-    for (g, e) in got.chunks(12).zip(&expected) {
+    // report, status (first cycle after boot), report
+    let frames = split_frames(&got);
+    assert_eq!(
+        frames.iter().map(Vec::len).collect::<Vec<_>>(),
+        [12, 27, 12]
+    );
+    let status = dsp_core::frame::status::decode_status(&frames[1]).unwrap();
+    assert_eq!((status.node_id, status.downlink_counter), (1, 0));
+    assert_eq!(status.band_hz, [2000.0, 8000.0]);
+    let reports: Vec<&Vec<u8>> = frames.iter().filter(|f| f.len() == 12).collect();
+    for (g, e) in reports.into_iter().zip(&expected) {
         // flags exact; rounded fields within one unit (f32 here vs f64 in numpy)
         for (a, b) in fields(g).iter().zip(fields(e).iter()) {
             assert!(a.abs_diff(*b) <= 1, "frame {g:02x?} vs numpy {e:02x?}");

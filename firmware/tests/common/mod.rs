@@ -2,11 +2,15 @@
 //! shared event log so tests can check the order of operations.
 #![allow(
     dead_code,
+    clippy::panic,
+    clippy::type_complexity,
     clippy::cast_possible_truncation,
     clippy::unwrap_used,
     clippy::indexing_slicing,
     missing_docs
 )]
+
+pub mod flash;
 
 use firmware::config::PointRecord;
 use firmware::cycle::{Devices, Node};
@@ -54,6 +58,8 @@ pub struct MockSource {
     pub block_len: usize,
     pub fail_next: bool,
     pub handed_out: usize,
+    /// Check that each block reached the (mock) core before the next.
+    pub push_check: bool,
 }
 
 impl BlockSource for MockSource {
@@ -70,11 +76,13 @@ impl BlockSource for MockSource {
             return Err(());
         }
         // the core must have consumed every block handed out so far
-        let pushed = count(&self.log, |e| matches!(e, Ev::CorePush(_)));
-        assert_eq!(
-            pushed, self.handed_out,
-            "block fetched before the previous one was processed"
-        );
+        if self.push_check {
+            let pushed = count(&self.log, |e| matches!(e, Ev::CorePush(_)));
+            assert_eq!(
+                pushed, self.handed_out,
+                "block fetched before the previous one was processed"
+            );
+        }
         let (b, overrun) = self.blocks.pop_front().ok_or(())?;
         self.current = b;
         self.handed_out += 1;
@@ -169,6 +177,7 @@ fn key(slot: Slot) -> &'static str {
     match slot {
         Slot::Config => "config",
         Slot::Baseline => "baseline",
+        Slot::Identity => "identity",
     }
 }
 
@@ -184,7 +193,7 @@ impl Storage for MockStorage {
         }
     }
     fn store(&mut self, slot: Slot, data: &[u8]) -> Result<(), ()> {
-        if self.fail_store {
+        if self.fail_store || slot == Slot::Identity {
             return Err(());
         }
         if let Some(l) = &self.log {
@@ -329,6 +338,7 @@ pub struct Bench {
     pub core_fails_finish: bool,
     pub pin_fails: bool,
     pub core_complete_after: Option<usize>,
+    pub push_check: bool,
 }
 
 /// A healthy block: a triangle wave of +-1000 counts (well inside 12 bits).
@@ -350,7 +360,10 @@ impl Bench {
                 .map(|b| (healthy_block(block_len, b), false))
                 .collect(),
             edges: (0..n_blocks).map(|b| vec![(b as u32) * 1000 + 7]).collect(),
-            storage: MockStorage::default(),
+            storage: MockStorage {
+                slots: HashMap::from([("identity", identity_record(NODE_ID, &KEY))]),
+                ..MockStorage::default()
+            },
             battery_mv: 3300,
             downlinks: Vec::new(),
             reasons: Vec::new(),
@@ -358,13 +371,68 @@ impl Bench {
             core_fails_finish: false,
             pin_fails: false,
             core_complete_after: None,
+            push_check: true,
         }
     }
 
-    pub fn build(self) -> (TestNode, Log) {
+    pub fn build(mut self) -> (TestNode, Log) {
+        let mut storage = std::mem::take(&mut self.storage);
+        storage.log = Some(self.log.clone());
+        self.build_with(storage)
+    }
+
+    /// Builds the node over any storage (the bench's own is not used).
+    pub fn build_with<St: Storage>(
+        self,
+        storage: St,
+    ) -> (
+        Node<
+            MockSource,
+            MockCapture,
+            MockRadio,
+            MockAlarm,
+            St,
+            MockBattery,
+            MockWatchdog,
+            MockPin,
+            MockDelay,
+            MockCore,
+        >,
+        Log,
+    ) {
+        let core = MockCore {
+            log: self.log.clone(),
+            samples: Vec::new(),
+            edges: Vec::new(),
+            baseline: None,
+            fail_finish: self.core_fails_finish,
+            flags: QualityFlags::empty(),
+            complete_after: self.core_complete_after,
+        };
+        self.build_full(storage, core)
+    }
+
+    /// Builds the node over any storage and any core.
+    pub fn build_full<St: Storage, C: MeasurementCore>(
+        self,
+        storage: St,
+        core: C,
+    ) -> (
+        Node<
+            MockSource,
+            MockCapture,
+            MockRadio,
+            MockAlarm,
+            St,
+            MockBattery,
+            MockWatchdog,
+            MockPin,
+            MockDelay,
+            C,
+        >,
+        Log,
+    ) {
         let log = self.log.clone();
-        let mut storage = self.storage;
-        storage.log = Some(log.clone());
         let dev = Devices {
             source: MockSource {
                 log: log.clone(),
@@ -373,6 +441,7 @@ impl Bench {
                 block_len: self.block_len,
                 fail_next: false,
                 handed_out: 0,
+                push_check: self.push_check,
             },
             capture: MockCapture {
                 log: log.clone(),
@@ -397,15 +466,6 @@ impl Bench {
                 fail: self.pin_fails,
             },
             delay: MockDelay(log.clone()),
-        };
-        let core = MockCore {
-            log: log.clone(),
-            samples: Vec::new(),
-            edges: Vec::new(),
-            baseline: None,
-            fail_finish: self.core_fails_finish,
-            flags: QualityFlags::empty(),
-            complete_after: self.core_complete_after,
         };
         let node = Node::new(dev, core);
         log.borrow_mut().clear();
@@ -433,12 +493,87 @@ pub fn encode(c: &PointRecord) -> Vec<u8> {
     buf[..n].to_vec()
 }
 
+/// Encodes what the node stores: the counter and the record.
+pub fn stored(counter: u32, c: &PointRecord) -> Vec<u8> {
+    let mut buf = [0u8; firmware::config::MAX_STORED_LEN];
+    let n = firmware::config::StoredConfig {
+        counter,
+        record: c.clone(),
+    }
+    .encode(&mut buf)
+    .unwrap();
+    buf[..n].to_vec()
+}
+
+/// Node id and key of the bench's provisioned identity (invented values).
+pub const NODE_ID: u16 = 0x0A17;
+/// The bench node's downlink key.
+pub const KEY: [u8; 32] = [0x42; 32];
+
+/// The identity record of the bench node.
+pub fn identity_record(node_id: u16, key: &[u8; 32]) -> Vec<u8> {
+    let mut buf = [0u8; firmware::identity::IDENTITY_LEN];
+    firmware::identity::encode(node_id, key, &mut buf).unwrap();
+    buf.to_vec()
+}
+
+/// A downlink for the bench node signed with its key.
+pub fn signed(counter: u32, payload: &[u8]) -> Vec<u8> {
+    signed_for(NODE_ID, &KEY, counter, payload)
+}
+
+/// A downlink for any node and key.
+pub fn signed_for(node: u16, key: &[u8; 32], counter: u32, payload: &[u8]) -> Vec<u8> {
+    let mut buf = [0u8; 256];
+    let n = firmware::downlink_auth::sign(
+        &firmware::downlink_auth::DownlinkKey::new(*key),
+        node,
+        counter,
+        payload,
+        &mut buf,
+    )
+    .unwrap();
+    buf[..n].to_vec()
+}
+
+/// A signed configuration downlink.
+pub fn config_downlink(counter: u32, c: &PointRecord) -> Vec<u8> {
+    let mut p = vec![0x01];
+    p.extend(encode(c));
+    signed(counter, &p)
+}
+
+/// Splits concatenated radio frames (reports, status frames) apart by
+/// their headers: dsp-core frames (type nibble 0, 1, 2) and 12-byte
+/// overall-core frames (kind 0x4F).
+pub fn split_frames(mut b: &[u8]) -> Vec<Vec<u8>> {
+    let mut out = Vec::new();
+    while !b.is_empty() {
+        let n = match b[0] {
+            0x4F => 12,
+            0x10 => dsp_core::frame::layout::full_frame_len(usize::from(b[7] & 7)),
+            0x11 => dsp_core::frame::layout::REDUCED_LEN,
+            0x12 => dsp_core::frame::layout::STATUS_LEN,
+            x => panic!("unknown frame start {x:#04x}"),
+        };
+        out.push(b[..n].to_vec());
+        b = &b[n..];
+    }
+    out
+}
+
 impl Bench {
-    /// Stores a configuration recording `blocks` blocks.
+    /// Stores a configuration recording `blocks` blocks (counter 0).
     pub fn with_config_blocks(mut self, blocks: u32) -> Self {
         self.storage
             .slots
-            .insert("config", encode(&config_for_blocks(blocks)));
+            .insert("config", stored(0, &config_for_blocks(blocks)));
+        self
+    }
+
+    /// Removes the provisioned identity.
+    pub fn unprovisioned(mut self) -> Self {
+        self.storage.slots.remove("identity");
         self
     }
 }

@@ -1,6 +1,7 @@
 //! Host replay harness: the committed QEMU input through a node with the
 //! same delivery rules as the qemu-mps2 board.
 #![allow(
+    clippy::panic,
     dead_code,
     clippy::unwrap_used,
     clippy::indexing_slicing,
@@ -87,15 +88,22 @@ impl Alarm for NoSleep {
         WakeReason::Schedule
     }
 }
-pub struct Store(Vec<u8>);
+/// Stored configuration (counter 0 + config.bin, as the QEMU board's
+/// flash image holds it) and identity (node 1, the committed test key).
+pub struct Store {
+    pub config: Vec<u8>,
+    pub identity: Vec<u8>,
+}
 impl Storage for Store {
     type Error = ();
     fn load(&mut self, slot: Slot, buf: &mut [u8]) -> Result<usize, ()> {
-        if slot != Slot::Config {
-            return Ok(0);
-        }
-        buf[..self.0.len()].copy_from_slice(&self.0);
-        Ok(self.0.len())
+        let data = match slot {
+            Slot::Config => &self.config,
+            Slot::Identity => &self.identity,
+            Slot::Baseline => return Ok(0),
+        };
+        buf[..data.len()].copy_from_slice(data);
+        Ok(data.len())
     }
     fn store(&mut self, _s: Slot, _d: &[u8]) -> Result<(), ()> {
         Ok(())
@@ -126,6 +134,32 @@ impl embedded_hal::digital::OutputPin for Pin {
 pub struct NoDelay;
 impl embedded_hal::delay::DelayNs for NoDelay {
     fn delay_ns(&mut self, _ns: u32) {}
+}
+
+/// The committed test key of the fictional stand (boards/qemu-mps2/input/node.key).
+pub fn test_key() -> [u8; 32] {
+    let text = std::fs::read_to_string(input("node.key")).unwrap();
+    let hex = text.trim();
+    let mut key = [0u8; 32];
+    for (i, k) in key.iter_mut().enumerate() {
+        *k = u8::from_str_radix(&hex[2 * i..2 * i + 2], 16).unwrap();
+    }
+    key
+}
+
+/// Node id of the qemu-mps2 image's provisioned identity.
+pub const NODE_ID: u16 = 1;
+
+/// The storage of the committed input.
+pub fn input_store() -> Store {
+    let mut config = 0u32.to_le_bytes().to_vec();
+    config.extend(std::fs::read(input("config.bin")).unwrap());
+    let mut identity = [0u8; firmware::identity::IDENTITY_LEN];
+    firmware::identity::encode(NODE_ID, &test_key(), &mut identity).unwrap();
+    Store {
+        config,
+        identity: identity.to_vec(),
+    }
 }
 
 pub type ReplayNode<C> = Node<Src, Cap, Radio, NoSleep, Store, Batt, Dog, Pin, NoDelay, C>;
@@ -160,7 +194,7 @@ where
         },
         radio: Radio(Vec::new()),
         alarm: NoSleep,
-        storage: Store(std::fs::read(input("config.bin")).unwrap()),
+        storage: input_store(),
         battery: Batt,
         watchdog: Dog,
         power: Pin,
@@ -173,4 +207,22 @@ where
         node.run_cycle().unwrap();
     }
     node
+}
+
+/// Splits concatenated radio frames apart: dsp-core frames by their header
+/// (full, reduced, status) and 12-byte overall-core frames (kind 0x4F).
+pub fn split_frames(mut b: &[u8]) -> Vec<Vec<u8>> {
+    let mut out = Vec::new();
+    while !b.is_empty() {
+        let n = match b[0] {
+            0x4F => 12,
+            0x10 => dsp_core::frame::layout::full_frame_len(usize::from(b[7] & 7)),
+            0x11 => dsp_core::frame::layout::REDUCED_LEN,
+            0x12 => dsp_core::frame::layout::STATUS_LEN,
+            x => panic!("unknown frame start {x:#04x}"),
+        };
+        out.push(b[..n].to_vec());
+        b = &b[n..];
+    }
+    out
 }
