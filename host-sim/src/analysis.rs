@@ -7,6 +7,7 @@
 use dsp_core::config::{PointConfig, SpeedInput};
 use dsp_core::pipeline::{NodePipeline, ADC_BLOCK};
 use dsp_core::report::Report;
+use dsp_core::survey::{SurveyError, SurveyResult};
 use dsp_core::tach::EdgeDetector;
 
 use crate::error::CliError;
@@ -95,6 +96,30 @@ pub fn edges_from_channel(tach: &[f32], sample_rate_hz: f32) -> Result<Vec<f64>,
     Ok(out)
 }
 
+/// Chooses the envelope band when `point` has none: the band survey with
+/// the node's commissioning rule ([`dsp_core::band_choice`]) over the whole
+/// record, in ADC-sized blocks, ADC counts through `push_i16` as on the
+/// node, so the node and the host choose the same band bit for bit from the
+/// same samples. Sets `point.band_hz` and the recording's sample rate and
+/// returns the survey's result; `Ok(None)` when the point has a band.
+pub fn choose_band(
+    point: &mut PointConfig,
+    rec: &Record,
+) -> Result<Option<SurveyResult>, SurveyError> {
+    if point.band_hz.is_some() {
+        return Ok(None);
+    }
+    point.sample_rate_hz = rec.sample_rate_hz;
+    let mut s = dsp_core::band_choice::new_survey(point)?;
+    match &rec.accel {
+        Accel::Counts(v) => v.chunks(ADC_BLOCK).for_each(|b| s.push_i16(b)),
+        Accel::G(v) => v.chunks(ADC_BLOCK).for_each(|b| s.push_f32(b)),
+    }
+    let r = s.finish()?;
+    point.band_hz = Some(r.band_hz);
+    Ok(Some(r))
+}
+
 /// Runs the node pipeline over a record.
 pub fn run(point: &PointConfig, rec: &Record) -> Result<Analysis, CliError> {
     let mut point = point.clone();
@@ -151,4 +176,62 @@ pub fn run(point: &PointConfig, rec: &Record) -> Result<Analysis, CliError> {
         samples_used: p.samples(),
         report,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// `envord validate` keeps its own copy of the minimum-bandwidth rule
+    /// (cmd_validate.rs); it must stay the rule the node and `analyze` use.
+    #[test]
+    fn validate_uses_the_same_minimum_bandwidth_as_the_node() {
+        let texts = [
+            include_str!("../examples/point.toml"),
+            include_str!("../examples/demo-point.toml"),
+            include_str!("../../boards/qemu-mps2/input/point.toml"),
+        ];
+        for t in texts {
+            let mut p = crate::point::parse(t).unwrap();
+            for speed in [p.speed, SpeedInput::Constant { rpm: 1480.0 }] {
+                p.speed = speed;
+                let node = dsp_core::band_choice::min_bandwidth_hz(&p);
+                let validate = crate::cmd_validate::survey_min_bandwidth_hz(&p);
+                assert_eq!(node.to_bits(), validate.to_bits());
+                assert!(node > 0.0);
+            }
+        }
+    }
+
+    /// The host survey of ADC counts equals the node's (`push_i16` in
+    /// ADC-sized blocks) bit for bit; float samples take `push_f32`.
+    #[test]
+    fn choose_band_sets_the_band_only_when_missing() {
+        let x: Vec<i16> = (0..40_000u32)
+            .map(|k| {
+                let n = (k.wrapping_mul(2_654_435_761) >> 20) as i16 - 2048;
+                if k % 300 < 6 {
+                    n.saturating_mul(8)
+                } else {
+                    n / 8
+                }
+            })
+            .collect();
+        let rec = Record {
+            sample_rate_hz: 25_600.0,
+            accel: Accel::Counts(x.clone()),
+            edges_s: None,
+        };
+        let mut p = PointConfig::default();
+        let r = choose_band(&mut p, &rec).unwrap().unwrap();
+        assert_eq!(p.band_hz, Some(r.band_hz));
+        assert_eq!(p.sample_rate_hz, 25_600.0);
+        let mut node = dsp_core::band_choice::new_survey(&p).unwrap();
+        for b in x.chunks(ADC_BLOCK) {
+            node.push_i16(b);
+        }
+        assert_eq!(node.finish().unwrap().band_hz, r.band_hz);
+        // a band already set is kept
+        assert!(choose_band(&mut p, &rec).unwrap().is_none());
+    }
 }

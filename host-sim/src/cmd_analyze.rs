@@ -156,21 +156,43 @@ pub fn analyze_auto(
         args.tach_channel,
         args.tach.as_deref(),
     )?;
-    let mut point = speed_for(point, args.rpm, rec.edges_s.is_some(), &args.recording)?;
-    let mut survey = None;
-    if point.band_hz.is_none() {
-        point.sample_rate_hz = rec.sample_rate_hz;
-        let min_bw = crate::cmd_validate::survey_min_bandwidth_hz(&point);
-        let x: Vec<f32> = match &rec.accel {
-            Accel::G(v) => v.clone(),
-            Accel::Counts(v) => v.iter().map(|&c| f32::from(c)).collect(),
-        };
-        let r = crate::cmd_validate::survey_record(&x, rec.sample_rate_hz, min_bw)
-            .map_err(|e| CliError::input(args.recording.display(), format!("band survey: {e}")))?;
-        point.band_hz = Some(r.band_hz);
-        survey = Some(r);
+    let point = speed_for(point, args.rpm, rec.edges_s.is_some(), &args.recording)?;
+    analyze_record(&args.recording, point, &rec)
+}
+
+/// One recording with one point, as `analyze` and `batch` both run it: the
+/// band survey when the point has no band ([`crate::analysis::choose_band`],
+/// the node's commissioning rule), then the node pipeline. Bad input
+/// (including an impossible sample rate in the file's header) names `path`.
+pub fn analyze_record(
+    path: &Path,
+    mut point: PointConfig,
+    rec: &Record,
+) -> Result<(Analysis, Option<dsp_core::survey::SurveyResult>), CliError> {
+    let survey = crate::analysis::choose_band(&mut point, rec)
+        .map_err(|e| CliError::input(path.display(), format!("band survey: {e}")))?;
+    let a = run(&point, rec).map_err(|e| match e {
+        CliError::Input(m) => CliError::input(path.display(), m),
+        other => other,
+    })?;
+    Ok((a, survey))
+}
+
+/// Marks in a report's JSON whether the band survey chose the band, and
+/// its spectral kurtosis.
+pub fn mark_band_choice(
+    v: &mut serde_json::Value,
+    survey: Option<&dsp_core::survey::SurveyResult>,
+) {
+    if let Some(env) = v.get_mut("envelope").and_then(|e| e.as_object_mut()) {
+        env.insert("band_auto".into(), serde_json::json!(survey.is_some()));
+        if let Some(r) = survey {
+            env.insert(
+                "band_kurtosis".into(),
+                serde_json::json!(f64::from(r.kurtosis)),
+            );
+        }
     }
-    Ok((run(&point, &rec)?, survey))
 }
 
 /// Runs `envord analyze`.
@@ -183,15 +205,7 @@ pub fn run_cmd(args: &AnalyzeArgs) -> Result<(), CliError> {
         println!("{}", frame_hex(&a.report, args.node_id, args.seq)?);
     } else if args.json {
         let mut v = to_json(&a.report, Some(&args.recording.display().to_string()));
-        if let Some(env) = v.get_mut("envelope").and_then(|e| e.as_object_mut()) {
-            env.insert("band_auto".into(), serde_json::json!(survey.is_some()));
-            if let Some(r) = &survey {
-                env.insert(
-                    "band_kurtosis".into(),
-                    serde_json::json!(f64::from(r.kurtosis)),
-                );
-            }
-        }
+        mark_band_choice(&mut v, survey.as_ref());
         println!(
             "{}",
             serde_json::to_string_pretty(&v).map_err(|e| CliError::Other(e.to_string()))?

@@ -2,6 +2,8 @@
 //! report per file, a summary table (Markdown and CSV) and a plot of the
 //! scores per file. A file that cannot be analysed is listed in the summary
 //! with its reason, and the command then exits 2; it never disappears silently.
+//! When the point has no band, the band survey chooses it for each file,
+//! exactly as `envord analyze` does ([`crate::cmd_analyze::analyze_record`]).
 
 use std::fmt::Write as _;
 use std::path::PathBuf;
@@ -9,7 +11,7 @@ use std::path::PathBuf;
 use clap::Args;
 use dsp_core::kinematics::DefectKind;
 
-use crate::cmd_analyze::{load_record, speed_for};
+use crate::cmd_analyze::{analyze_record, load_record, mark_band_choice, speed_for};
 use crate::error::CliError;
 use crate::plot::{scores, ScoreRow};
 use crate::report_json::to_json;
@@ -36,9 +38,12 @@ pub struct BatchArgs {
     pub out: PathBuf,
 }
 
+/// Speed, flags, best score per defect kind, detections, band text.
+type RowFigures = (f32, String, [f32; 4], Vec<String>, String);
+
 struct Row {
     file: String,
-    result: Result<(f32, String, [f32; 4], Vec<String>), String>,
+    result: Result<RowFigures, String>,
 }
 
 /// Runs `envord batch`.
@@ -76,8 +81,15 @@ pub fn run(args: &BatchArgs) -> Result<(), CliError> {
         let result = (|| -> Result<_, CliError> {
             let rec = load_record(f, args.channel, args.tach_channel, None)?;
             let p = speed_for(point.clone(), args.rpm, rec.edges_s.is_some(), f)?;
-            let a = crate::analysis::run(&p, &rec)?;
-            let json = to_json(&a.report, Some(&name));
+            let (a, survey) = analyze_record(f, p, &rec)?;
+            let mut json = to_json(&a.report, Some(&name));
+            mark_band_choice(&mut json, survey.as_ref());
+            let band = format!(
+                "{:.0}-{:.0}{}",
+                a.report.band_hz[0],
+                a.report.band_hz[1],
+                if survey.is_some() { " (survey)" } else { "" }
+            );
             let out = args.out.join(format!("{name}.json"));
             std::fs::write(
                 &out,
@@ -103,6 +115,7 @@ pub fn run(args: &BatchArgs) -> Result<(), CliError> {
                 a.report.flags.to_string(),
                 best,
                 detected,
+                band,
             ))
         })();
         rows.push(Row {
@@ -114,18 +127,18 @@ pub fn run(args: &BatchArgs) -> Result<(), CliError> {
     bar.finish_and_clear();
 
     let mut md = String::from(
-        "| file | speed rpm | flags | BPFO dB | BPFI dB | FTF dB | BSF dB | detected |\n|---|---|---|---|---|---|---|---|\n",
+        "| file | speed rpm | flags | band Hz | BPFO dB | BPFI dB | FTF dB | BSF dB | detected |\n|---|---|---|---|---|---|---|---|---|\n",
     );
     let mut csv =
-        String::from("file,speed_rpm,flags,bpfo_db,bpfi_db,ftf_db,bsf_db,detected,error\n");
+        String::from("file,speed_rpm,flags,band_hz,bpfo_db,bpfi_db,ftf_db,bsf_db,detected,error\n");
     let mut plot_rows = Vec::new();
     let mut failed = 0usize;
     for r in &rows {
         match &r.result {
-            Ok((rpm, flags, s, det)) => {
+            Ok((rpm, flags, s, det, band)) => {
                 let _ = writeln!(
                     md,
-                    "| {} | {rpm:.1} | {flags} | {:.1} | {:.1} | {:.1} | {:.1} | {} |",
+                    "| {} | {rpm:.1} | {flags} | {band} | {:.1} | {:.1} | {:.1} | {:.1} | {} |",
                     r.file,
                     s[0],
                     s[1],
@@ -139,7 +152,7 @@ pub fn run(args: &BatchArgs) -> Result<(), CliError> {
                 );
                 let _ = writeln!(
                     csv,
-                    "{},{rpm:.3},{flags},{:.2},{:.2},{:.2},{:.2},{},",
+                    "{},{rpm:.3},{flags},{band},{:.2},{:.2},{:.2},{:.2},{},",
                     r.file,
                     s[0],
                     s[1],
@@ -154,8 +167,8 @@ pub fn run(args: &BatchArgs) -> Result<(), CliError> {
             }
             Err(e) => {
                 failed += 1;
-                let _ = writeln!(md, "| {} | - | error: {e} | | | | | |", r.file);
-                let _ = writeln!(csv, "{},,,,,,,,\"{}\"", r.file, e.replace('"', "'"));
+                let _ = writeln!(md, "| {} | - | error: {e} | | | | | | |", r.file);
+                let _ = writeln!(csv, "{},,,,,,,,,\"{}\"", r.file, e.replace('"', "'"));
             }
         }
     }

@@ -159,21 +159,33 @@ fn huge_header_values() {
         assert_bad_input(&analyze(&p, &["--rpm", "1200"]), &p, name);
     }
     // A 4 GHz sample rate: the reader accepts it and the pipeline refuses
-    // the point built from it. Exit 2 without a panic; the message names the
-    // point ("point: order tracking: ...") rather than the recording whose
-    // header set the rate (reported to the lead, left to host-sim).
+    // the point built from it. Exit 2 without a panic, and the message names
+    // the recording whose header set the rate, and the rate.
     let p = tmp(
         "huge_rate.wav",
         &riff(&[fmt_raw(3, 1, u32::MAX, 32), chunk(b"data", 64, &[0; 64])]),
     );
     let out = analyze(&p, &["--rpm", "1200"]);
+    assert_bad_input(&out, &p, "4 GHz sample rate");
     let err = String::from_utf8_lossy(&out.stderr);
-    assert_eq!(out.status.code(), Some(2), "{err}");
+    assert!(err.contains("Hz sample rate"), "{err}");
+    // The same file in a batch folder: listed with the same reason.
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::copy(&p, dir.path().join("huge_rate.wav")).unwrap();
+    let out = Command::new(env!("CARGO_BIN_EXE_envord"))
+        .arg("batch")
+        .arg(dir.path())
+        .args(["--point", POINT, "--rpm", "1200", "--out"])
+        .arg(dir.path().join("out"))
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    let summary = std::fs::read_to_string(dir.path().join("out/summary.md")).unwrap();
+    let shown = dir.path().join("huge_rate.wav").display().to_string();
     assert!(
-        !err.contains("panicked") && err.contains("bad input"),
-        "{err}"
+        summary.contains(&shown) && summary.contains("Hz sample rate"),
+        "{summary}"
     );
-    assert!(out.stdout.is_empty());
 }
 
 #[test]
