@@ -370,6 +370,13 @@ fn bearings(entries: &[BearingEntry], p: &mut PointConfig) -> Result<(), String>
     check_count("bearing", entries.len(), MAX_BEARINGS)?;
     for e in entries {
         check_name("bearing", &e.name)?;
+        // one name, one thing: reports and gateway maps refer to both by name
+        if p.shafts.iter().any(|s| s.name.as_str() == e.name) {
+            return Err(format!(
+                "bearing.name `{}`: also the name of a shaft; shaft and bearing names must differ",
+                e.name
+            ));
+        }
         let shaft = shaft_of(p, "bearing", &e.name, e.shaft.as_deref())?;
         let d = length(
             &e.name,
@@ -514,6 +521,24 @@ mod tests {
                 "{text:?} gave {err:?}, want mention of {key}"
             );
         }
+    }
+
+    #[test]
+    fn a_name_shared_by_a_shaft_and_a_bearing_is_refused() {
+        let text = "[[shaft]]\nname = \"input\"\n[[shaft]]\nname = \"out\"\nratio = 0.25\n\
+                    [[bearing]]\nname = \"out\"\nshaft = \"out\"\nbpfo_x = 3.0\nbpfi_x = 5.0\nftf_x = 0.4\nbsf_x = 2.0\n";
+        let err = parse(text).unwrap_err();
+        assert!(
+            err.contains("bearing.name `out`") && err.contains("shaft"),
+            "{err}"
+        );
+        // the default tach shaft (no [[shaft]] given) is named `input`
+        let text =
+            "[[bearing]]\nname = \"input\"\nbpfo_x = 3.0\nbpfi_x = 5.0\nftf_x = 0.4\nbsf_x = 2.0\n";
+        assert!(parse(text).unwrap_err().contains("bearing.name `input`"));
+        // distinct names parse
+        let text = "[[shaft]]\nname = \"input\"\n[[bearing]]\nname = \"de\"\nbpfo_x = 3.0\nbpfi_x = 5.0\nftf_x = 0.4\nbsf_x = 2.0\n";
+        assert!(parse(text).is_ok());
     }
 
     #[test]
