@@ -12,6 +12,7 @@
 //!   survey) for a node from its key file; `provision`: make a node's key and
 //!   identity record.
 
+pub mod downlink;
 pub mod input;
 pub mod map;
 pub mod plot;
@@ -45,6 +46,10 @@ enum GatewayCommand {
     Trend(TrendArgs),
     /// Set or clear the hand-set baseline of one defect.
     Baseline(BaselineArgs),
+    /// Build a signed downlink for a node (configuration, measure now, band survey).
+    Downlink(downlink::DownlinkArgs),
+    /// Make a node's downlink key and identity record (provisioning).
+    Provision(downlink::ProvisionArgs),
 }
 
 #[derive(clap::Args, Debug)]
@@ -198,6 +203,8 @@ pub fn run(args: GatewayArgs) -> Result<(), CliError> {
         GatewayCommand::Status(a) => status_cmd(a),
         GatewayCommand::Trend(a) => trend_cmd(a),
         GatewayCommand::Baseline(a) => baseline_cmd(a),
+        GatewayCommand::Downlink(a) => downlink::downlink_cmd(&a),
+        GatewayCommand::Provision(a) => downlink::provision_cmd(&a),
     }
 }
 

@@ -1,0 +1,381 @@
+//! Signed downlinks for nodes, and node provisioning (keys and identity
+//! records), for the gateway operator. Formats and key handling:
+//! docs/downlink-security.md.
+//!
+//! * `envord gateway provision`: 32 random bytes from the operating
+//!   system's cryptographic source as the node's key (a hex key file for the
+//!   gateway) and the identity record the node reads
+//!   (`firmware::identity`), to write over the debug port.
+//! * `envord gateway downlink ... config|measure-now|survey`: the command
+//!   signed with the node's key and a counter (`firmware::downlink_auth`);
+//!   `config` turns a point file into the node's configuration record
+//!   (`firmware::config`), refusing anything the record cannot carry.
+
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+use dsp_core::config::{BearingKinematics, PointConfig, SpeedInput};
+use firmware::config::{BandSource, BearingModel, BearingSpec, PointRecord, MAX_RECORD_LEN};
+use firmware::downlink::{CMD_MEASURE_NOW, CMD_SET_CONFIG, CMD_SURVEY};
+use firmware::downlink_auth::{sign, DownlinkKey, HEADER_LEN, KEY_LEN, TAG_LEN};
+use firmware::identity::IDENTITY_LEN;
+
+use crate::error::CliError;
+
+/// Arguments of `envord gateway downlink`.
+#[derive(clap::Args, Debug)]
+pub struct DownlinkArgs {
+    /// Node id the downlink addresses.
+    #[arg(long)]
+    pub node_id: u16,
+    /// The node's key file (64 hex digits, from `envord gateway provision`).
+    #[arg(long)]
+    pub key: PathBuf,
+    /// Replay counter: greater than every counter sent to this node before
+    /// (the node refuses equal or older ones). Never reuse one.
+    #[arg(long)]
+    pub counter: u32,
+    /// Write the frame here (raw bytes) instead of printing it as hex.
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// What to send.
+    #[command(subcommand)]
+    pub command: DownlinkCommand,
+}
+
+/// The command a downlink carries.
+#[derive(clap::Subcommand, Debug)]
+pub enum DownlinkCommand {
+    /// Replace the node's measuring point with the one of a point file.
+    Config(ConfigArgs),
+    /// Measure again right away.
+    MeasureNow,
+    /// Run the band survey (commissioning) and store the band it chooses.
+    Survey,
+}
+
+/// Node settings of a configuration downlink (not in point files).
+#[derive(clap::Args, Debug)]
+pub struct ConfigArgs {
+    /// Measuring point (TOML point file). Without `[envelope] band_hz` the
+    /// node chooses the band with its band survey.
+    #[arg(long)]
+    pub point: PathBuf,
+    /// Sensor settling time after power-up, ms.
+    #[arg(long, default_value_t = 200)]
+    pub settle_ms: u16,
+    /// Interval between measurements, s.
+    #[arg(long, default_value_t = 3600)]
+    pub interval_s: u32,
+    /// LOW_BATTERY below this supply voltage, mV.
+    #[arg(long, default_value_t = 3000)]
+    pub low_battery_mv: u16,
+    /// Defect alert threshold, dB over baseline.
+    #[arg(long, default_value_t = 6.0)]
+    pub alert_db: f32,
+    /// Defect alarm threshold, dB over baseline.
+    #[arg(long, default_value_t = 12.0)]
+    pub alarm_db: f32,
+    /// SENSOR_FAULT when a record spans at most this many counts (flat).
+    #[arg(long, default_value_t = 4)]
+    pub flat_counts: u16,
+    /// CLIPPING when this many per mille of samples reach the clip level.
+    #[arg(long, default_value_t = 1)]
+    pub clip_permille: u16,
+    /// SENSOR_FAULT when this many per mille of samples are clipped.
+    #[arg(long, default_value_t = 100)]
+    pub saturated_permille: u16,
+}
+
+/// Arguments of `envord gateway provision`.
+#[derive(clap::Args, Debug)]
+pub struct ProvisionArgs {
+    /// Node id to give the node.
+    #[arg(long)]
+    pub node_id: u16,
+    /// Write the new key here (hex; readable by the gateway service only).
+    /// An existing file is not overwritten.
+    #[arg(long)]
+    pub key_out: PathBuf,
+    /// Write the identity record here (raw bytes for the node's identity page).
+    #[arg(long)]
+    pub identity_out: PathBuf,
+}
+
+/// Reads a key file: 64 hex digits (whitespace around them ignored).
+pub fn read_key(path: &Path) -> Result<[u8; KEY_LEN], CliError> {
+    let text = std::fs::read_to_string(path)
+        .map_err(|e| CliError::input(path.display(), format!("cannot read key file: {e}")))?;
+    let hex = text.trim();
+    let bad = || {
+        CliError::input(
+            path.display(),
+            format!("a key file holds {} hex digits", 2 * KEY_LEN),
+        )
+    };
+    if hex.len() != 2 * KEY_LEN || !hex.is_ascii() {
+        return Err(bad());
+    }
+    let mut key = [0u8; KEY_LEN];
+    for (k, pair) in key.iter_mut().zip(hex.as_bytes().chunks_exact(2)) {
+        let s = std::str::from_utf8(pair).map_err(|_| bad())?;
+        *k = u8::from_str_radix(s, 16).map_err(|_| bad())?;
+    }
+    if key.iter().all(|&b| b == 0) || key.iter().all(|&b| b == 0xFF) {
+        return Err(CliError::input(path.display(), "the key is blank"));
+    }
+    warn_if_shared(path);
+    Ok(key)
+}
+
+#[cfg(unix)]
+fn warn_if_shared(path: &Path) {
+    use std::os::unix::fs::PermissionsExt;
+    if let Ok(m) = std::fs::metadata(path) {
+        if m.permissions().mode() & 0o077 != 0 {
+            eprintln!(
+                "envord: warning: {} is readable by other users; keep keys readable by the gateway service only (chmod 600)",
+                path.display()
+            );
+        }
+    }
+}
+
+#[cfg(not(unix))]
+fn warn_if_shared(_path: &Path) {}
+
+/// Why a point cannot become the node's configuration record.
+fn unsupported(key: &str, why: &str) -> String {
+    format!("{key}: {why}; the node's configuration record cannot carry it")
+}
+
+/// The node's configuration record for a measuring point and node settings.
+/// Everything the point file sets must survive the node's own conversion
+/// (`firmware::point::point_config`), else the key is named in the error.
+pub fn record_from_point(p: &PointConfig, s: &ConfigArgs) -> Result<PointRecord, String> {
+    let mut r = PointRecord::default();
+    let fs = p.sample_rate_hz;
+    if !(fs.is_finite() && fs >= 1.0 && fs.fract() == 0.0 && fs <= 200_000.0) {
+        return Err(unsupported(
+            "sensor.sample_rate_hz",
+            "the node samples at a whole number of Hz up to 200 kHz",
+        ));
+    }
+    // whole number up to 200 000: exact
+    #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
+    {
+        r.sample_rate_hz = fs as u32;
+    }
+    match p.band_hz {
+        Some([lo, hi]) => {
+            r.band_lo_hz = lo;
+            r.band_hi_hz = hi;
+            r.band_source = BandSource::Configured;
+        }
+        None => {
+            r.band_lo_hz = 0.0;
+            r.band_hi_hz = 0.0;
+            r.band_source = BandSource::Unset;
+        }
+    }
+    r.poles = p.poles;
+    match p.speed {
+        SpeedInput::Tach {
+            pulses_per_rev,
+            tick_hz,
+            tick_at_sample0,
+        } => {
+            if tick_at_sample0 != 0 {
+                return Err(unsupported(
+                    "speed.tick_at_sample0",
+                    "the node's tach timer starts with its sample clock (0)",
+                ));
+            }
+            r.pulses_per_rev = pulses_per_rev;
+            r.tach_tick_hz = tick_hz;
+        }
+        SpeedInput::Constant { .. } => {
+            return Err(unsupported(
+                "speed.source",
+                "the node measures speed with a tach (`source = \"tach\"`)",
+            ))
+        }
+    }
+    r.speed_min_rpm = p.min_rpm;
+    r.speed_max_rpm = p.max_rpm;
+    r.record_revs = p.revolutions;
+    r.counts_to_g = p.counts_to_g;
+    r.health.clip_level = p.adc_full_scale;
+    r.health.flat_counts = s.flat_counts;
+    r.health.clip_permille = s.clip_permille;
+    r.health.saturated_permille = s.saturated_permille;
+    r.settle_ms = s.settle_ms;
+    r.interval_s = s.interval_s;
+    r.low_battery_mv = s.low_battery_mv;
+    r.alert_db = s.alert_db;
+    r.alarm_db = s.alarm_db;
+    r.bearings.clear();
+    for b in &p.bearings {
+        let ratio = p
+            .shafts
+            .get(usize::from(b.shaft))
+            .map(|x| x.ratio)
+            .ok_or_else(|| format!("bearing `{}`.shaft: no such shaft", b.name.as_str()))?;
+        let model = match b.kinematics {
+            BearingKinematics::Geometry {
+                rollers,
+                roller_diameter,
+                pitch_diameter,
+                contact_angle_deg,
+            } => BearingModel::Geometry {
+                elements: u8::try_from(rollers).map_err(|_| {
+                    unsupported(
+                        &format!("bearing `{}`.rollers", b.name.as_str()),
+                        "at most 255 rolling elements",
+                    )
+                })?,
+                element_mm: roller_diameter,
+                pitch_mm: pitch_diameter,
+                contact_deg: contact_angle_deg,
+            },
+            BearingKinematics::Multiples {
+                bpfo_x,
+                bpfi_x,
+                ftf_x,
+                bsf_x,
+            } => BearingModel::Orders {
+                bpfo: bpfo_x,
+                bpfi: bpfi_x,
+                ftf: ftf_x,
+                bsf: bsf_x,
+            },
+        };
+        r.bearings
+            .push(BearingSpec {
+                shaft_ratio: ratio,
+                model,
+            })
+            .map_err(|_| unsupported("bearing", "at most 4 bearings"))?;
+    }
+    r.validate()
+        .map_err(|e| format!("{e} (the node's own range checks)"))?;
+    // What the node will make of it must be the point the file describes.
+    let back = firmware::point::point_config(&r)
+        .map_err(|e| format!("the node would refuse this point: {e}"))?;
+    let checks: [(&str, bool); 8] = [
+        ("envelope.rectifier", back.rectifier == p.rectifier),
+        (
+            "spectrum.samples_per_rev",
+            back.samples_per_rev == p.samples_per_rev,
+        ),
+        ("spectrum.window", back.window == p.window),
+        (
+            "speed.max_change_pct",
+            back.max_speed_change_pct == p.max_speed_change_pct,
+        ),
+        ("search", back.search == p.search),
+        ("iso.machine_group", back.machine_group == p.machine_group),
+        ("iso.support", back.support == p.support),
+        ("mesh", p.meshes.is_empty()),
+    ];
+    if let Some((key, _)) = checks.iter().find(|(_, same)| !same) {
+        return Err(unsupported(
+            key,
+            "set to other than the node's default in the point file",
+        ));
+    }
+    Ok(r)
+}
+
+/// The payload (command byte and data) of a downlink command.
+pub fn payload(cmd: &DownlinkCommand) -> Result<Vec<u8>, CliError> {
+    Ok(match cmd {
+        DownlinkCommand::MeasureNow => vec![CMD_MEASURE_NOW],
+        DownlinkCommand::Survey => vec![CMD_SURVEY],
+        DownlinkCommand::Config(c) => {
+            let point = crate::point::load(&c.point)?;
+            let rec =
+                record_from_point(&point, c).map_err(|m| CliError::input(c.point.display(), m))?;
+            let mut buf = [0u8; MAX_RECORD_LEN];
+            let n = rec
+                .encode(&mut buf)
+                .map_err(|e| CliError::input(c.point.display(), e))?;
+            let mut v = vec![CMD_SET_CONFIG];
+            v.extend_from_slice(buf.get(..n).unwrap_or(&[]));
+            v
+        }
+    })
+}
+
+/// Runs `envord gateway downlink`.
+pub fn downlink_cmd(a: &DownlinkArgs) -> Result<(), CliError> {
+    let key = DownlinkKey::new(read_key(&a.key)?);
+    let payload = payload(&a.command)?;
+    let mut frame = vec![0u8; HEADER_LEN + payload.len() + TAG_LEN];
+    let n = sign(&key, a.node_id, a.counter, &payload, &mut frame)
+        .map_err(|e| CliError::Other(e.to_string()))?;
+    frame.truncate(n);
+    // LoRaWAN Regional Parameters (RP002), quoted from memory: EU868 DR0-DR2
+    // carry 51 bytes, DR3 115, DR4 and up 222.
+    let rate = match n {
+        0..=51 => "any EU868 data rate",
+        52..=115 => "EU868 DR3 or faster (115-byte payloads)",
+        _ => "EU868 DR4 or faster (222-byte payloads)",
+    };
+    eprintln!(
+        "envord: downlink for node {} with counter {}: {n} bytes, needs {rate}",
+        a.node_id, a.counter
+    );
+    match &a.out {
+        Some(p) => std::fs::write(p, &frame)
+            .map_err(|e| CliError::Other(format!("{}: {e}", p.display())))?,
+        None => println!("{}", super::input::to_hex(&frame)),
+    }
+    Ok(())
+}
+
+/// Runs `envord gateway provision`.
+pub fn provision_cmd(a: &ProvisionArgs) -> Result<(), CliError> {
+    let mut key = [0u8; KEY_LEN];
+    getrandom::fill(&mut key)
+        .map_err(|e| CliError::Other(format!("operating system random source: {e}")))?;
+    let mut ident = [0u8; IDENTITY_LEN];
+    firmware::identity::encode(a.node_id, &key, &mut ident)
+        .map_err(|e| CliError::Other(e.to_string()))?;
+    write_new_private(
+        &a.key_out,
+        format!("{}\n", super::input::to_hex(&key)).as_bytes(),
+    )?;
+    std::fs::write(&a.identity_out, ident)
+        .map_err(|e| CliError::Other(format!("{}: {e}", a.identity_out.display())))?;
+    println!(
+        "node {}: key in {} (keep it with the gateway only), identity record in {} ({IDENTITY_LEN} bytes)",
+        a.node_id,
+        a.key_out.display(),
+        a.identity_out.display()
+    );
+    println!(
+        "write it over the debug port, e.g. nRF52840: probe-rs download --chip nRF52840_xxAA --binary-format bin --base-address 0xFB000 {}",
+        a.identity_out.display()
+    );
+    Ok(())
+}
+
+/// Creates `path` (never overwriting) readable by its owner only.
+fn write_new_private(path: &Path, data: &[u8]) -> Result<(), CliError> {
+    let mut o = std::fs::OpenOptions::new();
+    o.write(true).create_new(true);
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::OpenOptionsExt;
+        o.mode(0o600);
+    }
+    let mut f = o.open(path).map_err(|e| {
+        CliError::input(
+            path.display(),
+            format!("cannot create the key file (an existing key is never overwritten): {e}"),
+        )
+    })?;
+    f.write_all(data)
+        .map_err(|e| CliError::Other(format!("{}: {e}", path.display())))
+}
