@@ -168,6 +168,9 @@ impl<const N: usize, const H: usize, const RING: usize> MeasurementCore
         self.node_id = node_id;
     }
 
+    // Its own frame: the survey (7.7 KiB) is built by value here, and that
+    // temporary must not enlarge the frame of the cycle's every step.
+    #[inline(never)]
     fn start_survey(&mut self, config: &PointRecord) -> Result<(), CommissionError> {
         self.report = None;
         self.pipeline = None;
@@ -176,6 +179,7 @@ impl<const N: usize, const H: usize, const RING: usize> MeasurementCore
         Ok(())
     }
 
+    #[inline(never)]
     fn finish_survey(&mut self) -> Result<SurveyChoice, CommissionError> {
         self.survey
             .take()
