@@ -13,7 +13,7 @@
 //! Pins (DK): AIN0 = P0.02 sensor signal, P0.03 tach input, P0.28 sensor
 //! power switch, button 1 (P0.11) asks for a measurement. Radio: BLE
 //! non-connectable advertising of the frame, raw RADIO registers. Storage:
-//! the last two flash pages. Logs: defmt over RTT.
+//! the last five flash pages, power-safe (src/storage.rs). Logs: defmt over RTT.
 #![no_std]
 #![no_main]
 
@@ -30,8 +30,9 @@ use firmware::hal::Watchdog;
 use firmware::pipeline_core::NodeCore;
 use panic_probe as _;
 
-/// Node id written into every frame (set per installed node).
-const NODE_ID: u16 = 1;
+/// Node id of frames until an identity is provisioned (an unprovisioned
+/// node refuses every downlink; the provisioned node id replaces this).
+const NODE_ID: u16 = 0;
 
 bind_interrupts!(struct Irqs {
     SAADC => saadc::InterruptHandler;
@@ -90,7 +91,15 @@ fn main() -> ! {
         capture: sampling::TachCapture::new(),
         radio: ble::Advertiser::new(),
         alarm: sleep::RtcAlarm::new(),
-        storage: storage::FlashStorage::new(embassy_nrf::nvmc::Nvmc::new(p.NVMC)),
+        storage: match storage::new(embassy_nrf::nvmc::Nvmc::new(p.NVMC)) {
+            Ok(s) => s,
+            Err(e) => {
+                defmt::error!("flash store: {}", e);
+                loop {
+                    cortex_m::asm::wfe();
+                }
+            }
+        },
         battery: sampling::VddMonitor,
         watchdog: Wdt(handle),
         power: Output::new(p.P0_28, Level::Low, OutputDrive::Standard),
@@ -101,7 +110,12 @@ fn main() -> ! {
         panic!("core taken twice");
     };
     let mut node = Node::new(dev, core);
-    defmt::info!("envord nRF52840 DK: config {}", node.config_source());
+    defmt::info!(
+        "envord nRF52840 DK: node {}, config {}, downlink counter {}",
+        node.node_id(),
+        node.config_source(),
+        node.counter()
+    );
     // the sampling chain runs at a fixed 25.6 kHz with tach ticks in samples
     let c = node.config();
     if c.sample_rate_hz != sampling::SAMPLE_RATE_HZ || c.tach_tick_hz != sampling::SAMPLE_RATE_HZ {

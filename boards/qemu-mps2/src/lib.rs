@@ -8,9 +8,8 @@
 //! |-----------------|-----------|------------------------------------------------|
 //! | `recording.i16` | in        | ADC samples, little-endian i16, at the config's sample rate |
 //! | `tach.u32`      | in        | tach edge timestamps, little-endian u32, in sample-clock ticks |
-//! | `config.bin`    | in/out    | stored configuration record (the firmware's `Storage`) |
-//! | `baseline.bin`  | in/out    | stored baseline (optional)                      |
-//! | `downlink.bin`  | in        | one downlink delivered after the first uplink (optional) |
+//! | `flash.bin`     | in/out    | the emulated NOR flash (5 pages of 4 KiB: configuration A/B, baseline A/B, identity), through the firmware's power-safe `FlashStore`; written by `make_input.py flash` |
+//! | `downlinks.bin` | in        | downlinks, one per receive window in order: u16 LE length + bytes, length 0 = none (optional) |
 //! | `frames.bin`    | out       | every uplink frame, concatenated               |
 //!
 //! Frames are also printed as hex on stderr (`frame N: ...`).
@@ -18,12 +17,13 @@
 
 use core::sync::atomic::{AtomicU32, Ordering};
 use defmt_semihosting as _; // global defmt logger over semihosting stdout
+use embedded_storage::nor_flash::{ErrorType, NorFlash, NorFlashErrorKind, ReadNorFlash};
 use firmware::hal::{
-    Alarm, Battery, Block, BlockSource, PulseCapture, RadioLink, Slot, Storage, WakeReason,
-    Watchdog,
+    Alarm, Battery, Block, BlockSource, PulseCapture, RadioLink, WakeReason, Watchdog,
 };
+use firmware::store::Layout;
 use semihosting::fs::File;
-use semihosting::io::{Read, Write};
+use semihosting::io::{Read, Seek, SeekFrom, Write};
 
 /// Samples per ADC block, the same as the nRF52840 board's DMA halves.
 pub const BLOCK_LEN: usize = 256;
@@ -177,20 +177,21 @@ impl PulseCapture for FileCapture {
 }
 
 /// Radio stand-in: frames appended to `frames.bin` and hex on stderr;
-/// `downlink.bin`, if present, is delivered once.
+/// `downlinks.bin`, if present, gives one downlink (or none) per receive
+/// window, in order.
 pub struct FileRadio {
     out: Option<File>,
     sent: u32,
-    downlink_done: bool,
+    downlinks: Option<File>,
 }
 
 impl FileRadio {
-    /// Creates (truncates) `frames.bin`.
+    /// Creates (truncates) `frames.bin`; opens `downlinks.bin` if present.
     pub fn create() -> Result<Self, BoardError> {
         Ok(Self {
             out: Some(File::create(c"frames.bin").map_err(|_| BoardError::Io)?),
             sent: 0,
-            downlink_done: false,
+            downlinks: File::open(c"downlinks.bin").ok(),
         })
     }
 
@@ -214,37 +215,129 @@ impl RadioLink for FileRadio {
         Ok(())
     }
     fn receive(&mut self, buf: &mut [u8]) -> Result<Option<usize>, BoardError> {
-        if self.downlink_done {
+        let Some(f) = self.downlinks.as_mut() else {
+            return Ok(None);
+        };
+        let mut len = [0u8; 2];
+        if read_full(f, &mut len)? < 2 {
+            self.downlinks = None; // no more windows with a downlink
             return Ok(None);
         }
-        self.downlink_done = true;
-        match File::open(c"downlink.bin") {
-            Err(_) => Ok(None),
-            Ok(mut f) => Ok(Some(read_full(&mut f, buf)?)),
+        let n = usize::from(u16::from_le_bytes(len));
+        if n == 0 {
+            return Ok(None);
         }
+        // a downlink longer than the buffer is cut, as a radio would; the
+        // node then refuses it (its tag no longer verifies)
+        let take = n.min(buf.len());
+        let got = read_full(f, &mut buf[..take])?;
+        let mut skip = [0u8; 1];
+        for _ in take..n {
+            read_full(f, &mut skip)?;
+        }
+        Ok(Some(got))
     }
 }
 
-/// Storage over `config.bin` / `baseline.bin`.
-pub struct FileStorage;
+/// Emulated flash page size (the nRF52840's).
+pub const PAGE: usize = 4096;
+/// Emulated flash pages.
+pub const PAGES: usize = 5;
+/// Page layout of `flash.bin` (as written by `make_input.py flash`).
+pub const LAYOUT: Layout = Layout {
+    config: [0, PAGE as u32],
+    baseline: [2 * PAGE as u32, 3 * PAGE as u32],
+    identity: 4 * PAGE as u32,
+};
 
-fn slot_path(slot: Slot) -> &'static core::ffi::CStr {
-    match slot {
-        Slot::Config => c"config.bin",
-        Slot::Baseline => c"baseline.bin",
+/// NOR flash over the semihosting file `flash.bin`, with the NOR rules:
+/// erase sets a page to 0xFF, programming can only clear bits.
+pub struct FileFlash {
+    file: File,
+}
+
+impl FileFlash {
+    /// Opens `flash.bin` for reading and writing.
+    pub fn open() -> Result<Self, BoardError> {
+        let file = File::options()
+            .read(true)
+            .write(true)
+            .open(c"flash.bin")
+            .map_err(|_| BoardError::Io)?;
+        Ok(Self { file })
+    }
+
+    fn seek(&mut self, offset: u32) -> Result<(), NorFlashErrorKind> {
+        self.file
+            .seek(SeekFrom::Start(u64::from(offset)))
+            .map(|_| ())
+            .map_err(|_| NorFlashErrorKind::Other)
+    }
+
+    fn check(offset: u32, len: usize) -> Result<(), NorFlashErrorKind> {
+        if offset as usize + len > PAGE * PAGES {
+            return Err(NorFlashErrorKind::OutOfBounds);
+        }
+        Ok(())
     }
 }
 
-impl Storage for FileStorage {
-    type Error = BoardError;
-    fn load(&mut self, slot: Slot, buf: &mut [u8]) -> Result<usize, BoardError> {
-        match File::open(slot_path(slot)) {
-            Err(_) => Ok(0),
-            Ok(mut f) => read_full(&mut f, buf),
+impl ErrorType for FileFlash {
+    type Error = NorFlashErrorKind;
+}
+
+impl ReadNorFlash for FileFlash {
+    const READ_SIZE: usize = 1;
+    fn read(&mut self, offset: u32, bytes: &mut [u8]) -> Result<(), Self::Error> {
+        Self::check(offset, bytes.len())?;
+        self.seek(offset)?;
+        match read_full(&mut self.file, bytes) {
+            Ok(n) if n == bytes.len() => Ok(()),
+            _ => Err(NorFlashErrorKind::Other),
         }
     }
-    fn store(&mut self, slot: Slot, data: &[u8]) -> Result<(), BoardError> {
-        semihosting::fs::write(slot_path(slot), data).map_err(|_| BoardError::Io)
+    fn capacity(&self) -> usize {
+        PAGE * PAGES
+    }
+}
+
+impl NorFlash for FileFlash {
+    const WRITE_SIZE: usize = 4;
+    const ERASE_SIZE: usize = PAGE;
+    fn erase(&mut self, from: u32, to: u32) -> Result<(), Self::Error> {
+        if from as usize % PAGE != 0 || to as usize % PAGE != 0 || to < from {
+            return Err(NorFlashErrorKind::NotAligned);
+        }
+        Self::check(from, (to - from) as usize)?;
+        self.seek(from)?;
+        let ones = [0xFFu8; 256];
+        for _ in 0..(to - from) as usize / ones.len() {
+            self.file
+                .write_all(&ones)
+                .map_err(|_| NorFlashErrorKind::Other)?;
+        }
+        Ok(())
+    }
+    fn write(&mut self, offset: u32, bytes: &[u8]) -> Result<(), Self::Error> {
+        if offset % 4 != 0 || bytes.len() % 4 != 0 {
+            return Err(NorFlashErrorKind::NotAligned);
+        }
+        Self::check(offset, bytes.len())?;
+        let mut at = offset;
+        for chunk in bytes.chunks(64) {
+            let mut old = [0u8; 64];
+            let old = &mut old[..chunk.len()];
+            self.read(at, old)?;
+            for (o, b) in old.iter_mut().zip(chunk) {
+                *o &= *b; // programming clears bits only
+            }
+            self.seek(at)?;
+            self.file
+                .write_all(old)
+                .map_err(|_| NorFlashErrorKind::Other)?;
+            at += chunk.len() as u32;
+        }
+        Ok(())
     }
 }
 

@@ -109,11 +109,13 @@ impl Storage for RamStorage {
     type Error = ();
     fn load(&mut self, slot: Slot, buf: &mut [u8]) -> Result<usize, ()> {
         match slot {
+            // stored as the node stores it: downlink counter 0, then the record
             Slot::Config => {
-                buf[..CONFIG.len()].copy_from_slice(CONFIG);
-                Ok(CONFIG.len())
+                buf[..4].copy_from_slice(&0u32.to_le_bytes());
+                buf[4..4 + CONFIG.len()].copy_from_slice(CONFIG);
+                Ok(4 + CONFIG.len())
             }
-            Slot::Baseline => Ok(0),
+            Slot::Baseline | Slot::Identity => Ok(0),
         }
     }
     fn store(&mut self, _s: Slot, _d: &[u8]) -> Result<(), ()> {
