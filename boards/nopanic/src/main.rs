@@ -1,5 +1,8 @@
 //! Link-time proof that no panic path is reachable from dsp-core's public
-//! API (and the firmware's downlink check) when built for thumbv7em-none-eabihf in release mode.
+//! API and from the firmware node (its whole cycle with the pipeline core:
+//! downlink authentication and parsing, configuration and identity records,
+//! the power-safe flash store, the commissioning survey, status frames) when
+//! built for thumbv7em-none-eabihf in release mode.
 //!
 //! The panic handler calls `envord_panic_is_reachable`, a function that is
 //! declared but defined nowhere. If, after optimisation, any call to a panic
@@ -170,6 +173,206 @@ fn downlink() {
     ));
 }
 
+/// Devices whose every answer is opaque to the optimiser.
+mod opaque {
+    use super::black_box;
+    use embedded_storage::nor_flash::{ErrorType, NorFlash, NorFlashErrorKind, ReadNorFlash};
+    use firmware::hal::{
+        Alarm, Battery, Block, BlockSource, PulseCapture, RadioLink, WakeReason, Watchdog,
+    };
+
+    pub struct Source(pub [i16; 256]);
+    impl BlockSource for Source {
+        type Error = ();
+        fn start(&mut self) -> Result<(), ()> {
+            black_box(Ok(()))
+        }
+        fn block_len(&self) -> usize {
+            black_box(256)
+        }
+        fn next_block(&mut self) -> Result<Block<'_>, ()> {
+            if black_box(true) {
+                Ok(Block {
+                    samples: black_box(&self.0[..]),
+                    overrun: black_box(false),
+                })
+            } else {
+                Err(())
+            }
+        }
+        fn stop(&mut self) {}
+    }
+
+    pub struct Capture;
+    impl PulseCapture for Capture {
+        type Error = ();
+        fn start(&mut self) -> Result<(), ()> {
+            black_box(Ok(()))
+        }
+        fn next_edge(&mut self) -> Option<u32> {
+            black_box(None)
+        }
+        fn stop(&mut self) {}
+    }
+
+    /// Sends go nowhere; each receive window gets any bytes of any length.
+    pub struct Radio(pub [u8; 300]);
+    impl RadioLink for Radio {
+        type Error = ();
+        fn send(&mut self, frame: &[u8]) -> Result<(), ()> {
+            black_box(frame);
+            black_box(Ok(()))
+        }
+        fn receive(&mut self, buf: &mut [u8]) -> Result<Option<usize>, ()> {
+            for (b, s) in buf.iter_mut().zip(self.0.iter()) {
+                *b = black_box(*s);
+            }
+            black_box(Ok(Some(usize::MAX)))
+        }
+    }
+
+    pub struct Sleep;
+    impl Alarm for Sleep {
+        fn sleep(&mut self, s: u32) -> WakeReason {
+            black_box(s);
+            black_box(WakeReason::Schedule)
+        }
+    }
+
+    pub struct Batt;
+    impl Battery for Batt {
+        fn millivolts(&mut self) -> u16 {
+            black_box(3300)
+        }
+    }
+
+    pub struct Dog;
+    impl Watchdog for Dog {
+        fn feed(&mut self) {}
+    }
+
+    pub struct Pin;
+    impl embedded_hal::digital::ErrorType for Pin {
+        type Error = embedded_hal::digital::ErrorKind;
+    }
+    impl embedded_hal::digital::OutputPin for Pin {
+        fn set_low(&mut self) -> Result<(), Self::Error> {
+            black_box(Ok(()))
+        }
+        fn set_high(&mut self) -> Result<(), Self::Error> {
+            black_box(Ok(()))
+        }
+    }
+
+    pub struct Delay;
+    impl embedded_hal::delay::DelayNs for Delay {
+        fn delay_ns(&mut self, ns: u32) {
+            black_box(ns);
+        }
+    }
+
+    /// A flash whose contents and results are opaque (any page contents,
+    /// any failure).
+    pub struct Flash;
+    impl ErrorType for Flash {
+        type Error = NorFlashErrorKind;
+    }
+    impl ReadNorFlash for Flash {
+        const READ_SIZE: usize = 1;
+        fn read(&mut self, offset: u32, bytes: &mut [u8]) -> Result<(), Self::Error> {
+            black_box(offset);
+            for b in bytes.iter_mut() {
+                *b = black_box(0xFF);
+            }
+            black_box(Ok(()))
+        }
+        fn capacity(&self) -> usize {
+            black_box(5 * 4096)
+        }
+    }
+    impl NorFlash for Flash {
+        const WRITE_SIZE: usize = 4;
+        const ERASE_SIZE: usize = 4096;
+        fn erase(&mut self, from: u32, to: u32) -> Result<(), Self::Error> {
+            black_box((from, to));
+            black_box(Ok(()))
+        }
+        fn write(&mut self, offset: u32, bytes: &[u8]) -> Result<(), Self::Error> {
+            black_box((offset, bytes));
+            black_box(Ok(()))
+        }
+    }
+}
+
+/// The node's whole cycle with the pipeline core over opaque devices and a
+/// power-safe store on an opaque flash: every state, every downlink.
+fn node() {
+    use firmware::cycle::{Devices, Node};
+    use firmware::pipeline_core::NodeCore;
+    use firmware::store::{FlashStore, Layout};
+    let layout = black_box(Layout {
+        config: [0, 4096],
+        baseline: [8192, 12288],
+        identity: 16384,
+    });
+    let Ok(storage) = FlashStore::new(opaque::Flash, layout) else {
+        return;
+    };
+    let Some(core) = cortex_m::singleton!(: NodeCore = NodeCore::new(0)) else {
+        return;
+    };
+    let dev = Devices {
+        source: opaque::Source(black_box([0; 256])),
+        capture: opaque::Capture,
+        radio: opaque::Radio(black_box([0; 300])),
+        alarm: opaque::Sleep,
+        storage,
+        battery: opaque::Batt,
+        watchdog: opaque::Dog,
+        power: opaque::Pin,
+        delay: opaque::Delay,
+    };
+    let mut node = Node::new(dev, core);
+    let bytes = [0u8; 300];
+    loop {
+        let _ = black_box(node.step());
+        black_box(node.apply_downlink(black_box(&bytes[..])));
+        black_box(node.status());
+        black_box(node.frame());
+        black_box(node.blocks_wanted());
+        if black_box(false) {
+            break;
+        }
+    }
+}
+
+/// Records read from storage or radio, on arbitrary bytes.
+fn records() {
+    use firmware::config::{PointRecord, StoredConfig};
+    use firmware::identity::Identity;
+    let bytes = [0u8; 300];
+    let input: &[u8] = black_box(&bytes[..]);
+    if let Ok(s) = StoredConfig::decode(input) {
+        let mut out = [0u8; 300];
+        let _ = black_box(s.encode(&mut out));
+        let _ = black_box(
+            firmware::commission::Commissioning::new(&s.record).map(|c| {
+                black_box(c.band_count());
+                black_box(c.finish())
+            }),
+        );
+        black_box(firmware::cycle::band_in_use(&s.record));
+    }
+    if let Ok(r) = PointRecord::decode(input) {
+        black_box(r.band_hz());
+        let _ = black_box(r.with_survey_band(black_box([1.0, 2.0]), black_box(0.0)));
+    }
+    if let Ok(id) = Identity::decode(input) {
+        black_box(id.node_id());
+        let _ = black_box(firmware::downlink::open(Some(&id), black_box(0), input));
+    }
+}
+
 #[entry]
 fn main() -> ! {
     loop {
@@ -185,5 +388,7 @@ fn main() -> ! {
         tach();
         survey();
         downlink();
+        records();
+        node();
     }
 }
