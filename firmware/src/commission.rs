@@ -11,15 +11,16 @@
 //!
 //! # Memory and time
 //! [`Commissioning`] is a [`BandSurvey`] (48 bands of 160 bytes plus
-//! bookkeeping, 7 720 bytes on thumbv7em: `size_of` is printed by
+//! bookkeeping: 7 728 bytes, `size_of` printed by
 //! `firmware/tests/commission.rs`), kept inside the pipeline core beside the
 //! pipeline; while a block is filtered the survey uses about 2 KiB of stack
 //! (two 256-sample f32 scratch blocks), and its result about 0.8 KiB.
 //! At 25.6 kS/s with the committed test point (min bandwidth 3 x BPFI at
-//! 3600 rpm) the bank has 20 bands; under QEMU (`-icount`) a 256-sample
-//! block costs about 0.19 million instructions (about 30 % of the 10 ms
-//! block at 64 MHz if one instruction took one cycle), so the survey keeps
-//! up with the ADC. Figures: docs/commissioning.md.
+//! 3600 rpm) the bank has 22 bands; under QEMU (`-icount`) a 256-sample
+//! block costs 0.38 million instructions, 59 % of the 10 ms block at 64 MHz
+//! if one instruction took one cycle: whether it keeps up on silicon is to be
+//! measured on a kit (a gapped capture is discarded, not used). Figures:
+//! docs/commissioning.md, `boards/size.sh`.
 
 use dsp_core::band_choice::new_survey;
 use dsp_core::survey::{BandSurvey, SurveyError};
