@@ -114,3 +114,34 @@ fn doc_example_decoded_json_is_decoder_output() {
         squash(&json)
     );
 }
+
+/// The status-frame example of the document: node 0x0A17 after a refused
+/// downlink, its band chosen by its survey.
+#[test]
+fn doc_status_example_hex_is_encoder_output() {
+    use dsp_core::frame::status::{
+        encode_status, BandSource, BootConfig, DownlinkResult, StatusReport, SurveyStatus,
+    };
+    let r = StatusReport {
+        node_id: 0x0A17,
+        seq: 2,
+        band_source: BandSource::Survey,
+        boot_config: BootConfig::Stored,
+        provisioned: true,
+        downlink_counter: 41,
+        last_downlink: DownlinkResult::BadTag,
+        refused_downlinks: 1,
+        survey: SurveyStatus::Stored,
+        band_hz: [2519.842, 5039.684],
+        band_kurtosis: 7.31,
+        ..StatusReport::default()
+    };
+    let mut buf = [0u8; 64];
+    let n = encode_status(&r, &mut buf).unwrap();
+    let hex = common::to_hex(&buf[..n]);
+    println!("status: {hex}");
+    assert_eq!(
+        squash(block_after(&doc(), "<!-- example-status-hex -->")),
+        hex
+    );
+}
