@@ -118,7 +118,7 @@ rm -f "$d/downlinks.bin"
 (cd "$d" && python3 "$gen" downlinks config:7:32)
 qemu "$d" > /dev/null
 grep -E '^(config|cycle 0|done)' "$d/err"
-check '^config: Stored, counter 7, node Some(1), band Configured, 138 blocks'
+check '^config: Stored, counter 7, node Some(1), band Configured (bits 44fa0000 45fa0000), 138 blocks'
 check '^cycle 0: 138 blocks.*downlink Refused(Auth(Replayed { counter: 7, stored: 7 }))'
 check '^done: 4 cycles,'
 echo "after the power cycle: configuration and counter kept, the replay refused"
@@ -156,12 +156,13 @@ assert node_band == host_band, "the node and envord analyze chose different band
 assert abs(node_k - env["band_kurtosis"]) <= 0.005 + 1e-6, "kurtosis differs"
 print("same band, bit for bit; kurtosis within the frame's 0.01 step")
 PY
-grep -q "bits $(python3 -c "import json,struct;e=json.load(open('$d/analyze.json'))['envelope'];print(' '.join(struct.pack('>f',x).hex() for x in e['band_hz']))")" "$d/err"
+bits="$(python3 -c "import json,struct;e=json.load(open('$d/analyze.json'))['envelope'];print(' '.join(struct.pack('>f',x).hex() for x in e['band_hz']))")"
+check "^status 0: .*band Survey .*(bits $bits)"
 # Power cycle: the surveyed band is stored; no new survey.
 rm -f "$d/count-instructions"
 qemu "$d" > /dev/null
 grep -E '^(config|cycle 0)' "$d/err"
-check '^config: Stored, counter 0, node Some(1), band Survey { kurtosis:'
+check "^config: Stored, counter 0, node Some(1), band Survey (bits $bits)"
 check '^cycle 0: .*kind Measure'
 
 step "exit codes under QEMU: HardFault and missing input fail the run"
