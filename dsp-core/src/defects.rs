@@ -59,7 +59,14 @@
 //!   `n >= M + 1` (the shaft-rate modulation is the inner-race hallmark;
 //!   without it one more harmonic is needed, so a fundamental plus a 2nd
 //!   harmonic that is really 3 x BPFO is not enough).
-//! * BSF: `n >= M`, or the fundamental counted with a cage sideband pair.
+//! * BSF: as BPFI with the cage in place of the shaft: a cage (FTF)
+//!   sideband pair with the fundamental counted or `n >= M`, or `n >= M + 1`.
+//!   A damaged element is carried through the load zone once per cage turn,
+//!   so its impacts are modulated at FTF (common practice); without that
+//!   modulation one more harmonic is needed. Two stray lines in the 2 x BSF
+//!   windows of a healthy machine are then not enough (the CWRU normal
+//!   record showed such a pair in 3 of its 38 survey bands,
+//!   docs/validation.md).
 //! * FTF: `n >= M + 1` with the fundamental counted, and only when no other
 //!   kind of the same bearing is detected: beside a detected race or
 //!   rolling-element family, cage lines are that family's modulation (the
@@ -1024,8 +1031,9 @@ impl DefectSearch {
             // Inner race: the load-zone modulation (shaft sidebands) is the
             // hallmark; without it, one more harmonic is required.
             DefectKind::Bpfi => ((family || fundamental_counted) && sideband_pair) || strong_family,
-            // Rolling element: harmonics, or fundamental plus cage sidebands.
-            DefectKind::Bsf => family || (fundamental_counted && sideband_pair),
+            // Rolling element: carried through the load zone by the cage, so
+            // as BPFI with the cage sidebands; without them one more harmonic.
+            DefectKind::Bsf => ((family || fundamental_counted) && sideband_pair) || strong_family,
             DefectKind::Bpfo => family,
             // Cage: one more harmonic and the fundamental (cage lines are
             // rarely a primary envelope finding); see `cage_as_modulation`.

@@ -404,3 +404,27 @@ fn contested_peak_goes_to_the_family_with_stronger_other_evidence() {
     assert!(i.harmonics[1].counted, "{i:?}");
     assert!(i.detected && i.score_db > o.score_db + 10.0, "{i:?} {o:?}");
 }
+
+/// A rolling-element family needs its cage (FTF) sidebands, or one harmonic
+/// more, as BPFI needs its shaft sidebands: the damaged element passes
+/// through the load zone once per cage turn (common practice). Two lines at
+/// 2 x BSF and 4 x BSF alone are not a detection; with a +-FTF pair around
+/// the fundamental, or with a third harmonic, they are.
+#[test]
+fn bsf_needs_cage_sidebands_or_three_harmonics() {
+    let (l, ftf) = (4.7135f32, 0.39828f32);
+    let mut s = floor(15, 0.01);
+    add_line(&mut s, l, 0.2);
+    add_line(&mut s, 2.0 * l, 0.2);
+    let r = run(&s, DefectSearchConfig::default()).results[3].clone();
+    assert_eq!(r.kind, DefectKind::Bsf);
+    assert_eq!(r.harmonics_found, 2);
+    assert!(!r.detected, "{r:?}");
+    let mut with_pair = s.clone();
+    add_line(&mut with_pair, l - ftf, 0.08);
+    add_line(&mut with_pair, l + ftf, 0.08);
+    let r = run(&with_pair, DefectSearchConfig::default()).results[3].clone();
+    assert!(r.sideband_db.unwrap() >= 8.0 && r.detected, "{r:?}");
+    add_line(&mut s, 3.0 * l, 0.2);
+    assert!(run(&s, DefectSearchConfig::default()).results[3].detected);
+}
