@@ -31,7 +31,9 @@
 //! 5. **Attribution**: a found peak that another kind also found (peaks
 //!    within `refine_bins`), or that sits on any integer multiple `m` of
 //!    another family's anchored line (e.g. BPFO's 6th harmonic inside a BPFI
-//!    window; that family needing two found harmonics), or on a modulation
+//!    window; that family needing two found harmonics; not the cage family,
+//!    since BPFO = Z·FTF makes every outer-race line a cage harmonic by
+//!    kinematics alone), or on a modulation
 //!    sideband `m·L' ± k·s` of it (`k` = 1..=3; `s` = the shaft order for
 //!    BPFI, whose race turns through the load zone; FTF for BSF, whose
 //!    element turns with the cage; FTF and the shaft order for BPFO, whose
@@ -962,10 +964,12 @@ impl DefectSearch {
                     .filter(|c| usize::from(c.0) != ki && libm::fabsf(c.2 - o) <= same_peak)
                     .map(|&(kj, h2, _, _)| (usize::from(kj), rank(usize::from(kj), h2, o)));
                 // (b) the peak sits on a harmonic m of another kind's family
-                // (anchored line L'), including harmonics beyond the searched ones.
+                // (anchored line L'), including harmonics beyond the searched
+                // ones. Not the cage family: BPFO = Z x FTF, so every outer-race
+                // line is a cage harmonic by kinematics, which says nothing.
                 let family = families.iter().enumerate().filter_map(|(kj, f)| {
                     let (line, ha) = (*f)?;
-                    if kj == ki || found_count(kj) < 2 {
+                    if kj == ki || kj == DefectKind::Ftf.index() || found_count(kj) < 2 {
                         return None;
                     }
                     let nominal = nominal.get(kj).copied().unwrap_or(line);
