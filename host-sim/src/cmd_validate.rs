@@ -710,10 +710,13 @@ pub fn choose_band(
     }
 }
 
-/// Narrowest band the survey may choose for a point: 3 x the highest defect
-/// line frequency of its bearings at the point's top speed, so the band
-/// passes the defect's modulation sidebands (common practice: a band a few
-/// times wider than the fault frequency; the factor 3 is from memory).
+/// Narrowest band the survey may choose for a point: wide enough to pass
+/// both modulation sidebands (carrier +- f) of the highest harmonic a
+/// detection needs (`min_harmonics`, default 2) of the fastest defect line of
+/// its bearings at the point's top speed: `2 x min_harmonics x f_max`, so
+/// 4 x f_max by default (an envelope detector passes a modulation frequency
+/// f at full depth only when the band holds both sidebands of the carrier,
+/// common practice).
 pub fn survey_min_bandwidth_hz(point: &PointConfig) -> f32 {
     let rpm = match point.speed {
         SpeedInput::Constant { rpm } => rpm,
@@ -732,7 +735,7 @@ pub fn survey_min_bandwidth_hz(point: &PointConfig) -> f32 {
             }
         }
     }
-    3.0 * top
+    2.0 * f32::from(point.search.min_harmonics) * top
 }
 
 /// Runs the band survey ([`BandSurvey`]) over a whole record in ADC-sized
@@ -1332,6 +1335,18 @@ bsf_x = 3.9874
         // Too short for one segment of the shortest length.
         let e = plan(&rec(12_000.0, 1772.0, CWRU_DE), 2_000).unwrap_err();
         assert!(e.contains("too short"), "{e}");
+    }
+
+    /// Minimum survey bandwidth: both sidebands of the 2nd harmonic of the
+    /// fastest line. CWRU drive end at 1797 rpm: BPFI 5.4152 x 29.95 Hz =
+    /// 162.2 Hz (CWRU multiples), so 648.8 Hz; a 2245-2828 Hz third-octave
+    /// (583 Hz) is too narrow.
+    #[test]
+    fn survey_bandwidth_passes_second_harmonic_sidebands() {
+        let p = validation_point(&rec(12_000.0, 1797.0, CWRU_DE), 122_000).unwrap();
+        let bw = survey_min_bandwidth_hz(&p);
+        assert!((bw - 4.0 * 5.4152 * 1797.0 / 60.0).abs() < 0.5, "{bw}");
+        assert!(bw > 2828.4 - 2244.9);
     }
 
     /// One bad record never stops the run: every entry is listed, failures
