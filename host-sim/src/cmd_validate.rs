@@ -838,6 +838,13 @@ fn analyse_into(
     }
     let mut point = validation_point(rec, x.len()).map_err(|e| format!("{}: {e}", rec.file))?;
     out.samples_per_rev = point.samples_per_rev;
+    let planned = usize::from(point.revolutions) / (4096 / usize::from(point.samples_per_rev));
+    if planned < MIN_SEGMENTS {
+        out.notes.push(format!(
+            "short record: {planned} segment(s) of {} revolutions, fewer than {MIN_SEGMENTS}",
+            4096 / usize::from(point.samples_per_rev)
+        ));
+    }
     let min_bw = survey_min_bandwidth_hz(&point);
     let (band, auto, k) = match choose_band(rule, &x, fs, min_bw) {
         Ok(b) => b,
