@@ -160,8 +160,9 @@ pub struct ManifestEntry {
     pub record: Result<ManifestRecord, FieldError>,
 }
 
-/// The fault location in canonical form: trimmed, lower case, spaces and
-/// hyphens as underscores (`"Inner race"` -> `inner_race`).
+/// A fault location (or a bearing name) in canonical form: trimmed, lower
+/// case, spaces and hyphens as underscores (`"Inner race"` -> `inner_race`,
+/// `"fan end"` -> `fan_end`).
 pub fn canonical_location(fault_location: &str) -> String {
     fault_location
         .trim()
@@ -220,7 +221,7 @@ impl Fields<'_> {
         match self.t.get(key) {
             None => Ok(None),
             Some(toml::Value::String(s)) => Ok(Some(s.clone())),
-            Some(v) => Err(self.err(key, format!("is {} , not text", v.type_str()))),
+            Some(v) => Err(self.err(key, format!("is {}, not text", v.type_str()))),
         }
     }
 
@@ -307,7 +308,7 @@ impl Fields<'_> {
         })
     }
 
-    /// Geometry when complete; `Ok(None)` with the missing names when partial or absent.
+    /// Geometry when complete; `Ok(Err(missing names))` when partial or absent.
     fn geometry(&self) -> Result<Result<BearingGeometry, Vec<&'static str>>, FieldError> {
         let rollers = match self.alias(&["n_rollers", "n_balls"])? {
             None => None,
@@ -424,11 +425,6 @@ impl Fields<'_> {
     }
 }
 
-/// Key of a `[bearings.*]` table for a `faulted_bearing` text (`"fan end"` -> `fan_end`).
-fn bearing_key(faulted: &str) -> String {
-    canonical_location(faulted)
-}
-
 fn parse_record(
     index: usize,
     t: &toml::Table,
@@ -463,10 +459,11 @@ fn parse_record(
                         .collect()
                 })
                 .unwrap_or_default();
-            let wanted = bearing_key(&faulted_bearing);
+            // `faulted_bearing = "fan end"` names `[bearings.fan_end]`.
+            let wanted = canonical_location(&faulted_bearing);
             let table = tables
                 .iter()
-                .find(|(k, _)| !wanted.is_empty() && bearing_key(k) == wanted)
+                .find(|(k, _)| !wanted.is_empty() && canonical_location(k) == wanted)
                 .or_else(|| (tables.len() == 1).then(|| tables.first()).flatten());
             let Some((key, bt)) = table else {
                 return Err(f.err(
