@@ -1032,12 +1032,12 @@ impl DefectSearch {
         let family = r.harmonics_found >= cfg.min_harmonics;
         let strong_family = r.harmonics_found > cfg.min_harmonics;
         r.detected = match r.kind {
-            // Inner race: the load-zone modulation (shaft sidebands) is the
-            // hallmark; without it, one more harmonic is required.
-            DefectKind::Bpfi => ((family || fundamental_counted) && sideband_pair) || strong_family,
-            // Rolling element: carried through the load zone by the cage, so
-            // as BPFI with the cage sidebands; without them one more harmonic.
-            DefectKind::Bsf => ((family || fundamental_counted) && sideband_pair) || strong_family,
+            // Inner race and rolling element pass through the load zone (at
+            // shaft and cage rate): their modulation sidebands are the
+            // hallmark; without them, one more harmonic is required.
+            DefectKind::Bpfi | DefectKind::Bsf => {
+                ((family || fundamental_counted) && sideband_pair) || strong_family
+            }
             DefectKind::Bpfo => family,
             // Cage: one more harmonic and the fundamental (cage lines are
             // rarely a primary envelope finding); see `cage_as_modulation`.
