@@ -31,18 +31,23 @@
 //! 5. **Attribution**: a found peak that another kind also found (peaks
 //!    within `refine_bins`), or that sits on any integer multiple `m` of
 //!    another family's anchored line (e.g. BPFO's 6th harmonic inside a BPFI
-//!    window; that family needing two found harmonics), or on a modulation
+//!    window; that family needing two found harmonics; not the cage family,
+//!    since BPFO = Z·FTF makes every outer-race line a cage harmonic by
+//!    kinematics alone), or on a modulation
 //!    sideband `m·L' ± k·s` of it (`k` = 1..=3; `s` = the shaft order for
-//!    BPFI, whose race turns through the load zone, FTF for BSF, whose
-//!    element turns with the cage; the tolerance widened by `k·s` times the
-//!    family's relative deviation from nominal), is shared. It is
-//!    counted for the stronger family (summed prominence in dB of its found
-//!    harmonics: a stray one-peak anchor cannot take a peak from a family),
-//!    then for the lower
+//!    BPFI, whose race turns through the load zone; FTF for BSF, whose
+//!    element turns with the cage; FTF and the shaft order for BPFO, whose
+//!    defect is struck by elements that return once per cage turn, under a
+//!    load that may turn with the shaft; the tolerance widened by `k·s`
+//!    times the family's relative deviation from nominal), is shared. It is
+//!    counted for the family with the stronger *other* evidence: the power
+//!    over the floor of its found harmonics other than the contested peak
+//!    (so a family anchored on that peak cannot take it with a few weak
+//!    lines, and a stray one-peak anchor has none), then for the lower
 //!    harmonic number (a peak at BPFO is more plausibly BPFO's fundamental
 //!    than the n-th cage harmonic, since BPFO = n·FTF); on a full tie it
-//!    counts for neither. `shared_with` reports the other kind, so
-//!    one peak never supports two detections.
+//!    counts for neither. `shared_with` reports the other kind, so one peak
+//!    never supports two detections.
 //! 6. **Sidebands**: BPFI at ± the bearing shaft's order, the 2×BSF line at ±
 //!    FTF, searched (±`refine_bins`, ± slip for FTF) beside each counted
 //!    harmonic among the first three; a pair's value is the weaker side's
@@ -56,7 +61,14 @@
 //!   `n >= M + 1` (the shaft-rate modulation is the inner-race hallmark;
 //!   without it one more harmonic is needed, so a fundamental plus a 2nd
 //!   harmonic that is really 3 x BPFO is not enough).
-//! * BSF: `n >= M`, or the fundamental counted with a cage sideband pair.
+//! * BSF: as BPFI with the cage in place of the shaft: a cage (FTF)
+//!   sideband pair with the fundamental counted or `n >= M`, or `n >= M + 1`.
+//!   A damaged element is carried through the load zone once per cage turn,
+//!   so its impacts are modulated at FTF (common practice); without that
+//!   modulation one more harmonic is needed. Two stray lines in the 2 x BSF
+//!   windows of a healthy machine are then not enough (the CWRU normal
+//!   record showed such a pair in 3 of its 38 survey bands,
+//!   docs/validation.md).
 //! * FTF: `n >= M + 1` with the fundamental counted, and only when no other
 //!   kind of the same bearing is detected: beside a detected race or
 //!   rolling-element family, cage lines are that family's modulation (the
@@ -531,7 +543,7 @@ fn on_family(
     })
 }
 
-/// Attribution rank: family strength (dB sum), then lower harmonic number.
+/// Attribution rank: the family's other evidence (dB), then lower harmonic number.
 #[derive(Clone, Copy)]
 struct Rank(f32, u8);
 
@@ -878,40 +890,56 @@ impl DefectSearch {
 
     /// Resolves peaks claimed by two kinds: a found harmonic whose peak is
     /// within `refine_bins` of a found harmonic of another kind, or on any
-    /// integer multiple of another kind's anchored line (that kind having at
-    /// least two found harmonics), is shared. It counts for the kind with
-    /// the stronger family (summed prominence of its found harmonics), then
-    /// for the lower harmonic number; on a full tie for neither.
+    /// integer multiple (or modulation sideband) of another kind's anchored
+    /// line (that kind having at least two found harmonics), is shared. It
+    /// counts for the kind whose other found harmonics carry more power over
+    /// the floor, then for the lower harmonic number; on a full tie for
+    /// neither (module doc, step 5).
     fn attribute(&self, ctx: &Ctx<'_>, results: &mut [DefectResult; 4]) {
-        // Snapshot of all found peaks: (kind index, harmonic, order).
-        let mut claims: heapless::Vec<(usize, u8, f32), { 4 * MAX_HARMONICS }> =
+        // Snapshot of all found peaks: (kind index, harmonic, order, power
+        // over the floor); 12 bytes each on the node, as before the power was added.
+        let mut claims: heapless::Vec<(u8, u8, f32, f32), { 4 * MAX_HARMONICS }> =
             heapless::Vec::new();
         for (ki, r) in results.iter().enumerate() {
             for h in r.harmonics.iter().filter(|h| h.found) {
+                let ratio = if h.floor > 0.0 {
+                    h.amplitude / h.floor
+                } else {
+                    0.0
+                };
                 // Capacity 4 x MAX_HARMONICS holds every harmonic.
-                let _ = claims.push((ki, h.harmonic, h.found_order));
+                let k = u8::try_from(ki).unwrap_or(u8::MAX);
+                let _ = claims.push((k, h.harmonic, h.found_order, ratio * ratio));
             }
         }
         let same_peak = self.config.refine_bins * ctx.opb;
-        let found_count = |k: usize| claims.iter().filter(|(kj, _, _)| *kj == k).count();
-        // Family strength: summed prominence (dB) of the kind's found harmonics.
-        let strength: [f32; 4] = core::array::from_fn(|k| {
-            results.get(k).map_or(0.0, |r| {
-                r.harmonics
-                    .iter()
-                    .filter(|h| h.found)
-                    .map(|h| h.prominence_db.max(0.0))
-                    .sum()
-            })
-        });
-        let rank = |k: usize, h: u8| Rank(strength.get(k).copied().unwrap_or(0.0), h);
-        // Modulation spacing of each kind's family: BPFI at the shaft order
+        let found_count = |k: usize| claims.iter().filter(|c| usize::from(c.0) == k).count();
+        // A family's evidence for a contested peak at `o`: the power over the
+        // floor of its other found harmonics (dB), so that the peak itself
+        // never decides who explains it.
+        let evidence = |k: usize, o: f32| {
+            let p: f32 = claims
+                .iter()
+                .filter(|c| usize::from(c.0) == k && libm::fabsf(c.2 - o) > same_peak)
+                .map(|c| c.3)
+                .sum();
+            if p > 0.0 {
+                10.0 * crate::num::log10f(p)
+            } else {
+                -200.0
+            }
+        };
+        let rank = |k: usize, h: u8, o: f32| Rank(evidence(k, o), h);
+        // Modulation spacings of each kind's family: BPFI at the shaft order
         // (the inner race turns through the load zone), BSF at FTF (the
-        // element turns with the cage); BPFO and FTF none.
-        let spacing: [f32; 4] = core::array::from_fn(|k| match DefectKind::from_index(k) {
-            Some(DefectKind::Bpfi) => ctx.shaft_order,
-            Some(DefectKind::Bsf) => ctx.ftf_order,
-            _ => 0.0,
+        // element turns with the cage), BPFO at FTF (the elements that strike
+        // the defect return once per cage turn) and at the shaft order (a
+        // load that turns with the shaft); FTF none.
+        let spacing: [[f32; 2]; 4] = core::array::from_fn(|k| match DefectKind::from_index(k) {
+            Some(DefectKind::Bpfi) => [ctx.shaft_order, 0.0],
+            Some(DefectKind::Bsf) => [ctx.ftf_order, 0.0],
+            Some(DefectKind::Bpfo) => [ctx.ftf_order, ctx.shaft_order],
+            _ => [0.0; 2],
         });
         let nominal: [f32; 4] =
             core::array::from_fn(|k| results.get(k).map_or(0.0, |r| r.line_order));
@@ -928,24 +956,28 @@ impl DefectSearch {
                 if !hr.found {
                     continue;
                 }
-                let mine = rank(ki, hr.harmonic);
                 let o = hr.found_order;
+                let mine = rank(ki, hr.harmonic, o);
                 // (a) another kind found the same peak.
                 let same = claims
                     .iter()
-                    .filter(|(kj, _, o2)| *kj != ki && libm::fabsf(*o2 - o) <= same_peak)
-                    .map(|&(kj, h2, _)| (kj, rank(kj, h2)));
+                    .filter(|c| usize::from(c.0) != ki && libm::fabsf(c.2 - o) <= same_peak)
+                    .map(|&(kj, h2, _, _)| (usize::from(kj), rank(usize::from(kj), h2, o)));
                 // (b) the peak sits on a harmonic m of another kind's family
-                // (anchored line L'), including harmonics beyond the searched ones.
+                // (anchored line L'), including harmonics beyond the searched
+                // ones. Not the cage family: BPFO = Z x FTF, so every outer-race
+                // line is a cage harmonic by kinematics, which says nothing.
                 let family = families.iter().enumerate().filter_map(|(kj, f)| {
                     let (line, ha) = (*f)?;
-                    if kj == ki || found_count(kj) < 2 {
+                    if kj == ki || kj == DefectKind::Ftf.index() || found_count(kj) < 2 {
                         return None;
                     }
                     let nominal = nominal.get(kj).copied().unwrap_or(line);
-                    let sp = spacing.get(kj).copied().unwrap_or(0.0);
-                    let m_u8 = on_family(o, line, ha, nominal, sp, &self.config, ctx.opb)?;
-                    Some((kj, rank(kj, m_u8)))
+                    let sp = spacing.get(kj).copied().unwrap_or([0.0; 2]);
+                    let m_u8 = sp.iter().find_map(|&sp| {
+                        on_family(o, line, ha, nominal, sp, &self.config, ctx.opb)
+                    })?;
+                    Some((kj, rank(kj, m_u8, o)))
                 });
                 let rival = same.chain(family).max_by(|a, b| a.1.cmp_rank(&b.1));
                 if let Some((kj, rank)) = rival {
@@ -1000,11 +1032,12 @@ impl DefectSearch {
         let family = r.harmonics_found >= cfg.min_harmonics;
         let strong_family = r.harmonics_found > cfg.min_harmonics;
         r.detected = match r.kind {
-            // Inner race: the load-zone modulation (shaft sidebands) is the
-            // hallmark; without it, one more harmonic is required.
-            DefectKind::Bpfi => ((family || fundamental_counted) && sideband_pair) || strong_family,
-            // Rolling element: harmonics, or fundamental plus cage sidebands.
-            DefectKind::Bsf => family || (fundamental_counted && sideband_pair),
+            // Inner race and rolling element pass through the load zone (at
+            // shaft and cage rate): their modulation sidebands are the
+            // hallmark; without them, one more harmonic is required.
+            DefectKind::Bpfi | DefectKind::Bsf => {
+                ((family || fundamental_counted) && sideband_pair) || strong_family
+            }
             DefectKind::Bpfo => family,
             // Cage: one more harmonic and the fundamental (cage lines are
             // rarely a primary envelope finding); see `cage_as_modulation`.
