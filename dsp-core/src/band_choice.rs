@@ -4,9 +4,8 @@
 //!
 //! The rule: the default [`SurveyConfig`] (octave and 1/3-octave bands from
 //! 1 kHz to 0.8 x Nyquist, 4 poles, 512 settling samples) with the narrowest
-//! band set to 3 x the highest watched defect line at the point's highest
-//! speed, so the chosen band passes the defect harmonics as sidebands of the
-//! resonance (common practice). Samples go in blocks of
+//! band set by [`min_bandwidth_hz`], so the chosen band passes the defect
+//! harmonics a detection needs as sidebands of the resonance. Samples go in blocks of
 //! [`crate::pipeline::ADC_BLOCK`], as the node's DMA delivers them: the
 //! survey's running sums depend on the block boundaries, so the host feeds
 //! the same block length.
@@ -24,9 +23,14 @@ use crate::config::{PointConfig, SpeedInput};
 use crate::kinematics::ShaftRatio;
 use crate::survey::{BandSurvey, SurveyConfig, SurveyError};
 
-/// Narrowest band the survey may choose for `point`: 3 x the highest watched
+/// Narrowest band the survey may choose for `point`: wide enough to pass
+/// both modulation sidebands (carrier +- f) of the highest harmonic a
+/// detection needs (`search.min_harmonics`, default 2) of the fastest watched
 /// defect line (BPFO, BPFI, FTF, BSF of every bearing on its shaft) at the
-/// constant speed, or at `max_rpm` with a tach. 0 without bearings.
+/// constant speed, or at `max_rpm` with a tach: `2 x min_harmonics x f_max`,
+/// so 4 x f_max by default. An envelope detector passes a modulation
+/// frequency f at full depth only when the band holds both sidebands of the
+/// carrier (common practice). 0 without bearings.
 pub fn min_bandwidth_hz(point: &PointConfig) -> f32 {
     let rpm = match point.speed {
         SpeedInput::Constant { rpm } => rpm,
@@ -45,7 +49,7 @@ pub fn min_bandwidth_hz(point: &PointConfig) -> f32 {
             }
         }
     }
-    3.0 * top
+    2.0 * f32::from(point.search.min_harmonics) * top
 }
 
 /// The survey settings for `point` (see the module docs).
@@ -67,7 +71,7 @@ mod tests {
     use crate::config::{name_from, Bearing, BearingKinematics};
 
     #[test]
-    fn min_bandwidth_is_three_times_the_highest_line() {
+    fn min_bandwidth_passes_the_second_harmonic_sidebands() {
         let mut p = PointConfig::default();
         p.bearings.clear();
         assert_eq!(min_bandwidth_hz(&p), 0.0);
@@ -82,8 +86,12 @@ mod tests {
             },
         });
         p.speed = SpeedInput::Constant { rpm: 1200.0 };
-        // BPFI 5 orders at 20 Hz shaft speed: 100 Hz, times 3.
-        assert!((min_bandwidth_hz(&p) - 300.0).abs() < 1e-3);
+        // BPFI 5 orders at 20 Hz shaft speed: 100 Hz; both sidebands of its
+        // 2nd harmonic (the default min_harmonics): 4 x 100 Hz.
+        assert_eq!(p.search.min_harmonics, 2);
+        assert!((min_bandwidth_hz(&p) - 400.0).abs() < 1e-3);
+        p.search.min_harmonics = 3;
+        assert!((min_bandwidth_hz(&p) - 600.0).abs() < 1e-3);
         assert_eq!(survey_config(&p).min_bandwidth_hz, min_bandwidth_hz(&p));
     }
 }

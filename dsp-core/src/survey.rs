@@ -3,8 +3,9 @@
 //!
 //! A bank of Butterworth band-pass filters (octave and 1/3-octave wide, lower
 //! edges on a 1/6-octave grid from [`SurveyConfig::min_hz`] up to an upper
-//! edge of [`SurveyConfig::max_nyquist_fraction`] x Nyquist) runs over every
-//! block. Each band keeps running moments of its output `y`, and its
+//! edge of [`SurveyConfig::max_nyquist_fraction`] x Nyquist; where that grid
+//! would exceed [`MAX_BANDS`], as above about 55 kS/s, a 1/3-octave grid or
+//! coarser, so the whole range is always surveyed) runs over every block. Each band keeps running moments of its output `y`, and its
 //! spectral kurtosis is the kurtosis of the band-passed signal,
 //! `K = E[y^4] / E[y^2]^2 - 3` (the real-signal form: 0 for Gaussian noise,
 //! negative for steady tones, large for repetitive impulses such as a
@@ -44,6 +45,28 @@ pub const MAX_BANDS: usize = 48;
 
 /// Samples filtered per inner step (stack scratch).
 pub const SURVEY_BLOCK: usize = 256;
+
+/// Coarsest grid step, in sixths of an octave, tried to fit the bank.
+const MAX_GRID_STEP: u8 = 6;
+
+/// Calls `f(lo, hi)` for each band of the bank: octave (ratio 2) then
+/// 1/3-octave (2^(1/3)) bands, lower edges on a grid of `step` sixths of an
+/// octave from `min_hz`, upper edge at most `top`, width at least
+/// `min_bandwidth_hz`.
+fn for_each_band(c: &SurveyConfig, top: f32, step: u8, mut f: impl FnMut(f32, f32)) {
+    for ratio in [2.0f32, libm::powf(2.0, 1.0 / 3.0)] {
+        for k in (0..96u8).step_by(usize::from(step.max(1))) {
+            let lo = c.min_hz * libm::powf(2.0, f32::from(k) / 6.0);
+            let hi = lo * ratio;
+            if hi > top {
+                break;
+            }
+            if hi - lo >= c.min_bandwidth_hz {
+                f(lo, hi);
+            }
+        }
+    }
+}
 
 /// Survey settings.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -199,33 +222,31 @@ impl BandSurvey {
             return Err(SurveyError::Config);
         }
         let top = c.max_nyquist_fraction * 0.5 * sample_rate_hz;
+        // The finest grid whose bank fits the capacity: at high sample rates
+        // (about 55 kS/s and up) the 1/6-octave grid would need more than
+        // MAX_BANDS bands, and dropping the highest ones would leave the upper
+        // resonances unsurveyed, so the grid coarsens instead.
+        let step = (1..=MAX_GRID_STEP)
+            .find(|&s| {
+                let mut n = 0usize;
+                for_each_band(c, top, s, |_, _| n += 1);
+                n <= MAX_BANDS
+            })
+            .unwrap_or(MAX_GRID_STEP);
         let mut bands = heapless::Vec::new();
-        // Octave (ratio 2) then 1/3-octave (2^(1/3)) bands, lower edges on a
-        // 1/6-octave grid from min_hz.
-        for ratio in [2.0f32, libm::powf(2.0, 1.0 / 3.0)] {
-            for k in 0..64u8 {
-                let lo = c.min_hz * libm::powf(2.0, f32::from(k) / 6.0);
-                let hi = lo * ratio;
-                if hi > top {
-                    break;
-                }
-                if hi - lo < c.min_bandwidth_hz {
-                    continue;
-                }
-                let Ok(sos) = butter_bandpass(lo, hi, sample_rate_hz, c.poles) else {
-                    continue;
-                };
-                let band = Band {
-                    edges: [lo, hi],
-                    filter: BiquadCascade::new(sos),
-                    s2: 0.0,
-                    s4: 0.0,
-                };
-                if bands.push(band).is_err() {
-                    break; // capacity reached: the widest grid already covered
-                }
-            }
-        }
+        for_each_band(c, top, step, |lo, hi| {
+            let Ok(sos) = butter_bandpass(lo, hi, sample_rate_hz, c.poles) else {
+                return;
+            };
+            let band = Band {
+                edges: [lo, hi],
+                filter: BiquadCascade::new(sos),
+                s2: 0.0,
+                s4: 0.0,
+            };
+            // Cannot fail: `step` was chosen so that the bank fits.
+            let _ = bands.push(band);
+        });
         if bands.is_empty() {
             return Err(SurveyError::NoBand);
         }
@@ -357,6 +378,14 @@ mod tests {
         assert_eq!(s.band_count(), 20);
         // 51.2 kS/s: 21 octaves + 25 thirds fit the capacity.
         assert_eq!(BandSurvey::new(51_200.0).unwrap().band_count(), 46);
+        // 97,656 S/s (a rate of the MFPT recordings): the 1/6-octave grid
+        // would need 56 bands; the 1/3-octave grid (13 octaves + 15 thirds)
+        // fits and still reaches the top edge, 0.8 x Nyquist = 39,062 Hz.
+        let hi_rate = BandSurvey::new(97_656.0).unwrap();
+        assert_eq!(hi_rate.band_count(), 28);
+        let top = hi_rate.bands.iter().map(|b| b.edges[1]).fold(0.0, f32::max);
+        assert!(top > 39_062.0 / libm::powf(2.0, 1.0 / 3.0), "{top}");
+        assert!(top <= 39_062.5, "{top}");
         // RAM stated in the module doc: 48 bands x 160 bytes plus bookkeeping.
         let size = core::mem::size_of::<BandSurvey>();
         assert!(size <= 48 * 160 + 64, "{size}");

@@ -182,27 +182,6 @@ pub fn run(point: &PointConfig, rec: &Record) -> Result<Analysis, CliError> {
 mod tests {
     use super::*;
 
-    /// `envord validate` keeps its own copy of the minimum-bandwidth rule
-    /// (cmd_validate.rs); it must stay the rule the node and `analyze` use.
-    #[test]
-    fn validate_uses_the_same_minimum_bandwidth_as_the_node() {
-        let texts = [
-            include_str!("../examples/point.toml"),
-            include_str!("../examples/demo-point.toml"),
-            include_str!("../../boards/qemu-mps2/input/point.toml"),
-        ];
-        for t in texts {
-            let mut p = crate::point::parse(t).unwrap();
-            for speed in [p.speed, SpeedInput::Constant { rpm: 1480.0 }] {
-                p.speed = speed;
-                let node = dsp_core::band_choice::min_bandwidth_hz(&p);
-                let validate = crate::cmd_validate::survey_min_bandwidth_hz(&p);
-                assert_eq!(node.to_bits(), validate.to_bits());
-                assert!(node > 0.0);
-            }
-        }
-    }
-
     /// The host survey of ADC counts equals the node's (`push_i16` in
     /// ADC-sized blocks) bit for bit; float samples take `push_f32`.
     #[test]

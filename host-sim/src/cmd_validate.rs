@@ -43,7 +43,7 @@ use clap::Args;
 use dsp_core::config::{name_from, Bearing, BearingKinematics, PointConfig, SpeedInput};
 use dsp_core::kinematics::{BearingGeometry, DefectKind, DefectMultiples, ShaftRatio};
 use dsp_core::pipeline::NodePipeline;
-use dsp_core::survey::{BandSurvey, SurveyConfig, SurveyError, SurveyResult};
+use dsp_core::survey::{SurveyError, SurveyResult};
 use serde_json::{json, Value};
 
 use crate::analysis::{run, Accel, Record};
@@ -679,12 +679,13 @@ pub fn judge(expected: Option<DefectKind>, detected: &[DefectKind], scores: &[f3
 }
 
 /// Chooses the band of one record by `rule`; returns the band, whether it
-/// came from the survey, and the survey's kurtosis.
+/// came from the survey, and the survey's kurtosis. The survey is the node's
+/// own rule ([`dsp_core::band_choice`]) for `point`, fed in ADC-sized blocks.
 pub fn choose_band(
     rule: BandRule,
     x: &[f32],
     fs: f32,
-    min_bw_hz: f32,
+    point: &PointConfig,
 ) -> Result<([f32; 2], bool, Option<f32>), String> {
     let nyq = 0.5 * fs;
     match rule {
@@ -701,50 +702,16 @@ pub fn choose_band(
             Ok((p.default_band_hz(), false, None))
         }
         BandRule::Auto => {
-            let r = survey_record(x, fs, min_bw_hz).map_err(|e| format!("band survey: {e}"))?;
+            let r = survey_record(x, point).map_err(|e| format!("band survey: {e}"))?;
             Ok((r.band_hz, true, Some(r.kurtosis)))
         }
     }
 }
 
-/// Narrowest band the survey may choose for a point: wide enough to pass
-/// both modulation sidebands (carrier +- f) of the highest harmonic a
-/// detection needs (`min_harmonics`, default 2) of the fastest defect line of
-/// its bearings at the point's top speed: `2 x min_harmonics x f_max`, so
-/// 4 x f_max by default (an envelope detector passes a modulation frequency
-/// f at full depth only when the band holds both sidebands of the carrier,
-/// common practice).
-pub fn survey_min_bandwidth_hz(point: &PointConfig) -> f32 {
-    let rpm = match point.speed {
-        SpeedInput::Constant { rpm } => rpm,
-        SpeedInput::Tach { .. } => point.max_rpm,
-    };
-    let mut top = 0.0f32;
-    for b in &point.bearings {
-        let m = b.multiples().ok();
-        let ratio = point
-            .shafts
-            .get(usize::from(b.shaft))
-            .and_then(|s| ShaftRatio::new(s.ratio).ok());
-        if let (Some(m), Some(r)) = (m, ratio) {
-            for l in m.orders(r).lines() {
-                top = top.max(l * rpm / 60.0);
-            }
-        }
-    }
-    2.0 * f32::from(point.search.min_harmonics) * top
-}
-
-/// Runs the band survey ([`BandSurvey`]) over a whole record in ADC-sized
-/// blocks, as the node would over a capture.
-pub fn survey_record(
-    x: &[f32],
-    fs: f32,
-    min_bandwidth_hz: f32,
-) -> Result<SurveyResult, SurveyError> {
-    let mut cfg = SurveyConfig::default();
-    cfg.min_bandwidth_hz = min_bandwidth_hz;
-    let mut s = BandSurvey::with_config(fs, cfg)?;
+/// Runs the node's band survey for `point` ([`dsp_core::band_choice`]) over
+/// a whole record in ADC-sized blocks, as the node would over a capture.
+pub fn survey_record(x: &[f32], point: &PointConfig) -> Result<SurveyResult, SurveyError> {
+    let mut s = dsp_core::band_choice::new_survey(point)?;
     for block in x.chunks(dsp_core::pipeline::ADC_BLOCK) {
         s.push_f32(block);
     }
@@ -842,14 +809,13 @@ fn analyse_into(
             4096 / usize::from(point.samples_per_rev)
         ));
     }
-    let min_bw = survey_min_bandwidth_hz(&point);
-    let (band, auto, k) = match choose_band(rule, &x, fs, min_bw) {
+    let (band, auto, k) = match choose_band(rule, &x, fs, &point) {
         Ok(b) => b,
         // Lines too fast for any survey band of the minimum width: the
         // default octave, noted.
         Err(e) if rule == BandRule::Auto => {
             out.notes.push(format!("{e}: default band used"));
-            choose_band(BandRule::Default, &x, fs, min_bw)?
+            choose_band(BandRule::Default, &x, fs, &point)?
         }
         Err(e) => return Err(format!("{}: {e}", rec.file)),
     };
@@ -1348,7 +1314,7 @@ bsf_x = 3.9874
     #[test]
     fn survey_bandwidth_passes_second_harmonic_sidebands() {
         let p = validation_point(&rec(12_000.0, 1797.0, CWRU_DE), 122_000).unwrap();
-        let bw = survey_min_bandwidth_hz(&p);
+        let bw = dsp_core::band_choice::min_bandwidth_hz(&p);
         assert!((bw - 4.0 * 5.4152 * 1797.0 / 60.0).abs() < 0.5, "{bw}");
         assert!(bw > 2828.4 - 2244.9);
     }
