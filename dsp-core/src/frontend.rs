@@ -19,7 +19,7 @@
 //! 320-tap pool plus history); stack use per call about 1.5 KB (chunk buffers
 //! of [`CHUNK`] samples here, in the decimator and in the velocity path).
 
-use crate::biquad::BiquadCascade;
+use crate::biquad::{BiquadCascade, FilterJob};
 use crate::decimate::{DecimateError, Decimator};
 use crate::design::{bandpass_centre_hz, butter_bandpass, DesignError};
 use crate::overall::{Overall, OverallAcc};
@@ -113,6 +113,33 @@ pub struct FrontEnd {
     vel: Option<VelocityMeter>,
     clip_g: f32,
     delay: f32,
+}
+
+/// The envelope path as a job for the band-pass's per-sample filter.
+struct Envelope<'a, O> {
+    dec: &'a mut Decimator,
+    src: &'a [f32],
+    rectifier: Rectifier,
+    out: &'a mut O,
+}
+
+impl<O: FnMut(f32)> FilterJob for Envelope<'_, O> {
+    type Output = ();
+    fn run(self, mut filter: impl FnMut(f32) -> f32) {
+        match self.rectifier {
+            Rectifier::Square => self.dec.process_map(
+                self.src,
+                |x| {
+                    let y = filter(x);
+                    y * y
+                },
+                self.out,
+            ),
+            Rectifier::Abs => self
+                .dec
+                .process_map(self.src, |x| filter(x).abs(), self.out),
+        }
+    }
 }
 
 impl FrontEnd {
@@ -218,12 +245,22 @@ impl FrontEnd {
         if let Some(v) = self.vel.as_mut() {
             v.process(buf);
         }
-        // Rectifier fused into the band-pass loop (one pass over the chunk).
-        match self.cfg.rectifier {
-            Rectifier::Abs => self.bp.process_map(buf, f32::abs),
-            Rectifier::Square => self.bp.process_map(buf, |v| v * v),
+        // Band-pass and rectifier fused into the decimator's first stage:
+        // one pass, nothing stored in between.
+        let job = Envelope {
+            dec: &mut self.dec,
+            src: buf,
+            rectifier: self.cfg.rectifier,
+            out: &mut *out,
+        };
+        if self.bp.with_stepper(job).is_err() {
+            // Sections not in band-pass form: filter in place, then decimate.
+            match self.cfg.rectifier {
+                Rectifier::Abs => self.bp.process_map(buf, f32::abs),
+                Rectifier::Square => self.bp.process_map(buf, |v| v * v),
+            }
+            self.dec.process(buf, out);
         }
-        self.dec.process(buf, out);
     }
 
     /// Rate of the envelope output (Hz).
