@@ -867,7 +867,9 @@ mod tests {
         let sq: Vec<f32> = x.iter().map(|v| v * v).collect();
         for d in [2u16, 3, 4, 6, 8, 12, 16, 25, 64, 343, 1024] {
             let mut want = Vec::new();
-            Decimator::new(d).unwrap().process(&sq, |v| want.push(v.to_bits()));
+            Decimator::new(d)
+                .unwrap()
+                .process(&sq, |v| want.push(v.to_bits()));
             for split in [1usize, 5, 127, 128, 129, 300] {
                 let mut dec = Decimator::new(d).unwrap();
                 let mut got = Vec::new();

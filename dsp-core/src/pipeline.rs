@@ -51,8 +51,14 @@ pub const ADC_BLOCK: usize = 256;
 /// [`crate::order_track::ring_needed`].
 pub const NODE_RING: usize = 2048;
 
-/// The node's pipeline: 4096-point spectrum, 2048 bins.
-pub type NodePipeline = Pipeline<4096, 2048, NODE_RING>;
+/// Spectrum bins the node keeps: those up to `S/4` orders (`N/4 + 1` for
+/// `N = 4096`), all that the defect search and the gear-mesh lines read (see
+/// the module docs for why the band above is not searched). The host plots
+/// the same range.
+pub const NODE_BINS: usize = 4096 / 4 + 1;
+
+/// The node's pipeline: 4096-point spectrum, [`NODE_BINS`] bins kept.
+pub type NodePipeline = Pipeline<4096, NODE_BINS, NODE_RING>;
 
 /// RMS below this many ADC counts means a flat (disconnected) channel.
 const FLAT_RMS_COUNTS: f32 = 1.0;
@@ -98,7 +104,9 @@ impl From<ConfigError> for PipelineError {
 }
 
 /// The streaming diagnosis of one measuring point, with an `N`-point
-/// spectrum (`H = N / 2` bins) and a `RING`-sample resampler ring.
+/// spectrum of which the lowest `H` bins are averaged (`N/4 + 1 <= H <= N/2`:
+/// at least the searched range, checked at compile time) and a `RING`-sample
+/// resampler ring.
 ///
 /// ```
 /// use dsp_core::config::{PointConfig, SpeedInput};
@@ -135,6 +143,9 @@ pub struct Pipeline<const N: usize, const H: usize, const RING: usize> {
 impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
     /// Validates the point and sets every stage up.
     pub fn new(point: &PointConfig) -> Result<Self, PipelineError> {
+        const {
+            assert!(4 * H > N, "H must hold the searched bins (N/4 + 1)");
+        }
         point.validate()?;
         let s = point.samples_per_rev;
         let s_f = f32::from(s);
@@ -352,7 +363,8 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
     }
 
     /// The averaged envelope order spectrum so far (peak amplitude per bin,
-    /// in g for `abs` rectification, g² for `square`).
+    /// in g for `abs` rectification, g² for `square`): the lowest `H` bins,
+    /// at least up to the search limit `S/4` orders.
     pub fn spectrum(&self) -> &[f32] {
         self.spectrum.amplitudes()
     }

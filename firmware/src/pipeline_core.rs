@@ -18,11 +18,11 @@ use crate::hal::MeasurementCore;
 use crate::point::{point_config, PointError};
 use crate::quality::QualityFlags;
 use dsp_core::frame::{self, EncodeError, FrameReport};
-use dsp_core::pipeline::{Pipeline, PipelineError, NODE_RING};
+use dsp_core::pipeline::{Pipeline, PipelineError, NODE_BINS, NODE_RING};
 use dsp_core::report::{QualityFlags as ReportFlags, Report};
 
 /// The node's core: 4096-point spectrum, node-sized resampler ring.
-pub type NodeCore = PipelineCore<4096, 2048, NODE_RING>;
+pub type NodeCore = PipelineCore<4096, NODE_BINS, NODE_RING>;
 
 /// Why the pipeline core failed.
 #[derive(Clone, Copy, Debug, PartialEq)]

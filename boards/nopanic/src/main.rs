@@ -173,7 +173,7 @@ fn main() -> ! {
         black_box(point.band());
         black_box(point.default_band_hz());
         // The node's sizes and a smaller host-like set.
-        measure::<4096, 2048, { dsp_core::pipeline::NODE_RING }>(&point);
+        measure::<4096, { dsp_core::pipeline::NODE_BINS }, { dsp_core::pipeline::NODE_RING }>(&point);
         measure::<1024, 512, 2048>(&point);
         black_box(NodePipeline::new(&opaque_point()).is_ok());
         frames();

@@ -24,9 +24,11 @@ use dsp_core::design::butter_bandpass;
 use dsp_core::frontend::{FrontEnd, FrontEndConfig};
 use dsp_core::kinematics::{BearingGeometry, BearingOrders, ShaftRatio};
 use dsp_core::order_track::{OrderTrackConfig, OrderTracker};
-use dsp_core::pipeline::{NodePipeline, ADC_BLOCK, NODE_RING};
+use dsp_core::pipeline::{NodePipeline, ADC_BLOCK, NODE_BINS, NODE_RING};
 use dsp_core::rectify::Rectifier;
-use dsp_core::spectrum::{real_fft, OrderSpectrum4096, SpectrumConfig, SpectrumView, Window};
+use dsp_core::spectrum::{
+    real_fft, OrderSpectrum, OrderSpectrum4096, SpectrumConfig, SpectrumView, Window,
+};
 use dsp_core::tach::RevMark;
 use semihosting::{eprintln, process};
 
@@ -580,7 +582,7 @@ fn memory() {
     r(
         "mem_node_pipeline",
         size_of::<NodePipeline>(),
-        "NodePipeline = Pipeline<4096, 2048, 2048>",
+        "NodePipeline = Pipeline<4096, 1025, 2048>",
     );
     r("mem_frontend", size_of::<FrontEnd>(), "FrontEnd");
     r("mem_bandpass", size_of::<BiquadCascade>(), "BiquadCascade");
@@ -592,8 +594,8 @@ fn memory() {
     );
     r(
         "mem_order_spectrum",
-        size_of::<OrderSpectrum4096>(),
-        "OrderSpectrum<4096>",
+        size_of::<OrderSpectrum<4096, NODE_BINS>>(),
+        "OrderSpectrum<4096, 1025> (the node's: bins up to S/4 orders)",
     );
     r(
         "mem_tach",
