@@ -236,7 +236,8 @@ pub fn kaiser_order(a_db: f64, width: f64) -> (usize, f64) {
 
 /// One output of a symmetric FIR over window `w` (oldest first) with taps
 /// `h` of the same length: one multiply per tap pair, centre tap first, then
-/// the pairs from the outside in.
+/// the pairs from the outside in. Four pairs per step (same order of
+/// operations as one at a time).
 #[inline]
 fn fir_output(w: &[f32], h: &[f32]) -> f32 {
     let n = w.len().min(h.len());
@@ -732,7 +733,7 @@ fn run_stage(
     region: &mut [f32],
     l: usize,
     dst: Option<&mut [f32]>,
-    mut emit: impl FnMut(f32),
+    emit: impl FnMut(f32),
 ) -> usize {
     let n = st.taps;
     let m = usize::from(st.factor.max(1));
@@ -757,30 +758,90 @@ fn run_stage(
         None => {
             let h = region.get_mut(..keep + l).unwrap_or(&mut []);
             let t = taps.get(st.offset..st.offset + n).unwrap_or(&[]);
-            let w = h.get(first..).unwrap_or(&[]);
-            // `max(1)`: `windows(0)` would panic; a stage always has taps.
-            let windows = w.windows(n.max(1)).step_by(m);
-            let mut count = 0;
-            match dst {
-                Some(d) => {
-                    for (win, o) in windows.zip(d.iter_mut()) {
-                        *o = fir_output(win, t);
-                        count += 1;
-                    }
-                }
-                None => {
-                    for win in windows {
-                        emit(fir_output(win, t));
-                        count += 1;
-                    }
-                }
-            }
-            if l <= h.len() {
-                h.copy_within(l.., 0);
-            }
+            let count = window_stage(h, first, m, t, dst, emit);
+            move_to_front(h, l);
             count
         }
     }
+}
+
+/// Kept outputs of a window-method stage (runtime length and factor m):
+/// windows start at `h[first]`, `h[first + m]`, ...; two outputs per step
+/// share the tap loads and the loop, each with the arithmetic of
+/// [`fir_output`]. Outputs go to `dst` or, when it is `None`, to `emit`.
+fn window_stage(
+    h: &[f32],
+    first: usize,
+    m: usize,
+    t: &[f32],
+    dst: Option<&mut [f32]>,
+    emit: impl FnMut(f32),
+) -> usize {
+    let n = t.len();
+    let w = h.get(first..).unwrap_or(&[]);
+    if n == 0 || m == 0 || w.len() < n {
+        return 0;
+    }
+    let total = (w.len() - n) / m + 1;
+    let mut dst = dst.map(|d| d.iter_mut());
+    let mut emit = emit;
+    let mut put = |v: f32| match dst.as_mut() {
+        Some(it) => {
+            if let Some(o) = it.next() {
+                *o = v;
+            }
+        }
+        None => emit(v),
+    };
+    let mut done = 0;
+    while done + 2 <= total {
+        let s = done * m;
+        let (Some(a), Some(b)) = (w.get(s..s + n), w.get(s + m..s + m + n)) else {
+            break;
+        };
+        let (ya, yb) = fir_two(a, b, t);
+        put(ya);
+        put(yb);
+        done += 2;
+    }
+    if done < total {
+        if let Some(a) = w.get(done * m..done * m + n) {
+            put(fir_output(a, t));
+            done += 1;
+        }
+    }
+    done
+}
+
+/// [`fir_output`] over two windows of the length of `h` at once (taps
+/// loaded once for both).
+#[inline]
+fn fir_two(a: &[f32], b: &[f32], h: &[f32]) -> (f32, f32) {
+    let n = h.len();
+    let m = n / 2;
+    let centre = |w: &[f32]| {
+        if n % 2 == 1 {
+            w.get(m).zip(h.get(m)).map_or(0.0, |(x, c)| x * c)
+        } else {
+            0.0
+        }
+    };
+    let (Some(al), Some(ah), Some(bl), Some(bh), Some(hl)) = (
+        a.get(..m),
+        a.get(n - m..n),
+        b.get(..m),
+        b.get(n - m..n),
+        h.get(..m),
+    ) else {
+        return (0.0, 0.0);
+    };
+    hl.iter()
+        .zip(al.iter().zip(ah.iter().rev()))
+        .zip(bl.iter().zip(bh.iter().rev()))
+        .fold(
+            (centre(a), centre(b)),
+            |(ya, yb), ((c, (a0, a1)), (b0, b1))| (ya + c * (a0 + a1), yb + c * (b0 + b1)),
+        )
 }
 
 #[cfg(test)]

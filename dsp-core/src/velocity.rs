@@ -13,8 +13,9 @@
 //! Samples during the settling time are not counted in the RMS.
 
 use crate::biquad::BiquadCascade;
-use crate::decimate::{stage_factors, DecimateError, Decimator};
+use crate::decimate::{stage_factors, DecimateError, Decimator, BLOCK};
 use crate::design::{butter_bandpass, DesignError};
+use crate::overall::FLUSH_EVERY;
 
 /// Standard gravity in mm/s^2 per g (CGPM 1901 conventional value 9.80665 m/s^2).
 pub const G_MM_S2: f32 = 9806.65;
@@ -166,6 +167,9 @@ pub struct VelocityMeter {
     settle: u32,
     seen: u32,
     sumsq: f64,
+    /// Squares not yet added to `sumsq`, and how many.
+    part: f32,
+    pending: u32,
     count: u32,
 }
 
@@ -194,6 +198,8 @@ impl VelocityMeter {
             settle: crate::num::f32_to_u32_sat(cfg.settle_s * rate),
             seen: 0,
             sumsq: 0.0,
+            part: 0.0,
+            pending: 0,
             count: 0,
         })
     }
@@ -207,31 +213,41 @@ impl VelocityMeter {
     pub fn process(&mut self, block: &[f32]) {
         let Some(&x0) = block.first() else { return };
         let k = *self.shift.get_or_insert(x0);
-        let mut buf = [0f32; crate::decimate::BLOCK];
-        for chunk in block.chunks(crate::decimate::BLOCK) {
-            for (b, &x) in buf.iter_mut().zip(chunk) {
-                *b = x - k;
-            }
-            let Self {
-                dec,
-                filt,
-                settle,
-                seen,
-                sumsq,
-                count,
-                ..
-            } = self;
-            dec.process(buf.get(..chunk.len()).unwrap_or(&[]), |a| {
-                let mut v = [a];
-                filt.process(&mut v);
-                let [v] = v;
-                if *seen >= *settle {
-                    *sumsq += f64::from(v) * f64::from(v);
-                    *count = count.saturating_add(1);
-                } else {
-                    *seen += 1;
+        // Decimated samples of one chunk (at most BLOCK, at factor 1), band-
+        // passed together: section by section over the chunk, the same
+        // arithmetic per sample as one at a time.
+        let mut buf = [0f32; BLOCK];
+        for chunk in block.chunks(BLOCK) {
+            let mut n = 0usize;
+            self.dec.process_map(
+                chunk,
+                |x| x - k,
+                |a| {
+                    if let Some(slot) = buf.get_mut(n) {
+                        *slot = a;
+                        n += 1;
+                    }
+                },
+            );
+            let v = buf.get_mut(..n).unwrap_or(&mut []);
+            self.filt.process(v);
+            for &v in v.iter() {
+                if self.seen < self.settle {
+                    self.seen += 1;
+                    continue;
                 }
-            });
+                // Squares summed in f32 and added to the f64 total every
+                // FLUSH_EVERY counted samples (f64 arithmetic is in software
+                // on the Cortex-M4F); the flush points do not depend on how
+                // the input is split.
+                self.part += v * v;
+                self.count = self.count.saturating_add(1);
+                self.pending += 1;
+                if self.pending >= FLUSH_EVERY {
+                    self.sumsq += f64::from(self.part);
+                    (self.part, self.pending) = (0.0, 0);
+                }
+            }
         }
     }
 
@@ -240,7 +256,7 @@ impl VelocityMeter {
         if self.count == 0 {
             return (0.0, 0);
         }
-        let ms = self.sumsq / f64::from(self.count);
+        let ms = (self.sumsq + f64::from(self.part)) / f64::from(self.count);
         (crate::num::f64_to_f32(libm::sqrt(ms)), self.count)
     }
 
@@ -251,6 +267,8 @@ impl VelocityMeter {
         self.filt.reset();
         self.seen = 0;
         self.sumsq = 0.0;
+        self.part = 0.0;
+        self.pending = 0;
         self.count = 0;
     }
 }
