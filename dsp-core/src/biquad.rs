@@ -17,7 +17,7 @@ pub struct BiquadCascade {
 
 impl BiquadCascade {
     /// Wraps designed sections with zero state.
-    pub fn new(sos: SosCascade) -> Self {
+    pub const fn new(sos: SosCascade) -> Self {
         Self {
             sos,
             state: [[0.0; 2]; MAX_SECTIONS],

@@ -174,6 +174,80 @@ pub struct Decimator {
     hist: [f32; HIST_POOL],
 }
 
+/// A validated stage plan (small; the taps are designed when it is applied).
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct DecimatorPlan {
+    factor: u16,
+    stages: [Stage; MAX_STAGES],
+    n_stages: usize,
+    betas: [f64; MAX_STAGES],
+}
+
+impl DecimatorPlan {
+    /// Splits `factor` into stages and checks that they fit the pools.
+    pub(crate) fn new(factor: u16) -> Result<Self, DecimateError> {
+        let (factors, n) = stage_factors(factor)?;
+        let mut plan = DecimatorPlan {
+            factor,
+            stages: [Stage::default(); MAX_STAGES],
+            n_stages: n,
+            betas: [0f64; MAX_STAGES],
+        };
+        let mut rate_in = f64::from(factor);
+        let (mut offset, mut hist, mut cap) = (0usize, 0usize, BLOCK);
+        let stages = plan.stages.iter_mut().zip(plan.betas.iter_mut());
+        for ((st, beta), &m) in stages.zip(&factors).take(n) {
+            let rate_out = rate_in / f64::from(m);
+            let width = 2.0 * (rate_out - 2.0 * PASS_FRACTION) / rate_in;
+            let halfband = (m == 2).then(|| HalfBand::for_rate(rate_in));
+            let taps = match halfband {
+                Some(hb) => hb.len(),
+                None => {
+                    let (taps, b) = kaiser_order(STOP_DB, width);
+                    *beta = b;
+                    taps.max(1)
+                }
+            };
+            *st = Stage {
+                factor: m,
+                halfband,
+                taps,
+                offset,
+                hist,
+                cap,
+                phase: 0,
+            };
+            if halfband.is_none() {
+                offset += taps;
+            }
+            hist += taps - 1 + cap + if halfband.is_some() { SLACK } else { 0 };
+            cap = cap.div_ceil(usize::from(m).max(1));
+            rate_in = rate_out;
+        }
+        if offset > TAP_POOL || hist > HIST_POOL {
+            return Err(DecimateError::TooManyTaps);
+        }
+        Ok(plan)
+    }
+
+    /// Delay of the planned chain in input samples (see
+    /// [`Decimator::delay_input_samples`]).
+    pub(crate) fn delay_input_samples(&self) -> f32 {
+        chain_delay(self.stages.iter().take(self.n_stages))
+    }
+}
+
+/// Sum of (N-1)/2 of each stage scaled by the rate ratio to the input.
+fn chain_delay<'a>(stages: impl Iterator<Item = &'a Stage>) -> f32 {
+    let mut scale = 1.0f64;
+    let mut d = 0.0f64;
+    for s in stages {
+        d += to_f64(s.taps.saturating_sub(1)) * 0.5 * scale;
+        scale *= f64::from(s.factor);
+    }
+    crate::num::f64_to_f32(d)
+}
+
 /// Splits `factor` into stage factors (largest first). Returns the count.
 pub fn stage_factors(factor: u16) -> Result<([u16; MAX_STAGES], usize), DecimateError> {
     if factor == 0 || factor > MAX_FACTOR {
@@ -344,44 +418,14 @@ impl Decimator {
     /// Designs the stages for `factor` in place and clears the state; on
     /// error `self` is left unchanged.
     pub fn reconfigure(&mut self, factor: u16) -> Result<(), DecimateError> {
-        let (factors, n) = stage_factors(factor)?;
-        // Plan first (small), so a refused factor changes nothing.
-        let mut plan = [Stage::default(); MAX_STAGES];
-        let mut rate_in = f64::from(factor);
-        let (mut offset, mut hist, mut cap) = (0usize, 0usize, BLOCK);
-        let mut betas = [0f64; MAX_STAGES];
-        for ((st, beta), &m) in plan.iter_mut().zip(betas.iter_mut()).zip(&factors).take(n) {
-            let rate_out = rate_in / f64::from(m);
-            let width = 2.0 * (rate_out - 2.0 * PASS_FRACTION) / rate_in;
-            let halfband = (m == 2).then(|| HalfBand::for_rate(rate_in));
-            let taps = match halfband {
-                Some(hb) => hb.len(),
-                None => {
-                    let (taps, b) = kaiser_order(STOP_DB, width);
-                    *beta = b;
-                    taps.max(1)
-                }
-            };
-            *st = Stage {
-                factor: m,
-                halfband,
-                taps,
-                offset,
-                hist,
-                cap,
-                phase: 0,
-            };
-            if halfband.is_none() {
-                offset += taps;
-            }
-            hist += taps - 1 + cap + if halfband.is_some() { SLACK } else { 0 };
-            cap = cap.div_ceil(usize::from(m).max(1));
-            rate_in = rate_out;
-        }
-        if offset > TAP_POOL || hist > HIST_POOL {
-            return Err(DecimateError::TooManyTaps);
-        }
-        for (st, &beta) in plan.iter().zip(&betas).take(n) {
+        let plan = DecimatorPlan::new(factor)?;
+        self.apply(&plan);
+        Ok(())
+    }
+
+    /// Designs the planned stages in place and clears the state.
+    pub(crate) fn apply(&mut self, plan: &DecimatorPlan) {
+        for (st, &beta) in plan.stages.iter().zip(&plan.betas).take(plan.n_stages) {
             if st.halfband.is_some() {
                 continue;
             }
@@ -390,11 +434,10 @@ impl Decimator {
                 slot.reverse();
             }
         }
-        self.factor = factor;
-        self.stages = plan;
-        self.n_stages = n;
+        self.factor = plan.factor;
+        self.stages = plan.stages;
+        self.n_stages = plan.n_stages;
         self.hist.fill(0.0);
-        Ok(())
     }
 
     /// Overall factor.
@@ -439,13 +482,7 @@ impl Decimator {
     /// Delay of the linear-phase chain in input samples: sum of (N-1)/2 of
     /// each stage scaled by the rate ratio to the input.
     pub fn delay_input_samples(&self) -> f32 {
-        let mut scale = 1.0f64;
-        let mut d = 0.0f64;
-        for s in self.stages.iter().take(self.n_stages) {
-            d += to_f64(s.taps.saturating_sub(1)) * 0.5 * scale;
-            scale *= f64::from(s.factor);
-        }
-        crate::num::f64_to_f32(d)
+        chain_delay(self.stages.iter().take(self.n_stages))
     }
 
     /// Clears the state (taps are kept).

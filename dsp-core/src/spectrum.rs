@@ -359,13 +359,22 @@ impl<const N: usize, const H: usize> OrderSpectrum<N, H> {
     /// A new, empty spectrum. Fails if `samples_per_rev` is not in `2..=N`,
     /// or if `N` is 8192/16384 without the `large-fft` feature.
     pub fn new(config: SpectrumConfig) -> Result<Self, SpectrumError> {
-        const {
-            assert!(H >= 1 && H * 2 <= N, "H must be 1..=N/2");
-            assert!(
-                N == 512 || N == 1024 || N == 2048 || N == 4096 || N == 8192 || N == 16384,
-                "N must be a supported FFT size (512..=4096, or 8192/16384 with large-fft)"
-            );
-        }
+        Self::check(&config)?;
+        let mut sp = Self::unconfigured();
+        sp.apply(config);
+        Ok(sp)
+    }
+
+    /// Validates `config` and starts over with it in place (buffers cleared,
+    /// not rebuilt); on error `self` is left unchanged.
+    pub fn reconfigure(&mut self, config: SpectrumConfig) -> Result<(), SpectrumError> {
+        Self::check(&config)?;
+        self.apply(config);
+        Ok(())
+    }
+
+    /// Checks `samples_per_rev` in `2..=N` and the size.
+    pub(crate) fn check(config: &SpectrumConfig) -> Result<(), SpectrumError> {
         let s =
             usize::try_from(config.samples_per_rev).map_err(|_| SpectrumError::SamplesPerRev)?;
         if !(2..=N).contains(&s) {
@@ -374,15 +383,39 @@ impl<const N: usize, const H: usize> OrderSpectrum<N, H> {
         if N > 4096 && !cfg!(feature = "large-fft") {
             return Err(SpectrumError::UnsupportedSize);
         }
-        Ok(Self {
+        Ok(())
+    }
+
+    /// An empty spectrum for constant context (default configuration),
+    /// configured later with [`Self::reconfigure`].
+    pub(crate) const fn unconfigured() -> Self {
+        const {
+            assert!(H >= 1 && H * 2 <= N, "H must be 1..=N/2");
+            assert!(
+                N == 512 || N == 1024 || N == 2048 || N == 4096 || N == 8192 || N == 16384,
+                "N must be a supported FFT size (512..=4096, or 8192/16384 with large-fft)"
+            );
+        }
+        Self {
             buf: [0.0; N],
             acc: [0.0; H],
             fill: 0,
             tainted: false,
             segments: 0,
             rejected: 0,
-            config,
-        })
+            config: SpectrumConfig {
+                samples_per_rev: 64,
+                window: Window::Hann,
+                averaging: Averaging::PowerMean,
+            },
+        }
+    }
+
+    /// Starts over with a checked configuration, in place.
+    pub(crate) fn apply(&mut self, config: SpectrumConfig) {
+        self.config = config;
+        self.buf.fill(0.0);
+        self.reset();
     }
 
     /// The configuration.
@@ -392,7 +425,7 @@ impl<const N: usize, const H: usize> OrderSpectrum<N, H> {
 
     /// Clears the average and the partly filled segment (counters too).
     pub fn reset(&mut self) {
-        self.acc = [0.0; H];
+        self.acc.fill(0.0);
         self.fill = 0;
         self.tainted = false;
         self.segments = 0;

@@ -13,8 +13,8 @@
 //! Samples during the settling time are not counted in the RMS.
 
 use crate::biquad::BiquadCascade;
-use crate::decimate::{stage_factors, DecimateError, Decimator, BLOCK};
-use crate::design::{butter_bandpass, DesignError};
+use crate::decimate::{stage_factors, DecimateError, Decimator, DecimatorPlan, BLOCK};
+use crate::design::{butter_bandpass, DesignError, SosCascade};
 use crate::overall::FLUSH_EVERY;
 
 /// Standard gravity in mm/s^2 per g (CGPM 1901 conventional value 9.80665 m/s^2).
@@ -173,14 +173,24 @@ pub struct VelocityMeter {
     count: u32,
 }
 
-impl VelocityMeter {
-    /// Builds the meter for input rate `fs_hz` (acceleration in g).
-    pub fn new(fs_hz: f32, cfg: &VelocityConfig) -> Result<Self, VelocityError> {
+/// A validated velocity path (small), applied in place by
+/// [`VelocityMeter::apply`].
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct VelocityPlan {
+    dec: DecimatorPlan,
+    sos: SosCascade,
+    rate_hz: f32,
+    settle: u32,
+}
+
+impl VelocityPlan {
+    /// Validates the options and designs the filters for input rate `fs_hz`.
+    pub(crate) fn new(fs_hz: f32, cfg: &VelocityConfig) -> Result<Self, VelocityError> {
         if !(cfg.settle_s.is_finite() && cfg.settle_s >= 0.0) {
             return Err(VelocityError::Settle);
         }
         let d = velocity_decimation(fs_hz);
-        let dec = Decimator::new(d).map_err(VelocityError::Decimate)?;
+        let dec = DecimatorPlan::new(d).map_err(VelocityError::Decimate)?;
         let rate = fs_hz / f32::from(d);
         let mut sos = butter_bandpass(cfg.band_hz[0], cfg.band_hz[1], rate, VELOCITY_POLES)
             .map_err(VelocityError::Design)?;
@@ -191,17 +201,52 @@ impl VelocityMeter {
             s.b = [g, 2.0 * g, g];
         }
         Ok(Self {
-            shift: None,
             dec,
-            filt: BiquadCascade::new(sos),
+            sos,
             rate_hz: rate,
             settle: crate::num::f32_to_u32_sat(cfg.settle_s * rate),
+        })
+    }
+}
+
+impl VelocityMeter {
+    /// Builds the meter for input rate `fs_hz` (acceleration in g).
+    pub fn new(fs_hz: f32, cfg: &VelocityConfig) -> Result<Self, VelocityError> {
+        let plan = VelocityPlan::new(fs_hz, cfg)?;
+        let mut v = Self::unconfigured();
+        v.apply(&plan);
+        Ok(v)
+    }
+
+    /// A meter without filters, for constant context; configured in place
+    /// by [`Self::apply`].
+    pub(crate) const fn unconfigured() -> Self {
+        Self {
+            shift: None,
+            dec: Decimator::pass_through(),
+            filt: BiquadCascade::new(SosCascade::EMPTY),
+            rate_hz: 0.0,
+            settle: 0,
             seen: 0,
             sumsq: 0.0,
             part: 0.0,
             pending: 0,
             count: 0,
-        })
+        }
+    }
+
+    /// Designs the planned filters in place and clears the state.
+    pub(crate) fn apply(&mut self, plan: &VelocityPlan) {
+        self.dec.apply(&plan.dec);
+        self.filt = BiquadCascade::new(plan.sos);
+        self.rate_hz = plan.rate_hz;
+        self.settle = plan.settle;
+        self.shift = None;
+        self.seen = 0;
+        self.sumsq = 0.0;
+        self.part = 0.0;
+        self.pending = 0;
+        self.count = 0;
     }
 
     /// Rate of the velocity signal (Hz).

@@ -68,6 +68,11 @@ fn measure<const N: usize, const H: usize, const R: usize>(point: &PointConfig) 
         }
     }
     black_box(p.finish());
+    // In place for the next measurement (as the firmware does), then finish
+    // whatever state that leaves, configured or not.
+    black_box(p.reconfigure(&opaque_point()).is_ok());
+    black_box(p.point().is_some());
+    black_box(p.finish());
 }
 
 /// Frame codec. `to_json` is left out on purpose: serde-json-core 0.7
