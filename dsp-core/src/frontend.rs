@@ -403,9 +403,11 @@ mod tests {
         let mut fe = FrontEnd::new(&FrontEndConfig::default()).unwrap();
         let x: [i16; 1000] = core::array::from_fn(|i| i16::try_from(i % 97).unwrap() * 50);
         fe.push_i16(&x, |_| {});
-        let mut cfg = FrontEndConfig::default();
-        cfg.decimation = 25;
-        cfg.band_hz = [3000.0, 9000.0];
+        let mut cfg = FrontEndConfig {
+            decimation: 25,
+            band_hz: [3000.0, 9000.0],
+            ..FrontEndConfig::default()
+        };
         fe.reconfigure(&cfg).unwrap();
         assert_eq!(
             format!("{fe:?}"),

@@ -558,11 +558,13 @@ mod tests {
     fn a_reconfigured_tracker_equals_a_new_one() {
         extern crate std;
         use std::format;
-        let mut cfg = OrderTrackConfig::default();
-        cfg.samples_per_rev = 32;
-        cfg.decimation = 8;
-        cfg.input_rate_hz = 6400.0;
-        cfg.min_rpm = 1200.0;
+        let mut cfg = OrderTrackConfig {
+            samples_per_rev: 32,
+            decimation: 8,
+            input_rate_hz: 6400.0,
+            min_rpm: 1200.0,
+            ..OrderTrackConfig::default()
+        };
         let mut t = OrderTracker::<2048>::new(&cfg).unwrap();
         for j in 0..3000u32 {
             if j % 256 == 0 {

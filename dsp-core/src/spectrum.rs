@@ -80,6 +80,9 @@ impl Window {
     }
 
     /// Window value at sample `n` of `len` (periodic, DFT-even form).
+    /// Always inlined: it runs once per sample of every segment, and with
+    /// two spectrum sizes in one image the compiler otherwise calls it.
+    #[inline(always)]
     pub fn value(self, n: usize, len: usize) -> f32 {
         let c = cos_turn(n, len);
         match self {

@@ -1035,8 +1035,10 @@ mod reconfigure_tests {
     #[test]
     fn a_reconfigured_tracker_equals_a_new_one() {
         // Every field, compared through Debug (series included).
-        let mut cfg = TachConfig::default();
-        cfg.min_good_revs = 3;
+        let mut cfg = TachConfig {
+            min_good_revs: 3,
+            ..TachConfig::default()
+        };
         let mut t = TachTracker::new(&SpeedSource::Tach(cfg)).unwrap();
         for k in 0..40u32 {
             t.push_edge(k * 40_000 + (k % 3) * 900, |_| {});

@@ -29,7 +29,9 @@ use dsp_core::rectify::Rectifier;
 use dsp_core::spectrum::{
     real_fft, OrderSpectrum, OrderSpectrum4096, SpectrumConfig, SpectrumView, Window,
 };
+use dsp_core::survey::BandSurvey;
 use dsp_core::tach::RevMark;
+use dsp_core::velocity::{VelocityConfig, VelocityMeter};
 use semihosting::{eprintln, process};
 
 /// CMSDK APB timer0 registers (CTRL +0, VALUE +4, RELOAD +8).
@@ -301,6 +303,66 @@ impl FilterJob for EnvelopeJob<'_> {
             |y| *sink += y,
         );
     }
+}
+
+/// Velocity RMS path alone (the front end's default), per input sample, in
+/// steady state: the settling time (0.25 s) is fed first, unmeasured, so the
+/// RMS accumulation is included.
+fn bench_velocity(m: &Meter) {
+    let Ok(mut v) = VelocityMeter::new(FS, &VelocityConfig::default()) else {
+        report("velocity_path", -1.0, "error", "velocity meter refused");
+        return;
+    };
+    let mut sig = Signal::new();
+    let mut blk = [0f32; ADC_BLOCK];
+    for _ in 0..60 {
+        fill(&mut blk, &mut sig);
+        v.process(&blk);
+    }
+    let mut total = 0.0;
+    for _ in 0..BLOCKS {
+        fill(&mut blk, &mut sig);
+        total += m.instr(&mut || v.process(black_box(&blk)));
+    }
+    black_box(v.rms_mm_s());
+    #[allow(clippy::cast_precision_loss)]
+    let samples = (BLOCKS * ADC_BLOCK) as f64;
+    report(
+        "velocity_path",
+        total / samples,
+        "instr/sample",
+        "VelocityMeter at 51.2 kS/s: decimate 12, 10-1000 Hz band-pass + integrator, RMS (steady state)",
+    );
+}
+
+/// Band survey (commissioning mode) with its default bank at 51.2 kS/s,
+/// i16 blocks of 256, per input sample.
+fn bench_survey(m: &Meter) {
+    let Ok(mut s) = BandSurvey::new(FS) else {
+        report("band_survey", -1.0, "error", "survey refused");
+        return;
+    };
+    let mut sig = Signal::new();
+    let mut blk = [0i16; ADC_BLOCK];
+    let blocks = 8;
+    let mut total = 0.0;
+    for _ in 0..blocks {
+        blk.iter_mut().for_each(|c| *c = sig.next_i16(2048.0));
+        total += m.instr(&mut || s.push_i16(black_box(&blk)));
+    }
+    #[allow(clippy::cast_precision_loss)]
+    let samples = (blocks * ADC_BLOCK) as f64;
+    report(
+        "band_survey",
+        total / samples,
+        "instr/sample",
+        "BandSurvey::new(51200) default bank, push_i16 blocks of 256, per input sample",
+    );
+    eprintln!(
+        "INFO|band survey: {} bands at 51.2 kS/s, {:.1} M instructions per second of signal",
+        s.band_count(),
+        total / samples * f64::from(FS) / 1e6
+    );
 }
 
 struct Stages<'a>(&'a Decimator);
@@ -603,6 +665,16 @@ fn memory() {
         "TachTracker",
     );
     r(
+        "mem_velocity",
+        size_of::<VelocityMeter>(),
+        "VelocityMeter (inside the front end)",
+    );
+    r(
+        "mem_band_survey",
+        size_of::<BandSurvey>(),
+        "BandSurvey (commissioning mode, not held during measurements)",
+    );
+    r(
         "mem_defect_search",
         size_of::<DefectSearch>(),
         "DefectSearch",
@@ -626,6 +698,8 @@ fn main() -> ! {
     bench_order_tracker(&m);
     bench_defects(&m);
     bench_pipeline(&m);
+    bench_velocity(&m);
+    bench_survey(&m);
     eprintln!("INFO|done");
     process::exit(0)
 }
