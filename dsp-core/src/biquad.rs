@@ -61,63 +61,101 @@ impl BiquadCascade {
     /// assert!(x.iter().zip(&y).all(|(s, v)| *s == v * v));
     /// ```
     pub fn process_map(&mut self, buf: &mut [f32], map: impl Fn(f32) -> f32) {
-        let job = InPlace { buf, map };
-        if let Err(InPlace { buf, map }) = self.with_stepper(job) {
+        if !self.run_bandpass(buf.iter_mut().map(|x| (*x, x)), &map) {
             self.run_general(buf);
             buf.iter_mut().for_each(|x| *x = map(*x));
         }
     }
 
-    /// Runs `job` with the cascade as a per-sample function (state and
-    /// coefficients in locals, so a loop around it keeps them in registers)
-    /// when all sections have the band-pass form `b = g [1, 0, -1]` that
-    /// [`crate::design::butter_bandpass`] produces (1 to 4 sections): 7 flops
-    /// per section, bit-identical to the general form (0 x and -b0 x are
-    /// exact). Other cascades hand the job back (`Err`); filter those with
-    /// [`Self::process_map`].
-    pub fn with_stepper<J: FilterJob>(&mut self, job: J) -> Result<J::Output, J> {
+    /// Filters `src` into `dst` (the shorter length) and applies `map` to
+    /// each output in the same pass, e.g. the rectified envelope straight
+    /// into the decimator's history ([`crate::decimate::Decimator::process_with`]).
+    /// The same results as [`Self::process_map`] on a copy of `src`.
+    ///
+    /// ```
+    /// use dsp_core::{biquad::BiquadCascade, design::butter_bandpass};
+    /// let sos = butter_bandpass(100.0, 200.0, 1000.0, 4).unwrap();
+    /// let (mut a, mut b) = (BiquadCascade::new(sos), BiquadCascade::new(sos));
+    /// let x = [1.0f32, 0.0, -0.5, 0.25];
+    /// let (mut y, mut z) = ([0f32; 4], x);
+    /// a.process_map_into(&x, &mut y, |v| v * v);
+    /// b.process_map(&mut z, |v| v * v);
+    /// assert_eq!(y, z);
+    /// ```
+    pub fn process_map_into(&mut self, src: &[f32], dst: &mut [f32], map: impl Fn(f32) -> f32) {
+        let n = src.len().min(dst.len());
+        let (Some(src), Some(dst)) = (src.get(..n), dst.get_mut(..n)) else {
+            return;
+        };
+        if !self.run_bandpass(src.iter().copied().zip(dst.iter_mut()), &map) {
+            dst.copy_from_slice(src);
+            self.run_general(dst);
+            dst.iter_mut().for_each(|x| *x = map(*x));
+        }
+    }
+
+    /// The band-pass form (b = g [1, 0, -1], as designed here, 1 to 4
+    /// sections) sample-major with every coefficient and state in locals
+    /// (registers), 7 flops per section; bit-identical to the general form
+    /// (0 x and -b0 x are exact). Returns false, touching nothing, for other
+    /// cascades.
+    fn run_bandpass<'a>(
+        &mut self,
+        io: impl Iterator<Item = (f32, &'a mut f32)>,
+        map: &impl Fn(f32) -> f32,
+    ) -> bool {
         let bandpass = self
             .sos
             .sections()
             .iter()
             .all(|s| s.b[1] == 0.0 && s.b[2] == -s.b[0]);
         if !bandpass {
-            return Err(job);
+            return false;
         }
         match self.sos.len() {
-            4 => Ok(self.run_stepper::<4, J>(job)),
-            3 => Ok(self.run_stepper::<3, J>(job)),
-            2 => Ok(self.run_stepper::<2, J>(job)),
-            1 => Ok(self.run_stepper::<1, J>(job)),
-            _ => Err(job),
+            4 => self.run_sections::<4>(io, map),
+            3 => self.run_sections::<3>(io, map),
+            2 => self.run_sections::<2>(io, map),
+            1 => self.run_sections::<1>(io, map),
+            _ => return false,
         }
+        true
     }
 
-    fn run_stepper<const N: usize, J: FilterJob>(&mut self, job: J) -> J::Output {
-        let mut st = BandpassStepper::<N> {
-            b0: [0.0; N],
-            a1: [0.0; N],
-            a2: [0.0; N],
-            s1: [0.0; N],
-            s2: [0.0; N],
-        };
+    fn run_sections<'a, const N: usize>(
+        &mut self,
+        io: impl Iterator<Item = (f32, &'a mut f32)>,
+        map: &impl Fn(f32) -> f32,
+    ) {
+        let (mut b0, mut a1, mut a2) = ([0f32; N], [0f32; N], [0f32; N]);
+        let (mut s1, mut s2) = ([0f32; N], [0f32; N]);
         let secs = self.sos.sections().iter().zip(self.state.iter());
-        for (k, (sec, state)) in secs.enumerate().take(N) {
+        for (k, (sec, st)) in secs.enumerate().take(N) {
             if let (Some(b), Some(p), Some(q), Some(u), Some(v)) = (
-                st.b0.get_mut(k),
-                st.a1.get_mut(k),
-                st.a2.get_mut(k),
-                st.s1.get_mut(k),
-                st.s2.get_mut(k),
+                b0.get_mut(k),
+                a1.get_mut(k),
+                a2.get_mut(k),
+                s1.get_mut(k),
+                s2.get_mut(k),
             ) {
-                (*b, *p, *q, *u, *v) = (sec.b[0], sec.a[1], sec.a[2], state[0], state[1]);
+                (*b, *p, *q, *u, *v) = (sec.b[0], sec.a[1], sec.a[2], st[0], st[1]);
             }
         }
-        let r = job.run(|x| st.step(x));
-        for (state, (u, w)) in self.state.iter_mut().zip(st.s1.iter().zip(st.s2.iter())) {
-            *state = [*u, *w];
+        for (x, out) in io {
+            let mut v = x;
+            let coefs = b0.iter().zip(a1.iter()).zip(a2.iter());
+            for (((b, p), q), (u, w)) in coefs.zip(s1.iter_mut().zip(s2.iter_mut())) {
+                let t = b * v;
+                let y = t + *u;
+                *u = *w - p * y;
+                *w = -(t + q * y);
+                v = y;
+            }
+            *out = map(v);
         }
-        r
+        for (st, (u, w)) in self.state.iter_mut().zip(s1.iter().zip(s2.iter())) {
+            *st = [*u, *w];
+        }
     }
 
     fn run_general(&mut self, buf: &mut [f32]) {
@@ -134,60 +172,6 @@ impl BiquadCascade {
             }
             *st = [s1, s2];
         }
-    }
-}
-
-/// Work that consumes a per-sample filter function (see
-/// [`BiquadCascade::with_stepper`]); generic so the filter inlines into the
-/// job's loop.
-pub trait FilterJob {
-    /// What the job returns.
-    type Output;
-    /// Runs the job; `filter` maps each input sample to the filter output
-    /// and must be called once per sample, in order.
-    fn run(self, filter: impl FnMut(f32) -> f32) -> Self::Output;
-}
-
-/// Filters a buffer in place and maps each output (the in-place form of
-/// [`BiquadCascade::process_map`]).
-struct InPlace<'a, M> {
-    buf: &'a mut [f32],
-    map: M,
-}
-
-impl<M: Fn(f32) -> f32> FilterJob for InPlace<'_, M> {
-    type Output = ();
-    fn run(self, mut filter: impl FnMut(f32) -> f32) {
-        for x in self.buf.iter_mut() {
-            *x = (self.map)(filter(*x));
-        }
-    }
-}
-
-/// Band-pass sections with coefficients and state by value.
-struct BandpassStepper<const N: usize> {
-    b0: [f32; N],
-    a1: [f32; N],
-    a2: [f32; N],
-    s1: [f32; N],
-    s2: [f32; N],
-}
-
-impl<const N: usize> BandpassStepper<N> {
-    /// One sample through all sections (direct form II transposed with
-    /// b1 = 0 and b2 = -b0).
-    #[inline(always)]
-    fn step(&mut self, x: f32) -> f32 {
-        let mut v = x;
-        let coefs = self.b0.iter().zip(self.a1.iter()).zip(self.a2.iter());
-        for (((b, p), q), (u, w)) in coefs.zip(self.s1.iter_mut().zip(self.s2.iter_mut())) {
-            let t = b * v;
-            let y = t + *u;
-            *u = *w - p * y;
-            *w = -(t + q * y);
-            v = y;
-        }
-        v
     }
 }
 

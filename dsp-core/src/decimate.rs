@@ -26,8 +26,8 @@
 //! the kept outputs (every M-th input) are computed from contiguous windows
 //! and written straight behind the next stage's history (the last stage's
 //! go to the caller), then the last N-1 samples move to the front. The first
-//! stage's inputs come from a producer fused into it
-//! ([`Decimator::process_map`]), so no sample is copied between stages.
+//! stage's inputs are written into its history by their producer
+//! ([`Decimator::process_with`]), so no sample is copied between stages.
 //! Half-band taps are read from the static tables (only window-method taps
 //! are stored) and their kernels have compile-time lengths and compute two
 //! outputs per step from shared loads. Both pools are sized for the most
@@ -508,11 +508,10 @@ impl Decimator {
     }
 
     /// Decimates `f(x)` for each `x` of `input` (any length), calling `f`
-    /// once per sample, in order, and `out` for each kept output. `f` is the
-    /// producer fused into the first stage (the front end passes its
-    /// band-pass and rectifier): its results go straight into the first
-    /// stage's history, so nothing is stored or copied in between. Same
-    /// results as [`Self::process`] on the mapped samples.
+    /// once per sample, in order, and `out` for each kept output: the mapped
+    /// samples go straight into the first stage's history (see
+    /// [`Self::process_with`]). Same results as [`Self::process`] on the
+    /// mapped samples.
     ///
     /// ```
     /// use dsp_core::decimate::Decimator;
@@ -531,18 +530,41 @@ impl Decimator {
         mut out: impl FnMut(f32),
     ) {
         for chunk in input.chunks(BLOCK) {
-            self.run_block(chunk, &mut f, &mut out);
+            self.process_with(
+                chunk.len(),
+                |slot| {
+                    for (s, &x) in slot.iter_mut().zip(chunk) {
+                        *s = f(x);
+                    }
+                },
+                &mut out,
+            );
         }
     }
 
-    /// One block of at most [`BLOCK`] inputs through every stage; each
-    /// stage writes its outputs straight behind the next stage's history.
-    fn run_block(
+    /// Pushes `len.min(BLOCK)` inputs that `fill` writes straight into the
+    /// first stage's history (it gets a slice of exactly that length), and
+    /// calls `out` for each kept output; returns the number of inputs taken.
+    /// The producer (the front end's band-pass and rectifier) thus writes
+    /// where the first stage reads, and nothing is copied in between. Same
+    /// results as [`Self::process`] on the same samples.
+    ///
+    /// ```
+    /// use dsp_core::decimate::Decimator;
+    /// let (mut a, mut b) = (Decimator::new(4).unwrap(), Decimator::new(4).unwrap());
+    /// let x: Vec<f32> = (0..100).map(|i| (i as f32 * 0.3).sin()).collect();
+    /// let (mut ya, mut yb) = (Vec::new(), Vec::new());
+    /// a.process(&x, |v| ya.push(v));
+    /// let taken = b.process_with(x.len(), |s| s.copy_from_slice(&x), |v| yb.push(v));
+    /// assert_eq!((taken, ya), (100, yb));
+    /// ```
+    pub fn process_with(
         &mut self,
-        chunk: &[f32],
-        f: &mut impl FnMut(f32) -> f32,
-        out: &mut impl FnMut(f32),
-    ) {
+        len: usize,
+        fill: impl FnOnce(&mut [f32]),
+        mut out: impl FnMut(f32),
+    ) -> usize {
+        let len = len.min(BLOCK);
         let Self {
             stages,
             n_stages,
@@ -551,12 +573,20 @@ impl Decimator {
             ..
         } = self;
         let stages = stages.get_mut(..*n_stages).unwrap_or(&mut []);
-        if stages.is_empty() {
+        let Some(first) = stages.first() else {
             // Factor 1: pass-through.
-            chunk.iter().for_each(|&x| out(f(x)));
-            return;
+            let mut buf = [0f32; BLOCK];
+            let slot = buf.get_mut(..len).unwrap_or(&mut []);
+            fill(slot);
+            slot.iter().for_each(|&v| out(v));
+            return len;
+        };
+        let keep = first.taps.saturating_sub(1);
+        match hist.get_mut(first.hist + keep..first.hist + keep + len) {
+            Some(slot) => fill(slot),
+            None => return 0,
         }
-        let mut len = chunk.len();
+        let mut n = len;
         for i in 0..stages.len() {
             let next = stages
                 .get(i + 1)
@@ -570,45 +600,19 @@ impl Decimator {
             let Some(region) = cur.get_mut(st.hist..) else {
                 break;
             };
-            let input = (i == 0).then_some((chunk, &mut *f));
-            len = match next {
+            n = match next {
                 Some((_, keep, cap)) => {
                     let dst = nxt.get_mut(keep..keep + cap).unwrap_or(&mut []);
-                    stage_step(st, taps, region, input, len, Some(dst), |_| {})
+                    run_stage(st, taps, region, n, Some(dst), |_| {})
                 }
-                None => stage_step(st, taps, region, input, len, None, &mut *out),
+                None => run_stage(st, taps, region, n, None, &mut out),
             };
-            if len == 0 {
+            if n == 0 {
                 break;
             }
         }
+        len
     }
-}
-
-/// One stage over its history `region`: the first stage takes `input`
-/// (samples and producer), later stages the `len` samples the previous
-/// stage wrote behind their history. Returns the number of outputs.
-#[inline(always)]
-fn stage_step(
-    st: &mut Stage,
-    taps: &[f32],
-    region: &mut [f32],
-    input: Option<(&[f32], &mut impl FnMut(f32) -> f32)>,
-    len: usize,
-    dst: Option<&mut [f32]>,
-    emit: impl FnMut(f32),
-) -> usize {
-    let Some((src, f)) = input else {
-        return run_stage(st, taps, region, len, dst, emit);
-    };
-    let keep = st.taps.saturating_sub(1);
-    let Some(slot) = region.get_mut(keep..keep + src.len()) else {
-        return 0;
-    };
-    for (s, &x) in slot.iter_mut().zip(src) {
-        *s = f(x);
-    }
-    run_stage(st, taps, region, src.len(), dst, emit)
 }
 
 /// Half-band output over a window of N = 4k + 3 samples with K = k + 1

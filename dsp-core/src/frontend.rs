@@ -19,7 +19,7 @@
 //! 320-tap pool plus history); stack use per call about 1.5 KB (chunk buffers
 //! of [`CHUNK`] samples here, in the decimator and in the velocity path).
 
-use crate::biquad::{BiquadCascade, FilterJob};
+use crate::biquad::BiquadCascade;
 use crate::decimate::{DecimateError, Decimator, DecimatorPlan};
 use crate::design::{bandpass_centre_hz, butter_bandpass, DesignError, SosCascade};
 use crate::overall::{Overall, OverallAcc};
@@ -176,33 +176,6 @@ impl FrontEndPlan {
     }
 }
 
-/// The envelope path as a job for the band-pass's per-sample filter.
-struct Envelope<'a, O> {
-    dec: &'a mut Decimator,
-    src: &'a [f32],
-    rectifier: Rectifier,
-    out: &'a mut O,
-}
-
-impl<O: FnMut(f32)> FilterJob for Envelope<'_, O> {
-    type Output = ();
-    fn run(self, mut filter: impl FnMut(f32) -> f32) {
-        match self.rectifier {
-            Rectifier::Square => self.dec.process_map(
-                self.src,
-                |x| {
-                    let y = filter(x);
-                    y * y
-                },
-                self.out,
-            ),
-            Rectifier::Abs => self
-                .dec
-                .process_map(self.src, |x| filter(x).abs(), self.out),
-        }
-    }
-}
-
 impl FrontEnd {
     /// Validates the configuration and designs all filters.
     ///
@@ -334,21 +307,18 @@ impl FrontEnd {
         if self.cfg.velocity.enabled {
             self.vel.process(buf);
         }
-        // Band-pass and rectifier fused into the decimator's first stage:
-        // one pass, nothing stored in between.
-        let job = Envelope {
-            dec: &mut self.dec,
-            src: buf,
-            rectifier: self.cfg.rectifier,
-            out: &mut *out,
-        };
-        if self.bp.with_stepper(job).is_err() {
-            // Sections not in band-pass form: filter in place, then decimate.
+        // Band-pass and rectifier write straight into the decimator's first
+        // stage (one piece: the chunk is the decimator's block).
+        let (bp, dec) = (&mut self.bp, &mut self.dec);
+        for c in buf.chunks(crate::decimate::BLOCK) {
             match self.cfg.rectifier {
-                Rectifier::Abs => self.bp.process_map(buf, f32::abs),
-                Rectifier::Square => self.bp.process_map(buf, |v| v * v),
-            }
-            self.dec.process(buf, out);
+                Rectifier::Abs => {
+                    dec.process_with(c.len(), |h| bp.process_map_into(c, h, f32::abs), &mut *out)
+                }
+                Rectifier::Square => {
+                    dec.process_with(c.len(), |h| bp.process_map_into(c, h, |v| v * v), &mut *out)
+                }
+            };
         }
     }
 

@@ -16,7 +16,7 @@ use core::hint::black_box;
 use core::ptr::{read_volatile, write_volatile};
 
 use cortex_m_rt::{entry, exception, ExceptionFrame};
-use dsp_core::biquad::{BiquadCascade, FilterJob};
+use dsp_core::biquad::BiquadCascade;
 use dsp_core::config::{Bearing, BearingKinematics, PointConfig, SpeedInput};
 use dsp_core::decimate::Decimator;
 use dsp_core::defects::{DefectSearch, DefectSearchConfig};
@@ -241,13 +241,14 @@ fn bench_front_end_stages(m: &Meter) {
         for _ in 0..BLOCKS {
             fill(&mut blk, &mut sig);
             total += m.instr(&mut || {
-                let job = EnvelopeJob {
-                    dec: &mut dec,
-                    src: black_box(&blk),
-                    sink: &mut sink,
-                };
-                if bp.with_stepper(job).is_err() {
-                    sink = f32::NAN;
+                // As FrontEnd::run: the band-pass writes the squared samples
+                // straight into the decimator's first stage, block by block.
+                for c in black_box(&blk).chunks(dsp_core::decimate::BLOCK) {
+                    dec.process_with(
+                        c.len(),
+                        |h| bp.process_map_into(c, h, |v| v * v),
+                        |y| sink += y,
+                    );
                 }
             });
         }
@@ -279,29 +280,6 @@ fn bench_front_end_stages(m: &Meter) {
         }
         black_box(sink);
         report(key, total / samples, "instr/sample", what);
-    }
-}
-
-/// The front end's envelope job: the band-pass's per-sample filter, squared,
-/// fed straight into the decimator's first stage.
-struct EnvelopeJob<'a> {
-    dec: &'a mut Decimator,
-    src: &'a [f32],
-    sink: &'a mut f32,
-}
-
-impl FilterJob for EnvelopeJob<'_> {
-    type Output = ();
-    fn run(self, mut filter: impl FnMut(f32) -> f32) {
-        let sink = self.sink;
-        self.dec.process_map(
-            self.src,
-            |x| {
-                let y = filter(x);
-                y * y
-            },
-            |y| *sink += y,
-        );
     }
 }
 
