@@ -10,14 +10,17 @@
 //! [`Overall::non_finite`].
 //!
 //! Cost on the Cortex-M4F, measured by `boards/qemu-bench` (instruction
-//! counts under QEMU, rustc 1.95; see docs/benchmarks.md): 8-pole band-pass
-//! with the rectifier fused 22 instructions per input sample, decimate by 8
-//! (half-bands of 7, 11 and 39 taps) 32, overall indicators 28; the whole
-//! `push_i16` path 102 with velocity off, 168 with the velocity path.
+//! counts under QEMU, rustc 1.95; see docs/benchmarks.md): the 8-pole
+//! band-pass with the rectifier, writing straight into the decimator by 8
+//! (half-bands of 7, 11 and 39 taps), 41 instructions per input sample;
+//! overall indicators 28; the whole `push_i16` path 88 with velocity off, 141
+//! with the velocity path (53 of its own).
 //!
-//! RAM: one `FrontEnd` is 8.1 KB on the target (two decimators of 3.8 KB:
-//! 320-tap pool plus history); stack use per call about 1.5 KB (chunk buffers
-//! of [`CHUNK`] samples here, in the decimator and in the velocity path).
+//! RAM: one `FrontEnd` is 5.6 KB on the target (two decimators of 2.6 KB:
+//! window-method tap pool plus history, half-band taps read from tables);
+//! stack use per call about 1.5 KB (chunk buffers of [`CHUNK`] samples here
+//! and in the velocity path). [`FrontEnd::reconfigure`] designs everything in
+//! place, so a statically placed front end never needs a second copy.
 
 use crate::biquad::BiquadCascade;
 use crate::decimate::{DecimateError, Decimator, DecimatorPlan};
