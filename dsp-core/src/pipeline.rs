@@ -212,6 +212,9 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
     /// assert!(p.reconfigure(&point).is_err());
     /// assert!(p.point().is_some_and(|q| q.samples_per_rev == 64));
     /// ```
+    // Not inlined: once per measurement, and its temporaries then never add
+    // to the frame of the caller's per-block loop (stack high-water).
+    #[inline(never)]
     pub fn reconfigure(&mut self, point: &PointConfig) -> Result<(), PipelineError> {
         let plan = Self::plan(point)?;
         self.apply(plan);
@@ -475,6 +478,8 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
     /// finished state (spectrum, speed series) for inspection; reconfigure
     /// it (or build a new one) for the next measurement. Unconfigured, the
     /// report is flagged incomplete with too few revolutions.
+    // Not inlined, for the same reason as `reconfigure`.
+    #[inline(never)]
     pub fn finish(&mut self) -> Report {
         let wanted = self.segments_wanted();
         let Self {
