@@ -17,7 +17,7 @@ pub struct BiquadCascade {
 
 impl BiquadCascade {
     /// Wraps designed sections with zero state.
-    pub fn new(sos: SosCascade) -> Self {
+    pub const fn new(sos: SosCascade) -> Self {
         Self {
             sos,
             state: [[0.0; 2]; MAX_SECTIONS],
@@ -61,27 +61,72 @@ impl BiquadCascade {
     /// assert!(x.iter().zip(&y).all(|(s, v)| *s == v * v));
     /// ```
     pub fn process_map(&mut self, buf: &mut [f32], map: impl Fn(f32) -> f32) {
-        // Band-pass sections (b = g [1, 0, -1], as designed here) take the
-        // fused path: sample-major with all states in registers, 7 flops per
-        // section. Bit-identical to the general form (0 * x and -b0 x are exact).
+        if !self.run_bandpass(buf.iter_mut().map(|x| (*x, x)), &map) {
+            self.run_general(buf);
+            buf.iter_mut().for_each(|x| *x = map(*x));
+        }
+    }
+
+    /// Filters `src` into `dst` (the shorter length) and applies `map` to
+    /// each output in the same pass, e.g. the rectified envelope straight
+    /// into the decimator's history ([`crate::decimate::Decimator::process_with`]).
+    /// The same results as [`Self::process_map`] on a copy of `src`.
+    ///
+    /// ```
+    /// use dsp_core::{biquad::BiquadCascade, design::butter_bandpass};
+    /// let sos = butter_bandpass(100.0, 200.0, 1000.0, 4).unwrap();
+    /// let (mut a, mut b) = (BiquadCascade::new(sos), BiquadCascade::new(sos));
+    /// let x = [1.0f32, 0.0, -0.5, 0.25];
+    /// let (mut y, mut z) = ([0f32; 4], x);
+    /// a.process_map_into(&x, &mut y, |v| v * v);
+    /// b.process_map(&mut z, |v| v * v);
+    /// assert_eq!(y, z);
+    /// ```
+    pub fn process_map_into(&mut self, src: &[f32], dst: &mut [f32], map: impl Fn(f32) -> f32) {
+        let n = src.len().min(dst.len());
+        let (Some(src), Some(dst)) = (src.get(..n), dst.get_mut(..n)) else {
+            return;
+        };
+        if !self.run_bandpass(src.iter().copied().zip(dst.iter_mut()), &map) {
+            dst.copy_from_slice(src);
+            self.run_general(dst);
+            dst.iter_mut().for_each(|x| *x = map(*x));
+        }
+    }
+
+    /// The band-pass form (b = g [1, 0, -1], as designed here, 1 to 4
+    /// sections) sample-major with every coefficient and state in locals
+    /// (registers), 7 flops per section; bit-identical to the general form
+    /// (0 x and -b0 x are exact). Returns false, touching nothing, for other
+    /// cascades.
+    fn run_bandpass<'a>(
+        &mut self,
+        io: impl Iterator<Item = (f32, &'a mut f32)>,
+        map: &impl Fn(f32) -> f32,
+    ) -> bool {
         let bandpass = self
             .sos
             .sections()
             .iter()
             .all(|s| s.b[1] == 0.0 && s.b[2] == -s.b[0]);
-        match (bandpass, self.sos.len()) {
-            (true, 4) => self.run_bandpass::<4>(buf, map),
-            (true, 3) => self.run_bandpass::<3>(buf, map),
-            (true, 2) => self.run_bandpass::<2>(buf, map),
-            (true, 1) => self.run_bandpass::<1>(buf, map),
-            _ => {
-                self.run_general(buf);
-                buf.iter_mut().for_each(|x| *x = map(*x));
-            }
+        if !bandpass {
+            return false;
         }
+        match self.sos.len() {
+            4 => self.run_sections::<4>(io, map),
+            3 => self.run_sections::<3>(io, map),
+            2 => self.run_sections::<2>(io, map),
+            1 => self.run_sections::<1>(io, map),
+            _ => return false,
+        }
+        true
     }
 
-    fn run_bandpass<const N: usize>(&mut self, buf: &mut [f32], map: impl Fn(f32) -> f32) {
+    fn run_sections<'a, const N: usize>(
+        &mut self,
+        io: impl Iterator<Item = (f32, &'a mut f32)>,
+        map: &impl Fn(f32) -> f32,
+    ) {
         let (mut b0, mut a1, mut a2) = ([0f32; N], [0f32; N], [0f32; N]);
         let (mut s1, mut s2) = ([0f32; N], [0f32; N]);
         let secs = self.sos.sections().iter().zip(self.state.iter());
@@ -96,8 +141,8 @@ impl BiquadCascade {
                 (*b, *p, *q, *u, *v) = (sec.b[0], sec.a[1], sec.a[2], st[0], st[1]);
             }
         }
-        for x in buf.iter_mut() {
-            let mut v = *x;
+        for (x, out) in io {
+            let mut v = x;
             let coefs = b0.iter().zip(a1.iter()).zip(a2.iter());
             for (((b, p), q), (u, w)) in coefs.zip(s1.iter_mut().zip(s2.iter_mut())) {
                 let t = b * v;
@@ -106,7 +151,7 @@ impl BiquadCascade {
                 *w = -(t + q * y);
                 v = y;
             }
-            *x = map(v);
+            *out = map(v);
         }
         for (st, (u, w)) in self.state.iter_mut().zip(s1.iter().zip(s2.iter())) {
             *st = [*u, *w];

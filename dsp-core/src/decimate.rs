@@ -21,11 +21,18 @@
 //! `r_i - fp`, so nothing that folds into `[0, fp]` at any stage survives.
 //! Cut-off = `r_i / 2`. Design attenuation [`STOP_DB`].
 //!
-//! Processing is block-wise per stage: a block of up to [`BLOCK`] inputs is
-//! copied behind the stage's N-1 samples of history in a linear buffer, the
-//! kept outputs (every M-th input) are computed from contiguous windows, and
-//! the last N-1 samples are moved to the front. Per input this costs one
-//! copy plus an amortised (N-1)/block move; only kept outputs are computed.
+//! Processing is block-wise per stage over linear history buffers: a block
+//! of up to [`BLOCK`] inputs sits behind the stage's N-1 samples of history,
+//! the kept outputs (every M-th input) are computed from contiguous windows
+//! and written straight behind the next stage's history (the last stage's
+//! go to the caller), then the last N-1 samples move to the front. The first
+//! stage's inputs are written into its history by their producer
+//! ([`Decimator::process_with`]), so no sample is copied between stages.
+//! Half-band taps are read from the static tables (only window-method taps
+//! are stored) and their kernels have compile-time lengths and compute two
+//! outputs per step from shared loads. Both pools are sized for the most
+//! demanding supported factors (taps: 343 = 7 x 7 x 7; history: 1024),
+//! which a test recomputes.
 
 /// Design attenuation in dB (margin over the 60 dB requirement): Kaiser
 /// stages by design, half-band tables checked by `tests/reference/halfband_tables.py`.
@@ -38,13 +45,19 @@ pub const MAX_FACTOR: u16 = 1024;
 pub const MAX_STAGE_FACTOR: u16 = 8;
 /// Maximum number of stages (1024 = 2^10 needs ten half-band stages).
 pub const MAX_STAGES: usize = 10;
-/// Tap pool shared by all stages.
-pub const TAP_POOL: usize = 320;
+/// Tap pool of the window-method (odd-factor) stages; half-band taps are
+/// read from the static tables. 206 is what factor 343 (7 x 7 x 7) needs,
+/// the most of any supported factor (`pools_fit_the_most_demanding_factor`).
+pub const TAP_POOL: usize = 206;
 /// Inputs processed per stage block.
 pub const BLOCK: usize = 128;
-/// History pool: N - 1 + (input block capacity) per stage. Stage inputs
-/// shrink by >= 2 per stage, so the capacities sum to < 2 BLOCK + MAX_STAGES.
-const HIST_POOL: usize = TAP_POOL + 2 * BLOCK + MAX_STAGES;
+/// History pool: N - 1 + (input block capacity) per stage (plus [`SLACK`]
+/// per half-band stage), summed over the stages; 383 for factor 1024, the
+/// most of any supported factor.
+pub const HIST_POOL: usize = 383;
+/// Samples after a half-band stage's inputs that its two-output kernel may
+/// span without reading them, so every pair of outputs takes the fast loop.
+const SLACK: usize = 3;
 
 /// Equiripple half-band tables (outer nonzero taps h[0], h[2], ..., h[mid-1];
 /// centre 0.5), designed offline with `scipy.signal.remez` by
@@ -98,13 +111,53 @@ impl core::fmt::Display for DecimateError {
 
 impl core::error::Error for DecimateError {}
 
+/// Which half-band table a factor-2 stage uses.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum HalfBand {
+    R2,
+    R4,
+    R8,
+}
+
+impl HalfBand {
+    /// The table for a stage with input rate `rate_in` (units of the final
+    /// output rate).
+    fn for_rate(rate_in: f64) -> Self {
+        if rate_in <= 2.5 {
+            Self::R2
+        } else if rate_in <= 4.5 {
+            Self::R4
+        } else {
+            Self::R8
+        }
+    }
+
+    fn outer(self) -> &'static [f32] {
+        match self {
+            Self::R2 => &HB_R2,
+            Self::R4 => &HB_R4,
+            Self::R8 => &HB_R8,
+        }
+    }
+
+    /// Filter length 4k + 3 (k + 1 outer taps).
+    fn len(self) -> usize {
+        4 * self.outer().len() - 1
+    }
+}
+
 #[derive(Clone, Copy, Debug, Default)]
 struct Stage {
     factor: u16,
-    halfband: bool,
+    /// `Some` for factor-2 stages (taps from the table), `None` for
+    /// window-method stages (taps in the pool at `offset`).
+    halfband: Option<HalfBand>,
     taps: usize,
     offset: usize,
+    /// Start of this stage's history region: N - 1 + `cap` samples.
     hist: usize,
+    /// Input capacity per block.
+    cap: usize,
     phase: usize,
 }
 
@@ -114,10 +167,85 @@ pub struct Decimator {
     factor: u16,
     stages: [Stage; MAX_STAGES],
     n_stages: usize,
-    /// Taps of all stages, each stored time-reversed (oldest sample first).
+    /// Taps of the window-method stages, each stored time-reversed (oldest
+    /// sample first).
     taps: [f32; TAP_POOL],
     /// Linear history buffers of all stages (N - 1 + input capacity each).
     hist: [f32; HIST_POOL],
+}
+
+/// A validated stage plan (small; the taps are designed when it is applied).
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct DecimatorPlan {
+    factor: u16,
+    stages: [Stage; MAX_STAGES],
+    n_stages: usize,
+    betas: [f64; MAX_STAGES],
+}
+
+impl DecimatorPlan {
+    /// Splits `factor` into stages and checks that they fit the pools.
+    pub(crate) fn new(factor: u16) -> Result<Self, DecimateError> {
+        let (factors, n) = stage_factors(factor)?;
+        let mut plan = DecimatorPlan {
+            factor,
+            stages: [Stage::default(); MAX_STAGES],
+            n_stages: n,
+            betas: [0f64; MAX_STAGES],
+        };
+        let mut rate_in = f64::from(factor);
+        let (mut offset, mut hist, mut cap) = (0usize, 0usize, BLOCK);
+        let stages = plan.stages.iter_mut().zip(plan.betas.iter_mut());
+        for ((st, beta), &m) in stages.zip(&factors).take(n) {
+            let rate_out = rate_in / f64::from(m);
+            let width = 2.0 * (rate_out - 2.0 * PASS_FRACTION) / rate_in;
+            let halfband = (m == 2).then(|| HalfBand::for_rate(rate_in));
+            let taps = match halfband {
+                Some(hb) => hb.len(),
+                None => {
+                    let (taps, b) = kaiser_order(STOP_DB, width);
+                    *beta = b;
+                    taps.max(1)
+                }
+            };
+            *st = Stage {
+                factor: m,
+                halfband,
+                taps,
+                offset,
+                hist,
+                cap,
+                phase: 0,
+            };
+            if halfband.is_none() {
+                offset += taps;
+            }
+            hist += taps - 1 + cap + if halfband.is_some() { SLACK } else { 0 };
+            cap = cap.div_ceil(usize::from(m).max(1));
+            rate_in = rate_out;
+        }
+        if offset > TAP_POOL || hist > HIST_POOL {
+            return Err(DecimateError::TooManyTaps);
+        }
+        Ok(plan)
+    }
+
+    /// Delay of the planned chain in input samples (see
+    /// [`Decimator::delay_input_samples`]).
+    pub(crate) fn delay_input_samples(&self) -> f32 {
+        chain_delay(self.stages.iter().take(self.n_stages))
+    }
+}
+
+/// Sum of (N-1)/2 of each stage scaled by the rate ratio to the input.
+fn chain_delay<'a>(stages: impl Iterator<Item = &'a Stage>) -> f32 {
+    let mut scale = 1.0f64;
+    let mut d = 0.0f64;
+    for s in stages {
+        d += to_f64(s.taps.saturating_sub(1)) * 0.5 * scale;
+        scale *= f64::from(s.factor);
+    }
+    crate::num::f64_to_f32(d)
 }
 
 /// Splits `factor` into stage factors (largest first). Returns the count.
@@ -181,10 +309,11 @@ pub fn kaiser_order(a_db: f64, width: f64) -> (usize, f64) {
 }
 
 /// One output of a symmetric FIR over window `w` (oldest first) with taps
-/// `h` of the same length: one multiply per tap pair; half-band filters
-/// (length 4k + 3) visit only the nonzero pairs (even distance from the ends).
+/// `h` of the same length: one multiply per tap pair, centre tap first, then
+/// the pairs from the outside in. Four pairs per step (same order of
+/// operations as one at a time).
 #[inline]
-fn fir_output(w: &[f32], h: &[f32], halfband: bool) -> f32 {
+fn fir_output(w: &[f32], h: &[f32]) -> f32 {
     let n = w.len().min(h.len());
     let m = n / 2;
     let centre = if n % 2 == 1 {
@@ -192,57 +321,13 @@ fn fir_output(w: &[f32], h: &[f32], halfband: bool) -> f32 {
     } else {
         0.0
     };
-    if halfband {
-        // Pairs (2j, n-1-2j), j = 0..=k: chunk j of w[..m+1] starts at 2j and
-        // chunk j from the end of w[m..] ends at n-1-2j.
-        let (Some(wl), Some(wh), Some(hl)) = (w.get(..m + 1), w.get(m..n), h.get(..m + 1)) else {
-            return 0.0;
-        };
-        wl.chunks_exact(2)
-            .zip(wh.rchunks_exact(2))
-            .zip(hl.chunks_exact(2))
-            .fold(centre, |acc, ((a, b), c)| match (a, b, c) {
-                ([a, _], [_, b], [c, _]) => acc + c * (a + b),
-                _ => acc,
-            })
-    } else {
-        let (Some(wl), Some(wh), Some(hl)) = (w.get(..m), w.get(n - m..n), h.get(..m)) else {
-            return 0.0;
-        };
-        wl.iter()
-            .zip(wh.iter().rev())
-            .zip(hl)
-            .fold(centre, |acc, ((a, b), c)| acc + c * (a + b))
-    }
-}
-
-/// The half-band table for a stage with input rate `rate_in` (units of the
-/// final output rate).
-fn halfband_table(rate_in: f64) -> &'static [f32] {
-    if rate_in <= 2.5 {
-        &HB_R2
-    } else if rate_in <= 4.5 {
-        &HB_R4
-    } else {
-        &HB_R8
-    }
-}
-
-/// Expands a half-band table into `slot` (length 4k + 3, symmetric).
-fn fill_halfband(slot: &mut [f32], outer: &[f32]) {
-    let n = slot.len();
-    slot.fill(0.0);
-    for (j, &c) in outer.iter().enumerate() {
-        if let Some(h) = slot.get_mut(2 * j) {
-            *h = c;
-        }
-        if let Some(h) = slot.get_mut(n - 1 - 2 * j) {
-            *h = c;
-        }
-    }
-    if let Some(h) = slot.get_mut(n / 2) {
-        *h = 0.5;
-    }
+    let (Some(wl), Some(wh), Some(hl)) = (w.get(..m), w.get(n - m..n), h.get(..m)) else {
+        return 0.0;
+    };
+    wl.iter()
+        .zip(wh.iter().rev())
+        .zip(hl)
+        .fold(centre, |acc, ((a, b), c)| acc + c * (a + b))
 }
 
 /// Rounds a length up to 4k + 3 (odd, outermost taps of a half-band nonzero).
@@ -275,24 +360,23 @@ fn to_f64(x: usize) -> f64 {
 
 /// Windowed-sinc low-pass with Kaiser window: `cutoff` as a fraction of
 /// Nyquist, normalised to unit DC gain (as `scipy.signal.firwin`). Writes
-/// `out.len()` taps in natural order.
+/// `out.len()` taps in natural order. Each tap is evaluated twice (for the
+/// sum, then scaled) so that no f64 buffer is needed on the stack.
 pub fn kaiser_lowpass(out: &mut [f32], cutoff: f64, beta: f64) {
     let n = out.len();
     let mid = to_f64(n.saturating_sub(1)) * 0.5;
     let i0b = bessel_i0(beta);
-    let mut h = [0f64; TAP_POOL];
-    let mut sum = 0.0;
-    for (i, hi) in h.iter_mut().take(n).enumerate() {
+    let tap = |i: usize| {
         let m = to_f64(i) - mid;
         let x = core::f64::consts::PI * cutoff * m;
         let sinc = if m == 0.0 { 1.0 } else { libm::sin(x) / x };
         let r = if n > 1 { (to_f64(i) - mid) / mid } else { 0.0 };
         let w = bessel_i0(beta * libm::sqrt((1.0 - r * r).max(0.0))) / i0b;
-        *hi = cutoff * sinc * w;
-        sum += *hi;
-    }
-    for (o, hi) in out.iter_mut().zip(h.iter()) {
-        *o = crate::num::f64_to_f32(hi / sum);
+        cutoff * sinc * w
+    };
+    let sum: f64 = (0..n).map(tap).sum();
+    for (i, o) in out.iter_mut().enumerate() {
+        *o = crate::num::f64_to_f32(tap(i) / sum);
     }
 }
 
@@ -306,52 +390,54 @@ impl Decimator {
     /// assert_eq!(kept, 8);
     /// ```
     pub fn new(factor: u16) -> Result<Self, DecimateError> {
-        let (factors, n) = stage_factors(factor)?;
-        let mut d = Decimator {
-            factor,
-            stages: [Stage::default(); MAX_STAGES],
-            n_stages: n,
+        let mut d = Self::pass_through();
+        d.reconfigure(factor)?;
+        Ok(d)
+    }
+
+    /// A pass-through decimator (factor 1), usable in constant context so a
+    /// larger object can be placed statically and configured in place.
+    pub const fn pass_through() -> Self {
+        Decimator {
+            factor: 1,
+            stages: [Stage {
+                factor: 1,
+                halfband: None,
+                taps: 0,
+                offset: 0,
+                hist: 0,
+                cap: 0,
+                phase: 0,
+            }; MAX_STAGES],
+            n_stages: 0,
             taps: [0.0; TAP_POOL],
             hist: [0.0; HIST_POOL],
-        };
-        // Rate after each stage in units of the output rate.
-        let mut rate_in = f64::from(factor);
-        let mut offset = 0usize;
-        let (mut hist, mut cap) = (0usize, BLOCK);
-        for (st, &m) in d.stages.iter_mut().zip(factors.iter()).take(n) {
-            let rate_out = rate_in / f64::from(m);
-            let width = 2.0 * (rate_out - 2.0 * PASS_FRACTION) / rate_in;
-            let halfband = m == 2;
-            let (taps, beta) = if halfband {
-                (4 * halfband_table(rate_in).len() - 1, 0.0)
-            } else {
-                kaiser_order(STOP_DB, width)
-            };
-            let end = offset + taps;
-            let slot = d
-                .taps
-                .get_mut(offset..end)
-                .ok_or(DecimateError::TooManyTaps)?;
-            if halfband {
-                fill_halfband(slot, halfband_table(rate_in));
-            } else {
-                kaiser_lowpass(slot, 1.0 / f64::from(m), beta);
+        }
+    }
+
+    /// Designs the stages for `factor` in place and clears the state; on
+    /// error `self` is left unchanged.
+    pub fn reconfigure(&mut self, factor: u16) -> Result<(), DecimateError> {
+        let plan = DecimatorPlan::new(factor)?;
+        self.apply(&plan);
+        Ok(())
+    }
+
+    /// Designs the planned stages in place and clears the state.
+    pub(crate) fn apply(&mut self, plan: &DecimatorPlan) {
+        for (st, &beta) in plan.stages.iter().zip(&plan.betas).take(plan.n_stages) {
+            if st.halfband.is_some() {
+                continue;
+            }
+            if let Some(slot) = self.taps.get_mut(st.offset..st.offset + st.taps) {
+                kaiser_lowpass(slot, 1.0 / f64::from(st.factor), beta);
                 slot.reverse();
             }
-            *st = Stage {
-                factor: m,
-                halfband,
-                taps,
-                offset,
-                hist,
-                phase: 0,
-            };
-            offset = end;
-            hist += taps - 1 + cap;
-            cap = cap.div_ceil(usize::from(m).max(1));
-            rate_in = rate_out;
         }
-        Ok(d)
+        self.factor = plan.factor;
+        self.stages = plan.stages;
+        self.n_stages = plan.n_stages;
+        self.hist.fill(0.0);
     }
 
     /// Overall factor.
@@ -367,31 +453,41 @@ impl Decimator {
             .map(|s| (s.factor, s.taps))
     }
 
-    /// Taps of stage `i` in natural order reversed (as stored: oldest-sample
-    /// coefficient first). Symmetric filters read the same either way.
-    pub fn stage_taps(&self, i: usize) -> &[f32] {
-        self.stages
-            .get(i)
-            .filter(|_| i < self.n_stages)
-            .and_then(|s| self.taps.get(s.offset..s.offset + s.taps))
-            .unwrap_or(&[])
+    /// Taps of stage `i` as applied to the window, oldest-sample coefficient
+    /// first (symmetric filters read the same either way); empty for a stage
+    /// that does not exist. Half-band taps are expanded from their table.
+    pub fn stage_taps(&self, i: usize) -> impl DoubleEndedIterator<Item = f32> + '_ {
+        let st = self.stages.get(i).filter(|_| i < self.n_stages).copied();
+        let n = st.map_or(0, |s| s.taps);
+        (0..n).map(move |j| match st {
+            Some(Stage {
+                halfband: Some(hb),
+                taps,
+                ..
+            }) => {
+                let k = j.min(taps - 1 - j);
+                if k == taps / 2 {
+                    0.5
+                } else if k % 2 == 0 {
+                    hb.outer().get(k / 2).copied().unwrap_or(0.0)
+                } else {
+                    0.0
+                }
+            }
+            Some(s) => self.taps.get(s.offset + j).copied().unwrap_or(0.0),
+            None => 0.0,
+        })
     }
 
     /// Delay of the linear-phase chain in input samples: sum of (N-1)/2 of
     /// each stage scaled by the rate ratio to the input.
     pub fn delay_input_samples(&self) -> f32 {
-        let mut scale = 1.0f64;
-        let mut d = 0.0f64;
-        for s in self.stages.iter().take(self.n_stages) {
-            d += to_f64(s.taps.saturating_sub(1)) * 0.5 * scale;
-            scale *= f64::from(s.factor);
-        }
-        crate::num::f64_to_f32(d)
+        chain_delay(self.stages.iter().take(self.n_stages))
     }
 
     /// Clears the state (taps are kept).
     pub fn reset(&mut self) {
-        self.hist = [0.0; HIST_POOL];
+        self.hist.fill(0.0);
         for s in self.stages.iter_mut() {
             s.phase = 0;
         }
@@ -407,7 +503,68 @@ impl Decimator {
 
     /// Pushes a block of any length; calls `out` for each kept output, in
     /// order. Results do not depend on how the input is split.
-    pub fn process(&mut self, input: &[f32], mut out: impl FnMut(f32)) {
+    pub fn process(&mut self, input: &[f32], out: impl FnMut(f32)) {
+        self.process_map(input, |x| x, out);
+    }
+
+    /// Decimates `f(x)` for each `x` of `input` (any length), calling `f`
+    /// once per sample, in order, and `out` for each kept output: the mapped
+    /// samples go straight into the first stage's history (see
+    /// [`Self::process_with`]). Same results as [`Self::process`] on the
+    /// mapped samples.
+    ///
+    /// ```
+    /// use dsp_core::decimate::Decimator;
+    /// let (mut a, mut b) = (Decimator::new(8).unwrap(), Decimator::new(8).unwrap());
+    /// let x: Vec<f32> = (0..100).map(|i| (i as f32 * 0.3).sin()).collect();
+    /// let sq: Vec<f32> = x.iter().map(|v| v * v).collect();
+    /// let (mut ya, mut yb) = (Vec::new(), Vec::new());
+    /// a.process(&sq, |v| ya.push(v));
+    /// b.process_map(&x, |v| v * v, |v| yb.push(v));
+    /// assert_eq!(ya, yb);
+    /// ```
+    pub fn process_map(
+        &mut self,
+        input: &[f32],
+        mut f: impl FnMut(f32) -> f32,
+        mut out: impl FnMut(f32),
+    ) {
+        for chunk in input.chunks(BLOCK) {
+            self.process_with(
+                chunk.len(),
+                |slot| {
+                    for (s, &x) in slot.iter_mut().zip(chunk) {
+                        *s = f(x);
+                    }
+                },
+                &mut out,
+            );
+        }
+    }
+
+    /// Pushes `len.min(BLOCK)` inputs that `fill` writes straight into the
+    /// first stage's history (it gets a slice of exactly that length), and
+    /// calls `out` for each kept output; returns the number of inputs taken.
+    /// The producer (the front end's band-pass and rectifier) thus writes
+    /// where the first stage reads, and nothing is copied in between. Same
+    /// results as [`Self::process`] on the same samples.
+    ///
+    /// ```
+    /// use dsp_core::decimate::Decimator;
+    /// let (mut a, mut b) = (Decimator::new(4).unwrap(), Decimator::new(4).unwrap());
+    /// let x: Vec<f32> = (0..100).map(|i| (i as f32 * 0.3).sin()).collect();
+    /// let (mut ya, mut yb) = (Vec::new(), Vec::new());
+    /// a.process(&x, |v| ya.push(v));
+    /// let taken = b.process_with(x.len(), |s| s.copy_from_slice(&x), |v| yb.push(v));
+    /// assert_eq!((taken, ya), (100, yb));
+    /// ```
+    pub fn process_with(
+        &mut self,
+        len: usize,
+        fill: impl FnOnce(&mut [f32]),
+        mut out: impl FnMut(f32),
+    ) -> usize {
+        let len = len.min(BLOCK);
         let Self {
             stages,
             n_stages,
@@ -415,135 +572,324 @@ impl Decimator {
             hist,
             ..
         } = self;
-        let Some((first, rest)) = stages
-            .get_mut(..*n_stages)
-            .and_then(|s| s.split_first_mut())
-        else {
+        let stages = stages.get_mut(..*n_stages).unwrap_or(&mut []);
+        let Some(first) = stages.first() else {
             // Factor 1: pass-through.
-            input.iter().for_each(|&v| out(v));
-            return;
+            let mut buf = [0f32; BLOCK];
+            let slot = buf.get_mut(..len).unwrap_or(&mut []);
+            fill(slot);
+            slot.iter().for_each(|&v| out(v));
+            return len;
         };
-        // Every stage decimates by >= 2, so BLOCK / 2 outputs fit. The scratch
-        // buffers are swapped by reference (no copies); the first stage reads
-        // the caller's block directly.
-        let mut a = [0f32; BLOCK / 2];
-        let mut b = [0f32; BLOCK / 2];
-        for chunk in input.chunks(BLOCK) {
-            let (mut src, mut dst) = (&mut a, &mut b);
-            let mut len = run_stage(first, taps, hist, chunk, src);
-            for st in rest.iter_mut() {
-                if len == 0 {
-                    break;
-                }
-                len = run_stage(st, taps, hist, src.get(..len).unwrap_or(&[]), dst);
-                core::mem::swap(&mut src, &mut dst);
-            }
-            src.iter().take(len).for_each(|&v| out(v));
+        let keep = first.taps.saturating_sub(1);
+        match hist.get_mut(first.hist + keep..first.hist + keep + len) {
+            Some(slot) => fill(slot),
+            None => return 0,
         }
+        let mut n = len;
+        for i in 0..stages.len() {
+            let next = stages
+                .get(i + 1)
+                .map(|s| (s.hist, s.taps.saturating_sub(1), s.cap));
+            let Some(st) = stages.get_mut(i) else { break };
+            // This stage's region lies below the next stage's.
+            let split = next.map_or(HIST_POOL, |(h, _, _)| h);
+            let Some((cur, nxt)) = hist.split_at_mut_checked(split) else {
+                break;
+            };
+            let Some(region) = cur.get_mut(st.hist..) else {
+                break;
+            };
+            n = match next {
+                Some((_, keep, cap)) => {
+                    let dst = nxt.get_mut(keep..keep + cap).unwrap_or(&mut []);
+                    run_stage(st, taps, region, n, Some(dst), |_| {})
+                }
+                None => run_stage(st, taps, region, n, None, &mut out),
+            };
+            if n == 0 {
+                break;
+            }
+        }
+        len
     }
 }
 
-/// Kept outputs of a factor-2 half-band stage over the linear history `h`
-/// (windows start at `first`, `first + 2`, ...). Lengths the designs produce
-/// get a kernel with the length fixed at compile time (unrolled, taps in
-/// registers); the arithmetic is that of [`fir_output`], so the results are
-/// the same bit for bit.
-fn halfband_outputs(h: &[f32], t: &[f32], first: usize, dst: &mut [f32]) -> usize {
-    macro_rules! dispatch {
-        ($($n:literal),*) => {
-            match t.len() {
-                $($n => halfband_fixed::<$n>(h, t, first, dst),)*
-                _ => {
-                    // `max(1)`: an empty kernel gives no outputs instead of a panic path.
-                    let windows = h.windows(t.len().max(1)).skip(first).step_by(2).zip(dst.iter_mut());
-                    let mut count = 0;
-                    for (w, d) in windows {
-                        *d = fir_output(w, t, true);
-                        count += 1;
-                    }
-                    count
+/// Half-band output over a window of N = 4k + 3 samples with K = k + 1
+/// outer taps: centre first, then the nonzero tap pairs (even distance
+/// from the ends) from the outside in, one multiply per pair; the zero taps
+/// are skipped, not multiplied.
+#[inline(always)]
+fn halfband_output<const N: usize, const K: usize>(w: &[f32; N], outer: &[f32; K]) -> f32 {
+    let centre = w.get(N / 2).map_or(0.0, |&c| c * 0.5);
+    let lo = w.iter().step_by(2);
+    let hi = w.iter().rev().step_by(2);
+    lo.zip(hi)
+        .zip(outer)
+        .fold(centre, |acc, ((a, b), c)| acc + c * (a + b))
+}
+
+/// Two consecutive outputs (windows at samples 0 and 2) of a flat window
+/// of F = 4Q >= N + 2 samples: both from the same loaded samples, stored
+/// after both are computed.
+#[inline(always)]
+fn halfband_two<const N: usize, const K: usize, const F: usize>(
+    flat: &[f32; F],
+    outer: &[f32; K],
+) -> (f32, f32) {
+    let a = flat
+        .first_chunk::<N>()
+        .map_or(0.0, |w| halfband_output(w, outer));
+    let b = flat
+        .get(2..)
+        .and_then(|s| s.first_chunk::<N>())
+        .map_or(0.0, |w| halfband_output(w, outer));
+    (a, b)
+}
+
+/// One half-band stage (length N = 4k + 3, K outer taps from its table,
+/// Q = k + 2 blocks of four samples per output pair, F = 4Q, KEEP = N - 1;
+/// all compile-time, so loops unroll and taps stay in registers). `h` holds
+/// the KEEP history samples and the `l` new ones; windows start at
+/// `h[first]`, `h[first + 2]`, ... Outputs go to `dst` or, when it is
+/// `None`, to `emit`. Outputs are computed two at a time in a counted loop
+/// (shared loads, no per-output checks). Afterwards the last KEEP samples
+/// move to the front. Returns the number of outputs.
+#[inline(always)]
+fn halfband_stage<
+    const N: usize,
+    const K: usize,
+    const Q: usize,
+    const F: usize,
+    const KEEP: usize,
+>(
+    region: &mut [f32],
+    len: usize,
+    first: usize,
+    outer: &[f32; K],
+    dst: Option<&mut [f32]>,
+    mut emit: impl FnMut(f32),
+) -> usize {
+    let taps = *outer;
+    // Samples: `len`, then up to SLACK more that the last block of a pair
+    // may span but no output reads (a pair reads N + 2 of its F samples).
+    let ext = region
+        .get(..len + SLACK)
+        .or(region.get(..len))
+        .unwrap_or(&[]);
+    let w = ext.get(first..).unwrap_or(&[]);
+    let w_len = len.saturating_sub(first);
+    let total = if w_len >= N { (w_len - N) / 2 + 1 } else { 0 };
+    let (quads, _) = w.as_chunks::<4>();
+    // Pairs of outputs whose F-sample block lies inside `ext`.
+    let pairs = (total / 2).min(quads.len().saturating_sub(Q - 1));
+    // Slice windows and a slice iterator zip to a counted loop without
+    // per-output checks (`map`, not `filter_map`, keeps it so; the
+    // conversion cannot fail: Q blocks of four are F samples).
+    let blocks = quads
+        .windows(Q)
+        .map(|q| <&[f32; F]>::try_from(q.as_flattened()).ok());
+    let mut done = 0;
+    let mut dst = match dst {
+        Some(d) => {
+            let (head, tail) = d
+                .split_at_mut_checked(2 * pairs)
+                .unwrap_or((&mut [], &mut []));
+            for (flat, o) in blocks.zip(head.as_chunks_mut::<2>().0) {
+                if let Some(flat) = flat {
+                    (o[0], o[1]) = halfband_two::<N, K, F>(flat, &taps);
+                    done += 2;
                 }
             }
-        };
-    }
-    dispatch!(3, 7, 11, 15, 19, 23, 27, 31, 35, 39, 43, 47)
-}
-
-#[inline(always)]
-fn halfband_fixed<const N: usize>(h: &[f32], t: &[f32], first: usize, dst: &mut [f32]) -> usize {
-    let Ok(taps) = <&[f32; N]>::try_from(t) else {
-        return 0;
+            Some(tail.iter_mut())
+        }
+        None => {
+            for flat in blocks.take(pairs).flatten() {
+                let (a, b) = halfband_two::<N, K, F>(flat, &taps);
+                emit(a);
+                emit(b);
+                done += 2;
+            }
+            None
+        }
     };
-    // Local copy: the compiler keeps the taps in FPU registers over the block.
-    let taps: [f32; N] = *taps;
-    let mut count = 0;
-    let mut start = first;
-    for d in dst.iter_mut() {
-        let Some(w) = h
-            .get(start..start + N)
-            .and_then(|s| <&[f32; N]>::try_from(s).ok())
-        else {
+    // The last output (an odd count), or any the slack did not cover.
+    while done < total {
+        let Some(win) = w.get(2 * done..).and_then(|s| s.first_chunk::<N>()) else {
             break;
         };
-        *d = fir_output(w, &taps, true);
-        count += 1;
-        start += 2;
+        let v = halfband_output(win, &taps);
+        match dst.as_mut() {
+            Some(it) => {
+                if let Some(o) = it.next() {
+                    *o = v;
+                }
+            }
+            None => emit(v),
+        }
+        done += 1;
     }
-    count
+    let h = region.get_mut(..len).unwrap_or(&mut []);
+    shift_history::<KEEP>(h);
+    done
 }
 
-/// Runs one stage over `src` (at most [`BLOCK`] samples), writing kept
-/// outputs to `dst`; returns their count.
-fn run_stage(
-    st: &mut Stage,
-    taps: &[f32],
-    hist: &mut [f32],
-    src: &[f32],
-    dst: &mut [f32],
-) -> usize {
-    let n = st.taps;
-    let m = usize::from(st.factor.max(1));
-    let l = src.len();
-    if n == 0 {
-        // `windows(0)` panics; a stage always has taps (checked in `new`).
-        return 0;
-    }
-    let keep = n.saturating_sub(1);
-    let (Some(h), Some(t)) = (
-        hist.get_mut(st.hist..st.hist + keep + l),
-        taps.get(st.offset..st.offset + n),
-    ) else {
-        return 0;
-    };
-    if let Some(tail) = h.get_mut(keep..) {
-        tail.copy_from_slice(src);
-    }
-    // Output k of this block ends at block index first + k m.
-    let first = m - 1 - st.phase;
-    let mut count = 0;
-    if st.halfband {
-        count = halfband_outputs(h, t, first, dst);
-    } else {
-        let windows = h
-            .windows(n.max(1))
-            .skip(first)
-            .step_by(m.max(1))
-            .zip(dst.iter_mut());
-        for (w, d) in windows {
-            *d = fir_output(w, t, false);
-            count += 1;
+/// Moves the last KEEP samples of `h` to its front. When source and
+/// destination do not overlap (a block at least KEEP long, the usual case)
+/// this is a copy of known length, which the compiler inlines; otherwise a
+/// library move.
+#[inline(always)]
+fn shift_history<const KEEP: usize>(h: &mut [f32]) {
+    let l = h.len().saturating_sub(KEEP);
+    if l >= KEEP {
+        if let Some((front, back)) = h.split_at_mut_checked(l) {
+            if let (Some(d), Some(s)) =
+                (front.first_chunk_mut::<KEEP>(), back.first_chunk::<KEEP>())
+            {
+                d.copy_from_slice(s);
+            }
         }
+    } else {
+        move_to_front(h, l);
     }
-    st.phase = (st.phase + l) % m;
+}
+
+/// `h.copy_within(l.., 0)` for a block shorter than the history (source
+/// and destination overlap), out of line so that the usual case above stays
+/// an inlined copy of known length instead of being merged into this move.
+#[inline(never)]
+fn move_to_front(h: &mut [f32], l: usize) {
     if l <= h.len() {
         h.copy_within(l.., 0);
     }
-    count
+}
+
+/// Runs one stage over the `l` inputs already written behind its history
+/// in `region` (which starts at the stage's history); writes the kept
+/// outputs to `dst`, or calls `emit` for each when `dst` is `None`, and
+/// returns their count.
+fn run_stage(
+    st: &mut Stage,
+    taps: &[f32],
+    region: &mut [f32],
+    l: usize,
+    dst: Option<&mut [f32]>,
+    emit: impl FnMut(f32),
+) -> usize {
+    let n = st.taps;
+    let m = usize::from(st.factor.max(1));
+    let keep = n.saturating_sub(1);
+    if region.len() < keep + l {
+        return 0;
+    }
+    // Output k of this block ends at block index first + k m, so its window
+    // starts at h[first + k m].
+    let first = m - 1 - st.phase.min(m - 1);
+    st.phase = (st.phase + l) % m;
+    match st.halfband {
+        Some(HalfBand::R8) => {
+            halfband_stage::<7, 2, 3, 12, 6>(region, keep + l, first, &HB_R8, dst, emit)
+        }
+        Some(HalfBand::R4) => {
+            halfband_stage::<11, 3, 4, 16, 10>(region, keep + l, first, &HB_R4, dst, emit)
+        }
+        Some(HalfBand::R2) => {
+            halfband_stage::<39, 10, 11, 44, 38>(region, keep + l, first, &HB_R2, dst, emit)
+        }
+        None => {
+            let h = region.get_mut(..keep + l).unwrap_or(&mut []);
+            let t = taps.get(st.offset..st.offset + n).unwrap_or(&[]);
+            let count = window_stage(h, first, m, t, dst, emit);
+            move_to_front(h, l);
+            count
+        }
+    }
+}
+
+/// Kept outputs of a window-method stage (runtime length and factor m):
+/// windows start at `h[first]`, `h[first + m]`, ...; two outputs per step
+/// share the tap loads and the loop, each with the arithmetic of
+/// [`fir_output`]. Outputs go to `dst` or, when it is `None`, to `emit`.
+fn window_stage(
+    h: &[f32],
+    first: usize,
+    m: usize,
+    t: &[f32],
+    dst: Option<&mut [f32]>,
+    emit: impl FnMut(f32),
+) -> usize {
+    let n = t.len();
+    let w = h.get(first..).unwrap_or(&[]);
+    if n == 0 || m == 0 || w.len() < n {
+        return 0;
+    }
+    let total = (w.len() - n) / m + 1;
+    let mut dst = dst.map(|d| d.iter_mut());
+    let mut emit = emit;
+    let mut put = |v: f32| match dst.as_mut() {
+        Some(it) => {
+            if let Some(o) = it.next() {
+                *o = v;
+            }
+        }
+        None => emit(v),
+    };
+    let mut done = 0;
+    while done + 2 <= total {
+        let s = done * m;
+        let (Some(a), Some(b)) = (w.get(s..s + n), w.get(s + m..s + m + n)) else {
+            break;
+        };
+        let (ya, yb) = fir_two(a, b, t);
+        put(ya);
+        put(yb);
+        done += 2;
+    }
+    if done < total {
+        if let Some(a) = w.get(done * m..done * m + n) {
+            put(fir_output(a, t));
+            done += 1;
+        }
+    }
+    done
+}
+
+/// [`fir_output`] over two windows of the length of `h` at once (taps
+/// loaded once for both).
+#[inline]
+fn fir_two(a: &[f32], b: &[f32], h: &[f32]) -> (f32, f32) {
+    let n = h.len();
+    let m = n / 2;
+    let centre = |w: &[f32]| {
+        if n % 2 == 1 {
+            w.get(m).zip(h.get(m)).map_or(0.0, |(x, c)| x * c)
+        } else {
+            0.0
+        }
+    };
+    let (Some(al), Some(ah), Some(bl), Some(bh), Some(hl)) = (
+        a.get(..m),
+        a.get(n - m..n),
+        b.get(..m),
+        b.get(n - m..n),
+        h.get(..m),
+    ) else {
+        return (0.0, 0.0);
+    };
+    hl.iter()
+        .zip(al.iter().zip(ah.iter().rev()))
+        .zip(bl.iter().zip(bh.iter().rev()))
+        .fold(
+            (centre(a), centre(b)),
+            |(ya, yb), ((c, (a0, a1)), (b0, b1))| (ya + c * (a0 + a1), yb + c * (b0 + b1)),
+        )
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+    extern crate std;
+    use std::vec::Vec;
 
     #[test]
     fn factorisation() {
@@ -570,6 +916,74 @@ mod tests {
             match Decimator::new(d) {
                 Ok(dec) => assert_eq!(dec.stages().map(|s| s.0).product::<u16>(), d.max(1)),
                 Err(e) => assert_eq!(e, DecimateError::FactorPrime, "{d}"),
+            }
+        }
+    }
+
+    #[test]
+    fn pools_fit_the_most_demanding_factor() {
+        // Recomputes each supported factor's need (window-method taps; N - 1
+        // plus input capacity per stage) and checks the pools are exactly
+        // the largest need, so a design change that outgrows them, or
+        // leaves them oversized, fails here rather than at run time.
+        let (mut taps_max, mut hist_max) = (0, 0);
+        let (mut need_343, mut need_1024) = (0, 0);
+        for d in 1..=MAX_FACTOR {
+            let Ok(dec) = Decimator::new(d) else { continue };
+            let (mut taps, mut hist, mut cap) = (0, 0, BLOCK);
+            for (m, n) in dec.stages() {
+                if m != 2 {
+                    taps += n;
+                }
+                hist += n - 1 + cap + if m == 2 { SLACK } else { 0 };
+                cap = cap.div_ceil(usize::from(m));
+            }
+            taps_max = taps_max.max(taps);
+            hist_max = hist_max.max(hist);
+            if d == 343 {
+                need_343 = taps;
+            }
+            if d == 1024 {
+                need_1024 = hist;
+            }
+        }
+        assert_eq!((taps_max, hist_max), (TAP_POOL, HIST_POOL));
+        assert_eq!((need_343, need_1024), (TAP_POOL, HIST_POOL));
+    }
+
+    #[test]
+    fn half_band_taps_expand_from_the_tables() {
+        let d = Decimator::new(8).unwrap();
+        let t: Vec<f32> = d.stage_taps(0).collect();
+        assert_eq!(t, [HB_R8[0], 0.0, HB_R8[1], 0.5, HB_R8[1], 0.0, HB_R8[0]]);
+        assert_eq!(d.stage_taps(2).count(), 39);
+        assert_eq!(d.stage_taps(3).count(), 0);
+    }
+
+    #[test]
+    fn any_split_and_the_fused_producer_give_the_same_bits() {
+        // Reference: the same decimator fed one block of pre-squared samples.
+        let x: Vec<f32> = (0..5000u32)
+            .map(|i| libm::sinf(i as f32 * 0.37) + if i % 29 == 0 { 1.5 } else { -0.2 })
+            .collect();
+        let sq: Vec<f32> = x.iter().map(|v| v * v).collect();
+        for d in [2u16, 3, 4, 6, 8, 12, 16, 25, 64, 343, 1024] {
+            let mut want = Vec::new();
+            Decimator::new(d)
+                .unwrap()
+                .process(&sq, |v| want.push(v.to_bits()));
+            for split in [1usize, 5, 127, 128, 129, 300] {
+                let mut dec = Decimator::new(d).unwrap();
+                let mut got = Vec::new();
+                for (k, c) in x.chunks(split).enumerate() {
+                    if k % 2 == 0 {
+                        dec.process_map(c, |v| v * v, |v| got.push(v.to_bits()));
+                    } else {
+                        let c: Vec<f32> = c.iter().map(|v| v * v).collect();
+                        dec.process(&c, |v| got.push(v.to_bits()));
+                    }
+                }
+                assert_eq!(got, want, "factor {d} split {split}");
             }
         }
     }

@@ -63,6 +63,15 @@ impl core::fmt::Display for DesignError {
 impl core::error::Error for DesignError {}
 
 impl SosCascade {
+    /// The empty cascade (identity), usable in constant context.
+    pub const EMPTY: Self = Self {
+        sections: [Sos {
+            b: [0.0; 3],
+            a: [0.0; 3],
+        }; MAX_SECTIONS],
+        len: 0,
+    };
+
     /// Builds a cascade from sections; `None` when more than [`MAX_SECTIONS`].
     pub fn from_sections(secs: &[Sos]) -> Option<Self> {
         if secs.len() > MAX_SECTIONS {

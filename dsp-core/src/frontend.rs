@@ -10,21 +10,26 @@
 //! [`Overall::non_finite`].
 //!
 //! Cost on the Cortex-M4F, measured by `boards/qemu-bench` (instruction
-//! counts under QEMU, rustc 1.95; see docs/benchmarks.md): 8-pole band-pass
-//! with the rectifier fused 22 instructions per input sample, decimate by 8
-//! (half-bands of 7, 11 and 39 taps) 32, overall indicators 28; the whole
-//! `push_i16` path 102 with velocity off, 168 with the velocity path.
+//! counts under QEMU, rustc 1.95; see docs/benchmarks.md): the 8-pole
+//! band-pass with the rectifier, writing straight into the decimator by 8
+//! (half-bands of 7, 11 and 39 taps), 41 instructions per input sample;
+//! overall indicators 28; the whole `push_i16` path 88 with velocity off, 141
+//! with the velocity path (53 of its own).
 //!
-//! RAM: one `FrontEnd` is 8.1 KB on the target (two decimators of 3.8 KB:
-//! 320-tap pool plus history); stack use per call about 1.5 KB (chunk buffers
-//! of [`CHUNK`] samples here, in the decimator and in the velocity path).
+//! RAM: one `FrontEnd` is 5.6 KB on the target (two decimators of 2.6 KB:
+//! window-method tap pool plus history, half-band taps read from tables);
+//! stack use per call about 1.5 KB (chunk buffers of [`CHUNK`] samples here
+//! and in the velocity path). [`FrontEnd::reconfigure`] designs everything in
+//! place, so a statically placed front end never needs a second copy.
 
 use crate::biquad::BiquadCascade;
-use crate::decimate::{DecimateError, Decimator};
-use crate::design::{bandpass_centre_hz, butter_bandpass, DesignError};
+use crate::decimate::{DecimateError, Decimator, DecimatorPlan};
+use crate::design::{bandpass_centre_hz, butter_bandpass, DesignError, SosCascade};
 use crate::overall::{Overall, OverallAcc};
 use crate::rectify::Rectifier;
-use crate::velocity::{zone, VelocityConfig, VelocityError, VelocityMeter};
+use crate::velocity::{
+    zone, MachineGroup, Support, VelocityConfig, VelocityError, VelocityMeter, VelocityPlan,
+};
 
 /// Samples processed per internal chunk (stack buffer of 512 bytes); the
 /// decimator's block, so each chunk is one pass through its stages.
@@ -110,9 +115,68 @@ pub struct FrontEnd {
     bp: BiquadCascade,
     dec: Decimator,
     acc: OverallAcc,
-    vel: Option<VelocityMeter>,
+    /// The velocity path, in use when `cfg.velocity.enabled` (kept in place
+    /// either way, so reconfiguring never builds one on the stack).
+    vel: VelocityMeter,
     clip_g: f32,
     delay: f32,
+}
+
+/// A validated front-end design (small: sections and stage plans), applied
+/// in place by [`FrontEnd::apply`].
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct FrontEndPlan {
+    cfg: FrontEndConfig,
+    sos: SosCascade,
+    dec: DecimatorPlan,
+    vel: Option<VelocityPlan>,
+    clip_g: f32,
+    delay: f32,
+}
+
+impl FrontEndPlan {
+    /// Validates the configuration and designs the filters.
+    pub(crate) fn new(cfg: &FrontEndConfig) -> Result<Self, FrontEndError> {
+        let fs = cfg.sample_rate_hz;
+        if !(fs.is_finite() && fs > 0.0) {
+            return Err(FrontEndError::SampleRate);
+        }
+        if !(cfg.counts_to_g.is_finite() && cfg.counts_to_g > 0.0) {
+            return Err(FrontEndError::CountsToG);
+        }
+        if cfg.adc_full_scale <= 0 {
+            return Err(FrontEndError::FullScale);
+        }
+        let [lo, hi] = cfg.band_hz;
+        let sos = butter_bandpass(lo, hi, fs, cfg.poles).map_err(FrontEndError::Band)?;
+        let dec = DecimatorPlan::new(cfg.decimation).map_err(FrontEndError::Decimation)?;
+        let vel = if cfg.velocity.enabled {
+            Some(VelocityPlan::new(fs, &cfg.velocity).map_err(FrontEndError::Velocity)?)
+        } else {
+            None
+        };
+        let centre = f64::from(bandpass_centre_hz(lo, hi, fs));
+        let delay = crate::num::f64_to_f32(sos.group_delay(centre, f64::from(fs)))
+            + dec.delay_input_samples();
+        Ok(Self {
+            cfg: *cfg,
+            sos,
+            dec,
+            vel,
+            clip_g: f32::from(cfg.adc_full_scale) * cfg.counts_to_g,
+            delay,
+        })
+    }
+
+    /// Envelope output rate (Hz).
+    pub(crate) fn output_rate_hz(&self) -> f32 {
+        self.cfg.sample_rate_hz / f32::from(self.cfg.decimation)
+    }
+
+    /// Envelope delay in input samples (see [`FrontEnd::delay_input_samples`]).
+    pub(crate) fn delay_input_samples(&self) -> f32 {
+        self.delay
+    }
 }
 
 impl FrontEnd {
@@ -127,36 +191,64 @@ impl FrontEnd {
     /// assert_eq!(fe.output_rate_hz(), 6400.0);
     /// ```
     pub fn new(cfg: &FrontEndConfig) -> Result<FrontEnd, FrontEndError> {
-        let fs = cfg.sample_rate_hz;
-        if !(fs.is_finite() && fs > 0.0) {
-            return Err(FrontEndError::SampleRate);
-        }
-        if !(cfg.counts_to_g.is_finite() && cfg.counts_to_g > 0.0) {
-            return Err(FrontEndError::CountsToG);
-        }
-        if cfg.adc_full_scale <= 0 {
-            return Err(FrontEndError::FullScale);
-        }
-        let [lo, hi] = cfg.band_hz;
-        let sos = butter_bandpass(lo, hi, fs, cfg.poles).map_err(FrontEndError::Band)?;
-        let dec = Decimator::new(cfg.decimation).map_err(FrontEndError::Decimation)?;
-        let vel = if cfg.velocity.enabled {
-            Some(VelocityMeter::new(fs, &cfg.velocity).map_err(FrontEndError::Velocity)?)
-        } else {
-            None
+        let plan = FrontEndPlan::new(cfg)?;
+        let mut fe = Self::unconfigured();
+        fe.apply(&plan);
+        Ok(fe)
+    }
+
+    /// Validates `cfg`, designs every filter in place and clears all state
+    /// and statistics; on error `self` is left unchanged. Needs no stack
+    /// beyond a few hundred bytes of filter design, unlike building a new
+    /// front end and moving it.
+    pub fn reconfigure(&mut self, cfg: &FrontEndConfig) -> Result<(), FrontEndError> {
+        let plan = FrontEndPlan::new(cfg)?;
+        self.apply(&plan);
+        Ok(())
+    }
+
+    /// A front end with no filters yet (it would pass samples through), for
+    /// constant context, e.g. inside a statically placed pipeline that is
+    /// configured later with [`Self::reconfigure`].
+    pub(crate) const fn unconfigured() -> Self {
+        let cfg = FrontEndConfig {
+            sample_rate_hz: 1.0,
+            band_hz: [0.0, 0.0],
+            poles: 0,
+            rectifier: Rectifier::Square,
+            decimation: 1,
+            counts_to_g: 1.0,
+            adc_full_scale: i16::MAX,
+            velocity: VelocityConfig {
+                enabled: false,
+                band_hz: [0.0, 0.0],
+                group: MachineGroup::Medium,
+                support: Support::Rigid,
+                settle_s: 0.0,
+            },
         };
-        let centre = f64::from(bandpass_centre_hz(lo, hi, fs));
-        let delay = crate::num::f64_to_f32(sos.group_delay(centre, f64::from(fs)))
-            + dec.delay_input_samples();
-        Ok(FrontEnd {
-            cfg: *cfg,
-            bp: BiquadCascade::new(sos),
-            dec,
+        FrontEnd {
+            cfg,
+            bp: BiquadCascade::new(SosCascade::EMPTY),
+            dec: Decimator::pass_through(),
             acc: OverallAcc::new(),
-            vel,
-            clip_g: f32::from(cfg.adc_full_scale) * cfg.counts_to_g,
-            delay,
-        })
+            vel: VelocityMeter::unconfigured(),
+            clip_g: f32::INFINITY,
+            delay: 0.0,
+        }
+    }
+
+    /// Designs the planned filters in place and clears the state.
+    pub(crate) fn apply(&mut self, plan: &FrontEndPlan) {
+        self.cfg = plan.cfg;
+        self.bp = BiquadCascade::new(plan.sos);
+        self.dec.apply(&plan.dec);
+        self.acc = OverallAcc::new();
+        if let Some(v) = &plan.vel {
+            self.vel.apply(v);
+        }
+        self.clip_g = plan.clip_g;
+        self.delay = plan.delay;
     }
 
     /// The configuration in use.
@@ -215,15 +307,22 @@ impl FrontEnd {
     }
 
     fn run(&mut self, buf: &mut [f32], out: &mut impl FnMut(f32)) {
-        if let Some(v) = self.vel.as_mut() {
-            v.process(buf);
+        if self.cfg.velocity.enabled {
+            self.vel.process(buf);
         }
-        // Rectifier fused into the band-pass loop (one pass over the chunk).
-        match self.cfg.rectifier {
-            Rectifier::Abs => self.bp.process_map(buf, f32::abs),
-            Rectifier::Square => self.bp.process_map(buf, |v| v * v),
+        // Band-pass and rectifier write straight into the decimator's first
+        // stage (one piece: the chunk is the decimator's block).
+        let (bp, dec) = (&mut self.bp, &mut self.dec);
+        for c in buf.chunks(crate::decimate::BLOCK) {
+            match self.cfg.rectifier {
+                Rectifier::Abs => {
+                    dec.process_with(c.len(), |h| bp.process_map_into(c, h, f32::abs), &mut *out)
+                }
+                Rectifier::Square => {
+                    dec.process_with(c.len(), |h| bp.process_map_into(c, h, |v| v * v), &mut *out)
+                }
+            };
         }
-        self.dec.process(buf, out);
     }
 
     /// Rate of the envelope output (Hz).
@@ -242,8 +341,8 @@ impl FrontEnd {
     /// Snapshot of the overall indicators, velocity RMS and zone.
     pub fn overall(&self) -> Overall {
         let mut o = self.acc.snapshot();
-        if let Some(v) = self.vel.as_ref() {
-            let (rms, n) = v.rms_mm_s();
+        if self.cfg.velocity.enabled {
+            let (rms, n) = self.vel.rms_mm_s();
             o.velocity_rms_mm_s = rms;
             o.velocity_count = n;
             if n > 0 {
@@ -262,15 +361,36 @@ impl FrontEnd {
         self.bp.reset();
         self.dec.reset();
         self.acc.reset();
-        if let Some(v) = self.vel.as_mut() {
-            v.reset();
-        }
+        self.vel.reset();
     }
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+    extern crate std;
+    use std::format;
+
+    #[test]
+    fn a_reconfigured_front_end_equals_a_new_one() {
+        let mut fe = FrontEnd::new(&FrontEndConfig::default()).unwrap();
+        let x: [i16; 1000] = core::array::from_fn(|i| i16::try_from(i % 97).unwrap() * 50);
+        fe.push_i16(&x, |_| {});
+        let mut cfg = FrontEndConfig {
+            decimation: 25,
+            band_hz: [3000.0, 9000.0],
+            ..FrontEndConfig::default()
+        };
+        fe.reconfigure(&cfg).unwrap();
+        assert_eq!(
+            format!("{fe:?}"),
+            format!("{:?}", FrontEnd::new(&cfg).unwrap())
+        );
+        let before = format!("{fe:?}");
+        cfg.decimation = 11;
+        assert!(fe.reconfigure(&cfg).is_err());
+        assert_eq!(format!("{fe:?}"), before);
+    }
 
     #[test]
     fn rejects_bad_config() {

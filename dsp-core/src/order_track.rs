@@ -232,9 +232,19 @@ pub struct OrderTracker<const RING: usize> {
     flags: OrderFlags,
 }
 
-impl<const RING: usize> OrderTracker<RING> {
-    /// Validates the configuration (including that `RING` fits `min_rpm`).
-    pub fn new(cfg: &OrderTrackConfig) -> Result<Self, OrderTrackError> {
+/// A validated tracker configuration (small), applied in place by
+/// [`OrderTracker::reconfigure`].
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct OrderTrackPlan {
+    s: u16,
+    decim: f64,
+    delay: f64,
+    interp: Interpolation,
+}
+
+impl OrderTrackPlan {
+    /// Validates `cfg` for a ring of `ring` samples.
+    pub(crate) fn new(cfg: &OrderTrackConfig, ring: usize) -> Result<Self, OrderTrackError> {
         let s = cfg.samples_per_rev;
         if !(8..=4096).contains(&s) || !s.is_power_of_two() {
             return Err(OrderTrackError::BadSamplesPerRev);
@@ -247,17 +257,46 @@ impl<const RING: usize> OrderTracker<RING> {
             return Err(OrderTrackError::BadNumber);
         }
         let needed = ring_needed(cfg.input_rate_hz, cfg.min_rpm);
-        if RING < needed {
+        if ring < needed {
             return Err(OrderTrackError::RingTooSmall {
                 needed: u32::try_from(needed).unwrap_or(u32::MAX),
             });
         }
         Ok(Self {
             s,
-            inv_s: 1.0 / f32::from(s),
             decim: f64::from(cfg.decimation),
             delay: f64::from(cfg.delay_input_samples),
             interp: cfg.interpolation,
+        })
+    }
+}
+
+impl<const RING: usize> OrderTracker<RING> {
+    /// Validates the configuration (including that `RING` fits `min_rpm`).
+    pub fn new(cfg: &OrderTrackConfig) -> Result<Self, OrderTrackError> {
+        let plan = OrderTrackPlan::new(cfg, RING)?;
+        let mut t = Self::unconfigured();
+        t.apply(&plan);
+        Ok(t)
+    }
+
+    /// Validates `cfg` and restarts this tracker with it in place (the ring
+    /// is cleared, not rebuilt); on error `self` is left unchanged.
+    pub fn reconfigure(&mut self, cfg: &OrderTrackConfig) -> Result<(), OrderTrackError> {
+        let plan = OrderTrackPlan::new(cfg, RING)?;
+        self.apply(&plan);
+        Ok(())
+    }
+
+    /// A tracker for constant context, configured later with
+    /// [`Self::reconfigure`].
+    pub(crate) const fn unconfigured() -> Self {
+        Self {
+            s: 64,
+            inv_s: 1.0 / 64.0,
+            decim: 1.0,
+            delay: 0.0,
+            interp: Interpolation::CatmullRom,
             ring: [0.0; RING],
             pushed: 0,
             marks: [0.0; 4],
@@ -265,8 +304,25 @@ impl<const RING: usize> OrderTracker<RING> {
             jobs: heapless::Deque::new(),
             revs_emitted: 0,
             revs_skipped: 0,
-            flags: OrderFlags::default(),
-        })
+            flags: OrderFlags(0),
+        }
+    }
+
+    /// Starts over with a validated configuration, in place.
+    pub(crate) fn apply(&mut self, plan: &OrderTrackPlan) {
+        self.s = plan.s;
+        self.inv_s = 1.0 / f32::from(plan.s);
+        self.decim = plan.decim;
+        self.delay = plan.delay;
+        self.interp = plan.interp;
+        self.ring.fill(0.0);
+        self.pushed = 0;
+        self.marks = [0.0; 4];
+        self.n_marks = 0;
+        self.jobs.clear();
+        self.revs_emitted = 0;
+        self.revs_skipped = 0;
+        self.flags = OrderFlags::default();
     }
 
     /// Whole revolutions emitted so far.
@@ -497,6 +553,38 @@ fn end_slope(p_near: f64, p_far: f64) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn a_reconfigured_tracker_equals_a_new_one() {
+        extern crate std;
+        use std::format;
+        let mut cfg = OrderTrackConfig {
+            samples_per_rev: 32,
+            decimation: 8,
+            input_rate_hz: 6400.0,
+            min_rpm: 1200.0,
+            ..OrderTrackConfig::default()
+        };
+        let mut t = OrderTracker::<2048>::new(&cfg).unwrap();
+        for j in 0..3000u32 {
+            if j % 256 == 0 {
+                let mark = crate::tach::RevMark {
+                    time_samples: f64::from(j) * 8.0,
+                    index: j / 256,
+                    segment_start: j == 0,
+                    bridged: false,
+                };
+                t.push_mark(mark, |_| {});
+            }
+            t.push_sample(f32::from(u16::try_from(j % 7).unwrap()), |_| {});
+        }
+        cfg.samples_per_rev = 64;
+        t.reconfigure(&cfg).unwrap();
+        assert_eq!(
+            format!("{t:?}"),
+            format!("{:?}", OrderTracker::<2048>::new(&cfg).unwrap())
+        );
+    }
 
     #[test]
     fn hermite_ends() {

@@ -71,13 +71,24 @@ pub struct OverallAcc {
 
 impl OverallAcc {
     /// Empty accumulator.
-    pub fn new() -> Self {
-        Self::default()
+    pub const fn new() -> Self {
+        Self {
+            shift: None,
+            count: 0,
+            pending: 0,
+            p: [0.0; 4],
+            t: [0.0; 4],
+            min: 0.0,
+            max: 0.0,
+            clipped: 0,
+            non_finite: 0,
+            last: 0.0,
+        }
     }
 
     /// Clears everything.
     pub fn reset(&mut self) {
-        *self = Self::default();
+        *self = Self::new();
     }
 
     /// Counts one clipped sample.

@@ -32,13 +32,15 @@ use heapless::Vec;
 
 use crate::config::{ConfigError, PointConfig, SpeedInput, MAX_BEARINGS, MAX_MESHES};
 use crate::defects::DefectSearch;
-use crate::frontend::{FrontEnd, FrontEndConfig};
+use crate::frontend::{FrontEnd, FrontEndConfig, FrontEndPlan};
 use crate::kinematics::{BearingOrders, ShaftRatio};
 use crate::num::usize_to_f32;
-use crate::order_track::{decimation_for, OrderFlags, OrderTrackConfig, OrderTracker};
+use crate::order_track::{
+    decimation_for, OrderFlags, OrderTrackConfig, OrderTrackPlan, OrderTracker,
+};
 use crate::report::{BearingReport, LineReport, QualityFlags, Report};
 use crate::spectrum::{OrderSpectrum, SpectrumConfig, SpectrumView};
-use crate::tach::{SpeedSource, TachConfig, TachFlags, TachTracker};
+use crate::tach::{SpeedSource, TachConfig, TachFlags, TachPlan, TachTracker};
 use crate::velocity::VelocityConfig;
 
 /// Samples per ADC block on the node (one DMA half-buffer). The host
@@ -51,8 +53,14 @@ pub const ADC_BLOCK: usize = 256;
 /// [`crate::order_track::ring_needed`].
 pub const NODE_RING: usize = 2048;
 
-/// The node's pipeline: 4096-point spectrum, 2048 bins.
-pub type NodePipeline = Pipeline<4096, 2048, NODE_RING>;
+/// Spectrum bins the node keeps: those up to `S/4` orders (`N/4 + 1` for
+/// `N = 4096`), all that the defect search and the gear-mesh lines read (see
+/// the module docs for why the band above is not searched). The host plots
+/// the same range.
+pub const NODE_BINS: usize = 4096 / 4 + 1;
+
+/// The node's pipeline: 4096-point spectrum, [`NODE_BINS`] bins kept.
+pub type NodePipeline = Pipeline<4096, NODE_BINS, NODE_RING>;
 
 /// RMS below this many ADC counts means a flat (disconnected) channel.
 const FLAT_RMS_COUNTS: f32 = 1.0;
@@ -98,7 +106,9 @@ impl From<ConfigError> for PipelineError {
 }
 
 /// The streaming diagnosis of one measuring point, with an `N`-point
-/// spectrum (`H = N / 2` bins) and a `RING`-sample resampler ring.
+/// spectrum of which the lowest `H` bins are averaged (`N/4 + 1 <= H <= N/2`:
+/// at least the searched range, checked at compile time) and a `RING`-sample
+/// resampler ring.
 ///
 /// ```
 /// use dsp_core::config::{PointConfig, SpeedInput};
@@ -117,24 +127,112 @@ impl From<ConfigError> for PipelineError {
 /// assert!(!report.analysed());
 /// ```
 pub struct Pipeline<const N: usize, const H: usize, const RING: usize> {
-    point: PointConfig,
+    /// The validated point and what follows from it; `None` until configured.
+    setup: Option<Setup>,
     fe: FrontEnd,
     tach: TachTracker,
     ot: OrderTracker<RING>,
     spectrum: OrderSpectrum<N, H>,
+    samples: u64,
+    raised: QualityFlags,
+}
+
+/// The small, per-point part of a configured pipeline.
+struct Setup {
+    point: PointConfig,
     search: DefectSearch,
     orders: Vec<BearingOrders, MAX_BEARINGS>,
     /// Gear-mesh orders of the tach shaft, in point order.
     mesh_orders: Vec<f32, MAX_MESHES>,
-    samples: u64,
     segments_wanted: u32,
     max_search_order: f32,
-    raised: QualityFlags,
+}
+
+/// Everything [`Pipeline::reconfigure`] validates before it changes anything.
+struct Plan {
+    setup: Setup,
+    fe: FrontEndPlan,
+    tach: TachPlan,
+    ot: OrderTrackPlan,
+    spectrum: SpectrumConfig,
 }
 
 impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
     /// Validates the point and sets every stage up.
+    ///
+    /// Returns the pipeline by value (tens of kilobytes at the node's sizes):
+    /// on a small stack, place an [`unconfigured`](Self::unconfigured)
+    /// pipeline statically instead and [`reconfigure`](Self::reconfigure) it.
     pub fn new(point: &PointConfig) -> Result<Self, PipelineError> {
+        let plan = Self::plan(point)?;
+        let mut p = Self::unconfigured();
+        p.apply(plan);
+        Ok(p)
+    }
+
+    /// A pipeline without a measuring point, for constant context (e.g. a
+    /// `static` on the node, so that no copy of it is ever built on the
+    /// stack). Until [`reconfigure`](Self::reconfigure) succeeds it ignores
+    /// input, is never [`complete`](Self::complete), and
+    /// [`finish`](Self::finish) reports nothing analysable.
+    pub const fn unconfigured() -> Self {
+        const {
+            assert!(4 * H > N, "H must hold the searched bins (N/4 + 1)");
+        }
+        Self {
+            setup: None,
+            fe: FrontEnd::unconfigured(),
+            tach: TachTracker::unconfigured(),
+            ot: OrderTracker::unconfigured(),
+            spectrum: OrderSpectrum::unconfigured(),
+            samples: 0,
+            raised: QualityFlags::empty(),
+        }
+    }
+
+    /// Validates `point` and sets every stage up in place for a new
+    /// measurement (filters designed, buffers cleared, counters zeroed),
+    /// using a few kilobytes of stack at most. On error nothing changes: a
+    /// configured pipeline keeps its point and state.
+    ///
+    /// ```
+    /// use dsp_core::config::{PointConfig, SpeedInput};
+    /// use dsp_core::pipeline::Pipeline;
+    /// // e.g. `static` on the node; here on the heap.
+    /// let mut p = Box::new(Pipeline::<1024, 512, 2048>::unconfigured());
+    /// let mut point = PointConfig::default();
+    /// point.speed = SpeedInput::Constant { rpm: 1500.0 };
+    /// point.revolutions = 64;
+    /// p.reconfigure(&point).unwrap();
+    /// while !p.complete() {
+    ///     p.push_i16(&[0i16; 256]);
+    /// }
+    /// assert_eq!(p.finish().segments, 4);
+    /// point.samples_per_rev = 3; // refused: not a power of two
+    /// assert!(p.reconfigure(&point).is_err());
+    /// assert!(p.point().is_some_and(|q| q.samples_per_rev == 64));
+    /// ```
+    // Not inlined: once per measurement, and its temporaries then never add
+    // to the frame of the caller's per-block loop (stack high-water).
+    #[inline(never)]
+    pub fn reconfigure(&mut self, point: &PointConfig) -> Result<(), PipelineError> {
+        let plan = Self::plan(point)?;
+        self.apply(plan);
+        Ok(())
+    }
+
+    fn apply(&mut self, plan: Plan) {
+        self.fe.apply(&plan.fe);
+        self.tach.apply(plan.tach);
+        self.ot.apply(&plan.ot);
+        self.spectrum.apply(plan.spectrum);
+        self.setup = Some(plan.setup);
+        self.samples = 0;
+        self.raised = QualityFlags::empty();
+    }
+
+    /// Validates the point and plans every stage (small values only).
+    fn plan(point: &PointConfig) -> Result<Plan, PipelineError> {
         point.validate()?;
         let s = point.samples_per_rev;
         let s_f = f32::from(s);
@@ -150,7 +248,7 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
             support: point.support,
             ..VelocityConfig::default()
         };
-        let fe = FrontEnd::new(&FrontEndConfig {
+        let fe = FrontEndPlan::new(&FrontEndConfig {
             sample_rate_hz: point.sample_rate_hz,
             band_hz: point.band(),
             poles: point.poles,
@@ -189,24 +287,27 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
                 sample_rate_hz: point.sample_rate_hz,
             },
         };
-        let tach = TachTracker::new(&source).map_err(PipelineError::Tach)?;
+        let tach = TachPlan::new(&source).map_err(PipelineError::Tach)?;
 
-        let ot = OrderTracker::new(&OrderTrackConfig {
-            samples_per_rev: s,
-            decimation,
-            input_rate_hz: fe.output_rate_hz(),
-            delay_input_samples: fe.delay_input_samples(),
-            min_rpm,
-            ..OrderTrackConfig::default()
-        })
+        let ot = OrderTrackPlan::new(
+            &OrderTrackConfig {
+                samples_per_rev: s,
+                decimation,
+                input_rate_hz: fe.output_rate_hz(),
+                delay_input_samples: fe.delay_input_samples(),
+                min_rpm,
+                ..OrderTrackConfig::default()
+            },
+            RING,
+        )
         .map_err(PipelineError::OrderTrack)?;
 
-        let spectrum = OrderSpectrum::new(SpectrumConfig {
+        let spectrum = SpectrumConfig {
             samples_per_rev: u32::from(s),
             window: point.window,
             ..SpectrumConfig::default()
-        })
-        .map_err(PipelineError::Spectrum)?;
+        };
+        OrderSpectrum::<N, H>::check(&spectrum).map_err(PipelineError::Spectrum)?;
 
         let search = DefectSearch::new(point.search).map_err(|_| ConfigError::Search)?;
 
@@ -240,25 +341,25 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
             let _ = mesh_orders.push(f32::from(m.teeth) * ratio);
         }
 
-        Ok(Pipeline {
-            point: point.clone(),
+        Ok(Plan {
+            setup: Setup {
+                point: point.clone(),
+                search,
+                orders,
+                mesh_orders,
+                segments_wanted,
+                max_search_order,
+            },
             fe,
             tach,
             ot,
             spectrum,
-            search,
-            orders,
-            mesh_orders,
-            samples: 0,
-            segments_wanted,
-            max_search_order,
-            raised: QualityFlags::empty(),
         })
     }
 
-    /// The validated measuring point.
-    pub fn point(&self) -> &PointConfig {
-        &self.point
+    /// The validated measuring point; `None` until configured.
+    pub fn point(&self) -> Option<&PointConfig> {
+        self.setup.as_ref().map(|s| &s.point)
     }
 
     /// Decimation factor chosen for the envelope.
@@ -266,16 +367,21 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
         self.fe.config().decimation
     }
 
-    /// Spectrum segments still missing; 0 once [`complete`](Self::complete).
+    /// Spectrum segments still missing; 0 once [`complete`](Self::complete)
+    /// (and when unconfigured).
     pub fn segments_missing(&self) -> u32 {
-        self.segments_wanted
+        self.segments_wanted()
             .saturating_sub(self.spectrum.segments())
     }
 
+    fn segments_wanted(&self) -> u32 {
+        self.setup.as_ref().map_or(0, |s| s.segments_wanted)
+    }
+
     /// All configured revolutions are in the spectrum: the firmware may stop
-    /// acquiring and call [`finish`](Self::finish).
+    /// acquiring and call [`finish`](Self::finish). Never true unconfigured.
     pub fn complete(&self) -> bool {
-        self.segments_missing() == 0
+        self.setup.is_some() && self.segments_missing() == 0
     }
 
     /// Input samples pushed so far.
@@ -292,49 +398,50 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
     /// Pushes one tach edge (capture-timer ticks, see [`crate::tach`]).
     /// Push the edges captured during a block before the block itself.
     pub fn push_edge(&mut self, tick: u32) {
+        let wanted = self.segments_wanted();
+        if self.setup.is_none() {
+            return;
+        }
         let Self {
-            tach,
-            ot,
-            spectrum,
-            segments_wanted,
-            ..
+            tach, ot, spectrum, ..
         } = self;
         tach.push_edge(tick, |m| {
-            ot.push_mark(m, |a| feed(spectrum, *segments_wanted, a));
+            ot.push_mark(m, |a| feed(spectrum, wanted, a));
         });
     }
 
     /// Pushes a block of ADC counts (any length).
     pub fn push_i16(&mut self, block: &[i16]) {
+        let wanted = self.segments_wanted();
+        if self.setup.is_none() {
+            return;
+        }
         let Self {
-            fe,
-            ot,
-            spectrum,
-            segments_wanted,
-            ..
+            fe, ot, spectrum, ..
         } = self;
         fe.push_i16(block, |e| {
-            ot.push_sample(e, |a| feed(spectrum, *segments_wanted, a));
+            ot.push_sample(e, |a| feed(spectrum, wanted, a));
         });
         self.advance(block.len());
     }
 
     /// Pushes a block of samples in g (any length).
     pub fn push_f32(&mut self, block: &[f32]) {
+        let wanted = self.segments_wanted();
+        if self.setup.is_none() {
+            return;
+        }
         let Self {
-            fe,
-            ot,
-            spectrum,
-            segments_wanted,
-            ..
+            fe, ot, spectrum, ..
         } = self;
         fe.push_f32(block, |e| {
-            ot.push_sample(e, |a| feed(spectrum, *segments_wanted, a));
+            ot.push_sample(e, |a| feed(spectrum, wanted, a));
         });
         self.advance(block.len());
     }
 
     fn advance(&mut self, n: usize) {
+        let wanted = self.segments_wanted();
         self.samples = self
             .samples
             .saturating_add(u64::try_from(n).unwrap_or(u64::MAX));
@@ -342,17 +449,17 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
             tach,
             ot,
             spectrum,
-            segments_wanted,
             samples,
             ..
         } = self;
         tach.advance_to(*samples, |m| {
-            ot.push_mark(m, |a| feed(spectrum, *segments_wanted, a));
+            ot.push_mark(m, |a| feed(spectrum, wanted, a));
         });
     }
 
     /// The averaged envelope order spectrum so far (peak amplitude per bin,
-    /// in g for `abs` rectification, g² for `square`).
+    /// in g for `abs` rectification, g² for `square`): the lowest `H` bins,
+    /// at least up to the search limit `S/4` orders.
     pub fn spectrum(&self) -> &[f32] {
         self.spectrum.amplitudes()
     }
@@ -368,20 +475,20 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
     }
 
     /// Ends the record and diagnoses it. Afterwards the pipeline holds the
-    /// finished state (spectrum, speed series) for inspection; build a new
-    /// one for the next measurement.
+    /// finished state (spectrum, speed series) for inspection; reconfigure
+    /// it (or build a new one) for the next measurement. Unconfigured, the
+    /// report is flagged incomplete with too few revolutions.
+    // Not inlined, for the same reason as `reconfigure`.
+    #[inline(never)]
     pub fn finish(&mut self) -> Report {
+        let wanted = self.segments_wanted();
         let Self {
-            tach,
-            ot,
-            spectrum,
-            segments_wanted,
-            ..
+            tach, ot, spectrum, ..
         } = self;
         let speed = tach.finish(|m| {
-            ot.push_mark(m, |a| feed(spectrum, *segments_wanted, a));
+            ot.push_mark(m, |a| feed(spectrum, wanted, a));
         });
-        ot.finish(|a| feed(spectrum, *segments_wanted, a));
+        ot.finish(|a| feed(spectrum, wanted, a));
 
         let overall = self.fe.overall();
         let mut flags = self.raised;
@@ -402,16 +509,17 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
         if overall.clipped > 0 {
             flags.insert(QualityFlags::CLIPPING);
         }
+        let counts_to_g = self.fe.config().counts_to_g;
         let count = usize_to_f32(usize::try_from(overall.count).unwrap_or(usize::MAX));
         let clipped = usize_to_f32(usize::try_from(overall.clipped).unwrap_or(usize::MAX));
         if overall.count == 0
-            || overall.rms_ac < FLAT_RMS_COUNTS * self.point.counts_to_g
+            || overall.rms_ac < FLAT_RMS_COUNTS * counts_to_g
             || clipped > SATURATED_SHARE * count
         {
             flags.insert(QualityFlags::SENSOR_FAULT);
         }
         let segments = self.spectrum.segments();
-        if segments < self.segments_wanted {
+        if segments < wanted || self.setup.is_none() {
             flags.insert(QualityFlags::INCOMPLETE);
         }
         if segments == 0 {
@@ -421,68 +529,76 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
         let analysable = !flags.intersects(QualityFlags::NOT_ANALYSABLE);
         let amps = self.spectrum.amplitudes();
         let opb = self.spectrum.orders_per_bin();
+        let max_search_order = self.setup.as_ref().map_or(0.0, |s| s.max_search_order);
+        let window = self.spectrum.config().window;
         // Bins strictly below the search limit (see the module docs).
-        let search_bins = crate::num::f32_to_usize_sat(self.max_search_order / opb)
+        let search_bins = crate::num::f32_to_usize_sat(max_search_order / opb)
             .saturating_add(1)
             .min(amps.len());
         let view = amps
             .get(..search_bins)
-            .and_then(|a| SpectrumView::new(a, opb, self.point.window).ok());
+            .and_then(|a| SpectrumView::new(a, opb, window).ok());
 
         let mut bearings = Vec::new();
-        for (b, orders) in self.point.bearings.iter().zip(self.orders.iter()) {
-            let diagnosis = match (&view, analysable) {
-                (Some(v), true) => self.search.search(v, orders).ok(),
-                _ => None,
-            };
-            // Same capacity as the point's bearing list.
-            let _ = bearings.push(BearingReport {
-                name: b.name.clone(),
-                orders: *orders,
-                diagnosis,
-            });
-        }
-        if let (Some(v), true) = (&view, analysable) {
-            // Peaks explained by a stronger family of another bearing on
-            // this point do not count for the weaker one.
-            // Filled by push, not collect: heapless' collect panics on overflow
-            // (both lists hold at most MAX_BEARINGS).
-            let mut diagnoses: Vec<&mut Option<crate::defects::BearingDiagnosis>, MAX_BEARINGS> =
-                Vec::new();
-            for b in bearings.iter_mut() {
-                let _ = diagnoses.push(&mut b.diagnosis);
-            }
-            self.search
-                .attribute_bearings(v, &self.orders, &mut diagnoses);
-        }
-
         let mut lines = Vec::new();
-        for (m, &order) in self.point.meshes.iter().zip(self.mesh_orders.iter()) {
-            let measurement = match (&view, analysable) {
-                (Some(v), true) => self.search.measure_line(v, order),
-                _ => crate::defects::LineMeasurement::not_searched(order),
-            };
-            // Same capacity as the point's mesh list.
-            let _ = lines.push(LineReport {
-                name: m.name.clone(),
-                measurement,
-            });
+        if let Some(setup) = &self.setup {
+            let point = &setup.point;
+            for (b, orders) in point.bearings.iter().zip(setup.orders.iter()) {
+                let diagnosis = match (&view, analysable) {
+                    (Some(v), true) => setup.search.search(v, orders).ok(),
+                    _ => None,
+                };
+                // Same capacity as the point's bearing list.
+                let _ = bearings.push(BearingReport {
+                    name: b.name.clone(),
+                    orders: *orders,
+                    diagnosis,
+                });
+            }
+            if let (Some(v), true) = (&view, analysable) {
+                // Peaks explained by a stronger family of another bearing on
+                // this point do not count for the weaker one.
+                // Filled by push, not collect: heapless' collect panics on
+                // overflow (both lists hold at most MAX_BEARINGS).
+                let mut diagnoses: Vec<
+                    &mut Option<crate::defects::BearingDiagnosis>,
+                    MAX_BEARINGS,
+                > = Vec::new();
+                for b in bearings.iter_mut() {
+                    let _ = diagnoses.push(&mut b.diagnosis);
+                }
+                setup
+                    .search
+                    .attribute_bearings(v, &setup.orders, &mut diagnoses);
+            }
+            for (m, &order) in point.meshes.iter().zip(setup.mesh_orders.iter()) {
+                let measurement = match (&view, analysable) {
+                    (Some(v), true) => setup.search.measure_line(v, order),
+                    _ => crate::defects::LineMeasurement::not_searched(order),
+                };
+                // Same capacity as the point's mesh list.
+                let _ = lines.push(LineReport {
+                    name: m.name.clone(),
+                    measurement,
+                });
+            }
         }
 
-        let revs_per_segment = N / usize::from(self.point.samples_per_rev).max(1);
+        let samples_per_rev = self.setup.as_ref().map_or(0, |s| s.point.samples_per_rev);
+        let revs_per_segment = N / usize::from(samples_per_rev).max(1);
         Report {
             flags,
             speed,
             overall,
             band_hz: self.fe.config().band_hz,
-            rectifier: self.point.rectifier,
+            rectifier: self.fe.config().rectifier,
             decimation: self.decimation(),
-            samples_per_rev: self.point.samples_per_rev,
+            samples_per_rev,
             segments,
             revolutions: segments
                 .saturating_mul(u32::try_from(revs_per_segment).unwrap_or(u32::MAX)),
             orders_per_bin: opb,
-            max_search_order: self.max_search_order,
+            max_search_order,
             bearings,
             lines,
         }
@@ -574,6 +690,63 @@ mod tests {
         assert!(near.prominence_db > 20.0, "{near:?}");
         // Order 40 lies beyond the search range (S/4 = 16 orders).
         assert!(!r.lines[1].measurement.searched);
+    }
+
+    #[test]
+    fn a_reconfigured_pipeline_reports_as_a_new_one() {
+        extern crate std;
+        use std::boxed::Box;
+        let tone = |p: &mut Pipeline<1024, 512, 2048>, f_hz: f64| {
+            let mut n = 0u64;
+            let mut block = [0f32; 256];
+            while !p.complete() {
+                for x in block.iter_mut() {
+                    #[allow(clippy::cast_precision_loss)]
+                    let t = n as f64 / 51_200.0;
+                    let env = 1.0 + 0.5 * libm::cos(2.0 * core::f64::consts::PI * f_hz * t);
+                    *x = crate::num::f64_to_f32(
+                        env * libm::sin(2.0 * core::f64::consts::PI * 7000.0 * t),
+                    );
+                    n += 1;
+                }
+                p.push_f32(&block);
+            }
+        };
+        let a = PointConfig {
+            speed: SpeedInput::Constant { rpm: 1500.0 },
+            revolutions: 64,
+            ..PointConfig::default()
+        };
+        let b = PointConfig {
+            speed: SpeedInput::Constant { rpm: 1200.0 },
+            revolutions: 128,
+            samples_per_rev: 32,
+            band_hz: Some([4000.0, 9000.0]),
+            ..PointConfig::default()
+        };
+        let mut reused = Box::new(Pipeline::<1024, 512, 2048>::unconfigured());
+        // Unconfigured: input ignored, never complete, nothing analysable.
+        reused.push_f32(&[1.0; 256]);
+        assert_eq!(reused.samples(), 0);
+        assert!(!reused.complete());
+        let r0 = reused.finish();
+        assert!(r0.flags.contains(QualityFlags::INCOMPLETE) && !r0.analysed());
+        reused.reconfigure(&a).unwrap();
+        tone(&mut reused, 175.0);
+        let _ = reused.finish();
+        reused.reconfigure(&b).unwrap();
+        tone(&mut reused, 100.0);
+        let r1 = reused.finish();
+        let mut fresh = Box::new(Pipeline::<1024, 512, 2048>::new(&b).unwrap());
+        tone(&mut fresh, 100.0);
+        let r2 = fresh.finish();
+        assert_eq!(r1, r2);
+        assert_eq!(r1.segments, 4);
+        let bits = |p: &Pipeline<1024, 512, 2048>| -> std::vec::Vec<u32> {
+            p.spectrum().iter().map(|v| v.to_bits()).collect()
+        };
+        assert_eq!(bits(&reused), bits(&fresh));
+        assert_eq!(reused.speed_series(), fresh.speed_series());
     }
 
     #[test]

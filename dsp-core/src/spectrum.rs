@@ -25,8 +25,13 @@
 //! line amplitudes and lowers the variance of the noise floor. The running
 //! average is kept directly in amplitude form so no third buffer is needed.
 //!
+//! The average may keep only the lowest `H <= N/2` bins (the node keeps the
+//! bins up to `S/4` orders, all that its search reads; see
+//! [`crate::pipeline::NODE_BINS`]).
+//!
 //! RAM: the segment buffer (`4·N` bytes) plus the amplitude accumulator
-//! (`4·N/2` bytes) plus a few words: 24 608 bytes (24 KiB + 32) for `N = 4096`
+//! (`4·H` bytes) plus a few words: 24 600 bytes for `N = 4096, H = 2048`,
+//! 20 500 bytes for the node's `H = 1025`
 //! (`core::mem::size_of::<OrderSpectrum4096>()` is checked in a test).
 //! The FFT runs in place in the segment buffer.
 
@@ -75,6 +80,9 @@ impl Window {
     }
 
     /// Window value at sample `n` of `len` (periodic, DFT-even form).
+    /// Always inlined: it runs once per sample of every segment, and with
+    /// two spectrum sizes in one image the compiler otherwise calls it.
+    #[inline(always)]
     pub fn value(self, n: usize, len: usize) -> f32 {
         let c = cos_turn(n, len);
         match self {
@@ -308,8 +316,9 @@ impl<'a> SpectrumView<'a> {
     }
 }
 
-/// Fixed-capacity envelope order spectrum: `N`-sample segments, `H = N/2`
-/// output bins (checked at compile time).
+/// Fixed-capacity envelope order spectrum: `N`-sample segments, the lowest
+/// `H` of the `N/2` output bins averaged (`1 <= H <= N/2`, checked at compile
+/// time; bins above `H` are computed by the FFT and dropped).
 ///
 /// ```
 /// use dsp_core::spectrum::{OrderSpectrum512, SpectrumConfig, PushOutcome};
@@ -353,13 +362,22 @@ impl<const N: usize, const H: usize> OrderSpectrum<N, H> {
     /// A new, empty spectrum. Fails if `samples_per_rev` is not in `2..=N`,
     /// or if `N` is 8192/16384 without the `large-fft` feature.
     pub fn new(config: SpectrumConfig) -> Result<Self, SpectrumError> {
-        const {
-            assert!(H * 2 == N, "H must be N / 2");
-            assert!(
-                N == 512 || N == 1024 || N == 2048 || N == 4096 || N == 8192 || N == 16384,
-                "N must be a supported FFT size (512..=4096, or 8192/16384 with large-fft)"
-            );
-        }
+        Self::check(&config)?;
+        let mut sp = Self::unconfigured();
+        sp.apply(config);
+        Ok(sp)
+    }
+
+    /// Validates `config` and starts over with it in place (buffers cleared,
+    /// not rebuilt); on error `self` is left unchanged.
+    pub fn reconfigure(&mut self, config: SpectrumConfig) -> Result<(), SpectrumError> {
+        Self::check(&config)?;
+        self.apply(config);
+        Ok(())
+    }
+
+    /// Checks `samples_per_rev` in `2..=N` and the size.
+    pub(crate) fn check(config: &SpectrumConfig) -> Result<(), SpectrumError> {
         let s =
             usize::try_from(config.samples_per_rev).map_err(|_| SpectrumError::SamplesPerRev)?;
         if !(2..=N).contains(&s) {
@@ -368,15 +386,39 @@ impl<const N: usize, const H: usize> OrderSpectrum<N, H> {
         if N > 4096 && !cfg!(feature = "large-fft") {
             return Err(SpectrumError::UnsupportedSize);
         }
-        Ok(Self {
+        Ok(())
+    }
+
+    /// An empty spectrum for constant context (default configuration),
+    /// configured later with [`Self::reconfigure`].
+    pub(crate) const fn unconfigured() -> Self {
+        const {
+            assert!(H >= 1 && H * 2 <= N, "H must be 1..=N/2");
+            assert!(
+                N == 512 || N == 1024 || N == 2048 || N == 4096 || N == 8192 || N == 16384,
+                "N must be a supported FFT size (512..=4096, or 8192/16384 with large-fft)"
+            );
+        }
+        Self {
             buf: [0.0; N],
             acc: [0.0; H],
             fill: 0,
             tainted: false,
             segments: 0,
             rejected: 0,
-            config,
-        })
+            config: SpectrumConfig {
+                samples_per_rev: 64,
+                window: Window::Hann,
+                averaging: Averaging::PowerMean,
+            },
+        }
+    }
+
+    /// Starts over with a checked configuration, in place.
+    pub(crate) fn apply(&mut self, config: SpectrumConfig) {
+        self.config = config;
+        self.buf.fill(0.0);
+        self.reset();
     }
 
     /// The configuration.
@@ -386,7 +428,7 @@ impl<const N: usize, const H: usize> OrderSpectrum<N, H> {
 
     /// Clears the average and the partly filled segment (counters too).
     pub fn reset(&mut self) {
-        self.acc = [0.0; H];
+        self.acc.fill(0.0);
         self.fill = 0;
         self.tainted = false;
         self.segments = 0;
@@ -475,7 +517,8 @@ impl<const N: usize, const H: usize> OrderSpectrum<N, H> {
         self.fill
     }
 
-    /// Averaged peak amplitudes, `H` bins; bin `k` is order `k · orders_per_bin()`.
+    /// Averaged peak amplitudes, the lowest `H` bins; bin `k` is order
+    /// `k · orders_per_bin()`.
     /// All zero before the first segment.
     pub fn amplitudes(&self) -> &[f32] {
         &self.acc
@@ -530,6 +573,27 @@ mod tests {
             core::mem::size_of::<crate::defects::BearingDiagnosis>()
         );
         assert!((24 * 1024..=24 * 1024 + 64).contains(&sz), "{sz}");
+    }
+
+    #[test]
+    fn kept_bins_equal_the_full_spectrum() {
+        // Same segments into a full (256-bin) and a truncated (65-bin)
+        // spectrum: the kept bins are the same bits.
+        let mut full = OrderSpectrum512::new(SpectrumConfig::with_samples_per_rev(16)).unwrap();
+        let mut low =
+            OrderSpectrum::<512, 65>::new(SpectrumConfig::with_samples_per_rev(16)).unwrap();
+        for n in 0..2048u32 {
+            let x = libm::sinf(n as f32 * 0.9) + 0.3 * libm::cosf(n as f32 * 0.05);
+            full.push(x);
+            low.push(x);
+        }
+        assert_eq!(low.segments(), 4);
+        assert_eq!(low.amplitudes().len(), 65);
+        assert!(low
+            .amplitudes()
+            .iter()
+            .zip(full.amplitudes())
+            .all(|(a, b)| a.to_bits() == b.to_bits()));
     }
 
     #[test]

@@ -324,9 +324,14 @@ pub struct TachTracker {
     next_virtual: u64,
 }
 
-impl TachTracker {
-    /// Validates the source and creates a tracker.
-    pub fn new(src: &SpeedSource) -> Result<Self, TachConfigError> {
+/// A validated speed source (small), applied in place by
+/// [`TachTracker::reconfigure`].
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct TachPlan(Mode);
+
+impl TachPlan {
+    /// Validates the source.
+    pub(crate) fn new(src: &SpeedSource) -> Result<Self, TachConfigError> {
         let mode = match *src {
             SpeedSource::Tach(c) => {
                 if c.tick_hz == 0 {
@@ -381,13 +386,38 @@ impl TachTracker {
                 }
             }
         };
-        Ok(Self {
-            mode,
-            flags: TachFlags::empty(),
-            ref_tick: match mode {
-                Mode::Tach(v) => (1u64 << 32) + u64::from(v.tick0),
-                Mode::Constant { .. } => 0,
+        Ok(Self(mode))
+    }
+}
+
+impl TachTracker {
+    /// Validates the source and creates a tracker.
+    pub fn new(src: &SpeedSource) -> Result<Self, TachConfigError> {
+        let plan = TachPlan::new(src)?;
+        let mut t = Self::unconfigured();
+        t.apply(plan);
+        Ok(t)
+    }
+
+    /// Validates the source and restarts this tracker with it in place
+    /// (the speed series is cleared, not rebuilt); on error `self` is left
+    /// unchanged.
+    pub fn reconfigure(&mut self, src: &SpeedSource) -> Result<(), TachConfigError> {
+        let plan = TachPlan::new(src)?;
+        self.apply(plan);
+        Ok(())
+    }
+
+    /// A tracker for constant context (a placeholder constant speed),
+    /// configured later with [`Self::reconfigure`].
+    pub(crate) const fn unconfigured() -> Self {
+        Self {
+            mode: Mode::Constant {
+                period: 1.0,
+                rpm: 1.0,
             },
+            flags: TachFlags::empty(),
+            ref_tick: 0,
             now: 0.0,
             edges_seen: 0,
             booting: true,
@@ -413,7 +443,45 @@ impl TachTracker {
             max_rpm: 0.0,
             series: heapless::Vec::new(),
             next_virtual: 0,
-        })
+        }
+    }
+
+    /// Starts over with a validated source: every field as in
+    /// [`Self::unconfigured`] (the series cleared in place) but the mode and
+    /// the tick reference. A test checks that a reused tracker equals a new one.
+    pub(crate) fn apply(&mut self, plan: TachPlan) {
+        let mode = plan.0;
+        self.mode = mode;
+        self.flags = TachFlags::empty();
+        self.ref_tick = match mode {
+            Mode::Tach(v) => (1u64 << 32) + u64::from(v.tick0),
+            Mode::Constant { .. } => 0,
+        };
+        self.now = 0.0;
+        self.edges_seen = 0;
+        self.booting = true;
+        self.boot = [0.0; BOOT];
+        self.n_boot = 0;
+        self.accepted = None;
+        self.pending = None;
+        self.intervals = [0.0; AVG_CAP];
+        self.n_intervals = 0;
+        self.interval_pos = 0;
+        self.pulses_in_segment = 0;
+        self.new_segment = true;
+        self.rev_dirty = false;
+        self.stop_flagged_at = None;
+        self.last_mark = None;
+        self.mark_index = 0;
+        self.revs = 0;
+        self.good_revs = 0;
+        self.missing = 0;
+        self.extra = 0;
+        self.sum_rpm = 0.0;
+        self.min_rpm = f32::INFINITY;
+        self.max_rpm = 0.0;
+        self.series.clear();
+        self.next_virtual = 0;
     }
 
     /// Flags raised so far.
@@ -955,5 +1023,40 @@ impl EdgeDetector {
             }
             self.prev = Some(x);
         }
+    }
+}
+
+#[cfg(test)]
+mod reconfigure_tests {
+    use super::*;
+    extern crate std;
+    use std::format;
+
+    #[test]
+    fn a_reconfigured_tracker_equals_a_new_one() {
+        // Every field, compared through Debug (series included).
+        let mut cfg = TachConfig {
+            min_good_revs: 3,
+            ..TachConfig::default()
+        };
+        let mut t = TachTracker::new(&SpeedSource::Tach(cfg)).unwrap();
+        for k in 0..40u32 {
+            t.push_edge(k * 40_000 + (k % 3) * 900, |_| {});
+        }
+        t.advance_to(2_000_000, |_| {});
+        let _ = t.finish(|_| {});
+        cfg.tick_at_sample0 = 17;
+        let src = SpeedSource::Tach(cfg);
+        t.reconfigure(&src).unwrap();
+        assert_eq!(
+            format!("{t:?}"),
+            format!("{:?}", TachTracker::new(&src).unwrap())
+        );
+        // A refused source changes nothing.
+        let before = format!("{t:?}");
+        let mut bad = cfg;
+        bad.tick_hz = 0;
+        assert!(t.reconfigure(&SpeedSource::Tach(bad)).is_err());
+        assert_eq!(format!("{t:?}"), before);
     }
 }

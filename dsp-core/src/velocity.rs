@@ -13,8 +13,9 @@
 //! Samples during the settling time are not counted in the RMS.
 
 use crate::biquad::BiquadCascade;
-use crate::decimate::{stage_factors, DecimateError, Decimator};
-use crate::design::{butter_bandpass, DesignError};
+use crate::decimate::{stage_factors, DecimateError, Decimator, DecimatorPlan, BLOCK};
+use crate::design::{butter_bandpass, DesignError, SosCascade};
+use crate::overall::FLUSH_EVERY;
 
 /// Standard gravity in mm/s^2 per g (CGPM 1901 conventional value 9.80665 m/s^2).
 pub const G_MM_S2: f32 = 9806.65;
@@ -166,17 +167,30 @@ pub struct VelocityMeter {
     settle: u32,
     seen: u32,
     sumsq: f64,
+    /// Squares not yet added to `sumsq`, and how many.
+    part: f32,
+    pending: u32,
     count: u32,
 }
 
-impl VelocityMeter {
-    /// Builds the meter for input rate `fs_hz` (acceleration in g).
-    pub fn new(fs_hz: f32, cfg: &VelocityConfig) -> Result<Self, VelocityError> {
+/// A validated velocity path (small), applied in place by
+/// [`VelocityMeter::apply`].
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct VelocityPlan {
+    dec: DecimatorPlan,
+    sos: SosCascade,
+    rate_hz: f32,
+    settle: u32,
+}
+
+impl VelocityPlan {
+    /// Validates the options and designs the filters for input rate `fs_hz`.
+    pub(crate) fn new(fs_hz: f32, cfg: &VelocityConfig) -> Result<Self, VelocityError> {
         if !(cfg.settle_s.is_finite() && cfg.settle_s >= 0.0) {
             return Err(VelocityError::Settle);
         }
         let d = velocity_decimation(fs_hz);
-        let dec = Decimator::new(d).map_err(VelocityError::Decimate)?;
+        let dec = DecimatorPlan::new(d).map_err(VelocityError::Decimate)?;
         let rate = fs_hz / f32::from(d);
         let mut sos = butter_bandpass(cfg.band_hz[0], cfg.band_hz[1], rate, VELOCITY_POLES)
             .map_err(VelocityError::Design)?;
@@ -187,15 +201,52 @@ impl VelocityMeter {
             s.b = [g, 2.0 * g, g];
         }
         Ok(Self {
-            shift: None,
             dec,
-            filt: BiquadCascade::new(sos),
+            sos,
             rate_hz: rate,
             settle: crate::num::f32_to_u32_sat(cfg.settle_s * rate),
+        })
+    }
+}
+
+impl VelocityMeter {
+    /// Builds the meter for input rate `fs_hz` (acceleration in g).
+    pub fn new(fs_hz: f32, cfg: &VelocityConfig) -> Result<Self, VelocityError> {
+        let plan = VelocityPlan::new(fs_hz, cfg)?;
+        let mut v = Self::unconfigured();
+        v.apply(&plan);
+        Ok(v)
+    }
+
+    /// A meter without filters, for constant context; configured in place
+    /// by [`Self::apply`].
+    pub(crate) const fn unconfigured() -> Self {
+        Self {
+            shift: None,
+            dec: Decimator::pass_through(),
+            filt: BiquadCascade::new(SosCascade::EMPTY),
+            rate_hz: 0.0,
+            settle: 0,
             seen: 0,
             sumsq: 0.0,
+            part: 0.0,
+            pending: 0,
             count: 0,
-        })
+        }
+    }
+
+    /// Designs the planned filters in place and clears the state.
+    pub(crate) fn apply(&mut self, plan: &VelocityPlan) {
+        self.dec.apply(&plan.dec);
+        self.filt = BiquadCascade::new(plan.sos);
+        self.rate_hz = plan.rate_hz;
+        self.settle = plan.settle;
+        self.shift = None;
+        self.seen = 0;
+        self.sumsq = 0.0;
+        self.part = 0.0;
+        self.pending = 0;
+        self.count = 0;
     }
 
     /// Rate of the velocity signal (Hz).
@@ -207,31 +258,41 @@ impl VelocityMeter {
     pub fn process(&mut self, block: &[f32]) {
         let Some(&x0) = block.first() else { return };
         let k = *self.shift.get_or_insert(x0);
-        let mut buf = [0f32; crate::decimate::BLOCK];
-        for chunk in block.chunks(crate::decimate::BLOCK) {
-            for (b, &x) in buf.iter_mut().zip(chunk) {
-                *b = x - k;
-            }
-            let Self {
-                dec,
-                filt,
-                settle,
-                seen,
-                sumsq,
-                count,
-                ..
-            } = self;
-            dec.process(buf.get(..chunk.len()).unwrap_or(&[]), |a| {
-                let mut v = [a];
-                filt.process(&mut v);
-                let [v] = v;
-                if *seen >= *settle {
-                    *sumsq += f64::from(v) * f64::from(v);
-                    *count = count.saturating_add(1);
-                } else {
-                    *seen += 1;
+        // Decimated samples of one chunk (at most BLOCK, at factor 1), band-
+        // passed together: section by section over the chunk, the same
+        // arithmetic per sample as one at a time.
+        let mut buf = [0f32; BLOCK];
+        for chunk in block.chunks(BLOCK) {
+            let mut n = 0usize;
+            self.dec.process_map(
+                chunk,
+                |x| x - k,
+                |a| {
+                    if let Some(slot) = buf.get_mut(n) {
+                        *slot = a;
+                        n += 1;
+                    }
+                },
+            );
+            let v = buf.get_mut(..n).unwrap_or(&mut []);
+            self.filt.process(v);
+            for &v in v.iter() {
+                if self.seen < self.settle {
+                    self.seen += 1;
+                    continue;
                 }
-            });
+                // Squares summed in f32 and added to the f64 total every
+                // FLUSH_EVERY counted samples (f64 arithmetic is in software
+                // on the Cortex-M4F); the flush points do not depend on how
+                // the input is split.
+                self.part += v * v;
+                self.count = self.count.saturating_add(1);
+                self.pending += 1;
+                if self.pending >= FLUSH_EVERY {
+                    self.sumsq += f64::from(self.part);
+                    (self.part, self.pending) = (0.0, 0);
+                }
+            }
         }
     }
 
@@ -240,7 +301,7 @@ impl VelocityMeter {
         if self.count == 0 {
             return (0.0, 0);
         }
-        let ms = self.sumsq / f64::from(self.count);
+        let ms = (self.sumsq + f64::from(self.part)) / f64::from(self.count);
         (crate::num::f64_to_f32(libm::sqrt(ms)), self.count)
     }
 
@@ -251,6 +312,8 @@ impl VelocityMeter {
         self.filt.reset();
         self.seen = 0;
         self.sumsq = 0.0;
+        self.part = 0.0;
+        self.pending = 0;
         self.count = 0;
     }
 }

@@ -2,13 +2,15 @@
 //! and frame codec: the core the node runs once configured.
 //!
 //! * `start` converts the stored record ([`crate::point::point_config`]) and
-//!   builds a fresh [`Pipeline`]; a point dsp-core refuses aborts the cycle.
+//!   reconfigures the pipeline in place ([`Pipeline::reconfigure`]: no copy
+//!   of the ~40 KB pipeline is built on the stack, so the core can live in a
+//!   `static`); a point dsp-core refuses aborts the cycle.
 //! * Blocks and edges go straight to the pipeline (nothing is buffered here).
 //! * `finish` raises the firmware's flags in the pipeline, then keeps its
 //!   [`Report`]; `encode` fills a [`FrameReport`] and packs the full frame
 //!   (`dsp_core::frame::encode`, at most 58 bytes for 4 bearings).
 //!
-//! * `start_survey` swaps the pipeline for a band survey
+//! * `start_survey` sets the pipeline aside (unstarted) for a band survey
 //!   ([`crate::commission::Commissioning`]) that takes the blocks instead,
 //!   until `finish_survey`.
 //!
@@ -23,11 +25,11 @@ use crate::hal::MeasurementCore;
 use crate::point::{point_config, PointError};
 use crate::quality::QualityFlags;
 use dsp_core::frame::{self, EncodeError, FrameReport};
-use dsp_core::pipeline::{Pipeline, PipelineError, NODE_RING};
+use dsp_core::pipeline::{Pipeline, PipelineError, NODE_BINS, NODE_RING};
 use dsp_core::report::{QualityFlags as ReportFlags, Report};
 
 /// The node's core: 4096-point spectrum, node-sized resampler ring.
-pub type NodeCore = PipelineCore<4096, 2048, NODE_RING>;
+pub type NodeCore = PipelineCore<4096, NODE_BINS, NODE_RING>;
 
 /// Why the pipeline core failed.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -63,18 +65,23 @@ impl core::error::Error for PipelineCoreError {}
 pub struct PipelineCore<const N: usize, const H: usize, const RING: usize> {
     node_id: u16,
     seq: u16,
-    pipeline: Option<Pipeline<N, H, RING>>,
+    /// Configured in place by each `start`.
+    pipeline: Pipeline<N, H, RING>,
+    /// A measurement was started (its point accepted) and not yet encoded.
+    started: bool,
     report: Option<Report>,
     survey: Option<Commissioning>,
 }
 
 impl<const N: usize, const H: usize, const RING: usize> PipelineCore<N, H, RING> {
-    /// A core for node `node_id`; frame sequence numbers start at 0.
+    /// A core for node `node_id`; frame sequence numbers start at 0. A
+    /// constant, so the core (and its pipeline) can be placed statically.
     pub const fn new(node_id: u16) -> Self {
         Self {
             node_id,
             seq: 0,
-            pipeline: None,
+            pipeline: Pipeline::unconfigured(),
+            started: false,
             report: None,
             survey: None,
         }
@@ -122,37 +129,39 @@ impl<const N: usize, const H: usize, const RING: usize> MeasurementCore
     fn start(&mut self, config: &PointRecord) -> Result<(), PipelineCoreError> {
         self.report = None;
         self.survey = None;
-        self.pipeline = None; // free the old one before building the next
+        self.started = false;
         let point = point_config(config).map_err(PipelineCoreError::Point)?;
-        self.pipeline = Some(Pipeline::new(&point).map_err(PipelineCoreError::Pipeline)?);
+        self.pipeline
+            .reconfigure(&point)
+            .map_err(PipelineCoreError::Pipeline)?;
+        self.started = true;
         Ok(())
     }
 
     fn push_block(&mut self, samples: &[i16]) {
         if let Some(s) = self.survey.as_mut() {
             s.push_block(samples);
-        } else if let Some(p) = self.pipeline.as_mut() {
-            p.push_i16(samples);
+        } else if self.started {
+            self.pipeline.push_i16(samples);
         }
     }
 
     fn push_edge(&mut self, tick: u32) {
-        if let Some(p) = self.pipeline.as_mut() {
-            p.push_edge(tick);
+        if self.started {
+            self.pipeline.push_edge(tick);
         }
     }
 
     fn complete(&self) -> bool {
-        self.pipeline.as_ref().is_some_and(|p| p.complete())
+        self.started && self.pipeline.complete()
     }
 
     fn finish(&mut self, flags: QualityFlags) -> Result<(), PipelineCoreError> {
-        let p = self
-            .pipeline
-            .as_mut()
-            .ok_or(PipelineCoreError::OutOfOrder)?;
-        p.raise(report_flags(flags));
-        self.report = Some(p.finish());
+        if !self.started {
+            return Err(PipelineCoreError::OutOfOrder);
+        }
+        self.pipeline.raise(report_flags(flags));
+        self.report = Some(self.pipeline.finish());
         Ok(())
     }
 
@@ -173,7 +182,7 @@ impl<const N: usize, const H: usize, const RING: usize> MeasurementCore
     #[inline(never)]
     fn start_survey(&mut self, config: &PointRecord) -> Result<(), CommissionError> {
         self.report = None;
-        self.pipeline = None;
+        self.started = false;
         self.survey = None;
         self.survey = Some(Commissioning::new(config)?);
         Ok(())

@@ -86,11 +86,7 @@ pub fn load_record(
     let fs = wav.info.sample_rate;
     #[allow(clippy::cast_precision_loss)]
     let fs_f = fs as f32;
-    let accel = match (&wav.raw_i16, wav.info.format) {
-        (Some(raw), SampleFormat::Int16) => Accel::Counts(raw.get(ch).cloned().unwrap_or_default()),
-        _ => Accel::G(wav.channels.get(ch).cloned().unwrap_or_default()),
-    };
-    if accel.is_empty() {
+    if wav.channels.get(ch).is_none_or(Vec::is_empty) {
         return Err(CliError::input(
             path.display(),
             "the recording has no samples",
@@ -107,6 +103,14 @@ pub fn load_record(
             Some(e.to_seconds(f64::from(fs)))
         }
         (None, None) => None,
+    };
+    // The channel is moved out of the decoded file, not copied.
+    let format = wav.info.format;
+    let accel = match (wav.raw_i16, format) {
+        (Some(raw), SampleFormat::Int16) => {
+            Accel::Counts(raw.into_iter().nth(ch).unwrap_or_default())
+        }
+        _ => Accel::G(wav.channels.into_iter().nth(ch).unwrap_or_default()),
     };
     Ok(Record {
         sample_rate_hz: fs_f,

@@ -36,6 +36,11 @@ pub struct BatchArgs {
     /// Output folder (default: `envord-batch` in the current folder).
     #[arg(long, default_value = "envord-batch")]
     pub out: PathBuf,
+    /// Recordings analysed at once, one per thread (default: the number of
+    /// cores). Every report is computed exactly as alone; only the order of
+    /// the work changes, not the outputs.
+    #[arg(long)]
+    pub jobs: Option<usize>,
 }
 
 /// Speed, flags, best score per defect kind, detections, band text.
@@ -70,60 +75,44 @@ pub fn run(args: &BatchArgs) -> Result<(), CliError> {
         indicatif::ProgressStyle::with_template("{bar:40} {pos}/{len} {msg}")
             .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
     );
-    let mut rows = Vec::new();
-    for f in &files {
-        let name = f
-            .file_name()
-            .and_then(|n| n.to_str())
-            .unwrap_or("?")
-            .to_string();
-        bar.set_message(name.clone());
-        let result = (|| -> Result<_, CliError> {
-            let rec = load_record(f, args.channel, args.tach_channel, None)?;
-            let p = speed_for(point.clone(), args.rpm, rec.edges_s.is_some(), f)?;
-            let (a, survey) = analyze_record(f, p, &rec)?;
-            let mut json = to_json(&a.report, Some(&name));
-            mark_band_choice(&mut json, survey.as_ref());
-            let band = format!(
-                "{:.0}-{:.0}{}",
-                a.report.band_hz[0],
-                a.report.band_hz[1],
-                if survey.is_some() { " (survey)" } else { "" }
-            );
-            let out = args.out.join(format!("{name}.json"));
-            std::fs::write(
-                &out,
-                serde_json::to_string_pretty(&json).map_err(|e| CliError::Other(e.to_string()))?,
-            )
-            .map_err(|e| CliError::Other(format!("{}: {e}", out.display())))?;
-            let mut best = [0.0f32; 4];
-            let mut detected = Vec::new();
-            for b in &a.report.bearings {
-                for k in DefectKind::ALL {
-                    if let Some(d) = b.diagnosis.as_ref().and_then(|d| d.get(k)) {
-                        if let Some(slot) = best.get_mut(k.index()) {
-                            *slot = slot.max(d.score_db);
-                        }
-                        if d.detected {
-                            detected.push(format!("{} {}", b.name.as_str(), k.name()));
-                        }
-                    }
+    // Threads take the next file from a shared counter; results land in
+    // their file's slot, so the summary keeps the sorted order.
+    let jobs = args
+        .jobs
+        .unwrap_or_else(|| std::thread::available_parallelism().map_or(1, usize::from))
+        .clamp(1, files.len());
+    let next = std::sync::atomic::AtomicUsize::new(0);
+    let slots: Vec<std::sync::Mutex<Option<Row>>> =
+        files.iter().map(|_| std::sync::Mutex::new(None)).collect();
+    std::thread::scope(|scope| {
+        for _ in 0..jobs {
+            scope.spawn(|| loop {
+                let i = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+                let (Some(f), Some(slot)) = (files.get(i), slots.get(i)) else {
+                    break;
+                };
+                let row = analyse_one(f, &point, args, &bar);
+                if let Ok(mut s) = slot.lock() {
+                    *s = Some(row);
                 }
-            }
-            Ok((
-                a.report.speed.mean_rpm,
-                a.report.flags.to_string(),
-                best,
-                detected,
-                band,
-            ))
-        })();
-        rows.push(Row {
-            file: name,
-            result: result.map_err(|e| e.to_string()),
-        });
-        bar.inc(1);
-    }
+                bar.inc(1);
+            });
+        }
+    });
+    let rows: Vec<Row> = slots
+        .into_iter()
+        .zip(&files)
+        .map(|(slot, f)| {
+            slot.into_inner().ok().flatten().unwrap_or_else(|| Row {
+                file: f
+                    .file_name()
+                    .and_then(|n| n.to_str())
+                    .unwrap_or("?")
+                    .to_string(),
+                result: Err("not analysed (worker thread failed)".to_string()),
+            })
+        })
+        .collect();
     bar.finish_and_clear();
 
     let mut md = String::from(
@@ -198,4 +187,63 @@ pub fn run(args: &BatchArgs) -> Result<(), CliError> {
         )));
     }
     Ok(())
+}
+
+/// Analyses one recording and writes its JSON report.
+fn analyse_one(
+    f: &std::path::Path,
+    point: &dsp_core::config::PointConfig,
+    args: &BatchArgs,
+    bar: &indicatif::ProgressBar,
+) -> Row {
+    let name = f
+        .file_name()
+        .and_then(|n| n.to_str())
+        .unwrap_or("?")
+        .to_string();
+    bar.set_message(name.clone());
+    let result = (|| -> Result<_, CliError> {
+        let rec = load_record(f, args.channel, args.tach_channel, None)?;
+        let p = speed_for(point.clone(), args.rpm, rec.edges_s.is_some(), f)?;
+        let (a, survey) = analyze_record(f, p, &rec)?;
+        let mut json = to_json(&a.report, Some(&name));
+        mark_band_choice(&mut json, survey.as_ref());
+        let band = format!(
+            "{:.0}-{:.0}{}",
+            a.report.band_hz[0],
+            a.report.band_hz[1],
+            if survey.is_some() { " (survey)" } else { "" }
+        );
+        let out = args.out.join(format!("{name}.json"));
+        std::fs::write(
+            &out,
+            serde_json::to_string_pretty(&json).map_err(|e| CliError::Other(e.to_string()))?,
+        )
+        .map_err(|e| CliError::Other(format!("{}: {e}", out.display())))?;
+        let mut best = [0.0f32; 4];
+        let mut detected = Vec::new();
+        for b in &a.report.bearings {
+            for k in DefectKind::ALL {
+                if let Some(d) = b.diagnosis.as_ref().and_then(|d| d.get(k)) {
+                    if let Some(slot) = best.get_mut(k.index()) {
+                        *slot = slot.max(d.score_db);
+                    }
+                    if d.detected {
+                        detected.push(format!("{} {}", b.name.as_str(), k.name()));
+                    }
+                }
+            }
+        }
+        Ok((
+            a.report.speed.mean_rpm,
+            a.report.flags.to_string(),
+            best,
+            detected,
+            band,
+        ))
+    })();
+    Row {
+        file: name,
+        result: result.map_err(|e| e.to_string()),
+    }
 }

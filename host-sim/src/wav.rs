@@ -490,6 +490,42 @@ pub fn parse_wav(bytes: &[u8], opts: ReadOptions) -> Result<WavData, WavError> {
     }
 }
 
+/// One channel of interleaved frames, converted by `conv` (a loop per
+/// format, so the compiler sees straight-line conversion code).
+fn decode_channel(
+    body: &[u8],
+    frame_bytes: usize,
+    at: usize,
+    sb: usize,
+    conv: impl Fn(&[u8]) -> f32,
+) -> Vec<f32> {
+    body.chunks_exact(frame_bytes)
+        .map(|f| f.get(at..at + sb).map_or(0.0, &conv))
+        .collect()
+}
+/// Little-endian 24-bit integer sample to full scale 1.
+fn int24(s: &[u8]) -> f32 {
+    match *s {
+        // Sign-extend by placing the 3 bytes in the top of an i32.
+        [a, b, c] => (i32::from_le_bytes([0, a, b, c]) >> 8) as f32 / 8_388_608.0,
+        _ => 0.0,
+    }
+}
+/// Little-endian 32-bit integer sample to full scale 1.
+fn int32(s: &[u8]) -> f32 {
+    match *s {
+        [a, b, c, d] => i32::from_le_bytes([a, b, c, d]) as f32 / 2_147_483_648.0,
+        _ => 0.0,
+    }
+}
+/// Little-endian 32-bit float sample.
+fn float32(s: &[u8]) -> f32 {
+    match *s {
+        [a, b, c, d] => f32::from_le_bytes([a, b, c, d]),
+        _ => 0.0,
+    }
+}
+
 fn decode_data(
     info: WavInfo,
     body: &[u8],
@@ -513,45 +549,52 @@ fn decode_data(
         partial_frame_bytes: extra,
     });
 
-    // Capacities come from the bytes present, never from a header field.
-    let mut channels: Vec<Vec<f32>> = (0..nch).map(|_| Vec::with_capacity(frames)).collect();
-    let mut raw: Option<Vec<Vec<i16>>> = (info.format == SampleFormat::Int16)
-        .then(|| (0..nch).map(|_| Vec::with_capacity(frames)).collect());
-    let mut non_finite = 0usize;
-
-    for frame in body.chunks_exact(frame_bytes) {
-        for (ci, s) in frame.chunks_exact(sb).enumerate() {
-            let v = match (info.format, s) {
-                (SampleFormat::Int16, &[a, b]) => {
-                    let c = i16::from_le_bytes([a, b]);
-                    if let Some(ch) = raw.as_mut().and_then(|r| r.get_mut(ci)) {
-                        ch.push(c);
-                    }
-                    f32::from(c) / 32_768.0
-                }
-                (SampleFormat::Int24, &[a, b, c]) => {
-                    // Sign-extend by placing the 3 bytes in the top of an i32.
-                    let x = i32::from_le_bytes([0, a, b, c]) >> 8;
-                    x as f32 / 8_388_608.0
-                }
-                (SampleFormat::Int32, &[a, b, c, d]) => {
-                    i32::from_le_bytes([a, b, c, d]) as f32 / 2_147_483_648.0
-                }
-                (SampleFormat::Float32, &[a, b, c, d]) => {
-                    let x = f32::from_le_bytes([a, b, c, d]);
-                    if !x.is_finite() {
-                        non_finite += 1;
-                    }
-                    x
-                }
-                // chunks_exact(sb) always yields sb bytes, matching the format.
-                _ => 0.0,
-            };
-            if let Some(ch) = channels.get_mut(ci) {
-                ch.push(v);
-            }
+    // Channel by channel, the format chosen once per channel (a tight loop
+    // per format rather than a match per sample); capacities come from the
+    // bytes present, never from a header field.
+    let frames_of = || body.chunks_exact(frame_bytes);
+    let (channels, raw): (Vec<Vec<f32>>, Option<Vec<Vec<i16>>>) = match info.format {
+        SampleFormat::Int16 => {
+            let raw: Vec<Vec<i16>> = (0..nch)
+                .map(|ci| {
+                    let at = ci * sb;
+                    let mut out = Vec::with_capacity(frames);
+                    out.extend(frames_of().map(|f| match f.get(at..at + 2) {
+                        Some(&[a, b]) => i16::from_le_bytes([a, b]),
+                        _ => 0,
+                    }));
+                    out
+                })
+                .collect();
+            let chans = raw
+                .iter()
+                .map(|c| c.iter().map(|&x| f32::from(x) / 32_768.0).collect())
+                .collect();
+            (chans, Some(raw))
         }
-    }
+        SampleFormat::Int24 => {
+            let chans = (0..nch)
+                .map(|ci| decode_channel(body, frame_bytes, ci * sb, sb, int24))
+                .collect();
+            (chans, None)
+        }
+        SampleFormat::Int32 => {
+            let chans = (0..nch)
+                .map(|ci| decode_channel(body, frame_bytes, ci * sb, sb, int32))
+                .collect();
+            (chans, None)
+        }
+        SampleFormat::Float32 => {
+            let chans = (0..nch)
+                .map(|ci| decode_channel(body, frame_bytes, ci * sb, sb, float32))
+                .collect();
+            (chans, None)
+        }
+    };
+    let non_finite = channels
+        .iter()
+        .map(|c| c.iter().filter(|x| !x.is_finite()).count())
+        .sum();
     Ok(WavData {
         info,
         channels,

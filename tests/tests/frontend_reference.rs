@@ -85,8 +85,8 @@ fn decimator_taps_match_scipy() {
     for (i, (s, r)) in stages.iter().zip(&g.stages).enumerate() {
         assert_eq!((s.0, s.1), (r.factor, r.taps.len()), "stage {i}");
         // Stored oldest-first, i.e. reversed.
-        for (a, b) in fe.decimator().stage_taps(i).iter().rev().zip(&r.taps) {
-            worst = worst.max((f64::from(*a) - b).abs());
+        for (a, b) in fe.decimator().stage_taps(i).rev().zip(&r.taps) {
+            worst = worst.max((f64::from(a) - b).abs());
         }
     }
     println!("decimator taps: max |error| vs scipy = {worst:.2e}; stages {stages:?}");

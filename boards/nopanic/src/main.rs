@@ -71,6 +71,11 @@ fn measure<const N: usize, const H: usize, const R: usize>(point: &PointConfig) 
         }
     }
     black_box(p.finish());
+    // In place for the next measurement (as the firmware does), then finish
+    // whatever state that leaves, configured or not.
+    black_box(p.reconfigure(&opaque_point()).is_ok());
+    black_box(p.point().is_some());
+    black_box(p.finish());
 }
 
 /// Frame codec. `to_json` is left out on purpose: serde-json-core 0.7
@@ -381,7 +386,7 @@ fn main() -> ! {
         black_box(point.band());
         black_box(point.default_band_hz());
         // The node's sizes and a smaller host-like set.
-        measure::<4096, 2048, { dsp_core::pipeline::NODE_RING }>(&point);
+        measure::<4096, { dsp_core::pipeline::NODE_BINS }, { dsp_core::pipeline::NODE_RING }>(&point);
         measure::<1024, 512, 2048>(&point);
         black_box(NodePipeline::new(&opaque_point()).is_ok());
         frames();

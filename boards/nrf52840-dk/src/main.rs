@@ -105,7 +105,8 @@ fn main() -> ! {
         power: Output::new(p.P0_28, Level::Low, OutputDrive::Standard),
         delay: SpinDelay,
     };
-    // the pipeline core (~62 KiB with its band survey) in .bss, not on the stack
+    // the pipeline core (~53 KiB with its band survey; the pipeline is
+    // configured in place by each cycle) in .bss, not on the stack
     let Some(core) = cortex_m::singleton!(: NodeCore = NodeCore::new(NODE_ID)) else {
         panic!("core taken twice");
     };

@@ -52,8 +52,11 @@ fn run() -> i32 {
     }
 }
 
-/// The pipeline core (~62 KiB with its band survey) in .bss rather than on the stack. Its own
-/// frame, so the initialising temporary is not part of `run`'s frame.
+/// The pipeline core (~53 KiB with its band survey; its pipeline is
+/// configured in place by each cycle's `start`) in .bss rather than on the
+/// stack. Its own frame, so the initialising temporary (about 22 KB: the
+/// compiler builds the spectrum buffers on the stack before copying them) is
+/// not part of `run`'s frame.
 #[inline(never)]
 fn node_core() -> Option<&'static mut NodeCore> {
     cortex_m::singleton!(: NodeCore = NodeCore::new(NODE_ID))
