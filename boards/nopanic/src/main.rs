@@ -157,6 +157,11 @@ fn survey() {
         black_box(s.band_count());
         black_box(s.samples());
         let _ = black_box(s.finish());
+        // in place, with any settings
+        let c = black_box(dsp_core::survey::SurveyConfig::default());
+        let _ = black_box(s.reconfigure(black_box(12_000.0), c));
+        s.push_i16(black_box(&counts[..]));
+        let _ = black_box(s.finish());
     }
 }
 
