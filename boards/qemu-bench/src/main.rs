@@ -726,6 +726,44 @@ fn node_blocks(r: &Record, tag: &str, fs: f64) {
     );
 }
 
+/// The node's block ring (`firmware::ring`): what the sampling interrupt
+/// spends copying a block in and the cycle copying it out.
+fn bench_ring(m: &Meter) {
+    use firmware::ring::{BlockRing, NODE_DEPTH};
+    static RING: BlockRing<NODE_DEPTH, ADC_BLOCK> = BlockRing::new();
+    let Some((mut tx, mut rx)) = RING.split() else {
+        return;
+    };
+    let mut sig = Signal::new();
+    let mut blk = [0i16; ADC_BLOCK];
+    let mut out = [0i16; ADC_BLOCK];
+    let (mut t_push, mut t_pop) = (0.0, 0.0);
+    for _ in 0..BLOCKS {
+        blk.iter_mut().for_each(|c| *c = sig.next_i16(2048.0));
+        t_push += m.instr(&mut || {
+            let _ = black_box(tx.push(black_box(&blk)));
+        });
+        t_pop += m.instr(&mut || {
+            black_box(rx.pop_into(black_box(&mut out)));
+        });
+        black_box(&out);
+    }
+    #[allow(clippy::cast_precision_loss)]
+    let n = BLOCKS as f64;
+    report(
+        "ring_push",
+        t_push / n,
+        "instr/block",
+        "firmware::ring Producer::push of one 256-sample block (the sampling interrupt's copy)",
+    );
+    report(
+        "ring_pop",
+        t_pop / n,
+        "instr/block",
+        "firmware::ring Consumer::pop_into of one 256-sample block (the cycle's copy)",
+    );
+}
+
 fn memory() {
     use core::mem::size_of;
     let r = |k: &str, n: usize, what: &str| {
@@ -771,6 +809,11 @@ fn memory() {
         "DefectSearch",
     );
     r(
+        "mem_block_ring",
+        size_of::<firmware::ring::BlockRing<{ firmware::ring::NODE_DEPTH }, ADC_BLOCK>>(),
+        "BlockRing<6, 256> (the node's sample queue)",
+    );
+    r(
         "mem_point",
         size_of::<PointConfig>(),
         "PointConfig (copy held by the pipeline)",
@@ -791,6 +834,7 @@ fn main() -> ! {
     bench_pipeline(&m);
     bench_velocity(&m);
     bench_survey(&m);
+    bench_ring(&m);
     eprintln!("INFO|done");
     process::exit(0)
 }
