@@ -197,7 +197,11 @@ fuzz_target!(|data: &[u8]| {
     let mut expect: Option<Vec<u8>> = None;
     if mode == 0 {
         for base in [0, PAGE, 4 * PAGE] {
-            let len = if base == 4 * PAGE { IDENTITY_LEN } else { IMAGE };
+            let len = if base == 4 * PAGE {
+                IDENTITY_LEN
+            } else {
+                IMAGE
+            };
             let b = inp.take(len).to_vec();
             mem[base..base + b.len()].copy_from_slice(&b);
         }

@@ -62,9 +62,14 @@ fn signed(counter: u32, stored: u32, payload: &[u8]) {
     let other = identity(NODE ^ 0x8000);
     assert_eq!(
         open(Some(&other), stored, frame),
-        Err(DownlinkError::Auth(AuthError::WrongNode { addressed: NODE }))
+        Err(DownlinkError::Auth(AuthError::WrongNode {
+            addressed: NODE
+        }))
     );
-    assert_eq!(open(None, stored, frame), Err(DownlinkError::NotProvisioned));
+    assert_eq!(
+        open(None, stored, frame),
+        Err(DownlinkError::NotProvisioned)
+    );
     if let Ok((_, Command::SetConfig(rec))) = got {
         let mut buf = [0u8; MAX_RECORD_LEN];
         let len = rec.encode(&mut buf).expect("an accepted record encodes");
