@@ -38,8 +38,8 @@
 //! 51.2 kS/s (5 ms blocks) the spike then lasts 0.64 M x 3 / 64 MHz = 30 ms =
 //! 6.0 periods, so the depth must be at least 5; [`NODE_DEPTH`] = 6 keeps one
 //! slot spare. At the nRF52840 board's 25.6 kS/s the same ring absorbs spikes
-//! of up to 70 ms (4.5 M cycles). Each slot costs `2 x LEN + 1` bytes of RAM
-//! (3,078 bytes for 6 slots of 256 samples).
+//! of up to 70 ms (4.5 M cycles). Each slot costs `2 x LEN + 1` bytes of RAM,
+//! plus the indices: 3,096 bytes for 6 slots of 256 samples on the M4F.
 
 use core::sync::atomic::{AtomicBool, AtomicI16, AtomicU32, AtomicUsize, Ordering};
 

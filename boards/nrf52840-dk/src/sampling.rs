@@ -189,7 +189,8 @@ impl DmaHalves {
             s.result().ptr().write_value(p);
         }
         // read back so that the cleared events cannot re-trigger the
-        // interrupt after return (common practice on the nRF52 series)
+        // interrupt after return (Nordic's advice for the nRF52 series, from
+        // memory)
         let _ = s.events_end().read();
     }
 }
