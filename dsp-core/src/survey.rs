@@ -89,15 +89,20 @@ pub struct SurveyConfig {
     pub settle_samples: u32,
 }
 
+impl SurveyConfig {
+    /// The defaults (a constant, for [`BandSurvey::unconfigured`]).
+    pub const DEFAULT: Self = Self {
+        min_hz: 1000.0,
+        max_nyquist_fraction: 0.8,
+        min_bandwidth_hz: 0.0,
+        poles: 4,
+        settle_samples: 512,
+    };
+}
+
 impl Default for SurveyConfig {
     fn default() -> Self {
-        Self {
-            min_hz: 1000.0,
-            max_nyquist_fraction: 0.8,
-            min_bandwidth_hz: 0.0,
-            poles: 4,
-            settle_samples: 512,
-        }
+        Self::DEFAULT
     }
 }
 
@@ -207,6 +212,36 @@ impl BandSurvey {
 
     /// A bank with `config`.
     pub fn with_config(sample_rate_hz: f32, config: SurveyConfig) -> Result<Self, SurveyError> {
+        let mut s = Self::unconfigured();
+        s.reconfigure(sample_rate_hz, config)?;
+        Ok(s)
+    }
+
+    /// A survey without bands, as a constant, so that it can be placed
+    /// statically and set up in place by [`BandSurvey::reconfigure`]
+    /// (`finish` refuses it: too few samples).
+    pub const fn unconfigured() -> Self {
+        Self {
+            bands: heapless::Vec::new(),
+            config: SurveyConfig::DEFAULT,
+            seen: 0,
+            used: 0,
+            non_finite: 0,
+        }
+    }
+
+    /// Sets the bank up in place for `sample_rate_hz` and `config` and
+    /// clears the moments, so that no copy of the ~7.7 KiB survey is built
+    /// on the stack. Every setting is checked and the bank counted first: on
+    /// an error nothing changes.
+    // Not inlined: once per survey, and its temporaries then stay out of
+    // the caller's frame.
+    #[inline(never)]
+    pub fn reconfigure(
+        &mut self,
+        sample_rate_hz: f32,
+        config: SurveyConfig,
+    ) -> Result<(), SurveyError> {
         if !(sample_rate_hz.is_finite() && sample_rate_hz > 0.0) {
             return Err(SurveyError::SampleRate);
         }
@@ -222,41 +257,44 @@ impl BandSurvey {
             return Err(SurveyError::Config);
         }
         let top = c.max_nyquist_fraction * 0.5 * sample_rate_hz;
+        let count = |step| {
+            let mut n = 0usize;
+            for_each_band(c, top, step, |_, _| n += 1);
+            n
+        };
         // The finest grid whose bank fits the capacity: at high sample rates
         // (about 55 kS/s and up) the 1/6-octave grid would need more than
         // MAX_BANDS bands, and dropping the highest ones would leave the upper
         // resonances unsurveyed, so the grid coarsens instead.
         let step = (1..=MAX_GRID_STEP)
-            .find(|&s| {
-                let mut n = 0usize;
-                for_each_band(c, top, s, |_, _| n += 1);
-                n <= MAX_BANDS
-            })
+            .find(|&s| count(s) <= MAX_BANDS)
             .unwrap_or(MAX_GRID_STEP);
-        let mut bands = heapless::Vec::new();
+        if count(step) == 0 {
+            return Err(SurveyError::NoBand);
+        }
+        self.bands.clear();
+        let bands = &mut self.bands;
         for_each_band(c, top, step, |lo, hi| {
+            // Edges below Nyquist and above 0 by construction, poles checked.
             let Ok(sos) = butter_bandpass(lo, hi, sample_rate_hz, c.poles) else {
                 return;
             };
-            let band = Band {
+            // Cannot fail: `step` was chosen so that the bank fits.
+            let _ = bands.push(Band {
                 edges: [lo, hi],
                 filter: BiquadCascade::new(sos),
                 s2: 0.0,
                 s4: 0.0,
-            };
-            // Cannot fail: `step` was chosen so that the bank fits.
-            let _ = bands.push(band);
+            });
         });
-        if bands.is_empty() {
+        self.config = config;
+        self.seen = 0;
+        self.used = 0;
+        self.non_finite = 0;
+        if self.bands.is_empty() {
             return Err(SurveyError::NoBand);
         }
-        Ok(Self {
-            bands,
-            config,
-            seen: 0,
-            used: 0,
-            non_finite: 0,
-        })
+        Ok(())
     }
 
     /// Number of bands in the bank.
@@ -369,6 +407,74 @@ impl BandSurvey {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Invented noisy signal with a 3 kHz ring every 10 ms (as in the
+    /// struct's doc example), blocks of 256 samples.
+    fn blocks(fs: f32, n: usize) -> impl Iterator<Item = [f32; 256]> {
+        let mut seed = 7u32;
+        (0..n).map(move |b| {
+            let mut block = [0.0f32; 256];
+            for (i, x) in block.iter_mut().enumerate() {
+                seed = seed.wrapping_mul(1_664_525).wrapping_add(1_013_904_223);
+                #[allow(clippy::cast_precision_loss)]
+                let noise = (seed >> 8) as f32 / 16_777_216.0 - 0.5;
+                #[allow(clippy::cast_precision_loss)]
+                let t = ((b * 256 + i) % 120) as f32 / fs;
+                *x = noise
+                    + 4.0
+                        * libm::expf(-t * 800.0)
+                        * libm::sinf(2.0 * core::f32::consts::PI * 3000.0 * t);
+            }
+            block
+        })
+    }
+
+    #[test]
+    fn reconfigure_in_place_equals_a_new_survey_bit_for_bit_and_errors_change_nothing() {
+        let c = SurveyConfig {
+            min_bandwidth_hz: 300.0,
+            ..SurveyConfig::default()
+        };
+        let mut fresh = BandSurvey::with_config(12_000.0, c).unwrap();
+        for b in blocks(12_000.0, 80) {
+            fresh.push_f32(&b);
+        }
+        let want = fresh.finish().unwrap();
+
+        // one survey reused: first another rate and config with samples in
+        // it, then in place for the same settings as `fresh`
+        let mut s = BandSurvey::unconfigured();
+        assert_eq!(s.band_count(), 0);
+        assert_eq!(s.finish().err(), Some(SurveyError::TooFewSamples));
+        s.reconfigure(51_200.0, SurveyConfig::default()).unwrap();
+        assert_eq!(s.band_count(), 46);
+        for b in blocks(51_200.0, 10) {
+            s.push_f32(&b);
+        }
+        s.reconfigure(12_000.0, c).unwrap();
+        assert_eq!(s.samples(), 0);
+        for b in blocks(12_000.0, 80) {
+            s.push_f32(&b);
+        }
+        assert_eq!(s.finish().unwrap(), want);
+
+        // refused settings leave the bank and its moments as they were
+        let bad = SurveyConfig {
+            min_bandwidth_hz: 1e6,
+            ..SurveyConfig::default()
+        };
+        assert_eq!(s.reconfigure(12_000.0, bad), Err(SurveyError::NoBand));
+        assert_eq!(
+            s.reconfigure(f32::INFINITY, c),
+            Err(SurveyError::SampleRate)
+        );
+        let odd = SurveyConfig {
+            poles: 3,
+            ..SurveyConfig::default()
+        };
+        assert_eq!(s.reconfigure(12_000.0, odd), Err(SurveyError::Config));
+        assert_eq!(s.finish().unwrap(), want);
+    }
 
     #[test]
     fn bank_layout() {

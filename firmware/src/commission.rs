@@ -13,7 +13,8 @@
 //! [`Commissioning`] is a [`BandSurvey`] (48 bands of 160 bytes plus
 //! bookkeeping: 7 728 bytes, `size_of` printed by
 //! `firmware/tests/commission.rs`), kept inside the pipeline core beside the
-//! pipeline; while a block is filtered the survey uses about 2 KiB of stack
+//! pipeline and set up in place for each survey
+//! ([`Commissioning::reconfigure`]); while a block is filtered the survey uses about 2 KiB of stack
 //! (two 256-sample f32 scratch blocks), and its result about 0.8 KiB.
 //! At 25.6 kS/s with the committed test point (min bandwidth 3 x BPFI at
 //! 3600 rpm) the bank has 22 bands; under QEMU (`-icount`) a 256-sample
@@ -22,7 +23,7 @@
 //! measured on a kit (a gapped capture is discarded, not used). Figures:
 //! docs/commissioning.md, `boards/size.sh`.
 
-use dsp_core::band_choice::new_survey;
+use dsp_core::band_choice::survey_config;
 use dsp_core::survey::{BandSurvey, SurveyError};
 
 use crate::config::PointRecord;
@@ -74,9 +75,27 @@ pub struct Commissioning {
 impl Commissioning {
     /// The survey for `config`'s measuring point.
     pub fn new(config: &PointRecord) -> Result<Self, CommissionError> {
+        let mut c = Self::unconfigured();
+        c.reconfigure(config)?;
+        Ok(c)
+    }
+
+    /// A survey without bands (a constant, for static placement); set it up
+    /// with [`Commissioning::reconfigure`].
+    pub const fn unconfigured() -> Self {
+        Self {
+            survey: BandSurvey::unconfigured(),
+        }
+    }
+
+    /// Sets the survey up in place for `config`'s measuring point
+    /// ([`BandSurvey::reconfigure`]: no copy of the 7.7 KiB bank on the
+    /// stack) and clears its moments; on an error nothing changes.
+    pub fn reconfigure(&mut self, config: &PointRecord) -> Result<(), CommissionError> {
         let point = point_config(config).map_err(CommissionError::Point)?;
-        let survey = new_survey(&point).map_err(CommissionError::Survey)?;
-        Ok(Self { survey })
+        self.survey
+            .reconfigure(point.sample_rate_hz, survey_config(&point))
+            .map_err(CommissionError::Survey)
     }
 
     /// Bands in the bank.

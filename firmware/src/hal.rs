@@ -18,12 +18,16 @@ pub struct Block<'a> {
     pub overrun: bool,
 }
 
-/// Continuous ADC sampling into a double buffer.
+/// Continuous ADC sampling in blocks.
 ///
-/// While the consumer holds the block returned by `next_block`, the hardware
-/// fills the other half. The held block is handed back by the next call to
-/// `next_block` (or `stop`); if the hardware needed it earlier, the source
-/// reports `overrun` on the following block.
+/// With a plain DMA double buffer, the hardware fills the other half while
+/// the consumer holds the block returned by `next_block`; the held block is
+/// handed back by the next call to `next_block` (or `stop`), and if the
+/// hardware needed it earlier the source reports `overrun` on the following
+/// block. A board can instead empty its DMA in the interrupt into a
+/// [`crate::ring::BlockRing`] and hand out blocks from there, so that one
+/// block may take several block times (the nRF52840 board does). Either way
+/// a lost block is reported on the next block handed out.
 pub trait BlockSource {
     /// Driver error.
     type Error;

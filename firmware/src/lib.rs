@@ -12,6 +12,8 @@
 //!   sequence number and CRC, newest valid copy wins).
 //! * [`commission`]: the band survey that chooses the envelope band on the node.
 //! * [`quality`]: quality flags and streamed signal-health checks.
+//! * [`ring`]: the queue of ADC blocks between the sampling interrupt and the
+//!   cycle, deep enough for the block that completes a spectrum segment.
 //! * [`crc`]: CRC-32 for stored records.
 //! * [`pipeline_core`]: the adapter to the `dsp-core` pipeline and frame codec.
 //! * [`point`]: the record as `dsp-core`'s measuring point, for the pipeline adapter.
@@ -45,4 +47,5 @@ pub mod overall_core;
 pub mod pipeline_core;
 pub mod point;
 pub mod quality;
+pub mod ring;
 pub mod store;

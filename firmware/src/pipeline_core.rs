@@ -11,8 +11,9 @@
 //!   (`dsp_core::frame::encode`, at most 58 bytes for 4 bearings).
 //!
 //! * `start_survey` sets the pipeline aside (unstarted) for a band survey
-//!   ([`crate::commission::Commissioning`]) that takes the blocks instead,
-//!   until `finish_survey`.
+//!   ([`crate::commission::Commissioning`], kept beside the pipeline and set
+//!   up in place like it) that takes the blocks instead, until
+//!   `finish_survey`.
 //!
 //! Report flags without a frame bit: SPEED_UNSTABLE is sent as
 //! `tach_irregular` and NON_FINITE as `sensor_fault`; INCOMPLETE,
@@ -70,7 +71,12 @@ pub struct PipelineCore<const N: usize, const H: usize, const RING: usize> {
     /// A measurement was started (its point accepted) and not yet encoded.
     started: bool,
     report: Option<Report>,
+    /// The band survey, made (unconfigured) by the first `start_survey` and
+    /// set up in place by each; `None` until then, so that the constant
+    /// core's boot-time initialisation does not build it on the stack.
     survey: Option<Commissioning>,
+    /// A survey was started and not yet finished: blocks go to it.
+    surveying: bool,
 }
 
 impl<const N: usize, const H: usize, const RING: usize> PipelineCore<N, H, RING> {
@@ -84,6 +90,7 @@ impl<const N: usize, const H: usize, const RING: usize> PipelineCore<N, H, RING>
             started: false,
             report: None,
             survey: None,
+            surveying: false,
         }
     }
 
@@ -128,7 +135,7 @@ impl<const N: usize, const H: usize, const RING: usize> MeasurementCore
 
     fn start(&mut self, config: &PointRecord) -> Result<(), PipelineCoreError> {
         self.report = None;
-        self.survey = None;
+        self.surveying = false;
         self.started = false;
         let point = point_config(config).map_err(PipelineCoreError::Point)?;
         self.pipeline
@@ -139,7 +146,7 @@ impl<const N: usize, const H: usize, const RING: usize> MeasurementCore
     }
 
     fn push_block(&mut self, samples: &[i16]) {
-        if let Some(s) = self.survey.as_mut() {
+        if let Some(s) = self.survey.as_mut().filter(|_| self.surveying) {
             s.push_block(samples);
         } else if self.started {
             self.pipeline.push_i16(samples);
@@ -177,21 +184,27 @@ impl<const N: usize, const H: usize, const RING: usize> MeasurementCore
         self.node_id = node_id;
     }
 
-    // Its own frame: the survey (7.7 KiB) is built by value here, and that
-    // temporary must not enlarge the frame of the cycle's every step.
+    // Its own frame (the point conversion's temporaries); the survey itself
+    // is set up in place, never built by value.
     #[inline(never)]
     fn start_survey(&mut self, config: &PointRecord) -> Result<(), CommissionError> {
         self.report = None;
         self.started = false;
-        self.survey = None;
-        self.survey = Some(Commissioning::new(config)?);
+        self.surveying = false;
+        self.survey
+            .get_or_insert_with(Commissioning::unconfigured)
+            .reconfigure(config)?;
+        self.surveying = true;
         Ok(())
     }
 
     #[inline(never)]
     fn finish_survey(&mut self) -> Result<SurveyChoice, CommissionError> {
+        if !core::mem::take(&mut self.surveying) {
+            return Err(CommissionError::NotStarted);
+        }
         self.survey
-            .take()
+            .as_ref()
             .ok_or(CommissionError::NotStarted)?
             .finish()
     }

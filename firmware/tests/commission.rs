@@ -234,6 +234,46 @@ fn a_core_without_survey_reports_unsupported_with_the_sensor_off() {
 }
 
 #[test]
+fn the_core_reuses_its_survey_in_place_with_the_same_choice_every_time() {
+    use firmware::hal::MeasurementCore;
+    use firmware::quality::QualityFlags;
+    let rec = unset_point();
+    let blocks = rec.record_blocks(256, 4096) as usize;
+    let x = signal(256 * blocks);
+    let mut alone = Commissioning::new(&rec).unwrap();
+    for b in x.chunks(256) {
+        alone.push_block(b);
+    }
+    let want = alone.finish().unwrap();
+
+    let mut core = Box::new(NodeCore::new(0));
+    assert_eq!(
+        core.finish_survey().err(),
+        Some(firmware::commission::CommissionError::NotStarted)
+    );
+    for round in 0..2 {
+        core.start_survey(&rec).unwrap();
+        for b in x.chunks(256) {
+            core.push_block(b);
+        }
+        assert_eq!(core.finish_survey().unwrap(), want, "round {round}");
+        // finished: the next blocks are not the survey's
+        assert!(core.finish_survey().is_err());
+        // a measurement in between, with the same core
+        core.start(&PointRecord::default()).unwrap();
+        for b in x.chunks(256).take(8) {
+            core.push_block(b);
+        }
+        core.finish(QualityFlags::empty()).unwrap();
+    }
+    // a point the survey refuses starts no survey
+    let mut bad = unset_point();
+    bad.sample_rate_hz = 0;
+    assert!(core.start_survey(&bad).is_err());
+    assert!(core.finish_survey().is_err());
+}
+
+#[test]
 fn survey_memory_is_printed() {
     // figure quoted in firmware/src/commission.rs and docs/commissioning.md
     let c = Commissioning::new(&unset_point()).unwrap();

@@ -1,8 +1,9 @@
 //! Link-time proof that no panic path is reachable from dsp-core's public
 //! API and from the firmware node (its whole cycle with the pipeline core:
 //! downlink authentication and parsing, configuration and identity records,
-//! the power-safe flash store, the commissioning survey, status frames) when
-//! built for thumbv7em-none-eabihf in release mode.
+//! the power-safe flash store, the commissioning survey, status frames) and
+//! the block ring between the sampling interrupt and the cycle, when built
+//! for thumbv7em-none-eabihf in release mode.
 //!
 //! The panic handler calls `envord_panic_is_reachable`, a function that is
 //! declared but defined nowhere. If, after optimisation, any call to a panic
@@ -155,6 +156,11 @@ fn survey() {
         s.push_f32(black_box(&gs[..]));
         black_box(s.band_count());
         black_box(s.samples());
+        let _ = black_box(s.finish());
+        // in place, with any settings
+        let c = black_box(dsp_core::survey::SurveyConfig::default());
+        let _ = black_box(s.reconfigure(black_box(12_000.0), c));
+        s.push_i16(black_box(&counts[..]));
         let _ = black_box(s.finish());
     }
 }
@@ -351,6 +357,32 @@ fn node() {
     }
 }
 
+/// The block ring between the sampling interrupt and the cycle, as the
+/// nRF52840 board uses it: any order of pushes, losses, restarts, pops and
+/// drains.
+fn ring() {
+    use firmware::ring::{BlockRing, NODE_DEPTH};
+    static RING: BlockRing<NODE_DEPTH, ADC_BLOCK> = BlockRing::new();
+    let Some((mut tx, mut rx)) = RING.split() else {
+        return;
+    };
+    let block = [0i16; ADC_BLOCK];
+    let mut out = [0i16; ADC_BLOCK];
+    for _ in 0..black_box(0u32) {
+        let _ = black_box(tx.push(black_box(&block)));
+        tx.mark_lost(black_box(0));
+        if black_box(false) {
+            tx.restart();
+        }
+        black_box(rx.pop_into(black_box(&mut out)));
+        black_box(&out);
+        if black_box(false) {
+            black_box(rx.drain());
+        }
+        black_box((rx.len(), rx.is_empty(), rx.lost(), rx.high_water()));
+    }
+}
+
 /// Records read from storage or radio, on arbitrary bytes.
 fn records() {
     use firmware::config::{PointRecord, StoredConfig};
@@ -395,5 +427,6 @@ fn main() -> ! {
         downlink();
         records();
         node();
+        ring();
     }
 }

@@ -7,8 +7,13 @@
 //!                                                   └─fork──► TIMER2 COUNT   (sample clock)
 //! SAADC END ──PPI1──► SAADC START (EasyDMA double buffer)
 //!           └─fork──► TIMER3 COUNT (blocks done)
+//!           └─IRQ───► copy of the finished half into the block ring (6 blocks)
 //! tach GPIOTE IN0 ──PPI2──► TIMER2 CAPTURE1 (edge time in samples: same time base)
 //! ```
+//!
+//! The cycle takes blocks from the ring (`firmware::ring`), so one block may
+//! take up to 7 block times (the one that completes a spectrum segment runs
+//! the 4096-point transform) without losing samples.
 //!
 //! Pins (DK): AIN0 = P0.02 sensor signal, P0.03 tach input, P0.28 sensor
 //! power switch, button 1 (P0.11) asks for a measurement. Radio: BLE
@@ -34,8 +39,10 @@ use panic_probe as _;
 /// node refuses every downlink; the provisioned node id replaces this).
 const NODE_ID: u16 = 0;
 
+// Ours first: it services the DMA and clears END/STARTED, so embassy's
+// handler (required by `Saadc::new`) finds nothing to do.
 bind_interrupts!(struct Irqs {
-    SAADC => saadc::InterruptHandler;
+    SAADC => sampling::SampleIrq, saadc::InterruptHandler;
 });
 
 /// The hardware watchdog, fed only after a healthy cycle.

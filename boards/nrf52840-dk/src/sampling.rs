@@ -1,15 +1,19 @@
-//! SAADC sampling paced by TIMER1 with an EasyDMA double buffer, tach edges
-//! captured into TIMER2 (which counts samples), and the VDD monitor.
+//! SAADC sampling paced by TIMER1 with an EasyDMA double buffer emptied by
+//! the SAADC interrupt into the firmware's block ring, tach edges captured
+//! into TIMER2 (which counts samples), and the VDD monitor.
 //!
 //! Register values follow the nRF52840 Product Specification v1.x (SAADC,
 //! TIMER, PPI, GPIOTE chapters); written from memory of that document and
 //! not yet checked on a kit (see README.md bring-up checklist).
 
+use core::cell::RefCell;
 use core::sync::atomic::{compiler_fence, Ordering};
+use critical_section::Mutex;
 use embassy_nrf::interrupt::InterruptExt;
 use embassy_nrf::pac;
 use embassy_nrf::saadc::Saadc;
 use firmware::hal::{Battery, Block, BlockSource, PulseCapture};
+use firmware::ring::{BlockRing, Consumer, Producer, NODE_DEPTH};
 
 /// Samples per DMA half, the same as the QEMU board.
 pub const BLOCK_LEN: usize = 256;
@@ -88,67 +92,170 @@ fn blocks_done() -> u32 {
 /// Board error of the sampling chain.
 #[derive(Clone, Copy, Debug, defmt::Format)]
 pub enum SampleError {
-    /// The DMA buffers were not available.
+    /// The DMA buffers or the block ring were not available.
     NoBuffers,
 }
 
-/// The SAADC with two DMA halves of [`BLOCK_LEN`] samples.
-pub struct SaadcSource {
-    _adc: Saadc<'static, 1>,
-    bufs: Option<&'static mut [[i16; BLOCK_LEN]; 2]>,
-    held: Option<usize>,
-    consumed: u32,
-    overrun_pending: bool,
+/// Blocks between the SAADC interrupt and the cycle: deep enough for the
+/// block that completes a spectrum segment (`firmware::ring` explains the
+/// depth). In `.bss`, 3 KiB.
+static RING: BlockRing<NODE_DEPTH, BLOCK_LEN> = BlockRing::new();
+
+/// What the SAADC interrupt owns while sampling: the two DMA halves and the
+/// ring's producer. Thread mode touches it only while the interrupt is
+/// masked in the NVIC (`SaadcSource::new` and `start`), and always in a
+/// critical section.
+static DMA: Mutex<RefCell<Option<DmaHalves>>> = Mutex::new(RefCell::new(None));
+
+/// EasyDMA double buffer, serviced by the SAADC interrupt.
+///
+/// nRF52840 PS (SAADC, EasyDMA), from memory, not yet checked on a kit:
+/// RESULT.PTR is latched by the START task and may be written again as soon
+/// as STARTED has been generated; END comes when MAXCNT samples are in
+/// RAM. PPI channel 1 triggers START on END, so the DMA continues at once
+/// into the buffer RESULT.PTR names, and forks END to TIMER3's COUNT task,
+/// which therefore counts finished blocks in hardware.
+struct DmaHalves {
+    bufs: &'static mut [[i16; BLOCK_LEN]; 2],
+    producer: Producer<'static, NODE_DEPTH, BLOCK_LEN>,
+    /// Half the DMA is filling (latched by the last START).
+    filling: usize,
+    /// Half RESULT.PTR names for the next START.
+    next: usize,
+    /// END events handled since the last restart.
+    done: u32,
 }
 
-impl SaadcSource {
-    /// Takes the configured SAADC (channel 0) and calibrates its offset.
-    pub fn new(adc: Saadc<'static, 1>) -> Self {
-        // the embassy interrupt handler stays masked: completion is polled
-        // with WFE (SEVONPEND), so the handler never clears our INTEN bits
-        embassy_nrf::interrupt::SAADC.disable();
-        let s = pac::SAADC;
-        s.events_calibratedone().write_value(0);
-        s.tasks_calibrateoffset().write_value(1);
-        while s.events_calibratedone().read() == 0 {}
-        s.events_calibratedone().write_value(0);
-        Self {
-            _adc: adc,
-            bufs: cortex_m::singleton!(: [[i16; BLOCK_LEN]; 2] = [[0; BLOCK_LEN]; 2]),
-            held: None,
-            consumed: 0,
-            overrun_pending: false,
-        }
-    }
-
+impl DmaHalves {
     fn ptr(&mut self, half: usize) -> u32 {
-        self.bufs
-            .as_mut()
-            .and_then(|b| b.get_mut(half))
-            .map_or(0, |b| addr(b.as_mut_ptr()))
+        self.bufs.get_mut(half).map_or(0, |b| addr(b.as_mut_ptr()))
     }
 
-    /// (Re)starts the DMA sequence: half 0 first, half 1 latched next.
+    /// (Re)starts the DMA sequence: half 0 first, half 1 latched next
+    /// (thread mode with the interrupt masked, or the interrupt itself).
     fn restart(&mut self) {
         let s = pac::SAADC;
         stop_saadc();
         pac::TIMER3.tasks_clear().write_value(1);
         pac::TIMER3.tasks_start().write_value(1);
-        self.consumed = 0;
-        self.held = None;
         s.samplerate().write(|w| w.0 = 0); // sampling triggered by the SAMPLE task
         s.result().maxcnt().write(|w| w.0 = BLOCK_LEN as u32);
         let p0 = self.ptr(0);
         s.result().ptr().write_value(p0);
         s.events_started().write_value(0);
         s.events_end().write_value(0);
-        s.intenset().write(|w| w.0 = 1 << 1); // END raises the (masked) IRQ: WFE wake-up
         compiler_fence(Ordering::SeqCst);
         s.tasks_start().write_value(1);
         while s.events_started().read() == 0 {}
         s.events_started().write_value(0);
         let p1 = self.ptr(1);
         s.result().ptr().write_value(p1);
+        self.filling = 0;
+        self.next = 1;
+        self.done = 0;
+    }
+
+    /// The interrupt's work: on END, copy the finished half into the ring
+    /// (a full ring counts it lost and flags the next block); on STARTED,
+    /// point RESULT.PTR at the half just copied, for the START after next.
+    /// The cycle may take several block times over one block; the DMA only
+    /// needs this handler, which takes microseconds.
+    fn service(&mut self) {
+        let s = pac::SAADC;
+        if s.events_end().read() != 0 {
+            s.events_end().write_value(0);
+            let hw = blocks_done();
+            // hardware count of ENDs since the restart, against ours: more
+            // than one new END means this handler ran over a block late and
+            // the halves no longer follow the pointer sequence
+            let new = hw.wrapping_sub(self.done);
+            if new > 1 {
+                self.producer.mark_lost(new);
+                self.restart();
+            } else {
+                self.done = hw;
+                compiler_fence(Ordering::SeqCst);
+                if let Some(b) = self.bufs.get(self.filling) {
+                    // Err(Full): counted and flagged by the ring
+                    let _ = self.producer.push(b);
+                }
+            }
+        }
+        if s.events_started().read() != 0 {
+            s.events_started().write_value(0);
+            self.filling = self.next;
+            self.next = 1 - self.filling.min(1);
+            let p = self.ptr(self.next);
+            s.result().ptr().write_value(p);
+        }
+        // read back so that the cleared events cannot re-trigger the
+        // interrupt after return (Nordic's advice for the nRF52 series, from
+        // memory)
+        let _ = s.events_end().read();
+    }
+}
+
+/// Handler of the SAADC interrupt, bound in main.rs before embassy's own
+/// handler (which then finds no event set and leaves INTEN alone).
+pub struct SampleIrq;
+
+impl embassy_nrf::interrupt::typelevel::Handler<embassy_nrf::interrupt::typelevel::SAADC>
+    for SampleIrq
+{
+    unsafe fn on_interrupt() {
+        critical_section::with(|cs| {
+            if let Ok(mut dma) = DMA.borrow(cs).try_borrow_mut() {
+                if let Some(d) = dma.as_mut() {
+                    d.service();
+                }
+            }
+        });
+        // wakes the cycle's WFE in `next_block` even if the interrupt came
+        // between its check of the ring and the WFE
+        cortex_m::asm::sev();
+    }
+}
+
+/// The SAADC sampling through the block ring: `next_block` hands out the
+/// oldest queued block (a copy owned by the cycle), `overrun` when blocks
+/// were lost before it.
+pub struct SaadcSource {
+    _adc: Saadc<'static, 1>,
+    consumer: Option<Consumer<'static, NODE_DEPTH, BLOCK_LEN>>,
+    block: [i16; BLOCK_LEN],
+}
+
+impl SaadcSource {
+    /// Takes the configured SAADC (channel 0) and calibrates its offset.
+    pub fn new(adc: Saadc<'static, 1>) -> Self {
+        // masked until `start`; calibration and the VDD reading poll their
+        // events with the interrupt masked
+        embassy_nrf::interrupt::SAADC.disable();
+        let s = pac::SAADC;
+        s.events_calibratedone().write_value(0);
+        s.tasks_calibrateoffset().write_value(1);
+        while s.events_calibratedone().read() == 0 {}
+        s.events_calibratedone().write_value(0);
+        let bufs = cortex_m::singleton!(: [[i16; BLOCK_LEN]; 2] = [[0; BLOCK_LEN]; 2]);
+        let consumer = match (bufs, RING.split()) {
+            (Some(bufs), Some((producer, consumer))) => critical_section::with(|cs| {
+                let mut dma = DMA.borrow(cs).try_borrow_mut().ok()?;
+                *dma = Some(DmaHalves {
+                    bufs,
+                    producer,
+                    filling: 0,
+                    next: 1,
+                    done: 0,
+                });
+                Some(consumer)
+            }),
+            _ => None,
+        };
+        Self {
+            _adc: adc,
+            consumer,
+            block: [0; BLOCK_LEN],
+        }
     }
 }
 
@@ -168,71 +275,73 @@ impl BlockSource for SaadcSource {
     }
 
     fn start(&mut self) -> Result<(), SampleError> {
-        if self.bufs.is_none() {
+        let Some(consumer) = self.consumer.as_mut() else {
             return Err(SampleError::NoBuffers);
-        }
+        };
+        let irq = embassy_nrf::interrupt::SAADC;
+        irq.disable();
         pac::TIMER2.tasks_clear().write_value(1);
         pac::TIMER2.tasks_start().write_value(1);
-        self.restart();
-        self.overrun_pending = false;
+        // blocks and a gap left from the last record are not this record's
+        consumer.drain();
+        let ok = critical_section::with(|cs| {
+            let mut dma = DMA.borrow(cs).try_borrow_mut().ok()?;
+            let d = dma.as_mut()?;
+            d.producer.restart();
+            d.restart();
+            Some(())
+        });
+        if ok.is_none() {
+            return Err(SampleError::NoBuffers);
+        }
+        let s = pac::SAADC;
+        s.intenset().write(|w| {
+            w.set_started(true);
+            w.set_end(true);
+        });
+        irq.unpend();
+        // SAFETY: the handler touches its state only inside a critical
+        // section, so unmasking it cannot break one in progress.
+        unsafe { irq.enable() };
         pac::TIMER1.tasks_clear().write_value(1);
         pac::TIMER1.tasks_start().write_value(1);
         Ok(())
     }
 
     fn next_block(&mut self) -> Result<Block<'_>, SampleError> {
-        if let Some(h) = self.held.take() {
-            // Hand the held half back before the other half completes;
-            // otherwise the DMA has already restarted on the wrong half.
-            if blocks_done() > self.consumed {
-                self.overrun_pending = true;
-                self.restart();
-            } else {
-                let p = self.ptr(h);
-                pac::SAADC.result().ptr().write_value(p);
-                if blocks_done() > self.consumed {
-                    self.overrun_pending = true;
-                    self.restart();
-                }
+        let consumer = self.consumer.as_mut().ok_or(SampleError::NoBuffers)?;
+        let popped = loop {
+            if let Some(p) = consumer.pop_into(&mut self.block) {
+                break p;
             }
-        }
-        loop {
-            if blocks_done() > self.consumed {
-                break;
-            }
-            pac::SAADC.events_end().write_value(0);
-            embassy_nrf::interrupt::SAADC.unpend();
-            if blocks_done() > self.consumed {
-                break;
-            }
+            // the interrupt (or its SEV) ends the wait
             cortex_m::asm::wfe();
-        }
-        compiler_fence(Ordering::SeqCst);
-        self.consumed += 1;
-        let half = usize::from(self.consumed.is_multiple_of(2)); // 1st END: half 0, 2nd: half 1, ...
-        self.held = Some(half);
-        let overrun = core::mem::take(&mut self.overrun_pending);
-        let buf = self
-            .bufs
-            .as_mut()
-            .and_then(|b| b.get_mut(half))
-            .ok_or(SampleError::NoBuffers)?;
-        for s in buf.iter_mut() {
+        };
+        for s in self.block.iter_mut() {
             *s = s.saturating_sub(MID_SCALE);
         }
         Ok(Block {
-            samples: &buf[..],
-            overrun,
+            samples: &self.block[..],
+            overrun: popped.overrun,
         })
     }
 
     fn stop(&mut self) {
         pac::TIMER1.tasks_stop().write_value(1);
+        embassy_nrf::interrupt::SAADC.disable();
         stop_saadc();
         pac::SAADC.intenclr().write(|w| w.0 = u32::MAX);
         pac::TIMER2.tasks_stop().write_value(1);
         pac::TIMER3.tasks_stop().write_value(1);
-        self.held = None;
+        if let Some(c) = self.consumer.as_ref() {
+            // bring-up figure: how close the record came to an overrun
+            defmt::debug!(
+                "block ring: high-water {} of {}, {} blocks lost since boot",
+                c.high_water(),
+                NODE_DEPTH,
+                c.lost()
+            );
+        }
     }
 }
 

@@ -563,53 +563,204 @@ fn point() -> PointConfig {
     p
 }
 
+/// Figures of one whole record through a `NodePipeline` fed i16 blocks of
+/// [`ADC_BLOCK`] (as the node's DMA delivers them).
+struct Record {
+    /// Instructions of all `push_i16` calls.
+    total: f64,
+    /// Blocks pushed.
+    blocks: u32,
+    /// The costliest single `push_i16` and its 1-based index.
+    worst: f64,
+    worst_at: u32,
+    /// The costliest block that completed no segment (the ordinary work).
+    worst_ordinary: f64,
+    /// `finish` (defect search, report).
+    finish: f64,
+    segments: u32,
+    decimation: u16,
+}
+
+/// Feeds a whole record and times every block and `finish`. A block whose
+/// `push_i16` completes a spectrum segment (the 4096-point transform and the
+/// power average run inside it) is told apart by `segments_missing`.
+fn run_record(m: &Meter, point: &PointConfig) -> Option<Record> {
+    let mut p = NodePipeline::new(point).ok()?;
+    let mut sig = Signal::new();
+    let mut blk = [0i16; ADC_BLOCK];
+    let mut r = Record {
+        total: 0.0,
+        blocks: 0,
+        worst: 0.0,
+        worst_at: 0,
+        worst_ordinary: 0.0,
+        finish: 0.0,
+        segments: 0,
+        decimation: p.decimation(),
+    };
+    let counts_per_g = 32_768.0 / 50.0;
+    while !p.complete() && r.blocks < 4000 {
+        blk.iter_mut().for_each(|c| *c = sig.next_i16(counts_per_g));
+        let missing = p.segments_missing();
+        let t = m.instr(&mut || p.push_i16(black_box(&blk)));
+        r.total += t;
+        r.blocks += 1;
+        if t > r.worst {
+            r.worst = t;
+            r.worst_at = r.blocks;
+        }
+        if p.segments_missing() == missing && t > r.worst_ordinary {
+            r.worst_ordinary = t;
+        }
+    }
+    let mut segs = 0u32;
+    r.finish = m.instr(&mut || {
+        let rep = p.finish();
+        segs = rep.segments;
+    });
+    r.segments = segs;
+    Some(r)
+}
+
+/// Instructions as milliseconds at the nRF52840's 64 MHz, one cycle each
+/// (a lower bound: FP loads and multiply-accumulates take more on silicon).
+fn ms_at_64mhz(instr: f64) -> f64 {
+    instr / 64_000.0
+}
+
 fn bench_pipeline(m: &Meter) {
     let point = point();
-    let Ok(mut p) = NodePipeline::new(&point) else {
+    let Some(r) = run_record(m, &point) else {
         report("pipeline", -1.0, "error", "pipeline refused");
         return;
     };
-    let mut sig = Signal::new();
-    let mut blk = [0i16; ADC_BLOCK];
-    let mut total = 0.0;
-    let mut blocks = 0u32;
-    let counts_per_g = 32_768.0 / 50.0;
-    while !p.complete() && blocks < 4000 {
-        blk.iter_mut().for_each(|c| *c = sig.next_i16(counts_per_g));
-        total += m.instr(&mut || p.push_i16(black_box(&blk)));
-        blocks += 1;
-    }
-    let mut segs = 0u32;
-    let t_fin = m.instr(&mut || {
-        let r = p.finish();
-        segs = r.segments;
-    });
     #[allow(clippy::cast_precision_loss)]
-    let samples = f64::from(blocks) * ADC_BLOCK as f64;
+    let samples = f64::from(r.blocks) * ADC_BLOCK as f64;
     report(
         "pipeline_per_sample",
-        total / samples,
+        r.total / samples,
         "instr/sample",
         "NodePipeline (4096 points, 3 bearings, constant 1500 rpm) push_i16, per input sample",
     );
     report(
         "pipeline_finish",
-        t_fin,
+        r.finish,
         "instr/report",
         "NodePipeline::finish (defect search, overall, report)",
     );
     report(
         "pipeline_record",
-        total + t_fin,
+        r.total + r.finish,
         "instr/record",
         "whole record incl. finish",
     );
     eprintln!(
         "INFO|pipeline: decimation {}, {} samples ({:.2} s), {} segments",
-        p.decimation(),
+        r.decimation,
         samples,
         samples / f64::from(FS),
-        segs
+        r.segments
+    );
+    node_blocks(&r, "51k2", 51_200.0);
+
+    // The same measuring point at the nRF52840 board's fixed rate.
+    let mut p25 = point;
+    p25.sample_rate_hz = 25_600.0;
+    match run_record(m, &p25) {
+        Some(r) => node_blocks(&r, "25k6", 25_600.0),
+        None => report("node_block_worst_25k6", -1.0, "error", "pipeline refused"),
+    }
+}
+
+/// The worst single block of the node pipeline beside the block period:
+/// what the sample queue must absorb (figures only, nothing asserted).
+fn node_blocks(r: &Record, tag: &str, fs: f64) {
+    let mut key = heapless::String::<40>::new();
+    let mut row = |name: &str, value: f64, unit: &str, what: &str| {
+        key.clear();
+        let _ = core::fmt::Write::write_fmt(&mut key, format_args!("{name}_{tag}"));
+        report(&key, value, unit, what);
+    };
+    row(
+        "node_block_worst",
+        r.worst,
+        "instr/block",
+        "NodePipeline::push_i16 of one 256-sample block, the costliest (completes a segment)",
+    );
+    row(
+        "node_block_ordinary",
+        r.worst_ordinary,
+        "instr/block",
+        "the costliest block that completes no segment",
+    );
+    row(
+        "node_block_mean",
+        r.total / f64::from(r.blocks.max(1)),
+        "instr/block",
+        "mean over the record's blocks",
+    );
+    row(
+        "node_finish",
+        r.finish,
+        "instr/call",
+        "NodePipeline::finish after the last block (sampling already stopped)",
+    );
+    #[allow(clippy::cast_precision_loss)]
+    let period_ms = ADC_BLOCK as f64 / fs * 1000.0;
+    let worst_ms = ms_at_64mhz(r.worst);
+    eprintln!(
+        "INFO|node at {:.1} kS/s ({} blocks, {} segments): worst block {:.0} instr (block {}) = {:.2} ms at 64 MHz, {:.2} block periods of {:.1} ms ({:.2} of 5.0 ms at 51.2 kS/s, {:.2} of 10.0 ms at 25.6 kS/s); ordinary worst {:.2} ms, mean {:.2} ms; finish {:.2} ms",
+        fs / 1000.0,
+        r.blocks,
+        r.segments,
+        r.worst,
+        r.worst_at,
+        worst_ms,
+        worst_ms / period_ms,
+        period_ms,
+        worst_ms / 5.0,
+        worst_ms / 10.0,
+        ms_at_64mhz(r.worst_ordinary),
+        ms_at_64mhz(r.total / f64::from(r.blocks.max(1))),
+        ms_at_64mhz(r.finish)
+    );
+}
+
+/// The node's block ring (`firmware::ring`): what the sampling interrupt
+/// spends copying a block in and the cycle copying it out.
+fn bench_ring(m: &Meter) {
+    use firmware::ring::{BlockRing, NODE_DEPTH};
+    static RING: BlockRing<NODE_DEPTH, ADC_BLOCK> = BlockRing::new();
+    let Some((mut tx, mut rx)) = RING.split() else {
+        return;
+    };
+    let mut sig = Signal::new();
+    let mut blk = [0i16; ADC_BLOCK];
+    let mut out = [0i16; ADC_BLOCK];
+    let (mut t_push, mut t_pop) = (0.0, 0.0);
+    for _ in 0..BLOCKS {
+        blk.iter_mut().for_each(|c| *c = sig.next_i16(2048.0));
+        t_push += m.instr(&mut || {
+            let _ = black_box(tx.push(black_box(&blk)));
+        });
+        t_pop += m.instr(&mut || {
+            black_box(rx.pop_into(black_box(&mut out)));
+        });
+        black_box(&out);
+    }
+    #[allow(clippy::cast_precision_loss)]
+    let n = BLOCKS as f64;
+    report(
+        "ring_push",
+        t_push / n,
+        "instr/block",
+        "firmware::ring Producer::push of one 256-sample block (the sampling interrupt's copy)",
+    );
+    report(
+        "ring_pop",
+        t_pop / n,
+        "instr/block",
+        "firmware::ring Consumer::pop_into of one 256-sample block (the cycle's copy)",
     );
 }
 
@@ -658,6 +809,11 @@ fn memory() {
         "DefectSearch",
     );
     r(
+        "mem_block_ring",
+        size_of::<firmware::ring::BlockRing<{ firmware::ring::NODE_DEPTH }, ADC_BLOCK>>(),
+        "BlockRing<6, 256> (the node's sample queue)",
+    );
+    r(
         "mem_point",
         size_of::<PointConfig>(),
         "PointConfig (copy held by the pipeline)",
@@ -678,6 +834,7 @@ fn main() -> ! {
     bench_pipeline(&m);
     bench_velocity(&m);
     bench_survey(&m);
+    bench_ring(&m);
     eprintln!("INFO|done");
     process::exit(0)
 }

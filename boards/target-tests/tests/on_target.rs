@@ -175,6 +175,57 @@ fn devices(
     }
 }
 
+/// The block ring with a real exception as its producer: SysTick pushes
+/// numbered blocks while the test (thread mode) pops them, so a push can
+/// preempt a pop halfway through its copy (the interrupt-and-thread use of
+/// the nRF52840 board; a ring that overwrote a slot still being read, or
+/// lost count of a gap, fails here).
+mod ring_irq {
+    use core::cell::RefCell;
+    use core::sync::atomic::{AtomicBool, AtomicU32, Ordering};
+    use cortex_m::interrupt::Mutex;
+    use firmware::ring::{BlockRing, Producer};
+
+    pub const DEPTH: usize = 4;
+    pub const LEN: usize = 32;
+    /// Blocks SysTick offers in all.
+    pub const BLOCKS: u32 = 3_000;
+    pub static RING: BlockRing<DEPTH, LEN> = BlockRing::new();
+    pub static PRODUCER: Mutex<RefCell<Option<Producer<'static, DEPTH, LEN>>>> =
+        Mutex::new(RefCell::new(None));
+    /// Blocks offered so far (pushed or lost).
+    pub static OFFERED: AtomicU32 = AtomicU32::new(0);
+    pub static DONE: AtomicBool = AtomicBool::new(false);
+
+    /// Block `seq`: every sample derived from it, so a torn block shows.
+    pub fn block(seq: u32) -> [i16; LEN] {
+        let mut b = [0i16; LEN];
+        for (j, s) in b.iter_mut().enumerate() {
+            let v = seq
+                .wrapping_mul(2_654_435_761)
+                .wrapping_add(j as u32 * 40_503);
+            *s = (v >> 16) as u16 as i16;
+        }
+        b[0] = (seq & 0x7FFF) as i16;
+        b
+    }
+
+    #[cortex_m_rt::exception]
+    fn SysTick() {
+        let seq = OFFERED.load(Ordering::Relaxed);
+        if seq >= BLOCKS {
+            DONE.store(true, Ordering::Release);
+            return;
+        }
+        cortex_m::interrupt::free(|cs| {
+            if let Some(p) = PRODUCER.borrow(cs).borrow_mut().as_mut() {
+                let _ = p.push(&block(seq));
+            }
+        });
+        OFFERED.store(seq + 1, Ordering::Release);
+    }
+}
+
 #[defmt_test::tests]
 mod tests {
     use super::*;
@@ -274,6 +325,67 @@ mod tests {
         defmt::assert!((o.crest_factor - core::f32::consts::SQRT_2).abs() < 2e-3);
         defmt::assert!((o.kurtosis - 1.5).abs() < 2e-3);
         defmt::assert_eq!(o.clipped, 0);
+    }
+
+    #[test]
+    fn block_ring_fed_by_an_exception_keeps_order_and_reports_every_gap() {
+        use super::ring_irq::*;
+        use core::sync::atomic::Ordering;
+        let (tx, mut rx) = RING.split().unwrap();
+        cortex_m::interrupt::free(|cs| PRODUCER.borrow(cs).replace(Some(tx)));
+        // SAFETY: only this test uses SysTick; it is stopped before returning.
+        let mut syst = unsafe { cortex_m::Peripherals::steal() }.SYST;
+        syst.set_clock_source(cortex_m::peripheral::syst::SystClkSource::Core);
+        syst.set_reload(20_000);
+        syst.clear_current();
+        syst.enable_interrupt();
+        syst.enable_counter();
+        let mut out = [0i16; LEN];
+        let (mut received, mut flagged, mut plain) = (0u32, 0u32, 0u32);
+        let mut last: Option<u32> = None;
+        loop {
+            let finished = DONE.load(Ordering::Acquire);
+            match rx.pop_into(&mut out) {
+                Some(p) => {
+                    // the sequence number modulo 2^15 and the pattern it makes
+                    let expected = last.map_or(0, |l| l + 1);
+                    let mut seq = expected;
+                    while (seq & 0x7FFF) as i16 != out[0] {
+                        seq += 1;
+                        defmt::assert!(seq < expected + 0x8000, "sequence lost");
+                    }
+                    defmt::assert!(out == block(seq), "torn block {}", seq);
+                    defmt::assert_eq!(p.overrun, seq != expected, "gap flag at {}", seq);
+                    if p.overrun {
+                        flagged += 1;
+                    } else {
+                        plain += 1;
+                    }
+                    received += 1;
+                    last = Some(seq);
+                    if received % 100 == 0 {
+                        // a slow consumer: wait out more blocks than the ring holds
+                        let until = OFFERED.load(Ordering::Acquire) + DEPTH as u32 + 2;
+                        while OFFERED.load(Ordering::Acquire) < until.min(BLOCKS)
+                            && !DONE.load(Ordering::Acquire)
+                        {}
+                    }
+                }
+                None if finished => break,
+                None => {}
+            }
+        }
+        syst.disable_interrupt();
+        syst.disable_counter();
+        defmt::assert_eq!(rx.lost(), BLOCKS - received);
+        defmt::assert!(flagged > 0 && rx.lost() > 0);
+        defmt::assert!(plain > 1_000);
+        defmt::info!(
+            "ring under SysTick: {} blocks taken, {} lost, {} gaps flagged",
+            received,
+            rx.lost(),
+            flagged
+        );
     }
 
     #[test]
