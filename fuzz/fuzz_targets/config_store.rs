@@ -19,7 +19,6 @@
 //! loss the old or the new bytes load, never anything else.
 #![no_main]
 
-use embedded_storage::nor_flash::{ErrorType, NorFlash, NorFlashErrorKind, ReadNorFlash};
 use firmware::config::{StoredConfig, MAX_RECORD_LEN, MAX_STORED_LEN};
 use firmware::crc::crc32;
 use firmware::hal::{Slot, Storage};
@@ -27,7 +26,7 @@ use firmware::identity::{Identity, IDENTITY_LEN};
 use firmware::store::{FlashStore, Layout, MAX_PAYLOAD, PAGE_HEADER_LEN, PAGE_MAGIC};
 use libfuzzer_sys::fuzz_target;
 
-const PAGE: usize = 4096;
+use flash::PAGE;
 const IMAGE: usize = PAGE_HEADER_LEN + MAX_PAYLOAD + 4;
 const LAYOUT: Layout = Layout {
     config: [0, PAGE as u32],
@@ -35,102 +34,12 @@ const LAYOUT: Layout = Layout {
     identity: 4 * PAGE as u32,
 };
 
-/// NOR flash in RAM (4-byte words, 4 KiB pages, as the nRF52840 NVMC) that
-/// can lose power at a given step: each page erase and each word is one step;
-/// an interrupted erase leaves the page's first third erased and the rest
-/// scrambled, an interrupted word half its new bits (as firmware/tests).
-struct Flash {
-    mem: Vec<u8>,
-    budget: Option<usize>,
-    off: bool,
-}
-
-impl Flash {
-    fn step(&mut self) -> bool {
-        if self.off {
-            return false;
-        }
-        match self.budget {
-            Some(0) => {
-                self.off = true;
-                false
-            }
-            Some(b) => {
-                self.budget = Some(b - 1);
-                true
-            }
-            None => true,
-        }
-    }
-}
-
-impl ErrorType for Flash {
-    type Error = NorFlashErrorKind;
-}
-
-impl ReadNorFlash for Flash {
-    const READ_SIZE: usize = 1;
-    fn read(&mut self, offset: u32, bytes: &mut [u8]) -> Result<(), Self::Error> {
-        if self.off {
-            return Err(NorFlashErrorKind::Other);
-        }
-        let o = offset as usize;
-        let src = self
-            .mem
-            .get(o..o + bytes.len())
-            .ok_or(NorFlashErrorKind::OutOfBounds)?;
-        bytes.copy_from_slice(src);
-        Ok(())
-    }
-    fn capacity(&self) -> usize {
-        self.mem.len()
-    }
-}
-
-impl NorFlash for Flash {
-    const WRITE_SIZE: usize = 4;
-    const ERASE_SIZE: usize = PAGE;
-    fn erase(&mut self, from: u32, to: u32) -> Result<(), Self::Error> {
-        let (from, to) = (from as usize, to as usize);
-        if from % PAGE != 0 || to % PAGE != 0 || to < from || to > self.mem.len() {
-            return Err(NorFlashErrorKind::NotAligned);
-        }
-        for page in (from..to).step_by(PAGE) {
-            if !self.step() {
-                for (i, b) in self.mem[page..page + PAGE].iter_mut().enumerate() {
-                    if i < PAGE / 3 {
-                        *b = 0xFF;
-                    } else {
-                        *b ^= 0x5A;
-                    }
-                }
-                return Err(NorFlashErrorKind::Other);
-            }
-            self.mem[page..page + PAGE].fill(0xFF);
-        }
-        Ok(())
-    }
-    fn write(&mut self, offset: u32, bytes: &[u8]) -> Result<(), Self::Error> {
-        let o = offset as usize;
-        if o % 4 != 0 || bytes.len() % 4 != 0 || o + bytes.len() > self.mem.len() {
-            return Err(NorFlashErrorKind::NotAligned);
-        }
-        for (w, chunk) in bytes.chunks_exact(4).enumerate() {
-            let at = o + 4 * w;
-            // NOR: each word is programmed once after its page's erase
-            assert_eq!(&self.mem[at..at + 4], &[0xFF; 4], "word programmed twice");
-            if !self.step() {
-                self.mem[at] &= chunk[0];
-                self.mem[at + 1] &= chunk[1];
-                return Err(NorFlashErrorKind::Other);
-            }
-            for (m, b) in self.mem[at..at + 4].iter_mut().zip(chunk) {
-                *m &= *b;
-            }
-        }
-        Ok(())
-    }
-}
+/// The power-loss NOR flash model of the firmware's host tests (4-byte
+/// words, 4 KiB pages, as the nRF52840 NVMC), shared rather than copied.
+#[path = "../../firmware/tests/common/flash.rs"]
+#[allow(dead_code)]
+mod flash;
+use flash::FakeFlash as Flash;
 
 /// Reads bytes off the front of the input (zeros once it runs out).
 struct Input<'a>(&'a [u8]);
@@ -237,11 +146,8 @@ fuzz_target!(|data: &[u8]| {
         }
         expect = Some(best.map(|(_, p)| p).unwrap_or_default());
     }
-    let flash = Flash {
-        mem,
-        budget: None,
-        off: false,
-    };
+    let mut flash = Flash::new(0);
+    flash.mem = mem;
     let mut store = FlashStore::new(flash, LAYOUT).expect("page layout supported");
 
     // As Node::new: the identity, then the configuration into its buffer.
@@ -271,13 +177,14 @@ fuzz_target!(|data: &[u8]| {
     let n = usize::from(inp.u8()) % (MAX_PAYLOAD + 1);
     let new = inp.take(n).to_vec();
     let mut flash = store.into_flash();
-    flash.budget = (cut < 128).then_some(usize::from(cut));
+    if cut < 128 {
+        flash.cut_at(usize::from(cut));
+    }
     let mut store = FlashStore::new(flash, LAYOUT).expect("page layout supported");
     let stored = store.store(Slot::Config, &new);
     let mut flash = store.into_flash();
     let cut_happened = flash.off;
-    flash.budget = None;
-    flash.off = false;
+    flash.power_on();
     let mut store = FlashStore::new(flash, LAYOUT).expect("page layout supported");
     let after = load(&mut store, MAX_PAYLOAD).expect("a read that cannot fail");
     match stored {
