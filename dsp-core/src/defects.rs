@@ -77,10 +77,16 @@
 //!
 //! # Across bearings
 //! [`DefectSearch::attribute_bearings`] runs after every bearing of a point
-//! has been searched (the pipeline calls it): a counted peak that lies on a
-//! harmonic of a stronger *detected* family of another bearing is not
-//! counted for the weaker one (`shared_bearing`), and the decisions are made
-//! again. Lines of different bearings on one shaft train can coincide.
+//! has been searched (the pipeline calls it): a counted peak that lies on
+//! the comb of a *detected* family of another bearing (a harmonic of its
+//! anchored line or one of its modulation sidebands, as in step 5) is not
+//! counted for the weaker family (`shared_bearing`), and the decisions are
+//! made again. The more complete series is the stronger one (counted
+//! harmonics over the highest counted harmonic number), then the larger
+//! summed prominence. Lines of different bearings on one shaft train can
+//! coincide, and a race fault's sidebands otherwise make up a line family
+//! for a healthy bearing (`envord validate --decoy` measures this on open
+//! data, docs/validation.md).
 //!
 //! These rules were checked on open bearing data (`envord validate`,
 //! docs/validation.md).
@@ -543,6 +549,64 @@ fn on_family(
     })
 }
 
+/// Modulation spacings of a family (0 = none): BPFI at the shaft order (the
+/// inner race turns through the load zone), BSF at FTF (the element turns
+/// with the cage), BPFO at FTF (the elements that strike the defect return
+/// once per cage turn) and at the shaft order (a load that turns with the
+/// shaft); FTF none.
+fn modulation_spacing(kind: DefectKind, shaft_order: f32, ftf_order: f32) -> [f32; 2] {
+    match kind {
+        DefectKind::Bpfi => [shaft_order, 0.0],
+        DefectKind::Bsf => [ftf_order, 0.0],
+        DefectKind::Bpfo => [ftf_order, shaft_order],
+        DefectKind::Ftf => [0.0; 2],
+    }
+}
+
+/// A detected family of one bearing, for cross-bearing attribution.
+struct Family {
+    bearing: usize,
+    kind: DefectKind,
+    /// Anchored actual line `L'`.
+    line: f32,
+    anchor: u8,
+    /// Summed prominence of the counted harmonics (dB).
+    strength: f32,
+    /// Nominal line (for the slip-widened sideband tolerance).
+    nominal: f32,
+    spacing: [f32; 2],
+    /// Counted harmonics and the highest counted harmonic number.
+    counted: u8,
+    highest: u8,
+}
+
+impl Family {
+    /// Whether the order `o` lies on this family's comb: a harmonic of the
+    /// anchored line or one of its modulation sidebands (step 5 of the module
+    /// doc).
+    fn explains(&self, o: f32, cfg: &DefectSearchConfig, opb: f32) -> bool {
+        self.spacing
+            .iter()
+            .any(|&sp| on_family(o, self.line, self.anchor, self.nominal, sp, cfg, opb).is_some())
+    }
+
+    /// Whether this family takes a shared peak from `other` (of another
+    /// bearing): the more complete series wins (counted harmonics over the
+    /// highest counted harmonic number, compared exactly), then the
+    /// stronger. A series with every other harmonic missing is more
+    /// plausibly the even harmonics of a line at twice its order, and a
+    /// series built from another family's sidebands is rarely complete.
+    fn dominates(&self, other: &Family) -> bool {
+        let (a, b) = (u16::from(self.counted), u16::from(self.highest.max(1)));
+        let (c, d) = (u16::from(other.counted), u16::from(other.highest.max(1)));
+        match (a * d).cmp(&(c * b)) {
+            core::cmp::Ordering::Greater => true,
+            core::cmp::Ordering::Less => false,
+            core::cmp::Ordering::Equal => self.strength > other.strength,
+        }
+    }
+}
+
 /// Attribution rank: the family's other evidence (dB), then lower harmonic number.
 #[derive(Clone, Copy)]
 struct Rank(f32, u8);
@@ -709,14 +773,18 @@ impl DefectSearch {
     /// searched in the same spectrum (`diagnoses[i]` from `orders[i]`).
     ///
     /// Lines of different bearings can coincide (a 4th outer-race harmonic of
-    /// one bearing within 2 % of another bearing's BPFI). A counted peak of
-    /// one bearing's family that lies on a harmonic `m >= 1` of a *detected*
-    /// family of another bearing (its anchored line `L'`, tolerance as in
-    /// step 5 of the module doc), where that family is stronger (summed
-    /// prominence of its counted harmonics), is not counted for the weaker
-    /// one; `shared_bearing` and `shared_with` name the other bearing and
-    /// kind. Scores and decisions are then made again. Strengths are taken
-    /// before any change, so the order of the bearings does not matter.
+    /// one bearing within 2 % of another bearing's BPFI), and the shaft-rate
+    /// sidebands of an inner-race fault can line up as a harmonic series of
+    /// another bearing's line. A counted peak of one bearing's family that
+    /// lies on the comb of a *detected* family of another bearing (a harmonic
+    /// `m >= 1` of its anchored line `L'` or a modulation sideband of one,
+    /// tolerances as in step 5 of the module doc), where that family is the
+    /// stronger, is not counted for the weaker one; `shared_bearing` and
+    /// `shared_with` name the other bearing and kind. Stronger means the
+    /// more complete series (counted harmonics over the highest counted
+    /// harmonic number), then the larger summed prominence of the counted
+    /// harmonics. Scores and decisions are then made again. Strengths are
+    /// taken before any change, so the order of the bearings does not matter.
     pub fn attribute_bearings(
         &self,
         spectrum: &SpectrumView<'_>,
@@ -731,10 +799,16 @@ impl DefectSearch {
                 .map(|h| h.prominence_db.max(0.0))
                 .sum()
         };
-        // Detected families: (bearing, kind, L', anchor harmonic, strength).
-        let mut fams: heapless::Vec<(usize, DefectKind, f32, u8, f32), MAX_FAMILIES> =
-            heapless::Vec::new();
-        for (bi, d) in diagnoses.iter().enumerate() {
+        let counted = |r: &DefectResult| -> (u8, u8) {
+            r.harmonics
+                .iter()
+                .filter(|h| h.counted)
+                .fold((0, 0), |(n, top), h| (n + 1, top.max(h.harmonic)))
+        };
+        // Detected families: (bearing, kind, L', anchor harmonic, strength,
+        // nominal line, modulation spacings of that bearing).
+        let mut fams: heapless::Vec<Family, MAX_FAMILIES> = heapless::Vec::new();
+        for (bi, (d, o)) in diagnoses.iter().zip(orders.iter()).enumerate() {
             let Some(d) = &**d else { continue };
             for r in d
                 .results
@@ -743,7 +817,17 @@ impl DefectSearch {
             {
                 if let Some(ha) = r.anchor {
                     // Capacity 4 kinds x 8 bearings; more are not compared.
-                    let _ = fams.push((bi, r.kind, r.line_actual, ha, strength(r)));
+                    let _ = fams.push(Family {
+                        bearing: bi,
+                        kind: r.kind,
+                        line: r.line_actual,
+                        anchor: ha,
+                        strength: strength(r),
+                        nominal: r.line_order,
+                        spacing: modulation_spacing(r.kind, o.shaft_order(), o.ftf_order()),
+                        counted: counted(r).0,
+                        highest: counted(r).1,
+                    });
                 }
             }
         }
@@ -759,22 +843,30 @@ impl DefectSearch {
                 mask: self.config.mask_shaft_harmonics,
             };
             for r in d.results.iter_mut() {
-                let mine = strength(r);
+                // This family as the rivals see it (anchored line, comb).
+                let me = r.anchor.filter(|_| r.line_actual > 0.0).map(|ha| Family {
+                    bearing: bi,
+                    kind: r.kind,
+                    line: r.line_actual,
+                    anchor: ha,
+                    strength: strength(r),
+                    nominal: r.line_order,
+                    spacing: modulation_spacing(r.kind, o.shaft_order(), o.ftf_order()),
+                    counted: counted(r).0,
+                    highest: counted(r).1,
+                });
                 let mut changed = false;
                 for hr in r.harmonics.iter_mut().filter(|h| h.counted) {
                     let f = hr.found_order;
-                    let rival = fams.iter().find(|&&(bj, _, line, ha, st)| {
-                        if bj == bi || st <= mine {
-                            return false;
-                        }
-                        let m = libm::roundf(f / line);
-                        let tol = (self.config.refine_bins + m / (4.0 * f32::from(ha))) * opb;
-                        m >= 1.0 && libm::fabsf(f - m * line) <= tol
+                    let rival = fams.iter().find(|fam| {
+                        fam.bearing != bi
+                            && fam.explains(f, &self.config, opb)
+                            && me.as_ref().is_none_or(|me| fam.dominates(me))
                     });
-                    if let Some(&(bj, kind, ..)) = rival {
+                    if let Some(fam) = rival {
                         hr.counted = false;
-                        hr.shared_with = Some(kind);
-                        hr.shared_bearing = u8::try_from(bj).ok();
+                        hr.shared_with = Some(fam.kind);
+                        hr.shared_bearing = u8::try_from(fam.bearing).ok();
                         changed = true;
                     }
                 }
@@ -930,16 +1022,11 @@ impl DefectSearch {
             }
         };
         let rank = |k: usize, h: u8, o: f32| Rank(evidence(k, o), h);
-        // Modulation spacings of each kind's family: BPFI at the shaft order
-        // (the inner race turns through the load zone), BSF at FTF (the
-        // element turns with the cage), BPFO at FTF (the elements that strike
-        // the defect return once per cage turn) and at the shaft order (a
-        // load that turns with the shaft); FTF none.
-        let spacing: [[f32; 2]; 4] = core::array::from_fn(|k| match DefectKind::from_index(k) {
-            Some(DefectKind::Bpfi) => [ctx.shaft_order, 0.0],
-            Some(DefectKind::Bsf) => [ctx.ftf_order, 0.0],
-            Some(DefectKind::Bpfo) => [ctx.ftf_order, ctx.shaft_order],
-            _ => [0.0; 2],
+        // Modulation spacings of each kind's family (`modulation_spacing`).
+        let spacing: [[f32; 2]; 4] = core::array::from_fn(|k| {
+            DefectKind::from_index(k).map_or([0.0; 2], |kind| {
+                modulation_spacing(kind, ctx.shaft_order, ctx.ftf_order)
+            })
         });
         let nominal: [f32; 4] =
             core::array::from_fn(|k| results.get(k).map_or(0.0, |r| r.line_order));

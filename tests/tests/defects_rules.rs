@@ -450,3 +450,106 @@ fn cage_family_does_not_explain_race_lines() {
     assert_eq!(o.harmonics_found, 2, "{o:?}");
     assert!(o.detected, "{o:?}");
 }
+
+/// Two bearings on one shaft. Bearing 0 (CWRU drive end) has an inner-race
+/// fault: BPFI harmonics with shaft sidebands at +-1 and +-2 orders (the
+/// race turns through the load zone, common practice). Bearing 1 is healthy;
+/// its BPFI (0.8153 x bearing 0's: 4.415 orders) falls on the lower sideband
+/// BPFI - 1, its 2nd harmonic on 2 BPFI - 2, and its own shaft "sidebands"
+/// on BPFI - 2 and BPFI. Searched alone, bearing 1 shows an inner-race
+/// detection made entirely of bearing 0's sidebands; across bearings those
+/// peaks lie on bearing 0's comb (step 5 sidebands), which is the stronger
+/// family, so bearing 1 detects nothing and bearing 0 keeps its finding.
+/// Before cross-bearing attribution looked at sidebands (harmonics only),
+/// bearing 1 kept the detection.
+#[test]
+fn sidebands_of_another_bearings_fault_are_not_a_family() {
+    let bpfi = 5.4152f32;
+    let mut s = floor(21, 0.01);
+    for h in 1..=3 {
+        let c = bpfi * h as f32;
+        add_line(&mut s, c, 0.3);
+        for k in [-2.0f32, -1.0, 1.0, 2.0] {
+            add_line(&mut s, c + k, 0.1);
+        }
+    }
+    let k = (bpfi - 1.0) / bpfi;
+    let healthy = DefectMultiples::new(3.5848 * k, 5.4152 * k, 0.39828 * k, 4.7135 / 2.0 * k)
+        .unwrap()
+        .orders(ShaftRatio::TACH);
+    let view = SpectrumView::new(&s, OPB, Window::Hann).unwrap();
+    let search = DefectSearch::new(DefectSearchConfig::default()).unwrap();
+    let mut faulty = Some(search.search(&view, &cwru()).unwrap());
+    let mut other = Some(search.search(&view, &healthy).unwrap());
+    let alone = other
+        .as_ref()
+        .unwrap()
+        .get(DefectKind::Bpfi)
+        .unwrap()
+        .clone();
+    assert!(
+        alone.detected,
+        "alone, the sidebands look like a family: {alone:?}"
+    );
+    search.attribute_bearings(&view, &[cwru(), healthy], &mut [&mut faulty, &mut other]);
+    let faulty = faulty.unwrap();
+    let other = other.unwrap();
+    assert!(faulty.get(DefectKind::Bpfi).unwrap().detected);
+    assert_eq!(other.detected().count(), 0, "{other:?}");
+    let h1 = &other.get(DefectKind::Bpfi).unwrap().harmonics[0];
+    assert!(h1.found && !h1.counted, "{h1:?}");
+    assert_eq!(
+        (h1.shared_bearing, h1.shared_with),
+        (Some(0), Some(DefectKind::Bpfi))
+    );
+}
+
+/// A more complete series keeps its peaks against a stronger but gappy one.
+/// Bearing 1's line is half of bearing 0's outer-race line: its even
+/// harmonics (2, 4) sit on bearing 0's complete series (1-4), its 3rd finds
+/// nothing, and a strong line of its own at harmonic 1 (0.5 x BPFO, on no
+/// comb of bearing 0) makes its summed prominence the larger. By strength
+/// alone bearing 1 would take bearing 0's 1st and 2nd harmonics (its 2nd
+/// and 4th); by completeness (4 of 4 against 3 of 4) bearing 0 keeps all
+/// four, and bearing 1, left with one line, detects nothing.
+#[test]
+fn a_complete_series_keeps_its_peaks_against_a_gappy_stronger_one() {
+    let bpfo = 3.5848f32;
+    let mut s = floor(22, 0.01);
+    for h in 1..=4 {
+        add_line(&mut s, bpfo * h as f32, 0.1);
+    }
+    add_line(&mut s, 0.5 * bpfo, 3.0);
+    let half = DefectMultiples::new(bpfo / 2.0, 7.9, 0.2, 1.7)
+        .unwrap()
+        .orders(ShaftRatio::TACH);
+    let view = SpectrumView::new(&s, OPB, Window::Hann).unwrap();
+    let search = DefectSearch::new(DefectSearchConfig::default()).unwrap();
+    let mut a = Some(search.search(&view, &cwru()).unwrap());
+    let mut b = Some(search.search(&view, &half).unwrap());
+    let strength = |r: &dsp_core::defects::DefectResult| -> f32 {
+        r.harmonics
+            .iter()
+            .filter(|h| h.counted)
+            .map(|h| h.prominence_db)
+            .sum()
+    };
+    let (sa, sb) = (
+        strength(a.as_ref().unwrap().get(DefectKind::Bpfo).unwrap()),
+        strength(b.as_ref().unwrap().get(DefectKind::Bpfo).unwrap()),
+    );
+    assert!(
+        sb > sa,
+        "bearing 1 must be the stronger for this test: {sb} vs {sa}"
+    );
+    search.attribute_bearings(&view, &[cwru(), half], &mut [&mut a, &mut b]);
+    let (a, b) = (a.unwrap(), b.unwrap());
+    let bpfo_a = a.get(DefectKind::Bpfo).unwrap();
+    assert!(bpfo_a.detected, "{bpfo_a:?}");
+    assert_eq!(
+        bpfo_a.harmonics.iter().filter(|h| h.counted).count(),
+        4,
+        "{bpfo_a:?}"
+    );
+    assert!(!b.get(DefectKind::Bpfo).unwrap().detected, "{b:?}");
+}
