@@ -105,6 +105,84 @@ pub struct ValidateArgs {
     /// Exit 1 when fewer scored records than this are right (a CI floor).
     #[arg(long)]
     pub min_correct: Option<usize>,
+    /// False-alarm check: also watch a decoy bearing on the same shaft
+    /// whose defect multiples are the documented ones times this factor
+    /// (for example 0.87), as a node on a gearbox watches several bearings.
+    /// The record has no fault of that bearing, so any detection on it is a
+    /// false alarm (counted apart); the documented bearing is scored as usual.
+    #[arg(long, value_parser = parse_decoy)]
+    pub decoy: Option<f32>,
+    /// With `--decoy`: watch the decoy bearing alone (the documented one is
+    /// not watched, so its lines cannot be attributed to it). Every record is
+    /// then expected to show nothing.
+    #[arg(long, requires = "decoy")]
+    pub decoy_alone: bool,
+    /// With `--decoy`: exit 1 when the decoy bearing shows a detection on
+    /// more records than this (a CI ceiling).
+    #[arg(long, requires = "decoy")]
+    pub max_decoy_alarms: Option<usize>,
+}
+
+fn parse_decoy(s: &str) -> Result<f32, String> {
+    let f: f32 = s.trim().parse().map_err(|e| format!("{s}: {e}"))?;
+    if f.is_finite() && (0.25..=4.0).contains(&f) && (f - 1.0).abs() >= 0.02 {
+        Ok(f)
+    } else {
+        Err(format!(
+            "{s}: a decoy factor lies in 0.25-4 and at least 2 % away from 1"
+        ))
+    }
+}
+
+/// The decoy of a manifest entry for [`ValidateArgs::decoy`]: the same
+/// record and speed with a decoy bearing whose defect multiples are the
+/// documented ones scaled by `factor`; watched beside the documented bearing,
+/// or `alone` in its place (then `none` is the expected fault and the
+/// original is kept in a note).
+pub fn decoy_entry(entry: &ManifestEntry, factor: f32, alone: bool) -> ManifestEntry {
+    let record = entry.record.clone().and_then(|mut rec| {
+        let bearing = Bearing {
+            name: name_from("documented"),
+            shaft: 0,
+            kinematics: rec.kinematics,
+        };
+        let m = bearing.multiples().map_err(|e| FieldError {
+            record: rec.file.clone(),
+            field: "bearing".into(),
+            message: format!("{e}"),
+        })?;
+        let decoy = BearingKinematics::Multiples {
+            bpfo_x: m.bpfo() * factor,
+            bpfi_x: m.bpfi() * factor,
+            ftf_x: m.ftf() * factor,
+            bsf_x: m.bsf() * factor,
+        };
+        if alone {
+            rec.notes.push(format!(
+                "decoy bearing alone: the documented multiples x {factor} (was {})",
+                if rec.fault_location.is_empty() {
+                    "-"
+                } else {
+                    rec.fault_location.as_str()
+                }
+            ));
+            rec.kinematics = decoy;
+            rec.fault_location = "none".into();
+        } else {
+            rec.decoy = Some(decoy);
+        }
+        Ok(rec)
+    });
+    ManifestEntry {
+        file: entry.file.clone(),
+        fault_location: if alone {
+            Some("none".into())
+        } else {
+            entry.fault_location.clone()
+        },
+        channel: entry.channel.clone(),
+        record,
+    }
 }
 
 /// One usable manifest record.
@@ -126,6 +204,8 @@ pub struct ManifestRecord {
     pub kinematics: BearingKinematics,
     /// Remarks on how the record was read (fallbacks, disagreements).
     pub notes: Vec<String>,
+    /// A decoy bearing watched beside the documented one (`--decoy`).
+    pub decoy: Option<BearingKinematics>,
 }
 
 /// Why one manifest record cannot be used: the record (its `file`, or its
@@ -495,6 +575,7 @@ fn parse_record(
         faulted_bearing,
         kinematics,
         notes,
+        decoy: None,
     })
 }
 
@@ -570,16 +651,26 @@ pub fn validation_point(rec: &ManifestRecord, samples: usize) -> Result<PointCon
         shaft: 0,
         kinematics: rec.kinematics,
     });
+    if let Some(kinematics) = rec.decoy {
+        let _ = p.bearings.push(Bearing {
+            name: name_from("decoy"),
+            shaft: 0,
+            kinematics,
+        });
+    }
     let top_line = p
         .bearings
-        .first()
-        .and_then(|b| b.multiples().ok())
-        .map(|m| {
-            m.orders(ShaftRatio::TACH)
-                .lines()
-                .iter()
-                .fold(0.0f32, |a, &l| a.max(l))
+        .iter()
+        .map(|b| {
+            b.multiples().ok().map(|m| {
+                m.orders(ShaftRatio::TACH)
+                    .lines()
+                    .iter()
+                    .fold(0.0f32, |a, &l| a.max(l))
+            })
         })
+        .try_fold(0.0f32, |a, l| l.map(|l| a.max(l)))
+        .filter(|&l| l > 0.0)
         .ok_or("bearing multiples out of range")?;
     #[allow(clippy::cast_precision_loss, clippy::cast_possible_truncation)]
     let revs =
@@ -665,6 +756,9 @@ pub struct RecordResult {
     pub notes: Vec<String>,
     /// Found harmonics per kind, as text (`h2@10.81(17dB)`, `*` = not counted).
     pub detail: Vec<String>,
+    /// Kinds detected on the decoy bearing (`Some` when one was watched):
+    /// each a false alarm.
+    pub decoy_detected: Option<Vec<DefectKind>>,
 }
 
 /// Whether a detection list is right for an expectation (see the module doc).
@@ -738,6 +832,7 @@ fn blank(entry: &ManifestEntry) -> RecordResult {
         error: None,
         notes: Vec::new(),
         detail: Vec::new(),
+        decoy_detected: None,
     }
 }
 
@@ -840,7 +935,33 @@ fn analyse_into(
     }
     if let Some(d) = rep.bearings.first().and_then(|b| b.diagnosis.as_ref()) {
         out.detected = d.detected().collect();
+        out.detail = detail_lines(d, "");
         for r in &d.results {
+            if let Some(s) = out.scores.get_mut(r.kind.index()) {
+                *s = r.score_db;
+            }
+        }
+    }
+    if let Some(d) = rep.bearings.get(1).and_then(|b| b.diagnosis.as_ref()) {
+        out.detail.extend(detail_lines(d, "decoy "));
+    }
+    if rec.decoy.is_some() {
+        out.decoy_detected = Some(
+            rep.bearings
+                .get(1)
+                .and_then(|b| b.diagnosis.as_ref())
+                .map(|d| d.detected().collect())
+                .unwrap_or_default(),
+        );
+    }
+    Ok(())
+}
+
+/// Found harmonics per kind, as text: `h2@10.809(28)`, `*` = not counted.
+fn detail_lines(d: &dsp_core::defects::BearingDiagnosis, prefix: &str) -> Vec<String> {
+    d.results
+        .iter()
+        .map(|r| {
             let f: Vec<String> = r
                 .harmonics
                 .iter()
@@ -855,18 +976,14 @@ fn analyse_into(
                     )
                 })
                 .collect();
-            out.detail.push(format!(
-                "{} sb {} {}",
+            format!(
+                "{prefix}{} sb {} {}",
                 r.kind.name(),
                 r.sideband_db.map_or("-".into(), |s| format!("{s:.0}")),
                 f.join(" ")
-            ));
-            if let Some(s) = out.scores.get_mut(r.kind.index()) {
-                *s = r.score_db;
-            }
-        }
-    }
-    Ok(())
+            )
+        })
+        .collect()
 }
 
 fn kind_names(k: &[DefectKind]) -> Vec<&'static str> {
@@ -910,12 +1027,14 @@ pub fn totals(results: &[RecordResult]) -> Vec<(String, usize, usize)> {
 }
 
 /// Analyses every entry of the manifest in `dir` (optionally one channel
-/// only). Only an unreadable manifest is an error; each record's own
-/// failure is in its result.
+/// only; with `decoy`, each for its [`decoy_entry`]). Only an unreadable
+/// manifest is an error; each record's own failure is in its result.
 pub fn validate_dir(
     dir: &Path,
     rule: BandRule,
     channel: Option<&str>,
+    decoy: Option<f32>,
+    alone: bool,
 ) -> Result<Vec<RecordResult>, CliError> {
     let mpath = dir.join("manifest.toml");
     let text = std::fs::read_to_string(&mpath)
@@ -923,6 +1042,9 @@ pub fn validate_dir(
     let mut entries = parse_manifest(&text).map_err(|e| CliError::input(mpath.display(), e))?;
     if let Some(ch) = channel {
         entries.retain(|r| r.channel.eq_ignore_ascii_case(ch));
+    }
+    if let Some(f) = decoy {
+        entries = entries.iter().map(|e| decoy_entry(e, f, alone)).collect();
     }
     Ok(entries
         .iter()
@@ -961,6 +1083,7 @@ pub fn report_json(data_dir: &Path, results: &[RecordResult]) -> Value {
                 "flags": r.flags,
                 "error": r.error,
                 "notes": r.notes,
+                "decoy_detected": r.decoy_detected.as_deref().map(kind_names),
             })
         })
         .collect();
@@ -974,13 +1097,37 @@ pub fn report_json(data_dir: &Path, results: &[RecordResult]) -> Value {
         "summary": {
             "total": total, "correct": correct, "errors": errors,
             "listed": results.len(), "groups": groups,
+            "decoy": decoy_summary(results).map(|(alarms, watched)| json!({
+                "watched": watched, "false_alarms": alarms,
+            })),
         },
+    })
+}
+
+/// Decoy false alarms over the records where a decoy bearing was watched:
+/// `(records with a detection on it, records)`, `None` without a decoy.
+pub fn decoy_summary(results: &[RecordResult]) -> Option<(usize, usize)> {
+    let watched: Vec<&Vec<DefectKind>> = results
+        .iter()
+        .filter_map(|r| r.decoy_detected.as_ref())
+        .collect();
+    (!watched.is_empty()).then(|| {
+        (
+            watched.iter().filter(|d| !d.is_empty()).count(),
+            watched.len(),
+        )
     })
 }
 
 /// Runs `envord validate`.
 pub fn run_cmd(args: &ValidateArgs) -> Result<(), CliError> {
-    let results = validate_dir(&args.data_dir, args.band, args.channel.as_deref())?;
+    let results = validate_dir(
+        &args.data_dir,
+        args.band,
+        args.channel.as_deref(),
+        args.decoy,
+        args.decoy_alone,
+    )?;
     let total = results.iter().filter(|r| r.correct.is_some()).count();
     let correct = results.iter().filter(|r| r.correct == Some(true)).count();
     let errors = results.iter().filter(|r| r.error.is_some()).count();
@@ -1020,6 +1167,12 @@ pub fn run_cmd(args: &ValidateArgs) -> Result<(), CliError> {
             for n in &r.notes {
                 println!("      note: {n}");
             }
+            if let Some(d) = r.decoy_detected.as_ref().filter(|d| !d.is_empty()) {
+                println!(
+                    "      FALSE ALARM on the decoy bearing: {}",
+                    kind_names(d).join(",")
+                );
+            }
             if args.detail {
                 for d in &r.detail {
                     println!("      {d}");
@@ -1034,6 +1187,17 @@ pub fn run_cmd(args: &ValidateArgs) -> Result<(), CliError> {
             "correct {correct} of {total} scored records ({} listed, {errors} with errors)",
             results.len()
         );
+        if let Some((alarms, watched)) = decoy_summary(&results) {
+            println!("decoy bearing: false alarms on {alarms} of {watched} records");
+        }
+    }
+    if let (Some(max), Some((alarms, watched))) = (args.max_decoy_alarms, decoy_summary(&results)) {
+        if alarms > max {
+            return Err(CliError::Difference(format!(
+                "validate: false alarms on the decoy bearing in {alarms} of {watched} records, \
+                 more than --max-decoy-alarms {max}"
+            )));
+        }
     }
     match args.min_correct {
         Some(min) if correct < min => Err(CliError::Difference(format!(
@@ -1253,6 +1417,7 @@ bsf_x = 3.9874
             faulted_bearing: String::new(),
             kinematics: k,
             notes: Vec::new(),
+            decoy: None,
         }
     }
 
@@ -1319,6 +1484,46 @@ bsf_x = 3.9874
         assert!(bw > 2828.4 - 2244.9);
     }
 
+    /// The decoy: multiples scaled, watched beside the documented bearing
+    /// (expectation kept) or alone (expected `none`, original in a note);
+    /// factors too close to 1 or out of range are refused.
+    #[test]
+    fn decoy_entries() {
+        let text = format!(
+            "{HEAD}\n[[recording]]\n{BASE}fault_location = \"inner_race\"\n\
+             bpfo_x = 3.5848\nbpfi_x = 5.4152\nftf_x = 0.39828\nbsf_x = 4.7135\n"
+        );
+        let entry = parse_manifest(&text).unwrap().remove(0);
+        let beside = decoy_entry(&entry, 0.8, false);
+        assert_eq!(beside.fault_location.as_deref(), Some("inner_race"));
+        let rec = beside.record.unwrap();
+        let Some(BearingKinematics::Multiples { bpfi_x, bsf_x, .. }) = rec.decoy else {
+            panic!("{:?}", rec.decoy)
+        };
+        // bsf_x was read as CWRU's 2 x BSF and halved; the decoy scales 1 x BSF.
+        assert!((bpfi_x - 0.8 * 5.4152).abs() < 1e-4, "{bpfi_x}");
+        assert!((bsf_x - 0.8 * 4.7135 / 2.0).abs() < 1e-3, "{bsf_x}");
+        let p = validation_point(&rec, 120_000).unwrap();
+        assert_eq!(p.bearings.len(), 2);
+        let alone = decoy_entry(&entry, 1.2, true);
+        assert_eq!(alone.fault_location.as_deref(), Some("none"));
+        let rec = alone.record.unwrap();
+        assert!(rec.decoy.is_none());
+        assert!(
+            rec.notes.iter().any(|n| n.contains("was inner_race")),
+            "{:?}",
+            rec.notes
+        );
+        assert!(matches!(
+            rec.kinematics,
+            BearingKinematics::Multiples { bpfi_x, .. } if (bpfi_x - 1.2 * 5.4152).abs() < 1e-4
+        ));
+        assert_eq!(parse_decoy("0.87"), Ok(0.87));
+        for bad in ["1.0", "1.01", "0.1", "5", "NaN", "x"] {
+            assert!(parse_decoy(bad).is_err(), "{bad}");
+        }
+    }
+
     /// One bad record never stops the run: every entry is listed, failures
     /// name the file and field, a good record is analysed and judged.
     #[test]
@@ -1352,7 +1557,7 @@ bsf_x = 3.9874
              \n[[recording]]\nfile = \"short.wav\"\nsample_rate_hz = 12000\nshaft_rpm = 1772\nfault_location = \"none\"\n{geo}"
         );
         std::fs::write(dir.path().join("manifest.toml"), manifest).unwrap();
-        let res = validate_dir(dir.path(), BandRule::Auto, None).unwrap();
+        let res = validate_dir(dir.path(), BandRule::Auto, None, None, false).unwrap();
         assert_eq!(res.len(), 6);
         let good = &res[0];
         assert!(good.error.is_none(), "{:?}", good.error);

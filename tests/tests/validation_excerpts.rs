@@ -130,7 +130,7 @@ fn validate_excerpts(dir: &Path) -> Vec<RecordResult> {
         ));
     }
     std::fs::write(dir.join("manifest.toml"), manifest).unwrap();
-    validate_dir(dir, BandRule::Auto, None).unwrap()
+    validate_dir(dir, BandRule::Auto, None, None, false).unwrap()
 }
 
 #[test]
