@@ -581,6 +581,23 @@ struct Family {
 }
 
 impl Family {
+    /// The family of `r` (bearing `bearing`, its orders `o`), when anchored.
+    fn of(bearing: usize, r: &DefectResult, o: &BearingOrders) -> Option<Self> {
+        let anchor = r.anchor.filter(|_| r.line_actual > 0.0)?;
+        let counted = r.harmonics.iter().filter(|h| h.counted);
+        Some(Family {
+            bearing,
+            kind: r.kind,
+            line: r.line_actual,
+            anchor,
+            strength: counted.clone().map(|h| h.prominence_db.max(0.0)).sum(),
+            nominal: r.line_order,
+            spacing: modulation_spacing(r.kind, o.shaft_order(), o.ftf_order()),
+            counted: u8::try_from(counted.clone().count()).unwrap_or(u8::MAX),
+            highest: counted.map(|h| h.harmonic).max().unwrap_or(0),
+        })
+    }
+
     /// Whether the order `o` lies on this family's comb: a harmonic of the
     /// anchored line or one of its modulation sidebands (step 5 of the module
     /// doc).
@@ -792,43 +809,18 @@ impl DefectSearch {
         diagnoses: &mut [&mut Option<BearingDiagnosis>],
     ) {
         let opb = spectrum.orders_per_bin();
-        let strength = |r: &DefectResult| -> f32 {
-            r.harmonics
-                .iter()
-                .filter(|h| h.counted)
-                .map(|h| h.prominence_db.max(0.0))
-                .sum()
-        };
-        let counted = |r: &DefectResult| -> (u8, u8) {
-            r.harmonics
-                .iter()
-                .filter(|h| h.counted)
-                .fold((0, 0), |(n, top), h| (n + 1, top.max(h.harmonic)))
-        };
-        // Detected families: (bearing, kind, L', anchor harmonic, strength,
-        // nominal line, modulation spacings of that bearing).
+        // Detected families of every bearing, as the others see them.
         let mut fams: heapless::Vec<Family, MAX_FAMILIES> = heapless::Vec::new();
         for (bi, (d, o)) in diagnoses.iter().zip(orders.iter()).enumerate() {
             let Some(d) = &**d else { continue };
-            for r in d
+            for fam in d
                 .results
                 .iter()
-                .filter(|r| r.detected && r.line_actual > 0.0)
+                .filter(|r| r.detected)
+                .filter_map(|r| Family::of(bi, r, o))
             {
-                if let Some(ha) = r.anchor {
-                    // Capacity 4 kinds x 8 bearings; more are not compared.
-                    let _ = fams.push(Family {
-                        bearing: bi,
-                        kind: r.kind,
-                        line: r.line_actual,
-                        anchor: ha,
-                        strength: strength(r),
-                        nominal: r.line_order,
-                        spacing: modulation_spacing(r.kind, o.shaft_order(), o.ftf_order()),
-                        counted: counted(r).0,
-                        highest: counted(r).1,
-                    });
-                }
+                // Capacity 4 kinds x 8 bearings; more are not compared.
+                let _ = fams.push(fam);
             }
         }
         for (bi, (d, o)) in diagnoses.iter_mut().zip(orders.iter()).enumerate() {
@@ -844,17 +836,7 @@ impl DefectSearch {
             };
             for r in d.results.iter_mut() {
                 // This family as the rivals see it (anchored line, comb).
-                let me = r.anchor.filter(|_| r.line_actual > 0.0).map(|ha| Family {
-                    bearing: bi,
-                    kind: r.kind,
-                    line: r.line_actual,
-                    anchor: ha,
-                    strength: strength(r),
-                    nominal: r.line_order,
-                    spacing: modulation_spacing(r.kind, o.shaft_order(), o.ftf_order()),
-                    counted: counted(r).0,
-                    highest: counted(r).1,
-                });
+                let me = Family::of(bi, r, o);
                 let mut changed = false;
                 for hr in r.harmonics.iter_mut().filter(|h| h.counted) {
                     let f = hr.found_order;
