@@ -350,7 +350,88 @@ fn finite_pos(x: f32) -> bool {
     x.is_finite() && x > 0.0
 }
 
+/// Two watched lines of different bearings of one point that lie within the
+/// search's slip window of each other (harmonic `h` of one, `g` of the
+/// other): the envelope spectrum cannot tell which bearing a peak there
+/// belongs to. Found by [`PointConfig::line_coincidences`].
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct LineCoincidence {
+    /// Indices into [`PointConfig::bearings`], the first the lower.
+    pub bearings: [u8; 2],
+    /// The watched kind of each (BPFO, BPFI or BSF; BSF watched at 2 x BSF).
+    pub kinds: [crate::kinematics::DefectKind; 2],
+    /// The harmonic of each line that coincides (1 or 2).
+    pub harmonics: [u8; 2],
+    /// Those harmonics in tach-shaft orders.
+    pub orders: [f32; 2],
+}
+
+/// Most coincidences [`PointConfig::line_coincidences`] lists.
+pub const MAX_COINCIDENCES: usize = 16;
+
 impl PointConfig {
+    /// Pairs of race and rolling-element lines of *different* bearings whose
+    /// 1st or 2nd harmonics lie within `search.slip_tolerance` (relative) of
+    /// each other, in the order of the bearings: a detection on one may as
+    /// well be the other (two identical bearings on one shaft are the
+    /// common case). One entry per pair of lines, the lowest harmonics that
+    /// coincide; at most [`MAX_COINCIDENCES`]. Bearings whose kinematics or
+    /// shaft are invalid are skipped ([`Self::validate`] reports them). The
+    /// cage line is left out: its harmonics are dense at low orders and it
+    /// is rarely a primary finding.
+    ///
+    /// ```
+    /// use dsp_core::config::{name_from, Bearing, BearingKinematics, PointConfig};
+    /// let mut p = PointConfig::default();
+    /// let k = BearingKinematics::Multiples { bpfo_x: 3.58, bpfi_x: 5.42, ftf_x: 0.40, bsf_x: 2.36 };
+    /// p.bearings.clear();
+    /// for name in ["input-de", "input-nde"] {
+    ///     p.bearings.push(Bearing { name: name_from(name), shaft: 0, kinematics: k }).unwrap();
+    /// }
+    /// // Identical bearings on one shaft: all three lines coincide.
+    /// assert_eq!(p.line_coincidences().len(), 3);
+    /// ```
+    pub fn line_coincidences(&self) -> Vec<LineCoincidence, MAX_COINCIDENCES> {
+        use crate::kinematics::{DefectKind, ShaftRatio};
+        const KINDS: [DefectKind; 3] = [DefectKind::Bpfo, DefectKind::Bpfi, DefectKind::Bsf];
+        let tol = self.search.slip_tolerance;
+        let orders = |b: &Bearing| {
+            let ratio = self.shafts.get(usize::from(b.shaft))?.ratio;
+            let ratio = ShaftRatio::new(ratio).ok()?;
+            Some(b.multiples().ok()?.orders(ratio))
+        };
+        let mut out = Vec::new();
+        for (i, a) in self.bearings.iter().enumerate() {
+            let Some(oa) = orders(a) else { continue };
+            for (j, b) in self.bearings.iter().enumerate().skip(i + 1) {
+                let Some(ob) = orders(b) else { continue };
+                for ka in KINDS {
+                    for kb in KINDS {
+                        let (la, lb) = (oa.line(ka), ob.line(kb));
+                        let hit = [(1u8, 1u8), (1, 2), (2, 1)].into_iter().find(|&(h, g)| {
+                            let (x, y) = (f32::from(h) * la, f32::from(g) * lb);
+                            libm::fabsf(x - y) <= tol * x.max(y)
+                        });
+                        let (Some((h, g)), Ok(bi), Ok(bj)) =
+                            (hit, u8::try_from(i), u8::try_from(j))
+                        else {
+                            continue;
+                        };
+                        // Full: the first MAX_COINCIDENCES are kept.
+                        let _ = out.push(LineCoincidence {
+                            bearings: [bi, bj],
+                            kinds: [ka, kb],
+                            harmonics: [h, g],
+                            orders: [f32::from(h) * la, f32::from(g) * lb],
+                        });
+                    }
+                }
+            }
+        }
+        out
+    }
+
     /// The band used when none is configured and no survey ran: one octave
     /// ending at 0.8 x Nyquist, capped at 10 kHz (common practice: a band
     /// above the gear-mesh harmonics and below the mounted sensor resonance).

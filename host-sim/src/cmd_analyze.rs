@@ -199,9 +199,56 @@ pub fn mark_band_choice(
     }
 }
 
+/// The point's coinciding lines of different bearings
+/// ([`PointConfig::line_coincidences`]), as text for the table and as JSON.
+pub fn coincidences(point: &PointConfig) -> (Vec<String>, serde_json::Value) {
+    let name = |i: u8| {
+        point
+            .bearings
+            .get(usize::from(i))
+            .map_or_else(|| format!("#{i}"), |b| b.name.to_string())
+    };
+    let kind = |k: dsp_core::kinematics::DefectKind| match k {
+        dsp_core::kinematics::DefectKind::Bsf => "2xBSF",
+        other => other.name(),
+    };
+    let list = point.line_coincidences();
+    let text = list
+        .iter()
+        .map(|c| {
+            format!(
+                "caution: {} {} h{} ({:.3}) and {} {} h{} ({:.3}) lie within the {:.0} % slip \
+                 window: a detection there may belong to either bearing",
+                name(c.bearings[0]),
+                kind(c.kinds[0]),
+                c.harmonics[0],
+                c.orders[0],
+                name(c.bearings[1]),
+                kind(c.kinds[1]),
+                c.harmonics[1],
+                c.orders[1],
+                100.0 * point.search.slip_tolerance,
+            )
+        })
+        .collect();
+    let json = list
+        .iter()
+        .map(|c| {
+            serde_json::json!({
+                "bearings": [name(c.bearings[0]), name(c.bearings[1])],
+                "kinds": [kind(c.kinds[0]), kind(c.kinds[1])],
+                "harmonics": c.harmonics,
+                "orders": [f64::from(c.orders[0]), f64::from(c.orders[1])],
+            })
+        })
+        .collect();
+    (text, serde_json::Value::Array(json))
+}
+
 /// Runs `envord analyze`.
 pub fn run_cmd(args: &AnalyzeArgs) -> Result<(), CliError> {
     let (a, survey) = analyze_auto(args)?;
+    let (caution, caution_json) = coincidences(&crate::point::load(&args.point)?);
     if let Some(plot) = &args.plot {
         crate::plot::order_spectrum(plot, &a, &args.recording.display().to_string())?;
     }
@@ -210,6 +257,9 @@ pub fn run_cmd(args: &AnalyzeArgs) -> Result<(), CliError> {
     } else if args.json {
         let mut v = to_json(&a.report, Some(&args.recording.display().to_string()));
         mark_band_choice(&mut v, survey.as_ref());
+        if let Some(o) = v.as_object_mut() {
+            o.insert("line_coincidences".into(), caution_json);
+        }
         println!(
             "{}",
             serde_json::to_string_pretty(&v).map_err(|e| CliError::Other(e.to_string()))?
@@ -222,6 +272,81 @@ pub fn run_cmd(args: &AnalyzeArgs) -> Result<(), CliError> {
             );
         }
         print!("{}", to_table(&a.report));
+        for c in &caution {
+            println!("{c}");
+        }
     }
     Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use dsp_core::config::{name_from, Bearing, BearingKinematics};
+
+    /// Two identical bearings on one shaft coincide in BPFO, BPFI and
+    /// 2 x BSF; a bearing at half the outer-race line coincides through
+    /// its 2nd harmonic; a distinct one does not (CWRU drive-end multiples,
+    /// kinematics_published.rs).
+    #[test]
+    fn coinciding_lines_are_named() {
+        let cwru = BearingKinematics::Multiples {
+            bpfo_x: 3.5848,
+            bpfi_x: 5.4152,
+            ftf_x: 0.39828,
+            bsf_x: 2.357,
+        };
+        let mut p = PointConfig::default();
+        p.bearings.clear();
+        for name in ["input-de", "input-nde"] {
+            p.bearings
+                .push(Bearing {
+                    name: name_from(name),
+                    shaft: 0,
+                    kinematics: cwru,
+                })
+                .unwrap();
+        }
+        let (text, json) = coincidences(&p);
+        assert_eq!(text.len(), 3, "{text:?}");
+        assert!(
+            text[0].contains("input-de BPFO h1 (3.585) and input-nde BPFO h1"),
+            "{}",
+            text[0]
+        );
+        assert!(text[2].contains("2xBSF"), "{}", text[2]);
+        assert_eq!(json[1]["kinds"], serde_json::json!(["BPFI", "BPFI"]));
+        // Half the outer-race line: its 2nd harmonic is the first one's BPFO.
+        p.bearings.pop();
+        p.bearings
+            .push(Bearing {
+                name: name_from("half"),
+                shaft: 0,
+                kinematics: BearingKinematics::Multiples {
+                    bpfo_x: 3.5848 / 2.0,
+                    bpfi_x: 7.9,
+                    ftf_x: 0.2,
+                    bsf_x: 1.5,
+                },
+            })
+            .unwrap();
+        let (text, json) = coincidences(&p);
+        assert_eq!(text.len(), 1, "{text:?}");
+        assert_eq!(json[0]["harmonics"], serde_json::json!([1, 2]));
+        // A distinct bearing: nothing.
+        p.bearings.pop();
+        p.bearings
+            .push(Bearing {
+                name: name_from("other"),
+                shaft: 0,
+                kinematics: BearingKinematics::Multiples {
+                    bpfo_x: 3.05,
+                    bpfi_x: 4.95,
+                    ftf_x: 0.38,
+                    bsf_x: 1.99,
+                },
+            })
+            .unwrap();
+        assert!(coincidences(&p).0.is_empty());
+    }
 }

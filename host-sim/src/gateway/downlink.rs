@@ -294,6 +294,11 @@ pub fn payload(cmd: &DownlinkCommand) -> Result<Vec<u8>, CliError> {
         DownlinkCommand::Survey => vec![CMD_SURVEY],
         DownlinkCommand::Config(c) => {
             let point = crate::point::load(&c.point)?;
+            // The node cannot tell coinciding lines apart either: say so
+            // before the configuration is sent.
+            for caution in crate::cmd_analyze::coincidences(&point).0 {
+                eprintln!("{}: {caution}", c.point.display());
+            }
             let rec =
                 record_from_point(&point, c).map_err(|m| CliError::input(c.point.display(), m))?;
             let mut buf = [0u8; MAX_RECORD_LEN];
