@@ -165,7 +165,9 @@ fn check_case(tag: &str, profile: SpeedProfile, fault: Fault, seed: u64) {
     assert!(report.analysed(), "{tag}: {}", report.flags);
 
     // Whole document: every field, numbers compared as f64 (exact).
-    let mine = to_json(&report, Some(&wav.display().to_string()));
+    let mut mine = to_json(&report, Some(&wav.display().to_string()));
+    // `analyze` adds the point's coinciding lines (from the point alone).
+    mine["line_coincidences"] = host_sim::cmd_analyze::coincidences(&point).1;
     let mut diffs = Vec::new();
     diff("", &json, &mine, &mut diffs);
     assert!(
