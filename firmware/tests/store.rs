@@ -196,19 +196,6 @@ fn config_downlink_survives_power_loss_at_every_step_and_replay_stays_refused() 
     }
 }
 
-fn node_storage<St: Storage>(
-    node: firmware::cycle::Node<
-        MockSource,
-        MockCapture,
-        MockRadio,
-        MockAlarm,
-        St,
-        MockBattery,
-        MockWatchdog,
-        MockPin,
-        MockDelay,
-        MockCore,
-    >,
-) -> St {
+fn node_storage<St: Storage>(node: MockNode<St>) -> St {
     node.into_devices().storage
 }

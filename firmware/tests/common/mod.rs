@@ -311,18 +311,21 @@ impl MeasurementCore for MockCore {
     }
 }
 
-pub type TestNode = Node<
+/// A node over the mock devices, with any storage and core.
+pub type MockNode<St, C = MockCore> = Node<
     MockSource,
     MockCapture,
     MockRadio,
     MockAlarm,
-    MockStorage,
+    St,
     MockBattery,
     MockWatchdog,
     MockPin,
     MockDelay,
-    MockCore,
+    C,
 >;
+
+pub type TestNode = MockNode<MockStorage>;
 
 /// Test bench: blocks of a sine-like signal with tach edges in every block.
 pub struct Bench {
@@ -382,24 +385,7 @@ impl Bench {
     }
 
     /// Builds the node over any storage (the bench's own is not used).
-    pub fn build_with<St: Storage>(
-        self,
-        storage: St,
-    ) -> (
-        Node<
-            MockSource,
-            MockCapture,
-            MockRadio,
-            MockAlarm,
-            St,
-            MockBattery,
-            MockWatchdog,
-            MockPin,
-            MockDelay,
-            MockCore,
-        >,
-        Log,
-    ) {
+    pub fn build_with<St: Storage>(self, storage: St) -> (MockNode<St>, Log) {
         let core = MockCore {
             log: self.log.clone(),
             samples: Vec::new(),
@@ -417,21 +403,7 @@ impl Bench {
         self,
         storage: St,
         core: C,
-    ) -> (
-        Node<
-            MockSource,
-            MockCapture,
-            MockRadio,
-            MockAlarm,
-            St,
-            MockBattery,
-            MockWatchdog,
-            MockPin,
-            MockDelay,
-            C,
-        >,
-        Log,
-    ) {
+    ) -> (MockNode<St, C>, Log) {
         let log = self.log.clone();
         let dev = Devices {
             source: MockSource {
@@ -541,25 +513,6 @@ pub fn config_downlink(counter: u32, c: &PointRecord) -> Vec<u8> {
     let mut p = vec![0x01];
     p.extend(encode(c));
     signed(counter, &p)
-}
-
-/// Splits concatenated radio frames (reports, status frames) apart by
-/// their headers: dsp-core frames (type nibble 0, 1, 2) and 12-byte
-/// overall-core frames (kind 0x4F).
-pub fn split_frames(mut b: &[u8]) -> Vec<Vec<u8>> {
-    let mut out = Vec::new();
-    while !b.is_empty() {
-        let n = match b[0] {
-            0x4F => 12,
-            0x10 => dsp_core::frame::layout::full_frame_len(usize::from(b[7] & 7)),
-            0x11 => dsp_core::frame::layout::REDUCED_LEN,
-            0x12 => dsp_core::frame::layout::STATUS_LEN,
-            x => panic!("unknown frame start {x:#04x}"),
-        };
-        out.push(b[..n].to_vec());
-        b = &b[n..];
-    }
-    out
 }
 
 impl Bench {
