@@ -75,6 +75,39 @@ pub const MIGRATIONS: &[&str] = &[
         json TEXT NOT NULL,
         UNIQUE (node_id, seq, payload)
     );",
+    // 3: uplink metadata from a network server, the size and certainty of
+    // each finding, and alarm events (written by the gateway service). New
+    // columns are nullable so that rows of older builds stay valid.
+    "ALTER TABLE reports ADD COLUMN rx_time_ms INTEGER;
+    ALTER TABLE reports ADD COLUMN device_id TEXT;
+    ALTER TABLE reports ADD COLUMN fport INTEGER;
+    ALTER TABLE reports ADD COLUMN rssi_dbm REAL;
+    ALTER TABLE reports ADD COLUMN snr_db REAL;
+    ALTER TABLE node_status ADD COLUMN rx_time_ms INTEGER;
+    ALTER TABLE node_status ADD COLUMN device_id TEXT;
+    ALTER TABLE node_status ADD COLUMN rssi_dbm REAL;
+    ALTER TABLE node_status ADD COLUMN snr_db REAL;
+    ALTER TABLE defects ADD COLUMN searched INTEGER NOT NULL DEFAULT 1;
+    ALTER TABLE defects ADD COLUMN amplitude_g REAL;
+    ALTER TABLE defects ADD COLUMN harmonics_searched INTEGER;
+    ALTER TABLE defects ADD COLUMN sidebands INTEGER;
+    ALTER TABLE defects ADD COLUMN margin_db REAL;
+    CREATE TABLE alarm_events (
+        id INTEGER PRIMARY KEY,
+        at_ms INTEGER NOT NULL,
+        node_id INTEGER NOT NULL,
+        bearing TEXT,
+        kind TEXT,
+        event TEXT NOT NULL,
+        state_from TEXT,
+        state_to TEXT,
+        report_id INTEGER REFERENCES reports(id),
+        detail TEXT NOT NULL DEFAULT '{}',
+        acked_by TEXT,
+        acked_at_ms INTEGER
+    );
+    CREATE INDEX alarm_events_by_time ON alarm_events (at_ms);
+    CREATE INDEX reports_by_node ON reports (node_id, id);",
 ];
 
 /// Schema version this build writes.
