@@ -476,7 +476,7 @@ fn status_cmd(a: StatusArgs) -> Result<(), CliError> {
         Some(p) => Some(map::GatewayMap::load(p)?),
         None => None,
     };
-    let conn = store::open(&a.db)?;
+    let conn = store::open_read_only(&a.db)?;
     let obs = store::observations(&conn).map_err(sql_err)?;
     let manual = |n: u16, b: u8, k: &str| store::manual_baseline(&conn, n, b, k).ok().flatten();
     let states = trend::evaluate(&obs, &limits, &manual);
@@ -706,7 +706,7 @@ pub fn combine(m: &map::GatewayMap, states: &[trend::DefectState]) -> Vec<Combin
 fn trend_cmd(a: TrendArgs) -> Result<(), CliError> {
     let limits = a.limits.limits()?;
     let only = a.defect.as_deref().map(parse_kind).transpose()?;
-    let conn = store::open(&a.db)?;
+    let conn = store::open_read_only(&a.db)?;
     let obs: Vec<store::Observation> = store::observations(&conn)
         .map_err(sql_err)?
         .into_iter()
@@ -785,7 +785,7 @@ fn baseline_cmd(a: BaselineArgs) -> Result<(), CliError> {
             return Err(CliError::input("--score-db", "must be finite"));
         }
     }
-    let conn = store::open(&a.db)?;
+    let conn = store::open_existing(&a.db)?;
     let v = if a.clear { None } else { a.score_db };
     store::set_baseline(&conn, a.node, a.bearing, kind.name(), v).map_err(sql_err)?;
     match v {
