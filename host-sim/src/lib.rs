@@ -15,6 +15,7 @@
 )]
 
 pub mod analysis;
+pub mod closed_stdout;
 pub mod cmd_analyze;
 pub mod cmd_batch;
 pub mod cmd_compare;

@@ -42,7 +42,21 @@ fn main() -> ExitCode {
             return ExitCode::from(code);
         }
     };
-    let result: Result<(), host_sim::error::CliError> = match cli.command {
+    host_sim::closed_stdout::install_quiet_hook();
+    let result = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| dispatch(cli.command)));
+    match result {
+        Ok(Ok(()) | Err(host_sim::error::CliError::StdoutClosed)) => ExitCode::SUCCESS,
+        Ok(Err(e)) => {
+            eprintln!("envord: {e}");
+            ExitCode::from(e.exit_code())
+        }
+        Err(p) if host_sim::closed_stdout::is_closed_stdout_panic(p.as_ref()) => ExitCode::SUCCESS,
+        Err(p) => std::panic::resume_unwind(p),
+    }
+}
+
+fn dispatch(command: Command) -> Result<(), host_sim::error::CliError> {
+    match command {
         Command::Simulate(a) => host_sim::cmd_simulate::run(&a),
         Command::Demo(a) => host_sim::cmd_demo::run_cmd(&a),
         Command::Analyze(a) => host_sim::cmd_analyze::run_cmd(&a),
@@ -50,12 +64,5 @@ fn main() -> ExitCode {
         Command::Batch(a) => host_sim::cmd_batch::run(&a),
         Command::Gateway(a) => host_sim::gateway::run(a),
         Command::Validate(a) => host_sim::cmd_validate::run_cmd(&a),
-    };
-    match result {
-        Ok(()) => ExitCode::SUCCESS,
-        Err(e) => {
-            eprintln!("envord: {e}");
-            ExitCode::from(e.exit_code())
-        }
     }
 }

@@ -246,7 +246,7 @@ fn seq_json(ev: &SeqEvent) -> serde_json::Value {
 }
 
 fn out_err(e: std::io::Error) -> CliError {
-    CliError::Other(format!("stdout: {e}"))
+    CliError::stdout(e)
 }
 
 fn decode_cmd(a: DecodeArgs) -> Result<(), CliError> {
