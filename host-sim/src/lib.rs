@@ -25,6 +25,7 @@ pub mod cmd_validate;
 pub mod edges_csv;
 pub mod error;
 pub mod gateway;
+pub mod output;
 pub mod plot;
 pub mod point;
 pub mod report_json;

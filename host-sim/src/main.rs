@@ -10,6 +10,10 @@ use std::process::ExitCode;
     about = "Bearing envelope order analysis, as the node runs it"
 )]
 struct Cli {
+    /// Replace output files that already exist (by default a command never
+    /// overwrites a file; it stops with exit 2 naming it).
+    #[arg(long, global = true)]
+    force: bool,
     #[command(subcommand)]
     command: Command,
 }
@@ -43,6 +47,7 @@ fn main() -> ExitCode {
         }
     };
     host_sim::closed_stdout::install_quiet_hook();
+    host_sim::output::set_force(cli.force);
     let result = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| dispatch(cli.command)));
     match result {
         Ok(Ok(()) | Err(host_sim::error::CliError::StdoutClosed)) => ExitCode::SUCCESS,

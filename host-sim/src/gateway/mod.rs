@@ -706,6 +706,9 @@ pub fn combine(m: &map::GatewayMap, states: &[trend::DefectState]) -> Vec<Combin
 fn trend_cmd(a: TrendArgs) -> Result<(), CliError> {
     let limits = a.limits.limits()?;
     let only = a.defect.as_deref().map(parse_kind).transpose()?;
+    if let Some(p) = &a.svg {
+        crate::output::check_free(std::path::Path::new(p))?;
+    }
     let conn = store::open_read_only(&a.db)?;
     let obs: Vec<store::Observation> = store::observations(&conn)
         .map_err(sql_err)?
@@ -769,7 +772,7 @@ fn trend_cmd(a: TrendArgs) -> Result<(), CliError> {
         }
         let title = format!("node {} bearing {}: defect scores", a.node, a.bearing);
         let svg = plot::svg(&title, "report (arrival order)", &series, &levels);
-        std::fs::write(path, svg).map_err(|e| CliError::Other(format!("{path}: {e}")))?;
+        crate::output::write(std::path::Path::new(path), svg.as_bytes())?;
         println!("wrote {path}");
     }
     Ok(())
