@@ -278,9 +278,11 @@ fn decode_cmd(a: DecodeArgs) -> Result<(), CliError> {
             Ok(frame) => {
                 let (node, seq) = store::node_seq(&frame);
                 // status frames count their own sequence: not link-tracked
+                let bytes = item.bytes.as_deref().unwrap_or(&[]);
                 let ev = if store::is_report(&frame) {
-                    Some(tracker.observe(node, seq, item.bytes.as_deref().unwrap_or(&[])))
+                    Some(tracker.observe(node, seq, bytes))
                 } else {
+                    tracker.observe_status(node, seq, bytes); // restart evidence
                     None
                 };
                 let ev_text = ev.as_ref().map_or("-".to_string(), |e| e.describe());
@@ -406,10 +408,7 @@ fn import_cmd(a: ImportArgs) -> Result<(), CliError> {
     let items = read_inputs(&a.files, a.format)?;
     let mut conn = store::open(&a.db)?;
     // Seed the tracker with what is stored so events refer to the full history.
-    let mut tracker = SeqTracker::new();
-    for (node, seq, payload) in store::arrivals(&conn).map_err(sql_err)? {
-        tracker.observe(node, seq, &payload);
-    }
+    let (mut tracker, _) = decided_order(&conn)?;
     let (mut new, mut known, mut rejected, mut new_rejects) = (0u64, 0u64, 0u64, 0u64);
     let mut events: Vec<String> = Vec::new();
     for batch in items.chunks(a.batch_size) {
@@ -425,10 +424,12 @@ fn import_cmd(a: ImportArgs) -> Result<(), CliError> {
                     };
                     if store::insert_frame(&tx, &frame, payload, &origin).map_err(sql_err)? {
                         new += 1;
-                        if !store::is_report(&frame) {
-                            continue; // status frames: their own sequence
-                        }
                         let (node, seq) = store::node_seq(&frame);
+                        if !store::is_report(&frame) {
+                            // status frames: their own sequence, restart evidence
+                            tracker.observe_status(node, seq, payload);
+                            continue;
+                        }
                         let ev = tracker.observe(node, seq, payload);
                         if !matches!(ev, SeqEvent::InOrder | SeqEvent::First) {
                             events.push(format!(
@@ -477,13 +478,11 @@ fn status_cmd(a: StatusArgs) -> Result<(), CliError> {
         None => None,
     };
     let conn = store::open_read_only(&a.db)?;
-    let obs = store::observations(&conn).map_err(sql_err)?;
+    let (tracker, order) = decided_order(&conn)?;
+    let mut obs = store::observations(&conn).map_err(sql_err)?;
+    sort_decided(&mut obs, &order);
     let manual = |n: u16, b: u8, k: &str| store::manual_baseline(&conn, n, b, k).ok().flatten();
     let states = trend::evaluate(&obs, &limits, &manual);
-    let mut tracker = SeqTracker::new();
-    for (node, seq, payload) in store::arrivals(&conn).map_err(sql_err)? {
-        tracker.observe(node, seq, &payload);
-    }
     let rejects = store::count(&conn, "rejects").map_err(sql_err)?;
     let nodes = store::latest_status(&conn).map_err(sql_err)?;
     let combined = gmap
@@ -596,6 +595,32 @@ fn status_cmd(a: StatusArgs) -> Result<(), CliError> {
     }
     println!("rejected inputs stored: {rejects}");
     Ok(())
+}
+
+/// Replays the stored history through a tracker: status frames first (the
+/// restart evidence; the two tables keep no common arrival order), then the
+/// reports in arrival order, giving each report id its decided place.
+fn decided_order(
+    conn: &rusqlite::Connection,
+) -> Result<(SeqTracker, std::collections::HashMap<i64, seq::Order>), CliError> {
+    let mut tracker = SeqTracker::new();
+    for (node, seq, payload) in store::status_arrivals(conn).map_err(sql_err)? {
+        tracker.observe_status(node, seq, &payload);
+    }
+    let mut order = std::collections::HashMap::new();
+    for (id, node, seq, payload) in store::report_arrivals(conn).map_err(sql_err)? {
+        order.insert(id, tracker.observe_ordered(node, seq, &payload).1);
+    }
+    Ok((tracker, order))
+}
+
+/// Observations in each node's decided order (late frames in their place,
+/// never last), arrival order among equals.
+fn sort_decided(
+    obs: &mut [store::Observation],
+    order: &std::collections::HashMap<i64, seq::Order>,
+) {
+    obs.sort_by_key(|o| (order.get(&o.report_id).copied(), o.report_id));
 }
 
 fn fmt_db(x: Option<f64>) -> String {
@@ -759,7 +784,10 @@ fn trend_cmd(a: TrendArgs) -> Result<(), CliError> {
             })
             .collect();
         let manual = |n: u16, b: u8, k: &str| store::manual_baseline(&conn, n, b, k).ok().flatten();
-        let states = trend::evaluate(&obs, &limits, &manual);
+        let (_, order) = decided_order(&conn)?;
+        let mut decided = obs.clone();
+        sort_decided(&mut decided, &order);
+        let states = trend::evaluate(&decided, &limits, &manual);
         let mut levels: Vec<(&str, f64, &str)> = vec![
             ("alert abs", limits.alert_abs_db, "#ff7f0e"),
             ("danger abs", limits.danger_abs_db, "#d62728"),

@@ -515,6 +515,23 @@ pub fn arrivals(conn: &Connection) -> rusqlite::Result<Vec<(u16, u16, Vec<u8>)>>
     rows.collect()
 }
 
+/// A stored report's row id, node, sequence number and payload.
+pub type ReportArrival = (i64, u16, u16, Vec<u8>);
+
+/// Every stored report in arrival order.
+pub fn report_arrivals(conn: &Connection) -> rusqlite::Result<Vec<ReportArrival>> {
+    let mut stmt = conn.prepare("SELECT id, node_id, seq, payload FROM reports ORDER BY id")?;
+    let rows = stmt.query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?)))?;
+    rows.collect()
+}
+
+/// (node, status seq, payload) of every stored status frame in arrival order.
+pub fn status_arrivals(conn: &Connection) -> rusqlite::Result<Vec<(u16, u16, Vec<u8>)>> {
+    let mut stmt = conn.prepare("SELECT node_id, seq, payload FROM node_status ORDER BY id")?;
+    let rows = stmt.query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))?;
+    rows.collect()
+}
+
 /// One stored score observation.
 #[derive(Clone, Debug)]
 pub struct Observation {
