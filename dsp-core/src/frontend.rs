@@ -345,7 +345,8 @@ impl FrontEnd {
             let (rms, n) = self.vel.rms_mm_s();
             o.velocity_rms_mm_s = rms;
             o.velocity_count = n;
-            if n > 0 {
+            // No finite sample, no zone: a dead or broken sensor is not "zone A".
+            if n > 0 && o.count > 0 {
                 o.zone = Some(zone(
                     rms,
                     self.cfg.velocity.group,

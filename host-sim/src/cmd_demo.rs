@@ -87,9 +87,16 @@ pub fn run_cmd(args: &DemoArgs) -> Result<(), CliError> {
         o.kurtosis,
         o.velocity_rms_mm_s,
         o.zone
-            .map(|z| format!(" (ISO 20816-3 zone {z:?})"))
+            .map(|z| format!(" ({})", crate::report_json::zone_label(z)))
             .unwrap_or_default()
     );
+    if let (Some(z), Ok(p)) = (o.zone, crate::point::parse(DEMO_POINT)) {
+        println!(
+            "zone {z:?}    {}; {}",
+            crate::report_json::zone_meaning(z),
+            crate::report_json::zone_limits_text(p.machine_group, p.support)
+        );
+    }
     println!(
         "envelope  {:.0}-{:.0} Hz, decimation {}, {} segments x {} revolutions",
         r.band_hz[0],

@@ -282,6 +282,12 @@ fn shafts(entries: &[ShaftEntry], p: &mut PointConfig) -> Result<(), String> {
     p.shafts.clear();
     for (i, e) in entries.iter().enumerate() {
         check_name("shaft", &e.name)?;
+        if entries.iter().take(i).any(|o| o.name == e.name) {
+            return Err(format!(
+                "shaft.name `{}`: two shafts share this name; give each shaft its own name",
+                e.name
+            ));
+        }
         let ratio = match (e.ratio, &e.driven_by, e.teeth) {
             (Some(r), None, None) => r,
             (None, Some(by), Some([z_driver, z_driven])) => {
@@ -368,8 +374,14 @@ fn shaft_of(p: &PointConfig, what: &str, owner: &str, shaft: Option<&str>) -> Re
 
 fn bearings(entries: &[BearingEntry], p: &mut PointConfig) -> Result<(), String> {
     check_count("bearing", entries.len(), MAX_BEARINGS)?;
-    for e in entries {
+    for (i, e) in entries.iter().enumerate() {
         check_name("bearing", &e.name)?;
+        if entries.iter().take(i).any(|o| o.name == e.name) {
+            return Err(format!(
+                "bearing.name `{}`: two bearings share this name; give each bearing its own name",
+                e.name
+            ));
+        }
         // one name, one thing: reports and gateway maps refer to both by name
         if p.shafts.iter().any(|s| s.name.as_str() == e.name) {
             return Err(format!(
@@ -434,8 +446,14 @@ fn bearings(entries: &[BearingEntry], p: &mut PointConfig) -> Result<(), String>
 
 fn meshes(entries: &[MeshEntry], p: &mut PointConfig) -> Result<(), String> {
     check_count("mesh", entries.len(), MAX_MESHES)?;
-    for e in entries {
+    for (i, e) in entries.iter().enumerate() {
         check_name("mesh", &e.name)?;
+        if entries.iter().take(i).any(|o| o.name == e.name) {
+            return Err(format!(
+                "mesh.name `{}`: two meshes share this name; give each mesh its own name",
+                e.name
+            ));
+        }
         let shaft = shaft_of(p, "mesh", &e.name, e.shaft.as_deref())?;
         p.meshes
             .push(Mesh {
@@ -449,7 +467,7 @@ fn meshes(entries: &[MeshEntry], p: &mut PointConfig) -> Result<(), String> {
 }
 
 /// The point-file key a configuration error refers to.
-fn config_key(e: dsp_core::config::ConfigError) -> &'static str {
+pub(crate) fn config_key(e: dsp_core::config::ConfigError) -> &'static str {
     use dsp_core::config::ConfigError as E;
     match e {
         E::SampleRate => "sensor.sample_rate_hz",
@@ -539,6 +557,23 @@ mod tests {
         // distinct names parse
         let text = "[[shaft]]\nname = \"input\"\n[[bearing]]\nname = \"de\"\nbpfo_x = 3.0\nbpfi_x = 5.0\nftf_x = 0.4\nbsf_x = 2.0\n";
         assert!(parse(text).is_ok());
+    }
+
+    /// A name given twice is named in the message (it was the generic
+    /// "names must be unique").
+    #[test]
+    fn duplicate_names_are_named() {
+        let b = "bpfo_x = 3.0\nbpfi_x = 5.0\nftf_x = 0.4\nbsf_x = 2.0\n";
+        let text = format!("[[bearing]]\nname = \"de\"\n{b}[[bearing]]\nname = \"de\"\n{b}");
+        let err = parse(&text).unwrap_err();
+        assert!(
+            err.contains("bearing.name `de`") && err.contains("two bearings"),
+            "{err}"
+        );
+        let text = "[[shaft]]\nname = \"in\"\n[[shaft]]\nname = \"in\"\nratio = 0.5\n";
+        assert!(parse(text).unwrap_err().contains("shaft.name `in`"));
+        let text = "[[mesh]]\nname = \"m\"\nteeth = 9\n[[mesh]]\nname = \"m\"\nteeth = 7\n";
+        assert!(parse(text).unwrap_err().contains("mesh.name `m`"));
     }
 
     #[test]
