@@ -59,12 +59,12 @@ pub struct FrontEndConfig {
 }
 
 impl Default for FrontEndConfig {
-    /// 51.2 kHz, 5-10 kHz 8-pole band, squared envelope, decimate by 8,
+    /// 51.2 kHz, 6-12 kHz 8-pole band, squared envelope, decimate by 8,
     /// +-16 g over the i16 range, velocity 10-1000 Hz.
     fn default() -> Self {
         Self {
             sample_rate_hz: 51200.0,
-            band_hz: [5000.0, 10000.0],
+            band_hz: [6000.0, 12000.0],
             poles: 8,
             rectifier: Rectifier::Square,
             decimation: 8,

@@ -15,7 +15,7 @@ use crate::report_json::to_json;
 use crate::simulate::{simulate, MachineSpec};
 
 /// The demo machine (simulator description).
-pub const DEMO_MACHINE: &str = include_str!("../examples/demo-machine.toml");
+pub const DEMO_MACHINE: &str = crate::simulate::DEMO_MACHINE_TOML;
 /// The demo measuring point.
 pub const DEMO_POINT: &str = include_str!("../examples/demo-point.toml");
 /// Seed of the demo record.
