@@ -70,7 +70,7 @@ pub fn demo_analysis(seed: u64) -> Result<Analysis, CliError> {
 pub fn run_cmd(args: &DemoArgs) -> Result<(), CliError> {
     let a = demo_analysis(args.seed)?;
     let r = &a.report;
-    println!("envord demo: Corrin Vale quarry (fictional), conveyor CV-7 drive reducer");
+    println!("envord demo: Quorvalith quarry (fictional), conveyor CV-7 drive reducer");
     println!(
         "  simulated: 14 s at 51.2 kS/s, speed wandering 1150-1450 rpm, outer-race defect on inter-de"
     );

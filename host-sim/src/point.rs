@@ -32,11 +32,13 @@ struct PointFile {
     search: SearchSection,
     #[serde(default)]
     iso: IsoSection,
-    #[serde(default)]
+    // The simulator's machine spec once spelled these `shafts`, `bearings`
+    // and `gears`; both files now use the singular names, and read the old.
+    #[serde(default, alias = "shafts")]
     shaft: Vec<ShaftEntry>,
-    #[serde(default)]
+    #[serde(default, alias = "bearings")]
     bearing: Vec<BearingEntry>,
-    #[serde(default)]
+    #[serde(default, alias = "gears")]
     mesh: Vec<MeshEntry>,
 }
 
@@ -507,6 +509,80 @@ mod tests {
         assert_eq!(p.shafts.len(), 3);
         // intermediate shaft: 1 x 19/71 (tooth counts of the example)
         assert!((p.shafts[1].ratio - 19.0 / 71.0).abs() < 1e-6);
+    }
+
+    /// Every "(default: X)" in the example point files is the real default:
+    /// a file giving only that key with X parses to the same point as an
+    /// empty file (PointConfig::default through the parser).
+    #[test]
+    fn defaults_shown_in_the_examples_are_the_real_defaults() {
+        let empty = parse("").unwrap();
+        for (file, text) in [
+            ("point.toml", include_str!("../examples/point.toml")),
+            (
+                "demo-point.toml",
+                include_str!("../examples/demo-point.toml"),
+            ),
+        ] {
+            let mut section = String::new();
+            let mut checked = 0;
+            for line in text.lines() {
+                let t = line.trim();
+                if t.starts_with("[[") {
+                    section.clear(); // list entries have no defaults to show
+                } else if t.starts_with('[') {
+                    section = t.to_string();
+                }
+                let Some((kv, comment)) = t.split_once('#') else {
+                    continue;
+                };
+                let Some(d) = comment.split("(default: ").nth(1) else {
+                    continue;
+                };
+                let value = d.split([')', ';']).next().unwrap().trim();
+                let key = kv.split('=').next().unwrap().trim();
+                assert!(
+                    !section.is_empty(),
+                    "{file}: default outside a section: {line}"
+                );
+                let one = format!("{section}\n{key} = {value}\n");
+                let p = parse(&one).unwrap_or_else(|e| panic!("{file}: {one:?}: {e}"));
+                assert_eq!(p, empty, "{file}: {key} = {value} is not the default");
+                checked += 1;
+            }
+            assert!(checked >= 20, "{file}: only {checked} defaults shown");
+        }
+    }
+
+    /// Both example files say the same about leaving `band_hz` out.
+    #[test]
+    fn examples_agree_on_the_band_left_out() {
+        let band = |t: &'static str| t.lines().find(|l| l.starts_with("band_hz")).unwrap();
+        let (a, b) = (
+            band(include_str!("../examples/point.toml")),
+            band(include_str!("../examples/demo-point.toml")),
+        );
+        assert_eq!(a, b);
+        // and the node's fallback it names is dsp-core's
+        let mut p = PointConfig::default();
+        p.sample_rate_hz = 51_200.0;
+        assert_eq!(p.default_band_hz(), [6000.0, 12_000.0]);
+        assert!(a.contains("0.75 x Nyquist, at most 12 kHz"), "{a}");
+    }
+
+    /// The simulator's old list names are read here too.
+    #[test]
+    fn old_list_names_are_aliases() {
+        let b = "bpfo_x = 3.0\nbpfi_x = 5.0\nftf_x = 0.4\nbsf_x = 2.0\n";
+        let new = parse(&format!(
+            "[[shaft]]\nname = \"in\"\n[[bearing]]\nname = \"de\"\n{b}"
+        ))
+        .unwrap();
+        let old = parse(&format!(
+            "[[shafts]]\nname = \"in\"\n[[bearings]]\nname = \"de\"\n{b}"
+        ))
+        .unwrap();
+        assert_eq!(new, old);
     }
 
     #[test]

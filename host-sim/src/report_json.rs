@@ -178,7 +178,7 @@ pub fn zone_meaning(z: Zone) -> &'static str {
 }
 
 /// The zone limits of a machine group and support, in words, with the
-/// caveat that they are from memory (docs/validation.md, "To be verified").
+/// caveat that they are from memory (docs/sources-to-verify.md).
 pub fn zone_limits_text(group: MachineGroup, support: Support) -> String {
     let [ab, bc, cd] = zone_limits(group, support);
     let g = match group {
@@ -191,7 +191,7 @@ pub fn zone_limits_text(group: MachineGroup, support: Support) -> String {
     };
     format!(
         "group {g}, {sup} support: A up to {ab}, B up to {bc}, C up to {cd} mm/s rms, D above \
-         (limits from memory, to be verified)"
+         (limits from memory, to be verified: docs/sources-to-verify.md)"
     )
 }
 
