@@ -59,12 +59,12 @@ pub struct FrontEndConfig {
 }
 
 impl Default for FrontEndConfig {
-    /// 51.2 kHz, 5-10 kHz 8-pole band, squared envelope, decimate by 8,
+    /// 51.2 kHz, 6-12 kHz 8-pole band, squared envelope, decimate by 8,
     /// +-16 g over the i16 range, velocity 10-1000 Hz.
     fn default() -> Self {
         Self {
             sample_rate_hz: 51200.0,
-            band_hz: [5000.0, 10000.0],
+            band_hz: [6000.0, 12000.0],
             poles: 8,
             rectifier: Rectifier::Square,
             decimation: 8,
@@ -345,7 +345,8 @@ impl FrontEnd {
             let (rms, n) = self.vel.rms_mm_s();
             o.velocity_rms_mm_s = rms;
             o.velocity_count = n;
-            if n > 0 {
+            // No finite sample, no zone: a dead or broken sensor is not "zone A".
+            if n > 0 && o.count > 0 {
                 o.zone = Some(zone(
                     rms,
                     self.cfg.velocity.group,

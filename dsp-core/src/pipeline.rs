@@ -221,6 +221,12 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
         Ok(())
     }
 
+    /// Checks `point` as [`new`](Self::new) would, without building a
+    /// pipeline (for tools that search for a setting that fits).
+    pub fn check(point: &PointConfig) -> Result<(), PipelineError> {
+        Self::plan(point).map(|_| ())
+    }
+
     fn apply(&mut self, plan: Plan) {
         self.fe.apply(&plan.fe);
         self.tach.apply(plan.tach);

@@ -63,7 +63,8 @@ pub enum Zone {
 /// Zone boundaries A/B, B/C, C/D in mm/s RMS.
 ///
 /// FROM MEMORY (ISO 10816-3 / 20816-3 tables as recalled; verify against
-/// the standard before relying on them): group 1 rigid 2.3/4.5/7.1,
+/// the standard before relying on them; listed to be verified in
+/// docs/sources-to-verify.md): group 1 rigid 2.3/4.5/7.1,
 /// flexible 3.5/7.1/11.0; group 2 rigid 1.4/2.8/4.5, flexible 2.3/4.5/7.1.
 pub fn zone_limits(group: MachineGroup, support: Support) -> [f32; 3] {
     match (group, support) {

@@ -214,8 +214,8 @@ fn clipped_or_flat_captures_leave_the_band_unset_and_are_not_retried_each_cycle(
         let s = node.run_cycle().unwrap();
         assert_eq!(s.kind, CycleKind::Measure, "{want:?}");
         assert_eq!(node.status().band_source, FrameBand::Unset);
-        // an octave ending at 0.8 x Nyquist = 10.24 kHz, capped at 10 kHz
-        assert_eq!(node.status().band_hz, [5000.0, 10_000.0]);
+        // an octave ending at 0.75 x Nyquist = 9.6 kHz (cap 12 kHz not reached)
+        assert_eq!(node.status().band_hz, [4800.0, 9600.0]);
     }
 }
 

@@ -1,8 +1,9 @@
 //! The power-safe flash store: records survive a power loss at every step
 //! of a store (each page erase and each programmed word), and so does the
 //! node's configuration with its replay counter. The flash model is
-//! tests/common/flash.rs (nRF52840 NVMC rules: 4-byte words programmed once
-//! per erase, 4 KiB pages, contents undefined after an interrupted step).
+//! tests/common/flash.rs (after the nRF52840 NVMC: 4-byte words, 4 KiB pages,
+//! contents undefined after an interrupted step; programming a word only
+//! once per erase is stricter than the part; sources there).
 #![allow(
     clippy::cast_possible_truncation,
     clippy::unwrap_used,

@@ -5,7 +5,8 @@
 //! acquisition stopped once the configured revolutions are in.
 
 use dsp_core::config::{PointConfig, SpeedInput};
-use dsp_core::pipeline::{NodePipeline, ADC_BLOCK};
+use dsp_core::order_track::OrderTrackError;
+use dsp_core::pipeline::{NodePipeline, PipelineError, ADC_BLOCK};
 use dsp_core::report::Report;
 use dsp_core::survey::{SurveyError, SurveyResult};
 use dsp_core::tach::EdgeDetector;
@@ -120,17 +121,79 @@ pub fn choose_band(
     Ok(Some(r))
 }
 
+/// Sample rates the host analysis accepts, Hz (the simulator's range).
+pub const SAMPLE_RATE_RANGE_HZ: [f32; 2] = [1000.0, 400_000.0];
+
+/// Refuses a sample rate outside [`SAMPLE_RATE_RANGE_HZ`] with the fix in
+/// words, before any stage turns it into jargon about rings or Nyquist.
+pub fn check_sample_rate(fs: f32) -> Result<(), String> {
+    let [lo, hi] = SAMPLE_RATE_RANGE_HZ;
+    if fs.is_finite() && (lo..=hi).contains(&fs) {
+        Ok(())
+    } else {
+        Err(format!(
+            "sample rate {fs} Hz (from the WAV header) is outside the {lo:.0} to {hi:.0} Hz \
+             the analysis supports: check that the header's rate is the rate the samples were \
+             taken at, or resample the recording"
+        ))
+    }
+}
+
+/// A pipeline refusal in words a user can act on: which point-file key to
+/// change, and to what, where that can be worked out.
+pub fn explain_pipeline_error(point: &PointConfig, e: PipelineError) -> String {
+    match e {
+        PipelineError::Config(c) => format!("{e} (point file: {})", crate::point::config_key(c)),
+        PipelineError::OrderTrack(OrderTrackError::RingTooSmall { .. }) => {
+            let (lo, hi) = (point.min_rpm, point.max_rpm);
+            // The narrowest change that fits: the lowest min_rpm the
+            // resampler accepts with this max_rpm (bisection over plans).
+            let fits = |min_rpm: f32| {
+                let mut q = point.clone();
+                q.min_rpm = min_rpm;
+                NodePipeline::check(&q).is_ok()
+            };
+            // (the tach tracker needs min_rpm < max_rpm)
+            let (mut bad, mut good) = (lo, 0.95 * hi);
+            let hint = if fits(good) {
+                for _ in 0..24 {
+                    let mid = 0.5 * (bad + good);
+                    if fits(mid) {
+                        good = mid;
+                    } else {
+                        bad = mid;
+                    }
+                }
+                format!(
+                    "raise [speed] min_rpm to at least {:.0} rpm, or lower [speed] max_rpm",
+                    good.ceil()
+                )
+            } else {
+                "lower [spectrum] samples_per_rev".to_string()
+            };
+            format!(
+                "the speed range [speed] min_rpm {lo} to max_rpm {hi} rpm is too wide for the \
+                 node's resampler at {} samples per revolution: {hint}, to the speeds this \
+                 machine really runs at",
+                point.samples_per_rev
+            )
+        }
+        other => other.to_string(),
+    }
+}
+
 /// Runs the node pipeline over a record.
 pub fn run(point: &PointConfig, rec: &Record) -> Result<Analysis, CliError> {
     let mut point = point.clone();
     point.sample_rate_hz = rec.sample_rate_hz;
+    check_sample_rate(rec.sample_rate_hz).map_err(CliError::Input)?;
     let mut p = Box::new(NodePipeline::new(&point).map_err(|e| {
         CliError::input(
             format!(
                 "measuring point at the recording's {} Hz sample rate",
                 rec.sample_rate_hz
             ),
-            e,
+            explain_pipeline_error(&point, e),
         )
     })?);
     let ticks = match (&point.speed, &rec.edges_s) {

@@ -19,8 +19,9 @@ pub struct AnalyzeArgs {
     /// Measuring point (TOML point file).
     #[arg(long)]
     pub point: PathBuf,
-    /// Known constant speed of the tach shaft, rpm (no tach needed).
-    #[arg(long)]
+    /// Known constant speed of the tach shaft, rpm (no tach needed; not
+    /// together with a tach).
+    #[arg(long, allow_negative_numbers = true, conflicts_with_all = ["tach_channel", "tach"])]
     pub rpm: Option<f32>,
     /// Channel holding the acceleration (0-based).
     #[arg(long, default_value_t = 0)]
@@ -119,6 +120,9 @@ pub fn load_record(
     })
 }
 
+/// Speeds `--rpm` accepts, rpm.
+pub const RPM_RANGE: [f32; 2] = [1.0, 100_000.0];
+
 /// Applies `--rpm` to a point, or checks that a tach is given when the point expects one.
 pub fn speed_for(
     mut point: PointConfig,
@@ -127,12 +131,29 @@ pub fn speed_for(
     source: &Path,
 ) -> Result<PointConfig, CliError> {
     if let Some(rpm) = rpm {
-        if !(rpm.is_finite() && rpm > 0.0) {
-            return Err(CliError::input("--rpm", "must be a positive number"));
+        let [lo, hi] = RPM_RANGE;
+        if !(rpm.is_finite() && (lo..=hi).contains(&rpm)) {
+            return Err(CliError::input(
+                format!("--rpm {rpm}"),
+                format!(
+                    "give the tach shaft's speed in revolutions per minute, from {lo} to {hi} \
+                     (for example --rpm 1480)"
+                ),
+            ));
+        }
+        if has_tach {
+            return Err(CliError::input(
+                format!("--rpm {rpm}"),
+                "give either --rpm or a tach (--tach-channel / --tach), not both",
+            ));
         }
         point.speed = SpeedInput::Constant { rpm };
-        point.min_rpm = point.min_rpm.min(rpm);
-        point.max_rpm = point.max_rpm.max(rpm);
+        if !(point.min_rpm..=point.max_rpm).contains(&rpm) {
+            // Outside the point's plausible range: the constant speed is
+            // the range (a wider span could exceed the resampler's 16:1).
+            point.min_rpm = rpm;
+            point.max_rpm = rpm;
+        }
     } else if matches!(point.speed, SpeedInput::Tach { .. }) && !has_tach {
         return Err(CliError::input(
             source.display(),
@@ -173,6 +194,8 @@ pub fn analyze_record(
     mut point: PointConfig,
     rec: &Record,
 ) -> Result<(Analysis, Option<dsp_core::survey::SurveyResult>), CliError> {
+    crate::analysis::check_sample_rate(rec.sample_rate_hz)
+        .map_err(|m| CliError::input(path.display(), m))?;
     let survey = crate::analysis::choose_band(&mut point, rec)
         .map_err(|e| CliError::input(path.display(), format!("band survey: {e}")))?;
     let a = run(&point, rec).map_err(|e| match e {
@@ -248,7 +271,8 @@ pub fn coincidences(point: &PointConfig) -> (Vec<String>, serde_json::Value) {
 /// Runs `envord analyze`.
 pub fn run_cmd(args: &AnalyzeArgs) -> Result<(), CliError> {
     let (a, survey) = analyze_auto(args)?;
-    let (caution, caution_json) = coincidences(&crate::point::load(&args.point)?);
+    let point = crate::point::load(&args.point)?;
+    let (caution, caution_json) = coincidences(&point);
     if let Some(plot) = &args.plot {
         crate::output::write_with(plot, |tmp| {
             crate::plot::order_spectrum(tmp, &a, &args.recording.display().to_string())
@@ -273,7 +297,10 @@ pub fn run_cmd(args: &AnalyzeArgs) -> Result<(), CliError> {
                 r.band_hz[0], r.band_hz[1], r.kurtosis
             );
         }
-        print!("{}", to_table(&a.report));
+        print!(
+            "{}",
+            to_table(&a.report, point.machine_group, point.support)
+        );
         for c in &caution {
             println!("{c}");
         }

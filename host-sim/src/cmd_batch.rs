@@ -24,8 +24,9 @@ pub struct BatchArgs {
     /// Measuring point (TOML point file).
     #[arg(long)]
     pub point: PathBuf,
-    /// Known constant speed of the tach shaft, rpm.
-    #[arg(long)]
+    /// Known constant speed of the tach shaft, rpm (not together with
+    /// --tach-channel).
+    #[arg(long, allow_negative_numbers = true, conflicts_with = "tach_channel")]
     pub rpm: Option<f32>,
     /// Acceleration channel (0-based).
     #[arg(long, default_value_t = 0)]
@@ -43,8 +44,18 @@ pub struct BatchArgs {
     pub jobs: Option<usize>,
 }
 
-/// Speed, flags, best score per defect kind, detections, band text.
-type RowFigures = (f32, String, [f32; 4], Vec<String>, String);
+/// One analysed file's figures for the summary.
+struct RowFigures {
+    rpm: f32,
+    flags: String,
+    /// Highest score per defect kind, dB.
+    best: [f32; 4],
+    /// The bearing each highest score belongs to.
+    best_bearing: [String; 4],
+    detected: Vec<String>,
+    band: String,
+    zone: Option<dsp_core::velocity::Zone>,
+}
 
 struct Row {
     file: String,
@@ -124,38 +135,69 @@ pub fn run(args: &BatchArgs) -> Result<(), CliError> {
     bar.finish_and_clear();
 
     let mut md = String::from(
-        "| file | speed rpm | flags | band Hz | BPFO dB | BPFI dB | FTF dB | BSF dB | detected |\n|---|---|---|---|---|---|---|---|---|\n",
+        "| file | speed rpm | flags | band Hz | ISO zone | BPFO dB (bearing) | BPFI dB (bearing) \
+         | FTF dB (bearing) | BSF dB (bearing) | detected |\n\
+         |---|---|---|---|---|---|---|---|---|---|\n",
     );
-    let mut csv =
-        String::from("file,speed_rpm,flags,band_hz,bpfo_db,bpfi_db,ftf_db,bsf_db,detected,error\n");
+    // New columns go at the end: scripts read the older ones by position.
+    let mut csv = String::from(
+        "file,speed_rpm,flags,band_hz,bpfo_db,bpfi_db,ftf_db,bsf_db,detected,error,\
+         bpfo_bearing,bpfi_bearing,ftf_bearing,bsf_bearing,iso_zone\n",
+    );
     let mut plot_rows = Vec::new();
     let mut failed = 0usize;
+    let mut zones = std::collections::BTreeSet::new();
     for r in &rows {
         match &r.result {
-            Ok((rpm, flags, s, det, band)) => {
+            Ok(f) => {
+                let s = &f.best;
+                let cell = |i: usize| {
+                    let name = f.best_bearing.get(i).map_or("", String::as_str);
+                    let v = s.get(i).copied().unwrap_or(0.0);
+                    if name.is_empty() {
+                        format!("{v:.1}")
+                    } else {
+                        format!("{v:.1} ({name})")
+                    }
+                };
+                let zone = f.zone.map_or_else(|| "-".to_string(), |z| format!("{z:?}"));
+                if let Some(z) = f.zone {
+                    zones.insert(z);
+                }
                 let _ = writeln!(
                     md,
-                    "| {} | {rpm:.1} | {flags} | {band} | {:.1} | {:.1} | {:.1} | {:.1} | {} |",
+                    "| {} | {:.1} | {} | {} | {zone} | {} | {} | {} | {} | {} |",
                     r.file,
-                    s[0],
-                    s[1],
-                    s[2],
-                    s[3],
-                    if det.is_empty() {
+                    f.rpm,
+                    f.flags,
+                    f.band,
+                    cell(0),
+                    cell(1),
+                    cell(2),
+                    cell(3),
+                    if f.detected.is_empty() {
                         "-".into()
                     } else {
-                        det.join(", ")
+                        f.detected.join(", ")
                     }
                 );
                 let _ = writeln!(
                     csv,
-                    "{},{rpm:.3},{flags},{band},{:.2},{:.2},{:.2},{:.2},{},",
+                    "{},{:.3},{},{},{:.2},{:.2},{:.2},{:.2},{},,{},{},{},{},{}",
                     r.file,
+                    f.rpm,
+                    f.flags,
+                    f.band,
                     s[0],
                     s[1],
                     s[2],
                     s[3],
-                    det.join(";")
+                    f.detected.join(";"),
+                    f.best_bearing[0],
+                    f.best_bearing[1],
+                    f.best_bearing[2],
+                    f.best_bearing[3],
+                    if f.zone.is_some() { zone.as_str() } else { "" },
                 );
                 plot_rows.push(ScoreRow {
                     label: r.file.clone(),
@@ -164,9 +206,24 @@ pub fn run(args: &BatchArgs) -> Result<(), CliError> {
             }
             Err(e) => {
                 failed += 1;
-                let _ = writeln!(md, "| {} | - | error: {e} | | | | | | |", r.file);
-                let _ = writeln!(csv, "{},,,,,,,,,\"{}\"", r.file, e.replace('"', "'"));
+                let _ = writeln!(md, "| {} | - | error: {e} | | | | | | | |", r.file);
+                let _ = writeln!(csv, "{},,,,,,,,,\"{}\",,,,,", r.file, e.replace('"', "'"));
             }
+        }
+    }
+    let _ = writeln!(
+        md,
+        "\nEach dB column is the highest score of that defect kind over the point's bearings, \
+         with the bearing it belongs to."
+    );
+    if !zones.is_empty() {
+        let _ = writeln!(
+            md,
+            "ISO 20816-3 zones ({}):",
+            crate::report_json::zone_limits_text(point.machine_group, point.support)
+        );
+        for z in &zones {
+            let _ = writeln!(md, "- {z:?}: {}", crate::report_json::zone_meaning(*z));
         }
     }
     let write =
@@ -231,12 +288,18 @@ fn analyse_one(
                 .as_bytes(),
         )?;
         let mut best = [0.0f32; 4];
+        let mut best_bearing: [String; 4] = Default::default();
         let mut detected = Vec::new();
         for b in &a.report.bearings {
             for k in DefectKind::ALL {
                 if let Some(d) = b.diagnosis.as_ref().and_then(|d| d.get(k)) {
-                    if let Some(slot) = best.get_mut(k.index()) {
-                        *slot = slot.max(d.score_db);
+                    if let (Some(slot), Some(who)) =
+                        (best.get_mut(k.index()), best_bearing.get_mut(k.index()))
+                    {
+                        if who.is_empty() || d.score_db > *slot {
+                            *slot = slot.max(d.score_db);
+                            *who = b.name.as_str().to_string();
+                        }
                     }
                     if d.detected {
                         detected.push(format!("{} {}", b.name.as_str(), k.name()));
@@ -244,13 +307,15 @@ fn analyse_one(
                 }
             }
         }
-        Ok((
-            a.report.speed.mean_rpm,
-            a.report.flags.to_string(),
+        Ok(RowFigures {
+            rpm: a.report.speed.mean_rpm,
+            flags: a.report.flags.to_string(),
             best,
+            best_bearing,
             detected,
             band,
-        ))
+            zone: a.report.overall.zone,
+        })
     })();
     Row {
         file: name,

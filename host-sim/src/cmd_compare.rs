@@ -27,15 +27,70 @@ pub struct CompareArgs {
     pub tolerance_pct: f64,
 }
 
+/// What a change means for the diagnosis, for the summary line.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ChangeKind {
+    /// A defect is now detected that was not before.
+    Appeared,
+    /// A defect detected before is no longer detected.
+    Vanished,
+    /// A score, overall value or the speed moved beyond tolerance (same decision).
+    Moved,
+    /// Anything else: flags, a bearing, defect or file present on one side only.
+    Other,
+}
+
 /// One change found between two reports.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Change {
     /// Where: file, bearing, defect or field.
     pub what: String,
-    /// Old value.
+    /// Old value, in plain words.
     pub old: String,
-    /// New value.
+    /// New value, in plain words.
     pub new: String,
+    /// What the change means.
+    pub kind: ChangeKind,
+}
+
+/// A JSON value in plain words: numbers as numbers, a missing value as "absent".
+fn plain(v: Option<&Value>) -> String {
+    match v {
+        None | Some(Value::Null) => "absent".into(),
+        Some(Value::String(s)) => s.clone(),
+        Some(Value::Array(l)) if l.is_empty() => "none".into(),
+        Some(Value::Array(l)) => l
+            .iter()
+            .map(|x| plain(Some(x)))
+            .collect::<Vec<_>>()
+            .join(", "),
+        Some(other) => other.to_string(),
+    }
+}
+
+/// A number in plain words, "absent" when missing.
+fn plain_num(v: Option<f64>) -> String {
+    v.map_or_else(|| "absent".into(), |x| format!("{x}"))
+}
+
+/// A detection decision in plain words.
+fn decision(v: Option<bool>) -> String {
+    match v {
+        Some(true) => "detected".into(),
+        Some(false) => "not detected".into(),
+        None => "absent".into(),
+    }
+}
+
+/// Counts of changes per kind: (appeared, vanished, moved, other).
+pub fn summary(changes: &[Change]) -> (usize, usize, usize, usize) {
+    let n = |k: ChangeKind| changes.iter().filter(|c| c.kind == k).count();
+    (
+        n(ChangeKind::Appeared),
+        n(ChangeKind::Vanished),
+        n(ChangeKind::Moved),
+        n(ChangeKind::Other),
+    )
 }
 
 fn load(path: &Path) -> Result<Value, CliError> {
@@ -76,21 +131,32 @@ pub fn compare_reports(
     tol_pct: f64,
 ) -> Vec<Change> {
     let mut out = Vec::new();
-    let mut push = |what: String, old: String, new: String| {
-        out.push(Change { what, old, new });
+    let mut push = |what: String, old: String, new: String, kind: ChangeKind| {
+        out.push(Change {
+            what,
+            old,
+            new,
+            kind,
+        });
     };
     let fa = a.get("flags").cloned().unwrap_or(Value::Null);
     let fb = b.get("flags").cloned().unwrap_or(Value::Null);
     if fa != fb {
-        push(format!("{prefix}flags"), fa.to_string(), fb.to_string());
+        push(
+            format!("{prefix}flags"),
+            plain(Some(&fa)),
+            plain(Some(&fb)),
+            ChangeKind::Other,
+        );
     }
     match (num(a, "/speed_rpm"), num(b, "/speed_rpm")) {
         (Some(x), Some(y)) if x > 0.0 && ((y - x) / x).abs() * 100.0 <= tol_pct => {}
         (x, y) if x == y => {}
         (x, y) => push(
             format!("{prefix}speed_rpm"),
-            format!("{x:?}"),
-            format!("{y:?}"),
+            plain_num(x),
+            plain_num(y),
+            ChangeKind::Moved,
         ),
     }
     for key in [
@@ -107,13 +173,15 @@ pub fn compare_reports(
                     format!("{prefix}overall.{key}"),
                     x.to_string(),
                     y.to_string(),
+                    ChangeKind::Moved,
                 );
             }
         } else if a.pointer(&p) != b.pointer(&p) {
             push(
                 format!("{prefix}overall.{key}"),
-                format!("{:?}", a.pointer(&p)),
-                format!("{:?}", b.pointer(&p)),
+                plain(a.pointer(&p)),
+                plain(b.pointer(&p)),
+                ChangeKind::Other,
             );
         }
     }
@@ -152,6 +220,7 @@ pub fn compare_reports(
                     "absent"
                 }
                 .into(),
+                ChangeKind::Other,
             );
             continue;
         };
@@ -177,15 +246,33 @@ pub fn compare_reports(
         for kind in da.keys().chain(db.keys().filter(|k| !da.contains_key(*k))) {
             let where_ = format!("{prefix}{name} {kind}");
             let (Some(p), Some(q)) = (da.get(kind), db.get(kind)) else {
-                push(where_, "present/absent".into(), "changed".into());
+                let side = |m: &BTreeMap<String, Value>| {
+                    if m.contains_key(kind) {
+                        "searched"
+                    } else {
+                        "absent"
+                    }
+                };
+                push(
+                    where_,
+                    side(&da).into(),
+                    side(&db).into(),
+                    ChangeKind::Other,
+                );
                 continue;
             };
             let det = |d: &Value| d.get("detected").and_then(Value::as_bool);
             if det(p) != det(q) {
+                let kind = match (det(p), det(q)) {
+                    (Some(true), _) => ChangeKind::Vanished,
+                    (_, Some(true)) => ChangeKind::Appeared,
+                    _ => ChangeKind::Other,
+                };
                 push(
-                    format!("{where_} detected"),
-                    format!("{:?}", det(p)),
-                    format!("{:?}", det(q)),
+                    format!("{where_} decision"),
+                    decision(det(p)),
+                    decision(det(q)),
+                    kind,
                 );
             }
             let sc = |d: &Value| d.get("score_db").and_then(Value::as_f64);
@@ -194,8 +281,9 @@ pub fn compare_reports(
                 (s, t) if s == t => {}
                 (s, t) => push(
                     format!("{where_} score_db"),
-                    s.map_or("null".into(), |v| format!("{v:.2}")),
-                    t.map_or("null".into(), |v| format!("{v:.2}")),
+                    s.map_or("absent".into(), |v| format!("{v:.2}")),
+                    t.map_or("absent".into(), |v| format!("{v:.2}")),
+                    ChangeKind::Moved,
                 ),
             }
         }
@@ -216,6 +304,20 @@ fn json_files(dir: &Path) -> Result<BTreeMap<String, PathBuf>, CliError> {
         }
     }
     Ok(m)
+}
+
+/// The change table and the per-decision summary line, as printed.
+pub fn changes_table(changes: &[Change]) -> String {
+    let mut s = format!("{:<48} {:>20} {:>20}\n", "changed", "was", "now");
+    for c in changes {
+        s.push_str(&format!("{:<48} {:>20} {:>20}\n", c.what, c.old, c.new));
+    }
+    let (appeared, vanished, moved, other) = summary(changes);
+    s.push_str(&format!(
+        "summary: {appeared} finding(s) appeared, {vanished} vanished, {moved} value(s) moved \
+         beyond tolerance, {other} other change(s)\n"
+    ));
+    s
 }
 
 /// Runs `envord compare`.
@@ -244,6 +346,7 @@ pub fn run(args: &CompareArgs) -> Result<(), CliError> {
                         what: name.clone(),
                         old: "present".into(),
                         new: "missing".into(),
+                        kind: ChangeKind::Other,
                     }),
                 }
             }
@@ -252,6 +355,7 @@ pub fn run(args: &CompareArgs) -> Result<(), CliError> {
                     what: name.clone(),
                     old: "missing".into(),
                     new: "present".into(),
+                    kind: ChangeKind::Other,
                 });
             }
         }
@@ -279,10 +383,7 @@ pub fn run(args: &CompareArgs) -> Result<(), CliError> {
         );
         return Ok(());
     }
-    println!("{:<48} {:>20} {:>20}", "changed", "was", "now");
-    for c in &changes {
-        println!("{:<48} {:>20} {:>20}", c.what, c.old, c.new);
-    }
+    print!("{}", changes_table(&changes));
     Err(CliError::Difference(format!(
         "{} change(s) beyond tolerance in {compared} report(s)",
         changes.len()
@@ -311,7 +412,35 @@ mod tests {
         assert_eq!(c.len(), 1);
         assert!(c[0].what.contains("score_db"));
         let c = compare_reports(&report(20.0, true), &report(20.0, false), "", 0.5, 0.1);
-        assert!(c[0].what.contains("detected"));
+        assert!(c[0].what.contains("decision"));
+    }
+
+    /// Values print as plain words (no `Some(false)`), and the summary
+    /// counts findings that appeared, vanished and moved.
+    #[test]
+    fn changes_print_in_plain_words_with_a_summary() {
+        let mut a = report(20.0, false);
+        a["bearings"][0]["defects"]
+            .as_array_mut()
+            .unwrap()
+            .push(json!({"kind": "BPFI", "order": 5.4, "detected": true, "score_db": 18.0}));
+        let mut b = report(20.0, true);
+        b["bearings"][0]["defects"]
+            .as_array_mut()
+            .unwrap()
+            .push(json!({"kind": "BPFI", "order": 5.4, "detected": false, "score_db": 18.0}));
+        b["overall"]["rms_g"] = json!(0.7);
+        b["speed_rpm"] = Value::Null;
+        let c = compare_reports(&a, &b, "", 0.5, 0.1);
+        let t = changes_table(&c);
+        assert!(!t.contains("Some("), "{t}");
+        assert!(!t.contains("None"), "{t}");
+        assert!(t.contains("not detected") && t.contains("absent"), "{t}");
+        assert_eq!(summary(&c), (1, 1, 2, 0), "{c:?}");
+        assert!(
+            t.contains("summary: 1 finding(s) appeared, 1 vanished, 2 value(s) moved"),
+            "{t}"
+        );
     }
 
     #[test]

@@ -15,7 +15,7 @@ use crate::report_json::to_json;
 use crate::simulate::{simulate, MachineSpec};
 
 /// The demo machine (simulator description).
-pub const DEMO_MACHINE: &str = include_str!("../examples/demo-machine.toml");
+pub const DEMO_MACHINE: &str = crate::simulate::DEMO_MACHINE_TOML;
 /// The demo measuring point.
 pub const DEMO_POINT: &str = include_str!("../examples/demo-point.toml");
 /// The files `demo` writes into its output folder.
@@ -78,7 +78,7 @@ pub fn run_cmd(args: &DemoArgs) -> Result<(), CliError> {
     }
     let a = demo_analysis(args.seed)?;
     let r = &a.report;
-    println!("envord demo: Corrin Vale quarry (fictional), conveyor CV-7 drive reducer");
+    println!("envord demo: Quorvalith quarry (fictional), conveyor CV-7 drive reducer");
     println!(
         "  simulated: 14 s at 51.2 kS/s, speed wandering 1150-1450 rpm, outer-race defect on inter-de"
     );
@@ -95,9 +95,16 @@ pub fn run_cmd(args: &DemoArgs) -> Result<(), CliError> {
         o.kurtosis,
         o.velocity_rms_mm_s,
         o.zone
-            .map(|z| format!(" (ISO 20816-3 zone {z:?})"))
+            .map(|z| format!(" ({})", crate::report_json::zone_label(z)))
             .unwrap_or_default()
     );
+    if let (Some(z), Ok(p)) = (o.zone, crate::point::parse(DEMO_POINT)) {
+        println!(
+            "zone {z:?}    {}; {}",
+            crate::report_json::zone_meaning(z),
+            crate::report_json::zone_limits_text(p.machine_group, p.support)
+        );
+    }
     println!(
         "envelope  {:.0}-{:.0} Hz, decimation {}, {} segments x {} revolutions",
         r.band_hz[0],

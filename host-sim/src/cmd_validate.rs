@@ -55,7 +55,7 @@ use crate::wav::{read_wav, ReadOptions};
 pub enum BandRule {
     /// The spectral-kurtosis band survey on each record ([`dsp_core::survey`]).
     Auto,
-    /// One octave ending at 0.8 x Nyquist, at most 10 kHz
+    /// One octave ending at 0.75 x Nyquist, at most 12 kHz
     /// ([`PointConfig::default_band_hz`]).
     Default,
     /// The same band for every record (clipped to 0.9 x Nyquist).
@@ -93,7 +93,8 @@ pub struct ValidateArgs {
     #[arg(long)]
     pub json: bool,
     /// Envelope band rule: `auto` (spectral-kurtosis survey), `default`
-    /// (octave below 0.8 x Nyquist) or `LO,HI` in Hz for every record.
+    /// (octave below 0.75 x Nyquist, at most 12 kHz) or `LO,HI` in Hz for
+    /// every record.
     #[arg(long, default_value = "auto")]
     pub band: BandRule,
     /// Only records of this channel (`DE`, `FE`, `BA`; case-insensitive).

@@ -30,7 +30,8 @@ enum Command {
     Batch(host_sim::cmd_batch::BatchArgs),
     /// Write a simulated gearbox record (WAV: ch0 accel g, ch1 tach V).
     Simulate(host_sim::cmd_simulate::SimulateArgs),
-    /// Read node frames at the plant gateway: decode, import, status, trend.
+    /// The plant gateway: node frames into a store, alarm states and score
+    /// histories, signed messages to nodes (every subcommand: `envord gateway --help`).
     Gateway(host_sim::gateway::GatewayArgs),
     /// Check the diagnosis on a labelled data folder (manifest.toml + WAVs).
     Validate(host_sim::cmd_validate::ValidateArgs),

@@ -32,11 +32,13 @@ struct PointFile {
     search: SearchSection,
     #[serde(default)]
     iso: IsoSection,
-    #[serde(default)]
+    // The simulator's machine spec once spelled these `shafts`, `bearings`
+    // and `gears`; both files now use the singular names, and read the old.
+    #[serde(default, alias = "shafts")]
     shaft: Vec<ShaftEntry>,
-    #[serde(default)]
+    #[serde(default, alias = "bearings")]
     bearing: Vec<BearingEntry>,
-    #[serde(default)]
+    #[serde(default, alias = "gears")]
     mesh: Vec<MeshEntry>,
 }
 
@@ -282,6 +284,12 @@ fn shafts(entries: &[ShaftEntry], p: &mut PointConfig) -> Result<(), String> {
     p.shafts.clear();
     for (i, e) in entries.iter().enumerate() {
         check_name("shaft", &e.name)?;
+        if entries.iter().take(i).any(|o| o.name == e.name) {
+            return Err(format!(
+                "shaft.name `{}`: two shafts share this name; give each shaft its own name",
+                e.name
+            ));
+        }
         let ratio = match (e.ratio, &e.driven_by, e.teeth) {
             (Some(r), None, None) => r,
             (None, Some(by), Some([z_driver, z_driven])) => {
@@ -368,8 +376,14 @@ fn shaft_of(p: &PointConfig, what: &str, owner: &str, shaft: Option<&str>) -> Re
 
 fn bearings(entries: &[BearingEntry], p: &mut PointConfig) -> Result<(), String> {
     check_count("bearing", entries.len(), MAX_BEARINGS)?;
-    for e in entries {
+    for (i, e) in entries.iter().enumerate() {
         check_name("bearing", &e.name)?;
+        if entries.iter().take(i).any(|o| o.name == e.name) {
+            return Err(format!(
+                "bearing.name `{}`: two bearings share this name; give each bearing its own name",
+                e.name
+            ));
+        }
         // one name, one thing: reports and gateway maps refer to both by name
         if p.shafts.iter().any(|s| s.name.as_str() == e.name) {
             return Err(format!(
@@ -434,8 +448,14 @@ fn bearings(entries: &[BearingEntry], p: &mut PointConfig) -> Result<(), String>
 
 fn meshes(entries: &[MeshEntry], p: &mut PointConfig) -> Result<(), String> {
     check_count("mesh", entries.len(), MAX_MESHES)?;
-    for e in entries {
+    for (i, e) in entries.iter().enumerate() {
         check_name("mesh", &e.name)?;
+        if entries.iter().take(i).any(|o| o.name == e.name) {
+            return Err(format!(
+                "mesh.name `{}`: two meshes share this name; give each mesh its own name",
+                e.name
+            ));
+        }
         let shaft = shaft_of(p, "mesh", &e.name, e.shaft.as_deref())?;
         p.meshes
             .push(Mesh {
@@ -449,7 +469,7 @@ fn meshes(entries: &[MeshEntry], p: &mut PointConfig) -> Result<(), String> {
 }
 
 /// The point-file key a configuration error refers to.
-fn config_key(e: dsp_core::config::ConfigError) -> &'static str {
+pub(crate) fn config_key(e: dsp_core::config::ConfigError) -> &'static str {
     use dsp_core::config::ConfigError as E;
     match e {
         E::SampleRate => "sensor.sample_rate_hz",
@@ -489,6 +509,80 @@ mod tests {
         assert_eq!(p.shafts.len(), 3);
         // intermediate shaft: 1 x 19/71 (tooth counts of the example)
         assert!((p.shafts[1].ratio - 19.0 / 71.0).abs() < 1e-6);
+    }
+
+    /// Every "(default: X)" in the example point files is the real default:
+    /// a file giving only that key with X parses to the same point as an
+    /// empty file (PointConfig::default through the parser).
+    #[test]
+    fn defaults_shown_in_the_examples_are_the_real_defaults() {
+        let empty = parse("").unwrap();
+        for (file, text) in [
+            ("point.toml", include_str!("../examples/point.toml")),
+            (
+                "demo-point.toml",
+                include_str!("../examples/demo-point.toml"),
+            ),
+        ] {
+            let mut section = String::new();
+            let mut checked = 0;
+            for line in text.lines() {
+                let t = line.trim();
+                if t.starts_with("[[") {
+                    section.clear(); // list entries have no defaults to show
+                } else if t.starts_with('[') {
+                    section = t.to_string();
+                }
+                let Some((kv, comment)) = t.split_once('#') else {
+                    continue;
+                };
+                let Some(d) = comment.split("(default: ").nth(1) else {
+                    continue;
+                };
+                let value = d.split([')', ';']).next().unwrap().trim();
+                let key = kv.split('=').next().unwrap().trim();
+                assert!(
+                    !section.is_empty(),
+                    "{file}: default outside a section: {line}"
+                );
+                let one = format!("{section}\n{key} = {value}\n");
+                let p = parse(&one).unwrap_or_else(|e| panic!("{file}: {one:?}: {e}"));
+                assert_eq!(p, empty, "{file}: {key} = {value} is not the default");
+                checked += 1;
+            }
+            assert!(checked >= 20, "{file}: only {checked} defaults shown");
+        }
+    }
+
+    /// Both example files say the same about leaving `band_hz` out.
+    #[test]
+    fn examples_agree_on_the_band_left_out() {
+        let band = |t: &'static str| t.lines().find(|l| l.starts_with("band_hz")).unwrap();
+        let (a, b) = (
+            band(include_str!("../examples/point.toml")),
+            band(include_str!("../examples/demo-point.toml")),
+        );
+        assert_eq!(a, b);
+        // and the node's fallback it names is dsp-core's
+        let mut p = PointConfig::default();
+        p.sample_rate_hz = 51_200.0;
+        assert_eq!(p.default_band_hz(), [6000.0, 12_000.0]);
+        assert!(a.contains("0.75 x Nyquist, at most 12 kHz"), "{a}");
+    }
+
+    /// The simulator's old list names are read here too.
+    #[test]
+    fn old_list_names_are_aliases() {
+        let b = "bpfo_x = 3.0\nbpfi_x = 5.0\nftf_x = 0.4\nbsf_x = 2.0\n";
+        let new = parse(&format!(
+            "[[shaft]]\nname = \"in\"\n[[bearing]]\nname = \"de\"\n{b}"
+        ))
+        .unwrap();
+        let old = parse(&format!(
+            "[[shafts]]\nname = \"in\"\n[[bearings]]\nname = \"de\"\n{b}"
+        ))
+        .unwrap();
+        assert_eq!(new, old);
     }
 
     #[test]
@@ -539,6 +633,23 @@ mod tests {
         // distinct names parse
         let text = "[[shaft]]\nname = \"input\"\n[[bearing]]\nname = \"de\"\nbpfo_x = 3.0\nbpfi_x = 5.0\nftf_x = 0.4\nbsf_x = 2.0\n";
         assert!(parse(text).is_ok());
+    }
+
+    /// A name given twice is named in the message (it was the generic
+    /// "names must be unique").
+    #[test]
+    fn duplicate_names_are_named() {
+        let b = "bpfo_x = 3.0\nbpfi_x = 5.0\nftf_x = 0.4\nbsf_x = 2.0\n";
+        let text = format!("[[bearing]]\nname = \"de\"\n{b}[[bearing]]\nname = \"de\"\n{b}");
+        let err = parse(&text).unwrap_err();
+        assert!(
+            err.contains("bearing.name `de`") && err.contains("two bearings"),
+            "{err}"
+        );
+        let text = "[[shaft]]\nname = \"in\"\n[[shaft]]\nname = \"in\"\nratio = 0.5\n";
+        assert!(parse(text).unwrap_err().contains("shaft.name `in`"));
+        let text = "[[mesh]]\nname = \"m\"\nteeth = 9\n[[mesh]]\nname = \"m\"\nteeth = 7\n";
+        assert!(parse(text).unwrap_err().contains("mesh.name `m`"));
     }
 
     #[test]

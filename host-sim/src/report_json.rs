@@ -11,6 +11,7 @@
 use dsp_core::defects::DefectResult;
 use dsp_core::kinematics::DefectKind;
 use dsp_core::report::Report;
+use dsp_core::velocity::{zone_limits, MachineGroup, Support, Zone};
 use serde_json::{json, Value};
 
 /// Version of this JSON layout (bumped only for incompatible changes).
@@ -163,8 +164,45 @@ pub fn to_json(report: &Report, file: Option<&str>) -> Value {
     })
 }
 
-/// A short human table of a report.
-pub fn to_table(report: &Report) -> String {
+/// What an ISO 20816-3 evaluation zone means (the standard's zone
+/// descriptions in our words).
+pub fn zone_meaning(z: Zone) -> &'static str {
+    match z {
+        Zone::A => "typical of newly commissioned machines",
+        Zone::B => "acceptable for unrestricted long-term operation",
+        Zone::C => {
+            "not acceptable for long-term continuous operation; run only until a planned repair"
+        }
+        Zone::D => "severe enough to cause damage",
+    }
+}
+
+/// The zone limits of a machine group and support, in words, with the
+/// caveat that they are from memory (docs/sources-to-verify.md).
+pub fn zone_limits_text(group: MachineGroup, support: Support) -> String {
+    let [ab, bc, cd] = zone_limits(group, support);
+    let g = match group {
+        MachineGroup::Large => 1,
+        MachineGroup::Medium => 2,
+    };
+    let sup = match support {
+        Support::Rigid => "rigid",
+        Support::Flexible => "flexible",
+    };
+    format!(
+        "group {g}, {sup} support: A up to {ab}, B up to {bc}, C up to {cd} mm/s rms, D above \
+         (limits from memory, to be verified: docs/sources-to-verify.md)"
+    )
+}
+
+/// The overall line's zone, worded alike by `analyze`, `batch` and `demo`.
+pub fn zone_label(z: Zone) -> String {
+    format!("ISO 20816-3 zone {z:?}")
+}
+
+/// A short human table of a report; `group` and `support` are the
+/// point's, for the meaning of the zone.
+pub fn to_table(report: &Report, group: MachineGroup, support: Support) -> String {
     use std::fmt::Write;
     let mut out = String::new();
     let s = &report.speed;
@@ -188,9 +226,17 @@ pub fn to_table(report: &Report) -> String {
         o.kurtosis,
         o.velocity_rms_mm_s,
         o.zone
-            .map(|z| format!(" (ISO 20816 zone {z:?})"))
+            .map(|z| format!(" ({})", zone_label(z)))
             .unwrap_or_default()
     );
+    if let Some(z) = o.zone {
+        let _ = writeln!(
+            out,
+            "zone {z:?}     {}; {}",
+            zone_meaning(z),
+            zone_limits_text(group, support)
+        );
+    }
     let _ = writeln!(
         out,
         "envelope   {:.0}-{:.0} Hz, decimation {}, {} segments, {:.4} orders/bin",
@@ -206,7 +252,15 @@ pub fn to_table(report: &Report) -> String {
     let _ = writeln!(
         out,
         "{:<16} {:<5} {:>8} {:>9} {:>5} {:>10}  detected",
-        "bearing", "kind", "order", "score dB", "harm", "1x amp"
+        "bearing",
+        "kind",
+        "order",
+        "score dB",
+        "harm",
+        match report.rectifier {
+            dsp_core::rectify::Rectifier::Abs => "1x amp g",
+            dsp_core::rectify::Rectifier::Square => "1x amp g^2",
+        }
     );
     for b in &report.bearings {
         for k in DefectKind::ALL {

@@ -4,7 +4,10 @@
 //! Expected rates are the kinematic defect frequencies, order x shaft Hz
 //! (common practice; multiples of a 6205 from the CWRU bearing text:
 //! BPFO 3.5848, BPFI 5.4152, FTF 0.39828, BSF 2.357 = 4.7135 / 2). Random
-//! slip of 1-2 % per interval is the model of Randall & Antoni 2011 (MSSP 25).
+//! slip of 1-2 % per interval: the figure usually quoted for rolling-element
+//! bearings, credited from memory to R. B. Randall, J. Antoni, "Rolling
+//! element bearing diagnostics - a tutorial", Mechanical Systems and Signal
+//! Processing 25 (2011) 485-520, section 2 (not re-checked).
 #![allow(
     clippy::field_reassign_with_default,
     clippy::unwrap_used,

@@ -31,7 +31,7 @@ assert (
     == "5bdcc146bf60754e6a042426089575c75a003f089d2739839dec58b964ec3843"
 )
 
-OTHER_KEY = hashlib.sha256(b"envord test key, Corrin Vale crusher CR-2, node 2583").digest()
+OTHER_KEY = hashlib.sha256(b"envord test key, Quorvalith crusher CR-2, node 2583").digest()
 
 
 def vector(name, key, node, counter, payload, args):

@@ -1,6 +1,11 @@
 //! Frame sizes against the LoRaWAN payload limits.
-//! Limits from LoRaWAN Regional Parameters RP002-1.0.x: EU868 DR0-DR2 maximum
-//! application payload (M minus FHDR/FPort, no FOpts) 51 bytes; US915 DR0 11 bytes.
+//! Limits: the maximum application payload (N, no FOpts) of the LoRaWAN
+//! Regional Parameters, EU868 DR0-DR2 51 bytes, US915 DR0 11 bytes. From
+//! memory of RP002-1.0.x (the "EU863-870 maximum payload size" and "US902-928
+//! maximum payload size" tables; table numbers not re-checked), as
+//! docs/frame-format.md says. The EU868 DR0 figure of 51 bytes is also what
+//! the older LoRaWAN 1.0.2 Regional Parameters give and what network servers
+//! quote (e.g. TheThingsNetwork/lorawan-stack issue #866).
 #![allow(clippy::unwrap_used, clippy::indexing_slicing)]
 
 #[path = "frame_common/mod.rs"]

@@ -106,8 +106,15 @@ fn bearing_on_geared_shaft() {
 }
 
 proptest! {
-    /// BPFO + BPFI = number of rollers for any valid geometry (follows from
-    /// the formulas; common practice as a sanity check).
+    /// BPFO + BPFI = number of rollers, for any valid geometry: an algebraic
+    /// consequence of the classical kinematic formulas (per revolution of the
+    /// inner ring, outer race fixed), BPFO = n/2 (1 - (d/D) cos a) and
+    /// BPFI = n/2 (1 + (d/D) cos a): the (d/D) cos a terms cancel in the sum.
+    /// The formulas and their derivation from the rolling kinematics (no
+    /// slip): T. A. Harris, M. N. Kotzalas, "Rolling Bearing Analysis",
+    /// 5th ed. (2007), vol. 1, ch. 8 (kinematic speeds); also Randall &
+    /// Antoni, MSSP 25 (2011), eqs. (1)-(4). Both from memory (chapter and
+    /// equation numbers not re-checked).
     #[test]
     fn bpfo_plus_bpfi_is_roller_count(
         n in 1u16..40,

@@ -42,7 +42,7 @@ HERE = Path(__file__).parent
 NODE_ID = 1
 # Downlink key of the fictional stand's node 1: a test key, published here on
 # purpose. A real node gets 32 random bytes from `envord gateway provision`.
-TEST_KEY = hashlib.sha256(b"envord test key, Corrin Vale stand TS-7, node 1").digest()
+TEST_KEY = hashlib.sha256(b"envord test key, Quorvalith stand TS-7, node 1").digest()
 PAGE = 4096
 FLASH_PAGES = 5  # config A, config B, baseline A, baseline B, identity
 

@@ -2,9 +2,21 @@
 //! each programmed 4-byte word is one step. When the budget of steps runs
 //! out, the step in progress is left half done (an erase leaves part of the
 //! page erased and the rest scrambled; a word keeps half its new bits) and
-//! the device refuses everything until `power_on`. Models the nRF52840 NVMC
-//! (4-byte words, 4 KiB pages; its datasheet leaves a word or page
-//! undefined after a power loss during its write or erase).
+//! the device refuses everything until `power_on`.
+//!
+//! Modelled on the nRF52840's flash controller (NVMC), as described in
+//! Nordic Semiconductor's "nRF52840 Product Specification" (v1.x), chapter
+//! "NVMC - Non-volatile memory controller"; all from memory, section and
+//! table numbers not re-checked:
+//! * 4-byte words, 4 KiB pages: as the part.
+//! * A word is programmed once per erase (a second write panics): a
+//!   STRICTER model than the part, which allows a word a small number of
+//!   writes between erases (n_WRITE in its electrical table).
+//! * A power loss during a word write or a page erase leaves that word or
+//!   page undefined (the part's documented rule). The patterns used here
+//!   (first third of the page erased, the rest scrambled; half the bytes of a
+//!   word with their new bits) are our choice of "undefined", not the part's
+//!   behaviour.
 use embedded_storage::nor_flash::{ErrorType, NorFlash, NorFlashErrorKind, ReadNorFlash};
 
 pub const PAGE: usize = 4096;

@@ -39,7 +39,7 @@ pub mod spec;
 
 pub use spec::{
     BearingSpec, Fault, GearMeshSpec, MachineSpec, NoiseSpec, ShaftSpec, SpecError, SpeedProfile,
-    TachSpec, MAX_SAMPLES,
+    TachSpec, DEMO_MACHINE_TOML, MAX_SAMPLES,
 };
 
 use core::f64::consts::TAU;

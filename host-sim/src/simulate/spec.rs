@@ -1,9 +1,17 @@
 //! The machine description the simulator runs: [`MachineSpec`], readable
-//! from TOML, with a fictional demo machine as its `Default`, and its
-//! validation ([`SpecError`]).
+//! from TOML on top of the demo machine ([`DEMO_MACHINE_TOML`], the machine
+//! of `envord demo`), and its validation ([`SpecError`]).
+//!
+//! Key style (shared with the point file): `[[shaft]]`, `[[bearing]]`,
+//! `[[mesh]]`, and bearing multiples `bpfo_x`, `bpfi_x`, `ftf_x`, `bsf_x`.
+//! The older spellings `[[shafts]]`, `[[bearings]]`, `[[gears]]` and `bpfo`,
+//! `bpfi`, `ftf`, `bsf` are still read.
 
 use serde::{Deserialize, Serialize};
 use std::fmt;
+
+/// The demo machine (`envord demo`, and `envord simulate` without `--spec`).
+pub const DEMO_MACHINE_TOML: &str = include_str!("../../examples/demo-machine.toml");
 
 /// Largest number of samples one simulation produces (per channel).
 pub const MAX_SAMPLES: usize = 20_000_000;
@@ -11,10 +19,10 @@ pub const MAX_SAMPLES: usize = 20_000_000;
 /// A machine to simulate. All speeds are of the tach shaft unless said
 /// otherwise; other shafts turn at `ratio` x the tach shaft's speed.
 ///
-/// `Default` is the demo machine: the two-stage drive reducer of belt
-/// conveyor BC-4 at the Hollowmere Aggregates quarry (invented), 1480 rpm
-/// input with the tach on the input shaft and an outer-race defect in the
-/// input drive-end bearing.
+/// `Default` is a small base machine for code and tests (a two-stage
+/// reducer at a constant 1480 rpm, 25.6 kS/s, outer-race defect in its one
+/// bearing); it is not the demo machine. Spec files and `envord simulate`
+/// start from the demo machine instead ([`MachineSpec::demo`]).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(default, deny_unknown_fields)]
 pub struct MachineSpec {
@@ -26,11 +34,14 @@ pub struct MachineSpec {
     pub seconds: f64,
     /// Tach-shaft speed over the record.
     pub speed: SpeedProfile,
-    /// Shafts, each with a speed ratio to the tach shaft.
+    /// Shafts, each with a speed ratio to the tach shaft (`[[shaft]]`).
+    #[serde(rename = "shaft", alias = "shafts")]
     pub shafts: Vec<ShaftSpec>,
-    /// Rolling-element bearings.
+    /// Rolling-element bearings (`[[bearing]]`).
+    #[serde(rename = "bearing", alias = "bearings")]
     pub bearings: Vec<BearingSpec>,
-    /// Gear meshes.
+    /// Gear meshes (`[[mesh]]`).
+    #[serde(rename = "mesh", alias = "gears")]
     pub gears: Vec<GearMeshSpec>,
     /// Broadband noise.
     pub noise: NoiseSpec,
@@ -137,18 +148,24 @@ pub struct BearingSpec {
     pub shaft: String,
     /// Defect location.
     pub fault: Fault,
-    /// Outer-race defect frequency, multiple of the shaft speed.
+    /// Outer-race defect frequency, multiple of the shaft speed (`bpfo_x`).
+    #[serde(rename = "bpfo_x", alias = "bpfo")]
     pub bpfo: f64,
-    /// Inner-race defect frequency, multiple of the shaft speed.
+    /// Inner-race defect frequency, multiple of the shaft speed (`bpfi_x`).
+    #[serde(rename = "bpfi_x", alias = "bpfi")]
     pub bpfi: f64,
-    /// Cage (fundamental train) frequency, multiple of the shaft speed.
+    /// Cage (fundamental train) frequency, multiple of the shaft speed (`ftf_x`).
+    #[serde(rename = "ftf_x", alias = "ftf")]
     pub ftf: f64,
-    /// Ball spin frequency, multiple of the shaft speed (kinematic, 1x spin).
+    /// Ball spin frequency, multiple of the shaft speed (kinematic, 1x spin; `bsf_x`).
+    #[serde(rename = "bsf_x", alias = "bsf")]
     pub bsf: f64,
     /// Amplitude of each impact's decaying sine, g (before modulation).
     pub impact_g: f64,
     /// Random slip: standard deviation of each impact interval as a fraction
-    /// of its mean (1-2 % is common practice).
+    /// of its mean. 1-2 % is the figure usually quoted for rolling-element
+    /// bearings (from memory: Randall & Antoni, "Rolling element bearing
+    /// diagnostics - a tutorial", MSSP 25 (2011), section 2; not re-checked).
     pub slip: f64,
     /// Structural resonance the impacts excite, Hz.
     pub resonance_hz: f64,
@@ -251,11 +268,11 @@ impl Default for TachSpec {
 
 impl Default for MachineSpec {
     fn default() -> Self {
-        // Invented demo: two-stage helical reducer, 19/67 then 17/59 teeth,
+        // Invented base: two-stage helical reducer, 19/67 then 17/59 teeth,
         // 4-pole motor speed, tach on the input shaft.
         let r1 = 19.0 / 67.0;
         MachineSpec {
-            name: "Hollowmere Aggregates (fictional) belt conveyor BC-4 drive reducer".into(),
+            name: "base machine (fictional two-stage reducer, not the demo)".into(),
             fs_hz: 25_600.0,
             seconds: 10.0,
             speed: SpeedProfile::Constant { rpm: 1480.0 },
@@ -315,7 +332,7 @@ pub enum SpecError {
     Parse(String),
     /// A value outside its allowed range (or not finite).
     OutOfRange {
-        /// Dotted path of the field, e.g. `bearings[0].slip`.
+        /// Dotted path of the field, e.g. `bearing[0].slip`.
         field: String,
         /// The value given.
         value: f64,
@@ -411,17 +428,57 @@ fn within(
 }
 
 impl MachineSpec {
-    /// Parses a TOML description; missing keys take the demo machine's
-    /// values, unknown keys are errors.
+    /// The demo machine ([`DEMO_MACHINE_TOML`]).
+    pub fn demo() -> Result<Self, SpecError> {
+        toml::from_str(DEMO_MACHINE_TOML)
+            .map_err(|e| SpecError::Parse(format!("demo machine: {e}")))
+    }
+
+    /// Parses a TOML description on top of the demo machine: a top-level key
+    /// or section left out takes the demo machine's value. The machine's
+    /// parts are taken as a whole: give none of `[[shaft]]`, `[[bearing]]`
+    /// and `[[mesh]]` for the demo's, or the ones you want (one left out is
+    /// then empty). Inside a section or list entry, a key left out takes
+    /// that item's own default. Unknown keys are errors naming the line.
     ///
     /// ```
     /// use host_sim::simulate::{MachineSpec, SpeedProfile};
     /// let s = MachineSpec::from_toml_str("seconds = 2.0\n[speed]\nkind = \"ramp\"\nstart_rpm = 600\nend_rpm = 1200\n").unwrap();
     /// assert_eq!(s.speed, SpeedProfile::Ramp { start_rpm: 600.0, end_rpm: 1200.0 });
+    /// assert_eq!(s.bearings, MachineSpec::demo().unwrap().bearings);
     /// assert!(s.validate().is_ok());
     /// ```
     pub fn from_toml_str(text: &str) -> Result<Self, SpecError> {
-        toml::from_str(text).map_err(|e| SpecError::Parse(e.to_string()))
+        // First as given, for errors that name the line and key.
+        let _: MachineSpec = toml::from_str(text).map_err(|e| SpecError::Parse(e.to_string()))?;
+        let parse = |t: &str| -> Result<toml::Table, SpecError> {
+            t.parse::<toml::Table>()
+                .map_err(|e| SpecError::Parse(e.to_string()))
+        };
+        let mut user = parse(text)?;
+        // Old spellings of the lists, as their new names, for the merge.
+        for (old, new) in [
+            ("shafts", "shaft"),
+            ("bearings", "bearing"),
+            ("gears", "mesh"),
+        ] {
+            if let Some(v) = user.remove(old) {
+                user.insert(new.to_string(), v);
+            }
+        }
+        let mut merged = parse(DEMO_MACHINE_TOML)?;
+        let parts = ["shaft", "bearing", "mesh"];
+        if parts.iter().any(|k| user.contains_key(*k)) {
+            for k in parts {
+                merged.insert(k.to_string(), toml::Value::Array(Vec::new()));
+            }
+        }
+        for (k, v) in user {
+            merged.insert(k, v);
+        }
+        toml::Value::Table(merged)
+            .try_into()
+            .map_err(|e: toml::de::Error| SpecError::Parse(e.to_string()))
     }
 
     /// Index of the shaft named `name`.
@@ -490,21 +547,21 @@ impl MachineSpec {
                 });
             }
             within(
-                format!("shafts[{i}].ratio"),
+                format!("shaft[{i}].ratio"),
                 s.ratio,
                 1e-4,
                 100.0,
                 "0.0001 to 100",
             )?;
             within(
-                format!("shafts[{i}].imbalance_g"),
+                format!("shaft[{i}].imbalance_g"),
                 s.imbalance_g,
                 0.0,
                 1e4,
                 "0 to 10000 g",
             )?;
             within(
-                format!("shafts[{i}].imbalance_phase_deg"),
+                format!("shaft[{i}].imbalance_phase_deg"),
                 s.imbalance_phase_deg,
                 -360.0,
                 360.0,
@@ -513,14 +570,14 @@ impl MachineSpec {
             let hz = s.ratio * max_tach_hz;
             if hz >= nyq {
                 return Err(SpecError::Aliasing {
-                    field: format!("shafts[{i}]"),
+                    field: format!("shaft[{i}]"),
                     hz,
                     nyquist_hz: nyq,
                 });
             }
         }
         for (i, b) in self.bearings.iter().enumerate() {
-            let f = |k: &str| format!("bearings[{i}].{k}");
+            let f = |k: &str| format!("bearing[{i}].{k}");
             let si = self
                 .shaft_index(&b.shaft)
                 .ok_or_else(|| SpecError::UnknownShaft {
@@ -528,10 +585,10 @@ impl MachineSpec {
                     shaft: b.shaft.clone(),
                 })?;
             const MULT: &str = "0.01 to 100 x shaft speed";
-            within(f("bpfo"), b.bpfo, 0.01, 100.0, MULT)?;
-            within(f("bpfi"), b.bpfi, 0.01, 100.0, MULT)?;
-            within(f("ftf"), b.ftf, 0.01, 100.0, MULT)?;
-            within(f("bsf"), b.bsf, 0.01, 100.0, MULT)?;
+            within(f("bpfo_x"), b.bpfo, 0.01, 100.0, MULT)?;
+            within(f("bpfi_x"), b.bpfi, 0.01, 100.0, MULT)?;
+            within(f("ftf_x"), b.ftf, 0.01, 100.0, MULT)?;
+            within(f("bsf_x"), b.bsf, 0.01, 100.0, MULT)?;
             within(f("impact_g"), b.impact_g, 0.0, 1e4, "0 to 10000 g")?;
             within(f("slip"), b.slip, 0.0, 0.1, "0 to 0.1")?;
             within(
@@ -567,7 +624,7 @@ impl MachineSpec {
             }
         }
         for (i, g) in self.gears.iter().enumerate() {
-            let f = |k: &str| format!("gears[{i}].{k}");
+            let f = |k: &str| format!("mesh[{i}].{k}");
             let si = self
                 .shaft_index(&g.shaft)
                 .ok_or_else(|| SpecError::UnknownShaft {
@@ -581,7 +638,7 @@ impl MachineSpec {
             let hz = (f64::from(g.teeth) + 1.0) * ratio * max_tach_hz;
             if hz >= nyq {
                 return Err(SpecError::Aliasing {
-                    field: format!("gears[{i}]"),
+                    field: format!("mesh[{i}]"),
                     hz,
                     nyquist_hz: nyq,
                 });
