@@ -24,6 +24,7 @@ pub mod cmd_validate;
 pub mod edges_csv;
 pub mod error;
 pub mod gateway;
+pub mod palette;
 pub mod plot;
 pub mod point;
 pub mod report_json;
