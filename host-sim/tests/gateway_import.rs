@@ -214,7 +214,10 @@ fn interrupted_import_loses_nothing() {
 /// (their bearing index 0). Node 3's BPFO amplitude rises from a 2 mg baseline.
 fn scenario(dir: &std::path::Path) {
     let mut frames = Vec::new();
-    for (s, g) in [2e-3f32, 2e-3, 2e-3, 2e-3, 2e-3, 3e-3, 4.5e-3].iter().enumerate() {
+    for (s, g) in [2e-3f32, 2e-3, 2e-3, 2e-3, 2e-3, 3e-3, 4.5e-3]
+        .iter()
+        .enumerate()
+    {
         frames.push(frame_amp(3, s as u16, *g, false));
     }
     frames.push(frame_amp(3, 9, 9e-3, true)); // 7 and 8 lost
@@ -302,8 +305,17 @@ fn status_states_baselines_and_combined_view() {
     // Stricter limits stored for node 4 move it to alert.
     let o = run(
         &[
-            "gateway", "limits", "set", "--db", "gw.sqlite", "--node", "4", "--alert-db", "3",
-            "--danger-db", "20",
+            "gateway",
+            "limits",
+            "set",
+            "--db",
+            "gw.sqlite",
+            "--node",
+            "4",
+            "--alert-db",
+            "3",
+            "--danger-db",
+            "20",
         ],
         dir.path(),
     );
@@ -324,14 +336,31 @@ fn status_states_baselines_and_combined_view() {
     // A hand-set baseline replaces the learned one; a detection stays an alert.
     let o = run(
         &[
-            "gateway", "baseline", "--db", "gw.sqlite", "--node", "3", "--bearing", "0",
-            "--defect", "bpfo", "--amplitude-g", "0.006",
+            "gateway",
+            "baseline",
+            "--db",
+            "gw.sqlite",
+            "--node",
+            "3",
+            "--bearing",
+            "0",
+            "--defect",
+            "bpfo",
+            "--amplitude-g",
+            "0.006",
         ],
         dir.path(),
     );
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let o = run(
-        &["gateway", "status", "--db", "gw.sqlite", "--map", "map.toml"],
+        &[
+            "gateway",
+            "status",
+            "--db",
+            "gw.sqlite",
+            "--map",
+            "map.toml",
+        ],
         dir.path(),
     );
     let table = stdout(&o);
@@ -343,12 +372,28 @@ fn status_states_baselines_and_combined_view() {
     // Bad limits are bad input and leave the store as it was.
     let o = run(
         &[
-            "gateway", "limits", "set", "--db", "gw.sqlite", "--node", "4", "--alert-db", "25",
+            "gateway",
+            "limits",
+            "set",
+            "--db",
+            "gw.sqlite",
+            "--node",
+            "4",
+            "--alert-db",
+            "25",
         ],
         dir.path(),
     );
-    assert_eq!(o.status.code(), Some(2), "{}", String::from_utf8_lossy(&o.stderr));
-    let o = run(&["gateway", "limits", "show", "--db", "gw.sqlite"], dir.path());
+    assert_eq!(
+        o.status.code(),
+        Some(2),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let o = run(
+        &["gateway", "limits", "show", "--db", "gw.sqlite"],
+        dir.path(),
+    );
     let shown = stdout(&o);
     assert!(
         shown.contains("node 4 bearing * defect *: baseline_count - alert_db 3 danger_db 20"),
@@ -422,7 +467,15 @@ fn trend_plots_one_bearing() {
     // an existing plot is not overwritten
     let o = run(
         &[
-            "gateway", "trend", "--db", "gw.sqlite", "--node", "3", "--bearing", "0", "--svg",
+            "gateway",
+            "trend",
+            "--db",
+            "gw.sqlite",
+            "--node",
+            "3",
+            "--bearing",
+            "0",
+            "--svg",
             "trend.svg",
         ],
         dir.path(),

@@ -115,7 +115,12 @@ fn scope(s: &ScopeArgs) -> Result<LimitRow, CliError> {
     Ok(LimitRow {
         node: s.node,
         bearing: s.bearing,
-        kind: s.defect.as_deref().map(kind_name).transpose()?.map(String::from),
+        kind: s
+            .defect
+            .as_deref()
+            .map(kind_name)
+            .transpose()?
+            .map(String::from),
         origin: "command".into(),
         ..LimitRow::default()
     })
@@ -172,7 +177,11 @@ fn set_cmd(a: &SetArgs) -> Result<(), CliError> {
     row.baseline_g = a.baseline_g;
     row.stale_after_s = a.stale_after_h.map(|h| h * 3600.0);
     let merged = store_row(&a.scope.db, &row)?;
-    println!("limits of {} stored: {}", scope_text(&merged), row_text(&merged));
+    println!(
+        "limits of {} stored: {}",
+        scope_text(&merged),
+        row_text(&merged)
+    );
     Ok(())
 }
 
@@ -256,8 +265,8 @@ fn show_cmd(a: &ShowArgs) -> Result<(), CliError> {
 fn clear_cmd(a: &ScopeArgs) -> Result<(), CliError> {
     let row = scope(a)?;
     let conn = store::open(&a.db)?;
-    let had = limits::clear(&conn, row.node, row.bearing, row.kind.as_deref())
-        .map_err(sql(&a.db))?;
+    let had =
+        limits::clear(&conn, row.node, row.bearing, row.kind.as_deref()).map_err(sql(&a.db))?;
     if had {
         println!("limits of {} removed", scope_text(&row));
     } else {

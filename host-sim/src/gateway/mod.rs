@@ -667,7 +667,10 @@ fn baseline_cmd(a: BaselineArgs) -> Result<(), CliError> {
     }
     if let Some(v) = a.amplitude_g {
         if !v.is_finite() || v <= 0.0 {
-            return Err(CliError::input("--amplitude-g", "must be a positive amplitude in g"));
+            return Err(CliError::input(
+                "--amplitude-g",
+                "must be a positive amplitude in g",
+            ));
         }
     }
     let row = limits::LimitRow {

@@ -55,8 +55,22 @@ pub fn x_of(g: &Graded, axis: Axis) -> f64 {
 
 /// Round tick steps for a time span (s): minutes to weeks.
 const TIME_STEPS_S: [f64; 16] = [
-    60.0, 300.0, 600.0, 900.0, 1800.0, 3600.0, 7200.0, 10_800.0, 21_600.0, 43_200.0,
-    86_400.0, 172_800.0, 604_800.0, 1_209_600.0, 2_592_000.0, 7_776_000.0,
+    60.0,
+    300.0,
+    600.0,
+    900.0,
+    1800.0,
+    3600.0,
+    7200.0,
+    10_800.0,
+    21_600.0,
+    43_200.0,
+    86_400.0,
+    172_800.0,
+    604_800.0,
+    1_209_600.0,
+    2_592_000.0,
+    7_776_000.0,
 ];
 
 /// Tick positions on `lo..hi` at a round step (time: the steps above, in
@@ -136,7 +150,10 @@ where
 {
     match s {
         State::Danger => area
-            .draw(&Rectangle::new([(x - 5, y - 5), (x + 5, y + 5)], c.filled()))
+            .draw(&Rectangle::new(
+                [(x - 5, y - 5), (x + 5, y + 5)],
+                c.filled(),
+            ))
             .map_err(err),
         State::Alert => area
             .draw(&TriangleMarker::new((x, y), 6, c.filled()))
@@ -293,9 +310,10 @@ where
     let xfmt = |x: &f64| -> String {
         match axis {
             #[allow(clippy::cast_possible_truncation)] // ms fit i64
-            Axis::Time if step_ms >= 86_400_000.0 => {
-                format_rfc3339(*x as i64).get(..10).unwrap_or("").to_string()
-            }
+            Axis::Time if step_ms >= 86_400_000.0 => format_rfc3339(*x as i64)
+                .get(..10)
+                .unwrap_or("")
+                .to_string(),
             #[allow(clippy::cast_possible_truncation)]
             Axis::Time => format_minute(*x as i64),
             Axis::Arrival => format!("{x:.0}"),
@@ -350,9 +368,19 @@ where
     };
     type LevelOf = fn(&Graded) -> Option<f64>;
     let styles: [(LevelOf, ShapeStyle, u32, u32); 5] = [
-        (|g| Some(g.levels.baseline_g), BASELINE_LINE.stroke_width(2), 2, 3),
+        (
+            |g| Some(g.levels.baseline_g),
+            BASELINE_LINE.stroke_width(2),
+            2,
+            3,
+        ),
         (|g| Some(g.levels.alert_g), ALERT_LINE.stroke_width(2), 8, 5),
-        (|g| Some(g.levels.danger_g), DANGER_LINE.stroke_width(2), 14, 4),
+        (
+            |g| Some(g.levels.danger_g),
+            DANGER_LINE.stroke_width(2),
+            14,
+            4,
+        ),
         (|g| g.levels.alert_abs_g, ALERT_LINE.stroke_width(1), 3, 3),
         (|g| g.levels.danger_abs_g, DANGER_LINE.stroke_width(1), 3, 3),
     ];
@@ -388,9 +416,10 @@ where
     };
     let of = |s: State| h.iter().filter(move |g| g.state == s).map(at);
     chart
-        .draw_series(of(State::Danger).map(|c| {
-            EmptyElement::at(c) + Rectangle::new([(-5, -5), (5, 5)], colour.filled())
-        }))
+        .draw_series(
+            of(State::Danger)
+                .map(|c| EmptyElement::at(c) + Rectangle::new([(-5, -5), (5, 5)], colour.filled())),
+        )
         .map_err(err)?;
     chart
         .draw_series(

@@ -44,14 +44,22 @@ pub fn parse_rfc3339_ms(t: &str) -> Option<i64> {
         return None;
     }
     let rest = t.get(11..)?;
-    let (y, mo, d) = (num(date.get(..4)?)?, num(date.get(5..7)?)?, num(date.get(8..10)?)?);
+    let (y, mo, d) = (
+        num(date.get(..4)?)?,
+        num(date.get(5..7)?)?,
+        num(date.get(8..10)?)?,
+    );
     if date.get(4..5)? != "-" || date.get(7..8)? != "-" || !(1..=12).contains(&mo) {
         return None;
     }
     if !(1..=31).contains(&d) {
         return None;
     }
-    let (h, mi, s) = (num(rest.get(..2)?)?, num(rest.get(3..5)?)?, num(rest.get(6..8)?)?);
+    let (h, mi, s) = (
+        num(rest.get(..2)?)?,
+        num(rest.get(3..5)?)?,
+        num(rest.get(6..8)?)?,
+    );
     if rest.get(2..3)? != ":" || rest.get(5..6)? != ":" || h > 23 || mi > 59 || s > 60 {
         return None;
     }
@@ -131,7 +139,13 @@ mod tests {
         );
         assert_eq!(format_rfc3339(1_777_716_000_000), "2026-05-02T10:00:00Z");
         assert_eq!(format_minute(1_777_716_000_000), "2026-05-02 10:00");
-        for bad in ["", "2026-05-02", "2026-13-02T10:00:00Z", "x026-05-02T10:00:00Z", "2026-05-02T10:00:00"] {
+        for bad in [
+            "",
+            "2026-05-02",
+            "2026-13-02T10:00:00Z",
+            "x026-05-02T10:00:00Z",
+            "2026-05-02T10:00:00",
+        ] {
             assert_eq!(parse_rfc3339_ms(bad), None, "{bad}");
         }
     }

@@ -358,7 +358,10 @@ mod tests {
         // +6 dB = 2.0 mg, +12 dB = 3.98 mg over a 1 mg baseline
         assert!((quiet.alert_g - 1.995e-3).abs() < 1e-5);
         assert!((quiet.danger_g - 3.981e-3).abs() < 1e-5);
-        assert_eq!(grade(Some(1.5e-3), false, true, &quiet, None), State::Normal);
+        assert_eq!(
+            grade(Some(1.5e-3), false, true, &quiet, None),
+            State::Normal
+        );
         assert_eq!(grade(Some(2.1e-3), false, true, &quiet, None), State::Alert);
         // 30 dB over the baseline, first time: alert
         assert_eq!(
@@ -382,7 +385,10 @@ mod tests {
         // learning: a detection is still an alert, noise is not
         let learning = lv(None);
         assert_eq!(learning.origin, BaselineOrigin::Floor);
-        assert_eq!(grade(Some(5e-3), false, true, &learning, None), State::Learning);
+        assert_eq!(
+            grade(Some(5e-3), false, true, &learning, None),
+            State::Learning
+        );
         assert_eq!(grade(Some(5e-3), true, true, &learning, None), State::Alert);
         // "nothing found" amplitudes below the floor grade as the floor: 0 dB
         assert_eq!(severity_db(Some(0.0), &quiet), Some(0.0));

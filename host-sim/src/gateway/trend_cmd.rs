@@ -13,9 +13,12 @@ use crate::error::CliError;
 /// The reference time for staleness: `--now` (RFC 3339) or the clock.
 pub fn now_ms(now: Option<&str>) -> Result<Option<i64>, CliError> {
     match now {
-        Some(t) => parse_rfc3339_ms(t)
-            .map(Some)
-            .ok_or_else(|| CliError::input("--now", format!("{t:?} is not an RFC 3339 time such as 2026-05-02T10:00:00Z"))),
+        Some(t) => parse_rfc3339_ms(t).map(Some).ok_or_else(|| {
+            CliError::input(
+                "--now",
+                format!("{t:?} is not an RFC 3339 time such as 2026-05-02T10:00:00Z"),
+            )
+        }),
         None => Ok(std::time::SystemTime::now()
             .duration_since(std::time::UNIX_EPOCH)
             .ok()
@@ -38,7 +41,8 @@ pub fn grade_store(
         &|n, b, k| {
             let l = limits::resolve(&rows, n, b, k);
             if let Err(m) = limits::check(&l) {
-                bad.borrow_mut().get_or_insert(format!("node {n} bearing {b} {k}: {m}"));
+                bad.borrow_mut()
+                    .get_or_insert(format!("node {n} bearing {b} {k}: {m}"));
             }
             l
         },
@@ -114,7 +118,10 @@ pub fn trend_cmd(a: &TrendArgs) -> Result<(), CliError> {
             .iter()
             .map(|l| serde_json::json!({"line": l.state, "history": l.history}))
             .collect();
-        println!("{}", serde_json::json!({"axis": match axis { plot::Axis::Time => "receive_time", plot::Axis::Arrival => "arrival_order" }, "lines": v}));
+        println!(
+            "{}",
+            serde_json::json!({"axis": match axis { plot::Axis::Time => "receive_time", plot::Axis::Arrival => "arrival_order" }, "lines": v})
+        );
     } else {
         match axis {
             plot::Axis::Time => println!("time axis: receive time (UTC)"),
@@ -146,13 +153,18 @@ pub fn trend_cmd(a: &TrendArgs) -> Result<(), CliError> {
                     p.seq,
                     time,
                     p.kind,
-                    if p.searched { g(p.amplitude_g) } else { "not searched".into() },
+                    if p.searched {
+                        g(p.amplitude_g)
+                    } else {
+                        "not searched".into()
+                    },
                     g(Some(gr.levels.baseline_g)),
                     f(gr.severity_db, 1),
                     f(p.score_db, 1),
                     if p.detected { "yes" } else { "no" },
                     gr.state.label(),
-                    p.band_hz.map_or("-".into(), |b| format!("{:.0}-{:.0}", b[0], b[1]))
+                    p.band_hz
+                        .map_or("-".into(), |b| format!("{:.0}-{:.0}", b[0], b[1]))
                 );
             }
         }
@@ -172,7 +184,10 @@ pub fn trend_cmd(a: &TrendArgs) -> Result<(), CliError> {
                 "exists; not overwritten (remove it or choose another --svg path)",
             ));
         }
-        let title = format!("node {} bearing {}: envelope amplitude and alarm state", a.node, a.bearing);
+        let title = format!(
+            "node {} bearing {}: envelope amplitude and alarm state",
+            a.node, a.bearing
+        );
         plot::write_svg(p, &plot::PlotInfo { title: &title }, &lines)?;
         println!("wrote {path}");
     }
