@@ -412,3 +412,98 @@ fn a_band_change_is_marked_and_learning_restarts() {
     assert_eq!(d["band_changes"], 1);
     assert_eq!(d["band_hz"][1], 12000.0);
 }
+
+/// The node's alert/danger levels (its configuration record) are the levels
+/// the gateway grades with, when the configuration downlink names the store.
+#[test]
+fn node_levels_sent_by_a_config_downlink_become_the_node_limits() {
+    let dir = tempfile::tempdir().unwrap();
+    let point = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/../boards/qemu-mps2/input/point.toml"
+    );
+    let o = run(
+        &[
+            "gateway",
+            "provision",
+            "--node-id",
+            "7",
+            "--key-out",
+            "k.hex",
+            "--identity-out",
+            "id.bin",
+        ],
+        dir.path(),
+    );
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let o = run(
+        &[
+            "gateway",
+            "downlink",
+            "--node-id",
+            "7",
+            "--key",
+            "k.hex",
+            "--counter",
+            "1",
+            "config",
+            "--point",
+            point,
+            "--alert-db",
+            "5",
+            "--danger-db",
+            "15",
+            "--db",
+            "gw.sqlite",
+        ],
+        dir.path(),
+    );
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("node 7 limits set to the levels sent"));
+    let lines = growth_lines(dir.path());
+    import(dir.path(), &lines[..=HEALTHY]);
+    let d = bpfo_state(dir.path());
+    assert_eq!(d["limits"]["alert_db"], 5.0);
+    assert_eq!(d["limits"]["danger_db"], 15.0);
+    let o = run(
+        &["gateway", "limits", "show", "--db", "gw.sqlite"],
+        dir.path(),
+    );
+    assert!(
+        stdout(&o).contains("node 7 bearing * defect *: baseline_count - alert_db 5 danger_db 15"),
+        "{}",
+        stdout(&o)
+    );
+    assert!(stdout(&o).contains("(origin node config)"));
+    // A danger level under the alert level is refused by the node's record
+    // before anything is stored.
+    let o = run(
+        &[
+            "gateway",
+            "downlink",
+            "--node-id",
+            "7",
+            "--key",
+            "k.hex",
+            "--counter",
+            "2",
+            "config",
+            "--point",
+            point,
+            "--alert-db",
+            "9",
+            "--danger-db",
+            "3",
+            "--db",
+            "gw.sqlite",
+        ],
+        dir.path(),
+    );
+    assert_eq!(
+        o.status.code(),
+        Some(2),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    assert_eq!(bpfo_state(dir.path())["limits"]["danger_db"], 15.0);
+}

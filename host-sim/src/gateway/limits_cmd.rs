@@ -153,6 +153,29 @@ pub fn store_row(db: &str, row: &LimitRow) -> Result<LimitRow, CliError> {
     Ok(merged)
 }
 
+/// Stores the alert/danger levels a configuration downlink carries to a
+/// node as that node's limits (origin `node config`); says so on stderr.
+pub fn record_node_levels(
+    db: &str,
+    node: u16,
+    alert_db: f32,
+    danger_db: f32,
+) -> Result<(), CliError> {
+    let row = LimitRow {
+        node: Some(node),
+        // f32 on the node; 0.01 dB is finer than any level anyone sets
+        alert_db: Some((f64::from(alert_db) * 100.0).round() / 100.0),
+        danger_db: Some((f64::from(danger_db) * 100.0).round() / 100.0),
+        origin: "node config".into(),
+        ..LimitRow::default()
+    };
+    store_row(db, &row)?;
+    eprintln!(
+        "envord: {db}: node {node} limits set to the levels sent: alert +{alert_db} dB, danger +{danger_db} dB"
+    );
+    Ok(())
+}
+
 fn set_cmd(a: &SetArgs) -> Result<(), CliError> {
     let mut row = scope(&a.scope)?;
     for (name, v) in [
