@@ -101,7 +101,12 @@ pub fn x_ticks(lo: f64, hi: f64, axis: Axis, max: usize) -> Vec<f64> {
 /// Amplitude ticks (g) on `lo..hi` in a 1-2-5 sequence, or decades only when
 /// that would give more than `max`.
 pub fn y_ticks(lo: f64, hi: f64, max: usize) -> Vec<f64> {
-    let (e0, e1) = (lo.log10().floor() as i32, hi.log10().ceil() as i32);
+    // amplitudes in g lie far inside i32 decades; clamp makes that explicit
+    #[allow(clippy::cast_possible_truncation)]
+    let (e0, e1) = (
+        lo.log10().floor().clamp(-30.0, 30.0) as i32,
+        hi.log10().ceil().clamp(-30.0, 30.0) as i32,
+    );
     let gen = |ms: &[f64]| -> Vec<f64> {
         (e0..=e1)
             .flat_map(|e| ms.iter().map(move |m| m * 10f64.powi(e)))
