@@ -507,3 +507,68 @@ fn node_levels_sent_by_a_config_downlink_become_the_node_limits() {
     );
     assert_eq!(bpfo_state(dir.path())["limits"]["danger_db"], 15.0);
 }
+
+/// A line the node's setting cannot search (`defects.searched` = 0, as the
+/// schema-3 column holds it) is not covered, never normal; `amplitude_g`,
+/// when a frame carries it, is graded in place of the 1x amplitude.
+#[test]
+fn a_line_not_searched_is_not_covered_and_amplitude_g_is_preferred() {
+    let dir = tempfile::tempdir().unwrap();
+    let lines = growth_lines(dir.path());
+    import(dir.path(), &lines[..HEALTHY]);
+    assert_eq!(bpfo_state(dir.path())["state"], "normal");
+    let c = rusqlite::Connection::open(dir.path().join("gw.sqlite")).unwrap();
+    let last: i64 = c
+        .query_row("SELECT MAX(id) FROM reports", [], |r| r.get(0))
+        .unwrap();
+    c.execute(
+        "UPDATE defects SET searched = 0 WHERE report_id = ?1 AND kind = 'BPFO'",
+        [last],
+    )
+    .unwrap();
+    c.execute(
+        "UPDATE defects SET amplitude_g = 0.05 WHERE report_id = ?1 AND kind = 'BPFI'",
+        [last],
+    )
+    .unwrap();
+    drop(c);
+    let o = run(
+        &[
+            "gateway",
+            "status",
+            "--db",
+            "gw.sqlite",
+            "--json",
+            "--now",
+            NOW,
+        ],
+        dir.path(),
+    );
+    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    let line = |k: &str| {
+        v["defects"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|d| d["node"] == 7 && d["kind"] == k)
+            .unwrap()
+            .clone()
+    };
+    assert_eq!(line("BPFO")["state"], "not_covered");
+    assert_eq!(line("BPFI")["amplitude_g"], 0.05);
+    assert_eq!(line("BPFI")["amplitude_source"], "amplitude_g");
+    // 50 mg over the 1 mg floor with nothing detected, baseline still learning
+    // (this report was its fifth): the learned baseline includes it, so the
+    // line is an alert by its rise, not normal.
+    assert_eq!(line("BPFI")["state"], "alert");
+    let o = run(
+        &["gateway", "status", "--db", "gw.sqlite", "--now", NOW],
+        dir.path(),
+    );
+    let row = stdout(&o)
+        .lines()
+        .find(|l| l.trim_start().starts_with("7 "))
+        .unwrap()
+        .to_string();
+    assert!(row.contains("ALERT"), "{row}");
+}

@@ -100,12 +100,19 @@ pub fn trend_cmd(a: &TrendArgs) -> Result<(), CliError> {
         .transpose()?;
     let conn = store::open(&a.db)?;
     let all = grade_store(&conn, &a.db, now_ms(a.now.as_deref())?)?;
-    let lines: Vec<&Line> = all
+    let mut lines: Vec<&Line> = all
         .iter()
         .filter(|l| l.state.node == a.node && l.state.bearing == a.bearing)
         .filter(|l| only.is_none_or(|k| l.state.kind == k))
         .filter(|l| !l.history.is_empty())
         .collect();
+    // frame order (BPFO, BPFI, FTF, BSF), as the report and the spectrum plot
+    lines.sort_by_key(|l| {
+        dsp_core::frame::DefectKind::ALL
+            .iter()
+            .position(|k| k.name() == l.state.kind)
+            .unwrap_or(usize::MAX)
+    });
     if lines.is_empty() {
         return Err(CliError::input(
             &a.db,
