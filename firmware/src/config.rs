@@ -9,7 +9,7 @@
 //! 20 speed_min_rpm f32  24 speed_max_rpm f32  28 tach_tick_hz u32
 //! 32 settle_ms u16      34 interval_s u32     38 flat_counts u16
 //! 40 clip_level i16     42 clip_permille u16  44 saturated_permille u16
-//! 46 low_battery_mv u16 48 alert_db f32       52 alarm_db f32
+//! 46 low_battery_mv u16 48 alert_db f32       52 danger_db f32
 //! 56 counts_to_g f32 (sensor and ADC sensitivity, g per count)
 //! 60 bearing count u8   61 band source u8: 0 configured, 1 chosen by the
 //!                          node's band survey, 2 none (band fields 0: the
@@ -138,10 +138,13 @@ pub struct PointRecord {
     pub health: HealthLimits,
     /// LOW_BATTERY below this supply voltage, mV.
     pub low_battery_mv: u16,
-    /// Defect-level alert threshold, dB over baseline.
+    /// The point's alert level: rise of a defect's envelope amplitude over
+    /// its baseline, dB. The node carries it with the rest of the point; the
+    /// gateway grades with it (`envord gateway downlink ... config --db`
+    /// stores it as the node's limits; docs/gateway.md "Alarms").
     pub alert_db: f32,
-    /// Defect-level alarm threshold, dB over baseline.
-    pub alarm_db: f32,
+    /// The point's danger level, dB over the baseline (as `alert_db`).
+    pub danger_db: f32,
     /// Acceleration per ADC count, g (sensor sensitivity and ADC gain).
     pub counts_to_g: f32,
     /// Monitored bearings (1 to [`MAX_BEARINGS`]).
@@ -181,7 +184,7 @@ impl Default for PointRecord {
             health: HealthLimits::default(),
             low_battery_mv: 3_000,
             alert_db: 6.0,
-            alarm_db: 12.0,
+            danger_db: 12.0,
             // 100 mV/g sensor, 3.6 V over 4096 counts: 0.879 mV per count
             counts_to_g: 0.008_789,
             bearings,
@@ -350,7 +353,7 @@ impl PointRecord {
             "low_battery_mv",
         )?;
         check(in_range(self.alert_db, 0.0, 60.0), "alert_db")?;
-        check(in_range(self.alarm_db, self.alert_db, 60.0), "alarm_db")?;
+        check(in_range(self.danger_db, self.alert_db, 60.0), "danger_db")?;
         check(in_range(self.counts_to_g, 1e-7, 1.0), "counts_to_g")?;
         check(!self.bearings.is_empty(), "bearings")?;
         for b in &self.bearings {
@@ -415,7 +418,7 @@ impl PointRecord {
         w.put(&self.health.saturated_permille.to_le_bytes())?;
         w.put(&self.low_battery_mv.to_le_bytes())?;
         w.put(&self.alert_db.to_le_bytes())?;
-        w.put(&self.alarm_db.to_le_bytes())?;
+        w.put(&self.danger_db.to_le_bytes())?;
         w.put(&self.counts_to_g.to_le_bytes())?;
         let (source, kurtosis) = match self.band_source {
             BandSource::Configured => (0u8, 0.0f32),
@@ -498,7 +501,7 @@ impl PointRecord {
         };
         let low_battery_mv = r.u16()?;
         let alert_db = r.f32()?;
-        let alarm_db = r.f32()?;
+        let danger_db = r.f32()?;
         let counts_to_g = r.f32()?;
         let count = usize::from(r.u8()?);
         let source = r.u8()?;
@@ -553,7 +556,7 @@ impl PointRecord {
             health,
             low_battery_mv,
             alert_db,
-            alarm_db,
+            danger_db,
             counts_to_g,
             bearings,
         };

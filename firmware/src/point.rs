@@ -5,7 +5,7 @@
 //! The tach shaft is shaft 0 (ratio 1); every other distinct bearing-shaft
 //! ratio gets its own shaft. Tach ticks count from the first ADC sample
 //! (both boards start the capture time base with the sample clock), so
-//! `tick_at_sample0` is 0. The alert/alarm thresholds are not part of the
+//! `tick_at_sample0` is 0. The alert/danger levels are not part of the
 //! point: they apply when a report is compared with the baseline.
 
 use crate::config::{BearingModel, PointRecord};

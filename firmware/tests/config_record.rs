@@ -174,9 +174,12 @@ fn out_of_range_fields_are_refused_even_with_a_good_crc() {
 #[test]
 fn encode_refuses_an_invalid_record() {
     let mut c = sample();
-    c.alarm_db = 3.0; // below alert_db = 6
+    c.danger_db = 3.0; // below alert_db = 6
     let mut buf = [0u8; MAX_RECORD_LEN];
-    assert_eq!(c.encode(&mut buf), Err(ConfigError::OutOfRange("alarm_db")));
+    assert_eq!(
+        c.encode(&mut buf),
+        Err(ConfigError::OutOfRange("danger_db"))
+    );
     let mut c = sample();
     c.bearings.clear();
     assert_eq!(c.encode(&mut buf), Err(ConfigError::OutOfRange("bearings")));

@@ -26,6 +26,7 @@ pub mod edges_csv;
 pub mod error;
 pub mod gateway;
 pub mod output;
+pub mod palette;
 pub mod plot;
 pub mod point;
 pub mod report_json;

@@ -57,7 +57,7 @@ fn reimport_is_idempotent_and_schema_is_versioned() {
     let v: i64 = c
         .query_row("PRAGMA user_version", [], |r| r.get(0))
         .unwrap();
-    assert_eq!(v, 3);
+    assert_eq!(v, 4);
     // A store from a newer build is refused as bad input.
     c.pragma_update(None, "user_version", 9).unwrap();
     drop(c);
@@ -211,17 +211,20 @@ fn interrupted_import_loses_nothing() {
 }
 
 /// An invented gearbox: node 3 and node 4 both watch its output-shaft bearing
-/// (their bearing index 0). Node 3's BPFO score rises from a 5 dB baseline.
+/// (their bearing index 0). Node 3's BPFO amplitude rises from a 2 mg baseline.
 fn scenario(dir: &std::path::Path) {
     let mut frames = Vec::new();
-    for (s, db) in [5.0f32, 5.0, 5.0, 5.0, 5.0, 8.0, 11.2].iter().enumerate() {
-        frames.push(frame(3, s as u16, *db, false));
+    for (s, g) in [2e-3f32, 2e-3, 2e-3, 2e-3, 2e-3, 3e-3, 4.5e-3]
+        .iter()
+        .enumerate()
+    {
+        frames.push(frame_amp(3, s as u16, *g, false));
     }
-    frames.push(frame(3, 9, 17.5, true)); // 7 and 8 lost
+    frames.push(frame_amp(3, 9, 9e-3, true)); // 7 and 8 lost
     for s in 0..5u16 {
-        frames.push(frame(4, s, 4.0, false));
+        frames.push(frame_amp(4, s, 2e-3, false));
     }
-    frames.push(frame(4, 5, 9.0, false));
+    frames.push(frame_amp(4, 5, 3.5e-3, false));
     write_lines(&dir.join("uplinks.txt"), &frames);
     std::fs::write(
         dir.join("map.toml"),
@@ -275,18 +278,20 @@ fn status_states_baselines_and_combined_view() {
             .clone()
     };
     let d = find(3, 0, "BPFO");
-    assert_eq!(d["baseline_db"], 5.0);
+    let f = |v: &serde_json::Value| v.as_f64().unwrap();
+    // frame amplitudes are quantised in 0.5 dB steps (docs/frame-format.md)
+    assert!((f(&d["baseline_g"]) / 2e-3 - 1.0).abs() < 0.03, "{d}");
     assert_eq!(d["baseline_origin"], "learned");
-    // +6 / +12 dB over baseline (common practice for spectral trending).
-    // 17.5 dB is rounded to 18 dB by the frame (1 dB steps): +13 dB over 5 -> danger.
-    assert_eq!(d["latest_db"], 18.0);
+    // 9 mg over 2 mg = +13.1 dB >= +12 dB (common practice: +6 / +12 dB),
+    // and the report before was an alert (4.5 mg = +7 dB): danger
+    assert!((f(&d["severity_db"]) - 13.1).abs() < 0.5, "{d}");
     assert_eq!(d["state"], "danger");
-    assert_eq!(find(4, 0, "BPFO")["state"], "normal"); // 9 - 4 = 5 dB < 6
+    assert_eq!(find(4, 0, "BPFO")["state"], "normal"); // 3.5 / 2 mg = +4.9 dB < 6
     assert_eq!(find(3, 1, "BSF")["state"], "normal");
     let phys = v["physical"].as_array().unwrap();
     assert_eq!(phys[0]["name"], "demo gearbox output shaft");
     assert_eq!(phys[0]["state"], "danger");
-    assert_eq!(phys[0]["defects"][0]["worst_db"], 18.0);
+    assert!((f(&phys[0]["defects"][0]["worst_amplitude_g"]) / 9e-3 - 1.0).abs() < 0.03);
     assert_eq!(phys[0]["defects"][0]["detecting"], 1);
     assert_eq!(phys[0]["sensors"], 2);
     assert_eq!(phys[1]["state"], "normal");
@@ -297,19 +302,26 @@ fn status_states_baselines_and_combined_view() {
         .find(|l| l["node"] == 3)
         .unwrap();
     assert_eq!(link3["missing"], 2);
-    // Stricter limits move node 3 from danger to... danger, and node 4 to alert.
+    // Stricter limits stored for node 4 move it to alert.
     let o = run(
         &[
             "gateway",
-            "status",
+            "limits",
+            "set",
             "--db",
             "gw.sqlite",
-            "--json",
-            "--alert-rise",
+            "--node",
+            "4",
+            "--alert-db",
             "3",
-            "--danger-rise",
+            "--danger-db",
             "20",
         ],
+        dir.path(),
+    );
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let o = run(
+        &["gateway", "status", "--db", "gw.sqlite", "--json"],
         dir.path(),
     );
     let v: serde_json::Value = serde_json::from_str(&stdout(&o)).unwrap();
@@ -320,7 +332,8 @@ fn status_states_baselines_and_combined_view() {
         .find(|d| d["node"] == 4 && d["bearing"] == 0 && d["kind"] == "BPFO")
         .unwrap();
     assert_eq!(n4["state"], "alert");
-    // A hand-set baseline replaces the learned one.
+    assert_eq!(n4["limits"]["alert_db"], 3.0);
+    // A hand-set baseline replaces the learned one; a detection stays an alert.
     let o = run(
         &[
             "gateway",
@@ -333,12 +346,12 @@ fn status_states_baselines_and_combined_view() {
             "0",
             "--defect",
             "bpfo",
-            "--score-db",
-            "15",
+            "--amplitude-g",
+            "0.006",
         ],
         dir.path(),
     );
-    assert!(o.status.success());
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let o = run(
         &[
             "gateway",
@@ -355,22 +368,37 @@ fn status_states_baselines_and_combined_view() {
         .lines()
         .find(|l| l.contains("demo gearbox output shaft") && l.trim_start().starts_with('3'))
         .unwrap();
-    assert!(row.contains("NORMAL") && row.contains("15.0"), "{row}");
-    // Bad limits are bad input.
+    assert!(row.contains("ALERT") && row.contains("6.000e-3"), "{row}");
+    // Bad limits are bad input and leave the store as it was.
     let o = run(
         &[
             "gateway",
-            "status",
+            "limits",
+            "set",
             "--db",
             "gw.sqlite",
-            "--alert-rise",
-            "20",
-            "--danger-rise",
-            "10",
+            "--node",
+            "4",
+            "--alert-db",
+            "25",
         ],
         dir.path(),
     );
-    assert_eq!(o.status.code(), Some(2));
+    assert_eq!(
+        o.status.code(),
+        Some(2),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let o = run(
+        &["gateway", "limits", "show", "--db", "gw.sqlite"],
+        dir.path(),
+    );
+    let shown = stdout(&o);
+    assert!(
+        shown.contains("node 4 bearing * defect *: baseline_count - alert_db 3 danger_db 20"),
+        "{shown}"
+    );
 }
 
 #[test]
@@ -419,22 +447,40 @@ fn trend_plots_one_bearing() {
         dir.path(),
     );
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
-    // Header + 8 reports + "wrote" line.
-    assert_eq!(stdout(&o).lines().count(), 10);
+    let text = stdout(&o);
+    // axis line + header + 8 reports + amplitude note + "wrote" line
+    assert_eq!(text.lines().count(), 12, "{text}");
+    assert!(text.starts_with("time axis: arrival order"), "{text}");
+    let states: Vec<&str> = text
+        .lines()
+        .filter(|l| l.contains(" BPFO "))
+        .map(|l| l.split_whitespace().nth(9).unwrap())
+        .collect();
+    assert_eq!(
+        states,
+        ["LEARNING", "LEARNING", "LEARNING", "LEARNING", "NORMAL", "NORMAL", "ALERT", "DANGER"]
+    );
     let svg = std::fs::read_to_string(dir.path().join("trend.svg")).unwrap();
     assert!(svg.starts_with("<svg"));
-    let poly = svg
-        .lines()
-        .find(|l| l.contains("class=\"series\""))
-        .unwrap();
-    let pts = poly
-        .split("points=\"")
-        .nth(1)
-        .unwrap()
-        .trim_end_matches("\"/>");
-    assert_eq!(pts.split(' ').count(), 8);
-    // Baseline, alert and danger levels plus the two absolute ones.
-    assert_eq!(svg.matches("class=\"level\"").count(), 5);
+    assert!(svg.contains("arrival order (receive times missing)"));
+    assert!(svg.contains("danger level (+12 dB)"));
+    // an existing plot is not overwritten
+    let o = run(
+        &[
+            "gateway",
+            "trend",
+            "--db",
+            "gw.sqlite",
+            "--node",
+            "3",
+            "--bearing",
+            "0",
+            "--svg",
+            "trend.svg",
+        ],
+        dir.path(),
+    );
+    assert_eq!(o.status.code(), Some(2));
     let o = run(
         &[
             "gateway",

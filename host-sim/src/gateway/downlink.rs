@@ -70,12 +70,16 @@ pub struct ConfigArgs {
     /// LOW_BATTERY below this supply voltage, mV.
     #[arg(long, default_value_t = 3000)]
     pub low_battery_mv: u16,
-    /// Defect alert threshold, dB over baseline.
+    /// Alert level: rise of a defect's amplitude over its baseline, dB.
     #[arg(long, default_value_t = 6.0)]
     pub alert_db: f32,
-    /// Defect alarm threshold, dB over baseline.
+    /// Danger level: rise of a defect's amplitude over its baseline, dB.
     #[arg(long, default_value_t = 12.0)]
-    pub alarm_db: f32,
+    pub danger_db: f32,
+    /// Gateway store: record the levels sent as this node's alarm limits
+    /// (origin `node config`), so the gateway grades with the node's levels.
+    #[arg(long)]
+    pub db: Option<String>,
     /// SENSOR_FAULT when a record spans at most this many counts (flat).
     #[arg(long, default_value_t = 4)]
     pub flat_counts: u16,
@@ -215,7 +219,7 @@ pub fn record_from_point(p: &PointConfig, s: &ConfigArgs) -> Result<PointRecord,
     r.interval_s = s.interval_s;
     r.low_battery_mv = s.low_battery_mv;
     r.alert_db = s.alert_db;
-    r.alarm_db = s.alarm_db;
+    r.danger_db = s.danger_db;
     r.bearings.clear();
     for b in &p.bearings {
         let ratio = p
@@ -336,6 +340,11 @@ pub fn downlink_cmd(a: &DownlinkArgs) -> Result<(), CliError> {
     match &a.out {
         Some(p) => crate::output::write(p, &frame)?,
         None => println!("{}", super::input::to_hex(&frame)),
+    }
+    if let DownlinkCommand::Config(c) = &a.command {
+        if let Some(db) = &c.db {
+            super::limits_cmd::record_node_levels(db, a.node_id, c.alert_db, c.danger_db)?;
+        }
     }
     Ok(())
 }

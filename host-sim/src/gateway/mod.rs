@@ -6,26 +6,33 @@
 //!   against interruption (batched transactions, unique node+seq+payload).
 //! * `status`: alarm state of every watched bearing, per sensor and per
 //!   physical bearing (gateway map), plus link statistics.
-//! * `trend`: one bearing's scores over time, as a table and an SVG plot.
-//! * `baseline`: set or clear a hand-set baseline.
+//! * `trend`: one bearing's amplitude and state over receive time, as a
+//!   table and an SVG plot (trend_cmd.rs).
+//! * `limits`: alarm limits per measuring point in the store (limits_cmd.rs);
+//!   `baseline`: set or clear a hand-set amplitude baseline.
 //! * `downlink`: build a signed downlink (configuration, measure now, band
 //!   survey) for a node from its key file; `provision`: make a node's key and
 //!   identity record.
 
 pub mod downlink;
 pub mod input;
+pub mod limits;
+pub mod limits_cmd;
 pub mod map;
 pub mod plot;
 pub mod seq;
+pub mod series;
 pub mod store;
+pub mod timefmt;
 pub mod trend;
+pub mod trend_cmd;
 
 use crate::error::CliError;
 use dsp_core::frame::{decode_any, DefectKind, Frame};
 use input::{read_inputs, InputFormat, InputItem};
 use seq::{SeqEvent, SeqTracker};
 use std::io::Write;
-use trend::{Limits, State};
+use trend::State;
 
 /// Arguments of `envord gateway`.
 #[derive(clap::Args, Debug)]
@@ -42,9 +49,11 @@ enum GatewayCommand {
     Import(ImportArgs),
     /// Print the alarm state of every watched bearing and the link statistics.
     Status(StatusArgs),
-    /// Print one bearing's scores over arrival order and plot them as SVG.
-    Trend(TrendArgs),
-    /// Set or clear the hand-set baseline of one defect.
+    /// Print one bearing's amplitude and alarm state over time and plot them as SVG.
+    Trend(trend_cmd::TrendArgs),
+    /// Set, show or clear the alarm limits of measuring points (stored).
+    Limits(limits_cmd::LimitsArgs),
+    /// Set or clear the hand-set amplitude baseline of one defect.
     Baseline(BaselineArgs),
     /// Build a signed downlink for a node (configuration, measure now, band survey).
     Downlink(downlink::DownlinkArgs),
@@ -92,52 +101,6 @@ struct ImportArgs {
 }
 
 #[derive(clap::Args, Debug)]
-struct LimitArgs {
-    /// Reports averaged into a learned baseline.
-    #[arg(long, default_value_t = 5)]
-    baseline_count: usize,
-    /// Alert at this rise over the baseline (dB).
-    #[arg(long, default_value_t = 6.0)]
-    alert_rise: f64,
-    /// Danger at this rise over the baseline (dB).
-    #[arg(long, default_value_t = 12.0)]
-    danger_rise: f64,
-    /// Alert at or above this score (dB).
-    #[arg(long, default_value_t = 20.0)]
-    alert_abs: f64,
-    /// Danger at or above this score (dB).
-    #[arg(long, default_value_t = 30.0)]
-    danger_abs: f64,
-}
-
-impl LimitArgs {
-    fn limits(&self) -> Result<Limits, CliError> {
-        let l = Limits {
-            baseline_count: self.baseline_count,
-            alert_rise_db: self.alert_rise,
-            danger_rise_db: self.danger_rise,
-            alert_abs_db: self.alert_abs,
-            danger_abs_db: self.danger_abs,
-        };
-        let finite = [
-            l.alert_rise_db,
-            l.danger_rise_db,
-            l.alert_abs_db,
-            l.danger_abs_db,
-        ]
-        .iter()
-        .all(|x| x.is_finite());
-        if !finite || l.alert_rise_db > l.danger_rise_db || l.alert_abs_db > l.danger_abs_db {
-            return Err(CliError::input(
-                "command line",
-                "limits must be finite with alert <= danger (--alert-rise/--danger-rise, --alert-abs/--danger-abs)",
-            ));
-        }
-        Ok(l)
-    }
-}
-
-#[derive(clap::Args, Debug)]
 struct StatusArgs {
     /// Gateway database file.
     #[arg(long)]
@@ -148,29 +111,9 @@ struct StatusArgs {
     /// Print JSON instead of tables.
     #[arg(long)]
     json: bool,
-    #[command(flatten)]
-    limits: LimitArgs,
-}
-
-#[derive(clap::Args, Debug)]
-struct TrendArgs {
-    /// Gateway database file.
+    /// Reference time for staleness (RFC 3339); default: now.
     #[arg(long)]
-    db: String,
-    /// Node id.
-    #[arg(long)]
-    node: u16,
-    /// Bearing index at the node.
-    #[arg(long)]
-    bearing: u8,
-    /// Only this defect (bpfo, bpfi, ftf, bsf); all four by default.
-    #[arg(long)]
-    defect: Option<String>,
-    /// Write an SVG plot here.
-    #[arg(long)]
-    svg: Option<String>,
-    #[command(flatten)]
-    limits: LimitArgs,
+    now: Option<String>,
 }
 
 #[derive(clap::Args, Debug)]
@@ -187,9 +130,9 @@ struct BaselineArgs {
     /// Defect kind (bpfo, bpfi, ftf, bsf).
     #[arg(long)]
     defect: String,
-    /// Baseline score in dB.
+    /// Baseline envelope amplitude in g (stored as this line's `baseline_g` limit).
     #[arg(long, conflicts_with = "clear", required_unless_present = "clear")]
-    score_db: Option<f64>,
+    amplitude_g: Option<f64>,
     /// Remove the hand-set baseline (back to learning from the first reports).
     #[arg(long)]
     clear: bool,
@@ -201,7 +144,8 @@ pub fn run(args: GatewayArgs) -> Result<(), CliError> {
         GatewayCommand::Decode(a) => decode_cmd(a),
         GatewayCommand::Import(a) => import_cmd(a),
         GatewayCommand::Status(a) => status_cmd(a),
-        GatewayCommand::Trend(a) => trend_cmd(a),
+        GatewayCommand::Trend(a) => trend_cmd::trend_cmd(&a),
+        GatewayCommand::Limits(a) => limits_cmd::run(&a),
         GatewayCommand::Baseline(a) => baseline_cmd(a),
         GatewayCommand::Downlink(a) => downlink::downlink_cmd(&a),
         GatewayCommand::Provision(a) => downlink::provision_cmd(&a),
@@ -472,17 +416,17 @@ fn import_cmd(a: ImportArgs) -> Result<(), CliError> {
 }
 
 fn status_cmd(a: StatusArgs) -> Result<(), CliError> {
-    let limits = a.limits.limits()?;
     let gmap = match &a.map {
         Some(p) => Some(map::GatewayMap::load(p)?),
         None => None,
     };
     let conn = store::open_read_only(&a.db)?;
-    let (tracker, order) = decided_order(&conn)?;
-    let mut obs = store::observations(&conn).map_err(sql_err)?;
-    sort_decided(&mut obs, &order);
-    let manual = |n: u16, b: u8, k: &str| store::manual_baseline(&conn, n, b, k).ok().flatten();
-    let states = trend::evaluate(&obs, &limits, &manual);
+    let now = trend_cmd::now_ms(a.now.as_deref())?;
+    let states: Vec<trend::DefectState> = trend_cmd::grade_store(&conn, &a.db, now)?
+        .into_iter()
+        .map(|l| l.state)
+        .collect();
+    let (tracker, _) = decided_order(&conn)?;
     let rejects = store::count(&conn, "rejects").map_err(sql_err)?;
     let nodes = store::latest_status(&conn).map_err(sql_err)?;
     let combined = gmap
@@ -500,12 +444,11 @@ fn status_cmd(a: StatusArgs) -> Result<(), CliError> {
         return Ok(());
     }
     println!(
-        "bearings (state = worst defect; limits: +{} / +{} dB over baseline, {} / {} dB absolute)",
-        limits.alert_rise_db, limits.danger_rise_db, limits.alert_abs_db, limits.danger_abs_db
+        "bearings (state = worst line; severity = amplitude over the baseline; limits: `envord gateway limits show`)"
     );
     println!(
-        "{:>5} {:>7} {:<9} {:<5} {:>8} {:>9} {:>7}  name",
-        "node", "bearing", "state", "worst", "score", "baseline", "rise"
+        "{:>5} {:>7} {:<11} {:<5} {:>10} {:>10} {:>7} {:>9}  name",
+        "node", "bearing", "state", "worst", "amp g", "baseline", "sev dB", "levels dB"
     );
     for b in bearing_states(&states) {
         let name = gmap
@@ -514,25 +457,31 @@ fn status_cmd(a: StatusArgs) -> Result<(), CliError> {
             .unwrap_or("-");
         let w = &b.worst;
         println!(
-            "{:>5} {:>7} {:<9} {:<5} {:>8} {:>9} {:>7}  {name}",
+            "{:>5} {:>7} {:<11} {:<5} {:>10} {:>10} {:>7} {:>9}  {name}{}",
             b.node,
             b.bearing,
             w.state.label(),
             w.kind,
-            fmt_db(w.latest_db),
-            fmt_db(w.baseline_db),
-            fmt_db(w.latest_db.zip(w.baseline_db).map(|(s, b)| s - b))
+            fmt_g(w.amplitude_g),
+            fmt_g(w.baseline_g),
+            fmt_db(w.severity_db),
+            format!("+{}/+{}", w.limits.alert_db, w.limits.danger_db),
+            if w.stale && w.state != State::Stale {
+                " (node silent: stale)"
+            } else {
+                ""
+            }
         );
     }
     if !combined.is_empty() {
-        println!("\nphysical bearings (sensors combined: worst latest score, sensors detecting / sensors)");
+        println!("\nphysical bearings (sensors combined: worst latest amplitude, sensors detecting / sensors)");
         for p in &combined {
             println!("{:<9} {}", p.state.label(), p.name);
             for d in &p.defects {
                 println!(
                     "          {:<5} worst {:>7}  detected by {}/{}  state {}",
                     d.kind,
-                    fmt_db(d.worst_db),
+                    fmt_g(d.worst_amplitude_g),
                     d.detecting,
                     p.sensors,
                     d.state.label()
@@ -600,7 +549,7 @@ fn status_cmd(a: StatusArgs) -> Result<(), CliError> {
 /// Replays the stored history through a tracker: status frames first (the
 /// restart evidence; the two tables keep no common arrival order), then the
 /// reports in arrival order, giving each report id its decided place.
-fn decided_order(
+pub(crate) fn decided_order(
     conn: &rusqlite::Connection,
 ) -> Result<(SeqTracker, std::collections::HashMap<i64, seq::Order>), CliError> {
     let mut tracker = SeqTracker::new();
@@ -627,6 +576,10 @@ fn fmt_db(x: Option<f64>) -> String {
     x.map_or("-".into(), |v| format!("{v:.1}"))
 }
 
+fn fmt_g(x: Option<f64>) -> String {
+    x.map_or("-".into(), |v| format!("{v:.3e}"))
+}
+
 /// State of one sensor channel (node + bearing index): its worst defect.
 #[derive(Debug, serde::Serialize)]
 pub struct BearingState {
@@ -634,7 +587,7 @@ pub struct BearingState {
     pub node: u16,
     /// Bearing index.
     pub bearing: u8,
-    /// The defect in the worst state (highest latest score on ties).
+    /// The defect in the worst state (highest severity on ties).
     pub worst: trend::DefectState,
 }
 
@@ -642,7 +595,7 @@ pub struct BearingState {
 pub fn bearing_states(states: &[trend::DefectState]) -> Vec<BearingState> {
     let mut out: Vec<BearingState> = Vec::new();
     for s in states {
-        let key = |d: &trend::DefectState| (d.state, d.latest_db.unwrap_or(f64::NEG_INFINITY));
+        let key = |d: &trend::DefectState| (d.state, d.severity_db.unwrap_or(f64::NEG_INFINITY));
         match out
             .iter_mut()
             .find(|b| b.node == s.node && b.bearing == s.bearing)
@@ -667,8 +620,8 @@ pub fn bearing_states(states: &[trend::DefectState]) -> Vec<BearingState> {
 pub struct CombinedDefect {
     /// Defect kind name.
     pub kind: String,
-    /// Worst latest score over the sensors.
-    pub worst_db: Option<f64>,
+    /// Worst latest amplitude over the sensors, g.
+    pub worst_amplitude_g: Option<f64>,
     /// Sensors whose latest report detects this defect.
     pub detecting: usize,
     /// Worst state over the sensors.
@@ -708,7 +661,10 @@ pub fn combine(m: &map::GatewayMap, states: &[trend::DefectState]) -> Vec<Combin
                         .collect();
                     CombinedDefect {
                         kind: k.name().to_string(),
-                        worst_db: mine.iter().filter_map(|s| s.latest_db).reduce(f64::max),
+                        worst_amplitude_g: mine
+                            .iter()
+                            .filter_map(|s| s.amplitude_g)
+                            .reduce(f64::max),
                         detecting: mine.iter().filter(|s| s.detected).count(),
                         state: mine.iter().map(|s| s.state).max().unwrap_or(State::NoData),
                     }
@@ -728,106 +684,38 @@ pub fn combine(m: &map::GatewayMap, states: &[trend::DefectState]) -> Vec<Combin
         .collect()
 }
 
-fn trend_cmd(a: TrendArgs) -> Result<(), CliError> {
-    let limits = a.limits.limits()?;
-    let only = a.defect.as_deref().map(parse_kind).transpose()?;
-    if let Some(p) = &a.svg {
-        crate::output::check_free(std::path::Path::new(p))?;
-    }
-    let conn = store::open_read_only(&a.db)?;
-    let obs: Vec<store::Observation> = store::observations(&conn)
-        .map_err(sql_err)?
-        .into_iter()
-        .filter(|o| o.node == a.node && o.bearing == a.bearing)
-        .filter(|o| only.is_none_or(|k| o.kind == k.name()))
-        .collect();
-    if obs.is_empty() {
-        return Err(CliError::input(
-            &a.db,
-            format!("no reports for node {} bearing {}", a.node, a.bearing),
-        ));
-    }
-    println!(
-        "{:>6} {:>6} {:<22} {:<5} {:>7} detected",
-        "report", "seq", "rx_time", "kind", "score"
-    );
-    for o in &obs {
-        println!(
-            "{:>6} {:>6} {:<22} {:<5} {:>7} {}",
-            o.report_id,
-            o.seq,
-            o.rx_time.as_deref().unwrap_or("-"),
-            o.kind,
-            fmt_db(o.score_db),
-            if o.detected { "yes" } else { "no" }
-        );
-    }
-    if let Some(path) = &a.svg {
-        let colours = ["#1f77b4", "#d62728", "#2ca02c", "#9467bd"];
-        let series: Vec<plot::Series<'_>> = DefectKind::ALL
-            .iter()
-            .zip(colours)
-            .filter(|(k, _)| only.is_none_or(|o| o == **k))
-            .map(|(k, c)| plot::Series {
-                label: k.name(),
-                colour: c,
-                points: obs
-                    .iter()
-                    .filter(|o| o.kind == k.name())
-                    .map(|o| {
-                        (
-                            f64::from(u32::try_from(o.report_id).unwrap_or(0)),
-                            o.score_db,
-                        )
-                    })
-                    .collect(),
-            })
-            .collect();
-        let manual = |n: u16, b: u8, k: &str| store::manual_baseline(&conn, n, b, k).ok().flatten();
-        let (_, order) = decided_order(&conn)?;
-        let mut decided = obs.clone();
-        sort_decided(&mut decided, &order);
-        let states = trend::evaluate(&decided, &limits, &manual);
-        let mut levels: Vec<(&str, f64, &str)> = vec![
-            ("alert abs", limits.alert_abs_db, "#ff7f0e"),
-            ("danger abs", limits.danger_abs_db, "#d62728"),
-        ];
-        // Baseline levels only when one defect is plotted (else the plot gets crowded).
-        if let (Some(_), Some(b)) = (only, states.first().and_then(|s| s.baseline_db)) {
-            levels.push(("baseline", b, "#7f7f7f"));
-            levels.push(("alert", b + limits.alert_rise_db, "#ff7f0e"));
-            levels.push(("danger", b + limits.danger_rise_db, "#d62728"));
-        }
-        let title = format!("node {} bearing {}: defect scores", a.node, a.bearing);
-        let svg = plot::svg(&title, "report (arrival order)", &series, &levels);
-        crate::output::write(std::path::Path::new(path), svg.as_bytes())?;
-        println!("wrote {path}");
-    }
-    Ok(())
-}
-
 fn baseline_cmd(a: BaselineArgs) -> Result<(), CliError> {
     let kind = parse_kind(&a.defect)?;
     if a.bearing > 3 {
         return Err(CliError::input("--bearing", "bearing index must be 0..=3"));
     }
-    if let Some(v) = a.score_db {
-        if !v.is_finite() {
-            return Err(CliError::input("--score-db", "must be finite"));
+    if let Some(v) = a.amplitude_g {
+        if !v.is_finite() || v <= 0.0 {
+            return Err(CliError::input(
+                "--amplitude-g",
+                "must be a positive amplitude in g",
+            ));
         }
     }
-    let conn = store::open_existing(&a.db)?;
-    let v = if a.clear { None } else { a.score_db };
-    store::set_baseline(&conn, a.node, a.bearing, kind.name(), v).map_err(sql_err)?;
-    match v {
+    let row = limits::LimitRow {
+        node: Some(a.node),
+        bearing: Some(a.bearing),
+        kind: Some(kind.name().to_string()),
+        // 0 clears the hand-set baseline: back to learning
+        baseline_g: Some(a.amplitude_g.unwrap_or(0.0)),
+        origin: "command".into(),
+        ..limits::LimitRow::default()
+    };
+    limits_cmd::store_row(&a.db, &row)?;
+    match a.amplitude_g {
         Some(x) => println!(
-            "baseline of node {} bearing {} {} set to {x:.1} dB",
+            "baseline of node {} bearing {} {} set to {x} g",
             a.node,
             a.bearing,
             kind.name()
         ),
         None => println!(
-            "baseline of node {} bearing {} {} cleared",
+            "baseline of node {} bearing {} {} cleared (learned from quiet reports again)",
             a.node,
             a.bearing,
             kind.name()

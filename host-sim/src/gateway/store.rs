@@ -108,6 +108,28 @@ pub const MIGRATIONS: &[&str] = &[
     );
     CREATE INDEX alarm_events_by_time ON alarm_events (at_ms);
     CREATE INDEX reports_by_node ON reports (node_id, id);",
+    // 4: the envelope band in force when each report arrived (from the
+    // node's latest status frame; NULL when none was stored before it), and
+    // alarm limits per measuring point (gateway/limits.rs). node_id -1,
+    // bearing -1 and kind '*' mean every node, bearing or kind; a NULL
+    // setting defers to a less specific row or the built-in default.
+    "ALTER TABLE reports ADD COLUMN band_lo_hz REAL;
+    ALTER TABLE reports ADD COLUMN band_hi_hz REAL;
+    CREATE TABLE point_limits (
+        node_id INTEGER NOT NULL,
+        bearing INTEGER NOT NULL,
+        kind TEXT NOT NULL,
+        baseline_count INTEGER,
+        alert_db REAL,
+        danger_db REAL,
+        alert_abs_g REAL,
+        danger_abs_g REAL,
+        floor_g REAL,
+        baseline_g REAL,
+        stale_after_s REAL,
+        origin TEXT NOT NULL,
+        PRIMARY KEY (node_id, bearing, kind)
+    );",
 ];
 
 /// Schema version this build writes.
@@ -450,6 +472,7 @@ pub fn insert_frame(
         return Ok(false);
     }
     let id = conn.last_insert_rowid();
+    super::series::stamp_band(conn, id, node)?;
     let mut stmt = conn.prepare_cached(
         "INSERT INTO defects (report_id, bearing, kind, score_db, amplitude_1x_g, harmonics, detected)
          VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",

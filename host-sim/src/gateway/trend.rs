@@ -1,47 +1,45 @@
-//! Baselines and alarm states per node, bearing and defect.
+//! Severity and alarm states per line (node, bearing, defect kind), graded on
+//! the envelope amplitude of the finding over a learned baseline. The rule
+//! (docs/gateway.md "Alarms"):
+//!
+//! * The baseline is the geometric mean of the first `baseline_count` quiet
+//!   reports (searched, nothing detected) in the current envelope band,
+//!   never below the floor of "nothing found" (`floor_g`); a hand-set
+//!   `baseline_g` replaces it. A band change starts learning again: the
+//!   amplitudes of two bands are not comparable.
+//! * Severity = 20 log10(amplitude / baseline) dB (amplitude floored too).
+//! * DANGER: amplitude >= the absolute danger level, or severity >=
+//!   `danger_db` while the finding persists (the previous report of the line
+//!   was ALERT or DANGER). So a first detection over a quiet baseline is
+//!   ALERT unless it crosses the absolute danger level.
+//! * ALERT: the node detects the defect, or amplitude >= the absolute alert
+//!   level, or (baseline known) severity >= `alert_db`.
+//! * LEARNING until the baseline is known; NORMAL otherwise.
+//! * NOT COVERED when the node's setting cannot search the line (never
+//!   NORMAL); STALE when the node has been silent longer than
+//!   `stale_after_s` and its last state was no worse than NORMAL.
+//!
+//! [`levels`] computes the amplitude levels; [`grade`] compares with them and
+//! the trend plot draws them, so the plotted limits are the state logic's.
 
-use super::store::Observation;
+use super::limits::Limits;
+use super::series::Point;
 use std::collections::BTreeMap;
 
-/// Alarm settings. The defaults are this project's choice (rise over the
-/// baseline of +6 dB alert / +12 dB danger is common practice for spectral
-/// trending; the absolute limits are ours).
-#[derive(Clone, Copy, Debug)]
-pub struct Limits {
-    /// Reports averaged into a learned baseline.
-    pub baseline_count: usize,
-    /// Alert when the score rises this much over the baseline (dB).
-    pub alert_rise_db: f64,
-    /// Danger when the score rises this much over the baseline (dB).
-    pub danger_rise_db: f64,
-    /// Alert at or above this score whatever the baseline (dB).
-    pub alert_abs_db: f64,
-    /// Danger at or above this score whatever the baseline (dB).
-    pub danger_abs_db: f64,
-}
-
-impl Default for Limits {
-    fn default() -> Self {
-        Self {
-            baseline_count: 5,
-            alert_rise_db: 6.0,
-            danger_rise_db: 12.0,
-            alert_abs_db: 20.0,
-            danger_abs_db: 30.0,
-        }
-    }
-}
-
-/// Alarm state, ordered from best to worst.
+/// Alarm state, ordered from best to worst (a bearing shows its worst line).
 #[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, serde::Serialize)]
-#[serde(rename_all = "lowercase")]
+#[serde(rename_all = "snake_case")]
 pub enum State {
-    /// No valid score yet.
+    /// No usable report yet.
     NoData,
-    /// Fewer reports than the baseline needs, and under the absolute limits.
+    /// The baseline is not known yet and nothing is found.
     Learning,
     /// Under the alert levels.
     Normal,
+    /// Last state was no worse than normal, but the node has been silent too long.
+    Stale,
+    /// The node's setting cannot search this line: no verdict.
+    NotCovered,
     /// At or over an alert level.
     Alert,
     /// At or over a danger level.
@@ -49,12 +47,14 @@ pub enum State {
 }
 
 impl State {
-    /// Upper-case name for tables.
+    /// Upper-case name for tables and plots.
     pub fn label(self) -> &'static str {
         match self {
-            State::NoData => "NO-DATA",
+            State::NoData => "NO DATA",
             State::Learning => "LEARNING",
             State::Normal => "NORMAL",
+            State::Stale => "STALE",
+            State::NotCovered => "NOT COVERED",
             State::Alert => "ALERT",
             State::Danger => "DANGER",
         }
@@ -63,15 +63,109 @@ impl State {
 
 /// Where a baseline came from.
 #[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
-#[serde(rename_all = "lowercase")]
+#[serde(rename_all = "snake_case")]
 pub enum BaselineOrigin {
-    /// Mean of the first N scores.
+    /// Geometric mean of the first quiet reports (at least the floor).
     Learned,
-    /// Set by hand.
+    /// Set by hand (`gateway limits set --baseline-g`).
     Manual,
+    /// Not known yet: the floor of "nothing found" stands in.
+    Floor,
 }
 
-/// State of one node/bearing/defect.
+/// The amplitude levels a report of a line is graded against, g.
+#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+pub struct Levels {
+    /// Baseline (never below the floor).
+    pub baseline_g: f64,
+    /// Its origin.
+    pub origin: BaselineOrigin,
+    /// Baseline raised by `alert_db`.
+    pub alert_g: f64,
+    /// Baseline raised by `danger_db`.
+    pub danger_g: f64,
+    /// Absolute alert level, if set.
+    pub alert_abs_g: Option<f64>,
+    /// Absolute danger level, if set.
+    pub danger_abs_g: Option<f64>,
+    /// Floor of "nothing found".
+    pub floor_g: f64,
+}
+
+fn db_gain(db: f64) -> f64 {
+    10f64.powf(db / 20.0)
+}
+
+/// The levels of a line with a known (`Some`) or unknown baseline.
+pub fn levels(baseline_g: Option<f64>, origin: BaselineOrigin, l: &Limits) -> Levels {
+    let (base, origin) = match baseline_g {
+        Some(b) => (b.max(l.floor_g), origin),
+        None => (l.floor_g, BaselineOrigin::Floor),
+    };
+    Levels {
+        baseline_g: base,
+        origin,
+        alert_g: base * db_gain(l.alert_db),
+        danger_g: base * db_gain(l.danger_db),
+        alert_abs_g: l.alert_abs_g,
+        danger_abs_g: l.danger_abs_g,
+        floor_g: l.floor_g,
+    }
+}
+
+/// The state of one report: `amplitude_g` (None when invalid), the node's
+/// detection, whether the line was searched, the levels and the previous
+/// report's state of the same line.
+pub fn grade(
+    amplitude_g: Option<f64>,
+    detected: bool,
+    searched: bool,
+    lv: &Levels,
+    previous: Option<State>,
+) -> State {
+    if !searched {
+        return State::NotCovered;
+    }
+    let Some(a) = amplitude_g.filter(|a| a.is_finite() && *a >= 0.0) else {
+        return State::NoData;
+    };
+    let a = a.max(lv.floor_g);
+    let known = lv.origin != BaselineOrigin::Floor;
+    let persists = matches!(previous, Some(State::Alert | State::Danger));
+    if lv.danger_abs_g.is_some_and(|d| a >= d) || (persists && a >= lv.danger_g) {
+        State::Danger
+    } else if detected || lv.alert_abs_g.is_some_and(|x| a >= x) || (known && a >= lv.alert_g) {
+        State::Alert
+    } else if known {
+        State::Normal
+    } else {
+        State::Learning
+    }
+}
+
+/// Severity of an amplitude over the levels' baseline, dB.
+pub fn severity_db(amplitude_g: Option<f64>, lv: &Levels) -> Option<f64> {
+    amplitude_g
+        .filter(|a| a.is_finite() && *a >= 0.0)
+        .map(|a| 20.0 * (a.max(lv.floor_g) / lv.baseline_g).log10())
+}
+
+/// One graded report of a line.
+#[derive(Clone, Debug, serde::Serialize)]
+pub struct Graded {
+    /// The stored report row.
+    pub point: Point,
+    /// Its state.
+    pub state: State,
+    /// Severity over the baseline in force, dB.
+    pub severity_db: Option<f64>,
+    /// The levels in force for this report.
+    pub levels: Levels,
+    /// The band differs from the previous report's (both known).
+    pub band_changed: bool,
+}
+
+/// Latest state of one line, as `status` prints it.
 #[derive(Clone, Debug, serde::Serialize)]
 pub struct DefectState {
     /// Node.
@@ -80,80 +174,172 @@ pub struct DefectState {
     pub bearing: u8,
     /// Defect kind name.
     pub kind: String,
-    /// Valid scores seen.
+    /// Usable reports seen.
     pub reports: usize,
-    /// Most recent valid score.
+    /// Latest amplitude, g.
+    pub amplitude_g: Option<f64>,
+    /// Column the amplitude came from.
+    pub amplitude_source: Option<&'static str>,
+    /// Latest score over the local floor, dB (the node's detection measure).
     pub latest_db: Option<f64>,
-    /// Detected bit of the most recent report.
+    /// Detected bit of the latest report.
     pub detected: bool,
-    /// Baseline in dB, once known.
-    pub baseline_db: Option<f64>,
+    /// Whether the latest report searched the line.
+    pub searched: bool,
+    /// Baseline in force, g.
+    pub baseline_g: Option<f64>,
     /// Origin of the baseline.
     pub baseline_origin: Option<BaselineOrigin>,
+    /// Latest severity over the baseline, dB.
+    pub severity_db: Option<f64>,
+    /// Levels in force for the latest report.
+    pub levels: Option<Levels>,
+    /// The limits used.
+    pub limits: Limits,
+    /// Receive time of the latest report, Unix ms.
+    pub last_time_ms: Option<i64>,
+    /// Band of the latest report, Hz.
+    pub band_hz: Option<[f64; 2]>,
+    /// Band changes seen in the history.
+    pub band_changes: usize,
+    /// The node is silent for longer than `stale_after_s`.
+    pub stale: bool,
     /// Alarm state.
     pub state: State,
 }
 
-/// Classifies a score against a baseline and the limits.
-pub fn classify(latest: Option<f64>, baseline: Option<f64>, l: &Limits) -> State {
-    let Some(s) = latest else {
-        return State::NoData;
-    };
-    let rise = baseline.map(|b| s - b);
-    if s >= l.danger_abs_db || rise.is_some_and(|r| r >= l.danger_rise_db) {
-        State::Danger
-    } else if s >= l.alert_abs_db || rise.is_some_and(|r| r >= l.alert_rise_db) {
-        State::Alert
-    } else if baseline.is_none() {
-        State::Learning
-    } else {
-        State::Normal
-    }
+/// One line with its graded history and latest state.
+#[derive(Clone, Debug)]
+pub struct Line {
+    /// Every usable report, graded, in arrival order.
+    pub history: Vec<Graded>,
+    /// The latest state.
+    pub state: DefectState,
 }
 
-/// States of every (node, bearing, defect) with observations; `manual`
-/// gives the hand-set baseline of a key if there is one.
+fn geo_mean(v: &[f64]) -> Option<f64> {
+    if v.is_empty() {
+        return None;
+    }
+    let n = f64::from(u32::try_from(v.len()).unwrap_or(u32::MAX));
+    Some(10f64.powf(v.iter().map(|x| x.log10()).sum::<f64>() / n))
+}
+
+/// Grades the history of one line (its points in arrival order).
+pub fn grade_line(points: &[&Point], l: &Limits) -> Vec<Graded> {
+    let mut out: Vec<Graded> = Vec::new();
+    let mut quiet: Vec<f64> = Vec::new();
+    let mut learned: Option<f64> = None;
+    let mut band: Option<[f64; 2]> = None;
+    let mut previous: Option<State> = None;
+    for p in points {
+        let usable = !p.searched || p.amplitude_g.is_some_and(f64::is_finite);
+        if !usable {
+            continue;
+        }
+        let band_changed = matches!((band, p.band_hz), (Some(a), Some(b)) if a != b);
+        if band_changed {
+            quiet.clear();
+            learned = None;
+        }
+        if p.band_hz.is_some() {
+            band = p.band_hz;
+        }
+        if learned.is_none()
+            && p.searched
+            && !p.detected
+            && l.baseline_count > 0
+            && quiet.len() < l.baseline_count
+        {
+            if let Some(a) = p.amplitude_g {
+                quiet.push(a.max(l.floor_g));
+            }
+            if quiet.len() == l.baseline_count {
+                learned = geo_mean(&quiet);
+            }
+        }
+        let lv = match (l.baseline_g, learned) {
+            (Some(b), _) => levels(Some(b), BaselineOrigin::Manual, l),
+            (None, Some(b)) => levels(Some(b), BaselineOrigin::Learned, l),
+            (None, None) => levels(None, BaselineOrigin::Floor, l),
+        };
+        let state = grade(p.amplitude_g, p.detected, p.searched, &lv, previous);
+        previous = Some(state);
+        out.push(Graded {
+            point: (*p).clone(),
+            severity_db: if p.searched {
+                severity_db(p.amplitude_g, &lv)
+            } else {
+                None
+            },
+            state,
+            levels: lv,
+            band_changed,
+        });
+    }
+    out
+}
+
+/// Grades every line of `points`; `limits_of` gives each line's limits;
+/// `now_ms` is the reference time for staleness (None: never stale).
 pub fn evaluate(
-    obs: &[Observation],
-    limits: &Limits,
-    manual: &dyn Fn(u16, u8, &str) -> Option<f64>,
-) -> Vec<DefectState> {
-    let mut groups: BTreeMap<(u16, u8, String), Vec<&Observation>> = BTreeMap::new();
-    for o in obs {
+    points: &[Point],
+    limits_of: &dyn Fn(u16, u8, &str) -> Limits,
+    now_ms: Option<i64>,
+) -> Vec<Line> {
+    let mut groups: BTreeMap<(u16, u8, String), Vec<&Point>> = BTreeMap::new();
+    let mut node_last: BTreeMap<u16, i64> = BTreeMap::new();
+    for p in points {
         groups
-            .entry((o.node, o.bearing, o.kind.clone()))
+            .entry((p.node, p.bearing, p.kind.clone()))
             .or_default()
-            .push(o);
+            .push(p);
+        if let Some(t) = p.time_ms {
+            let e = node_last.entry(p.node).or_insert(t);
+            *e = (*e).max(t);
+        }
     }
     groups
         .into_iter()
         .map(|((node, bearing, kind), list)| {
-            let scores: Vec<f64> = list.iter().filter_map(|o| o.score_db).collect();
-            let (baseline_db, baseline_origin) = match manual(node, bearing, &kind) {
-                Some(b) => (Some(b), Some(BaselineOrigin::Manual)),
-                None if limits.baseline_count > 0 && scores.len() >= limits.baseline_count => {
-                    let first = scores.get(..limits.baseline_count).unwrap_or(&[]);
-                    let n = f64::from(u32::try_from(first.len()).unwrap_or(u32::MAX));
-                    (
-                        Some(first.iter().sum::<f64>() / n),
-                        Some(BaselineOrigin::Learned),
-                    )
+            let limits = limits_of(node, bearing, &kind);
+            let history = grade_line(&list, &limits);
+            let last = history.last();
+            let stale = match (now_ms, node_last.get(&node), limits.stale_after_s) {
+                (Some(now), Some(t), Some(s)) => {
+                    #[allow(clippy::cast_precision_loss)] // ms spans far below 2^52
+                    let silent_s = (now - t) as f64 / 1000.0;
+                    silent_s > s
                 }
-                None => (None, None),
+                _ => false,
             };
-            let latest_db = scores.last().copied();
-            let detected = list.last().is_some_and(|o| o.detected);
-            DefectState {
-                state: classify(latest_db, baseline_db, limits),
+            let mut state = last.map_or(State::NoData, |g| g.state);
+            if stale && state <= State::Normal {
+                state = State::Stale;
+            }
+            let band_changes = history.iter().filter(|g| g.band_changed).count();
+            let st = DefectState {
                 node,
                 bearing,
                 kind,
-                reports: scores.len(),
-                latest_db,
-                detected,
-                baseline_db,
-                baseline_origin,
-            }
+                reports: history.len(),
+                amplitude_g: last.and_then(|g| g.point.amplitude_g),
+                amplitude_source: last.map(|g| g.point.amplitude_source),
+                latest_db: last.and_then(|g| g.point.score_db),
+                detected: last.is_some_and(|g| g.point.detected),
+                searched: last.is_none_or(|g| g.point.searched),
+                baseline_g: last.map(|g| g.levels.baseline_g),
+                baseline_origin: last.map(|g| g.levels.origin),
+                severity_db: last.and_then(|g| g.severity_db),
+                levels: last.map(|g| g.levels),
+                limits,
+                last_time_ms: last.and_then(|g| g.point.time_ms),
+                band_hz: last.and_then(|g| g.point.band_hz),
+                band_changes,
+                stale,
+                state,
+            };
+            Line { history, state: st }
         })
         .collect()
 }
@@ -162,15 +348,49 @@ pub fn evaluate(
 mod tests {
     use super::*;
 
+    fn lv(base: Option<f64>) -> Levels {
+        levels(base, BaselineOrigin::Learned, &Limits::default())
+    }
+
     #[test]
-    fn classify_levels() {
-        let l = Limits::default();
-        assert_eq!(classify(None, Some(5.0), &l), State::NoData);
-        assert_eq!(classify(Some(8.0), None, &l), State::Learning);
-        assert_eq!(classify(Some(10.9), Some(5.0), &l), State::Normal);
-        assert_eq!(classify(Some(11.0), Some(5.0), &l), State::Alert);
-        assert_eq!(classify(Some(17.0), Some(5.0), &l), State::Danger);
-        assert_eq!(classify(Some(21.0), None, &l), State::Alert);
-        assert_eq!(classify(Some(30.0), Some(29.0), &l), State::Danger);
+    fn first_detection_is_alert_and_danger_needs_persistence() {
+        let quiet = lv(Some(1e-3));
+        // +6 dB = 2.0 mg, +12 dB = 3.98 mg over a 1 mg baseline
+        assert!((quiet.alert_g - 1.995e-3).abs() < 1e-5);
+        assert!((quiet.danger_g - 3.981e-3).abs() < 1e-5);
+        assert_eq!(
+            grade(Some(1.5e-3), false, true, &quiet, None),
+            State::Normal
+        );
+        assert_eq!(grade(Some(2.1e-3), false, true, &quiet, None), State::Alert);
+        // 30 dB over the baseline, first time: alert
+        assert_eq!(
+            grade(Some(3.2e-2), true, true, &quiet, Some(State::Normal)),
+            State::Alert
+        );
+        assert_eq!(
+            grade(Some(3.2e-2), true, true, &quiet, Some(State::Alert)),
+            State::Danger
+        );
+        let abs = Levels {
+            danger_abs_g: Some(0.03),
+            ..quiet
+        };
+        assert_eq!(
+            grade(Some(3.2e-2), true, true, &abs, Some(State::Normal)),
+            State::Danger
+        );
+        assert_eq!(grade(Some(1.0), true, false, &abs, None), State::NotCovered);
+        assert_eq!(grade(None, false, true, &quiet, None), State::NoData);
+        // learning: a detection is still an alert, noise is not
+        let learning = lv(None);
+        assert_eq!(learning.origin, BaselineOrigin::Floor);
+        assert_eq!(
+            grade(Some(5e-3), false, true, &learning, None),
+            State::Learning
+        );
+        assert_eq!(grade(Some(5e-3), true, true, &learning, None), State::Alert);
+        // "nothing found" amplitudes below the floor grade as the floor: 0 dB
+        assert_eq!(severity_db(Some(0.0), &quiet), Some(0.0));
     }
 }

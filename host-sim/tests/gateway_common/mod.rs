@@ -94,3 +94,18 @@ pub fn db_count(db: &Path, table: &str) -> i64 {
     c.query_row(&format!("SELECT COUNT(*) FROM {table}"), [], |r| r.get(0))
         .unwrap()
 }
+
+/// A full frame of an invented node: bearing 0 BPFO with 1x amplitude
+/// `bpfo_g` (score 20 dB when detected, else 0), the other lines quiet.
+pub fn frame_amp(node: u16, seq: u16, bpfo_g: f32, detected: bool) -> Vec<u8> {
+    let mut f = dsp_core::frame::decode(&frame(node, seq, 0.0, false)).unwrap();
+    f.bearings[0].defects[0] = DefectResult {
+        score_db: if detected { 20.0 } else { 0.0 },
+        amplitude_1x_g: bpfo_g,
+        harmonics: if detected { 4 } else { 0 },
+        detected,
+    };
+    let mut buf = [0u8; 64];
+    let n = encode(&f, &mut buf).unwrap();
+    buf[..n].to_vec()
+}
