@@ -38,6 +38,9 @@ struct PointFile {
     bearing: Vec<BearingEntry>,
     #[serde(default)]
     mesh: Vec<MeshEntry>,
+    /// Reports by exception (crate::report_policy); checked here, read there.
+    #[serde(default)]
+    report: crate::report_policy::ReportSection,
 }
 
 #[derive(Debug, Deserialize)]
@@ -139,6 +142,7 @@ pub fn load(path: &Path) -> Result<PointConfig, CliError> {
 /// Parses and validates point-file text; the error names the key or line.
 pub fn parse(text: &str) -> Result<PointConfig, String> {
     let file: PointFile = toml::from_str(text).map_err(|e| e.to_string())?;
+    crate::report_policy::from_section(&file.report)?;
     let mut p = PointConfig::default();
 
     if let Some(v) = file.sensor.sample_rate_hz {
