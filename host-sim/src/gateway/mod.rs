@@ -5,13 +5,15 @@
 //! * `import`: into the SQLite store (docs/gateway.md), idempotent and safe
 //!   against interruption (batched transactions, unique node+seq+payload).
 //! * `status`: alarm state of every watched bearing, per sensor and per
-//!   physical bearing (gateway map), plus link statistics.
+//!   physical bearing (gateway map), plus link statistics. Reduced frames
+//!   count as "as before" ([`as_before`]), in `trend` too.
 //! * `trend`: one bearing's scores over time, as a table and an SVG plot.
 //! * `baseline`: set or clear a hand-set baseline.
 //! * `downlink`: build a signed downlink (configuration, measure now, band
 //!   survey) for a node from its key file; `provision`: make a node's key and
 //!   identity record.
 
+pub mod as_before;
 pub mod downlink;
 pub mod input;
 pub mod map;
@@ -477,7 +479,8 @@ fn status_cmd(a: StatusArgs) -> Result<(), CliError> {
         None => None,
     };
     let conn = store::open(&a.db)?;
-    let obs = store::observations(&conn).map_err(sql_err)?;
+    // reduced frames read "as before" (reports by exception)
+    let obs = as_before::observations(&conn).map_err(sql_err)?;
     let manual = |n: u16, b: u8, k: &str| store::manual_baseline(&conn, n, b, k).ok().flatten();
     let states = trend::evaluate(&obs, &limits, &manual);
     let mut tracker = SeqTracker::new();
@@ -707,7 +710,8 @@ fn trend_cmd(a: TrendArgs) -> Result<(), CliError> {
     let limits = a.limits.limits()?;
     let only = a.defect.as_deref().map(parse_kind).transpose()?;
     let conn = store::open(&a.db)?;
-    let obs: Vec<store::Observation> = store::observations(&conn)
+    // reduced frames read "as before" (reports by exception)
+    let obs: Vec<store::Observation> = as_before::observations(&conn)
         .map_err(sql_err)?
         .into_iter()
         .filter(|o| o.node == a.node && o.bearing == a.bearing)
