@@ -255,7 +255,7 @@ pub fn build(a: &EnergyArgs) -> Result<EnergyReport, CliError> {
                 ),
             )
         })?;
-    let bad = |e: budget::BudgetError| CliError::Input(e.to_string());
+    let bad = |e: budget::BudgetError| blame(&hw, &e);
     let up = budget::uplink_params(&hw, a.sf, bw_hz).map_err(bad)?;
     let nb = point.bearings.len();
     let full = budget::cycle(&m, &hw, &up, full_frame_len(nb)).map_err(bad)?;
@@ -317,6 +317,23 @@ pub fn build(a: &EnergyArgs) -> Result<EnergyReport, CliError> {
         instr_per_sample: hw.get(P::InstrPerSample),
         parameters,
     })
+}
+
+/// A budget error as bad input, naming the file a parameter came from.
+fn blame(hw: &Hardware, e: &budget::BudgetError) -> CliError {
+    let key = match e {
+        budget::BudgetError::Radio { key, .. } | budget::BudgetError::NotWhole(key) => Some(*key),
+        _ => None,
+    };
+    let from = key.and_then(|k| {
+        hw.rows()
+            .find(|(d, _, _)| d.key == k)
+            .map(|(_, _, o)| o.clone())
+    });
+    match from {
+        Some(Origin::File(f)) => CliError::input(f, e),
+        _ => CliError::Input(e.to_string()),
+    }
 }
 
 fn origin_text(o: &Origin) -> String {
