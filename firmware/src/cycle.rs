@@ -18,6 +18,11 @@
 //! the chosen band in the configuration, and the uplink is the status frame
 //! ([`dsp_core::frame::status`]) that reports it.
 //!
+//! A measurement's report goes out as a full frame or, when nothing changed
+//! beyond the margin since the last full frame, as the reduced frame
+//! ([`crate::exception`], [`Node::set_report_policy`]; reports from a core
+//! whose frames are not dsp-core full frames go out as they are).
+//!
 //! Downlinks are verified before they are parsed ([`downlink::open`]); a
 //! refused one changes nothing and is counted. The node sends a status
 //! frame after the report of the first cycle after boot and of the cycle
@@ -28,6 +33,7 @@ use crate::config::{BandSource, PointRecord, StoredConfig, MAX_STORED_LEN};
 use crate::crc::crc32;
 use crate::downlink::{self, Command, DownlinkError, MAX_BASELINE_LEN};
 use crate::downlink_auth::AuthError;
+use crate::exception::{Choice, ExceptionState, ReportPolicy};
 use crate::hal::{
     Alarm, Battery, BlockSource, MeasurementCore, PulseCapture, RadioLink, Slot, Storage,
     WakeReason, Watchdog,
@@ -256,6 +262,9 @@ pub struct CycleSummary {
     pub status_sent: bool,
     /// Battery voltage read under load, mV.
     pub battery_mv: u16,
+    /// Full or reduced report frame, when the report was a dsp-core full
+    /// frame the policy could read ([`crate::exception`]).
+    pub report_frame: Option<Choice>,
     /// The fault that aborted the cycle, if any.
     pub fault: Option<CycleError>,
     /// Whether the watchdog was fed.
@@ -274,6 +283,7 @@ impl CycleSummary {
             frame_len: 0,
             status_sent: false,
             battery_mv: 0,
+            report_frame: None,
             fault: None,
             fed_watchdog: false,
         }
@@ -339,6 +349,10 @@ pub struct Node<S, P, R, A, St, B, W, Pw, D, C> {
     downlink: DownlinkOutcome,
     link: LinkState,
     frame: [u8; FRAME_CAPACITY],
+    policy: ReportPolicy,
+    exception: ExceptionState,
+    /// The report of this cycle's frame, for the exception state once sent.
+    pending: Option<(Choice, dsp_core::frame::FrameReport)>,
 }
 
 /// Firmware flags as the frame's flag field.
@@ -451,7 +465,27 @@ where
                 status_seq: 0,
             },
             frame: [0; FRAME_CAPACITY],
+            policy: ReportPolicy::default(),
+            exception: ExceptionState::new(),
+            pending: None,
         }
+    }
+
+    /// Sets when full report frames are sent (default
+    /// [`ReportPolicy::default`]; [`ReportPolicy::EVERY_CYCLE`] sends no
+    /// reduced frames). An invalid policy is refused and the present kept.
+    pub fn set_report_policy(
+        &mut self,
+        policy: ReportPolicy,
+    ) -> Result<(), crate::exception::PolicyError> {
+        policy.validate()?;
+        self.policy = policy;
+        Ok(())
+    }
+
+    /// The policy in use.
+    pub fn report_policy(&self) -> ReportPolicy {
+        self.policy
     }
 
     /// Present state.
@@ -707,9 +741,11 @@ where
                 State::Encode
             }
             State::Encode => {
+                self.pending = None;
                 let n = match self.kind {
                     CycleKind::Measure => {
-                        self.core.encode(&mut self.frame).map_err(|_| Fault::Core)?
+                        let n = self.core.encode(&mut self.frame).map_err(|_| Fault::Core)?;
+                        self.by_exception(n)
                     }
                     CycleKind::Survey => {
                         let mut buf = [0u8; FRAME_CAPACITY];
@@ -726,6 +762,9 @@ where
                 let frame = self.frame.get(..self.summary.frame_len).unwrap_or(&[]);
                 self.dev.radio.send(frame).map_err(|_| Fault::Radio)?;
                 log_info!("sent {} bytes, flags {}", frame.len(), self.summary.flags);
+                if let Some((choice, report)) = self.pending.take() {
+                    self.exception.sent(choice, &report);
+                }
                 if self.link.status_pending {
                     let mut buf = [0u8; FRAME_CAPACITY];
                     let n = self.encode_status_frame(&mut buf)?;
@@ -755,6 +794,37 @@ where
                 State::Sleep
             }
         })
+    }
+
+    /// Replaces the full frame of `n` bytes in `self.frame` by the reduced
+    /// frame when the policy says so; returns the length to send. A frame
+    /// that does not decode as a dsp-core full frame is sent as it is.
+    #[inline(never)] // keeps the decoded report out of the frame of every step
+    fn by_exception(&mut self, n: usize) -> usize {
+        let Some(report) = self
+            .frame
+            .get(..n)
+            .and_then(|b| dsp_core::frame::decode(b).ok())
+        else {
+            return n;
+        };
+        let mut choice = self.exception.choose(&self.policy, &report);
+        let mut len = n;
+        if choice == Choice::Reduced {
+            let mut buf = [0u8; FRAME_CAPACITY];
+            match dsp_core::frame::encode_reduced(&report, &mut buf) {
+                Ok(m) => {
+                    self.frame = buf;
+                    len = m;
+                }
+                // cannot happen for a decoded report; the full frame goes out
+                Err(_) => choice = Choice::Full(crate::exception::FullReason::Periodic),
+            }
+        }
+        log_info!("report frame {}", choice);
+        self.summary.report_frame = Some(choice);
+        self.pending = Some((choice, report));
+        len
     }
 
     /// The survey's choice, unless the capture was unhealthy.

@@ -14,6 +14,8 @@
 //! * [`quality`]: quality flags and streamed signal-health checks.
 //! * [`ring`]: the queue of ADC blocks between the sampling interrupt and the
 //!   cycle, deep enough for the block that completes a spectrum segment.
+//! * [`exception`]: reports by exception (a full frame when a finding
+//!   changed, a flag is raised or every N cycles; else the reduced frame).
 //! * [`crc`]: CRC-32 for stored records.
 //! * [`pipeline_core`]: the adapter to the `dsp-core` pipeline and frame codec.
 //! * [`point`]: the record as `dsp-core`'s measuring point, for the pipeline adapter.
@@ -40,6 +42,7 @@ pub mod crc;
 pub mod cycle;
 pub mod downlink;
 pub mod downlink_auth;
+pub mod exception;
 pub mod hal;
 pub mod identity;
 mod log;

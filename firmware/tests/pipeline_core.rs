@@ -39,38 +39,71 @@ fn outer_race_defect_recording_gives_a_bpfo_detection_in_the_frame() {
         std::fs::write(out, &bytes).unwrap();
     }
     // full frame for one bearing: 30 bytes (dsp_core::frame::layout::full_frame_len(1));
-    // the first report is followed by the boot status frame (27 bytes)
+    // the first report is followed by the boot status frame (27 bytes); the
+    // second report changed by less than the default margin (3 dB): it goes
+    // out as the 11-byte reduced frame, "as before" with its worst defect
+    // (firmware::exception)
     let frames = replay_common::split_frames(&bytes);
+    assert_eq!(
+        frames.iter().map(Vec::len).collect::<Vec<_>>(),
+        [30, 27, 11]
+    );
+    let full = dsp_core::frame::decode(&frames[0]).unwrap();
+    check_report(&full, 0);
+    let reduced = dsp_core::frame::decode_reduced(&frames[2]).unwrap();
+    assert_eq!((reduced.node_id, reduced.seq), (1, 1));
+    assert_eq!(reduced.flags, dsp_core::frame::QualityFlags::default());
+    let w = reduced.worst.unwrap();
+    assert_eq!(
+        (w.bearing, w.kind, w.detected),
+        (0, dsp_core::frame::DefectKind::Bpfo, true)
+    );
+    assert!(
+        (w.score_db - full.bearings[0].defects[0].score_db).abs() < 3.0,
+        "{w:?}"
+    );
+}
+
+/// With full frames every cycle both reports are full frames of the same findings.
+#[test]
+fn every_cycle_policy_sends_two_full_frames() {
+    let node = replay_common::replay_with(NodeCore::new(1), |n| {
+        n.set_report_policy(firmware::exception::ReportPolicy::EVERY_CYCLE)
+            .unwrap()
+    });
+    let frames = replay_common::split_frames(&node.devices().radio.0);
     assert_eq!(
         frames.iter().map(Vec::len).collect::<Vec<_>>(),
         [30, 27, 30]
     );
-    let reports: Vec<&Vec<u8>> = frames.iter().filter(|f| f.len() == 30).collect();
-    for (seq, f) in reports.into_iter().enumerate() {
-        let r = dsp_core::frame::decode(f).unwrap();
-        assert_eq!(r.node_id, 1);
-        assert_eq!(usize::from(r.seq), seq);
-        assert_eq!(
-            r.flags,
-            dsp_core::frame::QualityFlags::default(),
-            "{:?}",
-            r.flags
-        );
-        // the fictional stand runs at 1480 rpm (make_input.py); frame step 0.25 rpm
-        assert!((r.speed_rpm - 1480.0).abs() < 1.0, "speed {}", r.speed_rpm);
-        // overall RMS: numpy std of the same samples is 225.7 counts (expected_frames.txt),
-        // times 0.008789 g/count = 1.984 g
-        assert!(
-            (r.overall.accel_rms_g - 1.984).abs() < 0.02,
-            "rms {}",
-            r.overall.accel_rms_g
-        );
-        // impacts at BPFO = z/2 (1 - d/D cos a) = 3.585 orders (bearing kinematics,
-        // common practice) exciting a 4 kHz resonance: only BPFO may be detected
-        let d = &r.bearings[0].defects;
-        assert!(d[0].detected, "BPFO not detected: {:?}", d[0]);
-        assert!(!d[1].detected && !d[2].detected && !d[3].detected, "{d:?}");
+    for (seq, f) in [&frames[0], &frames[2]].into_iter().enumerate() {
+        check_report(&dsp_core::frame::decode(f).unwrap(), seq);
     }
+}
+
+fn check_report(r: &dsp_core::frame::FrameReport, seq: usize) {
+    assert_eq!(r.node_id, 1);
+    assert_eq!(usize::from(r.seq), seq);
+    assert_eq!(
+        r.flags,
+        dsp_core::frame::QualityFlags::default(),
+        "{:?}",
+        r.flags
+    );
+    // the fictional stand runs at 1480 rpm (make_input.py); frame step 0.25 rpm
+    assert!((r.speed_rpm - 1480.0).abs() < 1.0, "speed {}", r.speed_rpm);
+    // overall RMS: numpy std of the same samples is 225.7 counts (expected_frames.txt),
+    // times 0.008789 g/count = 1.984 g
+    assert!(
+        (r.overall.accel_rms_g - 1.984).abs() < 0.02,
+        "rms {}",
+        r.overall.accel_rms_g
+    );
+    // impacts at BPFO = z/2 (1 - d/D cos a) = 3.585 orders (bearing kinematics,
+    // common practice) exciting a 4 kHz resonance: only BPFO may be detected
+    let d = &r.bearings[0].defects;
+    assert!(d[0].detected, "BPFO not detected: {:?}", d[0]);
+    assert!(!d[1].detected && !d[2].detected && !d[3].detected, "{d:?}");
 }
 
 #[test]

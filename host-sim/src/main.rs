@@ -35,6 +35,8 @@ enum Command {
     Gateway(host_sim::gateway::GatewayArgs),
     /// Check the diagnosis on a labelled data folder (manifest.toml + WAVs).
     Validate(host_sim::cmd_validate::ValidateArgs),
+    /// Energy budget of one measurement and battery life at given intervals.
+    Energy(host_sim::energy::EnergyArgs),
 }
 
 fn main() -> ExitCode {
@@ -70,5 +72,6 @@ fn dispatch(command: Command) -> Result<(), host_sim::error::CliError> {
         Command::Batch(a) => host_sim::cmd_batch::run(&a),
         Command::Gateway(a) => host_sim::gateway::run(a),
         Command::Validate(a) => host_sim::cmd_validate::run_cmd(&a),
+        Command::Energy(a) => host_sim::energy::run(&a),
     }
 }

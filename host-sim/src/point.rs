@@ -40,6 +40,9 @@ struct PointFile {
     bearing: Vec<BearingEntry>,
     #[serde(default, alias = "gears")]
     mesh: Vec<MeshEntry>,
+    /// Reports by exception (crate::report_policy); checked here, read there.
+    #[serde(default)]
+    report: crate::report_policy::ReportSection,
 }
 
 #[derive(Debug, Deserialize)]
@@ -141,6 +144,7 @@ pub fn load(path: &Path) -> Result<PointConfig, CliError> {
 /// Parses and validates point-file text; the error names the key or line.
 pub fn parse(text: &str) -> Result<PointConfig, String> {
     let file: PointFile = toml::from_str(text).map_err(|e| e.to_string())?;
+    crate::report_policy::from_section(&file.report)?;
     let mut p = PointConfig::default();
 
     if let Some(v) = file.sensor.sample_rate_hz {

@@ -170,6 +170,17 @@ pub fn replay<C: MeasurementCore>(core: C) -> ReplayNode<C>
 where
     C::Error: core::fmt::Debug,
 {
+    replay_with(core, |_| {})
+}
+
+/// [`replay`] with `setup` applied to the node after boot (e.g. its report policy).
+pub fn replay_with<C: MeasurementCore>(
+    core: C,
+    setup: impl FnOnce(&mut ReplayNode<C>),
+) -> ReplayNode<C>
+where
+    C::Error: core::fmt::Debug,
+{
     let raw = std::fs::read(input("recording.i16")).unwrap();
     let samples: Vec<i16> = raw
         .chunks_exact(2)
@@ -202,6 +213,7 @@ where
     };
     let mut node = Node::new(dev, core);
     assert_eq!(node.config_source(), firmware::cycle::ConfigSource::Stored);
+    setup(&mut node);
     let per = node.blocks_wanted() as usize * BLOCK;
     while node.devices().source.samples.len() - node.devices().source.pos >= per {
         node.run_cycle().unwrap();

@@ -10,10 +10,12 @@
 //!   table and an SVG plot (trend_cmd.rs).
 //! * `limits`: alarm limits per measuring point in the store (limits_cmd.rs);
 //!   `baseline`: set or clear a hand-set amplitude baseline.
+//!   Reduced frames count as "as before" ([`as_before`]) in both.
 //! * `downlink`: build a signed downlink (configuration, measure now, band
 //!   survey) for a node from its key file; `provision`: make a node's key and
 //!   identity record.
 
+pub mod as_before;
 pub mod downlink;
 pub mod input;
 pub mod limits;

@@ -39,6 +39,9 @@ pub fn grade_store(
     // one report keep their bearing and kind order.
     let (_, order) = super::decided_order(conn)?;
     points.sort_by_key(|p| (order.get(&p.report_id).copied(), p.report_id));
+    // reduced frames read "as before" (reports by exception)
+    let reduced = super::as_before::reduced_reports(conn).map_err(sql)?;
+    let points = super::as_before::expand(points, &reduced);
     let rows = limits::rows(conn).map_err(sql)?;
     let bad: std::cell::RefCell<Option<String>> = std::cell::RefCell::new(None);
     let lines = trend::evaluate(
