@@ -206,10 +206,15 @@ fn changed(last: &FrameReport, now: &FrameReport, margin: f32) -> bool {
         return true;
     }
     last.bearings.iter().zip(now.bearings.iter()).any(|(a, b)| {
-        a.defects
-            .iter()
-            .zip(b.defects.iter())
-            .any(|(x, y)| x.detected != y.detected || moved_db(x.score_db, y.score_db, margin))
+        a.defects.iter().zip(b.defects.iter()).any(|(x, y)| {
+            // the gateway grades a finding's severity on its amplitude:
+            // a detected finding whose size moved by the margin is a
+            // change as a score is (a line with nothing in it carries
+            // noise, which the gateway does not grade)
+            x.detected != y.detected
+                || moved_db(x.score_db, y.score_db, margin)
+                || (y.detected && moved_level(x.amplitude_1x_g, y.amplitude_1x_g, margin))
+        })
     })
 }
 

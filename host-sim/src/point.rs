@@ -540,6 +540,9 @@ mod tests {
                 let Some((kv, comment)) = t.split_once('#') else {
                     continue;
                 };
+                if kv.trim().is_empty() {
+                    continue; // a comment line, not a key
+                }
                 let Some(d) = comment.split("(default: ").nth(1) else {
                     continue;
                 };

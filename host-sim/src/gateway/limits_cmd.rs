@@ -138,7 +138,8 @@ fn scope_text(r: &LimitRow) -> String {
 /// Stores `row` after checking that every line it touches still resolves to
 /// usable limits; prints what was stored.
 pub fn store_row(db: &str, row: &LimitRow) -> Result<LimitRow, CliError> {
-    let conn = store::open_existing(db)?;
+    // limits may be set before the first frame arrives: creates the store
+    let conn = store::open(db)?;
     let tx = conn.unchecked_transaction().map_err(sql(db))?;
     let merged = limits::upsert(&tx, row).map_err(sql(db))?;
     let rows = limits::rows(&tx).map_err(sql(db))?;

@@ -565,15 +565,6 @@ pub(crate) fn decided_order(
     Ok((tracker, order))
 }
 
-/// Observations in each node's decided order (late frames in their place,
-/// never last), arrival order among equals.
-fn sort_decided(
-    obs: &mut [store::Observation],
-    order: &std::collections::HashMap<i64, seq::Order>,
-) {
-    obs.sort_by_key(|o| (order.get(&o.report_id).copied(), o.report_id));
-}
-
 fn fmt_db(x: Option<f64>) -> String {
     x.map_or("-".into(), |v| format!("{v:.1}"))
 }

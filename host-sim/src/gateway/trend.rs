@@ -13,7 +13,9 @@
 //!   was ALERT or DANGER). So a first detection over a quiet baseline is
 //!   ALERT unless it crosses the absolute danger level.
 //! * ALERT: the node detects the defect, or amplitude >= the absolute alert
-//!   level, or (baseline known) severity >= `alert_db`.
+//!   level. A rise over the baseline without a detection is not graded: at a
+//!   line with nothing in it the amplitude is noise. `alert_db` marks the
+//!   level on the trend plot.
 //! * LEARNING until the baseline is known; NORMAL otherwise.
 //! * NOT COVERED when the node's setting cannot search the line (never
 //!   NORMAL); STALE when the node has been silent longer than
@@ -134,7 +136,10 @@ pub fn grade(
     let persists = matches!(previous, Some(State::Alert | State::Danger));
     if lv.danger_abs_g.is_some_and(|d| a >= d) || (persists && a >= lv.danger_g) {
         State::Danger
-    } else if detected || lv.alert_abs_g.is_some_and(|x| a >= x) || (known && a >= lv.alert_g) {
+    } else if detected || lv.alert_abs_g.is_some_and(|x| a >= x) {
+        // An amplitude risen over the baseline without the node's detection
+        // is not a finding: at a line with nothing in it the amplitude is the
+        // spectrum's noise, which wanders by more than the alert level.
         State::Alert
     } else if known {
         State::Normal
