@@ -532,6 +532,9 @@ mod tests {
             let mut checked = 0;
             for line in text.lines() {
                 let t = line.trim();
+                if t.starts_with('#') {
+                    continue;
+                }
                 if t.starts_with("[[") {
                     section.clear(); // list entries have no defaults to show
                 } else if t.starts_with('[') {

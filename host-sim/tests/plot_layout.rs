@@ -4,6 +4,7 @@
 //! speed has a sensible span with whole-rpm ticks, and the score plot's file
 //! labels sit under their bars.
 #![allow(
+    clippy::panic,
     clippy::unwrap_used,
     clippy::expect_used,
     clippy::indexing_slicing,

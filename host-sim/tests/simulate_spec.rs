@@ -103,25 +103,25 @@ fn bad_values_name_their_field() {
         ("fs_hz", Box::new(|s| s.fs_hz = 12_345.5)),
         ("fs_hz", Box::new(|s| s.fs_hz = 0.0)),
         ("seconds", Box::new(|s| s.seconds = 0.0)),
-        ("bearings[0].slip", Box::new(|s| s.bearings[0].slip = 0.5)),
+        ("bearing[0].slip", Box::new(|s| s.bearings[0].slip = 0.5)),
         (
-            "bearings[0].damping_ratio",
+            "bearing[0].damping_ratio",
             Box::new(|s| s.bearings[0].damping_ratio = 0.0),
         ),
         (
-            "bearings[0].shaft",
+            "bearing[0].shaft",
             Box::new(|s| s.bearings[0].shaft = "camshaft".into()),
         ),
         (
-            "bearings[0].resonance_hz",
+            "bearing[0].resonance_hz",
             Box::new(|s| s.bearings[0].resonance_hz = 13_000.0),
         ),
         (
-            "gears[1].shaft",
+            "mesh[1].shaft",
             Box::new(|s| s.gears[1].shaft = "nowhere".into()),
         ),
-        ("gears[0]", Box::new(|s| s.gears[0].teeth = 600)), // 601 x 24.7 Hz > 12.8 kHz
-        ("shafts[1].ratio", Box::new(|s| s.shafts[1].ratio = 0.0)),
+        ("mesh[0]", Box::new(|s| s.gears[0].teeth = 600)), // 601 x 24.7 Hz > 12.8 kHz
+        ("shaft[1].ratio", Box::new(|s| s.shafts[1].ratio = 0.0)),
         ("noise.rms_g", Box::new(|s| s.noise.rms_g = f64::NAN)),
         (
             "noise.snr_db",
