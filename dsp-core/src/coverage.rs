@@ -17,8 +17,8 @@
 //! and to the output bearings within a 4096-point spectrum. The point's own
 //! `samples_per_rev` makes the first **pass**; each bearing it cannot serve
 //! gets a later pass at the largest power of two `S` that resolves its shaft
-//! (the same number of averaged segments, so each pass is as well averaged as
-//! the first; its record is longer in revolutions). The passes run one after
+//! (as many segments as fit in the first pass's revolutions, at least two,
+//! at most as many as the first pass; its record is longer in revolutions). The passes run one after
 //! the other on the node, in the same buffers (time-multiplexed: the RAM of
 //! one pipeline), each a fresh record: see [`crate::pipeline::Pipeline::next_pass`].
 //! Every bearing is searched in every pass (cross-bearing attribution then
@@ -178,12 +178,15 @@ fn best_samples_per_rev(
     None
 }
 
-/// Revolutions for `segments` segments of `n` points at `s` (at least one
-/// segment); `None` when even one segment exceeds 65,535 revolutions.
-fn pass_revolutions(segments: u32, s: u16, n: usize) -> Option<u16> {
+/// Revolutions of a later pass at `s` for a first pass of `segments`
+/// segments over `revs0` revolutions: as many segments as fit in `revs0`,
+/// at least two (one segment's floor is too noisy) and at most `segments`;
+/// `None` when even one segment exceeds 65,535 revolutions.
+fn pass_revolutions(segments: u32, revs0: u16, s: u16, n: usize) -> Option<u16> {
     let per_seg = u32::try_from(n / usize::from(s.max(1))).ok()?.max(1);
     let max_segs = u32::from(u16::MAX) / per_seg;
-    let segs = segments.min(max_segs);
+    let fit = u32::from(revs0) / per_seg;
+    let segs = segments.min(fit.max(2)).min(max_segs);
     if segs == 0 {
         return None;
     }
@@ -235,7 +238,7 @@ pub fn plan(point: &PointConfig, n: usize) -> Coverage {
                         } else {
                             NotSearched::TooSlow
                         }),
-                        Some(s) => match pass_revolutions(segments, s, n) {
+                        Some(s) => match pass_revolutions(segments, point.revolutions, s, n) {
                             None => Err(NotSearched::TooSlow),
                             Some(revolutions) => {
                                 let pass = Pass {
@@ -343,8 +346,8 @@ mod tests {
         }
         assert_eq!(c.passes[1].samples_per_rev, 16);
         assert_eq!(c.passes[2].samples_per_rev, 8);
-        // Same averaging in every pass: 4 segments.
-        assert_eq!(c.passes[2].revolutions, 4 * 512);
+        // Two segments (the first pass's 256 revolutions hold none of 512).
+        assert_eq!(c.passes[2].revolutions, 2 * 512);
         // Too slow for S = 8 (1.3 bins per shaft order would need S = 1).
         let p = point(&[1.0, 1.0 / 12.0, 1.0 / 24.0, 1.0 / 200.0]);
         let g = gaps(&p, 4096);

@@ -231,12 +231,18 @@ impl Report {
     /// pipeline's [`next_pass`](crate::pipeline::Pipeline::next_pass)): its
     /// bearings' results where that pass reports them, its mesh lines where
     /// they were not searched before, its pass summary, and its quality
-    /// flags (a doubtful later pass makes the measurement doubtful).
+    /// flags (a doubtful later pass makes the measurement doubtful), except
+    /// too few revolutions and an incomplete record, which only mark its
+    /// own bearings not searched.
     pub fn merge_pass(&mut self, later: Report) {
         let Some(pass) = later.passes.first().map(|p| p.pass) else {
             return;
         };
-        self.flags.insert(later.flags);
+        // A later pass too short for a spectrum does not make the first
+        // one unanalysable: its bearings are then reported not searched
+        // (`PassMissing`), and its flags stay in its pass summary.
+        let own = QualityFlags(QualityFlags::TOO_FEW_REVS.0 | QualityFlags::INCOMPLETE.0);
+        self.flags.insert(QualityFlags(later.flags.0 & !own.0));
         for (b, l) in self.bearings.iter_mut().zip(later.bearings) {
             if l.coverage == Ok(pass) {
                 b.diagnosis = l.diagnosis;
