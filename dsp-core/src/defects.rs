@@ -264,10 +264,41 @@ pub struct DefectResult {
     pub fundamental_amplitude: f32,
     /// Best sideband pair (weaker side) in dB over the floor; BPFI and BSF only.
     pub sideband_db: Option<f32>,
+    /// Counted harmonics (of the first three) with a sideband pair reaching
+    /// the sideband threshold; BPFI and BSF only (0 otherwise).
+    pub sidebands: u8,
     /// Harmonic-family power over floor, dB (see module doc).
     pub score_db: f32,
     /// Decision by the documented rule.
     pub detected: bool,
+}
+
+impl DefectResult {
+    /// The physical size of the finding: envelope amplitude summed over the
+    /// counted harmonics (g for `abs` rectification, g² for `square`); 0
+    /// when nothing is counted.
+    pub fn amplitude_sum(&self) -> f32 {
+        self.harmonics
+            .iter()
+            .filter(|h| h.counted)
+            .map(|h| h.amplitude)
+            .sum()
+    }
+
+    /// Margin over the floor: the prominence of the strongest counted
+    /// harmonic over its local floor, dB; `None` when nothing is counted.
+    pub fn margin_db(&self) -> Option<f32> {
+        self.harmonics
+            .iter()
+            .filter(|h| h.counted)
+            .map(|h| h.prominence_db)
+            .max_by(f32::total_cmp)
+    }
+
+    /// Whether any harmonic of the line could be searched.
+    pub fn searched(&self) -> bool {
+        self.harmonics_searched > 0
+    }
 }
 
 /// Results for all four kinds, in [`DefectKind::index`] order.
@@ -957,6 +988,7 @@ impl DefectSearch {
             anchor: anchor.map(|(h, _)| h),
             line_actual: anchor.map_or(0.0, |(h, f)| f / f32::from(h)),
             sideband_db: None,
+            sidebands: 0,
             score_db: 0.0,
             detected: false,
         }
@@ -1076,9 +1108,10 @@ impl DefectSearch {
             DefectKind::Bsf => Some((orders.ftf_order(), cfg.slip_tolerance * orders.ftf_order())),
             DefectKind::Bpfo | DefectKind::Ftf => None,
         };
+        r.sidebands = 0;
         if let Some((sp, slip)) = spacing {
             let half = (cfg.refine_bins * ctx.opb).max(slip);
-            r.sideband_db = r
+            let pairs = r
                 .harmonics
                 .iter()
                 .take(3)
@@ -1091,8 +1124,10 @@ impl DefectSearch {
                     let lower = side(h.found_order - sp);
                     let upper = side(h.found_order + sp);
                     (h.found_order - sp - half > 0.0).then_some(lower.min(upper))
-                })
-                .max_by(f32::total_cmp);
+                });
+            r.sideband_db = pairs.clone().max_by(f32::total_cmp);
+            r.sidebands = u8::try_from(pairs.filter(|&p| p >= cfg.sideband_threshold_db).count())
+                .unwrap_or(u8::MAX);
         }
         let fundamental_counted = r.harmonics.first().is_some_and(|h| h.counted);
         let sideband_pair = r

@@ -35,6 +35,7 @@
 pub mod band_choice;
 pub mod biquad;
 pub mod config;
+pub mod coverage;
 pub mod decimate;
 pub mod defects;
 pub mod design;

@@ -31,6 +31,7 @@ use core::fmt;
 use heapless::Vec;
 
 use crate::config::{ConfigError, PointConfig, SpeedInput, MAX_BEARINGS, MAX_MESHES};
+use crate::coverage::{Coverage, NotSearched};
 use crate::defects::DefectSearch;
 use crate::frontend::{FrontEnd, FrontEndConfig, FrontEndPlan};
 use crate::kinematics::{BearingOrders, ShaftRatio};
@@ -38,7 +39,7 @@ use crate::num::usize_to_f32;
 use crate::order_track::{
     decimation_for, OrderFlags, OrderTrackConfig, OrderTrackPlan, OrderTracker,
 };
-use crate::report::{BearingReport, LineReport, QualityFlags, Report};
+use crate::report::{BearingReport, LineReport, PassReport, QualityFlags, Report};
 use crate::spectrum::{OrderSpectrum, SpectrumConfig, SpectrumView};
 use crate::tach::{SpeedSource, TachConfig, TachFlags, TachPlan, TachTracker};
 use crate::velocity::VelocityConfig;
@@ -140,6 +141,14 @@ pub struct Pipeline<const N: usize, const H: usize, const RING: usize> {
 /// The small, per-point part of a configured pipeline.
 struct Setup {
     point: PointConfig,
+    /// The passes and which one reports each bearing ([`crate::coverage`]).
+    coverage: Coverage,
+    /// The pass being recorded (index into `coverage.passes`).
+    pass: u8,
+    /// Input samples of the passes before this one (shifts the tach origin).
+    samples_before: u64,
+    /// This pass's samples per revolution.
+    samples_per_rev: u16,
     search: DefectSearch,
     orders: Vec<BearingOrders, MAX_BEARINGS>,
     /// Gear-mesh orders of the tach shaft, in point order.
@@ -237,9 +246,48 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
         self.raised = QualityFlags::empty();
     }
 
-    /// Validates the point and plans every stage (small values only).
+    /// Validates the point, plans its passes ([`crate::coverage`]), checks
+    /// that every stage accepts every pass, and plans the first.
     fn plan(point: &PointConfig) -> Result<Plan, PipelineError> {
         point.validate()?;
+        let coverage = crate::coverage::plan(point, N);
+        for i in 1..coverage.passes.len() {
+            // Checked up front: a later pass never fails mid-measurement.
+            let _ = Self::plan_pass(point, &coverage, i, 0)?;
+        }
+        Self::plan_pass(point, &coverage, 0, 0)
+    }
+
+    /// Plans pass `pass` of `point`, starting `samples_before` input samples
+    /// after the first pass began.
+    fn plan_pass(
+        point_in: &PointConfig,
+        coverage: &Coverage,
+        pass: usize,
+        samples_before: u64,
+    ) -> Result<Plan, PipelineError> {
+        let this = coverage
+            .passes
+            .get(pass)
+            .copied()
+            .ok_or(ConfigError::SamplesPerRev)?;
+        let mut point = point_in.clone();
+        point.samples_per_rev = this.samples_per_rev;
+        point.revolutions = this.revolutions;
+        if let SpeedInput::Tach {
+            tick_hz,
+            tick_at_sample0,
+            ..
+        } = &mut point.speed
+        {
+            // The capture timer's value at this pass's first sample.
+            #[allow(clippy::cast_precision_loss)]
+            let ticks =
+                samples_before as f64 * f64::from(*tick_hz) / f64::from(point_in.sample_rate_hz);
+            let ticks = crate::num::f64_to_u64_sat(libm::round(ticks));
+            *tick_at_sample0 = tick_at_sample0.wrapping_add(crate::num::u64_low_u32(ticks));
+        }
+        let point = &point;
         let s = point.samples_per_rev;
         let s_f = f32::from(s);
         let (min_rpm, max_rpm) = match point.speed {
@@ -327,10 +375,9 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
                 .map(|sh| sh.ratio)
                 .ok_or(ConfigError::BearingShaft)?;
             let ratio = ShaftRatio::new(ratio).map_err(|_| ConfigError::ShaftRatio)?;
+            // Lines above this pass's range are simply not searched in it;
+            // the coverage plan gives each bearing a pass that reaches them.
             let o = multiples.orders(ratio);
-            if o.lines().iter().any(|&l| l > max_search_order) {
-                return Err(ConfigError::OrderRange.into());
-            }
             // Capacity equals the config's bearing capacity.
             orders
                 .push(o)
@@ -349,7 +396,11 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
 
         Ok(Plan {
             setup: Setup {
-                point: point.clone(),
+                point: point_in.clone(),
+                coverage: coverage.clone(),
+                pass: u8::try_from(pass).unwrap_or(0),
+                samples_before,
+                samples_per_rev: s,
                 search,
                 orders,
                 mesh_orders,
@@ -559,6 +610,12 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
                     name: b.name.clone(),
                     orders: *orders,
                     diagnosis,
+                    coverage: setup
+                        .coverage
+                        .bearings
+                        .get(bearings.len())
+                        .copied()
+                        .unwrap_or(Err(NotSearched::TooSlow)),
                 });
             }
             if let (Some(v), true) = (&view, analysable) {
@@ -577,6 +634,13 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
                     .search
                     .attribute_bearings(v, &setup.orders, &mut diagnoses);
             }
+            // Every bearing took part in attribution; each is reported only
+            // by its own pass.
+            for b in bearings.iter_mut() {
+                if b.coverage != Ok(setup.pass) {
+                    b.diagnosis = None;
+                }
+            }
             for (m, &order) in point.meshes.iter().zip(setup.mesh_orders.iter()) {
                 let measurement = match (&view, analysable) {
                     (Some(v), true) => setup.search.measure_line(v, order),
@@ -590,8 +654,22 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
             }
         }
 
-        let samples_per_rev = self.setup.as_ref().map_or(0, |s| s.point.samples_per_rev);
+        let samples_per_rev = self.setup.as_ref().map_or(0, |s| s.samples_per_rev);
         let revs_per_segment = N / usize::from(samples_per_rev).max(1);
+        let revolutions =
+            segments.saturating_mul(u32::try_from(revs_per_segment).unwrap_or(u32::MAX));
+        let mut passes = Vec::new();
+        let _ = passes.push(PassReport {
+            pass: self.setup.as_ref().map_or(0, |s| s.pass),
+            flags,
+            samples_per_rev,
+            segments,
+            revolutions,
+            orders_per_bin: opb,
+            max_search_order,
+            decimation: self.decimation(),
+            mean_rpm: speed.mean_rpm,
+        });
         Report {
             flags,
             speed,
@@ -601,12 +679,81 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
             decimation: self.decimation(),
             samples_per_rev,
             segments,
-            revolutions: segments
-                .saturating_mul(u32::try_from(revs_per_segment).unwrap_or(u32::MAX)),
+            revolutions,
             orders_per_bin: opb,
             max_search_order,
             bearings,
             lines,
+            passes,
+        }
+    }
+
+    /// Passes of the configured point ([`crate::coverage`]); 0 unconfigured.
+    pub fn pass_count(&self) -> usize {
+        self.setup.as_ref().map_or(0, |s| s.coverage.passes.len())
+    }
+
+    /// The pass being recorded (0 for the first).
+    pub fn pass(&self) -> usize {
+        self.setup.as_ref().map_or(0, |s| usize::from(s.pass))
+    }
+
+    /// After [`finish`](Self::finish): sets the pipeline up in place for
+    /// the next pass of the point, whose record starts with the next input
+    /// sample (tach edges keep their capture-timer ticks: the pass's timer
+    /// origin is moved by the samples pushed so far). Returns false, and
+    /// changes nothing, when the point has no further pass. The caller
+    /// merges each pass's report into the first
+    /// ([`Report::merge_pass`]).
+    ///
+    /// ```
+    /// use dsp_core::config::{name_from, Bearing, BearingKinematics, PointConfig, Shaft, SpeedInput};
+    /// use dsp_core::pipeline::Pipeline;
+    /// let mut point = PointConfig::default();
+    /// point.speed = SpeedInput::Constant { rpm: 1500.0 };
+    /// point.revolutions = 64;
+    /// point.shafts.push(Shaft { name: name_from("out"), ratio: 0.1 }).unwrap();
+    /// let k = BearingKinematics::Multiples { bpfo_x: 3.58, bpfi_x: 5.42, ftf_x: 0.40, bsf_x: 2.36 };
+    /// point.bearings.push(Bearing { name: name_from("out-de"), shaft: 1, kinematics: k }).unwrap();
+    /// // 64 samples/rev give 6.4 bins per output-shaft order: a second pass at 16.
+    /// let mut p = Box::new(Pipeline::<4096, 1025, 2048>::new(&point).unwrap());
+    /// assert_eq!(p.pass_count(), 2);
+    /// let mut report = None;
+    /// loop {
+    ///     while !p.complete() {
+    ///         p.push_f32(&[0.0f32; 256]);
+    ///     }
+    ///     let r = p.finish();
+    ///     match &mut report {
+    ///         None => report = Some(r),
+    ///         Some(first) => first.merge_pass(r),
+    ///     }
+    ///     if !p.next_pass() {
+    ///         break;
+    ///     }
+    /// }
+    /// let report = report.unwrap();
+    /// assert_eq!(report.passes.len(), 2);
+    /// assert_eq!(report.passes[1].samples_per_rev, 16);
+    /// assert_eq!(report.bearings[0].coverage, Ok(1));
+    /// ```
+    pub fn next_pass(&mut self) -> bool {
+        let Some(setup) = &self.setup else {
+            return false;
+        };
+        let next = usize::from(setup.pass) + 1;
+        if next >= setup.coverage.passes.len() {
+            return false;
+        }
+        let before = setup.samples_before.saturating_add(self.samples);
+        let point = setup.point.clone();
+        let coverage = setup.coverage.clone();
+        match Self::plan_pass(&point, &coverage, next, before) {
+            Ok(plan) => {
+                self.apply(plan);
+                true
+            }
+            Err(_) => false,
         }
     }
 }

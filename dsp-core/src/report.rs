@@ -6,6 +6,7 @@ use core::fmt;
 use heapless::Vec;
 
 use crate::config::{Name, MAX_BEARINGS, MAX_MESHES};
+use crate::coverage::{NotSearched, MAX_PASSES};
 use crate::defects::{BearingDiagnosis, LineMeasurement};
 use crate::kinematics::{BearingOrders, DefectKind};
 use crate::overall::Overall;
@@ -122,11 +123,28 @@ pub struct BearingReport {
     pub name: Name,
     /// Its watched lines as orders of the tach shaft.
     pub orders: BearingOrders,
-    /// Defect results; `None` when the record was not analysable.
+    /// Defect results; `None` when not searched (see [`Self::not_searched`]).
     pub diagnosis: Option<BearingDiagnosis>,
+    /// The pass that reports this bearing, or why no pass can search it
+    /// ([`crate::coverage`]).
+    pub coverage: Result<u8, NotSearched>,
 }
 
 impl BearingReport {
+    /// Why this bearing's lines were not searched; `None` when they were
+    /// (then [`Self::diagnosis`] holds the results). `analysed` is the
+    /// report's [`Report::analysed`].
+    pub fn not_searched(&self, analysed: bool) -> Option<NotSearched> {
+        if self.diagnosis.is_some() {
+            return None;
+        }
+        Some(match self.coverage {
+            Err(r) => r,
+            Ok(_) if !analysed => NotSearched::NotAnalysed,
+            Ok(_) => NotSearched::PassMissing,
+        })
+    }
+
     /// Kinds detected on this bearing (none when not analysed).
     pub fn detected(&self) -> impl Iterator<Item = DefectKind> + '_ {
         self.diagnosis.iter().flat_map(|d| d.detected())
@@ -174,11 +192,70 @@ pub struct Report {
     pub bearings: Vec<BearingReport, MAX_BEARINGS>,
     /// Watched gear-mesh lines in point order.
     pub lines: Vec<LineReport, MAX_MESHES>,
+    /// Every pass merged into this report, in the order they ran (the
+    /// fields above `bearings` describe the first).
+    pub passes: Vec<PassReport, MAX_PASSES>,
+}
+
+/// What one pass of a measurement recorded ([`crate::coverage`]).
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct PassReport {
+    /// Index of the pass in the point's plan.
+    pub pass: u8,
+    /// Quality flags of this pass's record.
+    pub flags: QualityFlags,
+    /// Angle-domain samples per tach revolution.
+    pub samples_per_rev: u16,
+    /// Averaged spectrum segments.
+    pub segments: u32,
+    /// Revolutions in the spectrum.
+    pub revolutions: u32,
+    /// Orders per bin.
+    pub orders_per_bin: f32,
+    /// Highest order searched.
+    pub max_search_order: f32,
+    /// Decimation factor of the envelope.
+    pub decimation: u16,
+    /// Mean tach-shaft speed over the pass, rpm.
+    pub mean_rpm: f32,
 }
 
 impl Report {
     /// Whether defects were evaluated.
     pub fn analysed(&self) -> bool {
         !self.flags.intersects(QualityFlags::NOT_ANALYSABLE) && self.segments > 0
+    }
+
+    /// Merges the report of a later pass of the same measurement (the
+    /// pipeline's [`next_pass`](crate::pipeline::Pipeline::next_pass)): its
+    /// bearings' results where that pass reports them, its mesh lines where
+    /// they were not searched before, its pass summary, and its quality
+    /// flags (a doubtful later pass makes the measurement doubtful), except
+    /// too few revolutions and an incomplete record, which only mark its
+    /// own bearings not searched.
+    pub fn merge_pass(&mut self, later: Report) {
+        let Some(pass) = later.passes.first().map(|p| p.pass) else {
+            return;
+        };
+        // A later pass too short for a spectrum does not make the first
+        // one unanalysable: its bearings are then reported not searched
+        // (`PassMissing`), and its flags stay in its pass summary.
+        let own = QualityFlags(QualityFlags::TOO_FEW_REVS.0 | QualityFlags::INCOMPLETE.0);
+        self.flags.insert(QualityFlags(later.flags.0 & !own.0));
+        for (b, l) in self.bearings.iter_mut().zip(later.bearings) {
+            if l.coverage == Ok(pass) {
+                b.diagnosis = l.diagnosis;
+            }
+        }
+        for (m, l) in self.lines.iter_mut().zip(later.lines) {
+            if !m.measurement.searched && l.measurement.searched {
+                *m = l;
+            }
+        }
+        for p in later.passes {
+            // Capacity MAX_PASSES: one entry per pass of the plan.
+            let _ = self.passes.push(p);
+        }
     }
 }

@@ -541,8 +541,18 @@ where
 
     /// Blocks the present configuration records per cycle.
     pub fn blocks_wanted(&self) -> u32 {
-        self.config
-            .record_blocks(self.dev.source.block_len(), MAX_RECORD_BLOCKS)
+        // Every pass of the point (dsp_core::coverage) at the node's
+        // 4096-point spectrum, one after the other.
+        let mut rec = self.config.clone();
+        if let Ok(p) = crate::point::point_config(&self.config) {
+            let total: u32 = dsp_core::coverage::plan(&p, 4096)
+                .passes
+                .iter()
+                .map(|p| u32::from(p.revolutions))
+                .sum();
+            rec.record_revs = u16::try_from(total).unwrap_or(u16::MAX);
+        }
+        rec.record_blocks(self.dev.source.block_len(), MAX_RECORD_BLOCKS)
     }
 
     /// The devices (for tests and board diagnostics).

@@ -94,6 +94,18 @@ impl<const N: usize, const H: usize, const RING: usize> PipelineCore<N, H, RING>
         }
     }
 
+    /// Finishes the pass being recorded and merges its report into the
+    /// measurement's (the first pass's report is the measurement's).
+    // Not inlined: a report is a few kilobytes of stack, once per pass.
+    #[inline(never)]
+    fn end_pass(&mut self) {
+        let r = self.pipeline.finish();
+        match &mut self.report {
+            Some(first) => first.merge_pass(r),
+            None => self.report = Some(r),
+        }
+    }
+
     /// The last finished report.
     pub fn report(&self) -> Option<&Report> {
         self.report.as_ref()
@@ -150,6 +162,12 @@ impl<const N: usize, const H: usize, const RING: usize> MeasurementCore
             s.push_block(samples);
         } else if self.started {
             self.pipeline.push_i16(samples);
+            // A pass done and another to come: keep its report, go on with
+            // the next pass on the next block (dsp_core::coverage).
+            if self.pipeline.complete() && self.pipeline.pass() + 1 < self.pipeline.pass_count() {
+                self.end_pass();
+                let _ = self.pipeline.next_pass();
+            }
         }
     }
 
@@ -168,7 +186,7 @@ impl<const N: usize, const H: usize, const RING: usize> MeasurementCore
             return Err(PipelineCoreError::OutOfOrder);
         }
         self.pipeline.raise(report_flags(flags));
-        self.report = Some(self.pipeline.finish());
+        self.end_pass();
         Ok(())
     }
 

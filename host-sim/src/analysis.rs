@@ -211,34 +211,77 @@ pub fn run(point: &PointConfig, rec: &Record) -> Result<Analysis, CliError> {
     let mut next_edge = 0usize;
     let n = rec.accel.len();
     let mut start = 0usize;
-    while start < n && !p.complete() {
-        let end = (start + ADC_BLOCK).min(n);
-        if let Some((ticks, times)) = &ticks {
+    // The passes of the point run one after the other on consecutive
+    // samples, switching at a block boundary, as on the node.
+    let mut merged: Option<Report> = None;
+    let mut first_pass: Option<(Vec<f32>, f32, Vec<f32>)> = None;
+    loop {
+        push_pass(
+            &mut p,
+            rec,
+            ticks.as_ref(),
+            fs,
+            &mut next_edge,
+            &mut start,
+            n,
+        );
+        let report = p.finish();
+        match &mut merged {
+            None => {
+                first_pass = Some((
+                    p.spectrum().to_vec(),
+                    p.orders_per_bin(),
+                    p.speed_series().to_vec(),
+                ));
+                merged = Some(report);
+            }
+            Some(m) => m.merge_pass(report),
+        }
+        if !p.next_pass() {
+            break;
+        }
+    }
+    let (spectrum, orders_per_bin, speed_series) = first_pass.unwrap_or_default();
+    Ok(Analysis {
+        spectrum,
+        orders_per_bin,
+        speed_series,
+        samples_used: u64::try_from(start).unwrap_or(u64::MAX),
+        report: merged.unwrap_or_else(|| p.finish()),
+    })
+}
+
+/// Pushes blocks (and their tach edges) until the pass is complete or the
+/// record ends.
+fn push_pass(
+    p: &mut NodePipeline,
+    rec: &Record,
+    ticks: Option<&(Vec<u32>, &[f64])>,
+    fs: f64,
+    next_edge: &mut usize,
+    start: &mut usize,
+    n: usize,
+) {
+    while *start < n && !p.complete() {
+        let end = (*start + ADC_BLOCK).min(n);
+        if let Some((ticks, times)) = ticks {
             // Edges that occurred before the end of this block.
             #[allow(clippy::cast_precision_loss)]
             let block_end_s = end as f64 / fs;
-            while let (Some(&t), Some(&tick)) = (times.get(next_edge), ticks.get(next_edge)) {
+            while let (Some(&t), Some(&tick)) = (times.get(*next_edge), ticks.get(*next_edge)) {
                 if t >= block_end_s {
                     break;
                 }
                 p.push_edge(tick);
-                next_edge += 1;
+                *next_edge += 1;
             }
         }
         match &rec.accel {
-            Accel::Counts(v) => p.push_i16(v.get(start..end).unwrap_or(&[])),
-            Accel::G(v) => p.push_f32(v.get(start..end).unwrap_or(&[])),
+            Accel::Counts(v) => p.push_i16(v.get(*start..end).unwrap_or(&[])),
+            Accel::G(v) => p.push_f32(v.get(*start..end).unwrap_or(&[])),
         }
-        start = end;
+        *start = end;
     }
-    let report = p.finish();
-    Ok(Analysis {
-        spectrum: p.spectrum().to_vec(),
-        orders_per_bin: p.orders_per_bin(),
-        speed_series: p.speed_series().to_vec(),
-        samples_used: p.samples(),
-        report,
-    })
 }
 
 #[cfg(test)]

@@ -56,11 +56,34 @@ pub fn frame_hex(
     node_id: u16,
     seq: u16,
 ) -> Result<String, CliError> {
+    let most = dsp_core::frame::layout::MAX_BEARINGS;
+    if report.bearings.len() > most {
+        // The frame would silently carry only the first bearings.
+        return Err(CliError::Other(format!(
+            "frame: the point watches {} bearings; radio frame format {} carries at most {most}: \
+             split the point into points of at most {most} bearings for the node",
+            report.bearings.len(),
+            dsp_core::frame::layout::FORMAT_VERSION
+        )));
+    }
     let fr = dsp_core::frame::FrameReport::from_report(report, node_id, seq);
     let mut buf = [0u8; 64];
     let n = dsp_core::frame::encode(&fr, &mut buf)
         .map_err(|e| CliError::Other(format!("frame: {e}")))?;
     Ok(buf.iter().take(n).map(|b| format!("{b:02x}")).collect())
+}
+
+/// The slowest LoRaWAN EU868 data rate whose maximum application payload
+/// holds `bytes`: DR0-DR2 51 bytes, DR3 115, DR4-DR7 222 (LoRaWAN Regional
+/// Parameters RP002-1.0.x, maximum payload without FOpts; from memory of
+/// the document). `None` above 222 bytes.
+pub fn slowest_eu868_rate(bytes: usize) -> Option<&'static str> {
+    match bytes {
+        0..=51 => Some("DR0 (SF12/125 kHz)"),
+        52..=115 => Some("DR3 (SF9/125 kHz)"),
+        116..=222 => Some("DR4 (SF8/125 kHz)"),
+        _ => None,
+    }
 }
 
 /// Loads a recording as the node would see it.
@@ -279,7 +302,14 @@ pub fn run_cmd(args: &AnalyzeArgs) -> Result<(), CliError> {
         })?;
     }
     if args.frame_hex {
-        println!("{}", frame_hex(&a.report, args.node_id, args.seq)?);
+        let hex = frame_hex(&a.report, args.node_id, args.seq)?;
+        let bytes = hex.len() / 2;
+        // On stderr: stdout stays the frame alone, for scripts.
+        eprintln!(
+            "frame: {bytes} bytes; slowest EU868 data rate that carries it: {}",
+            slowest_eu868_rate(bytes).unwrap_or("none (over 222 bytes)")
+        );
+        println!("{hex}");
     } else if args.json {
         let mut v = to_json(&a.report, Some(&args.recording.display().to_string()));
         mark_band_choice(&mut v, survey.as_ref());

@@ -80,7 +80,7 @@ pub fn run_cmd(args: &DemoArgs) -> Result<(), CliError> {
     let r = &a.report;
     println!("envord demo: Quorvalith quarry (fictional), conveyor CV-7 drive reducer");
     println!(
-        "  simulated: 14 s at 51.2 kS/s, speed wandering 1150-1450 rpm, outer-race defect on inter-de"
+        "  simulated: 46 s at 51.2 kS/s, speed wandering 1150-1450 rpm, outer-race defect on inter-de"
     );
     println!(
         "speed     {:.0} rpm mean ({:.0}-{:.0}), {} revolutions, quality: {}",

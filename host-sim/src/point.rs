@@ -665,11 +665,11 @@ mod tests {
     #[test]
     fn too_many_bearings_refused() {
         let mut text = String::new();
-        for i in 0..5 {
+        for i in 0..=dsp_core::config::MAX_BEARINGS {
             text.push_str(&format!(
                 "[[bearing]]\nname = \"b{i}\"\nbpfo_x = 3.0\nbpfi_x = 5.0\nftf_x = 0.4\nbsf_x = 2.0\n"
             ));
         }
-        assert!(parse(&text).unwrap_err().contains("at most 4"));
+        assert!(parse(&text).unwrap_err().contains("at most 8"));
     }
 }

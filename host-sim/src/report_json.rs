@@ -25,13 +25,28 @@ fn finite(x: f32) -> Value {
     }
 }
 
-fn defect_json(kind: DefectKind, line_order: f32, r: Option<&DefectResult>) -> Value {
+fn defect_json(
+    kind: DefectKind,
+    line_order: f32,
+    r: Option<&DefectResult>,
+    not_searched: Option<String>,
+) -> Value {
+    let searched = r.is_some_and(DefectResult::searched);
     let mut v = json!({
         "kind": kind.name(),
         "order": finite(line_order),
         "detected": r.is_some_and(|r| r.detected),
         "score_db": r.map_or(json!(0.0), |r| finite(r.score_db)),
-        "searched": r.is_some(),
+        "searched": searched,
+        // Why not searched (null when searched): never read as "not detected".
+        "not_searched": if searched {
+            Value::Null
+        } else {
+            json!(not_searched.unwrap_or_else(|| "no harmonic window fits the spectrum".into()))
+        },
+        "amplitude_g": r.map_or(Value::Null, |r| finite(r.amplitude_sum())),
+        "sidebands": r.map_or(0, |r| r.sidebands),
+        "margin_db": r.and_then(DefectResult::margin_db).map_or(Value::Null, finite),
     });
     let Some(obj) = v.as_object_mut() else {
         return v;
@@ -81,16 +96,23 @@ pub fn to_json(report: &Report, file: Option<&str>) -> Value {
         .bearings
         .iter()
         .map(|b| {
+            let why = b.not_searched(report.analysed());
             let defects: Vec<Value> = DefectKind::ALL
                 .iter()
                 .map(|&k| {
                     let r = b.diagnosis.as_ref().and_then(|d| d.get(k));
-                    defect_json(k, b.orders.line(k), r)
+                    defect_json(k, b.orders.line(k), r, why.map(|w| w.to_string()))
                 })
                 .collect();
+            let pass = b.coverage.ok();
+            let pass_info = pass.and_then(|p| report.passes.iter().find(|q| q.pass == p));
             json!({
                 "name": b.name.as_str(),
                 "shaft_order": finite(b.orders.shaft_order()),
+                "pass": pass,
+                "samples_per_rev": pass_info.map(|q| q.samples_per_rev),
+                "orders_per_bin": pass_info.map_or(Value::Null, |q| finite(q.orders_per_bin)),
+                "not_searched": why.map(|w| w.to_string()),
                 "defects": defects,
             })
         })
@@ -144,6 +166,23 @@ pub fn to_json(report: &Report, file: Option<&str>) -> Value {
             "band_auto": false,
         },
         "bearings": bearings,
+        "passes": report
+            .passes
+            .iter()
+            .map(|p| {
+                json!({
+                    "pass": p.pass,
+                    "samples_per_rev": p.samples_per_rev,
+                    "segments": p.segments,
+                    "revolutions": p.revolutions,
+                    "orders_per_bin": finite(p.orders_per_bin),
+                    "max_search_order": finite(p.max_search_order),
+                    "decimation": p.decimation,
+                    "mean_rpm": finite(p.mean_rpm),
+                    "flags": p.flags.names().collect::<Vec<_>>(),
+                })
+            })
+            .collect::<Vec<_>>(),
         "lines": report
             .lines
             .iter()
@@ -251,7 +290,7 @@ pub fn to_table(report: &Report, group: MachineGroup, support: Support) -> Strin
     }
     let _ = writeln!(
         out,
-        "{:<16} {:<5} {:>8} {:>9} {:>5} {:>10}  detected",
+        "{:<16} {:<5} {:>8} {:>9} {:>5} {:>10} {:>10}  detected",
         "bearing",
         "kind",
         "order",
@@ -260,14 +299,33 @@ pub fn to_table(report: &Report, group: MachineGroup, support: Support) -> Strin
         match report.rectifier {
             dsp_core::rectify::Rectifier::Abs => "1x amp g",
             dsp_core::rectify::Rectifier::Square => "1x amp g^2",
+        },
+        match report.rectifier {
+            dsp_core::rectify::Rectifier::Abs => "sum amp g",
+            dsp_core::rectify::Rectifier::Square => "sum g^2",
         }
     );
     for b in &report.bearings {
+        let why = b.not_searched(report.analysed());
         for k in DefectKind::ALL {
             let r = b.diagnosis.as_ref().and_then(|d| d.get(k));
+            if !r.is_some_and(DefectResult::searched) {
+                let _ = writeln!(
+                    out,
+                    "{:<16} {:<5} {:>8.3}  NOT SEARCHED: {}",
+                    b.name.as_str(),
+                    k.name(),
+                    b.orders.line(k),
+                    why.map_or_else(
+                        || "no harmonic window fits the spectrum".to_string(),
+                        |w| w.to_string()
+                    )
+                );
+                continue;
+            }
             let _ = writeln!(
                 out,
-                "{:<16} {:<5} {:>8.3} {:>9} {:>5} {:>10}  {}",
+                "{:<16} {:<5} {:>8.3} {:>9} {:>5} {:>10} {:>10}  {}",
                 b.name.as_str(),
                 k.name(),
                 b.orders.line(k),
@@ -277,6 +335,7 @@ pub fn to_table(report: &Report, group: MachineGroup, support: Support) -> Strin
                     r.harmonics_found, r.harmonics_searched
                 )),
                 r.map_or("-".into(), |r| format!("{:.2e}", r.fundamental_amplitude)),
+                r.map_or("-".into(), |r| format!("{:.2e}", r.amplitude_sum())),
                 if r.is_some_and(|r| r.detected) {
                     "YES"
                 } else {
