@@ -237,7 +237,9 @@ pub fn run(point: &PointConfig, rec: &Record) -> Result<Analysis, CliError> {
             }
             Some(m) => m.merge_pass(report),
         }
-        if !p.next_pass() {
+        // The node starts a pass only on a block after the previous pass
+        // completed: a record that ends first has no later pass.
+        if start >= n || !p.complete() || !p.next_pass() {
             break;
         }
     }

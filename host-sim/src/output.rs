@@ -49,7 +49,21 @@ fn exists_err(path: &Path) -> CliError {
 }
 
 fn io_err(path: &Path, e: &std::io::Error) -> CliError {
-    CliError::Other(format!("{}: cannot write: {e}", path.display()))
+    let dir = match path.parent() {
+        Some(d) if !d.as_os_str().is_empty() => d,
+        _ => Path::new("."),
+    };
+    if !dir.is_dir() {
+        return CliError::Other(format!(
+            "{}: cannot write: the folder {} does not exist; create it or give another path",
+            path.display(),
+            dir.display()
+        ));
+    }
+    CliError::Other(format!(
+        "{}: cannot write: {e}; check that its folder is writable",
+        path.display()
+    ))
 }
 
 /// Refuses early, before any long work, an output path that exists (unless

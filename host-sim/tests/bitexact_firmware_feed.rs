@@ -54,9 +54,20 @@ fn firmware_feed(point: &PointConfig, counts: &[i16], fs: f64, edges_s: &[f64]) 
         .map(|&t| ((t * tick_hz).round() as u64 % (1u64 << 32)) as u32)
         .collect();
     let mut next = 0;
+    // The point's passes one after the other, switching at a block boundary
+    // once a pass completes (firmware/src/pipeline_core.rs).
+    let mut merged: Option<Report> = None;
     for (k, block) in counts.chunks(ADC_BLOCK).enumerate() {
         if p.complete() {
-            break;
+            if p.pass() + 1 >= p.pass_count() {
+                break;
+            }
+            let r = p.finish();
+            match &mut merged {
+                Some(m) => m.merge_pass(r),
+                None => merged = Some(r),
+            }
+            let _ = p.next_pass();
         }
         let block_end_s = (k * ADC_BLOCK + block.len()) as f64 / fs;
         while next < edges_s.len() && edges_s[next] < block_end_s {
@@ -65,7 +76,14 @@ fn firmware_feed(point: &PointConfig, counts: &[i16], fs: f64, edges_s: &[f64]) 
         }
         p.push_i16(block);
     }
-    p.finish()
+    let r = p.finish();
+    match merged {
+        Some(mut m) => {
+            m.merge_pass(r);
+            m
+        }
+        None => r,
+    }
 }
 
 /// The f32 a JSON number was printed from.
@@ -196,8 +214,16 @@ fn check_case(tag: &str, profile: SpeedProfile, fault: Fault, seed: u64) {
     let mut any_detected = false;
     for (jb, b) in bearings.iter().zip(&report.bearings) {
         assert_eq!(jb["name"], b.name.as_str());
-        let d = b.diagnosis.as_ref().unwrap();
         let defects = jb["defects"].as_array().unwrap();
+        // a bearing of a later pass that this short record does not reach
+        // is not searched (and the whole document matched above)
+        let Some(d) = b.diagnosis.as_ref() else {
+            assert!(
+                defects.iter().all(|jd| jd["searched"] == false),
+                "{tag}: {jb}"
+            );
+            continue;
+        };
         assert_eq!(defects.len(), 4);
         for (jd, k) in defects.iter().zip(DefectKind::ALL) {
             let r = d.get(k).unwrap();

@@ -367,7 +367,12 @@ mod tests {
             grade(Some(1.5e-3), false, true, &quiet, None),
             State::Normal
         );
-        assert_eq!(grade(Some(2.1e-3), false, true, &quiet, None), State::Alert);
+        // over +6 dB without the node's detection: not graded (noise)
+        assert_eq!(
+            grade(Some(2.1e-3), false, true, &quiet, None),
+            State::Normal
+        );
+        assert_eq!(grade(Some(2.1e-3), true, true, &quiet, None), State::Alert);
         // 30 dB over the baseline, first time: alert
         assert_eq!(
             grade(Some(3.2e-2), true, true, &quiet, Some(State::Normal)),
