@@ -64,8 +64,8 @@ fn read_only_commands_never_create_a_store() {
             "0",
             "--defect",
             "bpfo",
-            "--score-db",
-            "5",
+            "--amplitude-g",
+            "0.005",
         ],
     ] {
         let o = run(&args, dir.path());
@@ -157,7 +157,8 @@ fn read_only_commands_work_on_a_store_the_user_can_only_read() {
         top.path(),
     );
     assert!(o.status.success(), "trend: {}", stderr(&o));
-    assert_eq!(stdout(&o).lines().count(), 1 + 8 * 4, "{}", stdout(&o));
+    // the axis line, the header and 8 reports of 4 kinds (and notes after them)
+    assert!(stdout(&o).lines().count() >= 2 + 8 * 4, "{}", stdout(&o));
     // The same as root: opening read-only never changes the file nor leaves
     // -wal/-shm files beside it (as root the folder permissions do not stop
     // a writer, so this checks the open mode itself).

@@ -358,7 +358,12 @@ fn import_cmd(a: ImportArgs) -> Result<(), CliError> {
     let (mut new, mut known, mut rejected, mut new_rejects) = (0u64, 0u64, 0u64, 0u64);
     let mut events: Vec<String> = Vec::new();
     for batch in items.chunks(a.batch_size) {
-        let tx = conn.transaction().map_err(sql_err)?;
+        // Immediate: the batch reads (band of the latest status frame) and
+        // writes; taking the write lock first lets a concurrent importer wait
+        // (busy timeout) instead of failing with "database is locked".
+        let tx = conn
+            .transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)
+            .map_err(sql_err)?;
         for item in batch {
             match decode_item(item) {
                 Ok(frame) => {
@@ -678,6 +683,8 @@ pub fn combine(m: &map::GatewayMap, states: &[trend::DefectState]) -> Vec<Combin
 }
 
 fn baseline_cmd(a: BaselineArgs) -> Result<(), CliError> {
+    // a write to an existing store: a mistyped path is refused, not created
+    drop(store::open_existing(&a.db)?);
     let kind = parse_kind(&a.defect)?;
     if a.bearing > 3 {
         return Err(CliError::input("--bearing", "bearing index must be 0..=3"));

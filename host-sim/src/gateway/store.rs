@@ -184,8 +184,21 @@ pub fn open(path: &str) -> Result<Connection, CliError> {
     // write lock of another process opening the same new store.
     conn.busy_timeout(std::time::Duration::from_secs(10))
         .map_err(db_err(path))?;
-    conn.pragma_update(None, "journal_mode", "WAL")
-        .map_err(db_err(path))?;
+    // SQLite does not call the busy handler for every lock it takes while a
+    // new file changes journal mode under other processes: retry those
+    // briefly (bounded) instead of failing the import.
+    let busy =
+        |e: &rusqlite::Error| e.sqlite_error_code() == Some(rusqlite::ErrorCode::DatabaseBusy);
+    let mut tries = 0u32;
+    loop {
+        match conn.pragma_update(None, "journal_mode", "WAL") {
+            Err(e) if busy(&e) && tries < 100 => {
+                tries += 1;
+                std::thread::sleep(std::time::Duration::from_millis(50));
+            }
+            r => break r.map_err(db_err(path))?,
+        }
+    }
     conn.pragma_update(None, "synchronous", "FULL")
         .map_err(db_err(path))?;
     migrate(&mut conn, path)?;

@@ -136,12 +136,14 @@ fn output_bearing() -> [f64; 4] {
     ]
 }
 
-/// Record length that gives the pipeline its 256 revolutions plus a few
-/// for the tach tracker's start-up, s.
+/// Record length that gives the pipeline its two passes (256 revolutions at
+/// 128 samples per revolution for the input bearing, then 256 at 32 for the
+/// output-shaft bearing, dsp_core::coverage) plus a few revolutions for the
+/// tach tracker's start-up and the pass switch, s.
 pub fn seconds_for(profile: SpeedProfile) -> f64 {
     let (lo, hi) = profile.rpm_bounds();
     let mean_hz = 0.5 * (lo + hi) / 60.0;
-    (REVS + 8.0) / mean_hz
+    (2.0 * REVS + 16.0) / mean_hz
 }
 
 /// The invented test gearbox: tach on the input shaft, a 25/104 mesh, the
