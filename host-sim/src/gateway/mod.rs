@@ -19,6 +19,7 @@ pub mod plot;
 pub mod seq;
 pub mod store;
 pub mod trend;
+pub mod web;
 
 use crate::error::CliError;
 use dsp_core::frame::{decode_any, DefectKind, Frame};
@@ -50,6 +51,10 @@ enum GatewayCommand {
     Downlink(downlink::DownlinkArgs),
     /// Make a node's downlink key and identity record (provisioning).
     Provision(downlink::ProvisionArgs),
+    /// Serve the plant dashboard (fleet, trends, alarm events) behind a login.
+    Web(web::WebArgs),
+    /// Manage the dashboard's users file (add a user, hash a password).
+    User(web::UserArgs),
 }
 
 #[derive(clap::Args, Debug)]
@@ -205,6 +210,8 @@ pub fn run(args: GatewayArgs) -> Result<(), CliError> {
         GatewayCommand::Baseline(a) => baseline_cmd(a),
         GatewayCommand::Downlink(a) => downlink::downlink_cmd(&a),
         GatewayCommand::Provision(a) => downlink::provision_cmd(&a),
+        GatewayCommand::Web(a) => web::web_cmd(&a),
+        GatewayCommand::User(a) => web::user_cmd(&a),
     }
 }
 
