@@ -378,7 +378,7 @@ fn dashboard_in_headless_chromium() {
             (
                 r["node"].as_u64().unwrap(),
                 r["bearing"].as_u64().unwrap(),
-                r["state"].as_str().unwrap().replace("nodata", "nodata"),
+                r["state"].as_str().unwrap().to_string(),
             )
         })
         .collect();

@@ -108,6 +108,10 @@ pub const MIGRATIONS: &[&str] = &[
     );
     CREATE INDEX alarm_events_by_time ON alarm_events (at_ms);
     CREATE INDEX reports_by_node ON reports (node_id, id);",
+    // 4: indexes of the dashboard's reads (`gateway web`): a node's status
+    // frames, and the check that a derived alarm event is already stored.
+    "CREATE INDEX node_status_by_node ON node_status (node_id, id);
+    CREATE INDEX alarm_events_by_report ON alarm_events (report_id, node_id);",
 ];
 
 /// Schema version this build writes.

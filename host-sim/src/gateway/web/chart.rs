@@ -367,62 +367,64 @@ pub struct Bar {
     pub class: String,
 }
 
-/// A vertical bar chart.
+/// A horizontal bar chart (one row per bar: reads on a phone too).
 pub fn bar_chart(aria: &str, unit: &str, bars: &[Bar]) -> String {
     if bars.is_empty() {
         return "<p class=\"muted\">No amplitudes in the newest report.</p>".into();
     }
-    let (w, h, l, b, t) = (720.0, 190.0, 60.0, 30.0, 16.0);
+    let (w, l, row, top) = (720.0, 150.0, 22.0, 8.0);
+    let right = 170.0;
+    #[allow(clippy::cast_precision_loss)]
+    let h = top + row * bars.len() as f64 + 30.0;
     let vmax = bars
         .iter()
         .map(|x| x.value)
         .fold(0.0f64, f64::max)
         .max(1e-9);
     let step = nice_step(vmax, 4.0);
-    let top = (vmax / step).ceil() * step;
-    #[allow(clippy::cast_precision_loss)]
-    let slot = (w - l - 10.0) / bars.len() as f64;
+    let end = (vmax / step).ceil() * step;
+    let px = |v: f64| l + v / end * (w - l - right);
     let mut s = format!(
-        "<svg class=\"chart\" viewBox=\"0 0 {w} {h}\" role=\"img\" aria-label=\"{}\">",
+        "<svg class=\"chart bars\" viewBox=\"0 0 {w} {h}\" role=\"img\" aria-label=\"{}\">",
         esc(aria)
     );
     let mut v = 0.0;
-    while v <= top + step * 0.01 {
-        let y = t + (top - v) / top * (h - t - b);
+    while v <= end + step * 0.01 {
         let _ = write!(
             s,
-            "<line class=\"grid\" x1=\"{l}\" x2=\"{:.1}\" y1=\"{y:.1}\" y2=\"{y:.1}\"/><text class=\"tick\" x=\"{:.1}\" y=\"{:.1}\" text-anchor=\"end\">{}</text>",
-            w - 10.0,
-            l - 5.0,
-            y + 3.5,
+            "<line class=\"grid\" x1=\"{0:.1}\" x2=\"{0:.1}\" y1=\"{top}\" y2=\"{1:.1}\"/><text class=\"tick\" x=\"{0:.1}\" y=\"{2:.1}\" text-anchor=\"middle\">{3}</text>",
+            px(v),
+            h - 26.0,
+            h - 14.0,
             trim_num(v)
         );
         v += step;
     }
     for (i, bar) in bars.iter().enumerate() {
         #[allow(clippy::cast_precision_loss)]
-        let x = l + slot * i as f64 + slot * 0.18;
-        let bh = (bar.value / top) * (h - t - b);
-        let y = h - b - bh;
+        let y = top + row * i as f64;
         let _ = write!(
             s,
-            "<rect class=\"bar {}\" x=\"{x:.1}\" y=\"{y:.1}\" width=\"{:.1}\" height=\"{bh:.1}\"><title>{}: {}</title></rect><text class=\"tick\" x=\"{:.1}\" y=\"{:.1}\" text-anchor=\"middle\">{}</text><text class=\"tick\" x=\"{:.1}\" y=\"{:.1}\" text-anchor=\"middle\">{}</text>",
+            "<text class=\"tick\" x=\"{:.1}\" y=\"{:.1}\" text-anchor=\"end\">{}</text><rect class=\"bar {}\" x=\"{l}\" y=\"{:.1}\" width=\"{:.1}\" height=\"{:.1}\"><title>{}: {}</title></rect><text class=\"tick\" x=\"{:.1}\" y=\"{:.1}\">{}</text>",
+            l - 6.0,
+            y + row * 0.65,
+            esc(&bar.group),
             bar.class,
-            slot * 0.64,
+            y + 3.0,
+            (px(bar.value) - l).max(0.5),
+            row - 6.0,
             esc(&bar.group),
             esc(&bar.note),
-            x + slot * 0.32,
-            h - b + 13.0,
-            esc(&bar.group),
-            x + slot * 0.32,
-            (y - 3.0).max(t - 4.0),
+            px(bar.value) + 5.0,
+            y + row * 0.65,
             esc(&bar.note)
         );
     }
     let _ = write!(
         s,
-        "<text class=\"axis\" x=\"12\" y=\"{0:.1}\" transform=\"rotate(-90 12 {0:.1})\" text-anchor=\"middle\">{1}</text></svg>",
-        (t + h - b) / 2.0,
+        "<text class=\"axis\" x=\"{:.1}\" y=\"{:.1}\" text-anchor=\"middle\">{}</text></svg>",
+        (l + w - right) / 2.0,
+        h - 2.0,
         esc(unit)
     );
     s

@@ -107,8 +107,10 @@ pub struct EventRow {
     pub at_ms: i64,
     /// Node.
     pub node: u16,
-    /// Bearing (index at the node, as text).
+    /// Physical bearing name.
     pub bearing: Option<String>,
+    /// Bearing index at the node, from `detail` when the dashboard wrote it.
+    pub bearing_index: Option<u8>,
     /// Defect kind.
     pub kind: Option<String>,
     /// "enter", "leave" or another event name.
@@ -132,8 +134,10 @@ pub struct NewEvent {
     pub at_ms: i64,
     /// Node.
     pub node: u16,
-    /// Bearing index.
+    /// Bearing index at the node (kept in `detail`).
     pub bearing: u8,
+    /// Physical bearing name (the map's, else "node N bearing B").
+    pub bearing_name: String,
     /// Defect kind.
     pub kind: String,
     /// "enter" (into alert or danger, or between them) or "leave".
@@ -154,6 +158,11 @@ pub trait WebStore: Send {
     fn sensor_reports(&mut self, node: u16, bearing: u8) -> Result<Vec<ReportRow>, DataError>;
     /// The newest `limit` reports of one node, newest first, all rows.
     fn node_reports(&mut self, node: u16, limit: usize) -> Result<Vec<ReportRow>, DataError>;
+    /// (id, seq, payload, receive time ms) of every report of one node, in arrival order.
+    fn node_arrivals(
+        &mut self,
+        node: u16,
+    ) -> Result<Vec<(i64, u16, Vec<u8>, Option<i64>)>, DataError>;
     /// The JSON document of one report.
     fn report_json(&mut self, id: i64) -> Result<Option<String>, DataError>;
     /// Hand-set baselines: (node, bearing, kind, dB).
@@ -298,7 +307,7 @@ impl WebStore for SqliteWeb {
 
     fn sensor_reports(&mut self, node: u16, bearing: u8) -> Result<Vec<ReportRow>, DataError> {
         let mut stmt = self.conn.prepare_cached(&format!(
-            "SELECT {REPORT_COLS}, {DEFECT_COLS} FROM reports r JOIN defects d ON d.report_id = r.id AND d.bearing = ?2
+            "SELECT {REPORT_COLS}, {DEFECT_COLS} FROM reports r CROSS JOIN defects d ON d.report_id = r.id AND d.bearing = ?2
              WHERE r.node_id = ?1 ORDER BY r.id, d.kind"
         ))?;
         let rows = stmt.query_map(params![node, bearing], |r| {
@@ -327,6 +336,26 @@ impl WebStore for SqliteWeb {
         let mut out = Vec::new();
         grouped(rows, &mut |r| out.push(r))?;
         Ok(out)
+    }
+
+    fn node_arrivals(
+        &mut self,
+        node: u16,
+    ) -> Result<Vec<(i64, u16, Vec<u8>, Option<i64>)>, DataError> {
+        let mut stmt = self.conn.prepare_cached(
+            "SELECT id, seq, payload, rx_time_ms, rx_time FROM reports WHERE node_id = ?1 ORDER BY id",
+        )?;
+        let rows = stmt.query_map([node], |r| {
+            let ms: Option<i64> = r.get(3)?;
+            let text: Option<String> = r.get(4)?;
+            Ok((
+                r.get(0)?,
+                r.get(1)?,
+                r.get(2)?,
+                ms.or_else(|| text.as_deref().and_then(super::clock::parse_rfc3339_ms)),
+            ))
+        })?;
+        Ok(rows.collect::<rusqlite::Result<_>>()?)
     }
 
     fn report_json(&mut self, id: i64) -> Result<Option<String>, DataError> {
@@ -360,7 +389,7 @@ impl WebStore for SqliteWeb {
 
     fn events(&mut self, node: Option<u16>, limit: usize) -> Result<Vec<EventRow>, DataError> {
         let mut stmt = self.conn.prepare_cached(
-            "SELECT id, at_ms, node_id, bearing, kind, event, state_from, state_to, report_id, acked_by, acked_at_ms
+            "SELECT id, at_ms, node_id, bearing, kind, event, state_from, state_to, report_id, acked_by, acked_at_ms, detail
              FROM alarm_events WHERE ?1 IS NULL OR node_id = ?1 ORDER BY at_ms DESC, id DESC LIMIT ?2",
         )?;
         let lim = i64::try_from(limit).unwrap_or(i64::MAX);
@@ -370,6 +399,12 @@ impl WebStore for SqliteWeb {
                 at_ms: r.get(1)?,
                 node: r.get(2)?,
                 bearing: r.get(3)?,
+                bearing_index: r
+                    .get::<_, String>(11)
+                    .ok()
+                    .and_then(|d| serde_json::from_str::<serde_json::Value>(&d).ok())
+                    .and_then(|v| v.get("bearing_index").and_then(serde_json::Value::as_u64))
+                    .and_then(|b| u8::try_from(b).ok()),
                 kind: r.get(4)?,
                 event: r.get(5)?,
                 state_from: r.get(6)?,
@@ -391,10 +426,13 @@ impl WebStore for SqliteWeb {
             )?;
             let mut ins = tx.prepare_cached(
                 "INSERT INTO alarm_events (at_ms, node_id, bearing, kind, event, state_from, state_to, report_id, detail)
-                 VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, '{\"source\":\"dashboard\"}')",
+                 VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)",
             )?;
             for e in ev {
-                let b = e.bearing.to_string();
+                let b = &e.bearing_name;
+                let detail =
+                    serde_json::json!({"source": "gateway web", "bearing_index": e.bearing})
+                        .to_string();
                 if exists
                     .query_row(
                         params![e.report_id, e.node, b, e.kind, e.event, e.to],
@@ -411,7 +449,8 @@ impl WebStore for SqliteWeb {
                         e.event,
                         e.from,
                         e.to,
-                        e.report_id
+                        e.report_id,
+                        detail
                     ])?;
                     n += 1;
                 }

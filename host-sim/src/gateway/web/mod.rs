@@ -156,7 +156,17 @@ pub struct App {
 impl App {
     /// A dashboard over a store; folds the store once.
     pub fn new(cfg: WebConfig, mut store: Box<dyn WebStore>) -> Result<Self, CliError> {
-        let mut summary = summary::Summary::new(cfg.limits);
+        let names = cfg
+            .map
+            .iter()
+            .flat_map(|m| m.bearing.iter())
+            .flat_map(|b| {
+                b.sensors
+                    .iter()
+                    .map(|s| ((s.node, s.bearing), b.name.clone()))
+            })
+            .collect();
+        let mut summary = summary::Summary::new(cfg.limits, names);
         summary
             .refresh(store.as_mut())
             .map_err(|e| CliError::Other(e.to_string()))?;

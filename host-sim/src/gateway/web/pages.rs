@@ -28,15 +28,15 @@ main{padding:.8rem 1rem 2rem;max-width:1280px;margin:0 auto}h1{font-size:1.3rem;
 .panel{background:var(--panel);border:1px solid var(--line);border-radius:4px;padding:.6rem .8rem;margin:.6rem 0}
 .wrap{overflow-x:auto;-webkit-overflow-scrolling:touch}
 table{border-collapse:collapse;width:100%;background:var(--panel);font-variant-numeric:tabular-nums}
-th,td{padding:.3rem .5rem;border-bottom:1px solid var(--line);text-align:left;white-space:nowrap;vertical-align:top}
+th,td{padding:.3rem .5rem;border-bottom:1px solid var(--line);text-align:left;vertical-align:top}td.nw,th{white-space:nowrap}
 th{background:#ece8dd;font-weight:600}th a{color:inherit}td.num,th.num{text-align:right}
-.st{display:inline-block;min-width:6.8em;font-weight:700;padding:.05rem .35rem;border-radius:3px;border:1.5px solid currentColor}
+.st{display:inline-block;white-space:nowrap;min-width:6.8em;font-weight:700;padding:.05rem .35rem;border-radius:3px;border:1.5px solid currentColor}
 .st-normal{color:var(--normal)}.st-learning{color:var(--learning);border-style:dashed}.st-alert{color:var(--alert);background:#fff4dc}
 .st-danger{color:#fff;background:var(--danger);border-color:var(--danger)}.st-nodata,.st-notcovered{color:var(--nodata);border-style:dotted}
 .st-stale{color:var(--stale);border-style:double;border-width:3px}
 .muted{color:var(--muted)}.small{font-size:.85em}.warn{color:#7a4a00}
 .filters a{margin-right:.5rem}.filters a.on{font-weight:700;text-decoration:none;border-bottom:2px solid var(--ink)}
-.grid2{display:grid;grid-template-columns:repeat(auto-fit,minmax(330px,1fr));gap:.6rem}
+.grid2{display:grid;grid-template-columns:repeat(auto-fit,minmax(min(100%,560px),1fr));gap:.6rem}svg.bars{max-width:900px}
 svg.chart{width:100%;height:auto;display:block;background:#fff}
 svg .grid{stroke:#e6e1d5;stroke-width:1}svg .tick{font-size:10px;fill:#4a505c}svg .axis{font-size:11px;fill:#30343d}
 svg .ln{fill:none;stroke-width:1.6}svg .pt{stroke:none}
@@ -52,7 +52,9 @@ svg.icon{vertical-align:middle;margin-right:.2rem}
 form.inline{display:inline}button.ack{padding:.15rem .6rem}
 .login{max-width:360px;margin:3rem auto}.login label{display:block;margin:.5rem 0 .2rem}.login input{width:100%;padding:.45rem;font-size:1rem}
 .login button{margin-top:.8rem;padding:.45rem 1rem;font-size:1rem}.err{color:var(--danger);font-weight:600}
-@media (max-width:640px){main{padding:.5rem}th,td{padding:.25rem .35rem}.hide-s{display:none}body{font-size:14px}}
+@media (max-width:640px){main{padding:.5rem}th,td{padding:.25rem .35rem}.hide-s{display:none}body{font-size:14px}
+table.cards thead{display:none}table.cards tr{display:block;border-bottom:2px solid var(--line);padding:.3rem 0}table.cards td{display:block;border:none;padding:.1rem .4rem;text-align:left}
+table.cards td[data-l]::before{content:attr(data-l) ": ";font-weight:600;color:var(--muted)}}
 "#;
 
 /// Glyph + word of a state (shape and text besides colour).
@@ -265,7 +267,18 @@ pub fn fleet(inner: &mut Inner, cfg: &WebConfig, now_ms: i64) -> Result<Fleet, D
             .is_some_and(|t| now_ms - t > cfg.stale_after_ms)
     };
     let mut channels = Vec::new();
-    for b in bearing_states(&states) {
+    // bearing_states and combine scan their whole input per entry; hand them
+    // one channel's (one physical bearing's) states at a time.
+    let mut by_channel: std::collections::BTreeMap<(u16, u8), Vec<DefectState>> =
+        std::collections::BTreeMap::new();
+    for st in &states {
+        by_channel
+            .entry((st.node, st.bearing))
+            .or_default()
+            .push(st.clone());
+    }
+    let channel_states = by_channel.values().flat_map(|v| bearing_states(v));
+    for b in channel_states {
         let nf = inner.summary.nodes.get(&b.node);
         let last = nf.and_then(|n| n.last.as_ref());
         let link = links.get(&b.node);
@@ -304,8 +317,26 @@ pub fn fleet(inner: &mut Inner, cfg: &WebConfig, now_ms: i64) -> Result<Fleet, D
         });
     }
     let physical = match &cfg.map {
-        Some(m) => combine(m, &states)
-            .into_iter()
+        Some(m) => m
+            .bearing
+            .iter()
+            .flat_map(|pb| {
+                let mine: Vec<DefectState> = pb
+                    .sensors
+                    .iter()
+                    .flat_map(|s| {
+                        by_channel
+                            .get(&(s.node, s.bearing))
+                            .into_iter()
+                            .flatten()
+                            .cloned()
+                    })
+                    .collect();
+                let one = crate::gateway::map::GatewayMap {
+                    bearing: vec![pb.clone()],
+                };
+                combine(&one, &mine)
+            })
             .zip(&m.bearing)
             .map(|(c, pb)| {
                 let worst = c
@@ -473,7 +504,7 @@ pub fn fleet_page(f: &Fleet, q: &FleetQuery, session: &Session, cfg: &WebConfig)
     }
     b.push_str("· Export: <a href=\"/export/fleet.csv\">CSV</a> <a href=\"/export/fleet.json\">JSON</a></p>");
     if !f.physical.is_empty() {
-        b.push_str("<h2>Physical bearings</h2><div class=\"wrap\"><table id=\"physical\"><thead><tr><th>State</th><th>Bearing</th><th>Worst finding</th><th class=\"num\">Score dB</th><th>Sensors</th><th class=\"hide-s\">Detected by</th></tr></thead><tbody>");
+        b.push_str("<h2>Physical bearings</h2><div class=\"wrap\"><table id=\"physical\" class=\"cards\"><thead><tr><th>State</th><th>Bearing</th><th>Worst finding</th><th class=\"num\">Score dB</th><th>Sensors</th><th>Detected by</th></tr></thead><tbody>");
         let mut ph: Vec<&PhysicalRow> = f
             .physical
             .iter()
@@ -494,7 +525,7 @@ pub fn fleet_page(f: &Fleet, q: &FleetQuery, session: &Session, cfg: &WebConfig)
                 .collect();
             let _ = write!(
                 b,
-                "<tr data-name=\"{}\"><td>{}</td><td><a href=\"/bearing/{}/{}\">{}</a></td><td>{}</td><td class=\"num\">{}</td><td>{}</td><td class=\"hide-s\">{}/{}</td></tr>",
+                "<tr data-name=\"{}\"><td>{}</td><td data-l=\"Bearing\"><a href=\"/bearing/{}/{}\">{}</a></td><td data-l=\"Worst\">{}</td><td class=\"num\" data-l=\"Score dB\">{}</td><td data-l=\"Sensors\">{}</td><td data-l=\"Detected by\">{}/{}</td></tr>",
                 esc(&p.name),
                 state_cell(p.state, p.stale, p.state == State::NoData),
                 p.sensors.first().map_or(0, |s| s.node),
@@ -509,7 +540,7 @@ pub fn fleet_page(f: &Fleet, q: &FleetQuery, session: &Session, cfg: &WebConfig)
         }
         b.push_str("</tbody></table></div>");
     }
-    b.push_str("<h2>Sensor channels</h2><div class=\"wrap\"><table id=\"channels\"><thead><tr>");
+    b.push_str("<h2>Sensor channels</h2><div class=\"wrap\"><table id=\"channels\" class=\"cards\"><thead><tr>");
     for (key, label, num) in [
         ("state", "State", false),
         ("node", "Channel", false),
@@ -543,7 +574,7 @@ pub fn fleet_page(f: &Fleet, q: &FleetQuery, session: &Session, cfg: &WebConfig)
             qs(&filter, key, next_dir)
         );
     }
-    b.push_str("<th>Health</th><th class=\"hide-s\">Band</th></tr></thead><tbody>");
+    b.push_str("<th>Health</th><th>Band</th></tr></thead><tbody>");
     for c in rows {
         let rise = c.score_db.zip(c.baseline_db).map(|(s, b)| s - b);
         let finding = format!(
@@ -588,7 +619,7 @@ pub fn fleet_page(f: &Fleet, q: &FleetQuery, session: &Session, cfg: &WebConfig)
         };
         let _ = write!(
             b,
-            "<tr data-node=\"{}\" data-bearing=\"{}\" data-state=\"{}\"><td>{}</td><td>{}</td><td>{}</td><td>{finding}</td><td><a href=\"/node/{}\">{}</a></td><td>{link}</td><td>{}</td><td class=\"hide-s\">{band}</td></tr>",
+            "<tr data-node=\"{}\" data-bearing=\"{}\" data-state=\"{}\"><td class=\"nw\">{}</td><td class=\"nw\" data-l=\"Channel\">{}</td><td data-l=\"Bearing\">{}</td><td data-l=\"Worst\">{finding}</td><td data-l=\"Last report\"><a href=\"/node/{}\">{}</a></td><td data-l=\"Link\">{link}</td><td data-l=\"Health\">{}</td><td data-l=\"Band\">{band}</td></tr>",
             c.node,
             c.bearing,
             state_class(c.state),
@@ -943,7 +974,7 @@ pub fn bearing_page(
             for x in &r.defects {
                 if let Some(a) = x.amplitude_1x_g {
                     bars.push(Bar {
-                        group: format!("{} n{}b{}", x.kind, d.sensor.node, d.sensor.bearing),
+                        group: format!("{} · node {} b{}", x.kind, d.sensor.node, d.sensor.bearing),
                         value: a,
                         note: format!(
                             "{a:.4} g · {} harm.",
@@ -960,7 +991,7 @@ pub fn bearing_page(
         "g at 1x",
         &bars,
     ));
-    b.push_str("<p class=\"muted small\">The frame carries the amplitude at each defect's first order and how many of its harmonics were found (the number above each bar), not each harmonic's amplitude.</p></section>");
+    b.push_str("<p class=\"muted small\">The frame carries the amplitude at each defect's first order and how many of its harmonics were found (beside each bar), not each harmonic's amplitude.</p></section>");
     // Time to danger.
     b.push_str("<section class=\"panel\" id=\"eta\"><h2>Rough time to the danger level</h2>");
     let shown: Vec<&(DefectKind, String, Eta)> = etas
@@ -1112,16 +1143,16 @@ pub fn node_page(
         ))
     );
     // Sequence events: the node's arrivals replayed as `gateway import` does.
-    let all = inner.store.node_reports(node, 100_000)?;
+    let all = inner.store.node_arrivals(node)?;
     let mut tracker = crate::gateway::seq::SeqTracker::new();
     let mut events = Vec::new();
-    for r in all.iter().rev() {
-        let ev = tracker.observe(r.node, r.seq, &r.payload);
+    for (_, seq, payload, t) in &all {
+        let ev = tracker.observe(node, *seq, payload);
         if !matches!(
             ev,
             crate::gateway::seq::SeqEvent::InOrder | crate::gateway::seq::SeqEvent::First
         ) {
-            events.push((r.time_ms(), r.seq, ev.describe()));
+            events.push((*t, *seq, ev.describe()));
         }
     }
     let _ = write!(
@@ -1261,8 +1292,8 @@ pub fn events_page(
     }
     b.push_str("<div class=\"wrap\"><table id=\"events\"><thead><tr><th>When</th><th>Event</th><th>Channel</th><th>Bearing</th><th>Kind</th><th>Change</th><th>Acknowledged</th></tr></thead><tbody>");
     for e in &events {
-        let bearing_idx: Option<u8> = e.bearing.as_deref().and_then(|x| x.parse().ok());
-        let name = bearing_idx.and_then(|bi| cfg.map.as_ref().and_then(|m| m.name_of(e.node, bi)));
+        let bearing_idx = e.bearing_index;
+        let name = e.bearing.as_deref();
         let to = e.state_to.as_deref().unwrap_or("");
         let ack = match (&e.acked_by, can_ack) {
             (Some(by), _) => format!("{} at {}", esc(by), fmt_time(e.acked_at_ms)),

@@ -21,9 +21,9 @@ pub type Key = (u16, u8, String);
 /// What the fold keeps of one key.
 #[derive(Clone, Debug, Default)]
 pub struct KeyFold {
-    first: Vec<Observation>,
-    last_valid: Option<Observation>,
-    last: Option<Observation>,
+    first: Vec<Lite>,
+    last_valid: Option<Lite>,
+    last: Option<Lite>,
     /// Valid scores seen.
     pub count: usize,
     /// State after the newest report (as folded, for events).
@@ -32,16 +32,36 @@ pub struct KeyFold {
     pub last_amp: Option<(Option<f64>, Option<i64>)>,
 }
 
+/// One observation without its key (the key is the map's).
+#[derive(Clone, Copy, Debug, Default)]
+struct Lite {
+    report_id: i64,
+    seq: u16,
+    score_db: Option<f64>,
+    detected: bool,
+}
+
 impl KeyFold {
     /// The observations `trend::evaluate` needs, in arrival order.
-    fn reduced(&self) -> Vec<Observation> {
-        let mut v = self.first.clone();
+    fn reduced(&self, key: &Key) -> Vec<Observation> {
+        let mut v: Vec<Lite> = self.first.clone();
         for o in [&self.last_valid, &self.last].into_iter().flatten() {
             if v.iter().all(|x| x.report_id != o.report_id) {
-                v.push(o.clone());
+                v.push(*o);
             }
         }
-        v
+        v.into_iter()
+            .map(|o| Observation {
+                report_id: o.report_id,
+                node: key.0,
+                seq: o.seq,
+                rx_time: None,
+                bearing: key.1,
+                kind: key.2.clone(),
+                score_db: o.score_db,
+                detected: o.detected,
+            })
+            .collect()
     }
 
     fn learned(&self, l: &Limits) -> Option<f64> {
@@ -74,6 +94,7 @@ pub struct NodeFold {
 /// The summary.
 pub struct Summary {
     limits: Limits,
+    names: HashMap<(u16, u8), String>,
     upto: i64,
     /// Per key.
     pub keys: BTreeMap<Key, KeyFold>,
@@ -94,10 +115,12 @@ fn state_name(s: State) -> &'static str {
 }
 
 impl Summary {
-    /// An empty summary under these limits.
-    pub fn new(limits: Limits) -> Self {
+    /// An empty summary under these limits; `names` are the physical
+    /// bearings' names of the gateway map (alarm events carry them).
+    pub fn new(limits: Limits, names: HashMap<(u16, u8), String>) -> Self {
         Self {
             limits,
+            names,
             upto: 0,
             keys: BTreeMap::new(),
             nodes: BTreeMap::new(),
@@ -120,12 +143,10 @@ impl Summary {
             .map(|(n, b, k, v)| ((n, b, k), v))
             .collect();
         let mut n = 0;
-        let mut rows = Vec::new();
-        store.reports_after(self.upto, &mut |r| rows.push(r))?;
-        for r in rows {
+        store.reports_after(self.upto, &mut |r| {
             self.fold(r, &manual);
             n += 1;
-        }
+        })?;
         if !self.pending.is_empty() {
             store.record_events(&self.pending)?;
             self.pending.clear();
@@ -138,25 +159,24 @@ impl Summary {
         self.tracker.observe(r.node, r.seq, &r.payload);
         let time = r.time_ms();
         let flags = dsp_core::frame::QualityFlags::from_bits(r.flags);
-        for d in &r.defects {
-            let o = Observation {
+        for d in std::mem::take(&mut r.defects) {
+            let o = Lite {
                 report_id: r.id,
-                node: r.node,
                 seq: r.seq,
-                rx_time: r.rx_time.clone(),
-                bearing: d.bearing,
-                kind: d.kind.clone(),
                 score_db: d.score_db,
                 detected: d.detected,
             };
-            let key = (r.node, d.bearing, d.kind.clone());
-            let k = self.keys.entry(key.clone()).or_default();
+            let key = (r.node, d.bearing, d.kind);
+            let k = match self.keys.get_mut(&key) {
+                Some(k) => k,
+                None => self.keys.entry(key.clone()).or_default(),
+            };
             if o.score_db.is_some() {
                 k.count += 1;
                 if k.first.len() < self.limits.baseline_count {
-                    k.first.push(o.clone());
+                    k.first.push(o);
                 }
-                k.last_valid = Some(o.clone());
+                k.last_valid = Some(o);
             }
             k.last = Some(o);
             k.last_amp = Some((d.amplitude_1x_g, d.harmonics));
@@ -174,7 +194,12 @@ impl Summary {
                     at_ms: time.unwrap_or(0),
                     node: r.node,
                     bearing: d.bearing,
-                    kind: d.kind.clone(),
+                    bearing_name: self
+                        .names
+                        .get(&(r.node, d.bearing))
+                        .cloned()
+                        .unwrap_or_else(|| format!("node {} bearing {}", r.node, d.bearing)),
+                    kind: key.2.clone(),
                     event: if alarm(now) { "enter" } else { "leave" },
                     from: state_name(before),
                     to: state_name(now),
@@ -198,8 +223,8 @@ impl Summary {
     /// Every key's state as `gateway status` computes it.
     pub fn states(&self, manual: &dyn Fn(u16, u8, &str) -> Option<f64>) -> Vec<DefectState> {
         let mut out = Vec::with_capacity(self.keys.len());
-        for k in self.keys.values() {
-            let obs = k.reduced();
+        for (key, k) in &self.keys {
+            let obs = k.reduced(key);
             for mut s in trend::evaluate(&obs, &self.limits, manual) {
                 s.reports = k.count;
                 out.push(s);
