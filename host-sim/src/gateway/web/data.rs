@@ -127,6 +127,9 @@ pub struct EventRow {
     pub acked_at_ms: Option<i64>,
 }
 
+/// (report id, seq, payload, receive time ms) of one stored report.
+pub type Arrival = (i64, u16, Vec<u8>, Option<i64>);
+
 /// A new alarm event to record.
 #[derive(Clone, Debug)]
 pub struct NewEvent {
@@ -159,10 +162,7 @@ pub trait WebStore: Send {
     /// The newest `limit` reports of one node, newest first, all rows.
     fn node_reports(&mut self, node: u16, limit: usize) -> Result<Vec<ReportRow>, DataError>;
     /// (id, seq, payload, receive time ms) of every report of one node, in arrival order.
-    fn node_arrivals(
-        &mut self,
-        node: u16,
-    ) -> Result<Vec<(i64, u16, Vec<u8>, Option<i64>)>, DataError>;
+    fn node_arrivals(&mut self, node: u16) -> Result<Vec<Arrival>, DataError>;
     /// The JSON document of one report.
     fn report_json(&mut self, id: i64) -> Result<Option<String>, DataError>;
     /// Hand-set baselines: (node, bearing, kind, dB).
@@ -338,10 +338,7 @@ impl WebStore for SqliteWeb {
         Ok(out)
     }
 
-    fn node_arrivals(
-        &mut self,
-        node: u16,
-    ) -> Result<Vec<(i64, u16, Vec<u8>, Option<i64>)>, DataError> {
+    fn node_arrivals(&mut self, node: u16) -> Result<Vec<Arrival>, DataError> {
         let mut stmt = self.conn.prepare_cached(
             "SELECT id, seq, payload, rx_time_ms, rx_time FROM reports WHERE node_id = ?1 ORDER BY id",
         )?;
