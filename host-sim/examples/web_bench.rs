@@ -197,7 +197,7 @@ fn main() {
     drop(app);
     let c = rusqlite::Connection::open(&path).unwrap();
     for (name, sql) in [
-        ("reports of one sensor", "EXPLAIN QUERY PLAN SELECT r.id FROM reports r JOIN defects d ON d.report_id = r.id AND d.bearing = 0 WHERE r.node_id = 7 ORDER BY r.id, d.kind"),
+        ("reports of one sensor", "EXPLAIN QUERY PLAN SELECT r.id FROM reports r CROSS JOIN defects d ON d.report_id = r.id AND d.bearing = 0 WHERE r.node_id = 7 ORDER BY r.id, d.kind"),
         ("status frames of one node", "EXPLAIN QUERY PLAN SELECT id FROM node_status WHERE node_id = 7 ORDER BY id"),
         ("latest status per node", "EXPLAIN QUERY PLAN SELECT node_id FROM node_status WHERE id IN (SELECT MAX(id) FROM node_status GROUP BY node_id)"),
         ("event already stored?", "EXPLAIN QUERY PLAN SELECT 1 FROM alarm_events WHERE report_id = 5 AND node_id = 1 AND bearing = '0' AND kind = 'bpfo' AND event = 'enter' AND state_to = 'alert'"),
