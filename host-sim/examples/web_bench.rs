@@ -21,7 +21,6 @@
 )]
 
 use host_sim::gateway::map::GatewayMap;
-use host_sim::gateway::trend::Limits;
 use host_sim::gateway::web::auth::{Role, Session, Users};
 use host_sim::gateway::web::{clock, data::SqliteWeb, App, WebConfig};
 use std::time::Instant;
@@ -160,7 +159,6 @@ fn main() {
     let cfg = || WebConfig {
         users: Users::default(),
         map: Some(map()),
-        limits: Limits::default(),
         secure_cookie: false,
         stale_after_ms: 3 * 3_600_000,
     };

@@ -330,8 +330,8 @@ pub fn series_chart(
             se.points.len(),
             se.class
         );
-        // Markers while they stay readable.
-        if valid <= 400 {
+        // Markers while they stay readable; level lines (`lv-*`) have none.
+        if valid <= 400 && !se.class.starts_with("lv-") {
             for (x, y) in &se.points {
                 if let Some(y) = y {
                     s.push_str(&se.marker.draw(px(*x), py(*y), &format!("pt {}", se.class)));

@@ -178,6 +178,13 @@ pub trait WebStore: Send {
     fn record_events(&mut self, ev: &[NewEvent]) -> Result<usize, DataError>;
     /// Acknowledges an event; false if it does not exist or is acknowledged.
     fn ack_event(&mut self, id: i64, by: &str, at_ms: i64) -> Result<bool, DataError>;
+    /// Every line graded exactly as `gateway status` grades it (stored
+    /// limits, decided order, reduced frames read "as before"), staleness
+    /// judged at `now_ms`.
+    fn graded(
+        &mut self,
+        now_ms: Option<i64>,
+    ) -> Result<Vec<crate::gateway::trend::Line>, DataError>;
 }
 
 /// The SQLite store.
@@ -284,6 +291,13 @@ fn status_of(r: &rusqlite::Row<'_>) -> rusqlite::Result<StatusRow> {
 }
 
 impl WebStore for SqliteWeb {
+    fn graded(
+        &mut self,
+        now_ms: Option<i64>,
+    ) -> Result<Vec<crate::gateway::trend::Line>, DataError> {
+        crate::gateway::trend_cmd::grade_store(&self.conn, "store", now_ms)
+            .map_err(|e| DataError::Query(e.to_string()))
+    }
     fn reports_after(&mut self, after: i64, f: &mut dyn FnMut(ReportRow)) -> Result<(), DataError> {
         let tx = self.conn.transaction()?;
         {

@@ -17,7 +17,6 @@ pub mod summary;
 
 use crate::error::CliError;
 use crate::gateway::map::{GatewayMap, SensorRef};
-use crate::gateway::trend::Limits;
 use auth::{RateLimit, Role, Session, Sessions, Users};
 use axum::extract::{ConnectInfo, Path, State};
 use axum::http::{header, HeaderMap, HeaderValue, StatusCode};
@@ -49,8 +48,6 @@ pub struct WebArgs {
     /// A node is stale after this many minutes without a report.
     #[arg(long, default_value_t = 180)]
     stale_after_min: u32,
-    #[command(flatten)]
-    limits: super::LimitArgs,
 }
 
 /// Arguments of `envord gateway user`.
@@ -127,8 +124,6 @@ pub struct WebConfig {
     pub users: Users,
     /// Gateway map.
     pub map: Option<GatewayMap>,
-    /// Alarm limits (as `gateway status` takes them).
-    pub limits: Limits,
     /// Session cookie gets `Secure`.
     pub secure_cookie: bool,
     /// A node is stale after this long without a report, ms.
@@ -166,9 +161,9 @@ impl App {
                     .map(|s| ((s.node, s.bearing), b.name.clone()))
             })
             .collect();
-        let mut summary = summary::Summary::new(cfg.limits, names);
+        let mut summary = summary::Summary::new(names);
         summary
-            .refresh(store.as_mut())
+            .refresh(store.as_mut(), Some(clock::now_ms()))
             .map_err(|e| CliError::Other(e.to_string()))?;
         Ok(Self {
             cfg,
@@ -195,7 +190,7 @@ impl App {
         let now = clock::now_ms();
         let mut inner = self.lock_inner();
         let Inner { store, summary } = &mut *inner;
-        summary.refresh(store.as_mut())?;
+        summary.refresh(store.as_mut(), Some(now))?;
         let parts: Vec<&str> = path.trim_matches('/').split('/').collect();
         let html = "text/html; charset=utf-8";
         Ok(match parts.as_slice() {
@@ -658,7 +653,6 @@ pub fn web_cmd(a: &WebArgs) -> Result<(), CliError> {
     let cfg = WebConfig {
         users,
         map,
-        limits: a.limits.limits()?,
         secure_cookie: a.secure_cookie,
         stale_after_ms: i64::from(a.stale_after_min) * 60_000,
     };

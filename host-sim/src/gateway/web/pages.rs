@@ -2,7 +2,7 @@
 //! Plain server-rendered HTML with inline SVG; no script on any page.
 
 use super::auth::{Role, Session};
-use super::chart::{self, esc, Bar, Level, LevelKind, Mark, Marker, Series};
+use super::chart::{self, esc, Bar, Mark, Marker, Series};
 use super::clock;
 use super::data::{DataError, ReportRow};
 use super::estimate::{self, Eta};
@@ -65,6 +65,7 @@ fn state_badge(class: &str, word: &str) -> String {
         "alert" => "&#9650;",
         "danger" => "&#9632;",
         "stale" => "&#9719;",
+        "notcovered" => "&#8856;",
         _ => "&#8211;",
     };
     format!(
@@ -79,6 +80,8 @@ pub fn state_class(s: State) -> &'static str {
         State::NoData => "nodata",
         State::Learning => "learning",
         State::Normal => "normal",
+        State::Stale => "stale",
+        State::NotCovered => "notcovered",
         State::Alert => "alert",
         State::Danger => "danger",
     }
@@ -146,6 +149,10 @@ fn fmt_db(x: Option<f64>) -> String {
     x.map_or("–".into(), |v| format!("{v:.1}"))
 }
 
+fn fmt_g(x: Option<f64>) -> String {
+    x.map_or("–".into(), |v| format!("{v:.3e}"))
+}
+
 fn fmt_time(ms: Option<i64>) -> String {
     ms.map_or("–".into(), clock::label)
 }
@@ -165,12 +172,16 @@ pub struct ChannelRow {
     pub stale: bool,
     /// Worst defect kind.
     pub worst_kind: String,
-    /// Its newest score, dB.
+    /// Its newest score, dB (a detection measure, not a size).
     pub score_db: Option<f64>,
-    /// Its baseline, dB.
-    pub baseline_db: Option<f64>,
-    /// Its amplitude at 1x, g.
+    /// Its newest amplitude, g (the one the state is graded on).
     pub amplitude_g: Option<f64>,
+    /// Its baseline, g.
+    pub baseline_g: Option<f64>,
+    /// Severity = amplitude over baseline, dB.
+    pub severity_db: Option<f64>,
+    /// The levels the newest report was graded against.
+    pub levels: Option<crate::gateway::trend::Levels>,
     /// Detected bit.
     pub detected: bool,
     /// Newest report's receive time, Unix ms.
@@ -208,8 +219,8 @@ pub struct PhysicalRow {
     pub state: State,
     /// Worst kind and score.
     pub worst_kind: Option<String>,
-    /// Its worst newest score.
-    pub worst_db: Option<f64>,
+    /// Its worst newest amplitude over the sensors, g.
+    pub worst_amplitude_g: Option<f64>,
     /// Sensors mapped.
     #[serde(serialize_with = "ser_sensors")]
     pub sensors: Vec<SensorRef>,
@@ -238,21 +249,9 @@ pub struct Fleet {
     pub states: Vec<DefectState>,
 }
 
-fn manual_map(inner: &mut Inner) -> Result<HashMap<(u16, u8, String), f64>, DataError> {
-    Ok(inner
-        .store
-        .manual_baselines()?
-        .into_iter()
-        .map(|(n, b, k, v)| ((n, b, k), v))
-        .collect())
-}
-
 /// Computes the fleet.
 pub fn fleet(inner: &mut Inner, cfg: &WebConfig, now_ms: i64) -> Result<Fleet, DataError> {
-    let manual = manual_map(inner)?;
-    let states = inner
-        .summary
-        .states(&|n, b, k| manual.get(&(n, b, k.to_string())).copied());
+    let states = inner.summary.states();
     let links = inner.summary.links();
     let status: HashMap<u16, crate::gateway::store::NodeStatus> = inner
         .store
@@ -283,10 +282,6 @@ pub fn fleet(inner: &mut Inner, cfg: &WebConfig, now_ms: i64) -> Result<Fleet, D
         let last = nf.and_then(|n| n.last.as_ref());
         let link = links.get(&b.node);
         let st = status.get(&b.node);
-        let amp = inner
-            .summary
-            .last_amp(&(b.node, b.bearing, b.worst.kind.clone()))
-            .and_then(|a| a.0);
         channels.push(ChannelRow {
             node: b.node,
             bearing: b.bearing,
@@ -296,11 +291,13 @@ pub fn fleet(inner: &mut Inner, cfg: &WebConfig, now_ms: i64) -> Result<Fleet, D
                 .and_then(|m| m.name_of(b.node, b.bearing))
                 .map(str::to_string),
             state: b.worst.state,
-            stale: stale_of(b.node, &inner.summary),
+            stale: b.worst.stale || stale_of(b.node, &inner.summary),
             worst_kind: b.worst.kind.clone(),
             score_db: b.worst.latest_db,
-            baseline_db: b.worst.baseline_db,
-            amplitude_g: amp,
+            amplitude_g: b.worst.amplitude_g,
+            baseline_g: b.worst.baseline_g,
+            severity_db: b.worst.severity_db,
+            levels: b.worst.levels,
             detected: b.worst.detected,
             last_report_ms: nf.and_then(|n| n.last_time_ms),
             reports: nf.map_or(0, |n| n.reports),
@@ -342,17 +339,17 @@ pub fn fleet(inner: &mut Inner, cfg: &WebConfig, now_ms: i64) -> Result<Fleet, D
                 let worst = c
                     .defects
                     .iter()
-                    .filter(|d| d.state == c.state && d.worst_db.is_some())
+                    .filter(|d| d.state == c.state && d.worst_amplitude_g.is_some())
                     .max_by(|a, b| {
-                        a.worst_db
+                        a.worst_amplitude_g
                             .unwrap_or(f64::MIN)
-                            .total_cmp(&b.worst_db.unwrap_or(f64::MIN))
+                            .total_cmp(&b.worst_amplitude_g.unwrap_or(f64::MIN))
                     });
                 PhysicalRow {
                     name: c.name.clone(),
                     state: c.state,
                     worst_kind: worst.map(|d| d.kind.clone()),
-                    worst_db: worst.and_then(|d| d.worst_db),
+                    worst_amplitude_g: worst.and_then(|d| d.worst_amplitude_g),
                     detecting: worst.map_or(0, |d| d.detecting),
                     sensors: pb.sensors.clone(),
                     stale: pb.sensors.iter().any(|s| stale_of(s.node, &inner.summary)),
@@ -389,7 +386,7 @@ fn state_cell(state: State, stale: bool, not_covered: bool) -> String {
     } else {
         state_badge(state_class(state), state.label())
     };
-    if stale {
+    if stale && state != State::Stale {
         s.push(' ');
         s.push_str(&state_badge("stale", "STALE"));
     }
@@ -399,8 +396,8 @@ fn state_cell(state: State, stale: bool, not_covered: bool) -> String {
 fn matches_filter(f: &str, state: State, stale: bool, not_covered: bool) -> bool {
     match f {
         "" | "all" => true,
-        "stale" => stale,
-        "notcovered" => not_covered,
+        "stale" => stale || state == State::Stale,
+        "notcovered" => not_covered || state == State::NotCovered,
         x => state_class(state) == x && !not_covered,
     }
 }
@@ -474,14 +471,10 @@ pub fn fleet_page(f: &Fleet, q: &FleetQuery, session: &Session, cfg: &WebConfig)
         .unwrap_or(State::NoData);
     let _ = write!(
         b,
-        "<h1>Fleet</h1><p class=\"muted small\">{} sensor channels on {} nodes · worst state {} · limits +{} / +{} dB over baseline, {} / {} dB absolute · stale after {} without a report</p>",
+        "<h1>Fleet</h1><p class=\"muted small\">{} sensor channels on {} nodes · worst state {} · states graded on amplitude over the learned baseline with the limits stored per measuring point (<code>envord gateway limits show</code>) · node silent after {} without a report</p>",
         f.channels.len(),
         f.channels.iter().map(|c| c.node).collect::<std::collections::BTreeSet<_>>().len(),
         state_badge(state_class(worst), worst.label()),
-        cfg.limits.alert_rise_db,
-        cfg.limits.danger_rise_db,
-        cfg.limits.alert_abs_db,
-        cfg.limits.danger_abs_db,
         clock::span(cfg.stale_after_ms)
     );
     b.push_str("<p class=\"filters\">Show: ");
@@ -492,6 +485,7 @@ pub fn fleet_page(f: &Fleet, q: &FleetQuery, session: &Session, cfg: &WebConfig)
         ("normal", "normal"),
         ("learning", "learning"),
         ("nodata", "no data"),
+        ("notcovered", "not covered"),
         ("stale", "stale"),
     ] {
         let _ = write!(
@@ -504,7 +498,7 @@ pub fn fleet_page(f: &Fleet, q: &FleetQuery, session: &Session, cfg: &WebConfig)
     }
     b.push_str("· Export: <a href=\"/export/fleet.csv\">CSV</a> <a href=\"/export/fleet.json\">JSON</a></p>");
     if !f.physical.is_empty() {
-        b.push_str("<h2>Physical bearings</h2><div class=\"wrap\"><table id=\"physical\" class=\"cards\"><thead><tr><th>State</th><th>Bearing</th><th>Worst finding</th><th class=\"num\">Score dB</th><th>Sensors</th><th>Detected by</th></tr></thead><tbody>");
+        b.push_str("<h2>Physical bearings</h2><div class=\"wrap\"><table id=\"physical\" class=\"cards\"><thead><tr><th>State</th><th>Bearing</th><th>Worst finding</th><th class=\"num\">Amplitude g</th><th>Sensors</th><th>Detected by</th></tr></thead><tbody>");
         let mut ph: Vec<&PhysicalRow> = f
             .physical
             .iter()
@@ -512,9 +506,9 @@ pub fn fleet_page(f: &Fleet, q: &FleetQuery, session: &Session, cfg: &WebConfig)
             .collect();
         ph.sort_by(|a, b| {
             b.state.cmp(&a.state).then(
-                b.worst_db
+                b.worst_amplitude_g
                     .unwrap_or(f64::MIN)
-                    .total_cmp(&a.worst_db.unwrap_or(f64::MIN)),
+                    .total_cmp(&a.worst_amplitude_g.unwrap_or(f64::MIN)),
             )
         });
         for p in ph {
@@ -525,14 +519,14 @@ pub fn fleet_page(f: &Fleet, q: &FleetQuery, session: &Session, cfg: &WebConfig)
                 .collect();
             let _ = write!(
                 b,
-                "<tr data-name=\"{}\"><td>{}</td><td data-l=\"Bearing\"><a href=\"/bearing/{}/{}\">{}</a></td><td data-l=\"Worst\">{}</td><td class=\"num\" data-l=\"Score dB\">{}</td><td data-l=\"Sensors\">{}</td><td data-l=\"Detected by\">{}/{}</td></tr>",
+                "<tr data-name=\"{}\"><td>{}</td><td data-l=\"Bearing\"><a href=\"/bearing/{}/{}\">{}</a></td><td data-l=\"Worst\">{}</td><td class=\"num\" data-l=\"Amplitude g\">{}</td><td data-l=\"Sensors\">{}</td><td data-l=\"Detected by\">{}/{}</td></tr>",
                 esc(&p.name),
                 state_cell(p.state, p.stale, p.state == State::NoData),
                 p.sensors.first().map_or(0, |s| s.node),
                 p.sensors.first().map_or(0, |s| s.bearing),
                 esc(&p.name),
                 esc(p.worst_kind.as_deref().unwrap_or("–")),
-                fmt_db(p.worst_db),
+                fmt_g(p.worst_amplitude_g),
                 sensors.join(", "),
                 p.detecting,
                 p.sensors.len()
@@ -576,14 +570,18 @@ pub fn fleet_page(f: &Fleet, q: &FleetQuery, session: &Session, cfg: &WebConfig)
     }
     b.push_str("<th>Health</th><th>Band</th></tr></thead><tbody>");
     for c in rows {
-        let rise = c.score_db.zip(c.baseline_db).map(|(s, b)| s - b);
         let finding = format!(
-            "{} {} dB{}{}{}",
+            "{} {} g · baseline {} g{}{}{}",
             esc(&c.worst_kind),
-            fmt_db(c.score_db),
-            rise.map_or(String::new(), |r| format!(" ({r:+.1} over baseline)")),
-            c.amplitude_g
-                .map_or(String::new(), |a| format!(" · {a:.4} g")),
+            fmt_g(c.amplitude_g),
+            fmt_g(c.baseline_g),
+            c.severity_db
+                .map_or(String::new(), |r| format!(" · {r:+.1} dB over baseline")),
+            c.levels.map_or(String::new(), |l| format!(
+                " · alert {:.3e} / danger {:.3e} g",
+                l.alert_abs_g.map_or(l.alert_g, |a| a.min(l.alert_g)),
+                l.danger_abs_g.map_or(l.danger_g, |a| a.min(l.danger_g))
+            )),
             if c.detected { " · detected" } else { "" }
         );
         let link = format!(
@@ -631,18 +629,18 @@ pub fn fleet_page(f: &Fleet, q: &FleetQuery, session: &Session, cfg: &WebConfig)
             esc(&health)
         );
     }
-    b.push_str("</tbody></table></div><p class=\"muted small\">States: &#9675; NORMAL, &#9676; LEARNING (baseline not yet learned), &#9650; ALERT, &#9632; DANGER, &#8211; NO-DATA or NOT COVERED, &#9719; STALE (node silent). The state is the worst defect of the channel, as <code>envord gateway status</code> prints it.</p>");
+    b.push_str("</tbody></table></div><p class=\"muted small\">States: &#9675; NORMAL, &#9676; LEARNING (baseline not yet learned), &#9650; ALERT, &#9632; DANGER, &#8211; NO DATA, &#8856; NOT COVERED (the node's setting cannot search the line), &#9719; STALE (node silent). The state is the worst defect of the channel, as <code>envord gateway status</code> prints it.</p>");
     layout("Fleet", "fleet", Some(session), &b)
 }
 
 /// Fleet export as CSV.
 pub fn fleet_csv(f: &Fleet) -> String {
-    let mut s = String::from("node,bearing,name,state,stale,worst_kind,score_db,baseline_db,amplitude_g,detected,last_report,reports,missing,gaps,rssi_dbm,snr_db,sensor_faults,tach_faults,battery_low,refused_downlinks,band_lo_hz,band_hi_hz,band_source\n");
+    let mut s = String::from("node,bearing,name,state,stale,worst_kind,score_db,amplitude_g,baseline_g,severity_db,detected,last_report,reports,missing,gaps,rssi_dbm,snr_db,sensor_faults,tach_faults,battery_low,refused_downlinks,band_lo_hz,band_hi_hz,band_source\n");
     let o = |x: Option<f64>| x.map_or(String::new(), |v| format!("{v}"));
     for c in &f.channels {
         let _ = writeln!(
             s,
-            "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
+            "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
             c.node,
             c.bearing,
             csv_field(c.name.as_deref().unwrap_or("")),
@@ -650,8 +648,9 @@ pub fn fleet_csv(f: &Fleet) -> String {
             c.stale,
             c.worst_kind,
             o(c.score_db),
-            o(c.baseline_db),
             o(c.amplitude_g),
+            o(c.baseline_g),
+            o(c.severity_db),
             c.detected,
             c.last_report_ms.map_or(String::new(), clock::rfc3339),
             c.reports,
@@ -693,18 +692,6 @@ pub fn sensors_of(cfg: &WebConfig, node: u16, bearing: u8) -> (Option<String>, V
     }
 }
 
-/// The alert and danger levels the state logic applies to a score with this
-/// baseline: the lower of the absolute limit and baseline + rise.
-pub fn effective_levels(baseline: Option<f64>, l: &crate::gateway::trend::Limits) -> (f64, f64) {
-    match baseline {
-        Some(b) => (
-            l.alert_abs_db.min(b + l.alert_rise_db),
-            l.danger_abs_db.min(b + l.danger_rise_db),
-        ),
-        None => (l.alert_abs_db, l.danger_abs_db),
-    }
-}
-
 /// Everything the bearing page shows of one sensor.
 pub struct SensorData {
     /// The sensor.
@@ -713,6 +700,9 @@ pub struct SensorData {
     pub reports: Vec<ReportRow>,
     /// States per kind.
     pub states: Vec<DefectState>,
+    /// Graded lines per kind (as `gateway trend` lists them, with the
+    /// levels each report was graded against).
+    pub lines: Vec<crate::gateway::trend::Line>,
     /// Band changes (time or arrival index, label).
     pub band_changes: Vec<(Option<i64>, i64, String)>,
 }
@@ -722,30 +712,17 @@ pub fn bearing_data(
     inner: &mut Inner,
     sensors: &[SensorRef],
 ) -> Result<Vec<SensorData>, DataError> {
-    let manual = manual_map(inner)?;
     let mut out = Vec::new();
     for s in sensors {
         let reports = inner.store.sensor_reports(s.node, s.bearing)?;
-        let obs: Vec<crate::gateway::store::Observation> = reports
+        let lines: Vec<crate::gateway::trend::Line> = inner
+            .summary
+            .lines()
             .iter()
-            .flat_map(|r| {
-                r.defects
-                    .iter()
-                    .map(|d| crate::gateway::store::Observation {
-                        report_id: r.id,
-                        node: r.node,
-                        seq: r.seq,
-                        rx_time: r.rx_time.clone(),
-                        bearing: d.bearing,
-                        kind: d.kind.clone(),
-                        score_db: d.score_db,
-                        detected: d.detected,
-                    })
-            })
+            .filter(|l| l.state.node == s.node && l.state.bearing == s.bearing)
+            .cloned()
             .collect();
-        let states = crate::gateway::trend::evaluate(&obs, inner.summary.limits(), &|n, b, k| {
-            manual.get(&(n, b, k.to_string())).copied()
-        });
+        let states = lines.iter().map(|l| l.state.clone()).collect();
         let status = inner.store.node_status(s.node)?;
         let mut band_changes = Vec::new();
         for w in status.windows(2) {
@@ -771,6 +748,7 @@ pub fn bearing_data(
             sensor: *s,
             reports,
             states,
+            lines,
             band_changes,
         });
     }
@@ -794,7 +772,7 @@ pub fn bearing_page(
     cfg: &WebConfig,
     focus: SensorRef,
 ) -> String {
-    let limits = &cfg.limits;
+    let _ = cfg;
     let time_axis = data
         .iter()
         .all(|d| d.reports.iter().all(|r| r.time_ms().is_some()))
@@ -832,73 +810,91 @@ pub fn bearing_page(
         );
     }
     b.push_str("</p>");
-    let xval = |r: &ReportRow, idx: usize| -> f64 {
-        #[allow(clippy::cast_precision_loss)]
-        let v = if time_axis {
-            r.time_ms().unwrap_or(0) as f64
-        } else {
-            idx as f64 + 1.0
-        };
-        v
-    };
     // Estimates.
     let mut etas = Vec::new();
     b.push_str("<div class=\"grid2\">");
     for k in DefectKind::ALL {
         let mut series = Vec::new();
         let mut amps = Vec::new();
-        let mut levels = Vec::new();
+        let mut levels_series: Vec<Series> = Vec::new();
         let mut marks = Vec::new();
         let mut legend = String::new();
         for (i, d) in data.iter().enumerate() {
+            let label = format!("node {} b{}", d.sensor.node, d.sensor.bearing);
+            let line = d.lines.iter().find(|l| l.state.kind == k.name());
+            let hist: &[crate::gateway::trend::Graded] = line.map_or(&[], |l| &l.history);
+            let xg = |g: &crate::gateway::trend::Graded, idx: usize| -> f64 {
+                #[allow(clippy::cast_precision_loss)]
+                let v = if time_axis {
+                    g.point.time_ms.unwrap_or(0) as f64
+                } else {
+                    idx as f64 + 1.0
+                };
+                v
+            };
+            // amplitude (what the state is graded on) and each report's levels
             let mut pts = Vec::new();
-            let mut apts = Vec::new();
+            let mut spts = Vec::new();
+            let mut lv_alert = Vec::new();
+            let mut lv_danger = Vec::new();
+            let mut lv_base = Vec::new();
             let mut timed = Vec::new();
-            for (idx, r) in d.reports.iter().enumerate() {
-                for x in r.defects.iter().filter(|x| x.kind == k.name()) {
-                    pts.push((xval(r, idx), x.score_db));
-                    apts.push((xval(r, idx), x.amplitude_1x_g));
-                    if let (Some(t), Some(y)) = (r.time_ms(), x.score_db) {
-                        timed.push((t, y));
-                    }
+            for (idx, g) in hist.iter().enumerate() {
+                let x = xg(g, idx);
+                pts.push((x, g.point.amplitude_g.filter(|_| g.point.searched)));
+                spts.push((x, g.severity_db));
+                lv_base.push((x, Some(g.levels.baseline_g)));
+                lv_alert.push((
+                    x,
+                    Some(
+                        g.levels
+                            .alert_abs_g
+                            .map_or(g.levels.alert_g, |a| a.min(g.levels.alert_g)),
+                    ),
+                ));
+                lv_danger.push((
+                    x,
+                    Some(
+                        g.levels
+                            .danger_abs_g
+                            .map_or(g.levels.danger_g, |a| a.min(g.levels.danger_g)),
+                    ),
+                ));
+                if let (Some(t), Some(y)) = (g.point.time_ms, g.severity_db) {
+                    timed.push((t, y));
                 }
             }
-            let label = format!("node {} b{}", d.sensor.node, d.sensor.bearing);
-            let st = d.states.iter().find(|s| s.kind == k.name());
+            let st = line.map(|l| &l.state);
             if let Some(st) = st {
-                let (al, dl) = effective_levels(st.baseline_db, limits);
-                if let Some(base) = st.baseline_db {
-                    levels.push(Level {
-                        kind: LevelKind::Baseline,
-                        y: base,
-                        label: format!("{label}: baseline {base:.1} dB"),
-                    });
-                }
-                levels.push(Level {
-                    kind: LevelKind::Alert,
-                    y: al,
-                    label: format!("{label}: alert at {al:.1} dB"),
-                });
-                levels.push(Level {
-                    kind: LevelKind::Danger,
-                    y: dl,
-                    label: format!("{label}: danger at {dl:.1} dB"),
-                });
+                let lv = st.levels;
                 let _ = write!(
                     legend,
-                    "<li>{}{label}: {} {} dB · baseline {}{} · alert {al:.1} · danger {dl:.1}</li>",
+                    "<li>{}{label}: {} {} g · baseline {} g{} · severity {} dB · alert {} g (+{:.1} dB) · danger {} g (+{:.1} dB){}</li>",
                     Marker::nth(i).icon(&format!("s{}", i % 4)),
-                    state_badge(state_class(st.state), st.state.label()),
-                    fmt_db(st.latest_db),
-                    fmt_db(st.baseline_db),
+                    state_cell(st.state, st.stale, false),
+                    fmt_g(st.amplitude_g),
+                    fmt_g(st.baseline_g),
                     match st.baseline_origin {
                         Some(crate::gateway::trend::BaselineOrigin::Manual) => " (set by hand)",
                         Some(crate::gateway::trend::BaselineOrigin::Learned) => " (learned)",
-                        None => " (learning)",
+                        Some(crate::gateway::trend::BaselineOrigin::Floor) | None => " (learning; floor)",
+                    },
+                    fmt_db(st.severity_db),
+                    fmt_g(lv.map(|l| l.alert_g)),
+                    st.limits.alert_db,
+                    fmt_g(lv.map(|l| l.danger_g)),
+                    st.limits.danger_db,
+                    match (lv.and_then(|l| l.alert_abs_g), lv.and_then(|l| l.danger_abs_g)) {
+                        (None, None) => String::new(),
+                        (a, d) => format!(" · absolute alert {} / danger {} g", fmt_g(a), fmt_g(d)),
                     }
                 );
                 if time_axis {
-                    etas.push((k, label.clone(), estimate::time_to_danger(&timed, dl)));
+                    etas.push((
+                        k,
+                        label.clone(),
+                        estimate::time_to_danger(&timed, st.limits.danger_db),
+                    ));
                 }
             }
             for (t, id, l) in &d.band_changes {
@@ -920,12 +916,29 @@ pub fn bearing_page(
                     });
                 }
             }
+            let sensor = format!("{}-{}", d.sensor.node, d.sensor.bearing);
+            for (name, class, p) in [
+                ("baseline", "lv-base", lv_base),
+                ("alert level", "lv-alert", lv_alert),
+                ("danger level", "lv-danger", lv_danger),
+            ] {
+                if !p.is_empty() {
+                    levels_series.push(Series {
+                        label: format!("{label}: {name} of each report"),
+                        class: class.to_string(),
+                        marker: Marker::Circle,
+                        dash: "",
+                        sensor: format!("levels-{sensor}"),
+                        points: p,
+                    });
+                }
+            }
             series.push(Series {
                 label: label.clone(),
                 class: format!("s{}", i % 4),
                 marker: Marker::nth(i),
                 dash: "",
-                sensor: format!("{}-{}", d.sensor.node, d.sensor.bearing),
+                sensor: sensor.clone(),
                 points: pts,
             });
             amps.push(Series {
@@ -933,8 +946,8 @@ pub fn bearing_page(
                 class: format!("s{}", i % 4),
                 marker: Marker::nth(i),
                 dash: "",
-                sensor: format!("{}-{}", d.sensor.node, d.sensor.bearing),
-                points: apts,
+                sensor,
+                points: spts,
             });
         }
         if series.iter().all(|s| s.points.is_empty()) {
@@ -942,20 +955,23 @@ pub fn bearing_page(
         }
         let _ = write!(
             b,
-            "<section class=\"panel\" data-kind=\"{}\"><h2>{}: score</h2>{}<ul class=\"legend\">{legend}<li><span class=\"lg lg-base\"></span>baseline</li><li><span class=\"lg lg-alert\"></span>alert level</li><li><span class=\"lg lg-danger\"></span>danger level</li>{}</ul>",
+            "<section class=\"panel\" data-kind=\"{}\"><h2>{}: amplitude</h2>{}<ul class=\"legend\">{legend}<li><span class=\"lg lg-base\"></span>baseline of each report</li><li><span class=\"lg lg-alert\"></span>alert level of each report</li><li><span class=\"lg lg-danger\"></span>danger level of each report (the lower of the absolute level and the baseline raised by danger dB)</li>{}</ul>",
             k.name(),
             kind_caption(k),
-            chart::series_chart(&format!("{} score against time", k.name()), "score dB", &series, &levels, &marks, time_axis),
+            {
+                series.extend(levels_series);
+                chart::series_chart(&format!("{} amplitude against time", k.name()), "g", &series, &[], &marks, time_axis)
+            },
             if marks.is_empty() { String::new() } else { "<li><span class=\"lg lg-mark\"></span>band change</li>".to_string() }
         );
         if amps.iter().any(|s| s.points.iter().any(|p| p.1.is_some())) {
             let _ = write!(
                 b,
-                "<details><summary>{} amplitude at the defect order (1x), g</summary>{}</details>",
+                "<details><summary>{} severity over the baseline, dB</summary>{}</details>",
                 k.name(),
                 chart::series_chart(
-                    &format!("{} amplitude against time", k.name()),
-                    "g",
+                    &format!("{} severity against time", k.name()),
+                    "dB over baseline",
                     &amps,
                     &[],
                     &marks,

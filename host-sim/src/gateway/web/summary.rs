@@ -1,18 +1,15 @@
-//! The dashboard's running summary of the store: per sensor channel and
-//! defect the reports the state logic needs (first baseline reports, newest
-//! valid, newest), per node its newest report and link counters, and the
-//! state changes as alarm events. It is folded once over the store and then
-//! only over new report rows, so a page costs O(channels), not O(reports).
+//! The dashboard's running summary of the store: per node its newest report
+//! and link counters, per line the newest amplitude and harmonics, the graded
+//! lines and the state changes as alarm events. Node data is folded once over
+//! the store and then only over new report rows.
 //!
-//! States come from `trend::evaluate` on each key's reduced list, which gives
-//! the same baseline, newest score, detected bit and state as `gateway status`
-//! over every observation (evaluate only reads the first `baseline_count`
-//! valid scores, the newest valid score and the newest detected bit).
+//! States are not computed here: every refresh takes the graded lines from
+//! [`WebStore::graded`], i.e. `trend_cmd::grade_store`, the function
+//! `gateway status` prints, so the pages cannot disagree with it.
 
 use super::data::{DataError, NewEvent, ReportRow, WebStore};
 use crate::gateway::seq::{NodeSeqStats, SeqTracker};
-use crate::gateway::store::Observation;
-use crate::gateway::trend::{self, DefectState, Limits, State};
+use crate::gateway::trend::{DefectState, Line, State};
 use std::collections::{BTreeMap, HashMap};
 
 /// (node, bearing index, defect kind).
@@ -21,57 +18,10 @@ pub type Key = (u16, u8, String);
 /// What the fold keeps of one key.
 #[derive(Clone, Debug, Default)]
 pub struct KeyFold {
-    first: Vec<Lite>,
-    last_valid: Option<Lite>,
-    last: Option<Lite>,
     /// Valid scores seen.
     pub count: usize,
-    /// State after the newest report (as folded, for events).
-    pub state: Option<State>,
     /// Amplitude (1x) and harmonics of the newest report.
     pub last_amp: Option<(Option<f64>, Option<i64>)>,
-}
-
-/// One observation without its key (the key is the map's).
-#[derive(Clone, Copy, Debug, Default)]
-struct Lite {
-    report_id: i64,
-    seq: u16,
-    score_db: Option<f64>,
-    detected: bool,
-}
-
-impl KeyFold {
-    /// The observations `trend::evaluate` needs, in arrival order.
-    fn reduced(&self, key: &Key) -> Vec<Observation> {
-        let mut v: Vec<Lite> = self.first.clone();
-        for o in [&self.last_valid, &self.last].into_iter().flatten() {
-            if v.iter().all(|x| x.report_id != o.report_id) {
-                v.push(*o);
-            }
-        }
-        v.into_iter()
-            .map(|o| Observation {
-                report_id: o.report_id,
-                node: key.0,
-                seq: o.seq,
-                rx_time: None,
-                bearing: key.1,
-                kind: key.2.clone(),
-                score_db: o.score_db,
-                detected: o.detected,
-            })
-            .collect()
-    }
-
-    fn learned(&self, l: &Limits) -> Option<f64> {
-        if l.baseline_count == 0 || self.first.len() < l.baseline_count {
-            return None;
-        }
-        let s: Vec<f64> = self.first.iter().filter_map(|o| o.score_db).collect();
-        #[allow(clippy::cast_precision_loss)]
-        Some(s.iter().sum::<f64>() / s.len() as f64)
-    }
 }
 
 /// What the fold keeps of one node.
@@ -93,7 +43,7 @@ pub struct NodeFold {
 
 /// The summary.
 pub struct Summary {
-    limits: Limits,
+    lines: Vec<Line>,
     names: HashMap<(u16, u8), String>,
     upto: i64,
     /// Per key.
@@ -109,17 +59,19 @@ fn state_name(s: State) -> &'static str {
         State::NoData => "nodata",
         State::Learning => "learning",
         State::Normal => "normal",
+        State::Stale => "stale",
+        State::NotCovered => "not_covered",
         State::Alert => "alert",
         State::Danger => "danger",
     }
 }
 
 impl Summary {
-    /// An empty summary under these limits; `names` are the physical
-    /// bearings' names of the gateway map (alarm events carry them).
-    pub fn new(limits: Limits, names: HashMap<(u16, u8), String>) -> Self {
+    /// An empty summary; `names` are the physical bearings' names of the
+    /// gateway map (alarm events carry them).
+    pub fn new(names: HashMap<(u16, u8), String>) -> Self {
         Self {
-            limits,
+            lines: Vec::new(),
             names,
             upto: 0,
             keys: BTreeMap::new(),
@@ -129,24 +81,25 @@ impl Summary {
         }
     }
 
-    /// The limits in use.
-    pub fn limits(&self) -> &Limits {
-        &self.limits
-    }
-
-    /// Folds reports stored since the last call and records the state
-    /// changes they caused as alarm events; returns the reports folded.
-    pub fn refresh(&mut self, store: &mut dyn WebStore) -> Result<usize, DataError> {
-        let manual: HashMap<Key, f64> = store
-            .manual_baselines()?
-            .into_iter()
-            .map(|(n, b, k, v)| ((n, b, k), v))
-            .collect();
+    /// Folds reports stored since the last call, grades the store again at
+    /// `now_ms` and records the state changes of the new reports as alarm
+    /// events; returns the reports folded.
+    pub fn refresh(
+        &mut self,
+        store: &mut dyn WebStore,
+        now_ms: Option<i64>,
+    ) -> Result<usize, DataError> {
+        let before = self.upto;
         let mut n = 0;
         store.reports_after(self.upto, &mut |r| {
-            self.fold(r, &manual);
+            self.fold(r);
             n += 1;
         })?;
+        // staleness moves with the clock: grade on every refresh
+        self.lines = store.graded(now_ms)?;
+        if n > 0 {
+            self.events_after(before);
+        }
         if !self.pending.is_empty() {
             store.record_events(&self.pending)?;
             self.pending.clear();
@@ -154,58 +107,48 @@ impl Summary {
         Ok(n)
     }
 
-    fn fold(&mut self, mut r: ReportRow, manual: &HashMap<Key, f64>) {
+    /// Alarm events (entering or leaving ALERT/DANGER) caused by reports
+    /// with id > `after`, from the graded history of each line.
+    fn events_after(&mut self, after: i64) {
+        let alarm = |s: State| s >= State::Alert;
+        for l in &self.lines {
+            let mut prev = State::NoData;
+            for g in &l.history {
+                let now = g.state;
+                let p = &g.point;
+                if p.report_id > after && now != prev && (alarm(now) || alarm(prev)) {
+                    self.pending.push(NewEvent {
+                        at_ms: p.time_ms.unwrap_or(0),
+                        node: p.node,
+                        bearing: p.bearing,
+                        bearing_name: self
+                            .names
+                            .get(&(p.node, p.bearing))
+                            .cloned()
+                            .unwrap_or_else(|| format!("node {} bearing {}", p.node, p.bearing)),
+                        kind: p.kind.clone(),
+                        event: if alarm(now) { "enter" } else { "leave" },
+                        from: state_name(prev),
+                        to: state_name(now),
+                        report_id: p.report_id,
+                    });
+                }
+                prev = now;
+            }
+        }
+    }
+
+    fn fold(&mut self, mut r: ReportRow) {
         self.upto = self.upto.max(r.id);
         self.tracker.observe(r.node, r.seq, &r.payload);
         let time = r.time_ms();
         let flags = dsp_core::frame::QualityFlags::from_bits(r.flags);
         for d in std::mem::take(&mut r.defects) {
-            let o = Lite {
-                report_id: r.id,
-                seq: r.seq,
-                score_db: d.score_db,
-                detected: d.detected,
-            };
-            let key = (r.node, d.bearing, d.kind);
-            let k = match self.keys.get_mut(&key) {
-                Some(k) => k,
-                None => self.keys.entry(key.clone()).or_default(),
-            };
-            if o.score_db.is_some() {
+            let k = self.keys.entry((r.node, d.bearing, d.kind)).or_default();
+            if d.score_db.is_some() {
                 k.count += 1;
-                if k.first.len() < self.limits.baseline_count {
-                    k.first.push(o);
-                }
-                k.last_valid = Some(o);
             }
-            k.last = Some(o);
             k.last_amp = Some((d.amplitude_1x_g, d.harmonics));
-            let baseline = manual
-                .get(&key)
-                .copied()
-                .or_else(|| k.learned(&self.limits));
-            let latest = k.last_valid.as_ref().and_then(|o| o.score_db);
-            let now = trend::classify(latest, baseline, &self.limits);
-            let before = k.state.unwrap_or(State::NoData);
-            k.state = Some(now);
-            let alarm = |s: State| s >= State::Alert;
-            if now != before && (alarm(now) || alarm(before)) {
-                self.pending.push(NewEvent {
-                    at_ms: time.unwrap_or(0),
-                    node: r.node,
-                    bearing: d.bearing,
-                    bearing_name: self
-                        .names
-                        .get(&(r.node, d.bearing))
-                        .cloned()
-                        .unwrap_or_else(|| format!("node {} bearing {}", r.node, d.bearing)),
-                    kind: key.2.clone(),
-                    event: if alarm(now) { "enter" } else { "leave" },
-                    from: state_name(before),
-                    to: state_name(now),
-                    report_id: r.id,
-                });
-            }
         }
         let nf = self.nodes.entry(r.node).or_default();
         nf.reports += 1;
@@ -220,17 +163,14 @@ impl Summary {
         nf.last = Some(r);
     }
 
-    /// Every key's state as `gateway status` computes it.
-    pub fn states(&self, manual: &dyn Fn(u16, u8, &str) -> Option<f64>) -> Vec<DefectState> {
-        let mut out = Vec::with_capacity(self.keys.len());
-        for (key, k) in &self.keys {
-            let obs = k.reduced(key);
-            for mut s in trend::evaluate(&obs, &self.limits, manual) {
-                s.reports = k.count;
-                out.push(s);
-            }
-        }
-        out
+    /// Every line's state as `gateway status` prints it.
+    pub fn states(&self) -> Vec<DefectState> {
+        self.lines.iter().map(|l| l.state.clone()).collect()
+    }
+
+    /// The graded lines (state and per-report history with its levels).
+    pub fn lines(&self) -> &[Line] {
+        &self.lines
     }
 
     /// Link counters per node (as `gateway status` prints them).
