@@ -210,7 +210,11 @@ pub fn series_chart(
     if !y0.is_finite() {
         (y0, y1) = (0.0, 1.0);
     }
-    let pad = ((y1 - y0) * 0.08).max(0.5);
+    // pad relative to the values: amplitudes in g are thousandths
+    let mut pad = ((y1 - y0) * 0.08).max(y0.abs().max(y1.abs()) * 0.05);
+    if pad <= 0.0 {
+        pad = 0.5;
+    }
     y0 -= pad;
     y1 += pad;
     let ystep = nice_step(y1 - y0, 5.0);
