@@ -9,7 +9,8 @@
     clippy::expect_used,
     clippy::indexing_slicing,
     clippy::cast_precision_loss,
-    clippy::cast_possible_truncation
+    clippy::cast_possible_truncation,
+    clippy::panic
 )]
 
 use std::path::PathBuf;

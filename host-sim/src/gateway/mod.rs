@@ -28,6 +28,7 @@ pub mod store;
 pub mod timefmt;
 pub mod trend;
 pub mod trend_cmd;
+pub mod web;
 
 use crate::error::CliError;
 use dsp_core::frame::{decode_any, DefectKind, Frame};
@@ -61,6 +62,10 @@ enum GatewayCommand {
     Downlink(downlink::DownlinkArgs),
     /// Make a node's downlink key and identity record (provisioning).
     Provision(downlink::ProvisionArgs),
+    /// Serve the plant dashboard (fleet, trends, alarm events) behind a login.
+    Web(web::WebArgs),
+    /// Manage the dashboard's users file (add a user, hash a password).
+    User(web::UserArgs),
 }
 
 #[derive(clap::Args, Debug)]
@@ -151,6 +156,8 @@ pub fn run(args: GatewayArgs) -> Result<(), CliError> {
         GatewayCommand::Baseline(a) => baseline_cmd(a),
         GatewayCommand::Downlink(a) => downlink::downlink_cmd(&a),
         GatewayCommand::Provision(a) => downlink::provision_cmd(&a),
+        GatewayCommand::Web(a) => web::web_cmd(&a),
+        GatewayCommand::User(a) => web::user_cmd(&a),
     }
 }
 

@@ -130,6 +130,10 @@ pub const MIGRATIONS: &[&str] = &[
         origin TEXT NOT NULL,
         PRIMARY KEY (node_id, bearing, kind)
     );",
+    // 5: indexes of the dashboard's reads (`gateway web`): a node's status
+    // frames, and the check that a derived alarm event is already stored.
+    "CREATE INDEX node_status_by_node ON node_status (node_id, id);
+    CREATE INDEX alarm_events_by_report ON alarm_events (report_id, node_id);",
 ];
 
 /// Schema version this build writes.
