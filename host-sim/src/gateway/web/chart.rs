@@ -228,7 +228,17 @@ pub fn series_chart(
         "<svg class=\"chart\" viewBox=\"0 0 {W} {H}\" role=\"img\" aria-label=\"{}\" preserveAspectRatio=\"xMidYMid meet\">",
         esc(aria)
     );
-    // grid and axes
+    // grid and axes; tick decimals follow the step (amplitudes in g are
+    // thousandths, scores whole dB)
+    #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
+    let dec = (-ystep.log10().floor()).clamp(0.0, 9.0) as usize;
+    let tick = |v: f64| {
+        if ystep >= 1.0 {
+            trim_num(v)
+        } else {
+            format!("{v:.dec$}")
+        }
+    };
     let mut y = y0;
     while y <= y1 + ystep * 0.01 {
         let _ = write!(
@@ -239,7 +249,7 @@ pub fn series_chart(
             py(y),
             L - 5.0,
             py(y) + 3.5,
-            trim_num(y)
+            tick(y)
         );
         y += ystep;
     }
