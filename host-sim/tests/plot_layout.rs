@@ -9,8 +9,7 @@
     clippy::expect_used,
     clippy::indexing_slicing,
     clippy::cast_precision_loss,
-    clippy::cast_possible_truncation,
-    clippy::panic
+    clippy::cast_possible_truncation
 )]
 
 use std::path::PathBuf;
