@@ -11,12 +11,24 @@
 //! * `downlink`: build a signed downlink (configuration, measure now, band
 //!   survey) for a node from its key file; `provision`: make a node's key and
 //!   identity record.
+//! * `serve`: the long-running MQTT consumer (docs/gateway.md), storing
+//!   through the same path as `import` ([`ingest`]).
+//!
+//! Every command that takes `--db` accepts a SQLite file or a
+//! `postgres://` URL ([`db`]).
 
+pub mod alarms;
+pub mod db;
 pub mod downlink;
+pub mod ingest;
 pub mod input;
 pub mod map;
 pub mod plot;
+pub mod queries;
+pub mod rfc3339;
 pub mod seq;
+pub mod serve;
+pub mod serve_config;
 pub mod store;
 pub mod trend;
 
@@ -50,6 +62,8 @@ enum GatewayCommand {
     Downlink(downlink::DownlinkArgs),
     /// Make a node's downlink key and identity record (provisioning).
     Provision(downlink::ProvisionArgs),
+    /// Run the gateway service: MQTT uplinks into the store, alarm changes out.
+    Serve(serve::ServeArgs),
 }
 
 #[derive(clap::Args, Debug)]
@@ -72,8 +86,8 @@ struct DecodeArgs {
 
 #[derive(clap::Args, Debug)]
 struct ImportArgs {
-    /// Gateway database file (created if missing).
-    #[arg(long)]
+    /// Gateway store: SQLite file (created if missing) or postgres:// URL.
+    #[arg(long, env = "ENVORD_DB")]
     db: String,
     /// Input files (none or "-" for stdin).
     files: Vec<String>,
@@ -139,8 +153,8 @@ impl LimitArgs {
 
 #[derive(clap::Args, Debug)]
 struct StatusArgs {
-    /// Gateway database file.
-    #[arg(long)]
+    /// Gateway store: SQLite file or postgres:// URL.
+    #[arg(long, env = "ENVORD_DB")]
     db: String,
     /// Gateway map (TOML) naming physical bearings.
     #[arg(long)]
@@ -154,8 +168,8 @@ struct StatusArgs {
 
 #[derive(clap::Args, Debug)]
 struct TrendArgs {
-    /// Gateway database file.
-    #[arg(long)]
+    /// Gateway store: SQLite file or postgres:// URL.
+    #[arg(long, env = "ENVORD_DB")]
     db: String,
     /// Node id.
     #[arg(long)]
@@ -175,8 +189,8 @@ struct TrendArgs {
 
 #[derive(clap::Args, Debug)]
 struct BaselineArgs {
-    /// Gateway database file.
-    #[arg(long)]
+    /// Gateway store: SQLite file or postgres:// URL.
+    #[arg(long, env = "ENVORD_DB")]
     db: String,
     /// Node id.
     #[arg(long)]
@@ -205,6 +219,7 @@ pub fn run(args: GatewayArgs) -> Result<(), CliError> {
         GatewayCommand::Baseline(a) => baseline_cmd(a),
         GatewayCommand::Downlink(a) => downlink::downlink_cmd(&a),
         GatewayCommand::Provision(a) => downlink::provision_cmd(&a),
+        GatewayCommand::Serve(a) => serve::serve_cmd(&a),
     }
 }
 
@@ -395,7 +410,7 @@ fn worst_text(w: Option<dsp_core::frame::WorstDefect>) -> String {
     }
 }
 
-fn sql_err(e: rusqlite::Error) -> CliError {
+fn sql_err(e: db::DbError) -> CliError {
     CliError::Other(format!("database: {e}"))
 }
 
@@ -404,56 +419,40 @@ fn import_cmd(a: ImportArgs) -> Result<(), CliError> {
         return Err(CliError::input("--batch-size", "must be at least 1"));
     }
     let items = read_inputs(&a.files, a.format)?;
-    let mut conn = store::open(&a.db)?;
+    let mut conn = db::open(&a.db)?;
     // Seed the tracker with what is stored so events refer to the full history.
-    let mut tracker = SeqTracker::new();
-    for (node, seq, payload) in store::arrivals(&conn).map_err(sql_err)? {
-        tracker.observe(node, seq, &payload);
-    }
+    let mut tracker = ingest::seeded_tracker(conn.as_mut()).map_err(sql_err)?;
     let (mut new, mut known, mut rejected, mut new_rejects) = (0u64, 0u64, 0u64, 0u64);
     let mut events: Vec<String> = Vec::new();
     for batch in items.chunks(a.batch_size) {
-        let tx = conn.transaction().map_err(sql_err)?;
-        for item in batch {
-            match decode_item(item) {
-                Ok(frame) => {
-                    let payload = item.bytes.as_deref().unwrap_or(&[]);
-                    let origin = store::Origin {
-                        source: &item.source,
-                        line: item.line,
-                        rx_time: item.rx_time.as_deref(),
-                    };
-                    if store::insert_frame(&tx, &frame, payload, &origin).map_err(sql_err)? {
-                        new += 1;
-                        if !store::is_report(&frame) {
-                            continue; // status frames: their own sequence
-                        }
-                        let (node, seq) = store::node_seq(&frame);
-                        let ev = tracker.observe(node, seq, payload);
+        let uplinks: Vec<ingest::Uplink> = batch.iter().map(ingest::Uplink::from_item).collect();
+        let outcomes = ingest::store_batch(conn.as_mut(), &mut tracker, &uplinks).map_err(sql_err)?;
+        for (o, item) in outcomes.iter().zip(batch) {
+            match o {
+                ingest::Outcome::New { frame, seq } => {
+                    new += 1;
+                    let (node, sq) = store::node_seq(frame);
+                    if let Some(ev) = seq {
                         if !matches!(ev, SeqEvent::InOrder | SeqEvent::First) {
                             events.push(format!(
-                                "{}:{}: node {node} seq {seq}: {}",
+                                "{}:{}: node {node} seq {sq}: {}",
                                 item.source,
                                 item.line,
                                 ev.describe()
                             ));
                         }
-                    } else {
-                        known += 1;
                     }
                 }
-                Err(reason) => {
+                ingest::Outcome::Known { .. } => known += 1,
+                ingest::Outcome::Rejected { reason, new } => {
                     rejected += 1;
-                    if store::insert_reject(&tx, &item.source, item.line, &item.text, &reason)
-                        .map_err(sql_err)?
-                    {
+                    if *new {
                         new_rejects += 1;
                     }
                     events.push(format!("{}:{}: rejected: {reason}", item.source, item.line));
                 }
             }
         }
-        tx.commit().map_err(sql_err)?;
         if a.batch_pause_ms > 0 {
             std::thread::sleep(std::time::Duration::from_millis(a.batch_pause_ms));
         }
@@ -476,16 +475,15 @@ fn status_cmd(a: StatusArgs) -> Result<(), CliError> {
         Some(p) => Some(map::GatewayMap::load(p)?),
         None => None,
     };
-    let conn = store::open(&a.db)?;
-    let obs = store::observations(&conn).map_err(sql_err)?;
-    let manual = |n: u16, b: u8, k: &str| store::manual_baseline(&conn, n, b, k).ok().flatten();
+    let mut conn = db::open(&a.db)?;
+    let conn = conn.as_mut();
+    let obs = queries::observations(conn, None).map_err(sql_err)?;
+    let baselines = queries::baselines(conn).map_err(sql_err)?;
+    let manual = |n: u16, b: u8, k: &str| baselines.get(&(n, b, k.to_string())).copied();
     let states = trend::evaluate(&obs, &limits, &manual);
-    let mut tracker = SeqTracker::new();
-    for (node, seq, payload) in store::arrivals(&conn).map_err(sql_err)? {
-        tracker.observe(node, seq, &payload);
-    }
-    let rejects = store::count(&conn, "rejects").map_err(sql_err)?;
-    let nodes = store::latest_status(&conn).map_err(sql_err)?;
+    let tracker = ingest::seeded_tracker(conn).map_err(sql_err)?;
+    let rejects = queries::count(conn, "rejects").map_err(sql_err)?;
+    let nodes = queries::latest_status(conn).map_err(sql_err)?;
     let combined = gmap
         .as_ref()
         .map(|m| combine(m, &states))
@@ -706,8 +704,9 @@ pub fn combine(m: &map::GatewayMap, states: &[trend::DefectState]) -> Vec<Combin
 fn trend_cmd(a: TrendArgs) -> Result<(), CliError> {
     let limits = a.limits.limits()?;
     let only = a.defect.as_deref().map(parse_kind).transpose()?;
-    let conn = store::open(&a.db)?;
-    let obs: Vec<store::Observation> = store::observations(&conn)
+    let mut conn = db::open(&a.db)?;
+    let conn = conn.as_mut();
+    let obs: Vec<store::Observation> = queries::observations(conn, Some(a.node))
         .map_err(sql_err)?
         .into_iter()
         .filter(|o| o.node == a.node && o.bearing == a.bearing)
@@ -755,7 +754,8 @@ fn trend_cmd(a: TrendArgs) -> Result<(), CliError> {
                     .collect(),
             })
             .collect();
-        let manual = |n: u16, b: u8, k: &str| store::manual_baseline(&conn, n, b, k).ok().flatten();
+        let baselines = queries::baselines(conn).map_err(sql_err)?;
+        let manual = |n: u16, b: u8, k: &str| baselines.get(&(n, b, k.to_string())).copied();
         let states = trend::evaluate(&obs, &limits, &manual);
         let mut levels: Vec<(&str, f64, &str)> = vec![
             ("alert abs", limits.alert_abs_db, "#ff7f0e"),
@@ -785,9 +785,9 @@ fn baseline_cmd(a: BaselineArgs) -> Result<(), CliError> {
             return Err(CliError::input("--score-db", "must be finite"));
         }
     }
-    let conn = store::open(&a.db)?;
+    let mut conn = db::open(&a.db)?;
     let v = if a.clear { None } else { a.score_db };
-    store::set_baseline(&conn, a.node, a.bearing, kind.name(), v).map_err(sql_err)?;
+    queries::set_baseline(conn.as_mut(), a.node, a.bearing, kind.name(), v).map_err(sql_err)?;
     match v {
         Some(x) => println!(
             "baseline of node {} bearing {} {} set to {x:.1} dB",

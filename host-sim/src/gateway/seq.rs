@@ -96,6 +96,9 @@ pub struct NodeSeqStats {
 pub struct SeqTracker {
     nodes: HashMap<u16, NodeSeqStats>,
     seen: HashSet<(u16, u16, Vec<u8>)>,
+    /// False for a long-running service whose store already absorbs
+    /// duplicates: the set of seen frames is not kept (memory stays flat).
+    forget: bool,
 }
 
 impl SeqTracker {
@@ -104,11 +107,20 @@ impl SeqTracker {
         Self::default()
     }
 
+    /// A tracker that keeps no set of seen frames (duplicates are then
+    /// the caller's to filter, e.g. by the store's unique key).
+    pub fn without_history() -> Self {
+        Self {
+            forget: true,
+            ..Self::default()
+        }
+    }
+
     /// Records one frame (node, number, payload) and classifies it.
     pub fn observe(&mut self, node: u16, seq: u16, payload: &[u8]) -> SeqEvent {
         let st = self.nodes.entry(node).or_default();
         st.frames += 1;
-        if !self.seen.insert((node, seq, payload.to_vec())) {
+        if !self.forget && !self.seen.insert((node, seq, payload.to_vec())) {
             st.duplicates += 1;
             return SeqEvent::Duplicate;
         }
