@@ -45,6 +45,7 @@ fn run(backend: &str, store: &str, dir: &std::path::Path, days: u16) {
             raw: false,
             alarm_topic: None,
             extra: "",
+            alarms_extra: "eval_ms = 3600000\n",
         },
     );
     let pid = gw.child.id();

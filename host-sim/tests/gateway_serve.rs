@@ -82,6 +82,7 @@ fn day_replay_500_nodes_sqlite_mqtt5() {
             raw: false,
             alarm_topic: Some("plant/alarms"),
             extra: "",
+            alarms_extra: "",
         },
     );
     let s = day_stream(500, 144, false, "plant");
@@ -132,6 +133,7 @@ fn broker_restart_mid_stream_postgres_mqtt311() {
             raw: false,
             alarm_topic: None,
             extra: "",
+            alarms_extra: "",
         },
     );
     let s = day_stream(200, 144, false, "plant");
@@ -168,6 +170,7 @@ fn database_restart_mid_stream() {
             raw: false,
             alarm_topic: None,
             extra: "",
+            alarms_extra: "",
         },
     );
     let s = day_stream(200, 144, false, "plant");
@@ -204,6 +207,7 @@ fn sigkill_mid_stream_and_restart() {
             raw: false,
             alarm_topic: None,
             extra: "",
+            alarms_extra: "",
         },
     );
     let s = day_stream(200, 144, false, "plant");
@@ -236,6 +240,7 @@ fn two_instances_shared_subscription() {
         raw: false,
         alarm_topic: None,
         extra: "",
+        alarms_extra: "",
     };
     let mut a = spec("gw-a");
     a.store = &store;
@@ -291,6 +296,7 @@ fn same_stream_sqlite_and_postgres_same_views() {
         raw: true,
         alarm_topic: None,
         extra: "",
+        alarms_extra: "",
     };
     let lite: &'static str = Box::leak(lite.into_boxed_str());
     let pg: &'static str = Box::leak(pg.into_boxed_str());
@@ -377,6 +383,7 @@ fn config_permissions_and_no_credentials_in_logs() {
             raw: false,
             alarm_topic: None,
             extra: "",
+            alarms_extra: "",
         },
     );
     let s = day_stream(5, 12, false, "plant");

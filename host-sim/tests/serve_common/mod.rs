@@ -425,6 +425,8 @@ pub struct GwSpec<'a> {
     pub raw: bool,
     pub alarm_topic: Option<&'a str>,
     pub extra: &'a str,
+    /// Lines added to the [alarms] table.
+    pub alarms_extra: &'a str,
 }
 
 impl Gateway {
@@ -442,11 +444,12 @@ impl Gateway {
             .unwrap_or_default();
         let text = format!(
             "[broker]\nhost = \"127.0.0.1\"\nport = {}\nprotocol = {:?}\nclient_id = {:?}\n\n[uplink]\ntopics = [{}]\n{shape}\n\
-             [store]\nurl_env = \"ENVORD_TEST_GW_STORE\"\n\n[alarms]\n{alarm}\n[log]\nformat = \"json\"\nhealth_interval_s = 2\n{}",
+             [store]\nurl_env = \"ENVORD_TEST_GW_STORE\"\n\n[alarms]\n{alarm}{}\n[log]\nformat = \"json\"\nhealth_interval_s = 2\n{}",
             g.port,
             g.protocol,
             g.client_id,
             topics.join(", "),
+            g.alarms_extra,
             g.extra
         );
         {
