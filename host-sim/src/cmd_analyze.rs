@@ -250,7 +250,9 @@ pub fn run_cmd(args: &AnalyzeArgs) -> Result<(), CliError> {
     let (a, survey) = analyze_auto(args)?;
     let (caution, caution_json) = coincidences(&crate::point::load(&args.point)?);
     if let Some(plot) = &args.plot {
-        crate::plot::order_spectrum(plot, &a, &args.recording.display().to_string())?;
+        crate::output::write_with(plot, |tmp| {
+            crate::plot::order_spectrum(tmp, &a, &args.recording.display().to_string())
+        })?;
     }
     if args.frame_hex {
         println!("{}", frame_hex(&a.report, args.node_id, args.seq)?);

@@ -69,6 +69,14 @@ pub fn run(args: &BatchArgs) -> Result<(), CliError> {
     }
     std::fs::create_dir_all(&args.out)
         .map_err(|e| CliError::Other(format!("{}: {e}", args.out.display())))?;
+    // Every output is checked before the work: an existing one (a previous
+    // run's) is not replaced without --force.
+    for name in ["summary.md", "summary.csv", "scores.svg"] {
+        crate::output::check_free(&args.out.join(name))?;
+    }
+    for f in &files {
+        crate::output::check_free(&report_path(&args.out, f))?;
+    }
 
     let bar = indicatif::ProgressBar::new(u64::try_from(files.len()).unwrap_or(u64::MAX));
     bar.set_style(
@@ -161,18 +169,14 @@ pub fn run(args: &BatchArgs) -> Result<(), CliError> {
             }
         }
     }
-    let write = |name: &str, text: &str| {
-        let p = args.out.join(name);
-        std::fs::write(&p, text).map_err(|e| CliError::Other(format!("{}: {e}", p.display())))
-    };
+    let write =
+        |name: &str, text: &str| crate::output::write(&args.out.join(name), text.as_bytes());
     write("summary.md", &md)?;
     write("summary.csv", &csv)?;
     if !plot_rows.is_empty() {
-        scores(
-            &args.out.join("scores.svg"),
-            &plot_rows,
-            "Highest defect score per file",
-        )?;
+        crate::output::write_with(&args.out.join("scores.svg"), |tmp| {
+            scores(tmp, &plot_rows, "Highest defect score per file")
+        })?;
     }
     print!("{md}");
     println!(
@@ -187,6 +191,12 @@ pub fn run(args: &BatchArgs) -> Result<(), CliError> {
         )));
     }
     Ok(())
+}
+
+/// Where the JSON report of recording `f` goes: `<out>/<file name>.json`.
+fn report_path(out: &std::path::Path, f: &std::path::Path) -> PathBuf {
+    let name = f.file_name().and_then(|n| n.to_str()).unwrap_or("?");
+    out.join(format!("{name}.json"))
 }
 
 /// Analyses one recording and writes its JSON report.
@@ -214,12 +224,12 @@ fn analyse_one(
             a.report.band_hz[1],
             if survey.is_some() { " (survey)" } else { "" }
         );
-        let out = args.out.join(format!("{name}.json"));
-        std::fs::write(
-            &out,
-            serde_json::to_string_pretty(&json).map_err(|e| CliError::Other(e.to_string()))?,
-        )
-        .map_err(|e| CliError::Other(format!("{}: {e}", out.display())))?;
+        crate::output::write(
+            &report_path(&args.out, f),
+            serde_json::to_string_pretty(&json)
+                .map_err(|e| CliError::Other(e.to_string()))?
+                .as_bytes(),
+        )?;
         let mut best = [0.0f32; 4];
         let mut detected = Vec::new();
         for b in &a.report.bearings {

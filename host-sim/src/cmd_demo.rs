@@ -18,13 +18,16 @@ use crate::simulate::{simulate, MachineSpec};
 pub const DEMO_MACHINE: &str = include_str!("../examples/demo-machine.toml");
 /// The demo measuring point.
 pub const DEMO_POINT: &str = include_str!("../examples/demo-point.toml");
+/// The files `demo` writes into its output folder.
+pub const DEMO_FILES: [&str; 3] = ["demo-report.json", "demo-spectrum.svg", "demo-spectrum.png"];
 /// Seed of the demo record.
 pub const DEMO_SEED: u64 = 7;
 
 /// Arguments of `envord demo`.
 #[derive(Debug, Args)]
 pub struct DemoArgs {
-    /// Output folder for the report and plots.
+    /// Output folder for the report and plots (created if missing; files
+    /// already in it are not replaced without --force).
     #[arg(long, default_value = "envord-out")]
     pub out: PathBuf,
     /// Seed of the simulated record.
@@ -68,6 +71,11 @@ pub fn demo_analysis(seed: u64) -> Result<Analysis, CliError> {
 
 /// Runs `envord demo`.
 pub fn run_cmd(args: &DemoArgs) -> Result<(), CliError> {
+    // An existing (even empty) folder is fine; files in it are not replaced
+    // without --force, checked before the work.
+    for name in DEMO_FILES {
+        crate::output::check_free(&args.out.join(name))?;
+    }
     let a = demo_analysis(args.seed)?;
     let r = &a.report;
     println!("envord demo: Corrin Vale quarry (fictional), conveyor CV-7 drive reducer");
@@ -118,17 +126,16 @@ pub fn run_cmd(args: &DemoArgs) -> Result<(), CliError> {
         .map_err(|e| CliError::Other(format!("{}: {e}", args.out.display())))?;
     let json = to_json(r, Some("demo (simulated)"));
     let jp = args.out.join("demo-report.json");
-    std::fs::write(
+    crate::output::write(
         &jp,
-        serde_json::to_string_pretty(&json).map_err(|e| CliError::Other(e.to_string()))?,
-    )
-    .map_err(|e| CliError::Other(format!("{}: {e}", jp.display())))?;
+        serde_json::to_string_pretty(&json)
+            .map_err(|e| CliError::Other(e.to_string()))?
+            .as_bytes(),
+    )?;
     for ext in ["svg", "png"] {
-        crate::plot::order_spectrum(
-            &args.out.join(format!("demo-spectrum.{ext}")),
-            &a,
-            "demo, CV-7 reducer (fictional)",
-        )?;
+        crate::output::write_with(&args.out.join(format!("demo-spectrum.{ext}")), |tmp| {
+            crate::plot::order_spectrum(tmp, &a, "demo, CV-7 reducer (fictional)")
+        })?;
     }
     println!(
         "wrote {0}/demo-report.json, {0}/demo-spectrum.svg, {0}/demo-spectrum.png",

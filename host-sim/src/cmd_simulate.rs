@@ -2,10 +2,11 @@
 //! float32 WAV (channel 0 acceleration in g, channel 1 tach pulse in V) and,
 //! optionally, the true tach edges as CSV.
 
-use crate::edges_csv::write_edges_csv;
+use crate::edges_csv::format_edges_csv;
 use crate::error::CliError;
+use crate::output;
 use crate::simulate::{simulate, Fault, MachineSpec, SpeedProfile};
-use crate::wav::write_wav_f32;
+use crate::wav::encode_wav_f32;
 use clap::{Args, ValueEnum};
 use std::path::PathBuf;
 
@@ -36,7 +37,8 @@ impl From<FaultArg> for Fault {
 /// Arguments of `envord simulate`.
 #[derive(Debug, Args)]
 pub struct SimulateArgs {
-    /// Output WAV file (float32, ch0 acceleration g, ch1 tach V).
+    /// Output WAV file (float32, ch0 acceleration g, ch1 tach V); an
+    /// existing file is not replaced without --force.
     #[arg(long)]
     pub out: PathBuf,
     /// Machine description (TOML); without it, the built-in demo machine.
@@ -61,6 +63,12 @@ pub struct SimulateArgs {
 
 /// Runs `envord simulate`.
 pub fn run(args: &SimulateArgs) -> Result<(), CliError> {
+    // Outputs first: an existing file (say, the point file given as --out)
+    // stops the command before any work.
+    output::check_free(&args.out)?;
+    if let Some(p) = &args.edges_csv {
+        output::check_free(p)?;
+    }
     let mut spec = match &args.spec {
         Some(p) => {
             let text = std::fs::read_to_string(p)
@@ -95,15 +103,18 @@ pub fn run(args: &SimulateArgs) -> Result<(), CliError> {
         out.fs,
     )))
     .map_err(|_| CliError::Other(format!("sample rate {} out of range", out.fs)))?;
-    write_wav_f32(&args.out, fs, &[&out.accel, &out.tach])
+    let wav = encode_wav_f32(fs, &[&out.accel, &out.tach])
         .map_err(|e| CliError::Other(format!("{}: {e}", args.out.display())))?;
+    output::write(&args.out, &wav)?;
     if let Some(p) = &args.edges_csv {
         let comment = format!(
             "true once-per-rev times of the tach shaft, s; {}; seed {}",
             spec.name, args.seed
         );
-        write_edges_csv(p, &out.true_edges_s, Some(&comment))
-            .map_err(|e| CliError::Other(format!("{}: {e}", p.display())))?;
+        output::write(
+            p,
+            format_edges_csv(&out.true_edges_s, Some(&comment)).as_bytes(),
+        )?;
     }
     eprintln!(
         "envord simulate: {} s at {} Hz, {} revs ({} pulses dropped), {} impacts -> {}",

@@ -3,7 +3,8 @@
 //! Exit codes (a contract outside scripts rely on): 0 success, 1 for a
 //! `compare` difference beyond tolerance, 2 for bad input (with a message
 //! naming the file, line or key at fault), 3 for an internal failure such as
-//! an unwritable output file.
+//! an unwritable output file. A closed standard output (`envord ... | head`)
+//! ends the command quietly with 0.
 
 use std::fmt;
 
@@ -16,6 +17,9 @@ pub enum CliError {
     Difference(String),
     /// Anything else (I/O on outputs, internal). Exit 3.
     Other(String),
+    /// The reader of standard output went away (`envord ... | head`): the
+    /// command stops quietly. Exit 0.
+    StdoutClosed,
 }
 
 impl CliError {
@@ -24,12 +28,22 @@ impl CliError {
         CliError::Input(format!("{source}: {msg}"))
     }
 
+    /// An error writing standard output: a closed pipe stops quietly.
+    pub fn stdout(e: std::io::Error) -> Self {
+        if e.kind() == std::io::ErrorKind::BrokenPipe {
+            CliError::StdoutClosed
+        } else {
+            CliError::Other(format!("stdout: {e}"))
+        }
+    }
+
     /// The process exit code for this error.
     pub fn exit_code(&self) -> u8 {
         match self {
             CliError::Difference(_) => 1,
             CliError::Input(_) => 2,
             CliError::Other(_) => 3,
+            CliError::StdoutClosed => 0,
         }
     }
 }
@@ -40,6 +54,7 @@ impl fmt::Display for CliError {
             CliError::Input(m) => write!(f, "bad input: {m}"),
             CliError::Difference(m) => write!(f, "{m}"),
             CliError::Other(m) => write!(f, "error: {m}"),
+            CliError::StdoutClosed => write!(f, "standard output closed"),
         }
     }
 }

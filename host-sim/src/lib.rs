@@ -15,6 +15,7 @@
 )]
 
 pub mod analysis;
+pub mod closed_stdout;
 pub mod cmd_analyze;
 pub mod cmd_batch;
 pub mod cmd_compare;
@@ -24,6 +25,7 @@ pub mod cmd_validate;
 pub mod edges_csv;
 pub mod error;
 pub mod gateway;
+pub mod output;
 pub mod plot;
 pub mod point;
 pub mod report_json;

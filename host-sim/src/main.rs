@@ -10,6 +10,10 @@ use std::process::ExitCode;
     about = "Bearing envelope order analysis, as the node runs it"
 )]
 struct Cli {
+    /// Replace output files that already exist (by default a command never
+    /// overwrites a file; it stops with exit 2 naming it).
+    #[arg(long, global = true)]
+    force: bool,
     #[command(subcommand)]
     command: Command,
 }
@@ -42,7 +46,22 @@ fn main() -> ExitCode {
             return ExitCode::from(code);
         }
     };
-    let result: Result<(), host_sim::error::CliError> = match cli.command {
+    host_sim::closed_stdout::install_quiet_hook();
+    host_sim::output::set_force(cli.force);
+    let result = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| dispatch(cli.command)));
+    match result {
+        Ok(Ok(()) | Err(host_sim::error::CliError::StdoutClosed)) => ExitCode::SUCCESS,
+        Ok(Err(e)) => {
+            eprintln!("envord: {e}");
+            ExitCode::from(e.exit_code())
+        }
+        Err(p) if host_sim::closed_stdout::is_closed_stdout_panic(p.as_ref()) => ExitCode::SUCCESS,
+        Err(p) => std::panic::resume_unwind(p),
+    }
+}
+
+fn dispatch(command: Command) -> Result<(), host_sim::error::CliError> {
+    match command {
         Command::Simulate(a) => host_sim::cmd_simulate::run(&a),
         Command::Demo(a) => host_sim::cmd_demo::run_cmd(&a),
         Command::Analyze(a) => host_sim::cmd_analyze::run_cmd(&a),
@@ -50,12 +69,5 @@ fn main() -> ExitCode {
         Command::Batch(a) => host_sim::cmd_batch::run(&a),
         Command::Gateway(a) => host_sim::gateway::run(a),
         Command::Validate(a) => host_sim::cmd_validate::run_cmd(&a),
-    };
-    match result {
-        Ok(()) => ExitCode::SUCCESS,
-        Err(e) => {
-            eprintln!("envord: {e}");
-            ExitCode::from(e.exit_code())
-        }
     }
 }

@@ -50,7 +50,8 @@ fn tracker_finds_gaps_duplicates_resets_and_wraps() {
     );
     assert_eq!(t.observe(7, 6, &p(6)), SeqEvent::InOrder);
     // Node restart: 6 -> 0 would be a 65530-frame gap forwards; a small number after
-    // a backward jump is a counter reset.
+    // a backward jump is a counter reset when the node's status frames show the
+    // restart (their own counter starts again).
     let far = 2000u16;
     assert_eq!(
         t.observe(7, far, &p(far)),
@@ -60,6 +61,8 @@ fn tracker_finds_gaps_duplicates_resets_and_wraps() {
             missing: far - 7
         }
     );
+    assert!(!t.observe_status(7, 2, &status(7, 2, 0, 0)));
+    assert!(t.observe_status(7, 0, &status(7, 0, 0, 0)));
     assert_eq!(
         t.observe(7, 0, &frame(7, 0, 4.0, false)),
         SeqEvent::Reset { from: far, to: 0 }

@@ -311,7 +311,7 @@ def main():
                 out = os.path.join(tmp, f"batch{jobs}")
                 note(f"batch{jobs}", timed(lambda: subprocess.run(
                     [envord, "batch", rec_dir, "--point", point, "--rpm", str(RPM),
-                     "--out", out, "--jobs", str(jobs)],
+                     "--out", out, "--jobs", str(jobs), "--force"],
                     check=True, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)) / RECORDS)
             r = json.loads(subprocess.run(core_args, check=True, capture_output=True,
                                           text=True).stdout)

@@ -236,17 +236,40 @@ pub fn redact(url: &str) -> String {
     }
 }
 
+/// How a command opens the store.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Mode {
+    /// Create if missing and migrate (`import`, `serve`).
+    Create,
+    /// Must exist; migrated (`baseline`).
+    Existing,
+    /// Must exist; never changed (`status`, `trend`). A PostgreSQL store is
+    /// not migrated either (a missing table is then an error naming it).
+    ReadOnly,
+}
+
 /// Opens (creating and migrating) the store at `url`: a `postgres://` URL or
 /// a SQLite file path (optionally `sqlite:` prefixed).
 pub fn open(url: &str) -> Result<Box<dyn Db>, CliError> {
+    open_mode(url, Mode::Create)
+}
+
+/// Opens the store at `url` for a command of the given kind.
+pub fn open_mode(url: &str, mode: Mode) -> Result<Box<dyn Db>, CliError> {
     if is_postgres_url(url) {
         let mut db = PgDb::connect(url)?;
-        db.migrate()
-            .map_err(|e| CliError::Other(format!("{}: {e}", redact(url))))?;
+        if mode != Mode::ReadOnly {
+            db.migrate()
+                .map_err(|e| CliError::Other(format!("{}: {e}", redact(url))))?;
+        }
         Ok(Box::new(db))
     } else {
         let path = url.strip_prefix("sqlite:").unwrap_or(url);
-        let conn = store::open(path)?;
+        let conn = match mode {
+            Mode::Create => store::open(path)?,
+            Mode::Existing => store::open_existing(path)?,
+            Mode::ReadOnly => store::open_read_only(path)?,
+        };
         Ok(Box::new(SqliteDb { conn }))
     }
 }

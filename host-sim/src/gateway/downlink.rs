@@ -11,7 +11,6 @@
 //!   `config` turns a point file into the node's configuration record
 //!   (`firmware::config`), refusing anything the record cannot carry.
 
-use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use dsp_core::config::{BearingKinematics, PointConfig, SpeedInput};
@@ -21,6 +20,7 @@ use firmware::downlink_auth::{sign, DownlinkKey, HEADER_LEN, KEY_LEN, TAG_LEN};
 use firmware::identity::IDENTITY_LEN;
 
 use crate::error::CliError;
+use crate::output::Access;
 
 /// Arguments of `envord gateway downlink`.
 #[derive(clap::Args, Debug)]
@@ -93,11 +93,13 @@ pub struct ProvisionArgs {
     /// Node id to give the node.
     #[arg(long)]
     pub node_id: u16,
-    /// Write the new key here (hex; readable by the gateway service only).
-    /// An existing file is not overwritten.
+    /// Write the new key here (hex; created owner-only, 0600). An existing
+    /// file is not overwritten without --force.
     #[arg(long)]
     pub key_out: PathBuf,
-    /// Write the identity record here (raw bytes for the node's identity page).
+    /// Write the identity record here (raw bytes for the node's identity
+    /// page; it holds the same key: created owner-only, 0600). An existing
+    /// file is not overwritten without --force.
     #[arg(long)]
     pub identity_out: PathBuf,
 }
@@ -332,8 +334,7 @@ pub fn downlink_cmd(a: &DownlinkArgs) -> Result<(), CliError> {
         a.node_id, a.counter
     );
     match &a.out {
-        Some(p) => std::fs::write(p, &frame)
-            .map_err(|e| CliError::Other(format!("{}: {e}", p.display())))?,
+        Some(p) => crate::output::write(p, &frame)?,
         None => println!("{}", super::input::to_hex(&frame)),
     }
     Ok(())
@@ -341,18 +342,28 @@ pub fn downlink_cmd(a: &DownlinkArgs) -> Result<(), CliError> {
 
 /// Runs `envord gateway provision`.
 pub fn provision_cmd(a: &ProvisionArgs) -> Result<(), CliError> {
+    // Both outputs are checked before either is written: a key is never
+    // left without its identity record (or the other way round).
+    crate::output::check_free(&a.key_out)?;
+    crate::output::check_free(&a.identity_out)?;
     let mut key = [0u8; KEY_LEN];
     getrandom::fill(&mut key)
         .map_err(|e| CliError::Other(format!("operating system random source: {e}")))?;
     let mut ident = [0u8; IDENTITY_LEN];
     firmware::identity::encode(a.node_id, &key, &mut ident)
         .map_err(|e| CliError::Other(e.to_string()))?;
-    write_new_private(
+    // Both hold the secret key: created owner-only (docs/downlink-security.md).
+    crate::output::write_as(
         &a.key_out,
         format!("{}\n", super::input::to_hex(&key)).as_bytes(),
+        Access::OwnerOnly,
     )?;
-    std::fs::write(&a.identity_out, ident)
-        .map_err(|e| CliError::Other(format!("{}: {e}", a.identity_out.display())))?;
+    if let Err(e) = crate::output::write_as(&a.identity_out, &ident, Access::OwnerOnly) {
+        // The key just made is of no use without its identity: take it back
+        // (with --force an older key it replaced is gone either way).
+        let _ = std::fs::remove_file(&a.key_out);
+        return Err(e);
+    }
     println!(
         "node {}: key in {} (keep it with the gateway only), identity record in {} ({IDENTITY_LEN} bytes)",
         a.node_id,
@@ -364,23 +375,4 @@ pub fn provision_cmd(a: &ProvisionArgs) -> Result<(), CliError> {
         a.identity_out.display()
     );
     Ok(())
-}
-
-/// Creates `path` (never overwriting) readable by its owner only.
-fn write_new_private(path: &Path, data: &[u8]) -> Result<(), CliError> {
-    let mut o = std::fs::OpenOptions::new();
-    o.write(true).create_new(true);
-    #[cfg(unix)]
-    {
-        use std::os::unix::fs::OpenOptionsExt;
-        o.mode(0o600);
-    }
-    let mut f = o.open(path).map_err(|e| {
-        CliError::input(
-            path.display(),
-            format!("cannot create the key file (an existing key is never overwritten): {e}"),
-        )
-    })?;
-    f.write_all(data)
-        .map_err(|e| CliError::Other(format!("{}: {e}", path.display())))
 }

@@ -99,10 +99,15 @@ pub fn store_batch(
                 .zip(batch)
                 .map(|(o, u)| match o {
                     Outcome::New { frame, .. } => {
-                        let seq = store::is_report(&frame).then(|| {
-                            let (node, seq) = store::node_seq(&frame);
-                            tracker.observe(node, seq, u.bytes.as_deref().unwrap_or(&[]))
-                        });
+                        let (node, seq) = store::node_seq(&frame);
+                        let payload = u.bytes.as_deref().unwrap_or(&[]);
+                        let seq = if store::is_report(&frame) {
+                            Some(tracker.observe(node, seq, payload))
+                        } else {
+                            // status frames: their own sequence, restart evidence
+                            tracker.observe_status(node, seq, payload);
+                            None
+                        };
                         Outcome::New { frame, seq }
                     }
                     o => o,
@@ -143,11 +148,24 @@ fn write(db: &mut dyn Db, batch: &[Uplink]) -> Result<Vec<Outcome>, DbError> {
     Ok(out)
 }
 
-/// A tracker that has seen every stored report (events then refer to the full history).
-pub fn seeded_tracker(db: &mut dyn Db) -> Result<SeqTracker, DbError> {
-    let mut t = SeqTracker::new();
-    for (node, seq, payload) in queries::arrivals(db)? {
-        t.observe(node, seq, &payload);
+/// A tracker that has seen every stored status frame then every stored
+/// report (events then refer to the full history), and each report's place
+/// in its node's decided order, by report id.
+pub fn decided_order(
+    db: &mut dyn Db,
+    mut tracker: SeqTracker,
+) -> Result<(SeqTracker, std::collections::HashMap<i64, super::seq::Order>), DbError> {
+    for (node, seq, payload) in queries::status_arrivals(db)? {
+        tracker.observe_status(node, seq, &payload);
     }
-    Ok(t)
+    let mut order = std::collections::HashMap::new();
+    for (id, node, seq, payload) in queries::report_arrivals(db)? {
+        order.insert(id, tracker.observe_ordered(node, seq, &payload).1);
+    }
+    Ok((tracker, order))
+}
+
+/// A tracker that has seen every stored frame.
+pub fn seeded_tracker(db: &mut dyn Db) -> Result<SeqTracker, DbError> {
+    Ok(decided_order(db, SeqTracker::new())?.0)
 }

@@ -261,7 +261,7 @@ fn seq_json(ev: &SeqEvent) -> serde_json::Value {
 }
 
 fn out_err(e: std::io::Error) -> CliError {
-    CliError::Other(format!("stdout: {e}"))
+    CliError::stdout(e)
 }
 
 fn decode_cmd(a: DecodeArgs) -> Result<(), CliError> {
@@ -293,9 +293,11 @@ fn decode_cmd(a: DecodeArgs) -> Result<(), CliError> {
             Ok(frame) => {
                 let (node, seq) = store::node_seq(&frame);
                 // status frames count their own sequence: not link-tracked
+                let bytes = item.bytes.as_deref().unwrap_or(&[]);
                 let ev = if store::is_report(&frame) {
-                    Some(tracker.observe(node, seq, item.bytes.as_deref().unwrap_or(&[])))
+                    Some(tracker.observe(node, seq, bytes))
                 } else {
+                    tracker.observe_status(node, seq, bytes); // restart evidence
                     None
                 };
                 let ev_text = ev.as_ref().map_or("-".to_string(), |e| e.describe());
@@ -426,7 +428,9 @@ fn import_cmd(a: ImportArgs) -> Result<(), CliError> {
     let mut events: Vec<String> = Vec::new();
     for batch in items.chunks(a.batch_size) {
         let uplinks: Vec<ingest::Uplink> = batch.iter().map(ingest::Uplink::from_item).collect();
-        let outcomes = ingest::store_batch(conn.as_mut(), &mut tracker, &uplinks).map_err(sql_err)?;
+        // The same path as `gateway serve`: one transaction per batch.
+        let outcomes =
+            ingest::store_batch(conn.as_mut(), &mut tracker, &uplinks).map_err(sql_err)?;
         for (o, item) in outcomes.iter().zip(batch) {
             match o {
                 ingest::Outcome::New { frame, seq } => {
@@ -475,13 +479,14 @@ fn status_cmd(a: StatusArgs) -> Result<(), CliError> {
         Some(p) => Some(map::GatewayMap::load(p)?),
         None => None,
     };
-    let mut conn = db::open(&a.db)?;
+    let mut conn = db::open_mode(&a.db, db::Mode::ReadOnly)?;
     let conn = conn.as_mut();
-    let obs = queries::observations(conn, None).map_err(sql_err)?;
+    let (tracker, order) = decided_order(conn)?;
+    let mut obs = queries::observations(conn, None).map_err(sql_err)?;
+    sort_decided(&mut obs, &order);
     let baselines = queries::baselines(conn).map_err(sql_err)?;
     let manual = |n: u16, b: u8, k: &str| baselines.get(&(n, b, k.to_string())).copied();
     let states = trend::evaluate(&obs, &limits, &manual);
-    let tracker = ingest::seeded_tracker(conn).map_err(sql_err)?;
     let rejects = queries::count(conn, "rejects").map_err(sql_err)?;
     let nodes = queries::latest_status(conn).map_err(sql_err)?;
     let combined = gmap
@@ -596,6 +601,24 @@ fn status_cmd(a: StatusArgs) -> Result<(), CliError> {
     Ok(())
 }
 
+/// Replays the stored history through a tracker: status frames first (the
+/// restart evidence; the two tables keep no common arrival order), then the
+/// reports in arrival order, giving each report id its decided place.
+fn decided_order(
+    conn: &mut dyn db::Db,
+) -> Result<(SeqTracker, std::collections::HashMap<i64, seq::Order>), CliError> {
+    ingest::decided_order(conn, SeqTracker::new()).map_err(sql_err)
+}
+
+/// Observations in each node's decided order (late frames in their place,
+/// never last), arrival order among equals.
+fn sort_decided(
+    obs: &mut [store::Observation],
+    order: &std::collections::HashMap<i64, seq::Order>,
+) {
+    obs.sort_by_key(|o| (order.get(&o.report_id).copied(), o.report_id));
+}
+
 fn fmt_db(x: Option<f64>) -> String {
     x.map_or("-".into(), |v| format!("{v:.1}"))
 }
@@ -704,7 +727,10 @@ pub fn combine(m: &map::GatewayMap, states: &[trend::DefectState]) -> Vec<Combin
 fn trend_cmd(a: TrendArgs) -> Result<(), CliError> {
     let limits = a.limits.limits()?;
     let only = a.defect.as_deref().map(parse_kind).transpose()?;
-    let mut conn = db::open(&a.db)?;
+    if let Some(p) = &a.svg {
+        crate::output::check_free(std::path::Path::new(p))?;
+    }
+    let mut conn = db::open_mode(&a.db, db::Mode::ReadOnly)?;
     let conn = conn.as_mut();
     let obs: Vec<store::Observation> = queries::observations(conn, Some(a.node))
         .map_err(sql_err)?
@@ -756,7 +782,10 @@ fn trend_cmd(a: TrendArgs) -> Result<(), CliError> {
             .collect();
         let baselines = queries::baselines(conn).map_err(sql_err)?;
         let manual = |n: u16, b: u8, k: &str| baselines.get(&(n, b, k.to_string())).copied();
-        let states = trend::evaluate(&obs, &limits, &manual);
+        let (_, order) = decided_order(conn)?;
+        let mut decided = obs.clone();
+        sort_decided(&mut decided, &order);
+        let states = trend::evaluate(&decided, &limits, &manual);
         let mut levels: Vec<(&str, f64, &str)> = vec![
             ("alert abs", limits.alert_abs_db, "#ff7f0e"),
             ("danger abs", limits.danger_abs_db, "#d62728"),
@@ -769,7 +798,7 @@ fn trend_cmd(a: TrendArgs) -> Result<(), CliError> {
         }
         let title = format!("node {} bearing {}: defect scores", a.node, a.bearing);
         let svg = plot::svg(&title, "report (arrival order)", &series, &levels);
-        std::fs::write(path, svg).map_err(|e| CliError::Other(format!("{path}: {e}")))?;
+        crate::output::write(std::path::Path::new(path), svg.as_bytes())?;
         println!("wrote {path}");
     }
     Ok(())
@@ -785,7 +814,7 @@ fn baseline_cmd(a: BaselineArgs) -> Result<(), CliError> {
             return Err(CliError::input("--score-db", "must be finite"));
         }
     }
-    let mut conn = db::open(&a.db)?;
+    let mut conn = db::open_mode(&a.db, db::Mode::Existing)?;
     let v = if a.clear { None } else { a.score_db };
     queries::set_baseline(conn.as_mut(), a.node, a.bearing, kind.name(), v).map_err(sql_err)?;
     match v {

@@ -273,6 +273,38 @@ pub fn arrivals(db: &mut dyn Db) -> Result<Vec<(u16, u16, Vec<u8>)>, DbError> {
         .collect()
 }
 
+/// A stored report's row id, node, sequence number and payload.
+pub type ReportArrival = (i64, u16, u16, Vec<u8>);
+
+/// Every stored report in arrival order, with its row id.
+pub fn report_arrivals(db: &mut dyn Db) -> Result<Vec<ReportArrival>, DbError> {
+    db.query("SELECT id, node_id, seq, payload FROM reports ORDER BY id", &[])?
+        .iter()
+        .map(|r| {
+            Ok((
+                col(r, 0).int("id")?,
+                u16_of(col(r, 1), "node_id")?,
+                u16_of(col(r, 2), "seq")?,
+                col(r, 3).blob("payload")?,
+            ))
+        })
+        .collect()
+}
+
+/// (node, status seq, payload) of every stored status frame in arrival order.
+pub fn status_arrivals(db: &mut dyn Db) -> Result<Vec<(u16, u16, Vec<u8>)>, DbError> {
+    db.query("SELECT node_id, seq, payload FROM node_status ORDER BY id", &[])?
+        .iter()
+        .map(|r| {
+            Ok((
+                u16_of(col(r, 0), "node_id")?,
+                u16_of(col(r, 1), "seq")?,
+                col(r, 2).blob("payload")?,
+            ))
+        })
+        .collect()
+}
+
 fn observation(r: &Row) -> Result<Observation, DbError> {
     Ok(Observation {
         report_id: col(r, 0).int("id")?,

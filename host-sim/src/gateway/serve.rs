@@ -361,13 +361,8 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
     let mut alarms = Alarms::new(db.as_mut(), cfg.limits(), silent_after, Duration::from_millis(cfg.alarms.eval_ms))
         .map_err(|e| CliError::Other(format!("{shown_url}: {e}")))?;
     // The history of frames is the store's (unique key); keep only positions.
-    let mut tracker = {
-        let mut t = super::seq::SeqTracker::without_history();
-        for (node, seq, payload) in super::queries::arrivals(db.as_mut()).map_err(|e| CliError::Other(format!("{shown_url}: {e}")))? {
-            t.observe(node, seq, &payload);
-        }
-        t
-    };
+    let (mut tracker, _) = ingest::decided_order(db.as_mut(), super::seq::SeqTracker::without_history())
+        .map_err(|e| CliError::Other(format!("{shown_url}: {e}")))?;
 
     let stop = Arc::new(AtomicBool::new(false));
     for sig in [signal_hook::consts::SIGTERM, signal_hook::consts::SIGINT] {

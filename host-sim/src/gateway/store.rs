@@ -116,28 +116,134 @@ pub fn schema_version() -> i64 {
 }
 
 fn db_err(path: &str) -> impl Fn(rusqlite::Error) -> CliError + '_ {
-    move |e| CliError::Other(format!("{path}: {e}"))
+    move |e| open_err(path, e)
 }
 
-/// Opens (creating if needed) and migrates the store at `path`.
+/// How to get a usable store back, for a file SQLite cannot read.
+const RECOVER: &str = "restore the store from a backup, or move this file aside and re-import the \
+     frame files into a new store with `envord gateway import --db NEW FILES...`; the file was \
+     left as it is";
+
+/// Names the store in an SQLite error; a damaged or foreign file is bad
+/// input (exit 2) with the way to recover.
+fn open_err(path: &str, e: rusqlite::Error) -> CliError {
+    use rusqlite::ErrorCode::{DatabaseCorrupt, NotADatabase};
+    match e.sqlite_error_code() {
+        Some(DatabaseCorrupt | NotADatabase) => CliError::input(
+            path,
+            format!("not a readable envord store ({e}): {RECOVER}"),
+        ),
+        _ => CliError::Other(format!("{path}: {e}")),
+    }
+}
+
+/// A store that is not there is bad input (a mistyped `--db`), never a
+/// reason to create one.
+fn must_exist(path: &str) -> Result<(), CliError> {
+    match std::fs::metadata(path) {
+        Ok(m) if m.is_file() => Ok(()),
+        Ok(_) => Err(CliError::input(
+            path,
+            "not a file (the store is one SQLite file)",
+        )),
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => Err(CliError::input(
+            path,
+            "no such store; check the --db path (only `envord gateway import` creates a store)",
+        )),
+        Err(e) => Err(CliError::input(path, e)),
+    }
+}
+
+/// Opens (creating if needed) and migrates the store at `path`: for
+/// commands that write frames (`import`).
 pub fn open(path: &str) -> Result<Connection, CliError> {
     let mut conn = Connection::open(path).map_err(db_err(path))?;
+    // The busy timeout first: switching to WAL and migrating wait for the
+    // write lock of another process opening the same new store.
+    conn.busy_timeout(std::time::Duration::from_secs(10))
+        .map_err(db_err(path))?;
     conn.pragma_update(None, "journal_mode", "WAL")
         .map_err(db_err(path))?;
     conn.pragma_update(None, "synchronous", "FULL")
-        .map_err(db_err(path))?;
-    conn.busy_timeout(std::time::Duration::from_secs(10))
         .map_err(db_err(path))?;
     migrate(&mut conn, path)?;
     Ok(conn)
 }
 
-/// Applies the migrations past the file's `user_version`, each in its own
-/// transaction together with the version bump.
-pub fn migrate(conn: &mut Connection, path: &str) -> Result<(), CliError> {
-    let current: i64 = conn
-        .query_row("PRAGMA user_version", [], |r| r.get(0))
+/// Opens and migrates an existing store for writing; a missing one is bad
+/// input (`baseline`).
+pub fn open_existing(path: &str) -> Result<Connection, CliError> {
+    must_exist(path)?;
+    open(path)
+}
+
+/// Opens an existing store read-only (`status`, `trend`): never creates,
+/// migrates or otherwise changes the file, and works on a store the user
+/// can only read. A store of an older schema is refused with the command
+/// that upgrades it.
+pub fn open_read_only(path: &str) -> Result<Connection, CliError> {
+    use rusqlite::OpenFlags;
+    must_exist(path)?;
+    let flags = OpenFlags::SQLITE_OPEN_READ_ONLY | OpenFlags::SQLITE_OPEN_NO_MUTEX;
+    // The store runs in WAL mode; its -wal file exists while a writer has it
+    // open (or after a crash) and is removed by the last writer to close.
+    // Without one, every committed row is in the main file, and it is read
+    // as immutable: a read-only connection would otherwise create -wal and
+    // -shm files it cannot remove (owned by this user, they can block the
+    // store's writer), and could not open at all in a folder this user
+    // cannot write (sqlite.org/wal.html, "Read-Only Databases"). A writer
+    // starting meanwhile only appends to its own -wal until a checkpoint.
+    let conn = if std::path::Path::new(&format!("{path}-wal")).exists() {
+        Connection::open_with_flags(path, flags).map_err(db_err(path))?
+    } else {
+        let uri = format!("file:{}?immutable=1", uri_path(path));
+        Connection::open_with_flags(uri, flags | OpenFlags::SQLITE_OPEN_URI)
+            .map_err(db_err(path))?
+    };
+    conn.busy_timeout(std::time::Duration::from_secs(10))
         .map_err(db_err(path))?;
+    let v = user_version(&conn, path)?;
+    if v == 0 {
+        return Err(CliError::input(
+            path,
+            format!("not an envord store (no schema version): {RECOVER}"),
+        ));
+    }
+    if v < schema_version() {
+        return Err(CliError::input(
+            path,
+            format!(
+                "store schema version {v} is older than this build's {}; upgrade it once with \
+                 `envord gateway import --db {path} </dev/null` (needs write access), then retry",
+                schema_version()
+            ),
+        ));
+    }
+    check_not_newer(v, path)?;
+    Ok(conn)
+}
+
+fn user_version(conn: &Connection, path: &str) -> Result<i64, CliError> {
+    conn.query_row("PRAGMA user_version", [], |r| r.get(0))
+        .map_err(db_err(path))
+}
+
+/// `path` for an SQLite `file:` URI: the characters the URI syntax gives a
+/// meaning to are percent-escaped.
+fn uri_path(path: &str) -> String {
+    let mut s = String::with_capacity(path.len());
+    for c in path.chars() {
+        match c {
+            '%' => s.push_str("%25"),
+            '?' => s.push_str("%3f"),
+            '#' => s.push_str("%23"),
+            c => s.push(c),
+        }
+    }
+    s
+}
+
+fn check_not_newer(current: i64, path: &str) -> Result<(), CliError> {
     if current > schema_version() {
         return Err(CliError::input(
             path,
@@ -147,21 +253,30 @@ pub fn migrate(conn: &mut Connection, path: &str) -> Result<(), CliError> {
             ),
         ));
     }
-    for (i, sql) in MIGRATIONS
+    Ok(())
+}
+
+/// Applies the migrations past the file's `user_version` in one transaction
+/// that takes the write lock before it reads the version (BEGIN IMMEDIATE),
+/// so that processes opening a new store together migrate it once.
+pub fn migrate(conn: &mut Connection, path: &str) -> Result<(), CliError> {
+    let tx = conn
+        .transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)
+        .map_err(db_err(path))?;
+    let current = user_version(&tx, path)?;
+    check_not_newer(current, path)?;
+    if current == schema_version() {
+        return Ok(()); // the transaction rolls back on drop: nothing written
+    }
+    for sql in MIGRATIONS
         .iter()
-        .enumerate()
         .skip(usize::try_from(current).unwrap_or(0))
     {
-        let tx = conn.transaction().map_err(db_err(path))?;
         tx.execute_batch(sql).map_err(db_err(path))?;
-        tx.pragma_update(
-            None,
-            "user_version",
-            i64::try_from(i + 1).unwrap_or(i64::MAX),
-        )
-        .map_err(db_err(path))?;
-        tx.commit().map_err(db_err(path))?;
     }
+    tx.pragma_update(None, "user_version", schema_version())
+        .map_err(db_err(path))?;
+    tx.commit().map_err(db_err(path))?;
     Ok(())
 }
 
@@ -396,6 +511,23 @@ pub fn insert_reject(
 /// (node, seq, payload) of every stored report in arrival order.
 pub fn arrivals(conn: &Connection) -> rusqlite::Result<Vec<(u16, u16, Vec<u8>)>> {
     let mut stmt = conn.prepare("SELECT node_id, seq, payload FROM reports ORDER BY id")?;
+    let rows = stmt.query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))?;
+    rows.collect()
+}
+
+/// A stored report's row id, node, sequence number and payload.
+pub type ReportArrival = (i64, u16, u16, Vec<u8>);
+
+/// Every stored report in arrival order.
+pub fn report_arrivals(conn: &Connection) -> rusqlite::Result<Vec<ReportArrival>> {
+    let mut stmt = conn.prepare("SELECT id, node_id, seq, payload FROM reports ORDER BY id")?;
+    let rows = stmt.query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?)))?;
+    rows.collect()
+}
+
+/// (node, status seq, payload) of every stored status frame in arrival order.
+pub fn status_arrivals(conn: &Connection) -> rusqlite::Result<Vec<(u16, u16, Vec<u8>)>> {
+    let mut stmt = conn.prepare("SELECT node_id, seq, payload FROM node_status ORDER BY id")?;
     let rows = stmt.query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))?;
     rows.collect()
 }
