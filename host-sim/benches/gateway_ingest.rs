@@ -56,7 +56,11 @@ fn run(backend: &str, store: &str, dir: &std::path::Path, days: u16) {
     let mut total_rows = 0usize;
     let mut total_secs = 0.0;
     for d in 0..usize::from(days) {
-        let part = &s.messages[d * per_day..if d + 1 == usize::from(days) { s.messages.len() } else { (d + 1) * per_day }];
+        let part = &s.messages[d * per_day..if d + 1 == usize::from(days) {
+            s.messages.len()
+        } else {
+            (d + 1) * per_day
+        }];
         let before = {
             let (r, st, rej) = stored(store);
             r.len() + st.len() + rej as usize
@@ -111,7 +115,10 @@ fn run(backend: &str, store: &str, dir: &std::path::Path, days: u16) {
 }
 
 fn main() {
-    let days: u16 = std::env::var("ENVORD_BENCH_DAYS").ok().and_then(|v| v.parse().ok()).unwrap_or(2);
+    let days: u16 = std::env::var("ENVORD_BENCH_DAYS")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(2);
     let dir = tempfile::tempdir().unwrap();
     println!("gateway ingest: 500 nodes, {days} simulated day(s) each, JSON uplinks over MQTT 5, batch_max 500, batch_ms 20");
     let lite = dir.path().join("bench.db").display().to_string();

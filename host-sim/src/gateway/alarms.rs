@@ -80,7 +80,15 @@ impl Alarms {
         })
     }
 
-    fn change(&mut self, node: u16, bearing: Option<String>, event: &str, to: String, detail: serde_json::Value, out: &mut Vec<AlarmEvent>) {
+    fn change(
+        &mut self,
+        node: u16,
+        bearing: Option<String>,
+        event: &str,
+        to: String,
+        detail: serde_json::Value,
+        out: &mut Vec<AlarmEvent>,
+    ) {
         let key: AlarmKey = (node, bearing.clone(), None, event.to_string());
         let from = self.last.get(&key).cloned();
         if from.as_deref() == Some(to.as_str()) {
@@ -104,7 +112,14 @@ impl Alarms {
         self.last_seen.insert(node, Instant::now());
         let silent_key: AlarmKey = (node, None, None, EV_SILENT.to_string());
         if self.last.get(&silent_key).is_some_and(|s| s == "silent") {
-            self.change(node, None, EV_SILENT, "reporting".into(), serde_json::json!({}), out);
+            self.change(
+                node,
+                None,
+                EV_SILENT,
+                "reporting".into(),
+                serde_json::json!({}),
+                out,
+            );
         }
         let sensor = flags & 0x10 != 0;
         let tach = flags & 0x03 != 0;
@@ -113,7 +128,14 @@ impl Alarms {
             let was_on = self.last.get(&key).is_some_and(|s| s == "on");
             if on != was_on {
                 let to = if on { "on" } else { "off" };
-                self.change(node, None, ev, to.into(), serde_json::json!({"flags": flags}), out);
+                self.change(
+                    node,
+                    None,
+                    ev,
+                    to.into(),
+                    serde_json::json!({"flags": flags}),
+                    out,
+                );
             }
         }
         if is_report {
@@ -133,14 +155,26 @@ impl Alarms {
         for (node, secs) in silent {
             let key: AlarmKey = (node, None, None, EV_SILENT.to_string());
             if self.last.get(&key).is_none_or(|s| s != "silent") {
-                self.change(node, None, EV_SILENT, "silent".into(), serde_json::json!({"silent_s": secs}), out);
+                self.change(
+                    node,
+                    None,
+                    EV_SILENT,
+                    "silent".into(),
+                    serde_json::json!({"silent_s": secs}),
+                    out,
+                );
             }
         }
     }
 
     /// Evaluates the alarm state of the nodes with new reports (at most
     /// once per `eval_every` unless `force`).
-    pub fn evaluate(&mut self, db: &mut dyn Db, force: bool, out: &mut Vec<AlarmEvent>) -> Result<(), DbError> {
+    pub fn evaluate(
+        &mut self,
+        db: &mut dyn Db,
+        force: bool,
+        out: &mut Vec<AlarmEvent>,
+    ) -> Result<(), DbError> {
         if self.dirty.is_empty() || (!force && self.last_eval.elapsed() < self.eval_every) {
             return Ok(());
         }
@@ -154,7 +188,12 @@ impl Alarms {
             let states = trend::evaluate(&obs, &self.limits, &lookup);
             for b in super::bearing_states(&states) {
                 let to = state_name(b.worst.state);
-                let key: AlarmKey = (node, Some(b.bearing.to_string()), None, EV_STATE.to_string());
+                let key: AlarmKey = (
+                    node,
+                    Some(b.bearing.to_string()),
+                    None,
+                    EV_STATE.to_string(),
+                );
                 let from = self.last.get(&key).cloned();
                 let changed = from.as_deref() != Some(to.as_str());
                 if changed && (is_alarm(&to) || from.as_deref().is_some_and(is_alarm)) {

@@ -28,7 +28,9 @@ impl Val {
     pub fn int(&self, col: &str) -> Result<i64, DbError> {
         match self {
             Val::Int(Some(v)) => Ok(*v),
-            other => Err(DbError::Type(format!("{col}: expected integer, got {other:?}"))),
+            other => Err(DbError::Type(format!(
+                "{col}: expected integer, got {other:?}"
+            ))),
         }
     }
     /// Optional integer.
@@ -68,7 +70,9 @@ impl Val {
     pub fn blob(&self, col: &str) -> Result<Vec<u8>, DbError> {
         match self {
             Val::Blob(b) => Ok(b.clone()),
-            other => Err(DbError::Type(format!("{col}: expected bytes, got {other:?}"))),
+            other => Err(DbError::Type(format!(
+                "{col}: expected bytes, got {other:?}"
+            ))),
         }
     }
 }

@@ -134,13 +134,8 @@ fn write(db: &mut dyn Db, batch: &[Uplink]) -> Result<Vec<Outcome>, DbError> {
                 }
             }
             Err(reason) => {
-                let new = queries::insert_reject(
-                    db,
-                    &u.origin.source,
-                    u.origin.line,
-                    &u.text,
-                    &reason,
-                )?;
+                let new =
+                    queries::insert_reject(db, &u.origin.source, u.origin.line, &u.text, &reason)?;
                 Outcome::Rejected { reason, new }
             }
         });
@@ -154,7 +149,13 @@ fn write(db: &mut dyn Db, batch: &[Uplink]) -> Result<Vec<Outcome>, DbError> {
 pub fn decided_order(
     db: &mut dyn Db,
     mut tracker: SeqTracker,
-) -> Result<(SeqTracker, std::collections::HashMap<i64, super::seq::Order>), DbError> {
+) -> Result<
+    (
+        SeqTracker,
+        std::collections::HashMap<i64, super::seq::Order>,
+    ),
+    DbError,
+> {
     for (node, seq, payload) in queries::status_arrivals(db)? {
         tracker.observe_status(node, seq, &payload);
     }

@@ -67,7 +67,12 @@ const INSERT_REPORT: &str = "INSERT INTO reports (node_id, seq, frame_type, payl
 /// Inserts a decoded frame unless the same node+seq+payload is stored
 /// (the unique key); returns whether it was new. Reports go to `reports`
 /// and `defects`, status frames to `node_status`. Call inside a transaction.
-pub fn insert_frame(db: &mut dyn Db, f: &Frame, payload: &[u8], o: &Origin) -> Result<bool, DbError> {
+pub fn insert_frame(
+    db: &mut dyn Db,
+    f: &Frame,
+    payload: &[u8],
+    o: &Origin,
+) -> Result<bool, DbError> {
     let (node, seq) = node_seq(f);
     let json = serde_json::to_string(f).unwrap_or_default();
     if let Frame::Status(r) = f {
@@ -116,7 +121,15 @@ pub fn insert_frame(db: &mut dyn Db, f: &Frame, payload: &[u8], o: &Origin) -> R
         Frame::Reduced(r) => (
             "reduced",
             r.flags.to_bits(),
-            [none(), none(), none(), none(), none(), none(), Val::Text(None)],
+            [
+                none(),
+                none(),
+                none(),
+                none(),
+                none(),
+                none(),
+                Val::Text(None),
+            ],
         ),
         Frame::Status(_) => return Ok(false),
     };
@@ -155,9 +168,18 @@ pub fn insert_frame(db: &mut dyn Db, f: &Frame, payload: &[u8], o: &Origin) -> R
     };
     // All defect rows of the report in one statement (one round trip).
     let mut vals: Vec<Val> = Vec::new();
-    let mut push = |b: u8, k: &str, score: Option<f64>, amp: Option<f64>, h: Option<i64>, det: bool| {
-        vals.extend([id.into(), b.into(), k.into(), score.into(), amp.into(), h.into(), det.into()]);
-    };
+    let mut push =
+        |b: u8, k: &str, score: Option<f64>, amp: Option<f64>, h: Option<i64>, det: bool| {
+            vals.extend([
+                id.into(),
+                b.into(),
+                k.into(),
+                score.into(),
+                amp.into(),
+                h.into(),
+                det.into(),
+            ]);
+        };
     match f {
         Frame::Full(r) => {
             for (b, br) in (0u8..).zip(r.bearings.iter()) {
@@ -175,7 +197,14 @@ pub fn insert_frame(db: &mut dyn Db, f: &Frame, payload: &[u8], o: &Origin) -> R
         }
         Frame::Reduced(r) => {
             if let Some(w) = r.worst {
-                push(w.bearing, w.kind.name(), opt(w.score_db), None, None, w.detected);
+                push(
+                    w.bearing,
+                    w.kind.name(),
+                    opt(w.score_db),
+                    None,
+                    None,
+                    w.detected,
+                );
             }
         }
         Frame::Status(_) => {}
@@ -221,9 +250,9 @@ pub fn reject_text(text: &str) -> String {
     while !text.is_char_boundary(cut) {
         cut -= 1;
     }
-    let h = text
-        .bytes()
-        .fold(0xcbf2_9ce4_8422_2325u64, |h, b| (h ^ u64::from(b)).wrapping_mul(0x0100_0000_01b3));
+    let h = text.bytes().fold(0xcbf2_9ce4_8422_2325u64, |h, b| {
+        (h ^ u64::from(b)).wrapping_mul(0x0100_0000_01b3)
+    });
     format!(
         "{}... ({} bytes, fnv1a64 {h:016x})",
         text.get(..cut).unwrap_or(""),
@@ -278,31 +307,37 @@ pub type ReportArrival = (i64, u16, u16, Vec<u8>);
 
 /// Every stored report in arrival order, with its row id.
 pub fn report_arrivals(db: &mut dyn Db) -> Result<Vec<ReportArrival>, DbError> {
-    db.query("SELECT id, node_id, seq, payload FROM reports ORDER BY id", &[])?
-        .iter()
-        .map(|r| {
-            Ok((
-                col(r, 0).int("id")?,
-                u16_of(col(r, 1), "node_id")?,
-                u16_of(col(r, 2), "seq")?,
-                col(r, 3).blob("payload")?,
-            ))
-        })
-        .collect()
+    db.query(
+        "SELECT id, node_id, seq, payload FROM reports ORDER BY id",
+        &[],
+    )?
+    .iter()
+    .map(|r| {
+        Ok((
+            col(r, 0).int("id")?,
+            u16_of(col(r, 1), "node_id")?,
+            u16_of(col(r, 2), "seq")?,
+            col(r, 3).blob("payload")?,
+        ))
+    })
+    .collect()
 }
 
 /// (node, status seq, payload) of every stored status frame in arrival order.
 pub fn status_arrivals(db: &mut dyn Db) -> Result<Vec<(u16, u16, Vec<u8>)>, DbError> {
-    db.query("SELECT node_id, seq, payload FROM node_status ORDER BY id", &[])?
-        .iter()
-        .map(|r| {
-            Ok((
-                u16_of(col(r, 0), "node_id")?,
-                u16_of(col(r, 1), "seq")?,
-                col(r, 2).blob("payload")?,
-            ))
-        })
-        .collect()
+    db.query(
+        "SELECT node_id, seq, payload FROM node_status ORDER BY id",
+        &[],
+    )?
+    .iter()
+    .map(|r| {
+        Ok((
+            u16_of(col(r, 0), "node_id")?,
+            u16_of(col(r, 1), "seq")?,
+            col(r, 2).blob("payload")?,
+        ))
+    })
+    .collect()
 }
 
 fn observation(r: &Row) -> Result<Observation, DbError> {
@@ -338,19 +373,22 @@ pub fn observations(db: &mut dyn Db, node: Option<u16>) -> Result<Vec<Observatio
 
 /// Every hand-set baseline by (node, bearing, kind).
 pub fn baselines(db: &mut dyn Db) -> Result<HashMap<(u16, u8, String), f64>, DbError> {
-    db.query("SELECT node_id, bearing, kind, score_db FROM baselines", &[])?
-        .iter()
-        .map(|r| {
-            Ok((
-                (
-                    u16_of(col(r, 0), "node_id")?,
-                    u8_of(col(r, 1), "bearing")?,
-                    col(r, 2).text("kind")?,
-                ),
-                col(r, 3).real("score_db")?,
-            ))
-        })
-        .collect()
+    db.query(
+        "SELECT node_id, bearing, kind, score_db FROM baselines",
+        &[],
+    )?
+    .iter()
+    .map(|r| {
+        Ok((
+            (
+                u16_of(col(r, 0), "node_id")?,
+                u8_of(col(r, 1), "bearing")?,
+                col(r, 2).text("kind")?,
+            ),
+            col(r, 3).real("score_db")?,
+        ))
+    })
+    .collect()
 }
 
 /// Sets (Some) or clears (None) a hand-set baseline.

@@ -27,7 +27,10 @@ pub fn parse_ms(s: &str) -> Option<i64> {
     if b.len() < 20 || b.get(4) != Some(&b'-') || b.get(7) != Some(&b'-') {
         return None;
     }
-    if !matches!(b.get(10), Some(b'T' | b't' | b' ')) || b.get(13) != Some(&b':') || b.get(16) != Some(&b':') {
+    if !matches!(b.get(10), Some(b'T' | b't' | b' '))
+        || b.get(13) != Some(&b':')
+        || b.get(16) != Some(&b':')
+    {
         return None;
     }
     let (y, mo, d) = (num(s, 0, 4)?, num(s, 5, 7)?, num(s, 8, 10)?);
@@ -47,7 +50,11 @@ pub fn parse_ms(s: &str) -> Option<i64> {
         if frac.is_empty() {
             return None;
         }
-        let mut digits = frac.chars().chain(std::iter::repeat('0')).take(3).collect::<String>();
+        let mut digits = frac
+            .chars()
+            .chain(std::iter::repeat('0'))
+            .take(3)
+            .collect::<String>();
         digits.truncate(3);
         ms = digits.parse().ok()?;
     }

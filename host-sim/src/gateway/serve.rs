@@ -99,7 +99,12 @@ impl Handle {
                 .try_publish(topic, rumqttc::QoS::AtLeastOnce, false, payload)
                 .map_err(|e| e.to_string()),
             Handle::V5(c) => c
-                .try_publish(topic, rumqttc::v5::mqttbytes::QoS::AtLeastOnce, false, payload)
+                .try_publish(
+                    topic,
+                    rumqttc::v5::mqttbytes::QoS::AtLeastOnce,
+                    false,
+                    payload,
+                )
                 .map_err(|e| e.to_string()),
         }
     }
@@ -222,10 +227,16 @@ fn connect(
                     match ev {
                         Ok(Event::Incoming(Packet::ConnAck(ack))) => {
                             connected.store(true, Ordering::SeqCst);
-                            log.info("broker connected", serde_json::json!({"session_present": ack.session_present}));
+                            log.info(
+                                "broker connected",
+                                serde_json::json!({"session_present": ack.session_present}),
+                            );
                             for t in &topics {
                                 if let Err(e) = h2.subscribe(t) {
-                                    log.warn("subscribe failed", serde_json::json!({"topic": t, "error": e}));
+                                    log.warn(
+                                        "subscribe failed",
+                                        serde_json::json!({"topic": t, "error": e}),
+                                    );
                                 }
                             }
                         }
@@ -246,7 +257,10 @@ fn connect(
                             if stopping.load(Ordering::SeqCst) {
                                 break;
                             }
-                            log.warn("broker connection lost, retrying in 1 s", serde_json::json!({"error": e.to_string()}));
+                            log.warn(
+                                "broker connection lost, retrying in 1 s",
+                                serde_json::json!({"error": e.to_string()}),
+                            );
                             std::thread::sleep(Duration::from_secs(1));
                         }
                     }
@@ -256,8 +270,8 @@ fn connect(
             Ok((handle, th))
         }
         Protocol::V5 => {
-            use rumqttc::v5::{Event, MqttOptions};
             use rumqttc::v5::mqttbytes::v5::Packet;
+            use rumqttc::v5::{Event, MqttOptions};
             let mut o = MqttOptions::new(&b.client_id, &b.host, b.port);
             o.set_keep_alive(keep_alive)
                 .set_clean_start(false)
@@ -278,10 +292,16 @@ fn connect(
                     match ev {
                         Ok(Event::Incoming(Packet::ConnAck(ack))) => {
                             connected.store(true, Ordering::SeqCst);
-                            log.info("broker connected", serde_json::json!({"session_present": ack.session_present}));
+                            log.info(
+                                "broker connected",
+                                serde_json::json!({"session_present": ack.session_present}),
+                            );
                             for t in &topics {
                                 if let Err(e) = h2.subscribe(t) {
-                                    log.warn("subscribe failed", serde_json::json!({"topic": t, "error": e}));
+                                    log.warn(
+                                        "subscribe failed",
+                                        serde_json::json!({"topic": t, "error": e}),
+                                    );
                                 }
                             }
                         }
@@ -302,7 +322,10 @@ fn connect(
                             if stopping.load(Ordering::SeqCst) {
                                 break;
                             }
-                            log.warn("broker connection lost, retrying in 1 s", serde_json::json!({"error": e.to_string()}));
+                            log.warn(
+                                "broker connection lost, retrying in 1 s",
+                                serde_json::json!({"error": e.to_string()}),
+                            );
                             std::thread::sleep(Duration::from_secs(1));
                         }
                     }
@@ -318,7 +341,10 @@ fn health_http(addr: &str, health: Arc<Mutex<Health>>, log: Log) -> Result<(), C
     use std::io::Read;
     let listener = std::net::TcpListener::bind(addr)
         .map_err(|e| CliError::input("log.health_http", format!("{addr}: {e}")))?;
-    log.info("health endpoint listening", serde_json::json!({"addr": addr}));
+    log.info(
+        "health endpoint listening",
+        serde_json::json!({"addr": addr}),
+    );
     std::thread::spawn(move || {
         for stream in listener.incoming() {
             let Ok(mut s) = stream else { continue };
@@ -357,12 +383,22 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
     let url = cfg.store_url()?;
     let shown_url = db::redact(&url);
     let mut db = db::open(&url)?;
-    let silent_after = Duration::from_secs(cfg.alarms.expected_interval_s.saturating_mul(u64::from(cfg.alarms.silent_intervals)));
-    let mut alarms = Alarms::new(db.as_mut(), cfg.limits(), silent_after, Duration::from_millis(cfg.alarms.eval_ms))
-        .map_err(|e| CliError::Other(format!("{shown_url}: {e}")))?;
+    let silent_after = Duration::from_secs(
+        cfg.alarms
+            .expected_interval_s
+            .saturating_mul(u64::from(cfg.alarms.silent_intervals)),
+    );
+    let mut alarms = Alarms::new(
+        db.as_mut(),
+        cfg.limits(),
+        silent_after,
+        Duration::from_millis(cfg.alarms.eval_ms),
+    )
+    .map_err(|e| CliError::Other(format!("{shown_url}: {e}")))?;
     // The history of frames is the store's (unique key); keep only positions.
-    let (mut tracker, _) = ingest::decided_order(db.as_mut(), super::seq::SeqTracker::without_history())
-        .map_err(|e| CliError::Other(format!("{shown_url}: {e}")))?;
+    let (mut tracker, _) =
+        ingest::decided_order(db.as_mut(), super::seq::SeqTracker::without_history())
+            .map_err(|e| CliError::Other(format!("{shown_url}: {e}")))?;
 
     let stop = Arc::new(AtomicBool::new(false));
     for sig in [signal_hook::consts::SIGTERM, signal_hook::consts::SIGINT] {
@@ -382,7 +418,8 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
     // carries our acks out); the broker bounds what is unacknowledged
     // (receive maximum / max_inflight_messages), so this queue is bounded too.
     let (tx, rx) = mpsc::channel::<Msg>();
-    let (mqtt, event_thread) = connect(&cfg, tx, Arc::clone(&connected), Arc::clone(&stopping), log)?;
+    let (mqtt, event_thread) =
+        connect(&cfg, tx, Arc::clone(&connected), Arc::clone(&stopping), log)?;
     log.info(
         "gateway serve started",
         serde_json::json!({
@@ -394,7 +431,10 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
         }),
     );
 
-    let mut lags = LagWindow { v: Vec::new(), next: 0 };
+    let mut lags = LagWindow {
+        v: Vec::new(),
+        next: 0,
+    };
     let mut received: u64 = 0;
     let mut last_health = Instant::now();
     let batch_wait = Duration::from_millis(cfg.ingest.batch_ms);
@@ -440,7 +480,10 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
                 match ingest::store_batch(db.as_mut(), &mut tracker, &uplinks) {
                     Ok(o) => break Some(o),
                     Err(e) => {
-                        log.warn("store write failed, batch kept unacknowledged; retrying in 1 s", serde_json::json!({"error": e.to_string(), "messages": uplinks.len()}));
+                        log.warn(
+                            "store write failed, batch kept unacknowledged; retrying in 1 s",
+                            serde_json::json!({"error": e.to_string(), "messages": uplinks.len()}),
+                        );
                         if stop.load(Ordering::SeqCst) {
                             break None;
                         }
@@ -449,9 +492,15 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
                             match db::open(&url) {
                                 Ok(n) => {
                                     db = n;
-                                    log.info("store reconnected", serde_json::json!({"store": shown_url}));
+                                    log.info(
+                                        "store reconnected",
+                                        serde_json::json!({"store": shown_url}),
+                                    );
                                 }
-                                Err(e) => log.warn("store reconnect failed", serde_json::json!({"error": e.to_string()})),
+                                Err(e) => log.warn(
+                                    "store reconnect failed",
+                                    serde_json::json!({"error": e.to_string()}),
+                                ),
                             }
                         }
                     }
@@ -467,7 +516,10 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
             let commit_ms = now_ms();
             for m in &pending {
                 if let Err(e) = mqtt.ack(&m.ack) {
-                    log.warn("ack failed (the broker will redeliver)", serde_json::json!({"error": e}));
+                    log.warn(
+                        "ack failed (the broker will redeliver)",
+                        serde_json::json!({"error": e}),
+                    );
                 }
             }
             let mut events: Vec<AlarmEvent> = Vec::new();
@@ -477,7 +529,12 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
                     Outcome::New { frame, .. } => {
                         stored += 1;
                         let (node, _) = store::node_seq(frame);
-                        alarms.frame(node, frame_flags(frame), store::is_report(frame), &mut events);
+                        alarms.frame(
+                            node,
+                            frame_flags(frame),
+                            store::is_report(frame),
+                            &mut events,
+                        );
                         if let Some(rx) = u.origin.rx_time_ms {
                             lags.push(commit_ms - rx);
                         }
@@ -486,7 +543,10 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
                     Outcome::Rejected { reason, new } => {
                         rejected += 1;
                         if *new {
-                            log.warn("rejected message", serde_json::json!({"topic": u.origin.source, "reason": reason}));
+                            log.warn(
+                                "rejected message",
+                                serde_json::json!({"topic": u.origin.source, "reason": reason}),
+                            );
                         }
                     }
                 }
@@ -501,14 +561,20 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
             }
             pending.clear();
             if let Err(e) = alarms.evaluate(db.as_mut(), false, &mut events) {
-                log.warn("alarm evaluation failed", serde_json::json!({"error": e.to_string()}));
+                log.warn(
+                    "alarm evaluation failed",
+                    serde_json::json!({"error": e.to_string()}),
+                );
             }
             publish_alarms(db.as_mut(), &cfg, &mqtt, events, &health, log);
         }
         // Idle: evaluate what is pending, look for silent nodes.
         let mut events = Vec::new();
         if let Err(e) = alarms.evaluate(db.as_mut(), false, &mut events) {
-            log.warn("alarm evaluation failed", serde_json::json!({"error": e.to_string()}));
+            log.warn(
+                "alarm evaluation failed",
+                serde_json::json!({"error": e.to_string()}),
+            );
         }
         alarms.check_silence(&mut events);
         publish_alarms(db.as_mut(), &cfg, &mqtt, events, &health, log);
@@ -537,6 +603,16 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
             }
         }
     }
+    // Last evaluation of what was committed, before leaving.
+    let mut events = Vec::new();
+    if let Err(e) = alarms.evaluate(db.as_mut(), true, &mut events) {
+        log.warn(
+            "alarm evaluation failed",
+            serde_json::json!({"error": e.to_string()}),
+        );
+    }
+    publish_alarms(db.as_mut(), &cfg, &mqtt, events, &health, log);
+    std::thread::sleep(Duration::from_millis(100)); // let the event loop send them
     stopping.store(true, Ordering::SeqCst);
     mqtt.disconnect();
     let t0 = Instant::now();
@@ -544,7 +620,10 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
         std::thread::sleep(Duration::from_millis(20));
     }
     if let Ok(h) = health.lock() {
-        log.info("gateway serve stopped", serde_json::to_value(&*h).unwrap_or_default());
+        log.info(
+            "gateway serve stopped",
+            serde_json::to_value(&*h).unwrap_or_default(),
+        );
     }
     match exit_err {
         Some(e) => Err(e),
@@ -566,7 +645,10 @@ fn publish_alarms(
     let kept = match Alarms::record(db, events) {
         Ok(k) => k,
         Err(e) => {
-            log.warn("alarm events not recorded", serde_json::json!({"error": e.to_string()}));
+            log.warn(
+                "alarm events not recorded",
+                serde_json::json!({"error": e.to_string()}),
+            );
             return;
         }
     };

@@ -327,7 +327,7 @@ fn default_silent() -> u32 {
     3
 }
 fn default_eval_ms() -> u64 {
-    1000
+    10_000
 }
 fn default_log_format() -> LogFormat {
     LogFormat::Text
@@ -364,16 +364,25 @@ impl ServeConfig {
             return bad("uplink.topics", "at least one topic filter is needed");
         }
         if c.broker.client_id.is_empty() {
-            return bad("broker.client_id", "must not be empty (the broker keeps the session under it)");
+            return bad(
+                "broker.client_id",
+                "must not be empty (the broker keeps the session under it)",
+            );
         }
         if c.ingest.batch_max == 0 || c.ingest.batch_max > 10_000 {
             return bad("ingest.batch_max", "must be 1..=10000");
         }
         if c.alarms.expected_interval_s == 0 || c.alarms.silent_intervals == 0 {
-            return bad("alarms", "expected_interval_s and silent_intervals must be at least 1");
+            return bad(
+                "alarms",
+                "expected_interval_s and silent_intervals must be at least 1",
+            );
         }
         if c.uplink.shape == Shape::Raw && c.uplink.node_topic_level.is_none() {
-            return bad("uplink.node_topic_level", "the raw shape needs the topic level of the node id");
+            return bad(
+                "uplink.node_topic_level",
+                "the raw shape needs the topic level of the node id",
+            );
         }
         for (key, p) in [
             ("uplink.payload", &c.uplink.payload),
@@ -385,7 +394,10 @@ impl ServeConfig {
             ("uplink.snr", &c.uplink.snr),
         ] {
             if !p.is_empty() && !p.starts_with('/') {
-                return bad(key, "a JSON pointer (RFC 6901) starts with '/' (or is \"\" for not mapped)");
+                return bad(
+                    key,
+                    "a JSON pointer (RFC 6901) starts with '/' (or is \"\" for not mapped)",
+                );
             }
         }
         if c.uplink.payload.is_empty() {
@@ -393,12 +405,18 @@ impl ServeConfig {
         }
         if let Some(t) = &c.broker.tls {
             if t.client_cert_file.is_some() != t.client_key_file.is_some() {
-                return bad("broker.tls", "client_cert_file and client_key_file go together");
+                return bad(
+                    "broker.tls",
+                    "client_cert_file and client_key_file go together",
+                );
             }
         }
         if let Some(a) = &c.log.health_http {
             if !a.starts_with("127.") && !a.starts_with("[::1]") && !a.starts_with("localhost") {
-                return bad("log.health_http", "the health endpoint listens on loopback only (127.0.0.1:PORT)");
+                return bad(
+                    "log.health_http",
+                    "the health endpoint listens on loopback only (127.0.0.1:PORT)",
+                );
             }
         }
         let l = &c.alarms.limits;
@@ -426,7 +444,10 @@ impl ServeConfig {
     pub fn store_url(&self) -> Result<String, CliError> {
         if let Some(var) = &self.store.url_env {
             return std::env::var(var).map_err(|_| {
-                CliError::input("store.url_env", format!("environment variable {var} is not set"))
+                CliError::input(
+                    "store.url_env",
+                    format!("environment variable {var} is not set"),
+                )
             });
         }
         self.store
@@ -462,7 +483,13 @@ fn hex_text(b: &[u8]) -> String {
 
 /// Reads one MQTT message into an uplink. Anything that does not fit the
 /// mapping gives an uplink whose `bytes` is the reason (stored as a reject).
-pub fn read_message(u: &UplinkConfig, topic: &str, payload: &[u8], index: usize, now_ms: i64) -> Uplink {
+pub fn read_message(
+    u: &UplinkConfig,
+    topic: &str,
+    payload: &[u8],
+    index: usize,
+    now_ms: i64,
+) -> Uplink {
     let mut origin = Origin {
         source: topic.to_string(),
         line: index,
@@ -475,7 +502,9 @@ pub fn read_message(u: &UplinkConfig, topic: &str, payload: &[u8], index: usize,
             let (bytes, claimed_node) = match claimed.map(str::parse::<u16>) {
                 Some(Ok(n)) => (Ok(payload.to_vec()), Some(n)),
                 _ => (
-                    Err(format!("topic {topic:?} has no node id (decimal) at level {level}")),
+                    Err(format!(
+                        "topic {topic:?} has no node id (decimal) at level {level}"
+                    )),
                     None,
                 ),
             };
@@ -508,7 +537,10 @@ pub fn read_message(u: &UplinkConfig, topic: &str, payload: &[u8], index: usize,
                     origin.rx_time = Some(s.clone());
                     origin.rx_time_ms = super::rfc3339::parse_ms(s);
                     if origin.rx_time_ms.is_none() {
-                        return fail(origin, format!("receive time {s:?} at {} is not RFC 3339", u.rx_time));
+                        return fail(
+                            origin,
+                            format!("receive time {s:?} at {} is not RFC 3339", u.rx_time),
+                        );
                     }
                 }
                 Some(n) if n.is_i64() => {
@@ -516,7 +548,13 @@ pub fn read_message(u: &UplinkConfig, topic: &str, payload: &[u8], index: usize,
                     origin.rx_time = n.as_i64().map(super::rfc3339::format_ms);
                 }
                 Some(other) => {
-                    return fail(origin, format!("receive time at {} is neither text nor integer ms: {other}", u.rx_time))
+                    return fail(
+                        origin,
+                        format!(
+                            "receive time at {} is neither text nor integer ms: {other}",
+                            u.rx_time
+                        ),
+                    )
                 }
                 None => origin.rx_time_ms = Some(now_ms),
             }
@@ -525,14 +563,22 @@ pub fn read_message(u: &UplinkConfig, topic: &str, payload: &[u8], index: usize,
             origin.snr_db = pointer(&v, &u.snr).and_then(serde_json::Value::as_f64);
             if let (Some(want), got) = (u.expect_fport, origin.fport) {
                 if got != Some(want) {
-                    return fail(origin, format!("fPort {got:?} is not the frames' port {want}"));
+                    return fail(
+                        origin,
+                        format!("fPort {got:?} is not the frames' port {want}"),
+                    );
                 }
             }
             let claimed_node = match pointer(&v, &u.node_id) {
                 None => None,
                 Some(n) => match n.as_u64().and_then(|x| u16::try_from(x).ok()) {
                     Some(x) => Some(x),
-                    None => return fail(origin, format!("node id at {} is not 0..=65535: {n}", u.node_id)),
+                    None => {
+                        return fail(
+                            origin,
+                            format!("node id at {} is not 0..=65535: {n}", u.node_id),
+                        )
+                    }
                 },
             };
             let bytes = match pointer(&v, &u.payload) {
@@ -589,7 +635,8 @@ topics = ["plant/+/up"]
     fn bad_config_names_the_key() {
         let e = ServeConfig::parse("t.toml", &MIN.replace("plant/+/up", "")).map(|_| ());
         assert!(e.is_ok()); // an empty filter string is the broker's to refuse
-        let e = ServeConfig::parse("t.toml", &format!("{MIN}\n[ingest]\nbatch_max = 0\n")).unwrap_err();
+        let e =
+            ServeConfig::parse("t.toml", &format!("{MIN}\n[ingest]\nbatch_max = 0\n")).unwrap_err();
         assert!(e.to_string().contains("ingest.batch_max"), "{e}");
         let raw = MIN.replace("[uplink]", "[uplink]\nshape = \"raw\"");
         let e = ServeConfig::parse("t.toml", &raw).unwrap_err();

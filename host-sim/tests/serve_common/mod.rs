@@ -63,7 +63,11 @@ impl Broker {
             dir.display()
         );
         std::fs::write(dir.join("mosquitto.conf"), conf).unwrap();
-        let mut b = Broker { port, dir, child: None };
+        let mut b = Broker {
+            port,
+            dir,
+            child: None,
+        };
         b.spawn();
         b
     }
@@ -118,7 +122,10 @@ fn unsafe_is_root() -> bool {
 }
 
 pub fn sig(pid: u32, name: &str) {
-    let _ = Command::new("kill").arg(format!("-{name}")).arg(pid.to_string()).status();
+    let _ = Command::new("kill")
+        .arg(format!("-{name}"))
+        .arg(pid.to_string())
+        .status();
 }
 
 /// A fresh PostgreSQL database for one test; returns its URL.
@@ -126,7 +133,8 @@ pub fn pg_database(name: &str) -> String {
     let admin = need_env("ENVORD_TEST_PG_URL");
     let mut c = postgres::Client::connect(&admin, postgres::NoTls)
         .unwrap_or_else(|e| panic!("PostgreSQL at ENVORD_TEST_PG_URL is not reachable: {e}"));
-    c.batch_execute(&format!("DROP DATABASE IF EXISTS {name} WITH (FORCE)")).unwrap();
+    c.batch_execute(&format!("DROP DATABASE IF EXISTS {name} WITH (FORCE)"))
+        .unwrap();
     c.batch_execute(&format!("CREATE DATABASE {name}")).unwrap();
     match admin.rfind('/') {
         Some(i) => format!("{}/{name}", &admin[..i]),
@@ -197,7 +205,9 @@ fn full_frame(node: u16, seq: u16, bpfo_db: f32, flags_sensor: bool) -> Vec<u8> 
 }
 
 fn status_frame(node: u16, seq: u16) -> Vec<u8> {
-    use dsp_core::frame::status::{encode_status, BandSource, DownlinkResult, StatusReport, SurveyStatus};
+    use dsp_core::frame::status::{
+        encode_status, BandSource, DownlinkResult, StatusReport, SurveyStatus,
+    };
     let r = StatusReport {
         node_id: node,
         seq,
@@ -320,9 +330,11 @@ pub fn day_stream(nodes: u16, per_node: u16, raw: bool, topic_prefix: &str) -> S
                 json_msg(node, node, t, &to_base64(&frame))
             };
             if is_status {
-                s.statuses.insert((node, sseq[usize::from(node)].wrapping_sub(1), frame));
+                s.statuses
+                    .insert((node, sseq[usize::from(node)].wrapping_sub(1), frame));
             } else {
-                s.reports.insert((node, seq[usize::from(node)].wrapping_sub(1), frame));
+                s.reports
+                    .insert((node, seq[usize::from(node)].wrapping_sub(1), frame));
             }
             s.messages.push((topic.clone(), body.clone()));
             if count % 50 == 0 {
@@ -339,10 +351,21 @@ pub fn day_stream(nodes: u16, per_node: u16, raw: bool, topic_prefix: &str) -> S
 /// may then hold repeats: the store absorbs them). `on_progress(i)` runs after
 /// chunk i (e.g. to restart a server mid-stream). Returns the publish wall
 /// times (ms since the epoch) of each message's last sending.
-pub fn publish(port: u16, msgs: &[(String, Vec<u8>)], chunk: usize, mut on_progress: impl FnMut(usize)) -> Vec<i64> {
+pub fn publish(
+    port: u16,
+    msgs: &[(String, Vec<u8>)],
+    chunk: usize,
+    mut on_progress: impl FnMut(usize),
+) -> Vec<i64> {
     use rumqttc::{Client, Event, MqttOptions, Packet, QoS};
-    let mut o = MqttOptions::new(format!("envord-test-pub-{port}-{}", std::process::id()), "127.0.0.1", port);
-    o.set_keep_alive(Duration::from_secs(10)).set_clean_session(true).set_inflight(1000);
+    let mut o = MqttOptions::new(
+        format!("envord-test-pub-{port}-{}", std::process::id()),
+        "127.0.0.1",
+        port,
+    );
+    o.set_keep_alive(Duration::from_secs(10))
+        .set_clean_session(true)
+        .set_inflight(1000);
     let (client, mut conn) = Client::new(o, 2000);
     let (tx, rx) = mpsc::channel::<bool>(); // true = PubAck, false = (re)connected
     std::thread::spawn(move || {
@@ -376,13 +399,22 @@ pub fn publish(port: u16, msgs: &[(String, Vec<u8>)], chunk: usize, mut on_progr
     let deadline = t0 + Duration::from_secs(600);
     for (ci, part) in msgs.chunks(chunk).enumerate() {
         'resend: loop {
-            assert!(Instant::now() < deadline, "publishing took longer than 600 s");
+            assert!(
+                Instant::now() < deadline,
+                "publishing took longer than 600 s"
+            );
             let base = ci * chunk;
             for (i, (topic, body)) in part.iter().enumerate() {
                 times[base + i] = now_ms();
                 // try_publish: a full request queue must not block past the deadline
-                while client.try_publish(topic.as_str(), QoS::AtLeastOnce, false, body.clone()).is_err() {
-                    assert!(Instant::now() < deadline, "publishing took longer than 600 s");
+                while client
+                    .try_publish(topic.as_str(), QoS::AtLeastOnce, false, body.clone())
+                    .is_err()
+                {
+                    assert!(
+                        Instant::now() < deadline,
+                        "publishing took longer than 600 s"
+                    );
                     std::thread::sleep(Duration::from_millis(2));
                 }
             }
@@ -482,7 +514,10 @@ impl Gateway {
                 return;
             }
             if let Ok(Some(st)) = self.child.try_wait() {
-                panic!("gateway exited ({st}) before connecting:\n{}", self.log_text());
+                panic!(
+                    "gateway exited ({st}) before connecting:\n{}",
+                    self.log_text()
+                );
             }
             std::thread::sleep(Duration::from_millis(50));
         }
@@ -500,10 +535,16 @@ impl Gateway {
         loop {
             if let Ok(Some(st)) = self.child.try_wait() {
                 let log = self.log_text();
-                assert!(st.success(), "gateway exited with {st} after SIGTERM:\n{log}");
+                assert!(
+                    st.success(),
+                    "gateway exited with {st} after SIGTERM:\n{log}"
+                );
                 return log;
             }
-            assert!(t0.elapsed() < Duration::from_secs(20), "gateway did not exit within 20 s of SIGTERM");
+            assert!(
+                t0.elapsed() < Duration::from_secs(20),
+                "gateway did not exit within 20 s of SIGTERM"
+            );
             std::thread::sleep(Duration::from_millis(50));
         }
     }
@@ -518,7 +559,11 @@ impl Gateway {
 }
 
 fn spawn_gw(config: &Path, log: &Path, store: &str) -> Child {
-    let logf = std::fs::OpenOptions::new().create(true).append(true).open(log).unwrap();
+    let logf = std::fs::OpenOptions::new()
+        .create(true)
+        .append(true)
+        .open(log)
+        .unwrap();
     Command::new(BIN)
         .args(["gateway", "serve", "--config"])
         .arg(config)
@@ -542,7 +587,12 @@ pub fn stored(url: &str) -> (Vec<(u16, u16, Vec<u8>)>, Vec<(u16, u16, Vec<u8>)>,
     let mut d = db::open(url).unwrap();
     let d = d.as_mut();
     let reports = queries::arrivals(d).unwrap();
-    let rows = d.query("SELECT node_id, seq, payload FROM node_status ORDER BY id", &[]).unwrap();
+    let rows = d
+        .query(
+            "SELECT node_id, seq, payload FROM node_status ORDER BY id",
+            &[],
+        )
+        .unwrap();
     let statuses = rows
         .iter()
         .map(|r| {
@@ -591,9 +641,16 @@ pub fn check_exact(url: &str, s: &Stream) -> (usize, usize, i64) {
     let want_r: HashSet<_> = s.reports.iter().cloned().collect();
     let want_s: HashSet<_> = s.statuses.iter().cloned().collect();
     let lost: Vec<_> = want_r.difference(&rset).take(3).collect();
-    assert!(lost.is_empty(), "{} report(s) lost, e.g. {lost:?}", want_r.difference(&rset).count());
+    assert!(
+        lost.is_empty(),
+        "{} report(s) lost, e.g. {lost:?}",
+        want_r.difference(&rset).count()
+    );
     assert_eq!(rset, want_r, "stored reports differ from the published set");
-    assert_eq!(sset, want_s, "stored status frames differ from the published set");
+    assert_eq!(
+        sset, want_s,
+        "stored status frames differ from the published set"
+    );
     assert_eq!(rejects, s.bad as i64, "rejects: one per bad message");
     (reports.len(), statuses.len(), rejects)
 }
@@ -603,7 +660,9 @@ pub fn check_exact(url: &str, s: &Stream) -> (usize, usize, i64) {
 pub fn publish_stamped(port: u16, msgs: &[(String, Vec<u8>)], chunk: usize) {
     use rumqttc::{Client, Event, MqttOptions, Packet, QoS};
     let mut o = MqttOptions::new(format!("envord-bench-pub-{port}"), "127.0.0.1", port);
-    o.set_keep_alive(Duration::from_secs(10)).set_clean_session(true).set_inflight(1000);
+    o.set_keep_alive(Duration::from_secs(10))
+        .set_clean_session(true)
+        .set_inflight(1000);
     let (client, mut conn) = Client::new(o, 2000);
     let (tx, rx) = mpsc::channel::<bool>();
     std::thread::spawn(move || {
@@ -624,7 +683,11 @@ pub fn publish_stamped(port: u16, msgs: &[(String, Vec<u8>)], chunk: usize) {
             }
         }
     });
-    assert_eq!(rx.recv_timeout(Duration::from_secs(20)), Ok(false), "publisher: no connection");
+    assert_eq!(
+        rx.recv_timeout(Duration::from_secs(20)),
+        Ok(false),
+        "publisher: no connection"
+    );
     for part in msgs.chunks(chunk) {
         for (topic, body) in part {
             let text = String::from_utf8_lossy(body);
@@ -636,7 +699,9 @@ pub fn publish_stamped(port: u16, msgs: &[(String, Vec<u8>)], chunk: usize) {
                 }
                 None => body.clone(),
             };
-            client.publish(topic.as_str(), QoS::AtLeastOnce, false, body).unwrap();
+            client
+                .publish(topic.as_str(), QoS::AtLeastOnce, false, body)
+                .unwrap();
         }
         let mut acked = 0;
         while acked < part.len() {
