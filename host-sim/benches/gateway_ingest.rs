@@ -6,6 +6,15 @@
 //! figures: commit time minus the receive time stamped at publishing), and
 //! the service's RSS after each day. Run through `.ci/services.sh bench`.
 
+#![allow(
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::panic,
+    clippy::indexing_slicing,
+    clippy::cast_possible_truncation,
+    missing_docs
+)] // a benchmark program, not library code
+
 #[path = "../tests/serve_common/mod.rs"]
 mod common;
 

@@ -3,6 +3,13 @@
 //! what the store holds: each valid frame exactly once, each bad message one
 //! reject. Bounded: at most 500 nodes x one day (72,000 slots) per test, every
 //! wait has a limit; only 127.0.0.1.
+#![allow(
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::panic,
+    clippy::indexing_slicing,
+    clippy::cast_possible_truncation
+)]
 
 #[path = "serve_common/mod.rs"]
 mod common;

@@ -582,7 +582,10 @@ impl Drop for Gateway {
 }
 
 /// Every stored frame (reports, statuses) and the reject count, read through the project's store.
-pub fn stored(url: &str) -> (Vec<(u16, u16, Vec<u8>)>, Vec<(u16, u16, Vec<u8>)>, i64) {
+/// Stored frames: (node, seq, payload).
+pub type Frames = Vec<(u16, u16, Vec<u8>)>;
+
+pub fn stored(url: &str) -> (Frames, Frames, i64) {
     use host_sim::gateway::{db, queries};
     let mut d = db::open(url).unwrap();
     let d = d.as_mut();
