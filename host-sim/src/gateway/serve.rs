@@ -72,7 +72,13 @@ struct Msg {
     topic: String,
     payload: Vec<u8>,
     ack: Ack,
+    /// Connection generation it arrived on: a message of an older
+    /// connection is not acknowledged (its packet id may name another
+    /// message now); the broker redelivers it and the unique key absorbs it.
+    generation: u64,
 }
+
+static GENERATION: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
 
 enum Ack {
     V4(rumqttc::Publish),
@@ -226,6 +232,7 @@ fn connect(
                 for ev in conn.iter() {
                     match ev {
                         Ok(Event::Incoming(Packet::ConnAck(ack))) => {
+                            GENERATION.fetch_add(1, Ordering::SeqCst);
                             connected.store(true, Ordering::SeqCst);
                             log.info(
                                 "broker connected",
@@ -245,6 +252,7 @@ fn connect(
                                 topic: p.topic.clone(),
                                 payload: p.payload.to_vec(),
                                 ack: Ack::V4(p),
+                                generation: GENERATION.load(Ordering::SeqCst),
                             };
                             if tx.send(m).is_err() {
                                 break;
@@ -291,6 +299,7 @@ fn connect(
                 for ev in conn.iter() {
                     match ev {
                         Ok(Event::Incoming(Packet::ConnAck(ack))) => {
+                            GENERATION.fetch_add(1, Ordering::SeqCst);
                             connected.store(true, Ordering::SeqCst);
                             log.info(
                                 "broker connected",
@@ -310,6 +319,7 @@ fn connect(
                                 topic: String::from_utf8_lossy(&p.topic).into_owned(),
                                 payload: p.payload.to_vec(),
                                 ack: Ack::V5(p),
+                                generation: GENERATION.load(Ordering::SeqCst),
                             };
                             if tx.send(m).is_err() {
                                 break;
@@ -514,7 +524,8 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
                 break;
             };
             let commit_ms = now_ms();
-            for m in &pending {
+            let generation = GENERATION.load(Ordering::SeqCst);
+            for m in pending.iter().filter(|m| m.generation == generation) {
                 if let Err(e) = mqtt.ack(&m.ack) {
                     log.warn(
                         "ack failed (the broker will redeliver)",
