@@ -290,18 +290,9 @@ impl FrontEnd {
         let fsc = self.cfg.adc_full_scale;
         let k = self.cfg.counts_to_g;
         for chunk in block.chunks(CHUNK) {
-            let n = chunk.len();
-            let neg = fsc.saturating_neg();
-            let mut clipped = 0u32;
-            for (b, &c) in buf.iter_mut().zip(chunk) {
-                clipped += u32::from(c >= fsc || c <= neg);
-                *b = f32::from(c) * k;
-            }
-            for _ in 0..clipped {
-                self.acc.add_clipped();
-            }
+            // Scaling, clip count and statistics in one pass.
+            let n = self.acc.add_block_i16(chunk, k, fsc, &mut buf);
             let buf = buf.get_mut(..n).unwrap_or(&mut []);
-            self.acc.add_block(buf);
             self.run(buf, &mut out);
         }
     }

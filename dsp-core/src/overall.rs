@@ -206,6 +206,108 @@ impl OverallAcc {
         }
     }
 
+    /// Adds ADC counts scaled by `scale` (g per count), writing the scaled
+    /// samples to `out` (as many as fit) and counting |count| >= `full_scale`
+    /// as clipped: the same arithmetic per sample as [`Self::add_block`] on
+    /// `f32::from(c) * scale`, in one pass. Scaled counts are finite when
+    /// `scale * 32768` is, so the non-finite test is left out of the loop
+    /// (any other scale takes the general path). Returns the samples taken.
+    ///
+    /// ```
+    /// use dsp_core::overall::OverallAcc;
+    /// let (mut a, mut b) = (OverallAcc::new(), OverallAcc::new());
+    /// let c = [3i16, -7, 32767, 12, -32768];
+    /// let mut x: Vec<f32> = c.iter().map(|&c| f32::from(c) * 0.5).collect();
+    /// b.add_block(&mut x);
+    /// let mut y = [0f32; 5];
+    /// assert_eq!(a.add_block_i16(&c, 0.5, 32767, &mut y), 5);
+    /// assert_eq!(y.to_vec(), x);
+    /// assert_eq!(a.snapshot().clipped, 2);
+    /// assert_eq!(a.snapshot().mean, b.snapshot().mean);
+    /// ```
+    pub fn add_block_i16(
+        &mut self,
+        counts: &[i16],
+        scale: f32,
+        full_scale: i16,
+        out: &mut [f32],
+    ) -> usize {
+        let n = counts.len().min(out.len());
+        let (Some(counts), Some(out)) = (counts.get(..n), out.get_mut(..n)) else {
+            return 0;
+        };
+        let neg = full_scale.saturating_neg();
+        let clip = |c: i16| u32::from(c >= full_scale || c <= neg);
+        if !(scale * 32768.0).is_finite() {
+            let mut clipped = 0u32;
+            for (o, &c) in out.iter_mut().zip(counts) {
+                clipped += clip(c);
+                *o = f32::from(c) * scale;
+            }
+            self.clipped = self.clipped.saturating_add(clipped);
+            self.add_block(out);
+            return n;
+        }
+        let (mut counts, mut out) = (counts, out);
+        // Until the shift is known, the scalar path (it sets shift, min, max).
+        while self.shift.is_none() {
+            let (Some((&c, ct)), Some((o, ot))) = (counts.split_first(), out.split_first_mut())
+            else {
+                return n;
+            };
+            self.clipped = self.clipped.saturating_add(clip(c));
+            *o = self.add(f32::from(c) * scale);
+            (counts, out) = (ct, ot);
+        }
+        let k = self.shift.unwrap_or(0.0);
+        let mut clipped = 0u32;
+        while !counts.is_empty() {
+            let room = usize::try_from(FLUSH_EVERY.saturating_sub(self.pending))
+                .unwrap_or(usize::MAX)
+                .max(1)
+                .min(counts.len());
+            let (Some((run_c, ct)), Some((run_o, ot))) = (
+                counts.split_at_checked(room),
+                out.split_at_mut_checked(room),
+            ) else {
+                break;
+            };
+            let [mut p0, mut p1, mut p2, mut p3] = self.p;
+            let (mut lo, mut hi) = (self.min, self.max);
+            for (o, &c) in run_o.iter_mut().zip(run_c) {
+                clipped += clip(c);
+                let v = f32::from(c) * scale;
+                *o = v;
+                let d = v - k;
+                let d2 = d * d;
+                p0 += d;
+                p1 += d2;
+                p2 += d2 * d;
+                p3 += d2 * d2;
+                if v < lo {
+                    lo = v;
+                }
+                if v > hi {
+                    hi = v;
+                }
+            }
+            if let Some(&v) = run_o.last() {
+                self.last = v;
+            }
+            let good = u32::try_from(room).unwrap_or(u32::MAX);
+            self.p = [p0, p1, p2, p3];
+            (self.min, self.max) = (lo, hi);
+            self.count = self.count.saturating_add(good);
+            self.pending += good;
+            if self.pending >= FLUSH_EVERY {
+                self.flush();
+            }
+            (counts, out) = (ct, ot);
+        }
+        self.clipped = self.clipped.saturating_add(clipped);
+        n
+    }
+
     fn flush(&mut self) {
         for (t, p) in self.t.iter_mut().zip(self.p.iter_mut()) {
             *t += f64::from(*p);
@@ -280,6 +382,49 @@ mod tests {
             .all(|(x, y)| x.to_bits() == y.to_bits()));
         assert_eq!(a.snapshot(), b.snapshot());
         assert_eq!(a.snapshot().non_finite, 4);
+    }
+
+    #[test]
+    fn i16_path_equals_f32_path_bit_for_bit() {
+        // 1000 counts over several flushes, clipped ones included, split
+        // unevenly: same scaled samples, statistics and clip count as
+        // scaling first and calling add_block.
+        let counts: [i16; 1000] = core::array::from_fn(|i| {
+            let v = libm::sinf(i as f32 * 0.31) * 40_000.0 + 100.0;
+            v.clamp(-32768.0, 32767.0) as i16
+        });
+        let scale = 50.0 / 32768.0;
+        let (mut a, mut b) = (OverallAcc::new(), OverallAcc::new());
+        let mut want = counts.map(|c| f32::from(c) * scale);
+        let clipped = counts
+            .iter()
+            .filter(|&&c| c >= 32767 || c <= -32767)
+            .count();
+        for _ in 0..clipped {
+            b.add_clipped();
+        }
+        b.add_block(&mut want);
+        let mut got = [0f32; 1000];
+        let mut at = 0;
+        for len in [1usize, 6, 300, 256, 437] {
+            let n = a.add_block_i16(&counts[at..at + len], scale, 32767, &mut got[at..]);
+            assert_eq!(n, len);
+            at += len;
+        }
+        assert!(got
+            .iter()
+            .zip(&want)
+            .all(|(x, y)| x.to_bits() == y.to_bits()));
+        assert!(clipped > 0);
+        assert_eq!(a.snapshot(), b.snapshot());
+        // A scale whose products overflow takes the general path.
+        let (mut c, mut d) = (OverallAcc::new(), OverallAcc::new());
+        let mut o = [0f32; 3];
+        c.add_block_i16(&[1, -30000, 2], f32::MAX, 32767, &mut o);
+        let mut x = [1.0 * f32::MAX, -30000.0 * f32::MAX, 2.0 * f32::MAX];
+        d.add_block(&mut x);
+        assert_eq!(c.snapshot(), d.snapshot());
+        assert_eq!(c.snapshot().non_finite, 2); // 1 x MAX stays finite
     }
 
     #[test]

@@ -579,6 +579,24 @@ struct Record {
     finish: f64,
     segments: u32,
     decimation: u16,
+    /// FNV-1a of the spectrum and the report (bit-identity check).
+    fingerprint: u64,
+}
+
+/// FNV-1a 64-bit hasher, also a `fmt::Write` sink.
+struct Fnv(u64);
+impl Fnv {
+    fn bytes(&mut self, b: &[u8]) {
+        for &x in b {
+            self.0 = (self.0 ^ u64::from(x)).wrapping_mul(0x0000_0100_0000_01b3);
+        }
+    }
+}
+impl core::fmt::Write for Fnv {
+    fn write_str(&mut self, s: &str) -> core::fmt::Result {
+        self.bytes(s.as_bytes());
+        Ok(())
+    }
 }
 
 /// Feeds a whole record and times every block and `finish`. A block whose
@@ -597,6 +615,7 @@ fn run_record(m: &Meter, point: &PointConfig) -> Option<Record> {
         finish: 0.0,
         segments: 0,
         decimation: p.decimation(),
+        fingerprint: 0,
     };
     let counts_per_g = 32_768.0 / 50.0;
     while !p.complete() && r.blocks < 4000 {
@@ -614,11 +633,22 @@ fn run_record(m: &Meter, point: &PointConfig) -> Option<Record> {
         }
     }
     let mut segs = 0u32;
+    let mut rep = None;
     r.finish = m.instr(&mut || {
-        let rep = p.finish();
-        segs = rep.segments;
+        let rp = p.finish();
+        segs = rp.segments;
+        rep = Some(rp);
     });
     r.segments = segs;
+    // Bit-identity fingerprint of the record's outputs: FNV-1a over the
+    // spectrum's bits and the report's Debug text (every field, f32 printed
+    // exactly by the shortest round-trip form).
+    let mut h = Fnv(0xcbf2_9ce4_8422_2325);
+    for v in p.spectrum() {
+        h.bytes(&v.to_bits().to_le_bytes());
+    }
+    let _ = core::fmt::Write::write_fmt(&mut h, format_args!("{:?}", rep));
+    r.fingerprint = h.0;
     Some(r)
 }
 
@@ -662,6 +692,7 @@ fn bench_pipeline(m: &Meter) {
         r.segments
     );
     node_blocks(&r, "51k2", 51_200.0);
+    bench_pipeline_profile(m, &point, r.decimation);
 
     // The same measuring point at the nRF52840 board's fixed rate.
     let mut p25 = point;
@@ -669,6 +700,66 @@ fn bench_pipeline(m: &Meter) {
     match run_record(m, &p25) {
         Some(r) => node_blocks(&r, "25k6", 25_600.0),
         None => report("node_block_worst_25k6", -1.0, "error", "pipeline refused"),
+    }
+}
+
+/// Where the pipeline's instructions per sample go: its own front end
+/// (the point's band, rectifier and decimation) with and without the
+/// velocity path, and the envelope decimator alone; the rest of
+/// `pipeline_per_sample` is order tracking, spectrum buffering and the
+/// segment transforms.
+fn bench_pipeline_profile(m: &Meter, point: &PointConfig, decimation: u16) {
+    let samples = (BLOCKS * ADC_BLOCK) as f64;
+    for (key, vel) in [
+        ("profile_frontend_novel", false),
+        ("profile_frontend", true),
+    ] {
+        let mut cfg = FrontEndConfig::default();
+        cfg.sample_rate_hz = point.sample_rate_hz;
+        cfg.band_hz = point.band();
+        cfg.poles = point.poles;
+        cfg.rectifier = point.rectifier;
+        cfg.decimation = decimation;
+        cfg.counts_to_g = point.counts_to_g;
+        cfg.adc_full_scale = point.adc_full_scale;
+        cfg.velocity.enabled = vel;
+        let Ok(mut fe) = FrontEnd::new(&cfg) else {
+            report(key, -1.0, "error", "front end refused");
+            continue;
+        };
+        let mut sig = Signal::new();
+        let mut iblk = [0i16; ADC_BLOCK];
+        let mut total = 0.0;
+        let mut sink = 0f32;
+        for _ in 0..BLOCKS {
+            iblk.iter_mut().for_each(|c| *c = sig.next_i16(32_768.0 / 50.0));
+            total += m.instr(&mut || fe.push_i16(black_box(&iblk), |y| sink += y));
+        }
+        black_box(sink);
+        report(
+            key,
+            total / samples,
+            "instr/sample",
+            "the pipeline's own front end (point band, rectifier, its decimation), velocity off / on",
+        );
+    }
+    if let Ok(mut dec) = Decimator::new(decimation) {
+        let mut sig = Signal::new();
+        let mut blk = [0f32; ADC_BLOCK];
+        let mut total = 0.0;
+        let mut sink = 0f32;
+        for _ in 0..BLOCKS {
+            fill(&mut blk, &mut sig);
+            total += m.instr(&mut || dec.process(black_box(&blk), |y| sink += y));
+        }
+        black_box(sink);
+        eprintln!("INFO|pipeline decimator stages (factor, taps): {:?}", Stages(&dec));
+        report(
+            "profile_decimator",
+            total / samples,
+            "instr/sample",
+            "the pipeline's envelope decimator alone, per input sample",
+        );
     }
 }
 
@@ -708,6 +799,7 @@ fn node_blocks(r: &Record, tag: &str, fs: f64) {
     #[allow(clippy::cast_precision_loss)]
     let period_ms = ADC_BLOCK as f64 / fs * 1000.0;
     let worst_ms = ms_at_64mhz(r.worst);
+    eprintln!("INFO|outputs at {:.1} kS/s: fingerprint {:016x}", fs / 1000.0, r.fingerprint);
     eprintln!(
         "INFO|node at {:.1} kS/s ({} blocks, {} segments): worst block {:.0} instr (block {}) = {:.2} ms at 64 MHz, {:.2} block periods of {:.1} ms ({:.2} of 5.0 ms at 51.2 kS/s, {:.2} of 10.0 ms at 25.6 kS/s); ordinary worst {:.2} ms, mean {:.2} ms; finish {:.2} ms",
         fs / 1000.0,
