@@ -428,7 +428,7 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
     /// (and when unconfigured).
     pub fn segments_missing(&self) -> u32 {
         self.segments_wanted()
-            .saturating_sub(self.spectrum.segments())
+            .saturating_sub(self.spectrum.segments_in())
     }
 
     fn segments_wanted(&self) -> u32 {
@@ -480,6 +480,8 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
             ot.push_sample(e, |a| feed(spectrum, wanted, a));
         });
         self.advance(block.len());
+        // One part of a completed segment's work per block (spectrum::QUEUE).
+        self.spectrum.step();
     }
 
     /// Pushes a block of samples in g (any length).
@@ -495,6 +497,7 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
             ot.push_sample(e, |a| feed(spectrum, wanted, a));
         });
         self.advance(block.len());
+        self.spectrum.step();
     }
 
     fn advance(&mut self, n: usize) {
@@ -516,7 +519,9 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
 
     /// The averaged envelope order spectrum so far (peak amplitude per bin,
     /// in g for `abs` rectification, g² for `square`): the lowest `H` bins,
-    /// at least up to the search limit `S/4` orders.
+    /// at least up to the search limit `S/4` orders. A segment completed in
+    /// the last two blocks may still be pending (its work is spread over
+    /// the following blocks); after [`Self::finish`] every segment is in.
     pub fn spectrum(&self) -> &[f32] {
         self.spectrum.amplitudes()
     }
@@ -546,6 +551,7 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
             ot.push_mark(m, |a| feed(spectrum, wanted, a));
         });
         ot.finish(|a| feed(spectrum, wanted, a));
+        spectrum.flush();
 
         let overall = self.fe.overall();
         let mut flags = self.raised;
@@ -760,8 +766,8 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
 
 /// Feeds one angle-domain sample to the spectrum until enough segments are in.
 fn feed<const N: usize, const H: usize>(s: &mut OrderSpectrum<N, H>, wanted: u32, a: f32) {
-    if s.segments() < wanted {
-        let _ = s.push(a);
+    if s.segments_in() < wanted {
+        let _ = s.push_deferred(a);
     }
 }
 

@@ -341,7 +341,37 @@ pub struct OrderSpectrum<const N: usize, const H: usize> {
     segments: u32,
     rejected: u32,
     config: SpectrumConfig,
+    /// Work left on a completed segment (deferred mode, see [`Self::step`]).
+    pending: Pending,
+    /// Samples that arrived while `pending` work held the buffer.
+    queue: [f32; QUEUE],
+    queued: usize,
 }
+
+/// Samples [`OrderSpectrum::push_deferred`] holds while a completed
+/// segment's work is spread over the next six calls of
+/// [`OrderSpectrum::step`] (512 B). The node's 1600 order samples per second
+/// (64 per revolution at 1500 rpm) bring 48 in six 5 ms blocks at 51.2 kS/s
+/// and 96 in six 10 ms blocks at 25.6 kS/s. When it fills (a faster order
+/// rate), the pending work is finished at once: the same results, only
+/// that block is longer.
+pub const QUEUE: usize = 128;
+
+/// The end-of-segment work still to do, in order: mean removal and window
+/// (in parts), the transform, the power average (one per
+/// [`OrderSpectrum::step`]).
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Pending {
+    None,
+    /// Window part `.1` of [`WINDOW_PARTS`] is next; `.0` is the mean.
+    Window(f32, usize),
+    Transform,
+    Accumulate,
+}
+
+/// Parts the window step is split into (a quarter of the segment each: the
+/// window costs about as much as the transform on the Cortex-M4F).
+const WINDOW_PARTS: usize = 4;
 
 /// 512-point order spectrum (256 bins).
 pub type OrderSpectrum512 = OrderSpectrum<512, 256>;
@@ -411,6 +441,9 @@ impl<const N: usize, const H: usize> OrderSpectrum<N, H> {
                 window: Window::Hann,
                 averaging: Averaging::PowerMean,
             },
+            pending: Pending::None,
+            queue: [0.0; QUEUE],
+            queued: 0,
         }
     }
 
@@ -433,11 +466,128 @@ impl<const N: usize, const H: usize> OrderSpectrum<N, H> {
         self.tainted = false;
         self.segments = 0;
         self.rejected = 0;
+        self.pending = Pending::None;
+        self.queued = 0;
     }
 
     /// Adds one angle-domain envelope sample; transforms and accumulates when
     /// the segment is full.
     pub fn push(&mut self, x: f32) -> PushOutcome {
+        self.flush();
+        if self.store(x) {
+            self.transform_and_accumulate()
+        } else {
+            self.outcome_of_store()
+        }
+    }
+
+    /// As [`Self::push`], but a completed segment's work (window, transform,
+    /// power average) is left to later calls of [`Self::step`], one part
+    /// each, so no single call carries the whole of it; samples arriving
+    /// meanwhile are queued ([`QUEUE`]; when full, the work is finished at
+    /// once). Results equal [`Self::push`] bit for bit once [`Self::flush`]
+    /// has run. A completed segment returns [`PushOutcome::SegmentDone`] and
+    /// counts in [`Self::segments_in`] at once, in [`Self::segments`] when
+    /// its average is done.
+    ///
+    /// ```
+    /// use dsp_core::spectrum::{OrderSpectrum512, SpectrumConfig, PushOutcome};
+    /// let cfg = SpectrumConfig::with_samples_per_rev(16);
+    /// let (mut a, mut b) = (OrderSpectrum512::new(cfg).unwrap(), OrderSpectrum512::new(cfg).unwrap());
+    /// for n in 0..1100 {
+    ///     let x = libm::sinf(n as f32 * 0.7);
+    ///     a.push(x);
+    ///     if b.push_deferred(x) == PushOutcome::SegmentDone {
+    ///         assert_eq!(b.segments_in(), b.segments() + 1);
+    ///     }
+    ///     if n % 8 == 7 {
+    ///         b.step();
+    ///     }
+    /// }
+    /// b.flush();
+    /// assert_eq!((a.segments(), b.segments()), (2, 2));
+    /// assert_eq!(a.amplitudes(), b.amplitudes());
+    /// ```
+    pub fn push_deferred(&mut self, x: f32) -> PushOutcome {
+        if self.pending != Pending::None {
+            if let Some(slot) = self.queue.get_mut(self.queued) {
+                *slot = x;
+                self.queued += 1;
+                return PushOutcome::Buffered;
+            }
+            self.flush();
+        }
+        if self.store(x) {
+            self.pending = Pending::Window(self.segment_mean(), 0);
+            PushOutcome::SegmentDone
+        } else {
+            self.outcome_of_store()
+        }
+    }
+
+    /// Does the next part of a completed segment's deferred work, if any:
+    /// mean removal and window (a quarter of the segment per call; the mean
+    /// itself is taken when the segment completes), then the transform, then
+    /// the power average
+    /// (after which the queued samples are taken in). Returns whether work
+    /// was done.
+    pub fn step(&mut self) -> bool {
+        match self.pending {
+            Pending::None => return false,
+            Pending::Window(mean, part) => {
+                self.window_part(mean, part);
+                self.pending = if part + 1 < WINDOW_PARTS {
+                    Pending::Window(mean, part + 1)
+                } else {
+                    Pending::Transform
+                };
+            }
+            Pending::Transform => {
+                self.pending = if self.transform_segment() {
+                    Pending::Accumulate
+                } else {
+                    Pending::None
+                };
+            }
+            Pending::Accumulate => {
+                self.accumulate_segment();
+                self.pending = Pending::None;
+            }
+        }
+        if self.pending == Pending::None {
+            let n = core::mem::take(&mut self.queued);
+            for i in 0..n {
+                let x = self.queue.get(i).copied().unwrap_or(0.0);
+                // Fewer than N queued samples: at most one segment completes.
+                let _ = self.push_deferred(x);
+            }
+        }
+        true
+    }
+
+    /// Finishes any deferred work (and takes in the queued samples).
+    pub fn flush(&mut self) {
+        while self.step() {}
+    }
+
+    /// Segments in, counting one whose deferred work is still pending.
+    pub fn segments_in(&self) -> u32 {
+        self.segments
+            .saturating_add(u32::from(self.pending != Pending::None))
+    }
+
+    /// The outcome of a [`Self::store`] that completed no clean segment.
+    fn outcome_of_store(&self) -> PushOutcome {
+        if self.fill == 0 {
+            PushOutcome::SegmentRejected
+        } else {
+            PushOutcome::Buffered
+        }
+    }
+
+    /// Stores one sample; true when it completed a clean segment (ready to
+    /// transform). A segment with a non-finite sample is counted rejected.
+    fn store(&mut self, x: f32) -> bool {
         if !x.is_finite() {
             self.tainted = true;
         }
@@ -446,14 +596,14 @@ impl<const N: usize, const H: usize> OrderSpectrum<N, H> {
         }
         self.fill += 1;
         if self.fill < N {
-            return PushOutcome::Buffered;
+            return false;
         }
         self.fill = 0;
         if core::mem::take(&mut self.tainted) {
             self.rejected = self.rejected.saturating_add(1);
-            return PushOutcome::SegmentRejected;
+            return false;
         }
-        self.transform_and_accumulate()
+        true
     }
 
     /// Pushes a block; returns the number of segments accumulated during it.
@@ -466,23 +616,66 @@ impl<const N: usize, const H: usize> OrderSpectrum<N, H> {
     }
 
     fn transform_and_accumulate(&mut self) -> PushOutcome {
-        let window = self.config.window;
-        let n_f = usize_to_f32(N);
-        // Chunked partial sums keep the f32 rounding error of the mean small.
-        let mean = self
-            .buf
+        self.window_segment();
+        if !self.transform_segment() {
+            return PushOutcome::SegmentRejected;
+        }
+        self.accumulate_segment();
+        PushOutcome::SegmentDone
+    }
+
+    /// Removes the segment's mean and applies the window, in place.
+    fn window_segment(&mut self) {
+        let mean = self.segment_mean();
+        for part in 0..WINDOW_PARTS {
+            self.window_part(mean, part);
+        }
+    }
+
+    /// The segment's mean. Chunked partial sums keep the f32 rounding error
+    /// of the mean small.
+    fn segment_mean(&self) -> f32 {
+        self.buf
             .chunks(64)
             .map(|c| c.iter().sum::<f32>())
             .sum::<f32>()
-            / n_f;
-        for (i, v) in self.buf.iter_mut().enumerate() {
-            *v = (*v - mean) * window.value(i, N);
+            / usize_to_f32(N)
+    }
+
+    /// Removes `mean` and applies the window to part `part` of
+    /// [`WINDOW_PARTS`] of the segment (the same operations per sample as
+    /// in one pass).
+    fn window_part(&mut self, mean: f32, part: usize) {
+        let window = self.config.window;
+        let len = N / WINDOW_PARTS;
+        let start = part * len;
+        if let Some(run) = self.buf.get_mut(start..start + len) {
+            for (i, v) in run.iter_mut().enumerate() {
+                *v = (*v - mean) * window.value(start + i, N);
+            }
         }
-        let Ok(bins) = real_fft(&mut self.buf) else {
-            // Unreachable for validated N; count it rather than lose it silently.
+    }
+
+    /// The real FFT of the windowed segment, in place (bin k is
+    /// `buf[2k], buf[2k + 1]`, microfft's layout); false (and the segment
+    /// counted rejected) for an unsupported size, unreachable for a
+    /// validated N.
+    fn transform_segment(&mut self) -> bool {
+        if real_fft(&mut self.buf).is_err() {
             self.rejected = self.rejected.saturating_add(1);
-            return PushOutcome::SegmentRejected;
-        };
+            return false;
+        }
+        true
+    }
+
+    /// Adds the transformed segment to the power average.
+    fn accumulate_segment(&mut self) {
+        let window = self.config.window;
+        let n_f = usize_to_f32(N);
+        let bins = self.buf.chunks_exact(2).map(|c| match c {
+            [re, im] => (*re, *im),
+            _ => (0.0, 0.0),
+        });
         let scale = 2.0 / (n_f * window.coherent_gain());
         let m = match self.config.averaging {
             Averaging::PowerMean => self.segments.saturating_add(1),
@@ -490,16 +683,14 @@ impl<const N: usize, const H: usize> OrderSpectrum<N, H> {
         };
         // Running power mean held in amplitude form: a² ← a² + (x² - a²)/m.
         let inv_m = 1.0 / crate::num::usize_to_f32(usize::try_from(m).unwrap_or(usize::MAX));
-        for (k, (a, c)) in self.acc.iter_mut().zip(bins.iter()).enumerate() {
-            let re = c.re;
-            let im = if k == 0 { 0.0 } else { c.im }; // bin 0 im holds Nyquist
+        for (k, (a, (re, im))) in self.acc.iter_mut().zip(bins).enumerate() {
+            let im = if k == 0 { 0.0 } else { im }; // bin 0 im holds Nyquist
             let s = if k == 0 { 0.5 * scale } else { scale };
             let p = (re * re + im * im) * s * s;
             let prev = *a * *a;
             *a = sqrtf_fast(prev + (p - prev) * inv_m);
         }
         self.segments = self.segments.saturating_add(1);
-        PushOutcome::SegmentDone
     }
 
     /// Number of segments in the average.
@@ -565,14 +756,16 @@ mod tests {
 
     #[test]
     fn ram_of_4096() {
-        // 4096·4 + 2048·4 bytes of buffers plus the small fields.
+        // 4096·4 + 2048·4 bytes of buffers, the deferred-work queue
+        // (QUEUE·4) and the small fields.
         let sz = core::mem::size_of::<OrderSpectrum4096>();
         extern crate std;
         std::println!(
             "OrderSpectrum4096 {sz} B, BearingDiagnosis {} B",
             core::mem::size_of::<crate::defects::BearingDiagnosis>()
         );
-        assert!((24 * 1024..=24 * 1024 + 64).contains(&sz), "{sz}");
+        let base = 24 * 1024 + QUEUE * 4;
+        assert!((base..=base + 64).contains(&sz), "{sz}");
     }
 
     #[test]
@@ -594,6 +787,41 @@ mod tests {
             .iter()
             .zip(full.amplitudes())
             .all(|(a, b)| a.to_bits() == b.to_bits()));
+    }
+
+    #[test]
+    fn deferred_work_gives_the_same_spectrum_bit_for_bit() {
+        // Steps every 1, 5 and 40 samples (the last overflows the queue and
+        // finishes the work at once), a segment with a NaN in between.
+        let cfg = SpectrumConfig::with_samples_per_rev(16);
+        for every in [1usize, 5, 40, 100_000] {
+            let mut a = OrderSpectrum512::new(cfg).unwrap();
+            let mut b = OrderSpectrum512::new(cfg).unwrap();
+            let (mut done_a, mut done_b) = (0, 0);
+            for n in 0..2600usize {
+                let x = if n == 700 {
+                    f32::NAN
+                } else {
+                    1.0 + libm::sinf(n as f32 * 0.37) + 0.1 * libm::cosf(n as f32 * 2.1)
+                };
+                done_a += usize::from(a.push(x) == PushOutcome::SegmentDone);
+                done_b += usize::from(b.push_deferred(x) == PushOutcome::SegmentDone);
+                assert_eq!(a.segments(), b.segments_in(), "{every} {n}");
+                if n % every == every - 1 {
+                    b.step();
+                }
+            }
+            b.flush();
+            assert!(!b.step());
+            assert_eq!((done_a, a.segments(), a.rejected_segments()), (4, 4, 1));
+            assert_eq!((done_b, b.segments(), b.rejected_segments()), (4, 4, 1));
+            assert_eq!(a.pending_samples(), b.pending_samples());
+            assert!(a
+                .amplitudes()
+                .iter()
+                .zip(b.amplitudes())
+                .all(|(x, y)| x.to_bits() == y.to_bits()));
+        }
     }
 
     #[test]

@@ -575,6 +575,9 @@ struct Record {
     worst_at: u32,
     /// The costliest block that completed no segment (the ordinary work).
     worst_ordinary: f64,
+    /// The costliest completing block (the mean), and the costliest first
+    /// to sixth block after one (four window parts, transform, average).
+    worst_work: [f64; 7],
     /// `finish` (defect search, report).
     finish: f64,
     segments: u32,
@@ -612,12 +615,18 @@ fn run_record(m: &Meter, point: &PointConfig) -> Option<Record> {
         worst: 0.0,
         worst_at: 0,
         worst_ordinary: 0.0,
+        worst_work: [0.0; 7],
         finish: 0.0,
         segments: 0,
         decimation: p.decimation(),
         fingerprint: 0,
     };
     let counts_per_g = 32_768.0 / 50.0;
+    // Blocks since the last one that completed a segment: that block (the
+    // mean) and the next six carry the segment's work (window in four
+    // parts, transform, average; one part per block), so they are not
+    // "ordinary".
+    let mut since_segment = u32::MAX;
     while !p.complete() && r.blocks < 4000 {
         blk.iter_mut().for_each(|c| *c = sig.next_i16(counts_per_g));
         let missing = p.segments_missing();
@@ -628,8 +637,19 @@ fn run_record(m: &Meter, point: &PointConfig) -> Option<Record> {
             r.worst = t;
             r.worst_at = r.blocks;
         }
-        if p.segments_missing() == missing && t > r.worst_ordinary {
+        since_segment = if p.segments_missing() == missing {
+            since_segment.saturating_add(1)
+        } else {
+            0
+        };
+        if since_segment > 6 && t > r.worst_ordinary {
             r.worst_ordinary = t;
+        }
+        if let Some(w) = usize::try_from(since_segment)
+            .ok()
+            .and_then(|i| r.worst_work.get_mut(i))
+        {
+            *w = w.max(t);
         }
     }
     let mut segs = 0u32;
@@ -776,13 +796,13 @@ fn node_blocks(r: &Record, tag: &str, fs: f64) {
         "node_block_worst",
         r.worst,
         "instr/block",
-        "NodePipeline::push_i16 of one 256-sample block, the costliest (completes a segment)",
+        "NodePipeline::push_i16 of one 256-sample block, the costliest (the block after a segment completed: its transform)",
     );
     row(
         "node_block_ordinary",
         r.worst_ordinary,
         "instr/block",
-        "the costliest block that completes no segment",
+        "the costliest block that neither completes a segment nor carries its work (window parts, transform, average: the next six blocks)",
     );
     row(
         "node_block_mean",
@@ -800,6 +820,11 @@ fn node_blocks(r: &Record, tag: &str, fs: f64) {
     let period_ms = ADC_BLOCK as f64 / fs * 1000.0;
     let worst_ms = ms_at_64mhz(r.worst);
     eprintln!("INFO|outputs at {:.1} kS/s: fingerprint {:016x}", fs / 1000.0, r.fingerprint);
+    eprintln!(
+        "INFO|segment work at {:.1} kS/s, worst of each block from the completing one on: {:.0?} instr",
+        fs / 1000.0,
+        r.worst_work
+    );
     eprintln!(
         "INFO|node at {:.1} kS/s ({} blocks, {} segments): worst block {:.0} instr (block {}) = {:.2} ms at 64 MHz, {:.2} block periods of {:.1} ms ({:.2} of 5.0 ms at 51.2 kS/s, {:.2} of 10.0 ms at 25.6 kS/s); ordinary worst {:.2} ms, mean {:.2} ms; finish {:.2} ms",
         fs / 1000.0,
