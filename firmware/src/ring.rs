@@ -28,23 +28,29 @@
 //! the next pop makes room before block `depth + 1` arrives), provided the
 //! ordinary blocks take less than one period on average so that the backlog
 //! drains (`firmware/tests/ring.rs` scripts this with the measured figures).
-//! Measured under QEMU (`-icount`, instruction counts): the costliest node
-//! step, the block that completes a segment, about 0.64 M instructions in
-//! the size-optimised board image (`boards/size.sh`; 0.51 M for
-//! `NodePipeline::push_i16` alone in `boards/qemu-bench`), ordinary blocks
-//! about 0.09 M. Cycles per instruction on silicon are assumed to be at most
-//! 3 (FP multiply-accumulates take 3 cycles and loads 2 on the Cortex-M4F,
-//! plus flash wait states; an allowance, not a measurement). At 64 MHz and
-//! 51.2 kS/s (5 ms blocks) the spike then lasts 0.64 M x 3 / 64 MHz = 30 ms =
-//! 6.0 periods, so the depth must be at least 5; [`NODE_DEPTH`] = 6 keeps one
-//! slot spare. At the nRF52840 board's 25.6 kS/s the same ring absorbs spikes
-//! of up to 70 ms (4.5 M cycles). Each slot costs `2 x LEN + 1` bytes of RAM,
-//! plus the indices: 3,096 bytes for 6 slots of 256 samples on the M4F.
+//! The work of a completed spectrum segment (window, 4096-point transform,
+//! power average) is spread over the six blocks after it
+//! (`dsp_core::spectrum::OrderSpectrum::step`), so the costliest block is
+//! the one that runs the transform: 0.28 M instructions for
+//! `NodePipeline::push_i16` in `boards/qemu-bench` (0.86 of a 5 ms block at
+//! 51.2 kS/s and 64 MHz, one cycle per instruction), about 0.38 M in the
+//! size-optimised board image with its read of the block; mean blocks about
+//! 0.085 M there. Before the spreading it was 0.64 M in the board image, the
+//! whole transform and average inside the block that completed the segment,
+//! and the ring was 6 deep. Cycles per instruction on silicon are not
+//! measured here; FP multiply-accumulates take 3 cycles and loads 2 on the
+//! Cortex-M4F, but most instructions take one. The depth is sized for an
+//! allowance of 2 cycles per instruction with one slot spare: [`NODE_DEPTH`]
+//! = 3. The scripted consumer with the measured figures loses nothing up to
+//! 2.5 cycles per instruction; at 3, where even an ordinary block takes 0.8
+//! of a period, it needs 5 (the test shows both). Each slot costs
+//! `2 x LEN + 1` bytes of RAM, plus the indices: 3 slots of 256 samples are
+//! 1,557 bytes on the M4F, 1,539 fewer than the 6 before.
 
 use core::sync::atomic::{AtomicBool, AtomicI16, AtomicU32, AtomicUsize, Ordering};
 
 /// Ring depth the node boards use (see the module docs for the sizing).
-pub const NODE_DEPTH: usize = 6;
+pub const NODE_DEPTH: usize = 3;
 
 /// Why [`Producer::push`] refused a block.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]

@@ -928,7 +928,7 @@ fn memory() {
     r(
         "mem_block_ring",
         size_of::<firmware::ring::BlockRing<{ firmware::ring::NODE_DEPTH }, ADC_BLOCK>>(),
-        "BlockRing<6, 256> (the node's sample queue)",
+        "BlockRing<NODE_DEPTH = 3, 256> (the node's sample queue)",
     );
     r(
         "mem_point",
