@@ -96,13 +96,30 @@ impl<const N: usize, const H: usize, const RING: usize> PipelineCore<N, H, RING>
 
     /// Finishes the pass being recorded and merges its report into the
     /// measurement's (the first pass's report is the measurement's).
-    // Not inlined: a report is a few kilobytes of stack, once per pass.
-    #[inline(never)]
+    // The two cases in separate frames, neither inlined: a report is
+    // several kilobytes (eight bearings), and the merge's temporaries
+    // should not add to the first pass's frame, which every measurement
+    // has (stack high-water).
     fn end_pass(&mut self) {
+        if self.report.is_some() {
+            self.end_later_pass();
+        } else {
+            self.end_first_pass();
+        }
+    }
+
+    /// The first pass's report is the measurement's.
+    #[inline(never)]
+    fn end_first_pass(&mut self) {
+        self.report = Some(self.pipeline.finish());
+    }
+
+    /// A later pass's report merges into the first's.
+    #[inline(never)]
+    fn end_later_pass(&mut self) {
         let r = self.pipeline.finish();
-        match &mut self.report {
-            Some(first) => first.merge_pass(r),
-            None => self.report = Some(r),
+        if let Some(first) = &mut self.report {
+            first.merge_pass(r);
         }
     }
 
