@@ -15,6 +15,7 @@
 )]
 
 pub mod analysis;
+pub mod bearing_len;
 pub mod closed_stdout;
 pub mod cmd_analyze;
 pub mod cmd_batch;

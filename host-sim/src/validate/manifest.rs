@@ -5,6 +5,8 @@
 use dsp_core::config::{name_from, Bearing, BearingKinematics};
 use dsp_core::kinematics::{BearingGeometry, DefectKind, DefectMultiples};
 
+use crate::bearing_len::{length_mm, mm_from_in, BothGiven};
+
 /// The decoy of a manifest entry for [`ValidateArgs::decoy`]: the same
 /// record and speed with a decoy bearing whose defect multiples are the
 /// documented ones scaled by `factor`; watched beside the documented bearing,
@@ -237,26 +239,31 @@ impl Fields<'_> {
         Ok(found)
     }
 
-    /// A length in inches from `<stem>_in` or `<stem>_mm` (and aliases).
-    fn length_in(&self, stems: &[&str]) -> Result<Option<(f32, String)>, FieldError> {
+    /// A length in millimetres from `<stem>_in` or `<stem>_mm` (and
+    /// aliases), converted as the point file does ([`crate::bearing_len`]);
+    /// both given must agree within 0.5 %.
+    fn length_mm(&self, stems: &[&str]) -> Result<Option<(f32, String)>, FieldError> {
         let inch: Vec<String> = stems.iter().map(|s| format!("{s}_in")).collect();
         let mm: Vec<String> = stems.iter().map(|s| format!("{s}_mm")).collect();
         let inch = self.alias(&inch.iter().map(String::as_str).collect::<Vec<_>>())?;
         let mm = self.alias(&mm.iter().map(String::as_str).collect::<Vec<_>>())?;
-        Ok(match (inch, mm) {
-            (Some(i), Some(m)) => {
-                if (m.0 / 25.4 - i.0).abs() > 0.005 * i.0 {
-                    return Err(self.err(
-                        &format!("{}/{}", i.1, m.1),
-                        format!("disagree ({} in, {} mm)", i.0, m.0),
-                    ));
+        let key = inch.as_ref().or(mm.as_ref()).map(|(_, k)| k.clone());
+        match length_mm(mm.as_ref().map(|m| m.0), inch.as_ref().map(|i| i.0)) {
+            Ok(v) => Ok(v.zip(key)),
+            Err(BothGiven { mm: m, inch: i }) => {
+                let (ik, mk) = (
+                    inch.map(|x| x.1).unwrap_or_default(),
+                    mm.map(|x| x.1).unwrap_or_default(),
+                );
+                let from_in = mm_from_in(i);
+                if (m - from_in).abs() > 0.005 * from_in {
+                    return Err(
+                        self.err(&format!("{ik}/{mk}"), format!("disagree ({i} in, {m} mm)"))
+                    );
                 }
-                Some(i)
+                Ok(Some((from_in, ik)))
             }
-            (Some(i), None) => Some(i),
-            (None, Some(m)) => Some((m.0 / 25.4, m.1)),
-            (None, None) => None,
-        })
+        }
     }
 
     /// Geometry when complete; `Ok(Err(missing names))` when partial or absent.
@@ -272,8 +279,8 @@ impl Fields<'_> {
                 Some(n)
             }
         };
-        let d = self.length_in(&["roller_diameter", "ball_diameter"])?;
-        let pd = self.length_in(&["pitch_diameter"])?;
+        let d = self.length_mm(&["roller_diameter", "ball_diameter"])?;
+        let pd = self.length_mm(&["pitch_diameter"])?;
         let angle = match self.num("contact_angle_deg")? {
             None => 0.0,
             Some(a) if (0.0..90.0).contains(&a) => {
@@ -547,6 +554,27 @@ bsf_x = 3.9874
             BearingKinematics::Geometry { rollers: 9, .. }
         ));
         assert!(r.notes.is_empty(), "{:?}", r.notes);
+        // Inches become millimetres by the point file's one conversion, so
+        // the same bearing written in either file gives the same numbers.
+        let BearingKinematics::Geometry {
+            roller_diameter,
+            pitch_diameter,
+            ..
+        } = r.kinematics
+        else {
+            panic!("{:?}", r.kinematics)
+        };
+        assert_eq!(roller_diameter, crate::bearing_len::mm_from_in(0.3126));
+        let from_point = crate::point::parse(
+            "[[bearing]]\nname = \"de\"\nrollers = 9\nroller_diameter_in = 0.3126\n\
+             pitch_diameter_in = 1.537\n",
+        )
+        .unwrap();
+        assert!(matches!(
+            from_point.bearings[0].kinematics,
+            BearingKinematics::Geometry { roller_diameter: d, pitch_diameter: pd, .. }
+                if d == roller_diameter && pd == pitch_diameter
+        ));
         // Millimetres: 6203 as 6.746 mm / 28.499 mm gives the fan-end BPFO.
         let r = one(&format!(
             "{BASE}fault_location = \"outer_race\"\nfaulted_bearing = \"fan end\"\n\
