@@ -457,15 +457,43 @@ fn parse_record(
     })
 }
 
+/// Why a manifest cannot be read at all (each record's own trouble is a
+/// [`FieldError`] in its entry).
+#[derive(Debug, Clone, PartialEq)]
+pub enum ManifestError {
+    /// Not TOML.
+    Toml(toml::de::Error),
+    /// No `[[recording]]` array.
+    NoRecordings,
+}
+
+impl std::fmt::Display for ManifestError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            ManifestError::Toml(e) => write!(f, "{e}"),
+            ManifestError::NoRecordings => f.write_str("no [[recording]] tables"),
+        }
+    }
+}
+
+impl std::error::Error for ManifestError {
+    fn source(&self) -> Option<&(dyn std::error::Error + 'static)> {
+        match self {
+            ManifestError::Toml(e) => Some(e),
+            ManifestError::NoRecordings => None,
+        }
+    }
+}
+
 /// Parses a manifest. Only an unreadable manifest (not TOML, no
 /// `[[recording]]` array) is an error; each record is usable or carries its
 /// own [`FieldError`].
-pub fn parse_manifest(text: &str) -> Result<Vec<ManifestEntry>, String> {
-    let doc: toml::Table = toml::from_str(text).map_err(|e| e.to_string())?;
+pub fn parse_manifest(text: &str) -> Result<Vec<ManifestEntry>, ManifestError> {
+    let doc: toml::Table = toml::from_str(text).map_err(ManifestError::Toml)?;
     let recs = doc
         .get("recording")
         .and_then(toml::Value::as_array)
-        .ok_or("no [[recording]] tables")?;
+        .ok_or(ManifestError::NoRecordings)?;
     let bearings = doc.get("bearings").and_then(toml::Value::as_table);
     let mut out = Vec::new();
     for (i, r) in recs.iter().enumerate() {

@@ -7,6 +7,7 @@ use std::path::Path;
 use dsp_core::config::{name_from, Bearing, PointConfig, SpeedInput};
 use dsp_core::kinematics::{DefectKind, ShaftRatio};
 use dsp_core::pipeline::NodePipeline;
+use dsp_core::survey::SurveyError;
 
 use super::manifest::{decoy_entry, expected_kind, parse_manifest, ManifestEntry, ManifestRecord};
 use super::score::judge;
@@ -25,6 +26,48 @@ pub const SAMPLES_PER_REV: [u16; 4] = [64, 128, 256, 512];
 /// Most revolutions one record is analysed over (the node's default record).
 pub const MAX_REVOLUTIONS: usize = 256;
 
+/// Why no measuring point fits a record ([`validation_point`]).
+#[derive(Debug, Clone, PartialEq)]
+pub enum PlanError {
+    /// A bearing's defect multiples are not usable.
+    Multiples,
+    /// The fastest defect line is too high for any samples per revolution.
+    LineTooHigh {
+        /// The fastest line, orders.
+        top_line: f32,
+        /// Harmonics a detection needs.
+        harmonics: f32,
+    },
+    /// Too few revolutions for one segment.
+    TooShort {
+        /// Revolutions in the record.
+        revs: usize,
+        /// Revolutions needed.
+        needed: usize,
+    },
+}
+
+impl std::fmt::Display for PlanError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            PlanError::Multiples => f.write_str("bearing multiples out of range"),
+            PlanError::LineTooHigh {
+                top_line,
+                harmonics,
+            } => write!(
+                f,
+                "defect line at {top_line:.2} orders too high to search {harmonics} harmonics"
+            ),
+            PlanError::TooShort { revs, needed } => write!(
+                f,
+                "record too short: {revs} revolutions, at least {needed} needed"
+            ),
+        }
+    }
+}
+
+impl std::error::Error for PlanError {}
+
 /// The one measuring point used for every record: the documented bearing on
 /// the tach shaft at constant speed, default search thresholds, and the
 /// segment length by one rule. Spectrum segments hold 4096 samples, so
@@ -37,7 +80,7 @@ pub const MAX_REVOLUTIONS: usize = 256;
 /// least [`MIN_SEGMENTS`] segments within the record (less one revolution
 /// for settling) and [`MAX_REVOLUTIONS`]; a record too short for that gets
 /// the most segments any `S` gives. The band is set by the caller.
-pub fn validation_point(rec: &ManifestRecord, samples: usize) -> Result<PointConfig, String> {
+pub fn validation_point(rec: &ManifestRecord, samples: usize) -> Result<PointConfig, PlanError> {
     let mut p = PointConfig::default();
     p.sample_rate_hz = rec.sample_rate_hz;
     p.speed = SpeedInput::Constant { rpm: rec.shaft_rpm };
@@ -70,7 +113,7 @@ pub fn validation_point(rec: &ManifestRecord, samples: usize) -> Result<PointCon
         })
         .try_fold(0.0f32, |a, l| l.map(|l| a.max(l)))
         .filter(|&l| l > 0.0)
-        .ok_or("bearing multiples out of range")?;
+        .ok_or(PlanError::Multiples)?;
     #[allow(clippy::cast_precision_loss, clippy::cast_possible_truncation)]
     let revs =
         (samples as f64 / f64::from(rec.sample_rate_hz) * f64::from(rec.shaft_rpm) / 60.0) as usize;
@@ -104,15 +147,16 @@ pub fn validation_point(rec: &ManifestRecord, samples: usize) -> Result<PointCon
         })
         .ok_or_else(|| {
             if plans.is_empty() {
-                format!(
-                    "defect line at {top_line:.2} orders too high to search {harmonics} harmonics"
-                )
+                PlanError::LineTooHigh {
+                    top_line,
+                    harmonics,
+                }
             } else {
                 let shortest = SAMPLES_PER_REV.last().map_or(8, |&s| 4096 / usize::from(s));
-                format!(
-                    "record too short: {revs} revolutions, at least {} needed",
-                    shortest + 1
-                )
+                PlanError::TooShort {
+                    revs,
+                    needed: shortest + 1,
+                }
             }
         })?;
     p.samples_per_rev = spr;
@@ -160,6 +204,35 @@ pub struct RecordResult {
     pub decoy_detected: Option<Vec<DefectKind>>,
 }
 
+/// Why a record's band cannot be chosen ([`choose_band`]).
+#[derive(Debug, Clone, PartialEq)]
+pub enum BandError {
+    /// A fixed band that does not fit below 0.9 x Nyquist.
+    DoesNotFit {
+        /// Lower edge, Hz.
+        lo: f32,
+        /// Upper edge after clipping, Hz.
+        hi: f32,
+        /// Sample rate, Hz.
+        fs: f32,
+    },
+    /// The band survey failed.
+    Survey(SurveyError),
+}
+
+impl std::fmt::Display for BandError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            BandError::DoesNotFit { lo, hi, fs } => {
+                write!(f, "band {lo}-{hi} Hz does not fit fs {fs} Hz")
+            }
+            BandError::Survey(e) => write!(f, "band survey: {e}"),
+        }
+    }
+}
+
+impl std::error::Error for BandError {}
+
 /// Chooses the band of one record by `rule`; returns the band, whether it
 /// came from the survey, and the survey's kurtosis. The survey is the one the
 /// analysis runs ([`crate::analysis::choose_band`]: the node's own rule,
@@ -168,14 +241,14 @@ pub fn choose_band(
     rule: BandRule,
     rec: &Record,
     point: &PointConfig,
-) -> Result<([f32; 2], bool, Option<f32>), String> {
+) -> Result<([f32; 2], bool, Option<f32>), BandError> {
     let fs = rec.sample_rate_hz;
     let nyq = 0.5 * fs;
     match rule {
         BandRule::Fixed([lo, hi]) => {
             let hi = hi.min(0.9 * nyq);
             if lo >= hi {
-                return Err(format!("band {lo}-{hi} Hz does not fit fs {fs} Hz"));
+                return Err(BandError::DoesNotFit { lo, hi, fs });
             }
             Ok(([lo, hi], false, None))
         }
@@ -189,9 +262,10 @@ pub fn choose_band(
             p.band_hz = None;
             match crate::analysis::choose_band(&mut p, rec) {
                 Ok(Some(r)) => Ok((r.band_hz, true, Some(r.kurtosis))),
-                // Not reached: the band was cleared just above.
-                Ok(None) => Err("band survey: the point already has a band".into()),
-                Err(e) => Err(format!("band survey: {e}")),
+                // Not reached: the band was cleared just above; the point's
+                // default octave then, as for a survey that finds nothing.
+                Ok(None) => choose_band(BandRule::Default, rec, point),
+                Err(e) => Err(BandError::Survey(e)),
             }
         }
     }
@@ -300,7 +374,7 @@ fn analyse_into(
         // default octave, noted.
         Err(e) if rule == BandRule::Auto => {
             out.notes.push(format!("{e}: default band used"));
-            choose_band(BandRule::Default, &record, &point)?
+            choose_band(BandRule::Default, &record, &point).map_err(|e| e.to_string())?
         }
         Err(e) => return Err(format!("{}: {e}", rec.file)),
     };
@@ -463,7 +537,7 @@ mod tests {
         assert!(spr >= 128, "{spr}");
         // Too short for one segment of the shortest length.
         let e = plan(&rec(12_000.0, 1772.0, CWRU_DE), 2_000).unwrap_err();
-        assert!(e.contains("too short"), "{e}");
+        assert!(e.to_string().contains("too short"), "{e}");
     }
 
     /// Minimum survey bandwidth: both sidebands of the 2nd harmonic of the

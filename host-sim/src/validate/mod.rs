@@ -54,11 +54,11 @@ pub mod score;
 
 pub use manifest::{
     canonical_location, decoy_entry, expected_kind, parse_manifest, single_sided_bsf, FieldError,
-    ManifestEntry, ManifestRecord,
+    ManifestEntry, ManifestError, ManifestRecord,
 };
 pub use method::{
-    analyse_entry, choose_band, validate_dir, validation_point, RecordResult, MAX_REVOLUTIONS,
-    MIN_SEGMENTS, SAMPLES_PER_REV,
+    analyse_entry, choose_band, validate_dir, validation_point, BandError, PlanError, RecordResult,
+    MAX_REVOLUTIONS, MIN_SEGMENTS, SAMPLES_PER_REV,
 };
 pub use output::report_json;
 pub use score::{decoy_summary, judge, totals};
@@ -75,9 +75,28 @@ pub enum BandRule {
     Fixed([f32; 2]),
 }
 
+/// A `--band` value that is none of `auto`, `default`, `LO,HI`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct BandRuleError {
+    /// The text given.
+    pub text: String,
+}
+
+impl std::fmt::Display for BandRuleError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(
+            f,
+            "`{}`: give `auto`, `default` or `LO,HI` in Hz",
+            self.text
+        )
+    }
+}
+
+impl std::error::Error for BandRuleError {}
+
 impl std::str::FromStr for BandRule {
-    type Err = String;
-    fn from_str(s: &str) -> Result<Self, String> {
+    type Err = BandRuleError;
+    fn from_str(s: &str) -> Result<Self, BandRuleError> {
         match s {
             "auto" => Ok(BandRule::Auto),
             "default" => Ok(BandRule::Default),
@@ -88,9 +107,9 @@ impl std::str::FromStr for BandRule {
                     Ok([lo, hi]) if lo.is_finite() && hi.is_finite() && *lo > 0.0 && hi > lo => {
                         Ok(BandRule::Fixed([*lo, *hi]))
                     }
-                    _ => Err(format!(
-                        "`{other}`: give `auto`, `default` or `LO,HI` in Hz"
-                    )),
+                    _ => Err(BandRuleError {
+                        text: other.to_string(),
+                    }),
                 }
             }
         }
@@ -137,14 +156,48 @@ pub struct ValidateArgs {
     pub max_decoy_alarms: Option<usize>,
 }
 
-fn parse_decoy(s: &str) -> Result<f32, String> {
-    let f: f32 = s.trim().parse().map_err(|e| format!("{s}: {e}"))?;
+/// A `--decoy` factor that is not a number, or out of its range.
+#[derive(Debug, Clone, PartialEq)]
+pub enum DecoyError {
+    /// Not a number.
+    Number {
+        /// The text given.
+        text: String,
+        /// Why it does not parse.
+        error: std::num::ParseFloatError,
+    },
+    /// Outside 0.25-4 or within 2 % of 1.
+    Range {
+        /// The text given.
+        text: String,
+    },
+}
+
+impl std::fmt::Display for DecoyError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            DecoyError::Number { text, error } => write!(f, "{text}: {error}"),
+            DecoyError::Range { text } => write!(
+                f,
+                "{text}: a decoy factor lies in 0.25-4 and at least 2 % away from 1"
+            ),
+        }
+    }
+}
+
+impl std::error::Error for DecoyError {}
+
+fn parse_decoy(s: &str) -> Result<f32, DecoyError> {
+    let f: f32 = s.trim().parse().map_err(|error| DecoyError::Number {
+        text: s.to_string(),
+        error,
+    })?;
     if f.is_finite() && (0.25..=4.0).contains(&f) && (f - 1.0).abs() >= 0.02 {
         Ok(f)
     } else {
-        Err(format!(
-            "{s}: a decoy factor lies in 0.25-4 and at least 2 % away from 1"
-        ))
+        Err(DecoyError::Range {
+            text: s.to_string(),
+        })
     }
 }
 
