@@ -126,18 +126,36 @@ pub const SAMPLE_RATE_RANGE_HZ: [f32; 2] = [1000.0, 400_000.0];
 
 /// Refuses a sample rate outside [`SAMPLE_RATE_RANGE_HZ`] with the fix in
 /// words, before any stage turns it into jargon about rings or Nyquist.
-pub fn check_sample_rate(fs: f32) -> Result<(), String> {
+pub fn check_sample_rate(fs: f32) -> Result<(), SampleRateError> {
     let [lo, hi] = SAMPLE_RATE_RANGE_HZ;
     if fs.is_finite() && (lo..=hi).contains(&fs) {
         Ok(())
     } else {
-        Err(format!(
-            "sample rate {fs} Hz (from the WAV header) is outside the {lo:.0} to {hi:.0} Hz \
-             the analysis supports: check that the header's rate is the rate the samples were \
-             taken at, or resample the recording"
-        ))
+        Err(SampleRateError { fs })
     }
 }
+
+/// A recording's sample rate outside [`SAMPLE_RATE_RANGE_HZ`].
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SampleRateError {
+    /// The rate given, Hz.
+    pub fs: f32,
+}
+
+impl std::fmt::Display for SampleRateError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        let [lo, hi] = SAMPLE_RATE_RANGE_HZ;
+        write!(
+            f,
+            "sample rate {} Hz (from the WAV header) is outside the {lo:.0} to {hi:.0} Hz \
+             the analysis supports: check that the header's rate is the rate the samples were \
+             taken at, or resample the recording",
+            self.fs
+        )
+    }
+}
+
+impl std::error::Error for SampleRateError {}
 
 /// A pipeline refusal in words a user can act on: which point-file key to
 /// change, and to what, where that can be worked out.
@@ -186,7 +204,7 @@ pub fn explain_pipeline_error(point: &PointConfig, e: PipelineError) -> String {
 pub fn run(point: &PointConfig, rec: &Record) -> Result<Analysis, CliError> {
     let mut point = point.clone();
     point.sample_rate_hz = rec.sample_rate_hz;
-    check_sample_rate(rec.sample_rate_hz).map_err(CliError::Input)?;
+    check_sample_rate(rec.sample_rate_hz).map_err(|e| CliError::Input(e.to_string()))?;
     let mut p = Box::new(NodePipeline::new(&point).map_err(|e| {
         CliError::input(
             format!(
