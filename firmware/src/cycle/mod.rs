@@ -35,7 +35,7 @@ use crate::downlink::{self, Command, DownlinkError, MAX_BASELINE_LEN};
 use crate::downlink_auth::AuthError;
 use crate::exception::{Choice, ExceptionState, ReportPolicy};
 use crate::hal::{
-    Alarm, Battery, BlockSource, MeasurementCore, PulseCapture, RadioLink, Slot, Storage,
+    Alarm, Battery, BlockSource, Board, MeasurementCore, PulseCapture, RadioLink, Slot, Storage,
     WakeReason, Watchdog,
 };
 use crate::identity::{Identity, IDENTITY_LEN};
@@ -290,26 +290,26 @@ impl CycleSummary {
     }
 }
 
-/// The node's devices, one small trait each.
-pub struct Devices<S, P, R, A, St, B, W, Pw, D> {
+/// The node's devices: the drivers of board `B`, one small trait each.
+pub struct Devices<B: Board> {
     /// ADC blocks (DMA double buffer).
-    pub source: S,
+    pub source: B::Source,
     /// Tach edge capture.
-    pub capture: P,
+    pub capture: B::Capture,
     /// Radio link.
-    pub radio: R,
+    pub radio: B::Radio,
     /// Sleep and wake-up alarm.
-    pub alarm: A,
+    pub alarm: B::Alarm,
     /// Persistent storage.
-    pub storage: St,
+    pub storage: B::Storage,
     /// Supply monitor.
-    pub battery: B,
+    pub battery: B::Battery,
     /// Watchdog.
-    pub watchdog: W,
+    pub watchdog: B::Watchdog,
     /// Sensor supply switch (high = on).
-    pub power: Pw,
+    pub power: B::Power,
     /// Delay for sensor settling.
-    pub delay: D,
+    pub delay: B::Delay,
 }
 
 /// Downlink and survey bookkeeping since boot, for the status frame.
@@ -332,9 +332,10 @@ struct LinkState {
     status_seq: u16,
 }
 
-/// The node: devices, core, configuration and the cycle state.
-pub struct Node<S, P, R, A, St, B, W, Pw, D, C> {
-    dev: Devices<S, P, R, A, St, B, W, Pw, D>,
+/// The node on board `B` with measurement core `C`: devices, core,
+/// configuration and the cycle state.
+pub struct Node<B: Board, C> {
+    dev: Devices<B>,
     core: C,
     config: PointRecord,
     counter: u32,
@@ -383,25 +384,13 @@ pub fn band_in_use(config: &PointRecord) -> [f32; 2] {
     }
 }
 
-impl<S, P, R, A, St, B, W, Pw, D, C> Node<S, P, R, A, St, B, W, Pw, D, C>
-where
-    S: BlockSource,
-    P: PulseCapture,
-    R: RadioLink,
-    A: Alarm,
-    St: Storage,
-    B: Battery,
-    W: Watchdog,
-    Pw: OutputPin,
-    D: DelayNs,
-    C: MeasurementCore,
-{
+impl<B: Board, C: MeasurementCore> Node<B, C> {
     /// Boots: reads the provisioned identity (without one every downlink is
     /// refused), loads and checks the stored configuration and its replay
     /// counter (falling back to the built-in default, counter 0, when it is
     /// missing or invalid) and the stored baseline, switches the sensor off
     /// and starts in `Sleep`.
-    pub fn new(mut dev: Devices<S, P, R, A, St, B, W, Pw, D>, mut core: C) -> Self {
+    pub fn new(mut dev: Devices<B>, mut core: C) -> Self {
         // Sensor off first: a failing pin shows up again at PowerSensor.
         let _ = dev.power.set_low();
         let mut idb = [0u8; IDENTITY_LEN];
@@ -556,12 +545,12 @@ where
     }
 
     /// The devices (for tests and board diagnostics).
-    pub fn devices(&self) -> &Devices<S, P, R, A, St, B, W, Pw, D> {
+    pub fn devices(&self) -> &Devices<B> {
         &self.dev
     }
 
     /// Gives the devices back (tests: a reboot over the same storage).
-    pub fn into_devices(self) -> Devices<S, P, R, A, St, B, W, Pw, D> {
+    pub fn into_devices(self) -> Devices<B> {
         self.dev
     }
 
