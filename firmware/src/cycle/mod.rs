@@ -23,16 +23,20 @@
 //! ([`crate::exception`], [`Node::set_report_policy`]; reports from a core
 //! whose frames are not dsp-core full frames go out as they are).
 //!
-//! Downlinks are verified before they are parsed ([`downlink::open`]); a
+//! Downlinks are verified before they are parsed ([`crate::downlink::open`]); a
 //! refused one changes nothing and is counted. The node sends a status
 //! frame after the report of the first cycle after boot and of the cycle
 //! after any downlink, so the gateway sees what became of it.
+//!
+//! Files: this one holds the node and its state machine
+//! ([`Node::step`]); `state.rs` where a cycle is and what failed;
+//! `outcome.rs` what became of a cycle, a downlink and a survey;
+//! `report.rs` the uplink (report by exception, status frame); `survey.rs`
+//! the end of a band survey; `apply.rs` the application of a downlink and
+//! the records it stores.
 
-use crate::commission::{CommissionError, SurveyChoice};
 use crate::config::{BandSource, PointRecord, StoredConfig, MAX_STORED_LEN};
-use crate::crc::crc32;
-use crate::downlink::{self, Command, DownlinkError, MAX_BASELINE_LEN};
-use crate::downlink_auth::AuthError;
+use crate::downlink::MAX_BASELINE_LEN;
 use crate::exception::{Choice, ExceptionState, ReportPolicy};
 use crate::hal::{
     Alarm, Battery, BlockSource, Board, MeasurementCore, PulseCapture, RadioLink, Slot, Storage,
@@ -41,14 +45,19 @@ use crate::hal::{
 use crate::identity::{Identity, IDENTITY_LEN};
 use crate::log::{log_info, log_warn};
 use crate::quality::{QualityFlags, SignalHealth};
-use dsp_core::frame::status::{
-    encode_status, BandSource as FrameBandSource, BootConfig, DownlinkResult, StatusReport,
-    SurveyStatus,
-};
-use dsp_core::frame::QualityFlags as FrameFlags;
-use dsp_core::survey::SurveyError;
+use apply::unseal;
 use embedded_hal::delay::DelayNs;
 use embedded_hal::digital::OutputPin;
+
+mod apply;
+mod outcome;
+mod report;
+mod state;
+mod survey;
+
+pub use outcome::{ConfigSource, CycleKind, CycleSummary, DownlinkOutcome, SurveyOutcome};
+pub use report::{band_in_use, frame_flags};
+pub use state::{CycleError, Fault, State};
 
 /// Capacity of the uplink frame buffer (frames are at most 51 bytes).
 pub const FRAME_CAPACITY: usize = 64;
@@ -64,231 +73,6 @@ pub const DOWNLINK_CAPACITY: usize = crate::downlink_auth::HEADER_LEN
     };
 /// Upper bound on blocks per record whatever the configuration says.
 pub const MAX_RECORD_BLOCKS: u32 = 4_096;
-
-/// Where the cycle is.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub enum State {
-    /// Waiting for the alarm or a command, sensor off.
-    Sleep,
-    /// Woken; per-cycle state is reset here.
-    Wake(WakeReason),
-    /// Switching the sensor supply on.
-    PowerSensor,
-    /// Waiting for the sensor to settle, then starting the drivers.
-    Settle,
-    /// Streaming blocks and edges into the core.
-    Acquire,
-    /// The core computes its report.
-    Finish,
-    /// The report becomes a frame.
-    Encode,
-    /// The frame goes to the radio.
-    Transmit,
-    /// Receive window for a downlink; then the watchdog is fed if healthy.
-    Listen,
-}
-
-/// What failed in a cycle.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub enum Fault {
-    /// The sensor power pin could not be driven.
-    PowerPin,
-    /// The block source (ADC/DMA) failed.
-    Source,
-    /// The pulse capture failed.
-    Capture,
-    /// The core refused the configuration or failed to finish or encode.
-    Core,
-    /// The radio failed to send or receive.
-    Radio,
-    /// The status frame could not be encoded.
-    Status,
-}
-
-/// A cycle aborted in `state` because of `fault`.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub struct CycleError {
-    /// State in which it happened.
-    pub state: State,
-    /// What failed.
-    pub fault: Fault,
-}
-
-impl core::fmt::Display for CycleError {
-    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
-        write!(
-            f,
-            "cycle aborted in {:?}: {:?} fault",
-            self.state, self.fault
-        )
-    }
-}
-
-impl core::error::Error for CycleError {}
-
-/// Where the configuration in use came from at boot.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub enum ConfigSource {
-    /// Loaded from storage and valid.
-    Stored,
-    /// Storage empty: the built-in default is in use.
-    DefaultEmpty,
-    /// Stored record invalid or unreadable: the built-in default is in use.
-    DefaultInvalid,
-}
-
-/// What a cycle does with its blocks.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub enum CycleKind {
-    /// A measurement: report frame (and a status frame when one is due).
-    Measure,
-    /// A commissioning band survey: status frame with the chosen band.
-    Survey,
-}
-
-/// What became of a downlink.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub enum DownlinkOutcome {
-    /// No downlink in the last receive window.
-    None,
-    /// New configuration validated, stored with its counter and in use.
-    ConfigApplied,
-    /// Measure-now request accepted.
-    MeasureNow,
-    /// Band survey request accepted: it runs in the next cycle.
-    SurveyRequested,
-    /// New baseline accepted by the core and stored.
-    BaselineApplied,
-    /// Refused; everything kept as it was.
-    Refused(DownlinkError),
-    /// Authentic and valid, but storage or the core failed; old values kept.
-    NotStored,
-}
-
-impl DownlinkOutcome {
-    /// The code the status frame carries.
-    pub fn result(self) -> DownlinkResult {
-        match self {
-            Self::None => DownlinkResult::None,
-            Self::ConfigApplied => DownlinkResult::ConfigApplied,
-            Self::MeasureNow => DownlinkResult::MeasureNow,
-            Self::SurveyRequested => DownlinkResult::SurveyRequested,
-            Self::BaselineApplied => DownlinkResult::BaselineApplied,
-            Self::NotStored => DownlinkResult::NotStored,
-            Self::Refused(e) => match e {
-                DownlinkError::NotProvisioned => DownlinkResult::NotProvisioned,
-                DownlinkError::Auth(a) => match a {
-                    AuthError::TooShort { .. } => DownlinkResult::Truncated,
-                    AuthError::UnknownVersion(_) => DownlinkResult::UnknownVersion,
-                    AuthError::WrongNode { .. } => DownlinkResult::WrongNode,
-                    AuthError::BadTag => DownlinkResult::BadTag,
-                    AuthError::Replayed { .. } => DownlinkResult::Replayed,
-                },
-                DownlinkError::Empty => DownlinkResult::EmptyCommand,
-                DownlinkError::UnknownCommand(_) => DownlinkResult::UnknownCommand,
-                DownlinkError::Config(_) => DownlinkResult::InvalidConfig,
-                DownlinkError::BadBaseline => DownlinkResult::InvalidBaseline,
-            },
-        }
-    }
-}
-
-/// What became of the last band survey.
-#[derive(Clone, Copy, Debug, PartialEq)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub enum SurveyOutcome {
-    /// No survey since boot.
-    NotRun,
-    /// Band chosen, stored in the configuration and in use.
-    Stored(SurveyChoice),
-    /// Band chosen but storing it failed: the configuration is unchanged.
-    NotStored(SurveyChoice),
-    /// The capture was clipped, flat or overrun (these flags): discarded.
-    SignalFault(QualityFlags),
-    /// The survey could not run or choose.
-    Failed(CommissionError),
-}
-
-impl SurveyOutcome {
-    /// The code the status frame carries.
-    pub fn status(self) -> SurveyStatus {
-        match self {
-            Self::NotRun => SurveyStatus::NotRun,
-            Self::Stored(_) => SurveyStatus::Stored,
-            Self::NotStored(_) => SurveyStatus::NotStored,
-            Self::SignalFault(_) => SurveyStatus::SignalFault,
-            Self::Failed(e) => match e {
-                CommissionError::Unsupported | CommissionError::NotStarted => {
-                    SurveyStatus::Unsupported
-                }
-                CommissionError::Point(_) => SurveyStatus::Config,
-                CommissionError::Survey(s) => match s {
-                    SurveyError::Flat => SurveyStatus::Flat,
-                    SurveyError::TooFewSamples => SurveyStatus::TooFewSamples,
-                    SurveyError::NoBand => SurveyStatus::NoBand,
-                    SurveyError::SampleRate | SurveyError::Config => SurveyStatus::Config,
-                },
-            },
-        }
-    }
-}
-
-/// Figures of the last completed (or aborted) cycle.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub struct CycleSummary {
-    /// Why the cycle ran.
-    pub reason: WakeReason,
-    /// Measurement or band survey.
-    pub kind: CycleKind,
-    /// Quality flags put into the frame.
-    pub flags: QualityFlags,
-    /// Blocks pushed to the core.
-    pub blocks: u32,
-    /// Blocks that arrived after an overrun.
-    pub overruns: u32,
-    /// Tach edges pushed to the core.
-    pub edges: u32,
-    /// Bytes of the frame sent (0 if none).
-    pub frame_len: usize,
-    /// A status frame went out in this cycle (after the report, or as the
-    /// survey cycle's only frame).
-    pub status_sent: bool,
-    /// Battery voltage read under load, mV.
-    pub battery_mv: u16,
-    /// Full or reduced report frame, when the report was a dsp-core full
-    /// frame the policy could read ([`crate::exception`]).
-    pub report_frame: Option<Choice>,
-    /// The fault that aborted the cycle, if any.
-    pub fault: Option<CycleError>,
-    /// Whether the watchdog was fed.
-    pub fed_watchdog: bool,
-}
-
-impl CycleSummary {
-    const fn new(reason: WakeReason, kind: CycleKind) -> Self {
-        Self {
-            reason,
-            kind,
-            flags: QualityFlags::empty(),
-            blocks: 0,
-            overruns: 0,
-            edges: 0,
-            frame_len: 0,
-            status_sent: false,
-            battery_mv: 0,
-            report_frame: None,
-            fault: None,
-            fed_watchdog: false,
-        }
-    }
-}
 
 /// The node's devices: the drivers of board `B`, one small trait each.
 pub struct Devices<B: Board> {
@@ -354,34 +138,6 @@ pub struct Node<B: Board, C> {
     exception: ExceptionState,
     /// The report of this cycle's frame, for the exception state once sent.
     pending: Option<(Choice, dsp_core::frame::FrameReport)>,
-}
-
-/// Firmware flags as the frame's flag field.
-pub fn frame_flags(f: QualityFlags) -> FrameFlags {
-    FrameFlags {
-        tach_missing: f.contains(QualityFlags::TACH_MISSING),
-        clipping: f.contains(QualityFlags::CLIPPING),
-        sensor_fault: f.contains(QualityFlags::SENSOR_FAULT),
-        processing_overrun: f.contains(QualityFlags::PROCESSING_OVERRUN),
-        low_battery: f.contains(QualityFlags::LOW_BATTERY),
-        ..FrameFlags::default()
-    }
-}
-
-/// The band a record measures with: its own, or dsp-core's default band for
-/// its sample rate when it has none.
-pub fn band_in_use(config: &PointRecord) -> [f32; 2] {
-    match config.band_hz() {
-        Some(b) => b,
-        None => {
-            let mut p = dsp_core::config::PointConfig::default();
-            // validated range 1 kHz..200 kHz: exact in f32
-            p.sample_rate_hz = f32::from(u16::try_from(config.sample_rate_hz / 10).unwrap_or(0))
-                * 10.0
-                + f32::from(u8::try_from(config.sample_rate_hz % 10).unwrap_or(0));
-            p.default_band_hz()
-        }
-    }
 }
 
 impl<B: Board, C: MeasurementCore> Node<B, C> {
@@ -557,44 +313,6 @@ impl<B: Board, C: MeasurementCore> Node<B, C> {
     /// The core.
     pub fn core(&self) -> &C {
         &self.core
-    }
-
-    /// The status the next status frame would carry (sequence number
-    /// included; the flags are those of the last cycle).
-    pub fn status(&self) -> StatusReport {
-        let (band_source, band_kurtosis) = match self.config.band_source {
-            BandSource::Configured => (FrameBandSource::Configured, f32::NAN),
-            BandSource::Survey { kurtosis } => (FrameBandSource::Survey, kurtosis),
-            BandSource::Unset => (FrameBandSource::Unset, f32::NAN),
-        };
-        StatusReport {
-            node_id: self.node_id().unwrap_or(0),
-            seq: self.link.status_seq,
-            flags: frame_flags(self.summary.flags),
-            band_source,
-            boot_config: match self.config_source {
-                ConfigSource::Stored => BootConfig::Stored,
-                ConfigSource::DefaultEmpty => BootConfig::DefaultEmpty,
-                ConfigSource::DefaultInvalid => BootConfig::DefaultInvalid,
-            },
-            provisioned: self.identity.is_some(),
-            downlink_counter: self.counter,
-            last_downlink: self.link.last_downlink.result(),
-            refused_downlinks: self.link.refused,
-            survey: self.link.survey.status(),
-            band_hz: band_in_use(&self.config),
-            band_kurtosis,
-            ..StatusReport::default()
-        }
-    }
-
-    /// Encodes the status frame into `out` and advances its sequence number.
-    #[inline(never)] // keeps its buffers out of the frame of every step
-    fn encode_status_frame(&mut self, out: &mut [u8]) -> Result<usize, Fault> {
-        let n = encode_status(&self.status(), out).map_err(|_| Fault::Status)?;
-        self.link.status_seq = self.link.status_seq.wrapping_add(1);
-        self.link.status_pending = false;
-        Ok(n)
     }
 
     /// Performs one transition and returns the new state. On a fault the
@@ -794,186 +512,4 @@ impl<B: Board, C: MeasurementCore> Node<B, C> {
             }
         })
     }
-
-    /// Replaces the full frame of `n` bytes in `self.frame` by the reduced
-    /// frame when the policy says so; returns the length to send. A frame
-    /// that does not decode as a dsp-core full frame is sent as it is.
-    #[inline(never)] // keeps the decoded report out of the frame of every step
-    fn by_exception(&mut self, n: usize) -> usize {
-        let Some(report) = self
-            .frame
-            .get(..n)
-            .and_then(|b| dsp_core::frame::decode(b).ok())
-        else {
-            return n;
-        };
-        let mut choice = self.exception.choose(&self.policy, &report);
-        let mut len = n;
-        if choice == Choice::Reduced {
-            let mut buf = [0u8; FRAME_CAPACITY];
-            match dsp_core::frame::encode_reduced(&report, &mut buf) {
-                Ok(m) => {
-                    self.frame = buf;
-                    len = m;
-                }
-                // cannot happen for a decoded report; the full frame goes out
-                Err(_) => choice = Choice::Full(crate::exception::FullReason::Periodic),
-            }
-        }
-        log_info!("report frame {}", choice);
-        self.summary.report_frame = Some(choice);
-        self.pending = Some((choice, report));
-        len
-    }
-
-    /// The survey's choice, unless the capture was unhealthy.
-    #[inline(never)] // keeps its buffers out of the frame of every step
-    fn survey_outcome(&mut self) -> SurveyOutcome {
-        let choice = match self.core.finish_survey() {
-            Ok(c) => c,
-            Err(e) => return SurveyOutcome::Failed(e),
-        };
-        // a clipped, dead or gapped capture makes its kurtosis meaningless
-        let mut bad = QualityFlags::empty();
-        for f in [
-            QualityFlags::CLIPPING,
-            QualityFlags::SENSOR_FAULT,
-            QualityFlags::PROCESSING_OVERRUN,
-        ] {
-            if self.summary.flags.contains(f) {
-                bad.insert(f);
-            }
-        }
-        if !bad.is_empty() {
-            return SurveyOutcome::SignalFault(bad);
-        }
-        match self
-            .config
-            .with_survey_band(choice.band_hz, choice.kurtosis)
-        {
-            Ok(rec) if self.store_config(self.counter, &rec) => {
-                self.config = rec;
-                SurveyOutcome::Stored(choice)
-            }
-            Ok(_) => SurveyOutcome::NotStored(choice),
-            Err(_) => SurveyOutcome::Failed(CommissionError::Survey(SurveyError::NoBand)),
-        }
-    }
-
-    fn end_survey(&mut self, outcome: SurveyOutcome) {
-        log_info!("survey {}", outcome);
-        self.link.survey = outcome;
-        self.link.survey_tried = true;
-        self.link.status_pending = true;
-    }
-
-    /// Writes the configuration with its counter in one record.
-    #[inline(never)] // keeps its buffers out of the frame of every step
-    fn store_config(&mut self, counter: u32, record: &PointRecord) -> bool {
-        let mut buf = [0u8; MAX_STORED_LEN];
-        let stored = StoredConfig {
-            counter,
-            record: record.clone(),
-        };
-        stored
-            .encode(&mut buf)
-            .ok()
-            .and_then(|n| buf.get(..n))
-            .is_some_and(|bytes| self.dev.storage.store(Slot::Config, bytes).is_ok())
-    }
-
-    /// Advances the stored counter (same record, new counter) before a
-    /// command that changes no configuration takes effect, so it cannot be
-    /// replayed after a power cycle either.
-    fn commit_counter(&mut self, counter: u32) -> bool {
-        let record = self.config.clone();
-        let ok = self.store_config(counter, &record);
-        if ok {
-            self.counter = counter;
-        }
-        ok
-    }
-
-    /// Applies one received downlink: verified under the node's key first
-    /// ([`downlink::open`]), then parsed. A refused one changes nothing and
-    /// is counted; either way a status frame goes out with the next uplink.
-    #[inline(never)] // keeps its buffers out of the frame of every step
-    pub fn apply_downlink(&mut self, msg: &[u8]) -> DownlinkOutcome {
-        let outcome = self.apply_verified(msg);
-        if let DownlinkOutcome::Refused(_e) = outcome {
-            log_warn!("downlink refused: {}", _e);
-            self.link.refused = self.link.refused.saturating_add(1);
-        }
-        self.link.last_downlink = outcome;
-        self.link.status_pending = true;
-        outcome
-    }
-
-    fn apply_verified(&mut self, msg: &[u8]) -> DownlinkOutcome {
-        let (counter, cmd) = match downlink::open(self.identity.as_ref(), self.counter, msg) {
-            Ok(x) => x,
-            Err(e) => return DownlinkOutcome::Refused(e),
-        };
-        match cmd {
-            Command::SetConfig(rec) => {
-                if self.store_config(counter, &rec) {
-                    self.config = rec;
-                    self.counter = counter;
-                    // a new configuration without a band gets its survey
-                    self.link.survey_tried = false;
-                    DownlinkOutcome::ConfigApplied
-                } else {
-                    DownlinkOutcome::NotStored
-                }
-            }
-            Command::MeasureNow => {
-                if self.commit_counter(counter) {
-                    self.measure_now = true;
-                    DownlinkOutcome::MeasureNow
-                } else {
-                    DownlinkOutcome::NotStored
-                }
-            }
-            Command::Survey => {
-                if self.commit_counter(counter) {
-                    self.link.survey_requested = true;
-                    DownlinkOutcome::SurveyRequested
-                } else {
-                    DownlinkOutcome::NotStored
-                }
-            }
-            Command::SetBaseline(data) => {
-                if self.core.load_baseline(data).is_err() {
-                    return DownlinkOutcome::Refused(DownlinkError::BadBaseline);
-                }
-                if !self.commit_counter(counter) {
-                    return DownlinkOutcome::NotStored;
-                }
-                let mut buf = [0u8; MAX_BASELINE_LEN + 4];
-                match seal(data, &mut buf) {
-                    Some(sealed) if self.dev.storage.store(Slot::Baseline, sealed).is_ok() => {
-                        DownlinkOutcome::BaselineApplied
-                    }
-                    _ => DownlinkOutcome::NotStored,
-                }
-            }
-        }
-    }
-}
-
-/// Appends a CRC-32 to `data` in `buf`.
-fn seal<'a>(data: &[u8], buf: &'a mut [u8]) -> Option<&'a [u8]> {
-    let n = data.len();
-    buf.get_mut(..n)?.copy_from_slice(data);
-    buf.get_mut(n..n + 4)?
-        .copy_from_slice(&crc32(data).to_le_bytes());
-    buf.get(..n + 4)
-}
-
-/// Checks and strips the CRC-32 trailer written by [`seal`].
-fn unseal(data: &[u8]) -> Option<&[u8]> {
-    let (payload, crc) = data.split_at_checked(data.len().checked_sub(4)?)?;
-    let mut c = [0u8; 4];
-    c.copy_from_slice(crc);
-    (!payload.is_empty() && crc32(payload) == u32::from_le_bytes(c)).then_some(payload)
 }
