@@ -102,6 +102,7 @@ pub trait RadioLink {
 /// Why the node woke up.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum WakeReason {
     /// The measurement interval elapsed.
     Schedule,

@@ -14,6 +14,7 @@ use dsp_core::survey::SurveyError;
 /// Where the configuration in use came from at boot.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum ConfigSource {
     /// Loaded from storage and valid.
     Stored,
@@ -36,6 +37,7 @@ pub enum CycleKind {
 /// What became of a downlink.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum DownlinkOutcome {
     /// No downlink in the last receive window.
     None,
@@ -84,6 +86,7 @@ impl DownlinkOutcome {
 /// What became of the last band survey.
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum SurveyOutcome {
     /// No survey since boot.
     NotRun,

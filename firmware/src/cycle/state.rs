@@ -29,6 +29,7 @@ pub enum State {
 /// What failed in a cycle.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum Fault {
     /// The sensor power pin could not be driven.
     PowerPin,
