@@ -42,6 +42,7 @@ pub struct SurveyChoice {
 /// Why a survey could not run or choose.
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum CommissionError {
     /// The measurement core has no band survey.
     Unsupported,

@@ -29,6 +29,7 @@ use dsp_core::num::log10f;
 /// a day at one measurement per hour.
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub struct ReportPolicy {
     /// A finding that moved by this much (dB) or more since the last full
     /// frame sends a full frame. 0 sends one on any change.
@@ -89,6 +90,7 @@ impl core::error::Error for PolicyError {}
 /// Why a full frame is sent.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum FullReason {
     /// No full frame sent since boot.
     First,

@@ -35,6 +35,7 @@ pub type NodeCore = PipelineCore<4096, NODE_BINS, NODE_RING>;
 /// Why the pipeline core failed.
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum PipelineCoreError {
     /// The record could not become a measuring point.
     Point(PointError),

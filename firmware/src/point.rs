@@ -16,6 +16,7 @@ use dsp_core::config::{
 /// Why a record could not become a measuring point.
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum PointError {
     /// More distinct shaft ratios than `dsp_core::config::MAX_SHAFTS`.
     TooManyShafts,

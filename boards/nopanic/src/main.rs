@@ -284,6 +284,20 @@ mod opaque {
 
     /// A flash whose contents and results are opaque (any page contents,
     /// any failure).
+    /// The opaque devices as a board.
+    pub struct Board;
+    impl firmware::hal::Board for Board {
+        type Source = Source;
+        type Capture = Capture;
+        type Radio = Radio;
+        type Alarm = Sleep;
+        type Storage = firmware::store::FlashStore<Flash>;
+        type Battery = Batt;
+        type Watchdog = Dog;
+        type Power = Pin;
+        type Delay = Delay;
+    }
+
     pub struct Flash;
     impl ErrorType for Flash {
         type Error = NorFlashErrorKind;
@@ -332,7 +346,7 @@ fn node() {
     let Some(core) = cortex_m::singleton!(: NodeCore = NodeCore::new(0)) else {
         return;
     };
-    let dev = Devices {
+    let dev = Devices::<opaque::Board> {
         source: opaque::Source(black_box([0; 256])),
         capture: opaque::Capture,
         radio: opaque::Radio(black_box([0; 300])),
@@ -418,7 +432,9 @@ fn main() -> ! {
         black_box(point.band());
         black_box(point.default_band_hz());
         // The node's sizes and a smaller host-like set.
-        measure::<4096, { dsp_core::pipeline::NODE_BINS }, { dsp_core::pipeline::NODE_RING }>(&point);
+        measure::<4096, { dsp_core::pipeline::NODE_BINS }, { dsp_core::pipeline::NODE_RING }>(
+            &point,
+        );
         measure::<1024, 512, 2048>(&point);
         black_box(NodePipeline::new(&opaque_point()).is_ok());
         frames();

@@ -77,7 +77,7 @@ fn run_with<C: MeasurementCore>(core: C) -> i32 {
     let Ok(storage) = firmware::store::FlashStore::new(flash, LAYOUT) else {
         return 2;
     };
-    let dev = Devices {
+    let dev = Devices::<Mps2> {
         source,
         capture: FileCapture::open(),
         radio,

@@ -151,10 +151,21 @@ impl embedded_hal::delay::DelayNs for NoDelay {
     fn delay_ns(&mut self, _ns: u32) {}
 }
 
-fn devices(
-    blocks: u32,
-    overrun_at: Option<u32>,
-) -> Devices<RamSource, Edges, Radio, NoAlarm, RamStorage, Batt, Dog, Pin, NoDelay> {
+/// The RAM devices as a board, with either tach source.
+struct RamBoard<P>(core::marker::PhantomData<P>);
+impl<P: PulseCapture> Board for RamBoard<P> {
+    type Source = RamSource;
+    type Capture = P;
+    type Radio = Radio;
+    type Alarm = NoAlarm;
+    type Storage = RamStorage;
+    type Battery = Batt;
+    type Watchdog = Dog;
+    type Power = Pin;
+    type Delay = NoDelay;
+}
+
+fn devices(blocks: u32, overrun_at: Option<u32>) -> Devices<RamBoard<Edges>> {
     Devices {
         source: RamSource {
             buf: [0; BLOCK],
@@ -395,7 +406,7 @@ mod tests {
         use firmware::pipeline_core::NodeCore;
         let core = cortex_m::singleton!(: NodeCore = NodeCore::new(9)).unwrap();
         let d = devices(1098, None);
-        let dev = Devices {
+        let dev = Devices::<RamBoard<TachGen>> {
             source: d.source,
             capture: TachGen(0),
             radio: d.radio,
