@@ -16,7 +16,7 @@
 //! configuration) or when an authenticated `0x04` downlink asks for one: the
 //! same states, but the blocks feed the core's band survey, `Finish` stores
 //! the chosen band in the configuration, and the uplink is the status frame
-//! ([`dsp_core::frame::status`]) that reports it.
+//! ([`wire::frame::status`]) that reports it.
 //!
 //! A measurement's report goes out as a full frame or, when nothing changed
 //! beyond the margin since the last full frame, as the reduced frame
@@ -41,11 +41,11 @@ use crate::hal::{
 use crate::identity::{Identity, IDENTITY_LEN};
 use crate::log::{log_info, log_warn};
 use crate::quality::{QualityFlags, SignalHealth};
-use dsp_core::frame::status::{
+use wire::frame::status::{
     encode_status, BandSource as FrameBandSource, BootConfig, DownlinkResult, StatusReport,
     SurveyStatus,
 };
-use dsp_core::frame::QualityFlags as FrameFlags;
+use wire::frame::QualityFlags as FrameFlags;
 use dsp_core::survey::SurveyError;
 use embedded_hal::delay::DelayNs;
 use embedded_hal::digital::OutputPin;
@@ -352,7 +352,7 @@ pub struct Node<S, P, R, A, St, B, W, Pw, D, C> {
     policy: ReportPolicy,
     exception: ExceptionState,
     /// The report of this cycle's frame, for the exception state once sent.
-    pending: Option<(Choice, dsp_core::frame::FrameReport)>,
+    pending: Option<(Choice, wire::frame::FrameReport)>,
 }
 
 /// Firmware flags as the frame's flag field.
@@ -814,7 +814,7 @@ where
         let Some(report) = self
             .frame
             .get(..n)
-            .and_then(|b| dsp_core::frame::decode(b).ok())
+            .and_then(|b| wire::frame::decode(b).ok())
         else {
             return n;
         };
@@ -822,7 +822,7 @@ where
         let mut len = n;
         if choice == Choice::Reduced {
             let mut buf = [0u8; FRAME_CAPACITY];
-            match dsp_core::frame::encode_reduced(&report, &mut buf) {
+            match wire::frame::encode_reduced(&report, &mut buf) {
                 Ok(m) => {
                     self.frame = buf;
                     len = m;

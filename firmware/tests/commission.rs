@@ -14,7 +14,7 @@
 )]
 mod common;
 use common::*;
-use dsp_core::frame::status::{decode_status, BandSource as FrameBand, SurveyStatus};
+use wire::frame::status::{decode_status, BandSource as FrameBand, SurveyStatus};
 use firmware::commission::Commissioning;
 use firmware::config::{BandSource, PointRecord};
 use firmware::cycle::{CycleKind, DownlinkOutcome, SurveyOutcome};

@@ -10,7 +10,7 @@
 )]
 mod common;
 use common::*;
-use dsp_core::frame::status::{decode_status, DownlinkResult, StatusReport};
+use wire::frame::status::{decode_status, DownlinkResult, StatusReport};
 use firmware::cycle::DownlinkOutcome;
 use firmware::downlink::DownlinkError;
 use firmware::downlink_auth::AuthError;

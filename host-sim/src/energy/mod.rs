@@ -20,7 +20,7 @@ use std::path::{Path, PathBuf};
 
 use clap::Args;
 use dsp_core::config::SpeedInput;
-use dsp_core::frame::layout::{full_frame_len, REDUCED_LEN};
+use wire::frame::layout::{full_frame_len, REDUCED_LEN};
 use firmware::exception::ReportPolicy;
 
 use crate::error::CliError;

@@ -2,7 +2,7 @@
 //! receive time) or from raw binary files of concatenated frames.
 
 use crate::error::CliError;
-use dsp_core::frame::layout::{
+use wire::frame::layout::{
     full_frame_len, OFF_COUNT_ZONE, REDUCED_LEN, STATUS_LEN, TYPE_FULL, TYPE_REDUCED, TYPE_STATUS,
 };
 use std::io::Read;

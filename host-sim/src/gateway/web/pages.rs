@@ -11,7 +11,7 @@ use super::{Inner, WebConfig};
 use crate::gateway::map::SensorRef;
 use crate::gateway::trend::{DefectState, State};
 use crate::gateway::{bearing_states, combine};
-use dsp_core::frame::{DefectKind, QualityFlags};
+use wire::frame::{DefectKind, QualityFlags};
 use std::collections::HashMap;
 use std::fmt::Write as _;
 

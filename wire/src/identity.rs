@@ -1,7 +1,7 @@
 //! The node's identity, written once at provisioning: its node id and its
 //! downlink key ([`crate::downlink_auth`]).
 //!
-//! It lives in its own flash page ([`crate::hal::Slot::Identity`]), apart
+//! It lives in its own flash page (`firmware::hal::Slot::Identity`), apart
 //! from the configuration record, so a configuration downlink can never
 //! touch it and a firmware update does not overwrite it. The provisioning
 //! tool (`envord gateway provision`) writes the record; procedures are in

@@ -11,8 +11,8 @@
 #[path = "frame_common/mod.rs"]
 mod common;
 
-use dsp_core::frame::layout::{EU868_DR0_MAX_PAYLOAD, US915_DR0_MAX_PAYLOAD};
-use dsp_core::frame::{encode, encode_reduced, BearingResult, EncodeError, FrameReport};
+use wire::frame::layout::{EU868_DR0_MAX_PAYLOAD, US915_DR0_MAX_PAYLOAD};
+use wire::frame::{encode, encode_reduced, BearingResult, EncodeError, FrameReport};
 
 fn report_with(nb: usize) -> FrameReport {
     let mut r = FrameReport::default();

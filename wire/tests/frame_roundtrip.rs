@@ -9,8 +9,8 @@
 #[path = "frame_common/mod.rs"]
 mod common;
 
-use dsp_core::frame::quantisation::{self as q, Linear};
-use dsp_core::frame::{
+use wire::frame::quantisation::{self as q, Linear};
+use wire::frame::{
     decode, decode_reduced, encode, encode_reduced, BearingResult, DefectResult, FrameReport,
     IsoZone, QualityFlags, ReducedReport,
 };

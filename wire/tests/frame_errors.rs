@@ -4,8 +4,8 @@
 #[path = "frame_common/mod.rs"]
 mod common;
 
-use dsp_core::frame::crc::crc16;
-use dsp_core::frame::{
+use wire::crc::crc16;
+use wire::frame::{
     decode, decode_any, decode_reduced, encode, encode_reduced, DecodeError, DefectKind,
     EncodeError, Frame, FrameReport,
 };

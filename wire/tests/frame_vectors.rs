@@ -13,9 +13,9 @@
 #[path = "frame_common/mod.rs"]
 mod common;
 
-use dsp_core::frame::crc::crc16;
-use dsp_core::frame::status::encode_status;
-use dsp_core::frame::{decode_any, encode, encode_reduced};
+use wire::crc::crc16;
+use wire::frame::status::encode_status;
+use wire::frame::{decode_any, encode, encode_reduced};
 use serde_json::{json, Value};
 
 /// Valid report vectors generated (a fifth of them reduced frames).
