@@ -41,14 +41,14 @@ use crate::hal::{
 use crate::identity::{Identity, IDENTITY_LEN};
 use crate::log::{log_info, log_warn};
 use crate::quality::{QualityFlags, SignalHealth};
+use dsp_core::survey::SurveyError;
+use embedded_hal::delay::DelayNs;
+use embedded_hal::digital::OutputPin;
 use wire::frame::status::{
     encode_status, BandSource as FrameBandSource, BootConfig, DownlinkResult, StatusReport,
     SurveyStatus,
 };
 use wire::frame::QualityFlags as FrameFlags;
-use dsp_core::survey::SurveyError;
-use embedded_hal::delay::DelayNs;
-use embedded_hal::digital::OutputPin;
 
 /// Capacity of the uplink frame buffer (frames are at most 51 bytes).
 pub const FRAME_CAPACITY: usize = 64;

@@ -20,8 +20,8 @@
 //! ([`ExceptionState::sent`]): a cycle that fails before the uplink does not
 //! make the next reduced frame refer to a full frame never sent.
 
-use wire::frame::{FrameReport, QualityFlags};
 use dsp_core::num::log10f;
+use wire::frame::{FrameReport, QualityFlags};
 
 /// When the node sends a full frame. The defaults are this project's
 /// choice: 3 dB is half the +6 dB alert rise of the gateway's trend limits

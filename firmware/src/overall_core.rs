@@ -14,8 +14,8 @@ use crate::hal::MeasurementCore;
 use crate::quality::QualityFlags;
 use dsp_core::num::{f32_to_u32_sat, sqrtf};
 
-pub use wire::overall::{FRAME_KIND, FRAME_LEN};
 use wire::overall::OverallFrame;
+pub use wire::overall::{FRAME_KIND, FRAME_LEN};
 
 /// Why the overall core failed.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]

@@ -25,9 +25,9 @@ use crate::config::PointRecord;
 use crate::hal::MeasurementCore;
 use crate::point::{point_config, PointError};
 use crate::quality::QualityFlags;
-use wire::frame::{self, EncodeError, FrameReport};
 use dsp_core::pipeline::{Pipeline, PipelineError, NODE_BINS, NODE_RING};
 use dsp_core::report::{QualityFlags as ReportFlags, Report};
+use wire::frame::{self, EncodeError, FrameReport};
 
 /// The node's core: 4096-point spectrum, node-sized resampler ring.
 pub type NodeCore = PipelineCore<4096, NODE_BINS, NODE_RING>;

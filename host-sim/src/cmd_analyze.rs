@@ -68,8 +68,8 @@ pub fn frame_hex(
     }
     let fr = wire::frame::FrameReport::from_report(report, node_id, seq);
     let mut buf = [0u8; 64];
-    let n = wire::frame::encode(&fr, &mut buf)
-        .map_err(|e| CliError::Other(format!("frame: {e}")))?;
+    let n =
+        wire::frame::encode(&fr, &mut buf).map_err(|e| CliError::Other(format!("frame: {e}")))?;
     Ok(buf.iter().take(n).map(|b| format!("{b:02x}")).collect())
 }
 

@@ -12,11 +12,11 @@
 use std::path::Path;
 use std::process::{Command, Output};
 
+use serde_json::Value;
 use wire::config::{BandSource, PointRecord};
 use wire::downlink::{open, Command as Cmd};
 use wire::downlink_auth::{verify, AuthError, DownlinkKey};
 use wire::identity::Identity;
-use serde_json::Value;
 
 const BIN: &str = env!("CARGO_BIN_EXE_envord");
 const VECTORS: &str = concat!(

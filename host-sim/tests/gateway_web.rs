@@ -17,12 +17,12 @@
 mod common;
 
 use common::{hex, run, stdout, BIN};
-use wire::frame::{encode, BearingResult, DefectResult, FrameReport};
 use host_sim::gateway::web::clock;
 use std::io::{Read, Write};
 use std::path::Path;
 use std::process::{Child, Command, Stdio};
 use std::time::{Duration, Instant};
+use wire::frame::{encode, BearingResult, DefectResult, FrameReport};
 
 /// A full frame with per-bearing BPFO scores (other kinds quiet).
 fn frame(node: u16, seq: u16, bpfo: &[f32], low_battery: bool) -> Vec<u8> {

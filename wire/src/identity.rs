@@ -86,7 +86,7 @@ impl Identity {
     /// Decodes and checks a stored record (trailing bytes are ignored).
     ///
     /// ```
-    /// use firmware::identity::{encode, Identity, IDENTITY_LEN};
+    /// use wire::identity::{encode, Identity, IDENTITY_LEN};
     /// let mut buf = [0u8; IDENTITY_LEN];
     /// encode(12, &[7; 32], &mut buf).unwrap();
     /// assert_eq!(Identity::decode(&buf).unwrap().node_id(), 12);

@@ -88,8 +88,8 @@ impl OverallFrame {
         let crest = self.crest_milli.to_le_bytes();
         let speed = self.speed_decirpm.to_le_bytes();
         let bytes = [
-            FRAME_KIND, self.flags, rms[0], rms[1], peak[0], peak[1], crest[0], crest[1],
-            speed[0], speed[1], speed[2], speed[3],
+            FRAME_KIND, self.flags, rms[0], rms[1], peak[0], peak[1], crest[0], crest[1], speed[0],
+            speed[1], speed[2], speed[3],
         ];
         out.copy_from_slice(&bytes);
         Ok(FRAME_LEN)

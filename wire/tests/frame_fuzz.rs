@@ -5,9 +5,9 @@
 #[path = "frame_common/mod.rs"]
 mod common;
 
+use proptest::prelude::*;
 use wire::crc::crc16;
 use wire::frame::{decode_any, encode, encode_reduced_report, Frame};
-use proptest::prelude::*;
 
 fn check(bytes: &[u8]) -> Result<(), TestCaseError> {
     if let Ok(f) = decode_any(bytes) {

@@ -9,12 +9,12 @@
 #[path = "frame_common/mod.rs"]
 mod common;
 
+use proptest::prelude::*;
 use wire::frame::quantisation::{self as q, Linear};
 use wire::frame::{
     decode, decode_reduced, encode, encode_reduced, BearingResult, DefectResult, FrameReport,
     IsoZone, QualityFlags, ReducedReport,
 };
-use proptest::prelude::*;
 
 /// Expected decode of a linear field: NaN stays NaN, below 0 -> 0, above max
 /// -> max, inside within step/2 (plus f32 rounding of the product).

@@ -13,10 +13,10 @@
 #[path = "frame_common/mod.rs"]
 mod common;
 
+use serde_json::{json, Value};
 use wire::crc::crc16;
 use wire::frame::status::encode_status;
 use wire::frame::{decode_any, encode, encode_reduced};
-use serde_json::{json, Value};
 
 /// Valid report vectors generated (a fifth of them reduced frames).
 const COUNT: usize = 400;

@@ -5,7 +5,7 @@
 #![no_std]
 #![no_main]
 
-use firmware::config::PointRecord;
+use wire::config::PointRecord;
 use firmware::cycle::{Devices, Node, State};
 use firmware::hal::*;
 use firmware::overall_core::OverallCore;
@@ -238,7 +238,7 @@ mod tests {
     #[test]
     fn crc32_check_value() {
         // CRC catalogue, CRC-32/ISO-HDLC check value
-        defmt::assert_eq!(firmware::crc::crc32(b"123456789"), 0xCBF4_3926);
+        defmt::assert_eq!(wire::crc::crc32(b"123456789"), 0xCBF4_3926);
     }
 
     #[test]

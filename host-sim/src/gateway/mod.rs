@@ -31,11 +31,11 @@ pub mod trend_cmd;
 pub mod web;
 
 use crate::error::CliError;
-use wire::frame::{decode_any, DefectKind, Frame};
 use input::{read_inputs, InputFormat, InputItem};
 use seq::{SeqEvent, SeqTracker};
 use std::io::Write;
 use trend::State;
+use wire::frame::{decode_any, DefectKind, Frame};
 
 /// Arguments of `envord gateway`.
 #[derive(clap::Args, Debug)]

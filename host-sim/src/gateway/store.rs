@@ -2,8 +2,8 @@
 //! idempotent inserts. Described in docs/gateway.md.
 
 use crate::error::CliError;
-use wire::frame::{DefectKind, Frame, IsoZone};
 use rusqlite::{params, Connection, OptionalExtension};
+use wire::frame::{DefectKind, Frame, IsoZone};
 
 /// Migrations in order; migration i brings `user_version` from i to i + 1.
 pub const MIGRATIONS: &[&str] = &[

@@ -1,8 +1,8 @@
 // Shared helpers of the gateway tests (included with `#[path]`).
 #![allow(dead_code)]
-use wire::frame::{encode, encode_reduced, BearingResult, DefectResult, FrameReport};
 use std::path::Path;
 use std::process::{Command, Output};
+use wire::frame::{encode, encode_reduced, BearingResult, DefectResult, FrameReport};
 
 pub const BIN: &str = env!("CARGO_BIN_EXE_envord");
 

@@ -78,9 +78,7 @@ pub fn random_report(rng: &mut Rng) -> FrameReport {
 /// A random status report (every defined code, bands from 1 Hz to 100 kHz,
 /// kurtosis from -3 to 400 or none; above 327.67 it saturates).
 pub fn random_status(rng: &mut Rng) -> wire::frame::StatusReport {
-    use wire::frame::status::{
-        BandSource, BootConfig, DownlinkResult, StatusReport, SurveyStatus,
-    };
+    use wire::frame::status::{BandSource, BootConfig, DownlinkResult, StatusReport, SurveyStatus};
     let pick = |rng: &mut Rng, n: u64| rng.below(n) as u8;
     let downlink = loop {
         if let Some(d) = DownlinkResult::from_code(pick(rng, 26)) {
