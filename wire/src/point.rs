@@ -326,7 +326,7 @@ pub fn record_from_point(p: &PointConfig, s: &NodeSettings) -> Result<PointRecor
     ];
     if let Some((key, _)) = checks.iter().find(|(_, same)| !same) {
         return Err(unsupported(
-            *key,
+            key,
             "set to other than the node's default in the point file",
         ));
     }
