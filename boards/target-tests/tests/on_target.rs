@@ -411,7 +411,7 @@ mod tests {
         defmt::assert!(s.fed_watchdog);
         // early stop: 64 revolutions at 1479.8 rpm come before the 1400 rpm limit
         defmt::assert!(s.blocks < 1098);
-        let r = dsp_core::frame::decode(node.frame()).unwrap();
+        let r = wire::frame::decode(node.frame()).unwrap();
         defmt::assert_eq!(r.node_id, 9);
         defmt::assert!(!r.flags.tach_missing && !r.flags.processing_overrun);
         defmt::assert!((r.speed_rpm - 1479.8).abs() < 0.5);
