@@ -1,6 +1,12 @@
 //! The worked example of docs/frame-format.md is the encoder's output: the
 //! hex and the decoded JSON in the document must equal what the code gives.
-#![allow(clippy::unwrap_used, clippy::indexing_slicing)]
+#![allow(
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::panic,
+    clippy::indexing_slicing,
+    clippy::cast_possible_truncation
+)]
 
 #[path = "frame_common/mod.rs"]
 mod common;

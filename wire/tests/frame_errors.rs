@@ -1,5 +1,11 @@
 //! Each kind of damaged frame gives its own decode error.
-#![allow(clippy::unwrap_used, clippy::indexing_slicing)]
+#![allow(
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::panic,
+    clippy::indexing_slicing,
+    clippy::cast_possible_truncation
+)]
 
 #[path = "frame_common/mod.rs"]
 mod common;

@@ -1,6 +1,12 @@
 //! Arbitrary bytes into the decoders: no panic, and whatever decodes is
 //! canonical (re-encoding gives the same bytes).
-#![allow(clippy::unwrap_used, clippy::indexing_slicing)]
+#![allow(
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::panic,
+    clippy::indexing_slicing,
+    clippy::cast_possible_truncation
+)]
 
 #[path = "frame_common/mod.rs"]
 mod common;

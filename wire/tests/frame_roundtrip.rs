@@ -2,6 +2,8 @@
 //! field within the quantisation error stated in docs/frame-format.md.
 #![allow(
     clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::panic,
     clippy::indexing_slicing,
     clippy::cast_possible_truncation
 )]

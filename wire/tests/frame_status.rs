@@ -6,6 +6,8 @@
 //! frame re-encodes to the same bytes.
 #![allow(
     clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::panic,
     clippy::indexing_slicing,
     clippy::cast_possible_truncation
 )]

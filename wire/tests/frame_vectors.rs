@@ -6,6 +6,8 @@
 //! JavaScript decoder against the same file.
 #![allow(
     clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::panic,
     clippy::indexing_slicing,
     clippy::cast_possible_truncation
 )]
