@@ -19,7 +19,7 @@ pub use crate::velocity::{MachineGroup, Support};
 /// eight on four shafts, and cross-bearing attribution can only give a peak
 /// to a bearing the point knows. The radio frame of format version 1 and
 /// the node's configuration record carry at most four
-/// ([`crate::frame::layout::MAX_BEARINGS`]).
+/// (`wire::MAX_BEARINGS`).
 pub const MAX_BEARINGS: usize = 8;
 /// Most shafts one measuring point describes (the tach shaft included).
 pub const MAX_SHAFTS: usize = 4;

@@ -18,7 +18,7 @@
 //! tach edges ─► tach (speed, faults) ─► order_track (angle-domain resampling)
 //!            ─► spectrum (window, rfft, averaging) ─► defects (harmonics, floor, score)
 //!            with kinematics (BPFO, BPFI, FTF, BSF as orders of the tach shaft)
-//! pipeline ties them together and yields a report; frame encodes it for the radio.
+//! pipeline ties them together and yields a report (the `wire` crate encodes it for the radio).
 //! ```
 #![no_std]
 #![cfg_attr(
@@ -39,7 +39,6 @@ pub mod coverage;
 pub mod decimate;
 pub mod defects;
 pub mod design;
-pub mod frame;
 pub mod frontend;
 pub mod kinematics;
 pub mod num;

@@ -9,7 +9,7 @@
 //!   velocity RMS (as a level, 20 log10 of the ratio),
 //! * or [`ReportPolicy::full_every`] cycles have passed since it;
 //!
-//! otherwise the 11-byte reduced frame ([`dsp_core::frame::encode_reduced`]),
+//! otherwise the 11-byte reduced frame ([`wire::frame::encode_reduced`]),
 //! which the gateway reads as "as before, with this worst score". The
 //! comparison is made on the values as the frame carries them (quantised),
 //! so what the gateway sees decides. Peak, crest factor, kurtosis, speed and
@@ -20,8 +20,8 @@
 //! ([`ExceptionState::sent`]): a cycle that fails before the uplink does not
 //! make the next reduced frame refer to a full frame never sent.
 
-use dsp_core::frame::{FrameReport, QualityFlags};
 use dsp_core::num::log10f;
+use wire::frame::{FrameReport, QualityFlags};
 
 /// When the node sends a full frame. The defaults are this project's
 /// choice: 3 dB is half the +6 dB alert rise of the gateway's trend limits
@@ -223,7 +223,7 @@ fn changed(last: &FrameReport, now: &FrameReport, margin: f32) -> bool {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use dsp_core::frame::{BearingResult, IsoZone};
+    use wire::frame::{BearingResult, IsoZone};
 
     fn report(score: f32) -> FrameReport {
         let mut r = FrameReport {

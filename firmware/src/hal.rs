@@ -155,7 +155,7 @@ pub trait Watchdog {
 }
 
 /// The signal-processing core as the firmware sees it. The lead's adapter
-/// implements this over `dsp_core::pipeline::Pipeline` and `dsp_core::frame`.
+/// implements this over `dsp_core::pipeline::Pipeline` and `wire::frame`.
 pub trait MeasurementCore {
     /// Core error (configuration refused, frame too small, ...).
     type Error;

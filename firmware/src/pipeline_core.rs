@@ -8,7 +8,7 @@
 //! * Blocks and edges go straight to the pipeline (nothing is buffered here).
 //! * `finish` raises the firmware's flags in the pipeline, then keeps its
 //!   [`Report`]; `encode` fills a [`FrameReport`] and packs the full frame
-//!   (`dsp_core::frame::encode`, at most 58 bytes for 4 bearings).
+//!   (`wire::frame::encode`, at most 58 bytes for 4 bearings).
 //!
 //! * `start_survey` sets the pipeline aside (unstarted) for a band survey
 //!   ([`crate::commission::Commissioning`], kept beside the pipeline and set
@@ -25,9 +25,9 @@ use crate::config::PointRecord;
 use crate::hal::MeasurementCore;
 use crate::point::{point_config, PointError};
 use crate::quality::QualityFlags;
-use dsp_core::frame::{self, EncodeError, FrameReport};
 use dsp_core::pipeline::{Pipeline, PipelineError, NODE_BINS, NODE_RING};
 use dsp_core::report::{QualityFlags as ReportFlags, Report};
+use wire::frame::{self, EncodeError, FrameReport};
 
 /// The node's core: 4096-point spectrum, node-sized resampler ring.
 pub type NodeCore = PipelineCore<4096, NODE_BINS, NODE_RING>;

@@ -82,32 +82,9 @@ impl core::ops::BitOr for QualityFlags {
 }
 
 /// Thresholds of the node's input check ([`SignalHealth`]; not the core's
-/// channel check, see the module docs), taken from the stored configuration.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub struct HealthLimits {
-    /// A record whose peak-to-peak span is at most this many counts is "flat".
-    pub flat_counts: u16,
-    /// Magnitude at or above which a sample counts as clipped.
-    pub clip_level: i16,
-    /// Clipped samples, per mille of the record, from which CLIPPING is raised.
-    pub clip_permille: u16,
-    /// Clipped samples, per mille, from which the sensor is called saturated.
-    pub saturated_permille: u16,
-}
-
-impl Default for HealthLimits {
-    fn default() -> Self {
-        // 12-bit ADC in a signed 16-bit container (common practice); flat span
-        // of a few counts covers ADC noise on a dead input.
-        Self {
-            flat_counts: 4,
-            clip_level: 2047,
-            clip_permille: 1,
-            saturated_permille: 100,
-        }
-    }
-}
+/// channel check, see the module docs), taken from the stored configuration
+/// (the record's fields, so defined with it in `wire::config`).
+pub use wire::config::HealthLimits;
 
 /// The node's input check: running min/max/clip counts over a streamed
 /// record of raw ADC counts.

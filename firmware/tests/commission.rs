@@ -14,12 +14,12 @@
 )]
 mod common;
 use common::*;
-use dsp_core::frame::status::{decode_status, BandSource as FrameBand, SurveyStatus};
 use firmware::commission::Commissioning;
 use firmware::config::{BandSource, PointRecord};
 use firmware::cycle::{CycleKind, DownlinkOutcome, SurveyOutcome};
 use firmware::hal::WakeReason;
 use firmware::pipeline_core::NodeCore;
+use wire::frame::status::{decode_status, BandSource as FrameBand, SurveyStatus};
 
 const FS: f32 = 25_600.0;
 const RPM: f32 = 1480.0;

@@ -1,5 +1,6 @@
 //! Link-time proof that no panic path is reachable from dsp-core's public
-//! API and from the firmware node (its whole cycle with the pipeline core:
+//! API, from every decoder of the `wire` crate (frames, records, downlinks)
+//! and from the firmware node (its whole cycle with the pipeline core:
 //! downlink authentication and parsing, configuration and identity records,
 //! the power-safe flash store, the commissioning survey, status frames) and
 //! the block ring between the sampling interrupt and the cycle, when built
@@ -23,7 +24,7 @@ use core::panic::PanicInfo;
 
 use cortex_m_rt::entry;
 use dsp_core::config::PointConfig;
-use dsp_core::frame::{
+use wire::frame::{
     decode, decode_any, decode_reduced, encode, encode_reduced, encode_reduced_report, encoded_len,
     Frame, FrameReport, ReducedReport,
 };
@@ -100,7 +101,7 @@ fn frames() {
     match decode_any(input) {
         Ok(Frame::Full(r)) => black_box(encode(&r, black_box(&mut out[..]))).ok(),
         Ok(Frame::Reduced(r)) => black_box(encode_reduced_report(&r, black_box(&mut out[..]))).ok(),
-        Ok(Frame::Status(r)) => black_box(dsp_core::frame::status::encode_status(
+        Ok(Frame::Status(r)) => black_box(wire::frame::status::encode_status(
             &r,
             black_box(&mut out[..]),
         ))
@@ -110,6 +111,10 @@ fn frames() {
             None
         }
     };
+    // The 0x4F overall frame (wire::overall): parse, then emit what came out.
+    if let Ok(o) = wire::overall::OverallFrame::parse(black_box(&bytes[..12])) {
+        let _ = black_box(o.emit(black_box(&mut out[..])));
+    }
     // An arbitrary report (values the decoder would never produce).
     let r: FrameReport = black_box(FrameReport::default());
     let _ = black_box(encode(&r, black_box(&mut out[..])));
@@ -167,7 +172,7 @@ fn survey() {
 
 /// Downlink authentication on arbitrary radio bytes.
 fn downlink() {
-    use firmware::downlink_auth::{sign, verify, DownlinkKey};
+    use wire::downlink_auth::{sign, verify, DownlinkKey};
     let key = DownlinkKey::new(black_box([0u8; 32]));
     let bytes = [0u8; 64];
     if let Ok(a) = verify(&key, black_box(1), black_box(0), black_box(&bytes[..])) {
@@ -399,8 +404,8 @@ fn ring() {
 
 /// Records read from storage or radio, on arbitrary bytes.
 fn records() {
-    use firmware::config::{PointRecord, StoredConfig};
-    use firmware::identity::Identity;
+    use wire::config::{PointRecord, StoredConfig};
+    use wire::identity::Identity;
     let bytes = [0u8; 300];
     let input: &[u8] = black_box(&bytes[..]);
     if let Ok(s) = StoredConfig::decode(input) {
@@ -420,7 +425,7 @@ fn records() {
     }
     if let Ok(id) = Identity::decode(input) {
         black_box(id.node_id());
-        let _ = black_box(firmware::downlink::open(Some(&id), black_box(0), input));
+        let _ = black_box(wire::downlink::open(Some(&id), black_box(0), input));
     }
 }
 

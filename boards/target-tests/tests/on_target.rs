@@ -5,7 +5,7 @@
 #![no_std]
 #![no_main]
 
-use firmware::config::PointRecord;
+use wire::config::PointRecord;
 use firmware::cycle::{Devices, Node, State};
 use firmware::hal::*;
 use firmware::overall_core::OverallCore;
@@ -249,7 +249,7 @@ mod tests {
     #[test]
     fn crc32_check_value() {
         // CRC catalogue, CRC-32/ISO-HDLC check value
-        defmt::assert_eq!(firmware::crc::crc32(b"123456789"), 0xCBF4_3926);
+        defmt::assert_eq!(wire::crc::crc32(b"123456789"), 0xCBF4_3926);
     }
 
     #[test]
@@ -422,7 +422,7 @@ mod tests {
         defmt::assert!(s.fed_watchdog);
         // early stop: 64 revolutions at 1479.8 rpm come before the 1400 rpm limit
         defmt::assert!(s.blocks < 1098);
-        let r = dsp_core::frame::decode(node.frame()).unwrap();
+        let r = wire::frame::decode(node.frame()).unwrap();
         defmt::assert_eq!(r.node_id, 9);
         defmt::assert!(!r.flags.tach_missing && !r.flags.processing_overrun);
         defmt::assert!((r.speed_rpm - 1479.8).abs() < 0.5);

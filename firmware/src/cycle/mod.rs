@@ -16,7 +16,7 @@
 //! configuration) or when an authenticated `0x04` downlink asks for one: the
 //! same states, but the blocks feed the core's band survey, `Finish` stores
 //! the chosen band in the configuration, and the uplink is the status frame
-//! ([`dsp_core::frame::status`]) that reports it.
+//! ([`wire::frame::status`]) that reports it.
 //!
 //! A measurement's report goes out as a full frame or, when nothing changed
 //! beyond the margin since the last full frame, as the reduced frame
@@ -137,7 +137,7 @@ pub struct Node<B: Board, C> {
     policy: ReportPolicy,
     exception: ExceptionState,
     /// The report of this cycle's frame, for the exception state once sent.
-    pending: Option<(Choice, dsp_core::frame::FrameReport)>,
+    pending: Option<(Choice, wire::frame::FrameReport)>,
 }
 
 impl<B: Board, C: MeasurementCore> Node<B, C> {

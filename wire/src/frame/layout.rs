@@ -37,7 +37,7 @@ pub const OFF_COUNT_ZONE: usize = 7;
 /// Length of a full frame carrying `bearings` bearings.
 ///
 /// ```
-/// use dsp_core::frame::layout::full_frame_len;
+/// use wire::frame::layout::full_frame_len;
 /// assert_eq!(full_frame_len(3), 49);
 /// ```
 pub const fn full_frame_len(bearings: usize) -> usize {

@@ -79,7 +79,7 @@ pub const CMD_SURVEY: u8 = 0x04;
 /// Parses and validates one downlink payload (already authenticated).
 ///
 /// ```
-/// use firmware::downlink::{parse, Command, DownlinkError};
+/// use wire::downlink::{parse, Command, DownlinkError};
 /// assert_eq!(parse(&[0x02]), Ok(Command::MeasureNow));
 /// assert_eq!(parse(&[0x7f]), Err(DownlinkError::UnknownCommand(0x7f)));
 /// ```
@@ -107,9 +107,9 @@ pub fn parse(msg: &[u8]) -> Result<Command<'_>, DownlinkError> {
 /// counter, to be stored with the state the command changes.
 ///
 /// ```
-/// use firmware::downlink::{open, Command, DownlinkError};
-/// use firmware::downlink_auth::{sign, AuthError, DownlinkKey};
-/// use firmware::identity::{encode, Identity, IDENTITY_LEN};
+/// use wire::downlink::{open, Command, DownlinkError};
+/// use wire::downlink_auth::{sign, AuthError, DownlinkKey};
+/// use wire::identity::{encode, Identity, IDENTITY_LEN};
 /// let mut rec = [0u8; IDENTITY_LEN];
 /// encode(9, &[3; 32], &mut rec).unwrap();
 /// let id = Identity::decode(&rec).unwrap();

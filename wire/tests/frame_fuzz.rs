@@ -1,13 +1,19 @@
 //! Arbitrary bytes into the decoders: no panic, and whatever decodes is
 //! canonical (re-encoding gives the same bytes).
-#![allow(clippy::unwrap_used, clippy::indexing_slicing)]
+#![allow(
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::panic,
+    clippy::indexing_slicing,
+    clippy::cast_possible_truncation
+)]
 
 #[path = "frame_common/mod.rs"]
 mod common;
 
-use dsp_core::frame::crc::crc16;
-use dsp_core::frame::{decode_any, encode, encode_reduced_report, Frame};
 use proptest::prelude::*;
+use wire::crc::crc16;
+use wire::frame::{decode_any, encode, encode_reduced_report, Frame};
 
 fn check(bytes: &[u8]) -> Result<(), TestCaseError> {
     if let Ok(f) = decode_any(bytes) {
@@ -15,7 +21,7 @@ fn check(bytes: &[u8]) -> Result<(), TestCaseError> {
         let n = match &f {
             Frame::Full(r) => encode(r, &mut buf).unwrap(),
             Frame::Reduced(r) => encode_reduced_report(r, &mut buf).unwrap(),
-            Frame::Status(r) => dsp_core::frame::status::encode_status(r, &mut buf).unwrap(),
+            Frame::Status(r) => wire::frame::status::encode_status(r, &mut buf).unwrap(),
         };
         prop_assert_eq!(&buf[..n], bytes);
     }
@@ -41,7 +47,7 @@ proptest! {
             bytes[0] = 0x10;
             let nb = usize::from(bytes[7] & 7).min(4);
             bytes[7] = (bytes[7] & 0xF8) | nb as u8;
-            bytes.resize(dsp_core::frame::layout::full_frame_len(nb), 0);
+            bytes.resize(wire::frame::layout::full_frame_len(nb), 0);
         }
         let n = bytes.len();
         let c = crc16(&bytes[..n - 2]);
@@ -56,7 +62,7 @@ proptest! {
         let r = common::random_report(&mut common::Rng(seed | 1));
         let mut buf = [0u8; 64];
         let n = if reduced {
-            dsp_core::frame::encode_reduced(&r, &mut buf).unwrap()
+            wire::frame::encode_reduced(&r, &mut buf).unwrap()
         } else {
             encode(&r, &mut buf).unwrap()
         };

@@ -1,7 +1,7 @@
 //! The node's identity, written once at provisioning: its node id and its
 //! downlink key ([`crate::downlink_auth`]).
 //!
-//! It lives in its own flash page ([`crate::hal::Slot::Identity`]), apart
+//! It lives in its own flash page (`firmware::hal::Slot::Identity`), apart
 //! from the configuration record, so a configuration downlink can never
 //! touch it and a firmware update does not overwrite it. The provisioning
 //! tool (`envord gateway provision`) writes the record; procedures are in
@@ -86,7 +86,7 @@ impl Identity {
     /// Decodes and checks a stored record (trailing bytes are ignored).
     ///
     /// ```
-    /// use firmware::identity::{encode, Identity, IDENTITY_LEN};
+    /// use wire::identity::{encode, Identity, IDENTITY_LEN};
     /// let mut buf = [0u8; IDENTITY_LEN];
     /// encode(12, &[7; 32], &mut buf).unwrap();
     /// assert_eq!(Identity::decode(&buf).unwrap().node_id(), 12);

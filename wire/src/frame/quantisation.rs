@@ -7,7 +7,7 @@
 //! * Rounding is to the nearest code, so the error inside the range is at most
 //!   half a step.
 
-use crate::num::f32_to_u32_sat;
+use dsp_core::num::f32_to_u32_sat;
 
 /// A linear field: `value = code * step`, codes `0..=max_code`, `invalid` reserved.
 #[derive(Clone, Copy, Debug)]

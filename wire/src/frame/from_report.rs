@@ -20,9 +20,9 @@
 //! "invalid" when no revolution was measured or the tach is missing.
 
 use super::{BearingResult, DefectResult, FrameReport, IsoZone, OverallIndicators, QualityFlags};
-use crate::kinematics::DefectKind as Kind;
-use crate::report::{QualityFlags as Q, Report};
-use crate::velocity::Zone;
+use dsp_core::kinematics::DefectKind as Kind;
+use dsp_core::report::{QualityFlags as Q, Report};
+use dsp_core::velocity::Zone;
 
 fn flags(q: Q) -> QualityFlags {
     QualityFlags {
@@ -53,7 +53,7 @@ impl FrameReport {
     ///
     /// ```
     /// use dsp_core::config::{PointConfig, SpeedInput};
-    /// use dsp_core::frame::{encode, FrameReport};
+    /// use wire::frame::{encode, FrameReport};
     /// use dsp_core::pipeline::Pipeline;
     /// let mut point = PointConfig::default();
     /// point.speed = SpeedInput::Constant { rpm: 1500.0 };

@@ -1,11 +1,17 @@
 //! Each kind of damaged frame gives its own decode error.
-#![allow(clippy::unwrap_used, clippy::indexing_slicing)]
+#![allow(
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::panic,
+    clippy::indexing_slicing,
+    clippy::cast_possible_truncation
+)]
 
 #[path = "frame_common/mod.rs"]
 mod common;
 
-use dsp_core::frame::crc::crc16;
-use dsp_core::frame::{
+use wire::crc::crc16;
+use wire::frame::{
     decode, decode_any, decode_reduced, encode, encode_reduced, DecodeError, DefectKind,
     EncodeError, Frame, FrameReport,
 };

@@ -138,7 +138,7 @@ impl core::error::Error for BufferTooSmall {}
 /// then that its counter is newer than `stored_counter`.
 ///
 /// ```
-/// use firmware::downlink_auth::{sign, verify, AuthError, DownlinkKey};
+/// use wire::downlink_auth::{sign, verify, AuthError, DownlinkKey};
 /// let key = DownlinkKey::new([7; 32]);
 /// let mut buf = [0u8; 64];
 /// let n = sign(&key, 12, 5, b"cfg", &mut buf).unwrap();

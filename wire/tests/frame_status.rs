@@ -6,6 +6,8 @@
 //! frame re-encodes to the same bytes.
 #![allow(
     clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::panic,
     clippy::indexing_slicing,
     clippy::cast_possible_truncation
 )]
@@ -13,8 +15,8 @@
 #[path = "frame_common/mod.rs"]
 mod common;
 
-use dsp_core::frame::status::{decode_status, encode_status, StatusReport};
-use dsp_core::frame::{decode_any, DecodeError, Frame};
+use wire::frame::status::{decode_status, encode_status, StatusReport};
+use wire::frame::{decode_any, DecodeError, Frame};
 
 fn encoded(r: &StatusReport) -> Vec<u8> {
     let mut buf = [0u8; 64];
@@ -89,7 +91,7 @@ fn undefined_codes_and_reserved_bits_are_refused_even_with_a_good_crc() {
         ..StatusReport::default()
     });
     let reseal = |mut c: Vec<u8>| {
-        let crc = dsp_core::frame::crc::crc16(&c[..25]);
+        let crc = wire::crc::crc16(&c[..25]);
         c[25..].copy_from_slice(&crc.to_be_bytes());
         c
     };

@@ -1,11 +1,17 @@
 //! The worked example of docs/frame-format.md is the encoder's output: the
 //! hex and the decoded JSON in the document must equal what the code gives.
-#![allow(clippy::unwrap_used, clippy::indexing_slicing)]
+#![allow(
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::panic,
+    clippy::indexing_slicing,
+    clippy::cast_possible_truncation
+)]
 
 #[path = "frame_common/mod.rs"]
 mod common;
 
-use dsp_core::frame::{
+use wire::frame::{
     decode, encode, encode_reduced, BearingResult, DefectResult, FrameReport, IsoZone, QualityFlags,
 };
 
@@ -119,7 +125,7 @@ fn doc_example_decoded_json_is_decoder_output() {
 /// downlink, its band chosen by its survey.
 #[test]
 fn doc_status_example_hex_is_encoder_output() {
-    use dsp_core::frame::status::{
+    use wire::frame::status::{
         encode_status, BandSource, BootConfig, DownlinkResult, StatusReport, SurveyStatus,
     };
     let r = StatusReport {

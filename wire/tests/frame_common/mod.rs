@@ -1,6 +1,6 @@
 // Shared helpers of the frame tests (included with `#[path]`, not a test crate of its own).
 #![allow(dead_code)]
-use dsp_core::frame::{BearingResult, DefectResult, FrameReport, IsoZone, QualityFlags};
+use wire::frame::{BearingResult, DefectResult, FrameReport, IsoZone, QualityFlags};
 
 /// Small deterministic generator (xorshift64*, Vigna 2016) so committed vectors are stable.
 pub struct Rng(pub u64);
@@ -77,10 +77,8 @@ pub fn random_report(rng: &mut Rng) -> FrameReport {
 
 /// A random status report (every defined code, bands from 1 Hz to 100 kHz,
 /// kurtosis from -3 to 400 or none; above 327.67 it saturates).
-pub fn random_status(rng: &mut Rng) -> dsp_core::frame::StatusReport {
-    use dsp_core::frame::status::{
-        BandSource, BootConfig, DownlinkResult, StatusReport, SurveyStatus,
-    };
+pub fn random_status(rng: &mut Rng) -> wire::frame::StatusReport {
+    use wire::frame::status::{BandSource, BootConfig, DownlinkResult, StatusReport, SurveyStatus};
     let pick = |rng: &mut Rng, n: u64| rng.below(n) as u8;
     let downlink = loop {
         if let Some(d) = DownlinkResult::from_code(pick(rng, 26)) {

@@ -2,6 +2,8 @@
 //! field within the quantisation error stated in docs/frame-format.md.
 #![allow(
     clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::panic,
     clippy::indexing_slicing,
     clippy::cast_possible_truncation
 )]
@@ -9,12 +11,12 @@
 #[path = "frame_common/mod.rs"]
 mod common;
 
-use dsp_core::frame::quantisation::{self as q, Linear};
-use dsp_core::frame::{
+use proptest::prelude::*;
+use wire::frame::quantisation::{self as q, Linear};
+use wire::frame::{
     decode, decode_reduced, encode, encode_reduced, BearingResult, DefectResult, FrameReport,
     IsoZone, QualityFlags, ReducedReport,
 };
-use proptest::prelude::*;
 
 /// Expected decode of a linear field: NaN stays NaN, below 0 -> 0, above max
 /// -> max, inside within step/2 (plus f32 rounding of the product).

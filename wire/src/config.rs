@@ -29,10 +29,9 @@
 //! A record is decoded and validated in one step ([`PointRecord::decode`]);
 //! once it exists, its accessors cannot fail. What the node stores is a
 //! [`StoredConfig`]: the record plus the replay counter of the downlink that
-//! brought it, in one write (crate::store).
+//! brought it, in one write (`firmware::store`).
 
 use crate::crc::crc32;
-use crate::quality::HealthLimits;
 use heapless::Vec;
 
 /// Format version written by this firmware.
@@ -42,7 +41,7 @@ pub const VERSION_1: u8 = 1;
 /// Record magic.
 pub const MAGIC: [u8; 2] = *b"EP";
 /// Most bearings one measuring point describes.
-pub const MAX_BEARINGS: usize = 4;
+pub use crate::frame::layout::MAX_BEARINGS;
 const HEADER_LEN: usize = 66;
 const HEADER_LEN_V1: usize = 62;
 const BEARING_LEN: usize = 22;
@@ -50,6 +49,34 @@ const BEARING_LEN: usize = 22;
 pub const MAX_RECORD_LEN: usize = HEADER_LEN + MAX_BEARINGS * BEARING_LEN + 4;
 /// Largest stored configuration ([`StoredConfig`]: counter + record).
 pub const MAX_STORED_LEN: usize = 4 + MAX_RECORD_LEN;
+
+/// Signal-health thresholds the record carries (bytes 38..46), used by the
+/// node's streamed checks (`firmware::quality::SignalHealth`).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct HealthLimits {
+    /// A record whose peak-to-peak span is at most this many counts is "flat".
+    pub flat_counts: u16,
+    /// Magnitude at or above which a sample counts as clipped.
+    pub clip_level: i16,
+    /// Clipped samples, per mille of the record, from which CLIPPING is raised.
+    pub clip_permille: u16,
+    /// Clipped samples, per mille, from which the sensor is called saturated.
+    pub saturated_permille: u16,
+}
+
+impl Default for HealthLimits {
+    fn default() -> Self {
+        // 12-bit ADC in a signed 16-bit container (common practice); flat span
+        // of a few counts covers ADC noise on a dead input.
+        Self {
+            flat_counts: 4,
+            clip_level: 2047,
+            clip_permille: 1,
+            saturated_permille: 100,
+        }
+    }
+}
 
 /// Where the envelope band of a record comes from.
 #[derive(Clone, Copy, Debug, PartialEq)]

@@ -6,6 +6,8 @@
 //! JavaScript decoder against the same file.
 #![allow(
     clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::panic,
     clippy::indexing_slicing,
     clippy::cast_possible_truncation
 )]
@@ -13,10 +15,10 @@
 #[path = "frame_common/mod.rs"]
 mod common;
 
-use dsp_core::frame::crc::crc16;
-use dsp_core::frame::status::encode_status;
-use dsp_core::frame::{decode_any, encode, encode_reduced};
 use serde_json::{json, Value};
+use wire::crc::crc16;
+use wire::frame::status::encode_status;
+use wire::frame::{decode_any, encode, encode_reduced};
 
 /// Valid report vectors generated (a fifth of them reduced frames).
 const COUNT: usize = 400;

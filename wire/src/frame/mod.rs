@@ -12,7 +12,7 @@
 //! every bit.
 //!
 //! ```
-//! use dsp_core::frame::{decode, encode, FrameReport, BearingResult};
+//! use wire::frame::{decode, encode, FrameReport, BearingResult};
 //! let mut r = FrameReport { node_id: 7, seq: 41, speed_rpm: 1480.0, ..FrameReport::default() };
 //! r.bearings.push(BearingResult::default()).unwrap();
 //! let mut buf = [0u8; 64];
@@ -23,7 +23,7 @@
 //! assert_eq!(back.speed_rpm, 1480.0);
 //! ```
 
-pub mod crc;
+use crate::crc;
 pub mod from_report;
 pub mod layout;
 pub mod quantisation;
@@ -42,8 +42,8 @@ use quantisation as q;
 pub use status::StatusReport;
 
 /// Bearing defect kinds, in their fixed frame order (BPFO, BPFI, FTF, BSF):
-/// the core's own kinds, coded in frames by [`crate::kinematics::DefectKind::index`].
-pub use crate::kinematics::DefectKind;
+/// the core's own kinds, coded in frames by [`dsp_core::kinematics::DefectKind::index`].
+pub use dsp_core::kinematics::DefectKind;
 
 /// The 2-bit frame code of a kind.
 fn kind_code(k: DefectKind) -> u8 {

@@ -28,7 +28,7 @@ use serde::{Deserialize, Serialize};
 
 use super::layout::{FORMAT_VERSION, STATUS_LEN, TYPE_STATUS};
 use super::{get_u16, seal, DecodeError, EncodeError, QualityFlags};
-use crate::num::f32_to_i32_sat;
+use dsp_core::num::f32_to_i32_sat;
 
 /// Where the envelope band in use came from.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
@@ -290,7 +290,7 @@ fn boot_code(b: BootConfig) -> u8 {
 /// Encodes a status frame ([`STATUS_LEN`] bytes) into `out`.
 ///
 /// ```
-/// use dsp_core::frame::status::{encode_status, decode_status, StatusReport};
+/// use wire::frame::status::{encode_status, decode_status, StatusReport};
 /// let r = StatusReport { node_id: 7, band_hz: [2000.0, 4000.0], ..StatusReport::default() };
 /// let mut buf = [0u8; 32];
 /// let n = encode_status(&r, &mut buf).unwrap();

@@ -6,13 +6,19 @@
 //! docs/frame-format.md says. The EU868 DR0 figure of 51 bytes is also what
 //! the older LoRaWAN 1.0.2 Regional Parameters give and what network servers
 //! quote (e.g. TheThingsNetwork/lorawan-stack issue #866).
-#![allow(clippy::unwrap_used, clippy::indexing_slicing)]
+#![allow(
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::panic,
+    clippy::indexing_slicing,
+    clippy::cast_possible_truncation
+)]
 
 #[path = "frame_common/mod.rs"]
 mod common;
 
-use dsp_core::frame::layout::{EU868_DR0_MAX_PAYLOAD, US915_DR0_MAX_PAYLOAD};
-use dsp_core::frame::{encode, encode_reduced, BearingResult, EncodeError, FrameReport};
+use wire::frame::layout::{EU868_DR0_MAX_PAYLOAD, US915_DR0_MAX_PAYLOAD};
+use wire::frame::{encode, encode_reduced, BearingResult, EncodeError, FrameReport};
 
 fn report_with(nb: usize) -> FrameReport {
     let mut r = FrameReport::default();
