@@ -11,8 +11,8 @@
     clippy::cast_sign_loss
 )]
 
-use dsp_core::defects::{DefectSearch, DefectSearchConfig, SearchError};
-use dsp_core::kinematics::{BearingOrders, DefectKind, DefectMultiples, ShaftRatio};
+use dsp_core::diagnosis::defects::{DefectSearch, DefectSearchConfig, SearchError};
+use dsp_core::diagnosis::kinematics::{BearingOrders, DefectKind, DefectMultiples, ShaftRatio};
 use dsp_core::spectrum::{SpectrumError, SpectrumView, Window};
 
 const OPB: f32 = 1.0 / 64.0;
@@ -66,7 +66,7 @@ fn cwru() -> BearingOrders {
         .orders(ShaftRatio::TACH)
 }
 
-fn run(s: &[f32], cfg: DefectSearchConfig) -> dsp_core::defects::BearingDiagnosis {
+fn run(s: &[f32], cfg: DefectSearchConfig) -> dsp_core::diagnosis::defects::BearingDiagnosis {
     DefectSearch::new(cfg)
         .unwrap()
         .search(&SpectrumView::new(s, OPB, Window::Hann).unwrap(), &cwru())
@@ -527,7 +527,7 @@ fn a_complete_series_keeps_its_peaks_against_a_gappy_stronger_one() {
     let search = DefectSearch::new(DefectSearchConfig::default()).unwrap();
     let mut a = Some(search.search(&view, &cwru()).unwrap());
     let mut b = Some(search.search(&view, &half).unwrap());
-    let strength = |r: &dsp_core::defects::DefectResult| -> f32 {
+    let strength = |r: &dsp_core::diagnosis::defects::DefectResult| -> f32 {
         r.harmonics
             .iter()
             .filter(|h| h.counted)

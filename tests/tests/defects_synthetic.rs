@@ -12,8 +12,8 @@
     clippy::cast_precision_loss
 )]
 
-use dsp_core::defects::{BearingDiagnosis, DefectSearch, DefectSearchConfig};
-use dsp_core::kinematics::{BearingGeometry, BearingOrders, DefectKind, ShaftRatio};
+use dsp_core::diagnosis::defects::{BearingDiagnosis, DefectSearch, DefectSearchConfig};
+use dsp_core::diagnosis::kinematics::{BearingGeometry, BearingOrders, DefectKind, ShaftRatio};
 use dsp_core::spectrum::{OrderSpectrum4096, SpectrumConfig};
 
 const S_HI: usize = 256; // raw angular sampling, samples per revolution

@@ -4,7 +4,7 @@
 //! DFT amplitude of the output (integer cycles), computed in f64 here.
 #![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing)]
 
-use dsp_core::decimate::Decimator;
+use dsp_core::frontend::decimate::Decimator;
 use envord_tests::frontend::{sine, tone_amplitude};
 
 const N_OUT: usize = 400;

@@ -3,7 +3,7 @@
 //! sosfreqz and group_delay).
 #![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing)]
 
-use dsp_core::design::{bandpass_centre_hz, butter_bandpass};
+use dsp_core::frontend::design::{bandpass_centre_hz, butter_bandpass};
 use envord_tests::frontend::data_path;
 use serde::Deserialize;
 

@@ -7,8 +7,8 @@
 //! scipy.stats.kurtosis(fisher=False).
 #![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing)]
 
+use dsp_core::frontend::rectify::Rectifier;
 use dsp_core::frontend::{FrontEnd, FrontEndConfig};
-use dsp_core::rectify::Rectifier;
 use envord_tests::frontend::{data_path, read_f32_le};
 use serde::Deserialize;
 

@@ -3,8 +3,8 @@
 //! same front end fed the whole record in one call.
 #![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing)]
 
+use dsp_core::frontend::rectify::Rectifier;
 use dsp_core::frontend::{FrontEnd, FrontEndConfig};
-use dsp_core::rectify::Rectifier;
 use envord_tests::frontend::read_f32_le;
 use proptest::prelude::*;
 

@@ -3,7 +3,7 @@
 #![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing)]
 
 use dsp_core::frontend::{FrontEnd, FrontEndConfig};
-use dsp_core::velocity::{MachineGroup, Support, Zone};
+use dsp_core::overall::velocity::{MachineGroup, Support, Zone};
 
 /// Standard gravity 9.80665 m/s^2 (CGPM 1901 conventional value), in mm/s^2.
 const STANDARD_GRAVITY_MM_S2: f64 = 9806.65;

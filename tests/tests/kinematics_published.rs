@@ -2,7 +2,7 @@
 //! that follow from the classical formulas.
 #![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing)]
 
-use dsp_core::kinematics::{
+use dsp_core::diagnosis::kinematics::{
     BearingGeometry, DefectKind, DefectMultiples, Drivetrain, GeometryError, ShaftId, ShaftRatio,
 };
 use proptest::prelude::*;

@@ -12,10 +12,13 @@
     clippy::too_many_arguments
 )]
 
-use dsp_core::order_track::{
-    decimation_for, ring_needed, Interpolation, OrderFlags, OrderTrackConfig, OrderTracker,
+use dsp_core::decimation_for;
+use dsp_core::speed::order_track::{
+    ring_needed, Interpolation, OrderFlags, OrderTrackConfig, OrderTracker,
 };
-use dsp_core::tach::{EdgeDetector, RevMark, SpeedSource, SpeedSummary, TachConfig, TachTracker};
+use dsp_core::speed::tach::{
+    EdgeDetector, RevMark, SpeedSource, SpeedSummary, TachConfig, TachTracker,
+};
 use rustfft::{num_complex::Complex, FftPlanner};
 use std::f64::consts::PI;
 

@@ -206,7 +206,10 @@ fn stop_during_record_is_flagged() {
         "{}",
         r.flags
     );
-    assert!(r.speed.flags.contains(dsp_core::tach::TachFlags::STOP));
+    assert!(r
+        .speed
+        .flags
+        .contains(dsp_core::speed::tach::TachFlags::STOP));
     // 25 revolutions cannot fill two 16-revolution segments.
     assert!(r.flags.contains(QualityFlags::INCOMPLETE), "{}", r.flags);
 }

@@ -9,8 +9,8 @@
     clippy::cast_possible_truncation
 )]
 
-use dsp_core::order_track::{OrderTrackConfig, OrderTracker};
-use dsp_core::tach::{EdgeDetector, SpeedSource, TachConfig, TachTracker};
+use dsp_core::speed::order_track::{OrderTrackConfig, OrderTracker};
+use dsp_core::speed::tach::{EdgeDetector, SpeedSource, TachConfig, TachTracker};
 use proptest::prelude::*;
 
 /// Pulse wave with linear edges of `rise` samples; the 0.5 level is crossed exactly at each edge time.
@@ -181,7 +181,7 @@ proptest! {
         let mut out = 0usize;
         let mut times: Vec<f64> = Vec::new();
         for o in ops {
-            let mut sink = |m: dsp_core::tach::RevMark| {
+            let mut sink = |m: dsp_core::speed::tach::RevMark| {
                 times.push(m.time_samples);
                 ot.push_mark(m, |_| out += 1);
             };
@@ -233,7 +233,7 @@ proptest! {
         g in proptest::collection::vec(glitch(), 10..80),
         tick0 in any::<u32>(),
     ) {
-        use dsp_core::tach::TachFlags;
+        use dsp_core::speed::tach::TachFlags;
         let mut c = TachConfig::default();
         c.tick_at_sample0 = tick0;
         c.min_rpm = 600.0;

@@ -8,7 +8,9 @@
     clippy::cast_possible_truncation
 )]
 
-use dsp_core::tach::{RevMark, SpeedSource, SpeedSummary, TachConfig, TachFlags, TachTracker};
+use dsp_core::speed::tach::{
+    RevMark, SpeedSource, SpeedSummary, TachConfig, TachFlags, TachTracker,
+};
 
 const FS: f32 = 51_200.0;
 const TICK_HZ: u32 = 1_000_000;
@@ -247,7 +249,7 @@ fn ten_minutes_keep_sub_sample_precision() {
         exact
     );
     assert!(s.flags.contains(TachFlags::SERIES_TRUNCATED));
-    assert_eq!(t.speed_series().len(), dsp_core::tach::SERIES_CAP);
+    assert_eq!(t.speed_series().len(), dsp_core::speed::tach::SERIES_CAP);
     assert_eq!(s.revs as u64, n - 1, "stats cover all revolutions");
     assert!(!s.flags.is_fault(), "{:?}", s.flags);
 }

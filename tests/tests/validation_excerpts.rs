@@ -22,7 +22,7 @@
 
 use std::path::{Path, PathBuf};
 
-use dsp_core::kinematics::DefectKind;
+use dsp_core::diagnosis::kinematics::DefectKind;
 use host_sim::cmd_validate::{validate_dir, BandRule, RecordResult};
 
 struct Excerpt {

@@ -241,7 +241,7 @@ pub fn check_band(lo_hz: f32, hi_hz: f32, fs_hz: f32) -> Result<(), DesignError>
 /// scipy goldens).
 ///
 /// ```
-/// use dsp_core::design::butter_bandpass;
+/// use dsp_core::frontend::design::butter_bandpass;
 /// let bp = butter_bandpass(2000.0, 5000.0, 12000.0, 8).unwrap();
 /// assert_eq!(bp.len(), 4);
 /// assert!((bp.magnitude(3000.0, 12000.0) - 1.0).abs() < 0.01);

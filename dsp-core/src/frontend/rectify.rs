@@ -16,7 +16,7 @@ impl Rectifier {
     /// Applies the rectifier to one sample.
     ///
     /// ```
-    /// use dsp_core::rectify::Rectifier;
+    /// use dsp_core::frontend::rectify::Rectifier;
     /// assert_eq!(Rectifier::Abs.apply(-2.0), 2.0);
     /// assert_eq!(Rectifier::Square.apply(-2.0), 4.0);
     /// ```

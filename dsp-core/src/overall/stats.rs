@@ -19,10 +19,8 @@
 //!   Clipped samples are counted in `clipped` and still included in the
 //!   statistics.
 
-use crate::velocity::Zone;
-
-/// Partial sums are moved to f64 after this many samples.
-pub const FLUSH_EVERY: u32 = 256;
+use super::velocity::Zone;
+use super::FLUSH_EVERY;
 
 /// Snapshot of the overall indicators.
 #[derive(Clone, Copy, Debug, PartialEq, Default)]

@@ -136,7 +136,7 @@ impl BearingGeometry {
     /// Computed in `f64` (soft-float on the node, done once at configuration).
     ///
     /// ```
-    /// use dsp_core::kinematics::BearingGeometry;
+    /// use dsp_core::diagnosis::kinematics::BearingGeometry;
     /// // Deep-groove bearing of an invented conveyor idler.
     /// let g = BearingGeometry { rollers: 8, roller_diameter: 7.9, pitch_diameter: 33.5, contact_angle_deg: 0.0 };
     /// let m = g.multiples().unwrap();
@@ -335,7 +335,7 @@ pub struct GearMesh {
 /// chained gear meshes. Fixed capacity `S` shafts (including the tach shaft).
 ///
 /// ```
-/// use dsp_core::kinematics::{Drivetrain, ShaftId};
+/// use dsp_core::diagnosis::kinematics::{Drivetrain, ShaftId};
 /// // Invented two-stage reducer: 21/84 then 17/68 teeth.
 /// let mut t: Drivetrain<4> = Drivetrain::new();
 /// let mid = t.add_mesh(ShaftId(0), 21, 84).unwrap();

@@ -384,7 +384,7 @@ impl Decimator {
     /// Designs a decimator by `factor` (1 = pass-through).
     ///
     /// ```
-    /// use dsp_core::decimate::Decimator;
+    /// use dsp_core::frontend::decimate::Decimator;
     /// let mut d = Decimator::new(8).unwrap();
     /// let kept = (0..64).filter_map(|_| d.push(1.0)).count();
     /// assert_eq!(kept, 8);
@@ -514,7 +514,7 @@ impl Decimator {
     /// mapped samples.
     ///
     /// ```
-    /// use dsp_core::decimate::Decimator;
+    /// use dsp_core::frontend::decimate::Decimator;
     /// let (mut a, mut b) = (Decimator::new(8).unwrap(), Decimator::new(8).unwrap());
     /// let x: Vec<f32> = (0..100).map(|i| (i as f32 * 0.3).sin()).collect();
     /// let sq: Vec<f32> = x.iter().map(|v| v * v).collect();
@@ -550,7 +550,7 @@ impl Decimator {
     /// results as [`Self::process`] on the same samples.
     ///
     /// ```
-    /// use dsp_core::decimate::Decimator;
+    /// use dsp_core::frontend::decimate::Decimator;
     /// let (mut a, mut b) = (Decimator::new(4).unwrap(), Decimator::new(4).unwrap());
     /// let x: Vec<f32> = (0..100).map(|i| (i as f32 * 0.3).sin()).collect();
     /// let (mut ya, mut yb) = (Vec::new(), Vec::new());

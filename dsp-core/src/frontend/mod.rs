@@ -22,18 +22,26 @@
 //! and in the velocity path). [`FrontEnd::reconfigure`] designs everything in
 //! place, so a statically placed front end never needs a second copy.
 
-use crate::biquad::BiquadCascade;
-use crate::decimate::{DecimateError, Decimator, DecimatorPlan};
-use crate::design::{bandpass_centre_hz, butter_bandpass, DesignError, SosCascade};
-use crate::overall::{Overall, OverallAcc};
-use crate::rectify::Rectifier;
-use crate::velocity::{
+pub mod biquad;
+pub mod decimate;
+pub mod design;
+mod rate;
+pub mod rectify;
+
+pub use rate::decimation_for;
+
+use crate::frontend::biquad::BiquadCascade;
+use crate::frontend::decimate::{DecimateError, Decimator, DecimatorPlan};
+use crate::frontend::design::{bandpass_centre_hz, butter_bandpass, DesignError, SosCascade};
+use crate::frontend::rectify::Rectifier;
+use crate::overall::velocity::{
     zone, MachineGroup, Support, VelocityConfig, VelocityError, VelocityMeter, VelocityPlan,
 };
+use crate::overall::{Overall, OverallAcc};
 
 /// Samples processed per internal chunk (stack buffer of 512 bytes); the
 /// decimator's block, so each chunk is one pass through its stages.
-pub const CHUNK: usize = crate::decimate::BLOCK;
+pub const CHUNK: usize = crate::frontend::decimate::BLOCK;
 
 /// Configuration of the front end.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -313,7 +321,7 @@ impl FrontEnd {
         // Band-pass and rectifier write straight into the decimator's first
         // stage (one piece: the chunk is the decimator's block).
         let (bp, dec) = (&mut self.bp, &mut self.dec);
-        for c in buf.chunks(crate::decimate::BLOCK) {
+        for c in buf.chunks(crate::frontend::decimate::BLOCK) {
             match self.cfg.rectifier {
                 Rectifier::Abs => {
                     dec.process_with(c.len(), |h| bp.process_map_into(c, h, f32::abs), &mut *out)

@@ -6,7 +6,7 @@
 //! the same whatever the block length, so results are bit-identical for any
 //! split of the input.
 
-use crate::design::{SosCascade, MAX_SECTIONS};
+use crate::frontend::design::{SosCascade, MAX_SECTIONS};
 
 /// A section cascade with its filter state.
 #[derive(Clone, Debug, Default)]
@@ -37,7 +37,7 @@ impl BiquadCascade {
     /// Filters `buf` in place.
     ///
     /// ```
-    /// use dsp_core::{biquad::BiquadCascade, design::butter_bandpass};
+    /// use dsp_core::frontend::{biquad::BiquadCascade, design::butter_bandpass};
     /// let mut f = BiquadCascade::new(butter_bandpass(100.0, 200.0, 1000.0, 4).unwrap());
     /// let mut x = [1.0f32, 0.0, 0.0, 0.0];
     /// f.process(&mut x);
@@ -51,7 +51,7 @@ impl BiquadCascade {
     /// same pass (e.g. the envelope rectifier), saving a second pass.
     ///
     /// ```
-    /// use dsp_core::{biquad::BiquadCascade, design::butter_bandpass};
+    /// use dsp_core::frontend::{biquad::BiquadCascade, design::butter_bandpass};
     /// let sos = butter_bandpass(100.0, 200.0, 1000.0, 4).unwrap();
     /// let (mut a, mut b) = (BiquadCascade::new(sos), BiquadCascade::new(sos));
     /// let mut x = [1.0f32, 0.0, -0.5, 0.25];
@@ -69,11 +69,11 @@ impl BiquadCascade {
 
     /// Filters `src` into `dst` (the shorter length) and applies `map` to
     /// each output in the same pass, e.g. the rectified envelope straight
-    /// into the decimator's history ([`crate::decimate::Decimator::process_with`]).
+    /// into the decimator's history ([`crate::frontend::decimate::Decimator::process_with`]).
     /// The same results as [`Self::process_map`] on a copy of `src`.
     ///
     /// ```
-    /// use dsp_core::{biquad::BiquadCascade, design::butter_bandpass};
+    /// use dsp_core::frontend::{biquad::BiquadCascade, design::butter_bandpass};
     /// let sos = butter_bandpass(100.0, 200.0, 1000.0, 4).unwrap();
     /// let (mut a, mut b) = (BiquadCascade::new(sos), BiquadCascade::new(sos));
     /// let x = [1.0f32, 0.0, -0.5, 0.25];
@@ -178,7 +178,7 @@ impl BiquadCascade {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::design::Sos;
+    use crate::frontend::design::Sos;
 
     #[test]
     fn matches_direct_difference_equation() {
@@ -205,7 +205,7 @@ mod tests {
 
     #[test]
     fn bandpass_path_is_bit_identical_to_general_form() {
-        let sos = crate::design::butter_bandpass(2000.0, 5000.0, 12000.0, 8).unwrap();
+        let sos = crate::frontend::design::butter_bandpass(2000.0, 5000.0, 12000.0, 8).unwrap();
         let mut fast = BiquadCascade::new(sos);
         let mut slow = BiquadCascade::new(sos);
         let mut x = [0f32; 300];

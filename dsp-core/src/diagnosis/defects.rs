@@ -103,7 +103,7 @@
 
 use core::fmt;
 
-use crate::kinematics::{BearingOrders, DefectKind};
+use crate::diagnosis::kinematics::{BearingOrders, DefectKind};
 use crate::num::{amplitude_db, f32_to_usize_sat, usize_to_f32};
 use crate::spectrum::{SpectrumView, Window};
 
@@ -324,8 +324,8 @@ impl BearingDiagnosis {
 /// A validated search configuration.
 ///
 /// ```
-/// use dsp_core::defects::{DefectSearch, DefectSearchConfig};
-/// use dsp_core::kinematics::{DefectMultiples, ShaftRatio, DefectKind};
+/// use dsp_core::diagnosis::defects::{DefectSearch, DefectSearchConfig};
+/// use dsp_core::diagnosis::kinematics::{DefectMultiples, ShaftRatio, DefectKind};
 /// use dsp_core::spectrum::{SpectrumView, Window};
 /// // Invented flat spectrum with BPFO-like lines at 3.1, 6.2, 9.3 orders.
 /// let mut amps = [0.01f32; 1024];
@@ -740,7 +740,7 @@ impl DefectSearch {
     /// Measures one watched line at `order` (see [`LineMeasurement`]).
     ///
     /// ```
-    /// use dsp_core::defects::{DefectSearch, DefectSearchConfig};
+    /// use dsp_core::diagnosis::defects::{DefectSearch, DefectSearchConfig};
     /// use dsp_core::spectrum::{SpectrumView, Window};
     /// let mut amps = [0.01f32; 1024];
     /// amps[320] = 0.5; // a line at order 5.0 with 64 bins per order

@@ -11,7 +11,7 @@
 //! the same block length.
 //!
 //! ```
-//! use dsp_core::band_choice::{min_bandwidth_hz, new_survey};
+//! use dsp_core::survey::band_choice::{min_bandwidth_hz, new_survey};
 //! use dsp_core::config::PointConfig;
 //! // The default point watches no bearing: any band width is allowed.
 //! let point = PointConfig::default();
@@ -20,7 +20,7 @@
 //! ```
 
 use crate::config::{PointConfig, SpeedInput};
-use crate::kinematics::ShaftRatio;
+use crate::diagnosis::kinematics::ShaftRatio;
 use crate::survey::{BandSurvey, SurveyConfig, SurveyError};
 
 /// Narrowest band the survey may choose for `point`: wide enough to pass

@@ -266,7 +266,7 @@ pub enum PushOutcome {
 }
 
 /// A borrowed amplitude spectrum with its order axis, as consumed by
-/// [`crate::defects`].
+/// [`crate::diagnosis::defects`].
 #[derive(Debug, Clone, Copy)]
 pub struct SpectrumView<'a> {
     amplitudes: &'a [f32],
@@ -570,7 +570,7 @@ mod tests {
         extern crate std;
         std::println!(
             "OrderSpectrum4096 {sz} B, BearingDiagnosis {} B",
-            core::mem::size_of::<crate::defects::BearingDiagnosis>()
+            core::mem::size_of::<crate::diagnosis::defects::BearingDiagnosis>()
         );
         assert!((24 * 1024..=24 * 1024 + 64).contains(&sz), "{sz}");
     }

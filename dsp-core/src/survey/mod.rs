@@ -26,7 +26,7 @@
 //! stack scratch ([`SURVEY_BLOCK`] samples in and out) while a block is
 //! filtered. A 51.2 kS/s bank has 46 bands (21 octave, 25 1/3-octave), a
 //! 12 kS/s one 20. Per input sample and band: 2 band-pass sections (7 flops
-//! each in the fused path of [`crate::biquad`]), square, fourth power and
+//! each in the fused path of [`crate::frontend::biquad`]), square, fourth power and
 //! two sums (4 flops), copy and loads: about 25-30 Cortex-M4F instructions,
 //! so about 1200-1400 per sample for 46 bands (about 65 MHz at 51.2 kS/s),
 //! 500-600 for 20 bands at 12 kS/s. A survey is therefore a one-off
@@ -36,8 +36,10 @@
 
 use core::fmt;
 
-use crate::biquad::BiquadCascade;
-use crate::design::butter_bandpass;
+pub mod band_choice;
+
+use crate::frontend::biquad::BiquadCascade;
+use crate::frontend::design::butter_bandpass;
 use crate::num::f64_to_f32;
 
 /// Most bands in the bank.

@@ -32,7 +32,7 @@ use core::fmt;
 use heapless::Vec;
 
 use crate::config::{Bearing, PointConfig, MAX_BEARINGS};
-use crate::kinematics::{BearingOrders, DefectKind, ShaftRatio};
+use crate::diagnosis::kinematics::{BearingOrders, DefectKind, ShaftRatio};
 
 /// Most passes (speed classes) one point may need: a three-stage gearbox
 /// with the tach on the input shaft has four shaft speeds, of which the
@@ -199,7 +199,7 @@ fn pass_revolutions(segments: u32, revs0: u16, s: u16, n: usize) -> Option<u16> 
 ///
 /// ```
 /// use dsp_core::config::{name_from, Bearing, BearingKinematics, PointConfig, Shaft};
-/// use dsp_core::coverage::plan;
+/// use dsp_core::diagnosis::coverage::plan;
 /// let mut p = PointConfig::default(); // 64 samples/rev, 256 revolutions
 /// p.shafts.push(Shaft { name: name_from("output"), ratio: 1.0 / 13.12 }).unwrap();
 /// let k = BearingKinematics::Multiples { bpfo_x: 3.58, bpfi_x: 5.42, ftf_x: 0.40, bsf_x: 2.36 };

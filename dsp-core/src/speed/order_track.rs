@@ -21,46 +21,15 @@
 
 use core::fmt;
 
-use crate::tach::RevMark;
+use crate::speed::tach::RevMark;
 
 /// Longest queue of revolutions waiting for their samples.
 const JOB_CAP: usize = 8;
 
-/// Picks a decimation factor for order tracking.
-///
-/// The decimated rate `fs / D` must keep `max_order` at `max_rpm` below
-/// 0.4 · `fs / D` (room for the decimator's transition band) and give at
-/// least 1.25 · `samples_per_rev` samples per revolution at `max_rpm`, so the
-/// resampler never has to invent detail (its Nyquist, 0.625·S orders, stays
-/// above the output's S/2). The result is the largest `D` meeting both,
-/// clamped to `1..=1024`; invalid inputs give 1.
-///
-/// ```
-/// use dsp_core::order_track::decimation_for;
-/// // 51.2 kHz, up to 60 rpm, orders up to 20, 256 samples per revolution.
-/// assert_eq!(decimation_for(51_200.0, 60.0, 20.0, 256), 160);
-/// ```
-pub fn decimation_for(
-    sample_rate_hz: f32,
-    max_rpm: f32,
-    max_order: f32,
-    samples_per_rev: u16,
-) -> u16 {
-    let ok = |x: f32| x.is_finite() && x > 0.0;
-    if !(ok(sample_rate_hz) && ok(max_rpm) && ok(max_order)) || samples_per_rev == 0 {
-        return 1;
-    }
-    let f_rev = max_rpm / 60.0;
-    let by_alias = 0.4 * sample_rate_hz / (max_order * f_rev);
-    let by_density = sample_rate_hz / (1.25 * f32::from(samples_per_rev) * f_rev);
-    let d = libm::floorf(by_alias.min(by_density)).clamp(1.0, 1024.0);
-    u16::try_from(crate::num::f32_to_u32_sat(d)).unwrap_or(1024)
-}
-
 /// Ring length (decimated samples) the tracker needs for speeds down to
 /// `min_rpm`: four revolutions and the kernel support. Emission of revolution
 /// k waits for mark k+2; at a segment start the tach tracker holds three
-/// intervals before its first mark (see [`crate::tach`]), so the first
+/// intervals before its first mark (see [`crate::speed::tach`]), so the first
 /// revolution's samples must survive about four revolutions.
 pub fn ring_needed(decimated_rate_hz: f32, min_rpm: f32) -> usize {
     let rev = decimated_rate_hz * 60.0 / min_rpm;
@@ -194,8 +163,8 @@ struct RevJob {
 /// Streaming angle-domain resampler with a ring of `RING` decimated samples.
 ///
 /// ```
-/// use dsp_core::order_track::{OrderTrackConfig, OrderTracker};
-/// use dsp_core::tach::RevMark;
+/// use dsp_core::speed::order_track::{OrderTrackConfig, OrderTracker};
+/// use dsp_core::speed::tach::RevMark;
 /// let mut cfg = OrderTrackConfig::default();
 /// cfg.samples_per_rev = 16;
 /// cfg.decimation = 1;
@@ -356,7 +325,7 @@ impl<const RING: usize> OrderTracker<RING> {
         self.drain(false, &mut out);
     }
 
-    /// Pushes one revolution mark (from [`crate::tach::TachTracker`]).
+    /// Pushes one revolution mark (from [`crate::speed::tach::TachTracker`]).
     pub fn push_mark(&mut self, m: RevMark, mut out: impl FnMut(f32)) {
         let t = m.time_samples;
         let last = self
@@ -568,7 +537,7 @@ mod tests {
         let mut t = OrderTracker::<2048>::new(&cfg).unwrap();
         for j in 0..3000u32 {
             if j % 256 == 0 {
-                let mark = crate::tach::RevMark {
+                let mark = crate::speed::tach::RevMark {
                     time_samples: f64::from(j) * 8.0,
                     index: j / 256,
                     segment_start: j == 0,

@@ -12,10 +12,10 @@
 //! x/tan(x) - 1 with x = pi f / fs (-0.18 % at 100 Hz for 4 kHz).
 //! Samples during the settling time are not counted in the RMS.
 
-use crate::biquad::BiquadCascade;
-use crate::decimate::{stage_factors, DecimateError, Decimator, DecimatorPlan, BLOCK};
-use crate::design::{butter_bandpass, DesignError, SosCascade};
-use crate::overall::FLUSH_EVERY;
+use super::FLUSH_EVERY;
+use crate::frontend::biquad::BiquadCascade;
+use crate::frontend::decimate::{stage_factors, DecimateError, Decimator, DecimatorPlan, BLOCK};
+use crate::frontend::design::{butter_bandpass, DesignError, SosCascade};
 
 /// Standard gravity in mm/s^2 per g (CGPM 1901 conventional value 9.80665 m/s^2).
 pub const G_MM_S2: f32 = 9806.65;
@@ -79,7 +79,7 @@ pub fn zone_limits(group: MachineGroup, support: Support) -> [f32; 3] {
 /// NaN gives zone D (fail safe).
 ///
 /// ```
-/// use dsp_core::velocity::{zone, MachineGroup, Support, Zone};
+/// use dsp_core::overall::velocity::{zone, MachineGroup, Support, Zone};
 /// assert_eq!(zone(3.0, MachineGroup::Medium, Support::Rigid), Zone::C);
 /// ```
 pub fn zone(v_rms_mm_s: f32, group: MachineGroup, support: Support) -> Zone {
