@@ -70,6 +70,7 @@ const SATURATED_SHARE: f32 = 0.01;
 /// Why [`Pipeline::new`] refused a measuring point.
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum PipelineError {
     /// The point itself is invalid.
     Config(ConfigError),

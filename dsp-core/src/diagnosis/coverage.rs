@@ -62,6 +62,7 @@ pub struct Pass {
 /// Why a watched line cannot be searched in any pass of a point.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum NotSearched {
     /// The line lies above the highest order any allowed pass reaches:
     /// `samples_per_rev` at least `needed` would.
@@ -119,7 +120,7 @@ pub struct Coverage {
 }
 
 /// Highest order the pass at `s` searches (`S / 4`).
-pub fn search_limit(s: u16) -> f32 {
+pub(crate) fn search_limit(s: u16) -> f32 {
     0.25 * f32::from(s)
 }
 
@@ -135,7 +136,7 @@ fn top_line(o: &BearingOrders, slip: f32, s: u16, n: usize, lobe_bins: f32) -> f
 }
 
 /// Whether the pass at `s` serves a bearing with orders `o`.
-pub fn serves(o: &BearingOrders, slip: f32, s: u16, n: usize, lobe_bins: f32) -> bool {
+pub(crate) fn serves(o: &BearingOrders, slip: f32, s: u16, n: usize, lobe_bins: f32) -> bool {
     let bins_per_shaft_order = o.shaft_order() * crate::num::usize_to_f32(n) / f32::from(s);
     bins_per_shaft_order >= MIN_BINS_PER_SHAFT_ORDER
         && top_line(o, slip, s, n, lobe_bins) <= search_limit(s)

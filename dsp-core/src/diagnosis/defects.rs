@@ -167,6 +167,7 @@ impl Default for DefectSearchConfig {
 /// Error of [`DefectSearch::new`].
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum DefectConfigError {
     /// `harmonics` not in 1..=10.
     Harmonics,
@@ -199,6 +200,7 @@ impl core::error::Error for DefectConfigError {}
 /// Error of [`DefectSearch::search`].
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum SearchError {
     /// A line, shaft or cage order is not finite and positive.
     InvalidOrders,

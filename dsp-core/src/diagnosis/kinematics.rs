@@ -89,6 +89,7 @@ impl fmt::Display for DefectKind {
 /// Error of [`BearingGeometry::multiples`] and [`DefectMultiples::new`].
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum GeometryError {
     /// A value is NaN or infinite.
     NonFinite,
@@ -254,6 +255,7 @@ pub struct ShaftRatio(f32);
 /// Error of shaft and gear definitions.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum DrivetrainError {
     /// Ratio not finite and positive.
     InvalidRatio,

@@ -90,6 +90,7 @@ pub const HB_R8: [f32; 2] = [-3.366726971e-02, 2.835545008e-01];
 /// Why a decimator could not be built.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum DecimateError {
     /// Factor 0 or above [`MAX_FACTOR`].
     FactorRange,
@@ -249,7 +250,7 @@ fn chain_delay<'a>(stages: impl Iterator<Item = &'a Stage>) -> f32 {
 }
 
 /// Splits `factor` into stage factors (largest first). Returns the count.
-pub fn stage_factors(factor: u16) -> Result<([u16; MAX_STAGES], usize), DecimateError> {
+pub(crate) fn stage_factors(factor: u16) -> Result<([u16; MAX_STAGES], usize), DecimateError> {
     if factor == 0 || factor > MAX_FACTOR {
         return Err(DecimateError::FactorRange);
     }
@@ -293,7 +294,7 @@ pub fn stage_factors(factor: u16) -> Result<([u16; MAX_STAGES], usize), Decimate
 
 /// Kaiser's window length and beta for attenuation `a_db` and transition
 /// `width` (fraction of Nyquist), as `scipy.signal.kaiserord`.
-pub fn kaiser_order(a_db: f64, width: f64) -> (usize, f64) {
+pub(crate) fn kaiser_order(a_db: f64, width: f64) -> (usize, f64) {
     let beta = if a_db > 50.0 {
         0.1102 * (a_db - 8.7)
     } else if a_db > 21.0 {
@@ -362,7 +363,7 @@ fn to_f64(x: usize) -> f64 {
 /// Nyquist, normalised to unit DC gain (as `scipy.signal.firwin`). Writes
 /// `out.len()` taps in natural order. Each tap is evaluated twice (for the
 /// sum, then scaled) so that no f64 buffer is needed on the stack.
-pub fn kaiser_lowpass(out: &mut [f32], cutoff: f64, beta: f64) {
+pub(crate) fn kaiser_lowpass(out: &mut [f32], cutoff: f64, beta: f64) {
     let n = out.len();
     let mid = to_f64(n.saturating_sub(1)) * 0.5;
     let i0b = bessel_i0(beta);

@@ -34,6 +34,7 @@ pub struct SosCascade {
 /// Why a filter design was refused.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum DesignError {
     /// A band edge or the sample rate is NaN or infinite.
     NonFinite,
@@ -91,7 +92,7 @@ impl SosCascade {
     }
 
     /// Mutable sections (used to fold a gain or integrator into one section).
-    pub fn sections_mut(&mut self) -> &mut [Sos] {
+    pub(crate) fn sections_mut(&mut self) -> &mut [Sos] {
         self.sections.get_mut(..self.len).unwrap_or(&mut [])
     }
 
@@ -217,7 +218,7 @@ pub fn bandpass_centre_hz(lo_hz: f32, hi_hz: f32, fs_hz: f32) -> f32 {
 }
 
 /// Validates band edges for a band-pass at `fs_hz`.
-pub fn check_band(lo_hz: f32, hi_hz: f32, fs_hz: f32) -> Result<(), DesignError> {
+pub(crate) fn check_band(lo_hz: f32, hi_hz: f32, fs_hz: f32) -> Result<(), DesignError> {
     if !(lo_hz.is_finite() && hi_hz.is_finite() && fs_hz.is_finite()) {
         return Err(DesignError::NonFinite);
     }

@@ -86,6 +86,7 @@ impl Default for FrontEndConfig {
 /// Why a front end could not be built.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum FrontEndError {
     /// Sample rate not finite or not positive.
     SampleRate,

@@ -91,7 +91,7 @@ impl OverallAcc {
 
     /// Counts one clipped sample.
     #[inline]
-    pub fn add_clipped(&mut self) {
+    pub(crate) fn add_clipped(&mut self) {
         self.clipped = self.clipped.saturating_add(1);
     }
 

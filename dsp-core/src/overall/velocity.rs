@@ -127,6 +127,7 @@ impl Default for VelocityConfig {
 /// Why the velocity path could not be built.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum VelocityError {
     /// Band-pass design refused the band at the decimated rate.
     Design(DesignError),

@@ -44,6 +44,7 @@ use crate::num::{sqrtf_fast, usize_to_f32};
 /// Spectral window.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum Window {
     /// Periodic Hann: good frequency resolution, 1.42 dB worst scalloping.
     #[default]
@@ -72,7 +73,7 @@ impl Window {
     }
 
     /// Half-width of the main lobe in bins (Hann 2, flat-top 5).
-    pub fn main_lobe_half_width_bins(self) -> f32 {
+    pub(crate) fn main_lobe_half_width_bins(self) -> f32 {
         match self {
             Window::Hann => 2.0,
             Window::FlatTop => 5.0,
@@ -102,7 +103,7 @@ impl Window {
     /// relative to the on-bin gain (1.0 at 0). Used to correct interpolated
     /// peak amplitudes. Hann: `sinc(δ)/(1-δ²)` (Harris 1978). Flat-top: 1
     /// (its scalloping is below 0.01 dB).
-    pub fn kernel_gain(self, delta: f32) -> f32 {
+    pub(crate) fn kernel_gain(self, delta: f32) -> f32 {
         match self {
             Window::Hann => {
                 let d = delta.abs();
@@ -123,6 +124,7 @@ impl Window {
 /// How segments are combined.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum Averaging {
     /// Power average of all segments since the last reset.
     #[default]
@@ -200,6 +202,7 @@ impl SpectrumConfig {
 /// Error of [`OrderSpectrum::new`], [`real_fft`] and [`SpectrumView::new`].
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum SpectrumError {
     /// Samples per revolution not in `2..=N`.
     SamplesPerRev,

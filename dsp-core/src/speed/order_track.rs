@@ -39,6 +39,7 @@ pub fn ring_needed(decimated_rate_hz: f32, min_rpm: f32) -> usize {
 /// Interpolation between decimated envelope samples.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum Interpolation {
     /// 4-tap Catmull-Rom cubic (the default).
     #[default]
@@ -82,6 +83,7 @@ impl Default for OrderTrackConfig {
 /// Why an [`OrderTrackConfig`] was rejected.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum OrderTrackError {
     /// `samples_per_rev` is not a power of two in 8..=4096.
     BadSamplesPerRev,

@@ -6,6 +6,7 @@ use core::fmt;
 /// Why an [`EdgeDetector`] was rejected.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum EdgeDetectorError {
     /// Thresholds must be finite with `low < high`.
     BadThresholds,

@@ -174,6 +174,7 @@ pub enum SpeedSource {
 /// Why a [`SpeedSource`] was rejected.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum TachConfigError {
     /// `tick_hz` is zero.
     ZeroTickRate,

@@ -3,9 +3,11 @@
 //! same front end fed the whole record in one call.
 #![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing)]
 
+mod common;
+
+use common::frontend::read_f32_le;
 use dsp_core::frontend::rectify::Rectifier;
 use dsp_core::frontend::{FrontEnd, FrontEndConfig};
-use envord_tests::frontend::read_f32_le;
 use proptest::prelude::*;
 
 fn config(abs: bool, decimation: u16) -> FrontEndConfig {

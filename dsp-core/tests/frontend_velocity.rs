@@ -2,12 +2,14 @@
 //! (textbook kinematics), and the ISO 20816-3 zone chain.
 #![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing)]
 
+mod common;
+
 use dsp_core::frontend::{FrontEnd, FrontEndConfig};
 use dsp_core::overall::velocity::{MachineGroup, Support, Zone};
 
 /// Standard gravity 9.80665 m/s^2 (CGPM 1901 conventional value), in mm/s^2.
 const STANDARD_GRAVITY_MM_S2: f64 = 9806.65;
-use envord_tests::frontend::sine;
+use common::frontend::sine;
 
 fn velocity_rms(
     fs: f32,

@@ -3,8 +3,10 @@
 //! sosfreqz and group_delay).
 #![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing)]
 
+mod common;
+
+use common::frontend::data_path;
 use dsp_core::frontend::design::{bandpass_centre_hz, butter_bandpass};
-use envord_tests::frontend::data_path;
 use serde::Deserialize;
 
 #[derive(Deserialize)]

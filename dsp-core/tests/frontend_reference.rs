@@ -1,5 +1,5 @@
 //! Whole front end vs a scipy reference on a committed excerpt of a real
-//! recording (CWRU record 106, drive end, 12 kHz; see tests/data/frontend/README.md).
+//! recording (CWRU record 106, drive end, 12 kHz; see dsp-core/tests/data/frontend/README.md).
 //! Reference (tests/reference/frontend_golden.py): scipy.signal.butter + sosfilt in
 //! f64, square or abs, then per decimator stage lfilter(h, 1, x)[M-1::M] with taps
 //! re-derived by scipy (odd stages kaiserord + firwin, half-bands remez via
@@ -7,9 +7,11 @@
 //! scipy.stats.kurtosis(fisher=False).
 #![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing)]
 
+mod common;
+
+use common::frontend::{data_path, read_f32_le};
 use dsp_core::frontend::rectify::Rectifier;
 use dsp_core::frontend::{FrontEnd, FrontEndConfig};
-use envord_tests::frontend::{data_path, read_f32_le};
 use serde::Deserialize;
 
 #[derive(Deserialize)]

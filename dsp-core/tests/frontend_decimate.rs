@@ -4,8 +4,10 @@
 //! DFT amplitude of the output (integer cycles), computed in f64 here.
 #![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing)]
 
+mod common;
+
+use common::frontend::{sine, tone_amplitude};
 use dsp_core::frontend::decimate::Decimator;
-use envord_tests::frontend::{sine, tone_amplitude};
 
 const N_OUT: usize = 400;
 const SETTLE_OUT: usize = 48;
