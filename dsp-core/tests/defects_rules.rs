@@ -8,7 +8,8 @@
     clippy::indexing_slicing,
     clippy::cast_possible_truncation,
     clippy::cast_precision_loss,
-    clippy::cast_sign_loss
+    clippy::cast_sign_loss,
+    clippy::panic
 )]
 
 use dsp_core::diagnosis::defects::{DefectSearch, DefectSearchConfig, SearchError};

@@ -9,7 +9,8 @@
     clippy::expect_used,
     clippy::indexing_slicing,
     clippy::cast_possible_truncation,
-    clippy::cast_precision_loss
+    clippy::cast_precision_loss,
+    clippy::panic
 )]
 
 use dsp_core::diagnosis::defects::{BearingDiagnosis, DefectSearch, DefectSearchConfig};

@@ -2,7 +2,13 @@
 //! Requirement (project spec, common practice for anti-alias filters): anything
 //! that folds into [0, 0.4 fs_out] attenuated by >= 60 dB. Reference: single-bin
 //! DFT amplitude of the output (integer cycles), computed in f64 here.
-#![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing)]
+#![allow(
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::indexing_slicing,
+    clippy::panic,
+    clippy::cast_possible_truncation
+)]
 
 mod common;
 

@@ -1,7 +1,13 @@
 //! Band-pass design vs scipy goldens (tests/reference/frontend_golden.py:
 //! scipy.signal.butter(N, [lo, hi], btype='bandpass', fs=fs, output='sos'),
 //! sosfreqz and group_delay).
-#![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing)]
+#![allow(
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::indexing_slicing,
+    clippy::panic,
+    clippy::cast_possible_truncation
+)]
 
 mod common;
 

@@ -5,7 +5,13 @@
 //! re-derived by scipy (odd stages kaiserord + firwin, half-bands remez via
 //! tests/reference/halfband_tables.py); overall indicators by numpy and
 //! scipy.stats.kurtosis(fisher=False).
-#![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing)]
+#![allow(
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::indexing_slicing,
+    clippy::panic,
+    clippy::cast_possible_truncation
+)]
 
 mod common;
 

@@ -1,7 +1,13 @@
 //! Streaming is bit-identical however the input is split into blocks
 //! (property test with random splits, including empty blocks). Reference: the
 //! same front end fed the whole record in one call.
-#![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing)]
+#![allow(
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::indexing_slicing,
+    clippy::panic,
+    clippy::cast_possible_truncation
+)]
 
 mod common;
 

@@ -1,6 +1,12 @@
 //! Velocity RMS vs the analytic integral of a sine: v = a / (2 pi f)
 //! (textbook kinematics), and the ISO 20816-3 zone chain.
-#![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing)]
+#![allow(
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::indexing_slicing,
+    clippy::panic,
+    clippy::cast_possible_truncation
+)]
 
 mod common;
 

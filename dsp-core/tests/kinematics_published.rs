@@ -1,6 +1,12 @@
 //! Bearing kinematics against published defect multiples and the identities
 //! that follow from the classical formulas.
-#![allow(clippy::unwrap_used, clippy::expect_used, clippy::indexing_slicing)]
+#![allow(
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::indexing_slicing,
+    clippy::panic,
+    clippy::cast_possible_truncation
+)]
 
 use dsp_core::diagnosis::kinematics::{
     BearingGeometry, DefectKind, DefectMultiples, Drivetrain, GeometryError, ShaftId, ShaftRatio,

@@ -9,7 +9,9 @@
     clippy::unwrap_used,
     clippy::indexing_slicing,
     clippy::cast_possible_truncation,
-    clippy::too_many_arguments
+    clippy::too_many_arguments,
+    clippy::expect_used,
+    clippy::panic
 )]
 
 use dsp_core::decimation_for;

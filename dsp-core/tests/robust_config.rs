@@ -6,7 +6,13 @@
 //! points. Rules: 0 < roller < pitch diameter is bearing geometry (Harris,
 //! Rolling Bearing Analysis, ch. 2, from memory); band below Nyquist is the
 //! sampling theorem.
-#![allow(clippy::unwrap_used, clippy::indexing_slicing)]
+#![allow(
+    clippy::unwrap_used,
+    clippy::indexing_slicing,
+    clippy::expect_used,
+    clippy::panic,
+    clippy::cast_possible_truncation
+)]
 
 use dsp_core::config::{
     name_from, Bearing, BearingKinematics, ConfigError, PointConfig, Shaft, SpeedInput,

@@ -5,7 +5,9 @@
 #![allow(
     clippy::unwrap_used,
     clippy::indexing_slicing,
-    clippy::cast_possible_truncation
+    clippy::cast_possible_truncation,
+    clippy::expect_used,
+    clippy::panic
 )]
 
 use dsp_core::speed::tach::{

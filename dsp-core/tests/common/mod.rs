@@ -1,5 +1,12 @@
 //! Shared helpers of dsp-core's integration tests (`mod common;` in each).
-#![allow(dead_code)] // each test binary uses some of them
+#![allow(
+    dead_code,
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::panic,
+    clippy::indexing_slicing,
+    clippy::cast_possible_truncation
+)] // each test binary uses some of them
 
 /// Helpers of the front-end tests (dsp-core envelope front end).
 pub mod frontend {
