@@ -164,7 +164,7 @@ impl<const N: usize, const H: usize, const RING: usize> MeasurementCore
         } else if self.started {
             self.pipeline.push_i16(samples);
             // A pass done and another to come: keep its report, go on with
-            // the next pass on the next block (dsp_core::coverage).
+            // the next pass on the next block (dsp_core::diagnosis::coverage).
             if self.pipeline.complete() && self.pipeline.pass() + 1 < self.pipeline.pass_count() {
                 self.end_pass();
                 let _ = self.pipeline.next_pass();

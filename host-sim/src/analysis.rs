@@ -5,11 +5,11 @@
 //! acquisition stopped once the configured revolutions are in.
 
 use dsp_core::config::{PointConfig, SpeedInput};
-use dsp_core::order_track::OrderTrackError;
 use dsp_core::pipeline::{NodePipeline, PipelineError, ADC_BLOCK};
 use dsp_core::report::Report;
+use dsp_core::speed::order_track::OrderTrackError;
+use dsp_core::speed::tach::EdgeDetector;
 use dsp_core::survey::{SurveyError, SurveyResult};
-use dsp_core::tach::EdgeDetector;
 
 use crate::error::CliError;
 
@@ -98,7 +98,7 @@ pub fn edges_from_channel(tach: &[f32], sample_rate_hz: f32) -> Result<Vec<f64>,
 }
 
 /// Chooses the envelope band when `point` has none: the band survey with
-/// the node's commissioning rule ([`dsp_core::band_choice`]) over the whole
+/// the node's commissioning rule ([`dsp_core::survey::band_choice`]) over the whole
 /// record, in ADC-sized blocks, ADC counts through `push_i16` as on the
 /// node, so the node and the host choose the same band bit for bit from the
 /// same samples. Sets `point.band_hz` and the recording's sample rate and
@@ -111,7 +111,7 @@ pub fn choose_band(
         return Ok(None);
     }
     point.sample_rate_hz = rec.sample_rate_hz;
-    let mut s = dsp_core::band_choice::new_survey(point)?;
+    let mut s = dsp_core::survey::band_choice::new_survey(point)?;
     match &rec.accel {
         Accel::Counts(v) => v.chunks(ADC_BLOCK).for_each(|b| s.push_i16(b)),
         Accel::G(v) => v.chunks(ADC_BLOCK).for_each(|b| s.push_f32(b)),
@@ -331,7 +331,7 @@ mod tests {
         let r = choose_band(&mut p, &rec).unwrap().unwrap();
         assert_eq!(p.band_hz, Some(r.band_hz));
         assert_eq!(p.sample_rate_hz, 25_600.0);
-        let mut node = dsp_core::band_choice::new_survey(&p).unwrap();
+        let mut node = dsp_core::survey::band_choice::new_survey(&p).unwrap();
         for b in x.chunks(ADC_BLOCK) {
             node.push_i16(b);
         }

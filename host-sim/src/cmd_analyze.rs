@@ -254,8 +254,8 @@ pub fn coincidences(point: &PointConfig) -> (Vec<String>, serde_json::Value) {
             .get(usize::from(i))
             .map_or_else(|| format!("#{i}"), |b| b.name.to_string())
     };
-    let kind = |k: dsp_core::kinematics::DefectKind| match k {
-        dsp_core::kinematics::DefectKind::Bsf => "2xBSF",
+    let kind = |k: dsp_core::diagnosis::kinematics::DefectKind| match k {
+        dsp_core::diagnosis::kinematics::DefectKind::Bsf => "2xBSF",
         other => other.name(),
     };
     let list = point.line_coincidences();

@@ -22,7 +22,7 @@
 
 use std::path::{Path, PathBuf};
 
-use dsp_core::kinematics::DefectKind;
+use dsp_core::DefectKind;
 use host_sim::validate::{validate_dir, BandRule, RecordResult};
 
 struct Excerpt {

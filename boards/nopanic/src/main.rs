@@ -30,7 +30,7 @@ use wire::frame::{
 };
 use dsp_core::pipeline::{NodePipeline, Pipeline, ADC_BLOCK};
 use dsp_core::report::QualityFlags;
-use dsp_core::tach::{EdgeDetector, SpeedSource, TachConfig, TachTracker};
+use dsp_core::speed::tach::{EdgeDetector, SpeedSource, TachConfig, TachTracker};
 
 // Declared, never defined: referencing it is what makes the link fail.
 unsafe extern "C" {

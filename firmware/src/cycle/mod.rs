@@ -286,11 +286,11 @@ impl<B: Board, C: MeasurementCore> Node<B, C> {
 
     /// Blocks the present configuration records per cycle.
     pub fn blocks_wanted(&self) -> u32 {
-        // Every pass of the point (dsp_core::coverage) at the node's
+        // Every pass of the point (dsp_core::diagnosis::coverage) at the node's
         // 4096-point spectrum, one after the other.
         let mut rec = self.config.clone();
         if let Ok(p) = crate::point::point_config(&self.config) {
-            let total: u32 = dsp_core::coverage::plan(&p, 4096)
+            let total: u32 = dsp_core::diagnosis::coverage::plan(&p, 4096)
                 .passes
                 .iter()
                 .map(|p| u32::from(p.revolutions))
