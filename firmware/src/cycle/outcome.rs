@@ -8,8 +8,8 @@ use crate::downlink_auth::AuthError;
 use crate::exception::Choice;
 use crate::hal::WakeReason;
 use crate::quality::QualityFlags;
-use dsp_core::frame::status::{DownlinkResult, SurveyStatus};
 use dsp_core::survey::SurveyError;
+use wire::frame::status::{DownlinkResult, SurveyStatus};
 
 /// Where the configuration in use came from at boot.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]

@@ -7,10 +7,8 @@ use crate::exception::Choice;
 use crate::hal::{Board, MeasurementCore};
 use crate::log::log_info;
 use crate::quality::QualityFlags;
-use dsp_core::frame::status::{
-    encode_status, BandSource as FrameBandSource, BootConfig, StatusReport,
-};
-use dsp_core::frame::QualityFlags as FrameFlags;
+use wire::frame::status::{encode_status, BandSource as FrameBandSource, BootConfig, StatusReport};
+use wire::frame::QualityFlags as FrameFlags;
 
 /// Firmware flags as the frame's flag field.
 pub fn frame_flags(f: QualityFlags) -> FrameFlags {
@@ -87,7 +85,7 @@ impl<B: Board, C: MeasurementCore> Node<B, C> {
         let Some(report) = self
             .frame
             .get(..n)
-            .and_then(|b| dsp_core::frame::decode(b).ok())
+            .and_then(|b| wire::frame::decode(b).ok())
         else {
             return n;
         };
@@ -95,7 +93,7 @@ impl<B: Board, C: MeasurementCore> Node<B, C> {
         let mut len = n;
         if choice == Choice::Reduced {
             let mut buf = [0u8; FRAME_CAPACITY];
-            match dsp_core::frame::encode_reduced(&report, &mut buf) {
+            match wire::frame::encode_reduced(&report, &mut buf) {
                 Ok(m) => {
                     self.frame = buf;
                     len = m;
