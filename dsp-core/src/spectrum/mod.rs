@@ -476,7 +476,9 @@ impl<const N: usize, const H: usize> OrderSpectrum<N, H> {
     /// Adds one angle-domain envelope sample; transforms and accumulates when
     /// the segment is full.
     pub fn push(&mut self, x: f32) -> PushOutcome {
-        self.flush();
+        if self.pending != Pending::None {
+            self.flush();
+        }
         if self.store(x) {
             self.transform_and_accumulate()
         } else {
