@@ -33,7 +33,7 @@
 //! (`dsp_core::spectrum::OrderSpectrum::step`), so the costliest block is
 //! the one that runs the transform: 0.28 M instructions for
 //! `NodePipeline::push_i16` in `boards/qemu-bench` (0.86 of a 5 ms block at
-//! 51.2 kS/s and 64 MHz, one cycle per instruction), about 0.38 M in the
+//! 51.2 kS/s and 64 MHz, one cycle per instruction), an estimated 0.38 M in the
 //! size-optimised board image with its read of the block; mean blocks about
 //! 0.085 M there. Before the spreading it was 0.64 M in the board image, the
 //! whole transform and average inside the block that completed the segment,
