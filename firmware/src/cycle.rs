@@ -50,8 +50,12 @@ use dsp_core::survey::SurveyError;
 use embedded_hal::delay::DelayNs;
 use embedded_hal::digital::OutputPin;
 
-/// Capacity of the uplink frame buffer (frames are at most 51 bytes).
-pub const FRAME_CAPACITY: usize = 64;
+/// Capacity of the uplink frame buffer: the longest v2 report frame (8
+/// bearings, 4 meshes: 181 bytes; status frames are 27).
+pub const FRAME_CAPACITY: usize = dsp_core::frame::v2::full_frame_len_v2(
+    dsp_core::frame::layout::MAX_BEARINGS,
+    dsp_core::frame::layout::MAX_MESHES,
+);
 /// Largest downlink accepted (authentication header and tag, command byte,
 /// largest record).
 pub const DOWNLINK_CAPACITY: usize = crate::downlink_auth::HEADER_LEN

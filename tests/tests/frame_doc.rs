@@ -16,6 +16,7 @@ fn example() -> FrameReport {
         amplitude_1x_g: a,
         harmonics: h,
         detected: det,
+        line: None,
     };
     let mut r = FrameReport {
         node_id: 0x0A17,
