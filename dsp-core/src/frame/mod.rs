@@ -654,6 +654,35 @@ pub fn encode_reduced_report(r: &ReducedReport, out: &mut [u8]) -> Result<usize,
     Ok(REDUCED_LEN)
 }
 
+/// The length of the frame starting at `bytes[0]` as its header implies
+/// (version/type nibble and count bytes), `None` when the prefix is too
+/// short or not a frame start; for splitting concatenated frames. No CRC
+/// check: [`decode_any`] does that.
+///
+/// ```
+/// use dsp_core::frame::frame_len;
+/// assert_eq!(frame_len(&[0x12]), Some(27));
+/// assert_eq!(frame_len(&[0x20, 0, 0, 0, 0, 0, 0, 0x04, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0x01]), Some(97));
+/// ```
+pub fn frame_len(bytes: &[u8]) -> Option<usize> {
+    let b0 = *bytes.first()?;
+    match (b0 >> 4, b0 & 0x0F) {
+        (FORMAT_VERSION, TYPE_FULL) => bytes
+            .get(OFF_COUNT_ZONE)
+            .map(|c| usize::from(c & 0x07))
+            .filter(|&n| n <= V1_MAX_BEARINGS)
+            .map(full_frame_len),
+        (FORMAT_VERSION_2, TYPE_FULL) => {
+            let nb = usize::from(bytes.get(OFF_COUNT_ZONE)? & 0x0F);
+            let nm = usize::from(bytes.get(v2::OFF_MESH_COUNT)? & 0x07);
+            (nb <= MAX_BEARINGS && nm <= MAX_MESHES).then(|| v2::full_frame_len_v2(nb, nm))
+        }
+        (FORMAT_VERSION | FORMAT_VERSION_2, TYPE_REDUCED) => Some(REDUCED_LEN),
+        (FORMAT_VERSION, TYPE_STATUS) => Some(STATUS_LEN),
+        _ => None,
+    }
+}
+
 /// Checks version/type nibble, exact length and CRC; returns the frame type.
 fn check_envelope(bytes: &[u8]) -> Result<u8, DecodeError> {
     let b0 = *bytes.first().ok_or(DecodeError::Truncated {
