@@ -79,7 +79,7 @@ fn v2_frames_fill_the_v3_columns_v1_frames_leave_them_null() {
     let v2 = rows(0x0A17);
     assert_eq!(v2.len(), 8);
     let bpfo = &v2[0];
-    assert_eq!((bpfo.0, bpfo.1.as_str(), bpfo.2), (0, "bpfo", 1));
+    assert_eq!((bpfo.0, bpfo.1.as_str(), bpfo.2), (0, "BPFO", 1));
     let a = bpfo.3.unwrap();
     assert!((20.0 * (a / 0.0412).log10()).abs() <= 0.25, "{a}");
     assert_eq!(
@@ -93,7 +93,7 @@ fn v2_frames_fill_the_v3_columns_v1_frames_leave_them_null() {
     );
     // BSF of bearing 0 and every line of bearing 1: not searched, never a
     // healthy zero.
-    assert_eq!((v2[3].0, v2[3].1.as_str()), (0, "bsf"));
+    assert_eq!((v2[3].0, v2[3].1.as_str()), (0, "BSF"));
     for r in &v2[3..] {
         assert_eq!(
             (r.2, r.3, r.4, r.6, r.7),

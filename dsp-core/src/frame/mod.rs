@@ -934,10 +934,15 @@ pub fn decode_any(bytes: &[u8]) -> Result<Frame, DecodeError> {
     }
 }
 
+/// A buffer size that holds the JSON form of any report ([`to_json`]): a
+/// v2 report of 8 bearings and 4 meshes with long float texts everywhere
+/// takes less (test `json_of_largest_v2_report_fits`).
+pub const JSON_MAX_LEN: usize = 12 * 1024;
+
 /// Writes the JSON form of `r` into `out` (serde-json-core; NaN becomes
-/// `null`), returning the number of bytes written. A 4-bearing report with
-/// long float texts takes 1766 bytes (test `json_of_four_bearings_fits_2k`), so
-/// a 2048-byte buffer is enough; a short buffer gives an error, not a panic.
+/// `null`), returning the number of bytes written. A v1 4-bearing report with
+/// long float texts takes 1766 bytes (test `json_of_four_bearings_fits_2k`);
+/// [`JSON_MAX_LEN`] holds any report; a short buffer gives an error, not a panic.
 pub fn to_json(r: &FrameReport, out: &mut [u8]) -> Result<usize, serde_json_core::ser::Error> {
     serde_json_core::to_slice(r, out)
 }
@@ -1008,6 +1013,53 @@ mod tests {
         assert!(n > 1200 && n < 2048, "{n}");
         let mut small = [0u8; 64];
         assert!(to_json(&r, &mut small).is_err());
+    }
+
+    #[test]
+    fn json_of_largest_v2_report_fits() {
+        let mut r = sample(0);
+        r.version = FORMAT_VERSION_2;
+        r.speed_rpm = 12345.678;
+        for b in 0..MAX_BEARINGS {
+            let mut br = BearingResult::default();
+            for d in br.defects.iter_mut() {
+                *d = DefectResult {
+                    score_db: 61.999_99,
+                    amplitude_1x_g: 0.000_123_456_79,
+                    harmonics: 10,
+                    detected: true,
+                    line: Some(LineDetail {
+                        state: LineState::Shared,
+                        reason: Some(NotSearchedCode::TooManyPasses),
+                        needed_samples_per_rev: Some(1024),
+                        amplitude_g: 0.000_123_456_79,
+                        harmonics_searched: 10,
+                        sidebands: 3,
+                        margin_db: 0.000_123_456_79,
+                        shared_with: Some(LineLink {
+                            bearing: u8::try_from(b).unwrap(),
+                            kind: DefectKind::Bpfo,
+                        }),
+                    }),
+                };
+            }
+            r.bearings.push(br).unwrap();
+        }
+        for _ in 0..MAX_MESHES {
+            let x = 0.000_123_456_79;
+            r.meshes
+                .push(MeshResult {
+                    searched: true,
+                    amplitude_g: x,
+                    prominence_db: x,
+                    sideband_gear_g: x,
+                    sideband_mate_g: x,
+                })
+                .unwrap();
+        }
+        let mut buf = [0u8; JSON_MAX_LEN];
+        let n = to_json(&r, &mut buf).unwrap();
+        assert!(n > 8000 && n < JSON_MAX_LEN, "{n}");
     }
 
     #[test]
