@@ -7,8 +7,8 @@
 //! mutations get past the CRC to the full, reduced and status field decoders.
 #![no_main]
 
-use dsp_core::frame::crc::crc16;
-use dsp_core::frame::{decode_any, encode, encode_reduced_report, to_json, Frame};
+use wire::crc::crc16;
+use wire::frame::{decode_any, encode, encode_reduced_report, to_json, Frame};
 use libfuzzer_sys::fuzz_target;
 
 fn check(data: &[u8]) {
@@ -17,14 +17,14 @@ fn check(data: &[u8]) {
         let mut buf = [0u8; 256];
         let n = match &frame {
             Frame::Full(r) => {
-                let mut json = [0u8; dsp_core::frame::JSON_MAX_LEN];
+                let mut json = [0u8; wire::frame::JSON_MAX_LEN];
                 assert!(to_json(r, &mut json).is_ok());
                 encode(r, &mut buf).expect("decoded report must encode")
             }
             Frame::Reduced(r) => {
                 encode_reduced_report(r, &mut buf).expect("decoded report must encode")
             }
-            Frame::Status(r) => dsp_core::frame::status::encode_status(r, &mut buf)
+            Frame::Status(r) => wire::frame::status::encode_status(r, &mut buf)
                 .expect("decoded status must encode"),
         };
         assert_eq!(&buf[..n], data);

@@ -162,7 +162,22 @@ pub fn input_store() -> Store {
     }
 }
 
-pub type ReplayNode<C> = Node<Src, Cap, Radio, NoSleep, Store, Batt, Dog, Pin, NoDelay, C>;
+/// The replay bench as a board.
+pub struct ReplayBoard;
+
+impl Board for ReplayBoard {
+    type Source = Src;
+    type Capture = Cap;
+    type Radio = Radio;
+    type Alarm = NoSleep;
+    type Storage = Store;
+    type Battery = Batt;
+    type Watchdog = Dog;
+    type Power = Pin;
+    type Delay = NoDelay;
+}
+
+pub type ReplayNode<C> = Node<ReplayBoard, C>;
 
 /// Runs cycles over the committed input until no full record is left;
 /// returns the node (frames in `devices().radio.0`).
@@ -192,7 +207,7 @@ where
         .map(|b| u32::from_le_bytes([b[0], b[1], b[2], b[3]]))
         .collect();
     let clock = Rc::new(Cell::new(0));
-    let dev = Devices {
+    let dev = Devices::<ReplayBoard> {
         source: Src {
             samples,
             pos: 0,
@@ -229,8 +244,9 @@ pub fn split_frames(mut b: &[u8]) -> Vec<Vec<u8>> {
         let n = match b[0] {
             0x4F => 12,
             // v1 and v2 report frames, status frames.
-            x => dsp_core::frame::frame_len(b)
-                .unwrap_or_else(|| panic!("unknown frame start {x:#04x}")),
+            x => {
+                wire::frame::frame_len(b).unwrap_or_else(|| panic!("unknown frame start {x:#04x}"))
+            }
         };
         out.push(b[..n].to_vec());
         b = &b[n..];

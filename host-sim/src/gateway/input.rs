@@ -159,8 +159,8 @@ pub fn split_binary(source: &str, data: &[u8]) -> Vec<InputItem> {
     let mut rest = data;
     let mut index = 1;
     while !rest.is_empty() {
-        // v1 and v2 report frames, v1 status frames (dsp_core::frame::frame_len).
-        let len = dsp_core::frame::frame_len(rest);
+        // v1 and v2 report frames, v1 status frames (wire::frame::frame_len).
+        let len = wire::frame::frame_len(rest);
         let take = len.unwrap_or(rest.len()).min(rest.len());
         let (frame, tail) = rest.split_at(take);
         items.push(InputItem {

@@ -2,14 +2,14 @@
 //!
 //! Schema v3 added `searched`, `amplitude_g`, `harmonics_searched`,
 //! `sidebands` and `margin_db` to `defects`; report frames of version 2 carry
-//! them (`dsp_core::frame::v2`), version 1 frames do not: their rows keep
+//! them (`wire::frame::v2`), version 1 frames do not: their rows keep
 //! `searched` = 1 (the column's default, as before) and NULL in the others.
 //! A v2 line that was not searched is `searched` = 0 with NULL amplitude and
 //! margin, so a trend never reads it as a healthy zero. The line's state
 //! (detected / shared with another bearing) and a not-searched reason are
 //! in the report's `json` column.
 
-use dsp_core::frame::{DefectResult, LineState};
+use wire::frame::{DefectResult, LineState};
 
 /// The v3 columns of one defect row.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -60,7 +60,7 @@ pub fn line_columns(d: &DefectResult) -> LineColumns {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use dsp_core::frame::{LineDetail, NotSearchedCode};
+    use wire::frame::{LineDetail, NotSearchedCode};
 
     #[test]
     fn v1_v2_and_not_searched() {
