@@ -253,7 +253,8 @@ fn encoder_rejects_bad_reports() {
     assert_eq!(encode(&r, &mut buf), Ok(39));
     // Shared with itself, detected without a detection state, more found
     // than searched, a margin with nothing counted.
-    let cases: [(fn(&mut DefectResult), LineField); 4] = [
+    type Spoil = fn(&mut DefectResult);
+    let cases: [(Spoil, LineField); 4] = [
         (
             |d| {
                 d.detected = true;

@@ -65,7 +65,7 @@ mod tests {
     #[test]
     fn v1_v2_and_not_searched() {
         let v1 = DefectResult::default();
-        assert_eq!(line_columns(&v1).searched, true);
+        assert!(line_columns(&v1).searched);
         assert_eq!(line_columns(&v1).amplitude_g, None);
         let mut d = DefectResult {
             harmonics: 3,

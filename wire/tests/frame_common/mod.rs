@@ -91,7 +91,7 @@ pub fn random_report_v2(rng: &mut Rng) -> FrameReport {
         for d in b.defects.iter_mut() {
             let state = match rng.below(8) {
                 0 | 1 => LineState::NotSearched,
-                2 | 3 | 4 => LineState::Searched,
+                2..=4 => LineState::Searched,
                 5 | 6 => LineState::Detected,
                 _ if nb > 1 => LineState::Shared,
                 _ => LineState::Detected,
