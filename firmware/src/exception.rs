@@ -213,11 +213,18 @@ fn changed(last: &FrameReport, now: &FrameReport, margin: f32) -> bool {
             // a detected finding whose size moved by the margin is a
             // change as a score is (a line with nothing in it carries
             // noise, which the gateway does not grade)
+            // v2 frames: a line's state (not searched / searched /
+            // detected / shared) is news, and their size is the summed
+            // amplitude (the 1x amplitude is not carried)
+            let state = |d: &wire::frame::DefectResult| d.line.map(|l| l.state);
+            let summed = |d: &wire::frame::DefectResult| d.line.map_or(f32::NAN, |l| l.amplitude_g);
             x.detected != y.detected
+                || state(x) != state(y)
                 || moved_db(x.score_db, y.score_db, margin)
                 || (y.detected && moved_level(x.amplitude_1x_g, y.amplitude_1x_g, margin))
+                || (y.detected && moved_level(summed(x), summed(y), margin))
         })
-    })
+    }) || last.meshes.len() != now.meshes.len()
 }
 
 #[cfg(test)]

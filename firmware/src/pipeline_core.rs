@@ -8,7 +8,7 @@
 //! * Blocks and edges go straight to the pipeline (nothing is buffered here).
 //! * `finish` raises the firmware's flags in the pipeline, then keeps its
 //!   [`Report`]; `encode` fills a [`FrameReport`] and packs the full frame
-//!   (`wire::frame::encode`, at most 58 bytes for 4 bearings).
+//!   (`wire::frame::encode`, version 2: 93 bytes for 4 bearings).
 //!
 //! * `start_survey` sets the pipeline aside (unstarted) for a band survey
 //!   ([`crate::commission::Commissioning`], kept beside the pipeline and set

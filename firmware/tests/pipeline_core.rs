@@ -38,7 +38,7 @@ fn outer_race_defect_recording_gives_a_bpfo_detection_in_the_frame() {
     if let Some(out) = std::env::var_os("ENVORD_HOST_PIPELINE_FRAMES_OUT") {
         std::fs::write(out, &bytes).unwrap();
     }
-    // full frame for one bearing: 30 bytes (wire::frame::layout::full_frame_len(1));
+    // full frame v2 for one bearing: 39 bytes (wire::frame::v2::full_frame_len_v2(1, 0));
     // the first report is followed by the boot status frame (27 bytes); the
     // second report changed by less than the default margin (3 dB): it goes
     // out as the 11-byte reduced frame, "as before" with its worst defect
@@ -46,7 +46,7 @@ fn outer_race_defect_recording_gives_a_bpfo_detection_in_the_frame() {
     let frames = replay_common::split_frames(&bytes);
     assert_eq!(
         frames.iter().map(Vec::len).collect::<Vec<_>>(),
-        [30, 27, 11]
+        [39, 27, 11]
     );
     let full = wire::frame::decode(&frames[0]).unwrap();
     check_report(&full, 0);
@@ -74,7 +74,7 @@ fn every_cycle_policy_sends_two_full_frames() {
     let frames = replay_common::split_frames(&node.devices().radio.0);
     assert_eq!(
         frames.iter().map(Vec::len).collect::<Vec<_>>(),
-        [30, 27, 30]
+        [39, 27, 39]
     );
     for (seq, f) in [&frames[0], &frames[2]].into_iter().enumerate() {
         check_report(&wire::frame::decode(f).unwrap(), seq);
@@ -104,6 +104,28 @@ fn check_report(r: &wire::frame::FrameReport, seq: usize) {
     let d = &r.bearings[0].defects;
     assert!(d[0].detected, "BPFO not detected: {:?}", d[0]);
     assert!(!d[1].detected && !d[2].detected && !d[3].detected, "{d:?}");
+    // version 2: the BPFO line is "detected" with its summed amplitude and
+    // harmonics counted of searched; the other lines searched or not
+    // searched with a reason, never confused
+    assert_eq!(r.version, wire::frame::layout::FORMAT_VERSION_2);
+    let l = d[0].line.unwrap();
+    assert_eq!(l.state, wire::frame::LineState::Detected);
+    assert!(l.amplitude_g > 0.0 && l.harmonics_searched >= d[0].harmonics);
+    assert!(l.margin_db >= 10.0, "{l:?}");
+    for x in &d[1..] {
+        let l = x.line.unwrap();
+        assert!(
+            matches!(
+                l.state,
+                wire::frame::LineState::Searched | wire::frame::LineState::NotSearched
+            ),
+            "{l:?}"
+        );
+        assert_eq!(
+            l.state == wire::frame::LineState::NotSearched,
+            l.reason.is_some()
+        );
+    }
 }
 
 #[test]

@@ -13,10 +13,11 @@ use libfuzzer_sys::fuzz_target;
 
 fn check(data: &[u8]) {
     if let Ok(frame) = decode_any(data) {
-        let mut buf = [0u8; 64];
+        // Up to 181 bytes (v2: 8 bearings, 4 meshes).
+        let mut buf = [0u8; 256];
         let n = match &frame {
             Frame::Full(r) => {
-                let mut json = [0u8; 2048];
+                let mut json = [0u8; wire::frame::JSON_MAX_LEN];
                 assert!(to_json(r, &mut json).is_ok());
                 encode(r, &mut buf).expect("decoded report must encode")
             }

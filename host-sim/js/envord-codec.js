@@ -3,11 +3,17 @@
 // Follows the LoRa Alliance TS013 payload codec API: decodeUplink(input) with
 // input.bytes (array of 0..255) and input.fPort, returning { data, errors,
 // warnings }. Plain ES5 so it runs in the codec sandboxes of network servers.
-// The frame format is docs/frame-format.md (version 1); this file mirrors the
-// Rust decoder wire::frame and is checked against its vectors by test.js.
+// The frame format is docs/frame-format.md (versions 1 and 2: nodes in the
+// field still send version 1); this file mirrors the Rust decoder
+// wire::frame and is checked against its vectors by test.js.
 /* eslint-disable no-var */
 
 var ENVORD_VERSION = 1;
+var ENVORD_VERSION_2 = 2;
+var V2_HEADER_LEN = 19;
+var LINE_STATES = ["not_searched", "searched", "detected", "shared"];
+var NOT_SEARCHED = ["not_analysed", "pass_missing", "above_range", "too_slow",
+  "too_many_passes", "no_harmonic"];
 var DEFECT_KINDS = ["bpfo", "bpfi", "ftf", "bsf"];
 var ISO_ZONES = [null, "A", "B", "C", "D"];
 var FLAG_NAMES = ["tach_missing", "tach_irregular", "speed_out_of_range", "clipping",
@@ -30,6 +36,11 @@ var SURVEY_STATES = ["not_run", "stored", "not_stored", "signal_fault", "flat",
 
 function fullFrameLen(bearings) {
   return FULL_HEADER_LEN + Math.ceil(bearings * 4 * DEFECT_BITS / 8) + 2;
+}
+
+// Version 2: 19-byte header, 18 bytes per bearing, 4 per mesh, CRC.
+function fullFrameLenV2(bearings, meshes) {
+  return V2_HEADER_LEN + 18 * bearings + 4 * meshes + 2;
 }
 
 // CRC-16/CCITT-FALSE: poly 0x1021, init 0xFFFF, no reflection, no xorout.
@@ -123,10 +134,24 @@ function checkEnvelope(bytes) {
   }
   version = bytes[0] >> 4;
   type = bytes[0] & 0x0F;
-  if (version !== ENVORD_VERSION) {
+  if (version !== ENVORD_VERSION && version !== ENVORD_VERSION_2) {
     throw new DecodeError("UnknownVersion", "format version " + version);
   }
-  if (type === 0) {
+  if (type === 0 && version === ENVORD_VERSION_2) {
+    if (bytes.length < 19) {
+      throw new DecodeError("Truncated", bytes.length + " bytes, frame needs " + fullFrameLenV2(0, 0));
+    }
+    count = bytes[7] & 0x0F;
+    if (count > 8) {
+      throw new DecodeError("TooManyBearings", "bearing count " + count);
+    }
+    if ((bytes[18] & 0x07) > 4) {
+      throw new DecodeError("TooManyBearings", "mesh count " + (bytes[18] & 0x07));
+    }
+    expected = fullFrameLenV2(count, bytes[18] & 0x07);
+  } else if (type === 2 && version === ENVORD_VERSION_2) {
+    throw new DecodeError("UnknownVersion", "format version 2 has no status frame");
+  } else if (type === 0) {
     if (bytes.length < 8) {
       throw new DecodeError("Truncated", bytes.length + " bytes, frame needs " + fullFrameLen(0));
     }
@@ -207,12 +232,120 @@ function decodeFull(bytes) {
   };
 }
 
+// Margin code: 2 dB steps, 31 = nothing counted.
+function margin(code) {
+  return code === 31 ? null : code * 2;
+}
+
+function v2Line(rd, own, nb) {
+  var st = rd.take(2), sc = rd.take(6), a = rd.take(8), found = rd.take(4), searched = rd.take(4);
+  var sb = rd.take(2), m = rd.take(5), lb = rd.take(3), lk = rd.take(2);
+  var bad = function (field) {
+    throw new DecodeError("InvalidField", "field " + field + " of bearing " + own);
+  };
+  var needed = null;
+  if (st === 0) {
+    if (sc > 5) { bad("reason"); }
+    if (a !== 0) {
+      if ((sc !== 2 && sc !== 4) || a < 3 || a > 11) { bad("needed_samples_per_rev"); }
+      needed = Math.pow(2, a);
+    }
+    if (found || searched || sb || lb || lk || m !== 31) { bad("unused field"); }
+    return {
+      score_db: null, amplitude_1x_g: null, harmonics: 0, detected: false,
+      line: {
+        state: "not_searched", reason: NOT_SEARCHED[sc], needed_samples_per_rev: needed,
+        amplitude_g: null, harmonics_searched: 0, sidebands: 0, margin_db: null, shared_with: null
+      }
+    };
+  }
+  if (searched === 0 || searched > 10 || found > searched) { bad("harmonics"); }
+  if (sb > Math.min(found, 3)) { bad("sidebands"); }
+  if ((found === 0) !== (m === 31)) { bad("margin"); }
+  var shared = null;
+  if (st === 3) {
+    if (lb >= nb || lb === own) { bad("link"); }
+    shared = { bearing: lb, kind: DEFECT_KINDS[lk] };
+  } else if (lb || lk) {
+    bad("link");
+  }
+  return {
+    score_db: score(sc), amplitude_1x_g: null, harmonics: found, detected: st >= 2,
+    line: {
+      state: LINE_STATES[st], reason: null, needed_samples_per_rev: null,
+      amplitude_g: amplitude(a), harmonics_searched: searched, sidebands: sb,
+      margin_db: margin(m), shared_with: shared
+    }
+  };
+}
+
+function decodeFullV2(bytes) {
+  var flags = flagsOf(bytes);
+  var cz = bytes[7];
+  var nb = cz & 0x0F;
+  var zone = (cz >> 4) & 0x07;
+  var nm = bytes[18];
+  var bearings = [], meshes = [];
+  var rd, b, k, defects, st, p, a, sg, sm, out;
+  if (cz & 0x80) {
+    throw new DecodeError("ReservedBits", "reserved bits set in byte 7");
+  }
+  if (zone > 4) {
+    throw new DecodeError("InvalidField", "iso_zone code " + zone);
+  }
+  if (nm & 0xF8) {
+    throw new DecodeError("ReservedBits", "reserved bits set in byte 18");
+  }
+  rd = new BitReader(bytes, V2_HEADER_LEN);
+  for (b = 0; b < nb; b++) {
+    defects = [];
+    for (k = 0; k < 4; k++) { defects.push(v2Line(rd, b, nb)); }
+    bearings.push({ defects: defects });
+  }
+  for (k = 0; k < nm; k++) {
+    st = rd.take(2); p = rd.take(6); a = rd.take(8); sg = rd.take(8); sm = rd.take(8);
+    if (st === 0 && (p || a || sg || sm)) {
+      throw new DecodeError("InvalidField", "mesh " + k + ": values in a mesh not searched");
+    }
+    if (st > 1) {
+      throw new DecodeError("InvalidField", "mesh state " + st);
+    }
+    meshes.push(st === 0 ? {
+      searched: false, amplitude_g: null, prominence_db: null, sideband_gear_g: null, sideband_mate_g: null
+    } : {
+      searched: true, amplitude_g: amplitude(a), prominence_db: score(p),
+      sideband_gear_g: amplitude(sg), sideband_mate_g: amplitude(sm)
+    });
+  }
+  out = {
+    frame: "full",
+    version: ENVORD_VERSION_2,
+    node_id: u16(bytes, 1),
+    seq: u16(bytes, 3),
+    flags: flags,
+    speed_rpm: linear(u16(bytes, 8), 0.25, 0xFFFF),
+    overall: {
+      accel_rms_g: linear(u16(bytes, 10), 0.001, 0xFFFF),
+      peak_g: linear(u16(bytes, 12), 0.01, 0xFFFF),
+      crest_factor: linear(bytes[14], 0.1, 0xFF),
+      kurtosis: linear(bytes[15], 0.25, 0xFF),
+      velocity_rms_mm_s: linear(u16(bytes, 16), 0.01, 0xFFFF),
+      iso_zone: ISO_ZONES[zone]
+    },
+    bearings: bearings
+  };
+  // As the Rust JSON: no key when there are no meshes.
+  if (meshes.length > 0) { out.meshes = meshes; }
+  return out;
+}
+
 function decodeReduced(bytes) {
   var flags = flagsOf(bytes);
   var b7 = bytes[7];
   var b8 = bytes[8];
   var present = (b7 & 0x80) !== 0;
-  if ((b7 & 0x03) || (!present && b7 !== 0)) {
+  var v2 = (bytes[0] >> 4) === ENVORD_VERSION_2;
+  if ((b7 & (v2 ? 0x01 : 0x03)) || (!present && b7 !== 0)) {
     throw new DecodeError("ReservedBits", "reserved bits set in byte 7");
   }
   if ((b8 & 0x03) || (!present && b8 !== 0)) {
@@ -220,16 +353,21 @@ function decodeReduced(bytes) {
   }
   return {
     frame: "reduced",
-    version: ENVORD_VERSION,
+    version: v2 ? ENVORD_VERSION_2 : ENVORD_VERSION,
     node_id: u16(bytes, 1),
     seq: u16(bytes, 3),
     flags: flags,
-    worst: present ? {
+    worst: present ? (v2 ? {
+      bearing: (b7 >> 4) & 7,
+      kind: DEFECT_KINDS[(b7 >> 2) & 3],
+      score_db: score(b8 >> 2),
+      detected: (b7 & 0x02) !== 0
+    } : {
       bearing: (b7 >> 5) & 3,
       kind: DEFECT_KINDS[(b7 >> 3) & 3],
       score_db: score(b8 >> 2),
       detected: (b7 & 0x04) !== 0
-    } : null
+    }) : null
   };
 }
 
@@ -301,7 +439,8 @@ function decodeUplink(input) {
   }
   try {
     type = checkEnvelope(bytes);
-    data = type === 0 ? decodeFull(bytes) : type === 1 ? decodeReduced(bytes) : decodeStatus(bytes);
+    data = type === 0 ? ((bytes[0] >> 4) === ENVORD_VERSION_2 ? decodeFullV2(bytes) : decodeFull(bytes))
+      : type === 1 ? decodeReduced(bytes) : decodeStatus(bytes);
   } catch (e) {
     if (e instanceof DecodeError) {
       return { errors: [e.message], warnings: [] };
@@ -318,5 +457,8 @@ function decodeUplink(input) {
 }
 
 if (typeof module !== "undefined" && module.exports) {
-  module.exports = { decodeUplink: decodeUplink, crc16: crc16, fullFrameLen: fullFrameLen, f32: f32 };
+  module.exports = {
+    decodeUplink: decodeUplink, crc16: crc16, fullFrameLen: fullFrameLen,
+    fullFrameLenV2: fullFrameLenV2, f32: f32
+  };
 }

@@ -37,6 +37,8 @@ var n = 0;
 // CRC catalogue check value (CRC-16/IBM-3740 alias CCITT-FALSE): 0x29B1 for "123456789".
 assert.strictEqual(codec.crc16([49, 50, 51, 52, 53, 54, 55, 56, 57], 9), 0x29B1);
 assert.deepStrictEqual([1, 2, 3, 4].map(codec.fullFrameLen), [30, 39, 49, 58]);
+assert.deepStrictEqual([0, 1, 4, 8].map(function (n) { return codec.fullFrameLenV2(n, 0); }), [21, 39, 93, 165]);
+assert.strictEqual(codec.fullFrameLenV2(8, 4), 181);
 // binary32 decoding against the typed-array reference of the JS engine itself.
 (function () {
   var dv = new DataView(new ArrayBuffer(4));
@@ -75,11 +77,13 @@ for (var t = 0; t < 20000; t++) {
   var len = rnd() % 64;
   var b = [];
   for (var j = 0; j < len; j++) { b.push(rnd() % 256); }
-  if (rnd() % 2) { b[0] = 0x10 | (rnd() % 3); }
+  if (rnd() % 2) { b[0] = (rnd() % 2 ? 0x10 : 0x20) | (rnd() % 3); }
   var res = codec.decodeUplink({ bytes: b, fPort: 10 });
   assert.ok(Array.isArray(res.errors) && Array.isArray(res.warnings));
 }
 
 var statuses = vectors.valid.filter(function (v) { return v.expected.frame === "status"; }).length;
 assert.ok(statuses >= 50, "status vectors: " + statuses);
+var v2 = vectors.valid.filter(function (v) { return v.expected.version === 2; }).length;
+assert.ok(v2 >= 150, "version 2 vectors: " + v2);
 console.log("envord-codec.js: " + n + " vectors ok (" + vectors.valid.length + " valid of which " + statuses + " status, " + vectors.invalid.length + " invalid), 20000 random payloads ok");

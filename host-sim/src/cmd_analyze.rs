@@ -63,11 +63,11 @@ pub fn frame_hex(
             "frame: the point watches {} bearings; radio frame format {} carries at most {most}: \
              split the point into points of at most {most} bearings for the node",
             report.bearings.len(),
-            wire::frame::layout::FORMAT_VERSION
+            wire::frame::layout::FORMAT_VERSION_2
         )));
     }
     let fr = wire::frame::FrameReport::from_report(report, node_id, seq);
-    let mut buf = [0u8; 64];
+    let mut buf = [0u8; 256];
     let n =
         wire::frame::encode(&fr, &mut buf).map_err(|e| CliError::Other(format!("frame: {e}")))?;
     Ok(buf.iter().take(n).map(|b| format!("{b:02x}")).collect())

@@ -46,6 +46,7 @@ fn frame(node: u16, seq: u16, bpfo: &[f32], low_battery: bool) -> Vec<u8> {
                 amplitude_1x_g: 0.002 * 10f32.powf(score / 20.0),
                 harmonics: if k == 0 && *s > 14.0 { 3 } else { 1 },
                 detected: k == 0 && *s > 14.0,
+                line: None,
             };
         }
         r.bearings.push(br).unwrap();

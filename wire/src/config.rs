@@ -41,7 +41,9 @@ pub const VERSION_1: u8 = 1;
 /// Record magic.
 pub const MAGIC: [u8; 2] = *b"EP";
 /// Most bearings one measuring point describes.
-pub use crate::frame::layout::MAX_BEARINGS;
+/// Record versions 1 and 2 carry 4 bearings (the v1 frame's capacity); a
+/// v2 report frame carries 8 ([`crate::frame::layout::MAX_BEARINGS`]).
+pub const MAX_BEARINGS: usize = crate::frame::layout::V1_MAX_BEARINGS;
 const HEADER_LEN: usize = 66;
 const HEADER_LEN_V1: usize = 62;
 const BEARING_LEN: usize = 22;

@@ -52,9 +52,10 @@ pub mod identity;
 pub mod overall;
 pub mod point;
 
-/// Most bearings a frame or a configuration record carries; defined once in
-/// [`frame::layout`]. A measuring point in `dsp-core` may watch more
-/// (`dsp_core::config::MAX_BEARINGS`, the point's capacity); four go on the air.
+/// Most bearings a report frame (version 2) carries; defined once in
+/// [`frame::layout`], equal to a `dsp-core` measuring point's capacity
+/// (`dsp_core::config::MAX_BEARINGS`). Version 1 frames and configuration
+/// records up to version 2 carry 4 ([`frame::layout::V1_MAX_BEARINGS`]).
 pub use frame::layout::MAX_BEARINGS;
 
 pub use frame::status::BandSource;

@@ -22,6 +22,7 @@ fn example() -> FrameReport {
         amplitude_1x_g: a,
         harmonics: h,
         detected: det,
+        line: None,
     };
     let mut r = FrameReport {
         node_id: 0x0A17,
@@ -149,5 +150,95 @@ fn doc_status_example_hex_is_encoder_output() {
     assert_eq!(
         squash(block_after(&doc(), "<!-- example-status-hex -->")),
         hex
+    );
+}
+
+/// The version 2 example of the document: the same node on an invented
+/// two-stage gearbox, bearing 0 (input shaft) with an outer-race finding,
+/// bearing 1 (output shaft) not searched by this setting, one mesh.
+fn example_v2() -> FrameReport {
+    use wire::frame::layout::FORMAT_VERSION_2;
+    use wire::frame::{LineDetail, LineState, MeshResult, NotSearchedCode};
+    let searched =
+        |score: f32, found: u8, det: bool, amp: f32, of: u8, sb: u8, margin: f32| DefectResult {
+            score_db: score,
+            amplitude_1x_g: f32::NAN,
+            harmonics: found,
+            detected: det,
+            line: Some(LineDetail {
+                state: if det {
+                    LineState::Detected
+                } else {
+                    LineState::Searched
+                },
+                amplitude_g: amp,
+                harmonics_searched: of,
+                sidebands: sb,
+                margin_db: margin,
+                ..LineDetail::default()
+            }),
+        };
+    let not = |reason: NotSearchedCode, needed: Option<u16>| DefectResult {
+        score_db: f32::NAN,
+        amplitude_1x_g: f32::NAN,
+        harmonics: 0,
+        detected: false,
+        line: Some(LineDetail {
+            state: LineState::NotSearched,
+            reason: Some(reason),
+            needed_samples_per_rev: needed,
+            amplitude_g: f32::NAN,
+            margin_db: f32::NAN,
+            ..LineDetail::default()
+        }),
+    };
+    let mut r = example();
+    r.version = FORMAT_VERSION_2;
+    r.bearings.clear();
+    let b0 = [
+        searched(17.6, 4, true, 0.0412, 5, 0, 16.3),
+        searched(3.2, 1, false, 0.0011, 5, 0, 10.8),
+        searched(0.0, 0, false, 0.0, 2, 0, f32::NAN),
+        not(NotSearchedCode::NoHarmonic, None),
+    ];
+    let b1 = [not(NotSearchedCode::TooManyPasses, Some(16)); 4];
+    r.bearings.push(BearingResult { defects: b0 }).unwrap();
+    r.bearings.push(BearingResult { defects: b1 }).unwrap();
+    r.meshes
+        .push(MeshResult {
+            searched: true,
+            amplitude_g: 0.0213,
+            prominence_db: 21.4,
+            sideband_gear_g: 0.0034,
+            sideband_mate_g: f32::NAN,
+        })
+        .unwrap();
+    r
+}
+
+#[test]
+fn doc_v2_example_is_codec_output() {
+    let mut buf = [0u8; 256];
+    let n = encode(&example_v2(), &mut buf).unwrap();
+    assert_eq!(n, 61);
+    let hex = common::to_hex(&buf[..n]);
+    println!("v2 full: {hex}");
+    assert_eq!(
+        squash(block_after(&doc(), "<!-- example-v2-full-hex -->")),
+        hex
+    );
+    let m = encode_reduced(&example_v2(), &mut buf).unwrap();
+    let rhex = common::to_hex(&buf[..m]);
+    println!("v2 reduced: {rhex}");
+    assert_eq!(
+        squash(block_after(&doc(), "<!-- example-v2-reduced-hex -->")),
+        rhex
+    );
+    let back = decode(&common::from_hex(&hex)).unwrap();
+    let json = serde_json::to_string_pretty(&back).unwrap();
+    println!("{json}");
+    assert_eq!(
+        squash(block_after(&doc(), "<!-- example-v2-decoded-json -->")),
+        squash(&json)
     );
 }

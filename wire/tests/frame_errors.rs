@@ -11,9 +11,11 @@
 mod common;
 
 use wire::crc::crc16;
+use wire::frame::v2::LineField;
 use wire::frame::{
     decode, decode_any, decode_reduced, encode, encode_reduced, DecodeError, DefectKind,
-    EncodeError, Frame, FrameReport,
+    DefectResult, EncodeError, Frame, FrameReport, LineDetail, LineLink, LineState,
+    NotSearchedCode,
 };
 
 fn valid(nb: usize) -> Vec<u8> {
@@ -86,9 +88,15 @@ fn trailing_bytes_are_bad_length() {
 #[test]
 fn wrong_version_and_type() {
     let mut f = valid(1);
-    f[0] = 0x20 | (f[0] & 0x0F);
+    f[0] = 0x30 | (f[0] & 0x0F);
     reseal(&mut f);
-    assert_eq!(decode(&f), Err(DecodeError::UnknownVersion(2)));
+    assert_eq!(decode(&f), Err(DecodeError::UnknownVersion(3)));
+    // A v1 frame relabelled v2 is refused (its count byte and length do
+    // not match a v2 frame).
+    let mut f = valid(1);
+    f[0] = 0x20;
+    reseal(&mut f);
+    assert!(decode(&f).is_err());
     let mut g = valid(1);
     g[0] = 0x15;
     reseal(&mut g);
@@ -213,11 +221,140 @@ fn encoder_rejects_bad_reports() {
         })
     );
     let r = FrameReport {
-        version: 2,
+        version: 3,
         ..FrameReport::default()
     };
     assert_eq!(
         encode(&r, &mut buf),
-        Err(EncodeError::UnsupportedVersion(2))
+        Err(EncodeError::UnsupportedVersion(3))
     );
+    // Version 2 needs every line's detail, consistent.
+    let mut r = FrameReport {
+        version: 2,
+        ..FrameReport::default()
+    };
+    r.bearings.push(Default::default()).unwrap();
+    assert_eq!(
+        encode(&r, &mut buf),
+        Err(EncodeError::InconsistentLine {
+            bearing: 0,
+            kind: DefectKind::Bpfo,
+            field: LineField::Missing
+        })
+    );
+    for d in r.bearings[0].defects.iter_mut() {
+        d.line = Some(LineDetail {
+            state: LineState::Searched,
+            harmonics_searched: 5,
+            margin_db: f32::NAN,
+            ..LineDetail::default()
+        });
+    }
+    assert_eq!(encode(&r, &mut buf), Ok(39));
+    // Shared with itself, detected without a detection state, more found
+    // than searched, a margin with nothing counted.
+    type Spoil = fn(&mut DefectResult);
+    let cases: [(Spoil, LineField); 4] = [
+        (
+            |d| {
+                d.detected = true;
+                let l = d.line.as_mut().unwrap();
+                l.state = LineState::Shared;
+                l.shared_with = Some(LineLink {
+                    bearing: 0,
+                    kind: DefectKind::Bpfi,
+                });
+            },
+            LineField::Link,
+        ),
+        (|d| d.detected = true, LineField::Detected),
+        (|d| d.harmonics = 6, LineField::Harmonics),
+        (
+            |d| d.line.as_mut().unwrap().margin_db = 12.0,
+            LineField::Margin,
+        ),
+    ];
+    for (spoil, field) in cases {
+        let mut bad = r.clone();
+        spoil(&mut bad.bearings[0].defects[1]);
+        assert_eq!(
+            encode(&bad, &mut buf),
+            Err(EncodeError::InconsistentLine {
+                bearing: 0,
+                kind: DefectKind::Bpfi,
+                field
+            })
+        );
+    }
+    // Meshes need version 2; 5 bearings do not fit version 1.
+    let mut v1 = FrameReport::default();
+    v1.meshes.push(Default::default()).unwrap();
+    assert_eq!(encode(&v1, &mut buf), Err(EncodeError::MeshesInV1(1)));
+    let mut v1 = FrameReport::default();
+    for _ in 0..5 {
+        v1.bearings.push(Default::default()).unwrap();
+    }
+    assert_eq!(encode(&v1, &mut buf), Err(EncodeError::TooManyBearings(5)));
+}
+
+#[test]
+fn v2_decoder_rejects_inconsistent_lines() {
+    let mut r = FrameReport {
+        version: 2,
+        ..FrameReport::default()
+    };
+    r.bearings.push(Default::default()).unwrap();
+    for d in r.bearings[0].defects.iter_mut() {
+        d.line = Some(LineDetail {
+            state: LineState::NotSearched,
+            reason: Some(NotSearchedCode::TooSlow),
+            amplitude_g: f32::NAN,
+            margin_db: f32::NAN,
+            ..LineDetail::default()
+        });
+        d.score_db = f32::NAN;
+    }
+    let mut buf = [0u8; 64];
+    let n = encode(&r, &mut buf).unwrap();
+    assert_eq!(n, 39);
+    let ok = buf[..n].to_vec();
+    let back = decode(&ok).unwrap();
+    assert_eq!(
+        back.bearings[0].defects[0].line.unwrap().reason,
+        Some(NotSearchedCode::TooSlow)
+    );
+    // Reason code 6 is undefined (the score field of state 0).
+    let mut f = ok.clone();
+    f[19] = 0x06;
+    reseal(&mut f);
+    assert_eq!(
+        decode(&f),
+        Err(DecodeError::InvalidField {
+            field: "reason",
+            code: 0
+        })
+    );
+    // A needed samples_per_rev for a reason without one.
+    let mut f = ok.clone();
+    f[20] = 9;
+    reseal(&mut f);
+    assert!(matches!(
+        decode(&f),
+        Err(DecodeError::InvalidField {
+            field: "needed_samples_per_rev",
+            ..
+        })
+    ));
+    // Reserved bits of the count byte and the mesh-count byte.
+    for (off, bit) in [(7usize, 0x80u8), (18, 0x08)] {
+        let mut f = ok.clone();
+        f[off] |= bit;
+        reseal(&mut f);
+        assert_eq!(decode(&f), Err(DecodeError::ReservedBits { offset: off }));
+    }
+    // 9 bearings.
+    let mut f = ok.clone();
+    f[7] = (f[7] & 0xF0) | 9;
+    reseal(&mut f);
+    assert_eq!(decode(&f), Err(DecodeError::TooManyBearings(9)));
 }

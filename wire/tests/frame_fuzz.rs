@@ -17,7 +17,7 @@ use wire::frame::{decode_any, encode, encode_reduced_report, Frame};
 
 fn check(bytes: &[u8]) -> Result<(), TestCaseError> {
     if let Ok(f) = decode_any(bytes) {
-        let mut buf = [0u8; 64];
+        let mut buf = [0u8; 256];
         let n = match &f {
             Frame::Full(r) => encode(r, &mut buf).unwrap(),
             Frame::Reduced(r) => encode_reduced_report(r, &mut buf).unwrap(),
@@ -50,6 +50,27 @@ proptest! {
             bytes.resize(wire::frame::layout::full_frame_len(nb), 0);
         }
         let n = bytes.len();
+        let c = crc16(&bytes[..n - 2]);
+        bytes[n - 2..].copy_from_slice(&c.to_be_bytes());
+        check(&bytes)?;
+    }
+
+    /// Version 2: valid frames with a few bits flipped and the CRC
+    /// rewritten reach every line and mesh check; accepted ones are canonical.
+    #[test]
+    fn v2_resealed_bit_flips_are_rejected_or_canonical(seed in any::<u64>(), flips in proptest::collection::vec(any::<u16>(), 1..4), reduced in any::<bool>()) {
+        let r = common::random_report_v2(&mut common::Rng(seed | 1));
+        let mut buf = [0u8; 256];
+        let n = if reduced {
+            wire::frame::encode_reduced(&r, &mut buf).unwrap()
+        } else {
+            encode(&r, &mut buf).unwrap()
+        };
+        let mut bytes = buf[..n].to_vec();
+        for f in flips {
+            let bit = 8 + usize::from(f) % (8 * (n - 3));
+            bytes[bit / 8] ^= 0x80 >> (bit % 8);
+        }
         let c = crc16(&bytes[..n - 2]);
         bytes[n - 2..].copy_from_slice(&c.to_be_bytes());
         check(&bytes)?;

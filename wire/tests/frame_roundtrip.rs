@@ -74,6 +74,7 @@ fn defect() -> impl Strategy<Value = DefectResult> {
             amplitude_1x_g: a,
             harmonics: h,
             detected: d,
+            line: None,
         })
 }
 

@@ -74,3 +74,43 @@ fn buffer_too_small_is_an_error() {
         })
     );
 }
+
+/// The version 2 size table of docs/frame-format.md: 21 + 18 n + 4 m bytes,
+/// and the slowest EU868 rate (51 / 115 / 222 bytes, RP002-1.0.x, from memory).
+#[test]
+fn v2_sizes_and_rates_of_the_table() {
+    use wire::frame::layout::eu868_slowest_rate;
+    use wire::frame::v2::full_frame_len_v2;
+    let table: [(usize, [usize; 4]); 9] = [
+        (0, [21, 25, 29, 37]),
+        (1, [39, 43, 47, 55]),
+        (2, [57, 61, 65, 73]),
+        (3, [75, 79, 83, 91]),
+        (4, [93, 97, 101, 109]),
+        (5, [111, 115, 119, 127]),
+        (6, [129, 133, 137, 145]),
+        (7, [147, 151, 155, 163]),
+        (8, [165, 169, 173, 181]),
+    ];
+    for (nb, row) in table {
+        for (m, want) in [0usize, 1, 2, 4].into_iter().zip(row) {
+            assert_eq!(full_frame_len_v2(nb, m), want, "{nb} bearings {m} meshes");
+            println!(
+                "v2 {nb} bearings {m} meshes: {want} bytes, {}",
+                eu868_slowest_rate(want).unwrap()
+            );
+        }
+    }
+    assert_eq!(eu868_slowest_rate(55), Some("DR3"));
+    assert_eq!(eu868_slowest_rate(115), Some("DR3"));
+    assert_eq!(eu868_slowest_rate(119), Some("DR4"));
+    assert_eq!(eu868_slowest_rate(181), Some("DR4"));
+    // Each size is what the encoder writes.
+    let mut rng = common::Rng(7);
+    let mut buf = [0u8; 256];
+    for _ in 0..200 {
+        let r = common::random_report_v2(&mut rng);
+        let n = encode(&r, &mut buf).unwrap();
+        assert_eq!(n, full_frame_len_v2(r.bearings.len(), r.meshes.len()));
+    }
+}

@@ -24,6 +24,9 @@ use wire::frame::{decode_any, encode, encode_reduced};
 const COUNT: usize = 400;
 /// Valid status-frame vectors generated after the reports.
 const STATUS_COUNT: usize = 60;
+/// Valid version 2 report vectors generated after the status frames (a
+/// fifth of them reduced frames).
+const V2_COUNT: usize = 200;
 
 const PATH: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/../host-sim/js/vectors.json");
 
@@ -107,6 +110,51 @@ fn generate() -> String {
             invalid.push(json!({ "hex": common::to_hex(&bad), "error": error_name(&bad) }));
         }
     }
+    // Version 2 reports, from their own generator so the vectors above stay
+    // as they were. Damage: as above, plus a line field made inconsistent
+    // (state "not searched" with a harmonics count) with a valid CRC.
+    let mut rng = common::Rng(0x0000_F2A3_2026);
+    for i in 0..V2_COUNT {
+        let r = common::random_report_v2(&mut rng);
+        let mut buf = [0u8; 256];
+        let n = if i % 5 == 4 {
+            encode_reduced(&r, &mut buf).unwrap()
+        } else {
+            encode(&r, &mut buf).unwrap()
+        };
+        let bytes = &buf[..n];
+        let decoded = serde_json::to_value(decode_any(bytes).unwrap()).unwrap();
+        valid.push(json!({ "hex": common::to_hex(bytes), "expected": decoded }));
+        if i % 2 == 0 {
+            let mut bad = bytes.to_vec();
+            let reseal = |b: &mut Vec<u8>| {
+                let c = crc16(&b[..n - 2]);
+                b[n - 2..].copy_from_slice(&c.to_be_bytes());
+            };
+            match (i / 2) % 6 {
+                0 => bad.truncate(rng.below(n as u64) as usize),
+                1 => bad.push(0),
+                2 => {
+                    let bit = rng.below(8 * (n as u64 - 3)) as usize + 8;
+                    bad[bit / 8] ^= 0x80 >> (bit % 8);
+                }
+                3 if n > 21 && bad[0] == 0x20 => {
+                    // First line of bearing 0: state 0, searched count 3.
+                    bad[19] &= 0x3F;
+                    bad[21] = (bad[21] & 0xF0) | 3;
+                    reseal(&mut bad);
+                }
+                3 | 4 => {
+                    bad[7] |= 0x80; // reserved bit in both types
+                    reseal(&mut bad);
+                }
+                _ => bad[0] = 0x22, // a version 2 status frame does not exist
+            }
+            if decode_any(&bad).is_err() {
+                invalid.push(json!({ "hex": common::to_hex(&bad), "error": error_name(&bad) }));
+            }
+        }
+    }
     // One vector per line keeps the file small and its diffs readable.
     let lines = |v: &[Value]| {
         v.iter()
@@ -134,7 +182,17 @@ fn committed_vectors_equal_rust_codec_output() {
         "host-sim/js/vectors.json differs from the Rust codec's output"
     );
     let v: Value = serde_json::from_str(&committed).unwrap();
-    assert_eq!(v["valid"].as_array().unwrap().len(), COUNT + STATUS_COUNT);
+    assert_eq!(
+        v["valid"].as_array().unwrap().len(),
+        COUNT + STATUS_COUNT + V2_COUNT
+    );
+    let v2 = v["valid"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|x| x["hex"].as_str().unwrap().starts_with("20"))
+        .count();
+    assert!(v2 > 100, "{v2} v2 full frames");
     // All error kinds the damage produces are represented.
     let kinds: std::collections::BTreeSet<&str> = v["invalid"]
         .as_array()

@@ -85,9 +85,10 @@ fn measure<const N: usize, const H: usize, const R: usize>(point: &PointConfig) 
 /// the optimiser cannot prove, so a panic path stays (a host/gateway
 /// convenience, not used by the node).
 fn frames() {
-    let bytes = [0u8; 64];
+    // Room for v2 frames (181 bytes at most).
+    let bytes = [0u8; 256];
     let input: &[u8] = black_box(&bytes[..]);
-    let mut out = [0u8; 64];
+    let mut out = [0u8; 256];
 
     if let Ok(r) = decode(input) {
         black_box(encoded_len(&r));

@@ -59,8 +59,12 @@ pub use outcome::{ConfigSource, CycleKind, CycleSummary, DownlinkOutcome, Survey
 pub use report::{band_in_use, frame_flags};
 pub use state::{CycleError, Fault, State};
 
-/// Capacity of the uplink frame buffer (frames are at most 51 bytes).
-pub const FRAME_CAPACITY: usize = 64;
+/// Capacity of the uplink frame buffer: the longest v2 report frame (8
+/// bearings, 4 meshes: 181 bytes; status frames are 27).
+pub const FRAME_CAPACITY: usize = wire::frame::v2::full_frame_len_v2(
+    wire::frame::layout::MAX_BEARINGS,
+    wire::frame::layout::MAX_MESHES,
+);
 /// Largest downlink accepted (authentication header and tag, command byte,
 /// largest record).
 pub const DOWNLINK_CAPACITY: usize = crate::downlink_auth::HEADER_LEN

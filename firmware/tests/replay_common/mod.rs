@@ -243,10 +243,10 @@ pub fn split_frames(mut b: &[u8]) -> Vec<Vec<u8>> {
     while !b.is_empty() {
         let n = match b[0] {
             0x4F => 12,
-            0x10 => wire::frame::layout::full_frame_len(usize::from(b[7] & 7)),
-            0x11 => wire::frame::layout::REDUCED_LEN,
-            0x12 => wire::frame::layout::STATUS_LEN,
-            x => panic!("unknown frame start {x:#04x}"),
+            // v1 and v2 report frames, status frames.
+            x => {
+                wire::frame::frame_len(b).unwrap_or_else(|| panic!("unknown frame start {x:#04x}"))
+            }
         };
         out.push(b[..n].to_vec());
         b = &b[n..];

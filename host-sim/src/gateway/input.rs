@@ -3,9 +3,6 @@
 
 use crate::error::CliError;
 use std::io::Read;
-use wire::frame::layout::{
-    full_frame_len, OFF_COUNT_ZONE, REDUCED_LEN, STATUS_LEN, TYPE_FULL, TYPE_REDUCED, TYPE_STATUS,
-};
 
 /// How payloads are written in the input.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum)]
@@ -162,17 +159,8 @@ pub fn split_binary(source: &str, data: &[u8]) -> Vec<InputItem> {
     let mut rest = data;
     let mut index = 1;
     while !rest.is_empty() {
-        let b0 = rest.first().copied().unwrap_or(0);
-        let len = match b0 & 0x0F {
-            TYPE_FULL if b0 >> 4 == 1 => rest
-                .get(OFF_COUNT_ZONE)
-                .map(|c| usize::from(c & 7))
-                .filter(|&n| n <= 4)
-                .map(full_frame_len),
-            TYPE_REDUCED if b0 >> 4 == 1 => Some(REDUCED_LEN),
-            TYPE_STATUS if b0 >> 4 == 1 => Some(STATUS_LEN),
-            _ => None,
-        };
+        // v1 and v2 report frames, v1 status frames (wire::frame::frame_len).
+        let len = wire::frame::frame_len(rest);
         let take = len.unwrap_or(rest.len()).min(rest.len());
         let (frame, tail) = rest.split_at(take);
         items.push(InputItem {

@@ -20,6 +20,7 @@ pub mod downlink;
 pub mod input;
 pub mod limits;
 pub mod limits_cmd;
+pub mod line_columns;
 pub mod map;
 pub mod plot;
 pub mod seq;

@@ -491,13 +491,16 @@ pub fn insert_frame(
     let id = conn.last_insert_rowid();
     super::series::stamp_band(conn, id, node)?;
     let mut stmt = conn.prepare_cached(
-        "INSERT INTO defects (report_id, bearing, kind, score_db, amplitude_1x_g, harmonics, detected)
-         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
+        "INSERT INTO defects (report_id, bearing, kind, score_db, amplitude_1x_g, harmonics, detected,
+           searched, amplitude_g, harmonics_searched, sidebands, margin_db)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12)",
     )?;
     match f {
         Frame::Full(r) => {
             for (b, br) in (0u8..).zip(r.bearings.iter()) {
                 for (k, d) in DefectKind::ALL.iter().zip(br.defects.iter()) {
+                    // v3 columns: from v2 frames, NULL for v1 (line_columns).
+                    let c = super::line_columns::line_columns(d);
                     stmt.execute(params![
                         id,
                         b,
@@ -505,7 +508,12 @@ pub fn insert_frame(
                         opt(d.score_db),
                         opt(d.amplitude_1x_g),
                         d.harmonics,
-                        d.detected
+                        d.detected,
+                        c.searched,
+                        c.amplitude_g,
+                        c.harmonics_searched,
+                        c.sidebands,
+                        c.margin_db
                     ])?;
                 }
             }
@@ -519,7 +527,12 @@ pub fn insert_frame(
                     opt(w.score_db),
                     None::<f64>,
                     None::<i64>,
-                    w.detected
+                    w.detected,
+                    true,
+                    None::<f64>,
+                    None::<i64>,
+                    None::<i64>,
+                    None::<f64>
                 ])?;
             }
         }

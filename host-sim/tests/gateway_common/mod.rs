@@ -22,6 +22,7 @@ pub fn frame(node: u16, seq: u16, bpfo_db: f32, detected: bool) -> Vec<u8> {
                 amplitude_1x_g: 0.001,
                 harmonics: 1,
                 detected: false,
+                line: None,
             };
         }
         if b == 0 {
@@ -30,6 +31,7 @@ pub fn frame(node: u16, seq: u16, bpfo_db: f32, detected: bool) -> Vec<u8> {
                 amplitude_1x_g: 0.01,
                 harmonics: 4,
                 detected,
+                line: None,
             };
         }
         r.bearings.push(br).unwrap();
@@ -104,6 +106,7 @@ pub fn frame_amp(node: u16, seq: u16, bpfo_g: f32, detected: bool) -> Vec<u8> {
         amplitude_1x_g: bpfo_g,
         harmonics: if detected { 4 } else { 0 },
         detected,
+        line: None,
     };
     let mut buf = [0u8; 64];
     let n = encode(&f, &mut buf).unwrap();

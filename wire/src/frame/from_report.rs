@@ -14,15 +14,117 @@
 //! | `processing_overrun` | `OVERRUN`, `RESAMPLER` |
 //! | `low_battery` | `LOW_BATTERY` |
 //!
-//! A bearing that was not analysed is sent with every defect's score and
-//! amplitude "invalid" (NaN), no harmonics and not detected, so a reader
-//! never takes it for a healthy 0 dB; the flags say why. The speed is
-//! "invalid" when no revolution was measured or the tach is missing.
+//! The frame is version 2 ([`super::v2`]): every line carries its state.
+//! A line that was not searched (its bearing not covered, the record not
+//! analysable, or no harmonic of it searchable) is state "not searched" with
+//! the reason, never "not detected"; its score and amplitude decode as NaN.
+//! A searched line carries its score, the summed amplitude of its counted
+//! harmonics, harmonics counted of searched, sidebands and margin. The speed
+//! is "invalid" when no revolution was measured or the tach is missing.
+//! Meshes carry their line measurement; their sidebands are not measured by
+//! the core yet (NaN, "not measured").
 
+use super::v2::{LineDetail, LineLink, LineState, MeshResult, NotSearchedCode};
 use super::{BearingResult, DefectResult, FrameReport, IsoZone, OverallIndicators, QualityFlags};
+use dsp_core::diagnosis::coverage::NotSearched;
+use dsp_core::diagnosis::defects::DefectResult as Found;
 use dsp_core::kinematics::DefectKind as Kind;
-use dsp_core::report::{QualityFlags as Q, Report};
+use dsp_core::report::{LineReport, QualityFlags as Q, Report};
 use dsp_core::velocity::Zone;
+
+fn reason(n: NotSearched) -> (NotSearchedCode, Option<u16>) {
+    match n {
+        NotSearched::AboveRange { needed } => (NotSearchedCode::AboveRange, Some(needed)),
+        NotSearched::TooSlow => (NotSearchedCode::TooSlow, None),
+        NotSearched::TooManyPasses { needed } => (NotSearchedCode::TooManyPasses, Some(needed)),
+        NotSearched::NotAnalysed => (NotSearchedCode::NotAnalysed, None),
+        NotSearched::PassMissing => (NotSearchedCode::PassMissing, None),
+        // A reason added to the core later: not searched all the same,
+        // reported as "not analysed" until the frame gets a code for it.
+        _ => (NotSearchedCode::NotAnalysed, None),
+    }
+}
+
+/// A line in state "not searched" for `code`.
+fn not_searched(code: NotSearchedCode, needed: Option<u16>) -> DefectResult {
+    DefectResult {
+        score_db: f32::NAN,
+        amplitude_1x_g: f32::NAN,
+        harmonics: 0,
+        detected: false,
+        line: Some(LineDetail {
+            state: LineState::NotSearched,
+            reason: Some(code),
+            // The frame carries 8..=2048; outside that the reason stands alone.
+            needed_samples_per_rev: needed.filter(|s| (8..=2048).contains(s)),
+            amplitude_g: f32::NAN,
+            harmonics_searched: 0,
+            sidebands: 0,
+            margin_db: f32::NAN,
+            shared_with: None,
+        }),
+    }
+}
+
+/// The other bearing's coinciding line of a shared finding. Main's core
+/// does not mark shared findings yet (every detection is state 2); the
+/// diagnosis branch's `shared_finding` connects here.
+fn shared_link(_d: &Found) -> Option<LineLink> {
+    None
+}
+
+/// One searched line of a bearing (`None` diagnosis entries never reach here).
+fn line(d: &Found) -> DefectResult {
+    if !d.searched() {
+        return not_searched(NotSearchedCode::NoHarmonic, None);
+    }
+    let searched = d.harmonics_searched.min(super::MAX_HARMONICS);
+    let found = d.harmonics_found.min(searched);
+    let link = shared_link(d).filter(|_| d.detected);
+    let state = match (d.detected, link) {
+        (true, Some(_)) => LineState::Shared,
+        (true, None) => LineState::Detected,
+        (false, _) => LineState::Searched,
+    };
+    DefectResult {
+        score_db: d.score_db,
+        amplitude_1x_g: d.fundamental_amplitude,
+        harmonics: found,
+        detected: d.detected,
+        line: Some(LineDetail {
+            state,
+            reason: None,
+            needed_samples_per_rev: None,
+            amplitude_g: d.amplitude_sum(),
+            harmonics_searched: searched,
+            sidebands: d.sidebands.min(found.min(3)),
+            margin_db: if found == 0 {
+                f32::NAN
+            } else {
+                d.margin_db().unwrap_or(0.0)
+            },
+            shared_with: link,
+        }),
+    }
+}
+
+fn mesh(l: &LineReport) -> MeshResult {
+    let m = &l.measurement;
+    if !m.searched {
+        return MeshResult::default();
+    }
+    MeshResult {
+        searched: true,
+        amplitude_g: m.amplitude,
+        prominence_db: if m.amplitude > 0.0 {
+            m.prominence_db
+        } else {
+            f32::NAN
+        },
+        sideband_gear_g: f32::NAN,
+        sideband_mate_g: f32::NAN,
+    }
+}
 
 fn flags(q: Q) -> QualityFlags {
     QualityFlags {
@@ -63,28 +165,29 @@ impl FrameReport {
     /// let frame = FrameReport::from_report(&p.finish(), 7, 1);
     /// assert!(frame.flags.sensor_fault); // an all-zero channel is flat
     /// let mut buf = [0u8; 64];
-    /// assert_eq!(encode(&frame, &mut buf), Ok(20)); // no bearings: 20 bytes
+    /// assert_eq!(encode(&frame, &mut buf), Ok(21)); // v2, no bearings: 21 bytes
     /// ```
     pub fn from_report(r: &Report, node_id: u16, seq: u16) -> FrameReport {
         let o = &r.overall;
+        let analysed = r.analysed();
         let mut bearings = heapless::Vec::new();
         for b in &r.bearings {
-            let defects = Kind::ALL.map(|k| match b.diagnosis.as_ref().and_then(|d| d.get(k)) {
-                Some(d) => DefectResult {
-                    score_db: d.score_db,
-                    amplitude_1x_g: d.fundamental_amplitude,
-                    harmonics: d.harmonics_found,
-                    detected: d.detected,
-                },
-                None => DefectResult {
-                    score_db: f32::NAN,
-                    amplitude_1x_g: f32::NAN,
-                    harmonics: 0,
-                    detected: false,
-                },
-            });
-            // Both lists hold at most MAX_BEARINGS (4) bearings.
+            let why = b.not_searched(analysed).map(reason);
+            let defects =
+                Kind::ALL.map(
+                    |k| match (why, b.diagnosis.as_ref().and_then(|d| d.get(k))) {
+                        (None, Some(d)) => line(d),
+                        (Some((code, needed)), _) => not_searched(code, needed),
+                        (None, None) => not_searched(NotSearchedCode::NotAnalysed, None),
+                    },
+                );
+            // Both lists hold at most MAX_BEARINGS (8) bearings.
             let _ = bearings.push(BearingResult { defects });
+        }
+        let mut meshes = heapless::Vec::new();
+        for l in &r.lines {
+            // Both lists hold at most MAX_MESHES (4) meshes.
+            let _ = meshes.push(mesh(l));
         }
         let flags = flags(r.flags);
         FrameReport {
@@ -105,7 +208,8 @@ impl FrameReport {
                 iso_zone: o.zone.map(zone),
             },
             bearings,
-            ..FrameReport::default()
+            meshes,
+            version: super::layout::FORMAT_VERSION_2,
         }
     }
 }

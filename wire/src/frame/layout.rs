@@ -1,8 +1,13 @@
 //! Byte offsets, field widths and the MSB-first bit packer of the frames.
 //! The authoritative description is docs/frame-format.md.
 
-/// Frame format version carried in the high nibble of byte 0.
+/// Frame format version 1, carried in the high nibble of byte 0: every
+/// status frame, and report frames of nodes in the field before v2.
 pub const FORMAT_VERSION: u8 = 1;
+/// Report frame format version 2 (full and reduced frames; status frames
+/// stay version 1): line states, finding size and certainty, meshes, 8
+/// bearings ([`super::v2`]). The node writes it.
+pub const FORMAT_VERSION_2: u8 = 2;
 /// Frame type (low nibble of byte 0): full report.
 pub const TYPE_FULL: u8 = 0;
 /// Frame type (low nibble of byte 0): reduced report (worst defect only).
@@ -18,14 +23,44 @@ pub const CRC_LEN: usize = 2;
 pub const DEFECT_BITS: usize = 19;
 /// Defects per bearing (BPFO, BPFI, FTF, BSF in that order).
 pub const DEFECTS_PER_BEARING: usize = 4;
-/// Most bearings one full frame can carry (3-bit count field, limited to 4).
-pub const MAX_BEARINGS: usize = 4;
+/// Most bearings one v2 full frame can carry (4-bit count field, limited to 8).
+pub const MAX_BEARINGS: usize = 8;
+/// Most bearings one v1 full frame can carry (3-bit count field, limited to 4).
+pub const V1_MAX_BEARINGS: usize = 4;
+/// Most gear meshes one v2 full frame can carry (3-bit count field, limited to 4).
+pub const MAX_MESHES: usize = 4;
 /// Length of a reduced frame.
 pub const REDUCED_LEN: usize = 11;
 /// Length of a status frame.
 pub const STATUS_LEN: usize = 27;
 /// Application payload limit of LoRaWAN EU868 DR0-DR2 (RP002 Regional Parameters).
 pub const EU868_DR0_MAX_PAYLOAD: usize = 51;
+/// Application payload limit of LoRaWAN EU868 DR3 (RP002-1.0.x, from memory).
+pub const EU868_DR3_MAX_PAYLOAD: usize = 115;
+/// Application payload limit of LoRaWAN EU868 DR4-DR7, repeater-compatible
+/// value (RP002-1.0.x, from memory).
+pub const EU868_DR4_MAX_PAYLOAD: usize = 222;
+
+/// The slowest EU868 data rate whose payload limit carries `len` bytes
+/// (`"DR0"` for DR0-DR2, `"DR3"`, `"DR4"` for DR4-DR7), `None` above 222.
+///
+/// ```
+/// use wire::frame::layout::eu868_slowest_rate;
+/// assert_eq!(eu868_slowest_rate(51), Some("DR0"));
+/// assert_eq!(eu868_slowest_rate(93), Some("DR3"));
+/// assert_eq!(eu868_slowest_rate(223), None);
+/// ```
+pub const fn eu868_slowest_rate(len: usize) -> Option<&'static str> {
+    if len <= EU868_DR0_MAX_PAYLOAD {
+        Some("DR0")
+    } else if len <= EU868_DR3_MAX_PAYLOAD {
+        Some("DR3")
+    } else if len <= EU868_DR4_MAX_PAYLOAD {
+        Some("DR4")
+    } else {
+        None
+    }
+}
 /// Application payload limit of LoRaWAN US915 DR0 (RP002 Regional Parameters).
 pub const US915_DR0_MAX_PAYLOAD: usize = 11;
 

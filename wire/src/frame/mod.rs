@@ -28,6 +28,7 @@ pub mod from_report;
 pub mod layout;
 pub mod quantisation;
 pub mod status;
+pub mod v2;
 
 use core::fmt;
 use heapless::Vec;
@@ -35,11 +36,12 @@ use serde::{Deserialize, Serialize};
 
 use layout::{
     full_frame_len, BitReader, BitWriter, CRC_LEN, DEFECTS_PER_BEARING, DEFECT_BITS,
-    FORMAT_VERSION, FULL_HEADER_LEN, MAX_BEARINGS, OFF_COUNT_ZONE, OFF_FLAGS, REDUCED_LEN,
-    STATUS_LEN, TYPE_FULL, TYPE_REDUCED, TYPE_STATUS,
+    FORMAT_VERSION, FORMAT_VERSION_2, FULL_HEADER_LEN, MAX_BEARINGS, MAX_MESHES, OFF_COUNT_ZONE,
+    OFF_FLAGS, REDUCED_LEN, STATUS_LEN, TYPE_FULL, TYPE_REDUCED, TYPE_STATUS, V1_MAX_BEARINGS,
 };
 use quantisation as q;
 pub use status::StatusReport;
+pub use v2::{LineDetail, LineLink, LineState, MeshResult, NotSearchedCode};
 
 /// Bearing defect kinds, in their fixed frame order (BPFO, BPFI, FTF, BSF):
 /// the core's own kinds, coded in frames by [`dsp_core::kinematics::DefectKind::index`].
@@ -141,14 +143,18 @@ pub struct OverallIndicators {
 #[derive(Clone, Copy, Debug, Default, PartialEq, Serialize, Deserialize)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct DefectResult {
-    /// Defect score in dB over the local spectral floor.
+    /// Defect score in dB over the local spectral floor (NaN when not searched).
     pub score_db: f32,
-    /// Envelope amplitude at the 1x defect order, in g.
+    /// Envelope amplitude at the 1x defect order, in g (v1 only; v2 carries
+    /// [`LineDetail::amplitude_g`] instead and decodes this as NaN).
     pub amplitude_1x_g: f32,
     /// Harmonics of the defect order found above the floor (0..=10).
     pub harmonics: u8,
-    /// The node's detection decision.
+    /// The node's detection decision (v2: state detected or shared).
     pub detected: bool,
+    /// Version 2: the line's state, size and certainty; `None` in v1 frames.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub line: Option<LineDetail>,
 }
 
 /// Results of one bearing, indexed by [`DefectKind::index`].
@@ -175,8 +181,15 @@ pub struct FrameReport {
     pub speed_rpm: f32,
     /// Overall indicators.
     pub overall: OverallIndicators,
-    /// Per-bearing results (0..=4 bearings).
+    /// Per-bearing results (v1: 0..=4 bearings, v2: 0..=8).
     pub bearings: Vec<BearingResult, MAX_BEARINGS>,
+    /// Version 2: watched gear meshes (0..=4); always empty in v1.
+    #[serde(default, skip_serializing_if = "no_meshes")]
+    pub meshes: Vec<MeshResult, MAX_MESHES>,
+}
+
+fn no_meshes(m: &Vec<MeshResult, MAX_MESHES>) -> bool {
+    m.is_empty()
 }
 
 impl Default for FrameReport {
@@ -189,6 +202,7 @@ impl Default for FrameReport {
             speed_rpm: 0.0,
             overall: OverallIndicators::default(),
             bearings: Vec::new(),
+            meshes: Vec::new(),
         }
     }
 }
@@ -197,7 +211,7 @@ impl Default for FrameReport {
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct WorstDefect {
-    /// Bearing index in the full report (0..=3).
+    /// Bearing index in the full report (v1: 0..=3, v2: 0..=7).
     pub bearing: u8,
     /// Defect kind.
     pub kind: DefectKind,
@@ -292,9 +306,21 @@ pub enum EncodeError {
         /// Buffer length.
         got: usize,
     },
-    /// More than 4 bearings cannot be represented (cannot happen with the
-    /// fixed-capacity `bearings`; kept for callers building frames by hand).
+    /// More bearings than the version carries (4 in v1, 8 in v2), or a
+    /// worst-defect bearing index beyond the reduced frame's field.
     TooManyBearings(usize),
+    /// Meshes in a v1 report (v1 has no mesh fields).
+    MeshesInV1(usize),
+    /// A v2 line whose fields contradict each other (or that has no
+    /// [`LineDetail`]).
+    InconsistentLine {
+        /// Bearing index.
+        bearing: u8,
+        /// Defect kind.
+        kind: DefectKind,
+        /// The field at fault.
+        field: v2::LineField,
+    },
     /// A harmonics count above 10.
     HarmonicsOutOfRange {
         /// Bearing index.
@@ -319,7 +345,23 @@ impl fmt::Display for EncodeError {
                     "buffer too small: frame needs {needed} bytes, buffer has {got}"
                 )
             }
-            EncodeError::TooManyBearings(n) => write!(f, "{n} bearings, at most 4 fit a frame"),
+            EncodeError::TooManyBearings(n) => write!(
+                f,
+                "{n} bearings, at most 4 fit a version 1 frame and 8 a version 2 frame"
+            ),
+            EncodeError::MeshesInV1(n) => {
+                write!(f, "{n} meshes: version 1 frames carry none, use version 2")
+            }
+            EncodeError::InconsistentLine {
+                bearing,
+                kind,
+                field,
+            } => write!(
+                f,
+                "bearing {bearing} {}: inconsistent {} for a version 2 frame",
+                kind.name(),
+                field.name()
+            ),
             EncodeError::HarmonicsOutOfRange {
                 bearing,
                 kind,
@@ -332,7 +374,7 @@ impl fmt::Display for EncodeError {
             EncodeError::UnsupportedVersion(v) => {
                 write!(
                     f,
-                    "report version {v}, this encoder writes {FORMAT_VERSION}"
+                    "report version {v}, this encoder writes {FORMAT_VERSION} and {FORMAT_VERSION_2}"
                 )
             }
             EncodeError::BandOutOfRange => {
@@ -362,7 +404,8 @@ pub enum DecodeError {
         /// Bytes received.
         got: usize,
     },
-    /// Version nibble other than [`FORMAT_VERSION`].
+    /// Version nibble not defined for the frame type (1 for every type, 2
+    /// for full and reduced frames).
     UnknownVersion(u8),
     /// Frame type nibble not defined in this version.
     UnknownFrameType(u8),
@@ -373,7 +416,7 @@ pub enum DecodeError {
         /// CRC carried by the frame.
         received: u16,
     },
-    /// Bearing count field above 4.
+    /// Bearing count field above 4 (v1) or 8 (v2), or mesh count above 4.
     TooManyBearings(u8),
     /// A reserved or spare bit is set (byte offset of the field).
     ReservedBits {
@@ -404,7 +447,12 @@ impl fmt::Display for DecodeError {
                 f,
                 "bad CRC: computed 0x{computed:04X}, frame carries 0x{received:04X}"
             ),
-            DecodeError::TooManyBearings(n) => write!(f, "bearing count {n}, at most 4"),
+            DecodeError::TooManyBearings(n) => {
+                write!(
+                    f,
+                    "bearing or mesh count {n}, more than the version carries"
+                )
+            }
             DecodeError::ReservedBits { offset } => {
                 write!(f, "reserved bits set in byte {offset}")
             }
@@ -458,21 +506,32 @@ fn seal(frame: &mut [u8]) {
     put_u16(frame, body_len, crc);
 }
 
-/// Length of the full frame for `r`.
+/// Length of the full frame for `r` (in its version).
 pub fn encoded_len(r: &FrameReport) -> usize {
-    full_frame_len(r.bearings.len())
+    if r.version == FORMAT_VERSION_2 {
+        v2::full_frame_len_v2(r.bearings.len(), r.meshes.len())
+    } else {
+        full_frame_len(r.bearings.len())
+    }
 }
 
-/// Encodes `r` as a full frame into `out`, returning the frame length.
-/// Non-finite and out-of-range values saturate as documented in
-/// [`quantisation`]; bytes of `out` past the frame are left untouched.
+/// Encodes `r` as a full frame of its version (1 or 2) into `out`,
+/// returning the frame length. Non-finite and out-of-range values saturate
+/// as documented in [`quantisation`]; bytes of `out` past the frame are left
+/// untouched. A v1 frame drops the v2 line details; a v2 frame needs every
+/// line's [`LineDetail`], consistent ([`EncodeError::InconsistentLine`]).
 pub fn encode(r: &FrameReport, out: &mut [u8]) -> Result<usize, EncodeError> {
-    if r.version != FORMAT_VERSION {
-        return Err(EncodeError::UnsupportedVersion(r.version));
-    }
+    let most = match r.version {
+        FORMAT_VERSION => V1_MAX_BEARINGS,
+        FORMAT_VERSION_2 => MAX_BEARINGS,
+        v => return Err(EncodeError::UnsupportedVersion(v)),
+    };
     let nb = r.bearings.len();
-    if nb > MAX_BEARINGS {
+    if nb > most {
         return Err(EncodeError::TooManyBearings(nb));
+    }
+    if r.version == FORMAT_VERSION && !r.meshes.is_empty() {
+        return Err(EncodeError::MeshesInV1(r.meshes.len()));
     }
     for (b, bearing) in (0u8..).zip(r.bearings.iter()) {
         for (kind, d) in DefectKind::ALL.iter().zip(bearing.defects.iter()) {
@@ -485,21 +544,26 @@ pub fn encode(r: &FrameReport, out: &mut [u8]) -> Result<usize, EncodeError> {
             }
         }
     }
-    let len = full_frame_len(nb);
+    let len = encoded_len(r);
     let got = out.len();
     let frame = out
         .get_mut(..len)
         .ok_or(EncodeError::BufferTooSmall { needed: len, got })?;
     frame.fill(0);
     if let Some(b0) = frame.first_mut() {
-        *b0 = FORMAT_VERSION << 4 | TYPE_FULL;
+        *b0 = r.version << 4 | TYPE_FULL;
     }
     put_u16(frame, 1, r.node_id);
     put_u16(frame, 3, r.seq);
     put_u16(frame, OFF_FLAGS, r.flags.to_bits());
+    // nb <= 4 (v1) or 8 (v2) checked above.
+    let count = u8::try_from(nb).unwrap_or(0);
     if let Some(b) = frame.get_mut(OFF_COUNT_ZONE) {
-        // nb <= 4 checked above.
-        *b = u8::try_from(nb).unwrap_or(0) | zone_code(r.overall.iso_zone) << 3;
+        *b = if r.version == FORMAT_VERSION_2 {
+            count | zone_code(r.overall.iso_zone) << 4
+        } else {
+            count | zone_code(r.overall.iso_zone) << 3
+        };
     }
     let o = &r.overall;
     put_u16(frame, 8, code16(q::SPEED_RPM.encode(r.speed_rpm)));
@@ -516,7 +580,15 @@ pub fn encode(r: &FrameReport, out: &mut [u8]) -> Result<usize, EncodeError> {
         16,
         code16(q::VELOCITY_MM_S.encode(o.velocity_rms_mm_s)),
     );
-    if let Some(body) = frame.get_mut(FULL_HEADER_LEN..len - CRC_LEN) {
+    if r.version == FORMAT_VERSION_2 {
+        if let Some(b) = frame.get_mut(v2::OFF_MESH_COUNT) {
+            // At most MAX_MESHES (4) by the Vec's capacity.
+            *b = u8::try_from(r.meshes.len()).unwrap_or(0);
+        }
+        if let Some(body) = frame.get_mut(v2::HEADER_LEN_V2..len - CRC_LEN) {
+            v2::put_body(r, body)?;
+        }
+    } else if let Some(body) = frame.get_mut(FULL_HEADER_LEN..len - CRC_LEN) {
         let mut w = BitWriter::new(body);
         for bearing in r.bearings.iter() {
             for d in bearing.defects.iter() {
@@ -533,16 +605,24 @@ pub fn encode(r: &FrameReport, out: &mut [u8]) -> Result<usize, EncodeError> {
 
 /// Encodes the reduced (11-byte) frame of `r` (see [`ReducedReport::from_report`]).
 pub fn encode_reduced(r: &FrameReport, out: &mut [u8]) -> Result<usize, EncodeError> {
-    if r.version != FORMAT_VERSION {
+    if r.version != FORMAT_VERSION && r.version != FORMAT_VERSION_2 {
         return Err(EncodeError::UnsupportedVersion(r.version));
     }
     encode_reduced_report(&ReducedReport::from_report(r), out)
 }
 
-/// Encodes an already reduced report into an 11-byte frame.
+/// Encodes an already reduced report into an 11-byte frame (v1: bearing
+/// index 0..=3 in 2 bits; v2: 0..=7 in 3 bits, the other fields one bit lower).
 pub fn encode_reduced_report(r: &ReducedReport, out: &mut [u8]) -> Result<usize, EncodeError> {
-    if r.version != FORMAT_VERSION {
-        return Err(EncodeError::UnsupportedVersion(r.version));
+    let most = match r.version {
+        FORMAT_VERSION => V1_MAX_BEARINGS,
+        FORMAT_VERSION_2 => MAX_BEARINGS,
+        v => return Err(EncodeError::UnsupportedVersion(v)),
+    };
+    if let Some(w) = &r.worst {
+        if usize::from(w.bearing) >= most {
+            return Err(EncodeError::TooManyBearings(usize::from(w.bearing) + 1));
+        }
     }
     let got = out.len();
     let frame = out
@@ -553,14 +633,18 @@ pub fn encode_reduced_report(r: &ReducedReport, out: &mut [u8]) -> Result<usize,
         })?;
     frame.fill(0);
     if let Some(b0) = frame.first_mut() {
-        *b0 = FORMAT_VERSION << 4 | TYPE_REDUCED;
+        *b0 = r.version << 4 | TYPE_REDUCED;
     }
     put_u16(frame, 1, r.node_id);
     put_u16(frame, 3, r.seq);
     put_u16(frame, OFF_FLAGS, r.flags.to_bits());
     if let Some(w) = &r.worst {
         if let Some(b) = frame.get_mut(7) {
-            *b = 0x80 | (w.bearing & 3) << 5 | kind_code(w.kind) << 3 | u8::from(w.detected) << 2;
+            *b = if r.version == FORMAT_VERSION_2 {
+                0x80 | (w.bearing & 7) << 4 | kind_code(w.kind) << 2 | u8::from(w.detected) << 1
+            } else {
+                0x80 | (w.bearing & 3) << 5 | kind_code(w.kind) << 3 | u8::from(w.detected) << 2
+            };
         }
         if let Some(b) = frame.get_mut(8) {
             *b = code8(q::SCORE_DB.encode(w.score_db)) << 2;
@@ -570,6 +654,35 @@ pub fn encode_reduced_report(r: &ReducedReport, out: &mut [u8]) -> Result<usize,
     Ok(REDUCED_LEN)
 }
 
+/// The length of the frame starting at `bytes[0]` as its header implies
+/// (version/type nibble and count bytes), `None` when the prefix is too
+/// short or not a frame start; for splitting concatenated frames. No CRC
+/// check: [`decode_any`] does that.
+///
+/// ```
+/// use wire::frame::frame_len;
+/// assert_eq!(frame_len(&[0x12]), Some(27));
+/// assert_eq!(frame_len(&[0x20, 0, 0, 0, 0, 0, 0, 0x04, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0x01]), Some(97));
+/// ```
+pub fn frame_len(bytes: &[u8]) -> Option<usize> {
+    let b0 = *bytes.first()?;
+    match (b0 >> 4, b0 & 0x0F) {
+        (FORMAT_VERSION, TYPE_FULL) => bytes
+            .get(OFF_COUNT_ZONE)
+            .map(|c| usize::from(c & 0x07))
+            .filter(|&n| n <= V1_MAX_BEARINGS)
+            .map(full_frame_len),
+        (FORMAT_VERSION_2, TYPE_FULL) => {
+            let nb = usize::from(bytes.get(OFF_COUNT_ZONE)? & 0x0F);
+            let nm = usize::from(bytes.get(v2::OFF_MESH_COUNT)? & 0x07);
+            (nb <= MAX_BEARINGS && nm <= MAX_MESHES).then(|| v2::full_frame_len_v2(nb, nm))
+        }
+        (FORMAT_VERSION | FORMAT_VERSION_2, TYPE_REDUCED) => Some(REDUCED_LEN),
+        (FORMAT_VERSION, TYPE_STATUS) => Some(STATUS_LEN),
+        _ => None,
+    }
+}
+
 /// Checks version/type nibble, exact length and CRC; returns the frame type.
 fn check_envelope(bytes: &[u8]) -> Result<u8, DecodeError> {
     let b0 = *bytes.first().ok_or(DecodeError::Truncated {
@@ -577,26 +690,45 @@ fn check_envelope(bytes: &[u8]) -> Result<u8, DecodeError> {
         got: 0,
     })?;
     let version = b0 >> 4;
-    if version != FORMAT_VERSION {
+    if version != FORMAT_VERSION && version != FORMAT_VERSION_2 {
         return Err(DecodeError::UnknownVersion(version));
     }
     let ftype = b0 & 0x0F;
     let got = bytes.len();
-    let expected = match ftype {
-        TYPE_FULL => {
+    let expected = match (ftype, version) {
+        (TYPE_FULL, FORMAT_VERSION) => {
             let min = full_frame_len(0);
             let count = *bytes
                 .get(OFF_COUNT_ZONE)
                 .ok_or(DecodeError::Truncated { needed: min, got })?
                 & 0x07;
-            if usize::from(count) > MAX_BEARINGS {
+            if usize::from(count) > V1_MAX_BEARINGS {
                 return Err(DecodeError::TooManyBearings(count));
             }
             full_frame_len(usize::from(count))
         }
-        TYPE_REDUCED => REDUCED_LEN,
-        TYPE_STATUS => STATUS_LEN,
-        t => return Err(DecodeError::UnknownFrameType(t)),
+        (TYPE_FULL, _) => {
+            let min = v2::full_frame_len_v2(0, 0);
+            let count = *bytes
+                .get(OFF_COUNT_ZONE)
+                .ok_or(DecodeError::Truncated { needed: min, got })?
+                & 0x0F;
+            let meshes = *bytes
+                .get(v2::OFF_MESH_COUNT)
+                .ok_or(DecodeError::Truncated { needed: min, got })?
+                & 0x07;
+            if usize::from(count) > MAX_BEARINGS {
+                return Err(DecodeError::TooManyBearings(count));
+            }
+            if usize::from(meshes) > MAX_MESHES {
+                return Err(DecodeError::TooManyBearings(meshes));
+            }
+            v2::full_frame_len_v2(usize::from(count), usize::from(meshes))
+        }
+        (TYPE_REDUCED, _) => REDUCED_LEN,
+        (TYPE_STATUS, FORMAT_VERSION) => STATUS_LEN,
+        (TYPE_STATUS, v) => return Err(DecodeError::UnknownVersion(v)),
+        (t, _) => return Err(DecodeError::UnknownFrameType(t)),
     };
     if got < expected {
         return Err(DecodeError::Truncated {
@@ -630,14 +762,20 @@ fn byte(bytes: &[u8], off: usize) -> u8 {
 
 fn decode_full_checked(bytes: &[u8]) -> Result<FrameReport, DecodeError> {
     let flags = decode_flags(bytes)?;
+    let version = byte(bytes, 0) >> 4;
     let cz = byte(bytes, OFF_COUNT_ZONE);
-    if cz & 0xC0 != 0 {
+    let (reserved, nb, zone) = if version == FORMAT_VERSION_2 {
+        (0x80, cz & 0x0F, (cz >> 4) & 0x07)
+    } else {
+        (0xC0, cz & 0x07, (cz >> 3) & 0x07)
+    };
+    if cz & reserved != 0 {
         return Err(DecodeError::ReservedBits {
             offset: OFF_COUNT_ZONE,
         });
     }
-    let nb = usize::from(cz & 0x07);
-    let iso_zone = match (cz >> 3) & 0x07 {
+    let nb = usize::from(nb);
+    let iso_zone = match zone {
         0 => None,
         1 => Some(IsoZone::A),
         2 => Some(IsoZone::B),
@@ -658,11 +796,35 @@ fn decode_full_checked(bytes: &[u8]) -> Result<FrameReport, DecodeError> {
         velocity_rms_mm_s: q::VELOCITY_MM_S.decode(u32::from(get_u16(bytes, 16))),
         iso_zone,
     };
+    let mut bearings: Vec<BearingResult, MAX_BEARINGS> = Vec::new();
+    let mut meshes: Vec<MeshResult, MAX_MESHES> = Vec::new();
+    if version == FORMAT_VERSION_2 {
+        let mc = byte(bytes, v2::OFF_MESH_COUNT);
+        if mc & 0xF8 != 0 {
+            return Err(DecodeError::ReservedBits {
+                offset: v2::OFF_MESH_COUNT,
+            });
+        }
+        let body = bytes
+            .get(v2::HEADER_LEN_V2..bytes.len().saturating_sub(CRC_LEN))
+            .unwrap_or(&[]);
+        // Bearing and mesh fields fill the body exactly: no padding.
+        v2::take_body(body, nb, usize::from(mc), &mut bearings, &mut meshes)?;
+        return Ok(FrameReport {
+            version,
+            node_id: get_u16(bytes, 1),
+            seq: get_u16(bytes, 3),
+            flags,
+            speed_rpm: q::SPEED_RPM.decode(u32::from(get_u16(bytes, 8))),
+            overall,
+            bearings,
+            meshes,
+        });
+    }
     let body = bytes
         .get(FULL_HEADER_LEN..bytes.len().saturating_sub(CRC_LEN))
         .unwrap_or(&[]);
     let mut rd = BitReader::new(body);
-    let mut bearings: Vec<BearingResult, MAX_BEARINGS> = Vec::new();
     for _ in 0..nb {
         let mut br = BearingResult::default();
         for d in br.defects.iter_mut() {
@@ -681,6 +843,7 @@ fn decode_full_checked(bytes: &[u8]) -> Result<FrameReport, DecodeError> {
                 amplitude_1x_g: q::amp_decode(amp),
                 harmonics: code8(harmonics),
                 detected,
+                line: None,
             };
         }
         // nb <= 4 was checked by check_envelope, so the push cannot fail.
@@ -704,28 +867,39 @@ fn decode_full_checked(bytes: &[u8]) -> Result<FrameReport, DecodeError> {
         speed_rpm: q::SPEED_RPM.decode(u32::from(get_u16(bytes, 8))),
         overall,
         bearings,
+        meshes,
     })
 }
 
 fn decode_reduced_checked(bytes: &[u8]) -> Result<ReducedReport, DecodeError> {
     let flags = decode_flags(bytes)?;
+    let version = byte(bytes, 0) >> 4;
+    let v2 = version == FORMAT_VERSION_2;
     let b7 = byte(bytes, 7);
     let b8 = byte(bytes, 8);
     let present = b7 & 0x80 != 0;
-    if b7 & 0x03 != 0 || !present && b7 != 0 {
+    let reserved7 = if v2 { 0x01 } else { 0x03 };
+    if b7 & reserved7 != 0 || !present && b7 != 0 {
         return Err(DecodeError::ReservedBits { offset: 7 });
     }
     if b8 & 0x03 != 0 || !present && b8 != 0 {
         return Err(DecodeError::ReservedBits { offset: 8 });
     }
-    let worst = present.then(|| WorstDefect {
-        bearing: (b7 >> 5) & 3,
-        kind: kind_from_code(b7 >> 3),
-        score_db: q::SCORE_DB.decode(u32::from(b8 >> 2)),
-        detected: b7 & 0x04 != 0,
+    let worst = present.then(|| {
+        let (bearing, kind, detected) = if v2 {
+            ((b7 >> 4) & 7, b7 >> 2, b7 & 0x02 != 0)
+        } else {
+            ((b7 >> 5) & 3, b7 >> 3, b7 & 0x04 != 0)
+        };
+        WorstDefect {
+            bearing,
+            kind: kind_from_code(kind),
+            score_db: q::SCORE_DB.decode(u32::from(b8 >> 2)),
+            detected,
+        }
     });
     Ok(ReducedReport {
-        version: FORMAT_VERSION,
+        version,
         node_id: get_u16(bytes, 1),
         seq: get_u16(bytes, 3),
         flags,
@@ -760,10 +934,15 @@ pub fn decode_any(bytes: &[u8]) -> Result<Frame, DecodeError> {
     }
 }
 
+/// A buffer size that holds the JSON form of any report ([`to_json`]): a
+/// v2 report of 8 bearings and 4 meshes with long float texts everywhere
+/// takes less (test `json_of_largest_v2_report_fits`).
+pub const JSON_MAX_LEN: usize = 12 * 1024;
+
 /// Writes the JSON form of `r` into `out` (serde-json-core; NaN becomes
-/// `null`), returning the number of bytes written. A 4-bearing report with
-/// long float texts takes 1766 bytes (test `json_of_four_bearings_fits_2k`), so
-/// a 2048-byte buffer is enough; a short buffer gives an error, not a panic.
+/// `null`), returning the number of bytes written. A v1 4-bearing report with
+/// long float texts takes 1766 bytes (test `json_of_four_bearings_fits_2k`);
+/// [`JSON_MAX_LEN`] holds any report; a short buffer gives an error, not a panic.
 pub fn to_json(r: &FrameReport, out: &mut [u8]) -> Result<usize, serde_json_core::ser::Error> {
     serde_json_core::to_slice(r, out)
 }
@@ -786,6 +965,7 @@ mod tests {
                 d.amplitude_1x_g = 0.01;
                 d.harmonics = 10;
                 d.detected = k % 2 == 0;
+                d.line = None;
             }
             r.bearings.push(br).unwrap();
         }
@@ -833,6 +1013,53 @@ mod tests {
         assert!(n > 1200 && n < 2048, "{n}");
         let mut small = [0u8; 64];
         assert!(to_json(&r, &mut small).is_err());
+    }
+
+    #[test]
+    fn json_of_largest_v2_report_fits() {
+        let mut r = sample(0);
+        r.version = FORMAT_VERSION_2;
+        r.speed_rpm = 12345.678;
+        for b in 0..MAX_BEARINGS {
+            let mut br = BearingResult::default();
+            for d in br.defects.iter_mut() {
+                *d = DefectResult {
+                    score_db: 61.999_99,
+                    amplitude_1x_g: 0.000_123_456_79,
+                    harmonics: 10,
+                    detected: true,
+                    line: Some(LineDetail {
+                        state: LineState::Shared,
+                        reason: Some(NotSearchedCode::TooManyPasses),
+                        needed_samples_per_rev: Some(1024),
+                        amplitude_g: 0.000_123_456_79,
+                        harmonics_searched: 10,
+                        sidebands: 3,
+                        margin_db: 0.000_123_456_79,
+                        shared_with: Some(LineLink {
+                            bearing: u8::try_from(b).unwrap(),
+                            kind: DefectKind::Bpfo,
+                        }),
+                    }),
+                };
+            }
+            r.bearings.push(br).unwrap();
+        }
+        for _ in 0..MAX_MESHES {
+            let x = 0.000_123_456_79;
+            r.meshes
+                .push(MeshResult {
+                    searched: true,
+                    amplitude_g: x,
+                    prominence_db: x,
+                    sideband_gear_g: x,
+                    sideband_mate_g: x,
+                })
+                .unwrap();
+        }
+        let mut buf = [0u8; JSON_MAX_LEN];
+        let n = to_json(&r, &mut buf).unwrap();
+        assert!(n > 8000 && n < JSON_MAX_LEN, "{n}");
     }
 
     #[test]

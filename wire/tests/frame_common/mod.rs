@@ -68,9 +68,113 @@ pub fn random_report(rng: &mut Rng) -> FrameReport {
                 amplitude_1x_g: amp,
                 harmonics: rng.below(11) as u8,
                 detected: rng.below(2) == 1,
+                line: None,
             };
         }
         r.bearings.push(b).unwrap();
+    }
+    r
+}
+
+/// A random, consistent version 2 report: 0..=8 bearings, 0..=4 meshes,
+/// every line state (shared lines linked to another bearing), every
+/// not-searched reason, amplitudes over both range ends.
+pub fn random_report_v2(rng: &mut Rng) -> FrameReport {
+    use wire::frame::layout::FORMAT_VERSION_2;
+    use wire::frame::{DefectKind, LineDetail, LineLink, LineState, MeshResult, NotSearchedCode};
+    let mut r = random_report(rng);
+    r.version = FORMAT_VERSION_2;
+    r.bearings.clear();
+    let nb = rng.below(9) as usize;
+    for _ in 0..nb {
+        let mut b = BearingResult::default();
+        for d in b.defects.iter_mut() {
+            let state = match rng.below(8) {
+                0 | 1 => LineState::NotSearched,
+                2..=4 => LineState::Searched,
+                5 | 6 => LineState::Detected,
+                _ if nb > 1 => LineState::Shared,
+                _ => LineState::Detected,
+            };
+            *d = if state == LineState::NotSearched {
+                let reason = [
+                    NotSearchedCode::NotAnalysed,
+                    NotSearchedCode::PassMissing,
+                    NotSearchedCode::AboveRange,
+                    NotSearchedCode::TooSlow,
+                    NotSearchedCode::TooManyPasses,
+                    NotSearchedCode::NoHarmonic,
+                ][rng.below(6) as usize];
+                let needed =
+                    (reason.has_needed() && rng.below(3) > 0).then(|| 8u16 << rng.below(9));
+                DefectResult {
+                    score_db: f32::NAN,
+                    amplitude_1x_g: f32::NAN,
+                    harmonics: 0,
+                    detected: false,
+                    line: Some(LineDetail {
+                        state,
+                        reason: Some(reason),
+                        needed_samples_per_rev: needed,
+                        amplitude_g: f32::NAN,
+                        margin_db: f32::NAN,
+                        ..LineDetail::default()
+                    }),
+                }
+            } else {
+                let searched = 1 + rng.below(10) as u8;
+                let found = rng.below(u64::from(searched) + 1) as u8;
+                let link = (state == LineState::Shared).then(|| {
+                    let mut k = rng.below(nb as u64 - 1) as u8;
+                    if usize::from(k) >= r.bearings.len() {
+                        k += 1; // never the bearing itself (index r.bearings.len())
+                    }
+                    LineLink {
+                        bearing: k,
+                        kind: DefectKind::ALL[rng.below(4) as usize],
+                    }
+                });
+                DefectResult {
+                    score_db: rng.value(0.0, 62.0),
+                    amplitude_1x_g: f32::NAN,
+                    harmonics: found,
+                    detected: state.is_detection(),
+                    line: Some(LineDetail {
+                        state,
+                        reason: None,
+                        needed_samples_per_rev: None,
+                        amplitude_g: if found == 0 {
+                            0.0
+                        } else {
+                            10f32.powf(rng.range(-6.0, 1.5))
+                        },
+                        harmonics_searched: searched,
+                        sidebands: rng.below(u64::from(found.min(3)) + 1) as u8,
+                        margin_db: if found == 0 {
+                            f32::NAN
+                        } else {
+                            rng.range(0.0, 70.0) // above 60 saturates
+                        },
+                        shared_with: link,
+                    }),
+                }
+            };
+        }
+        r.bearings.push(b).unwrap();
+    }
+    for _ in 0..rng.below(5) {
+        let m = if rng.below(4) == 0 {
+            MeshResult::default()
+        } else {
+            MeshResult {
+                searched: true,
+                amplitude_g: 10f32.powf(rng.range(-6.0, 1.5)),
+                prominence_db: rng.value(0.0, 62.0),
+                sideband_gear_g: rng.value(0.0, 0.5),
+                sideband_mate_g: rng.value(0.0, 0.5),
+            }
+        };
+        r.meshes.push(m).unwrap();
     }
     r
 }
