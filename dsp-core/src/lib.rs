@@ -41,6 +41,7 @@ pub mod defects;
 pub mod design;
 pub mod frame;
 pub mod frontend;
+pub mod kind_call;
 pub mod kinematics;
 pub mod num;
 pub mod order_track;

@@ -8,8 +8,11 @@
 //! band rule for all (by default the automatic band survey, see
 //! [`dsp_core::survey`]). A record with fault location `none` is correct
 //! when nothing is detected; an inner-race, outer-race or ball record when
-//! its kind (BPFI, BPFO, BSF) is detected and scores highest among the
-//! detections; records with another fault text are listed, not scored.
+//! the bearing's kind call ([`dsp_core::kind_call`]) names its kind (BPFI,
+//! BPFO, BSF): detected, highest score, and a clear margin. A fault record
+//! reported "damaged, kind uncertain" is neither right nor a wrong kind
+//! ([`crate::validate_outcome`]). Records with another fault text are
+//! listed, not scored.
 //!
 //! # Manifest
 //! One `[[recording]]` table per WAV file. Fields used (every other field is
@@ -48,6 +51,8 @@ use serde_json::{json, Value};
 
 use crate::analysis::{run, Accel, Record};
 use crate::error::CliError;
+use crate::validate_outcome::{outcome, Outcome};
+use dsp_core::kind_call::{kind_call, KindCall};
 use crate::wav::{read_wav, ReadOptions};
 
 /// How the envelope band is chosen for every record.
@@ -60,6 +65,11 @@ pub enum BandRule {
     Default,
     /// The same band for every record (clipped to 0.9 x Nyquist).
     Fixed([f32; 2]),
+    /// Issue 20 measurement: of the survey's bands, the one where the
+    /// watched lines' strongest family scores highest over its floor (the
+    /// envelope-spectrum evidence at the watched orders, any kind); the
+    /// spectral-kurtosis band when no band has a counted family.
+    Evidence,
 }
 
 impl std::str::FromStr for BandRule {
@@ -68,6 +78,7 @@ impl std::str::FromStr for BandRule {
         match s {
             "auto" => Ok(BandRule::Auto),
             "default" => Ok(BandRule::Default),
+            "evidence" => Ok(BandRule::Evidence),
             other => {
                 let parts: Vec<&str> = other.split(',').collect();
                 let nums: Result<Vec<f32>, _> = parts.iter().map(|p| p.trim().parse()).collect();
@@ -76,7 +87,7 @@ impl std::str::FromStr for BandRule {
                         Ok(BandRule::Fixed([*lo, *hi]))
                     }
                     _ => Err(format!(
-                        "`{other}`: give `auto`, `default` or `LO,HI` in Hz"
+                        "`{other}`: give `auto`, `default`, `evidence` or `LO,HI` in Hz"
                     )),
                 }
             }
@@ -760,6 +771,10 @@ pub struct RecordResult {
     /// Kinds detected on the decoy bearing (`Some` when one was watched):
     /// each a false alarm.
     pub decoy_detected: Option<Vec<DefectKind>>,
+    /// The documented bearing's kind call (issue 20); `None` without a diagnosis.
+    pub call: Option<KindCall>,
+    /// Scored outcome (`Some` for scored records).
+    pub outcome: Option<Outcome>,
 }
 
 /// Whether a detection list is right for an expectation (see the module doc).
@@ -796,11 +811,48 @@ pub fn choose_band(
             p.sample_rate_hz = fs;
             Ok((p.default_band_hz(), false, None))
         }
-        BandRule::Auto => {
+        BandRule::Auto | BandRule::Evidence => {
             let r = survey_record(x, point).map_err(|e| format!("band survey: {e}"))?;
             Ok((r.band_hz, true, Some(r.kurtosis)))
         }
     }
+}
+
+/// [`BandRule::Evidence`]: runs the point in every survey band and keeps
+/// the band whose strongest family (any kind of the first bearing) has the
+/// highest score; the survey's own band on a tie (e.g. nothing counted).
+fn evidence_band(
+    x: &[f32],
+    fs: f32,
+    point: &PointConfig,
+) -> Result<([f32; 2], bool, Option<f32>), String> {
+    let r = survey_record(x, point).map_err(|e| format!("band survey: {e}"))?;
+    let mut best = (r.band_hz, r.kurtosis, 0.0f32);
+    for b in &r.bands {
+        let mut p = point.clone();
+        p.band_hz = Some(b.band_hz);
+        let rec = Record {
+            sample_rate_hz: fs,
+            accel: Accel::G(x.to_vec()),
+            edges_s: None,
+        };
+        let Ok(a) = run(&p, &rec) else { continue };
+        let score = a
+            .report
+            .bearings
+            .first()
+            .and_then(|b| b.diagnosis.as_ref())
+            .map_or(0.0, |d| {
+                d.results
+                    .iter()
+                    .map(|r| r.score_db)
+                    .fold(0.0f32, f32::max)
+            });
+        if score > best.2 {
+            best = (b.band_hz, b.kurtosis, score);
+        }
+    }
+    Ok((best.0, true, Some(best.1)))
 }
 
 /// Runs the node's band survey for `point` ([`dsp_core::band_choice`]) over
@@ -834,6 +886,8 @@ fn blank(entry: &ManifestEntry) -> RecordResult {
         notes: Vec::new(),
         detail: Vec::new(),
         decoy_detected: None,
+        call: None,
+        outcome: None,
     }
 }
 
@@ -854,12 +908,15 @@ pub fn analyse_entry(dir: &Path, entry: &ManifestEntry, rule: BandRule) -> Recor
         }
     };
     match res {
-        Ok(()) => out.correct = out.expected.map(|e| judge(e, &out.detected, &out.scores)),
+        Ok(()) => {}
         Err(e) => {
-            out.correct = out.expected.map(|_| false);
+            out.call = None;
             out.error = Some(e);
         }
     }
+    // Scored by the kind call (issue 20): right only when the kind is named.
+    out.outcome = out.expected.map(|e| outcome(e, out.call));
+    out.correct = out.outcome.map(|o| o == Outcome::Right);
     out
 }
 
@@ -905,11 +962,16 @@ fn analyse_into(
             4096 / usize::from(point.samples_per_rev)
         ));
     }
-    let (band, auto, k) = match choose_band(rule, &x, fs, &point) {
+    let chosen = if rule == BandRule::Evidence {
+        evidence_band(&x, fs, &point)
+    } else {
+        choose_band(rule, &x, fs, &point)
+    };
+    let (band, auto, k) = match chosen {
         Ok(b) => b,
         // Lines too fast for any survey band of the minimum width: the
         // default octave, noted.
-        Err(e) if rule == BandRule::Auto => {
+        Err(e) if matches!(rule, BandRule::Auto | BandRule::Evidence) => {
             out.notes.push(format!("{e}: default band used"));
             choose_band(BandRule::Default, &x, fs, &point)?
         }
@@ -936,6 +998,7 @@ fn analyse_into(
     }
     if let Some(d) = rep.bearings.first().and_then(|b| b.diagnosis.as_ref()) {
         out.detected = d.detected().collect();
+        out.call = Some(kind_call(d));
         out.detail = detail_lines(d, "");
         for r in &d.results {
             if let Some(s) = out.scores.get_mut(r.kind.index()) {
@@ -1085,6 +1148,8 @@ pub fn report_json(data_dir: &Path, results: &[RecordResult]) -> Value {
                 "error": r.error,
                 "notes": r.notes,
                 "decoy_detected": r.decoy_detected.as_deref().map(kind_names),
+                "call": r.call.map(|c| c.label()),
+                "outcome": r.outcome.map(Outcome::name),
             })
         })
         .collect();
@@ -1098,11 +1163,42 @@ pub fn report_json(data_dir: &Path, results: &[RecordResult]) -> Value {
         "summary": {
             "total": total, "correct": correct, "errors": errors,
             "listed": results.len(), "groups": groups,
+            "outcomes": outcome_json(results),
             "decoy": decoy_summary(results).map(|(alarms, watched)| json!({
                 "watched": watched, "false_alarms": alarms,
             })),
         },
     })
+}
+
+/// Scored records per outcome, by fault type (`all` first).
+fn outcome_rows(results: &[RecordResult]) -> Vec<(String, [usize; 5])> {
+    let mut rows: Vec<(String, [usize; 5])> = Vec::new();
+    for r in results {
+        let Some(o) = r.outcome else { continue };
+        let c = crate::validate_outcome::counts(core::iter::once(o));
+        for g in ["all".to_string(), canonical_location(&r.fault_location)] {
+            match rows.iter_mut().find(|e| e.0 == g) {
+                Some(e) => e.1.iter_mut().zip(c).for_each(|(a, b)| *a += b),
+                None => rows.push((g, c)),
+            }
+        }
+    }
+    rows
+}
+
+fn outcome_json(results: &[RecordResult]) -> Value {
+    outcome_rows(results)
+        .into_iter()
+        .map(|(g, c)| {
+            let mut m = serde_json::Map::new();
+            m.insert("group".into(), json!(g));
+            for (o, n) in Outcome::ALL.iter().zip(c) {
+                m.insert(o.name().into(), json!(n));
+            }
+            Value::Object(m)
+        })
+        .collect()
 }
 
 /// Decoy false alarms over the records where a decoy bearing was watched:
@@ -1158,10 +1254,13 @@ pub fn run_cmd(args: &ValidateArgs) -> Result<(), CliError> {
                 r.band_hz[1],
                 r.samples_per_rev,
                 if det.is_empty() { "-" } else { &det },
-                match (r.correct, &r.error) {
+                match (r.outcome, &r.error) {
                     (_, Some(e)) => format!("ERROR {e}"),
-                    (Some(true), _) => "right".into(),
-                    (Some(false), _) => "WRONG".into(),
+                    (Some(Outcome::Right), _) => "right".into(),
+                    (Some(Outcome::KindUncertain), _) => "kind uncertain".into(),
+                    (Some(Outcome::WrongKind), _) => "WRONG KIND".into(),
+                    (Some(Outcome::Missed), _) => "missed".into(),
+                    (Some(Outcome::FalseAlarm), _) => "FALSE ALARM".into(),
                     (None, _) => "(not scored)".into(),
                 }
             );
@@ -1183,6 +1282,14 @@ pub fn run_cmd(args: &ValidateArgs) -> Result<(), CliError> {
         println!();
         for (g, t, c) in totals(&results) {
             println!("{g:<28} {c:>3}/{t:<3}");
+        }
+        for (g, c) in outcome_rows(&results) {
+            let parts: Vec<String> = Outcome::ALL
+                .iter()
+                .zip(c)
+                .map(|(o, n)| format!("{} {n}", o.name()))
+                .collect();
+            println!("outcomes {g:<19} {}", parts.join(", "));
         }
         println!(
             "correct {correct} of {total} scored records ({} listed, {errors} with errors)",

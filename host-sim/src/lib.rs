@@ -33,4 +33,5 @@ pub mod point;
 pub mod report_json;
 pub mod report_policy;
 pub mod simulate;
+pub mod validate_outcome;
 pub mod wav;
