@@ -1,5 +1,5 @@
 //! How `envord validate` scores one record from the bearing's kind call
-//! ([`dsp_core::kind_call`]): right, damaged with the kind uncertain, wrong
+//! ([`dsp_core::diagnosis::kind_call`]): right, damaged with the kind uncertain, wrong
 //! kind, missed, or a false alarm.
 //!
 //! A wrong kind is worse than a miss (it orders the wrong repair), so the
@@ -8,7 +8,7 @@
 //! kind is named), not missed (the damage is reported). On a healthy record
 //! any finding, kind-uncertain included, is a false alarm.
 
-use dsp_core::kind_call::KindCall;
+use dsp_core::diagnosis::kind_call::KindCall;
 use dsp_core::kinematics::DefectKind;
 
 /// Outcome of one scored record.
@@ -78,14 +78,20 @@ pub fn counts(outcomes: impl Iterator<Item = Outcome>) -> [usize; 5] {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use dsp_core::kind_call::UncertainReason;
+    use dsp_core::diagnosis::kind_call::UncertainReason;
 
     #[test]
     fn outcomes() {
         let unc = KindCall::Uncertain(UncertainReason::CageOnly);
         let bpfo = Some(DefectKind::Bpfo);
-        assert_eq!(outcome(bpfo, Some(KindCall::Named(DefectKind::Bpfo))), Outcome::Right);
-        assert_eq!(outcome(bpfo, Some(KindCall::Named(DefectKind::Bpfi))), Outcome::WrongKind);
+        assert_eq!(
+            outcome(bpfo, Some(KindCall::Named(DefectKind::Bpfo))),
+            Outcome::Right
+        );
+        assert_eq!(
+            outcome(bpfo, Some(KindCall::Named(DefectKind::Bpfi))),
+            Outcome::WrongKind
+        );
         assert_eq!(outcome(bpfo, Some(unc)), Outcome::KindUncertain);
         assert_eq!(outcome(bpfo, Some(KindCall::NoFinding)), Outcome::Missed);
         assert_eq!(outcome(bpfo, None), Outcome::Missed);
