@@ -34,4 +34,5 @@ pub mod report_json;
 pub mod report_policy;
 pub mod simulate;
 pub mod validate;
+pub mod validate_outcome;
 pub mod wav;

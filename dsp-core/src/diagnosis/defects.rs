@@ -321,6 +321,13 @@ impl BearingDiagnosis {
     pub fn detected(&self) -> impl Iterator<Item = DefectKind> + '_ {
         self.results.iter().filter(|r| r.detected).map(|r| r.kind)
     }
+
+    // --- issue 20 hook: the kind call lives in `crate::diagnosis::kind_call` ---
+    /// Whether the detections name one kind or say "damaged, kind
+    /// uncertain" ([`crate::diagnosis::kind_call`]).
+    pub fn kind_call(&self) -> crate::diagnosis::kind_call::KindCall {
+        crate::diagnosis::kind_call::kind_call(self)
+    }
 }
 
 /// A validated search configuration.

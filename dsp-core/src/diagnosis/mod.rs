@@ -10,6 +10,7 @@
 
 pub mod coverage;
 pub mod defects;
+pub mod kind_call;
 pub mod kinematics;
 
 pub use coverage::{Coverage, NotSearched, Pass, MAX_PASSES};

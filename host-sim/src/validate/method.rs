@@ -10,11 +10,12 @@ use dsp_core::pipeline::NodePipeline;
 use dsp_core::survey::SurveyError;
 
 use super::manifest::{decoy_entry, expected_kind, parse_manifest, ManifestEntry, ManifestRecord};
-use super::score::judge;
 use super::BandRule;
 use crate::analysis::{run, Accel, Record};
 use crate::error::CliError;
+use crate::validate_outcome::{outcome, Outcome};
 use crate::wav::{read_wav, ReadOptions};
+use dsp_core::diagnosis::kind_call::{kind_call, KindCall};
 
 /// Fewest spectrum segments [`validation_point`] averages when the record
 /// allows (see docs/validation.md for the measurement behind the value).
@@ -202,6 +203,10 @@ pub struct RecordResult {
     /// Kinds detected on the decoy bearing (`Some` when one was watched):
     /// each a false alarm.
     pub decoy_detected: Option<Vec<DefectKind>>,
+    /// The documented bearing's kind call (issue 20); `None` without a diagnosis.
+    pub call: Option<KindCall>,
+    /// Scored outcome (`Some` for scored records).
+    pub outcome: Option<Outcome>,
 }
 
 /// Why a record's band cannot be chosen ([`choose_band`]).
@@ -257,7 +262,7 @@ pub fn choose_band(
             p.sample_rate_hz = fs;
             Ok((p.default_band_hz(), false, None))
         }
-        BandRule::Auto => {
+        BandRule::Auto | BandRule::Evidence => {
             let mut p = point.clone();
             p.band_hz = None;
             match crate::analysis::choose_band(&mut p, rec) {
@@ -269,6 +274,41 @@ pub fn choose_band(
             }
         }
     }
+}
+
+/// [`BandRule::Evidence`] (issue 20 measurement): runs the point in every
+/// band of the survey and keeps the band whose strongest family (any kind of
+/// the first bearing) scores highest; the survey's own band on a tie (e.g.
+/// nothing counted in any band).
+fn evidence_band(
+    rec: &Record,
+    point: &PointConfig,
+) -> Result<([f32; 2], bool, Option<f32>), BandError> {
+    let mut p = point.clone();
+    p.band_hz = None;
+    let survey = match crate::analysis::choose_band(&mut p, rec) {
+        Ok(Some(r)) => r,
+        Ok(None) => return choose_band(BandRule::Default, rec, point),
+        Err(e) => return Err(BandError::Survey(e)),
+    };
+    let mut best = (survey.band_hz, survey.kurtosis, 0.0f32);
+    for b in &survey.bands {
+        let mut q = point.clone();
+        q.band_hz = Some(b.band_hz);
+        let Ok(a) = run(&q, rec) else { continue };
+        let score = a
+            .report
+            .bearings
+            .first()
+            .and_then(|b| b.diagnosis.as_ref())
+            .map_or(0.0, |d| {
+                d.results.iter().map(|r| r.score_db).fold(0.0f32, f32::max)
+            });
+        if score > best.2 {
+            best = (b.band_hz, b.kurtosis, score);
+        }
+    }
+    Ok((best.0, true, Some(best.1)))
 }
 
 /// An empty result for an entry, before analysis.
@@ -292,6 +332,8 @@ fn blank(entry: &ManifestEntry) -> RecordResult {
         notes: Vec::new(),
         detail: Vec::new(),
         decoy_detected: None,
+        call: None,
+        outcome: None,
     }
 }
 
@@ -312,12 +354,15 @@ pub fn analyse_entry(dir: &Path, entry: &ManifestEntry, rule: BandRule) -> Recor
         }
     };
     match res {
-        Ok(()) => out.correct = out.expected.map(|e| judge(e, &out.detected, &out.scores)),
+        Ok(()) => {}
         Err(e) => {
-            out.correct = out.expected.map(|_| false);
+            out.call = None;
             out.error = Some(e);
         }
     }
+    // Scored by the kind call (issue 20): right only when the kind is named.
+    out.outcome = out.expected.map(|e| outcome(e, out.call));
+    out.correct = out.outcome.map(|o| o == Outcome::Right);
     out
 }
 
@@ -368,11 +413,16 @@ fn analyse_into(
         accel: Accel::G(x),
         edges_s: None,
     };
-    let (band, auto, k) = match choose_band(rule, &record, &point) {
+    let chosen = if rule == BandRule::Evidence {
+        evidence_band(&record, &point)
+    } else {
+        choose_band(rule, &record, &point)
+    };
+    let (band, auto, k) = match chosen {
         Ok(b) => b,
         // Lines too fast for any survey band of the minimum width: the
         // default octave, noted.
-        Err(e) if rule == BandRule::Auto => {
+        Err(e) if matches!(rule, BandRule::Auto | BandRule::Evidence) => {
             out.notes.push(format!("{e}: default band used"));
             choose_band(BandRule::Default, &record, &point).map_err(|e| e.to_string())?
         }
@@ -391,6 +441,7 @@ fn analyse_into(
     }
     if let Some(d) = rep.bearings.first().and_then(|b| b.diagnosis.as_ref()) {
         out.detected = d.detected().collect();
+        out.call = Some(kind_call(d));
         out.detail = detail_lines(d, "");
         for r in &d.results {
             if let Some(s) = out.scores.get_mut(r.kind.index()) {

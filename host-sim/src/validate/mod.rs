@@ -8,8 +8,11 @@
 //! band rule for all (by default the automatic band survey, see
 //! [`dsp_core::survey`]). A record with fault location `none` is correct
 //! when nothing is detected; an inner-race, outer-race or ball record when
-//! its kind (BPFI, BPFO, BSF) is detected and scores highest among the
-//! detections; records with another fault text are listed, not scored.
+//! the bearing's kind call ([`dsp_core::diagnosis::kind_call`]) names its
+//! kind (BPFI, BPFO, BSF): detected, highest score, and a clear margin. A
+//! fault record reported "damaged, kind uncertain" is neither right nor a
+//! wrong kind ([`crate::validate_outcome`]). Records with another fault
+//! text are listed, not scored.
 //!
 //! # Manifest
 //! One `[[recording]]` table per WAV file. Fields used (every other field is
@@ -73,6 +76,11 @@ pub enum BandRule {
     Default,
     /// The same band for every record (clipped to 0.9 x Nyquist).
     Fixed([f32; 2]),
+    /// Issue 20 measurement: of the survey's bands, the one where the
+    /// watched lines' strongest family scores highest over its floor (the
+    /// envelope-spectrum evidence at the watched orders, any kind); the
+    /// spectral-kurtosis band when no band has a counted family.
+    Evidence,
 }
 
 /// A `--band` value that is none of `auto`, `default`, `LO,HI`.
@@ -86,7 +94,7 @@ impl std::fmt::Display for BandRuleError {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         write!(
             f,
-            "`{}`: give `auto`, `default` or `LO,HI` in Hz",
+            "`{}`: give `auto`, `default`, `evidence` or `LO,HI` in Hz",
             self.text
         )
     }
@@ -100,6 +108,7 @@ impl std::str::FromStr for BandRule {
         match s {
             "auto" => Ok(BandRule::Auto),
             "default" => Ok(BandRule::Default),
+            "evidence" => Ok(BandRule::Evidence),
             other => {
                 let parts: Vec<&str> = other.split(',').collect();
                 let nums: Result<Vec<f32>, _> = parts.iter().map(|p| p.trim().parse()).collect();

@@ -7,7 +7,23 @@ use dsp_core::kinematics::DefectKind;
 use serde_json::{json, Value};
 
 use super::method::RecordResult;
-use super::score::{decoy_summary, totals};
+use super::score::{decoy_summary, outcome_rows, totals};
+use crate::validate_outcome::Outcome;
+
+/// `summary.outcomes`: per group, the scored records per outcome.
+fn outcome_json(results: &[RecordResult]) -> Value {
+    outcome_rows(results)
+        .into_iter()
+        .map(|(g, c)| {
+            let mut m = serde_json::Map::new();
+            m.insert("group".into(), json!(g));
+            for (o, n) in Outcome::ALL.iter().zip(c) {
+                m.insert(o.name().into(), json!(n));
+            }
+            Value::Object(m)
+        })
+        .collect()
+}
 
 fn kind_names(k: &[DefectKind]) -> Vec<&'static str> {
     k.iter().map(|k| k.name()).collect()
@@ -53,6 +69,8 @@ pub fn report_json(data_dir: &Path, results: &[RecordResult]) -> Value {
                 "error": r.error,
                 "notes": r.notes,
                 "decoy_detected": r.decoy_detected.as_deref().map(kind_names),
+                "call": r.call.map(|c| c.label()),
+                "outcome": r.outcome.map(Outcome::name),
             })
         })
         .collect();
@@ -66,6 +84,7 @@ pub fn report_json(data_dir: &Path, results: &[RecordResult]) -> Value {
         "summary": {
             "total": total, "correct": correct, "errors": errors,
             "listed": results.len(), "groups": groups,
+            "outcomes": outcome_json(results),
             "decoy": decoy_summary(results).map(|(alarms, watched)| json!({
                 "watched": watched, "false_alarms": alarms,
             })),
@@ -102,10 +121,13 @@ pub fn print_table(results: &[RecordResult], detail: bool) {
             r.band_hz[1],
             r.samples_per_rev,
             if det.is_empty() { "-" } else { &det },
-            match (r.correct, &r.error) {
+            match (r.outcome, &r.error) {
                 (_, Some(e)) => format!("ERROR {e}"),
-                (Some(true), _) => "right".into(),
-                (Some(false), _) => "WRONG".into(),
+                (Some(Outcome::Right), _) => "right".into(),
+                (Some(Outcome::KindUncertain), _) => "kind uncertain".into(),
+                (Some(Outcome::WrongKind), _) => "WRONG KIND".into(),
+                (Some(Outcome::Missed), _) => "missed".into(),
+                (Some(Outcome::FalseAlarm), _) => "FALSE ALARM".into(),
                 (None, _) => "(not scored)".into(),
             }
         );
@@ -127,6 +149,14 @@ pub fn print_table(results: &[RecordResult], detail: bool) {
     println!();
     for (g, t, c) in totals(results) {
         println!("{g:<28} {c:>3}/{t:<3}");
+    }
+    for (g, c) in outcome_rows(results) {
+        let parts: Vec<String> = Outcome::ALL
+            .iter()
+            .zip(c)
+            .map(|(o, n)| format!("{} {n}", o.name()))
+            .collect();
+        println!("outcomes {g:<19} {}", parts.join(", "));
     }
     println!(
         "correct {correct} of {total} scored records ({} listed, {errors} with errors)",

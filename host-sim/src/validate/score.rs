@@ -5,6 +5,7 @@ use dsp_core::kinematics::DefectKind;
 
 use super::manifest::canonical_location;
 use super::method::RecordResult;
+use crate::validate_outcome::counts;
 
 /// Whether a detection list is right for an expectation (see the module doc).
 pub fn judge(expected: Option<DefectKind>, detected: &[DefectKind], scores: &[f32; 4]) -> bool {
@@ -43,6 +44,23 @@ pub fn totals(results: &[RecordResult]) -> Vec<(String, usize, usize)> {
         add(format!("{loc} / {ch}"), ok);
     }
     groups
+}
+
+/// Scored records per outcome ([`crate::validate_outcome`]), by fault type
+/// (`all` first), counts in [`crate::validate_outcome::Outcome::ALL`] order.
+pub fn outcome_rows(results: &[RecordResult]) -> Vec<(String, [usize; 5])> {
+    let mut rows: Vec<(String, [usize; 5])> = Vec::new();
+    for r in results {
+        let Some(o) = r.outcome else { continue };
+        let c = counts(core::iter::once(o));
+        for g in ["all".to_string(), canonical_location(&r.fault_location)] {
+            match rows.iter_mut().find(|e| e.0 == g) {
+                Some(e) => e.1.iter_mut().zip(c).for_each(|(a, b)| *a += b),
+                None => rows.push((g, c)),
+            }
+        }
+    }
+    rows
 }
 
 /// Decoy false alarms over the records where a decoy bearing was watched:
