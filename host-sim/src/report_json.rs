@@ -30,6 +30,7 @@ fn defect_json(
     line_order: f32,
     r: Option<&DefectResult>,
     not_searched: Option<String>,
+    bearing_name: &dyn Fn(u8) -> String,
 ) -> Value {
     let searched = r.is_some_and(DefectResult::searched);
     let mut v = json!({
@@ -47,6 +48,12 @@ fn defect_json(
         "amplitude_g": r.map_or(Value::Null, |r| finite(r.amplitude_sum())),
         "sidebands": r.map_or(0, |r| r.sidebands),
         "margin_db": r.and_then(DefectResult::margin_db).map_or(Value::Null, finite),
+        // A finding shared with a coinciding line of another bearing (ambiguous
+        // by physics): that bearing and kind; null otherwise.
+        "shared_finding": r.and_then(|r| r.shared_finding).map_or(Value::Null, |l| json!({
+            "bearing": bearing_name(l.bearing),
+            "kind": l.kind.name(),
+        })),
     });
     let Some(obj) = v.as_object_mut() else {
         return v;
@@ -79,6 +86,7 @@ fn defect_json(
                             "found": h.found,
                             "counted": h.counted,
                             "shared_with": h.shared_with.map(|k| k.name()),
+                            "shared_bearing": h.shared_bearing.map(bearing_name),
                         })
                     })
                     .collect(),
@@ -88,10 +96,19 @@ fn defect_json(
     v
 }
 
+/// The name of bearing `i` of a report (`#i` when out of range).
+pub fn bearing_name(report: &Report, i: u8) -> String {
+    report
+        .bearings
+        .get(usize::from(i))
+        .map_or_else(|| format!("#{i}"), |b| b.name.to_string())
+}
+
 /// The report as JSON; `file` names the recording when there is one.
 pub fn to_json(report: &Report, file: Option<&str>) -> Value {
     let s = &report.speed;
     let o = &report.overall;
+    let bearing_name = |i: u8| bearing_name(report, i);
     let bearings: Vec<Value> = report
         .bearings
         .iter()
@@ -101,7 +118,13 @@ pub fn to_json(report: &Report, file: Option<&str>) -> Value {
                 .iter()
                 .map(|&k| {
                     let r = b.diagnosis.as_ref().and_then(|d| d.get(k));
-                    defect_json(k, b.orders.line(k), r, why.map(|w| w.to_string()))
+                    defect_json(
+                        k,
+                        b.orders.line(k),
+                        r,
+                        why.map(|w| w.to_string()),
+                        &bearing_name,
+                    )
                 })
                 .collect();
             let pass = b.coverage.ok();
@@ -336,10 +359,18 @@ pub fn to_table(report: &Report, group: MachineGroup, support: Support) -> Strin
                 )),
                 r.map_or("-".into(), |r| format!("{:.2e}", r.fundamental_amplitude)),
                 r.map_or("-".into(), |r| format!("{:.2e}", r.amplitude_sum())),
-                if r.is_some_and(|r| r.detected) {
-                    "YES"
-                } else {
-                    "no"
+                match r {
+                    Some(r) if r.detected => match r.shared_finding {
+                        Some(l) => format!(
+                            "YES, shared by {} and {} ({} {}): coinciding lines, either bearing",
+                            b.name.as_str(),
+                            bearing_name(report, l.bearing),
+                            bearing_name(report, l.bearing),
+                            l.kind.name()
+                        ),
+                        None => "YES".into(),
+                    },
+                    _ => "no".into(),
                 }
             );
         }
