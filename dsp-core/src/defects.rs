@@ -83,9 +83,9 @@
 //! has been searched (the pipeline calls it): a counted peak that lies on
 //! the comb of a *detected* family of another bearing (a harmonic of its
 //! anchored line or one of its modulation sidebands, as in step 5) counts
-//! for only one of them. The family explaining the larger share of the
-//! other's peaks keeps them (then the more complete series, then the
-//! stronger); the other loses them (`shared_bearing`) and is decided again.
+//! for only one of them. The more complete series keeps them (then the one
+//! explaining the larger share of the other's peaks, then the stronger);
+//! the other loses them (`shared_bearing`) and is decided again.
 //! Where two watched lines coincide within the slip window and the evidence
 //! is the same, one finding is reported naming both bearings
 //! ([`DefectResult::shared_finding`]). Lines of different bearings on one
@@ -690,13 +690,19 @@ impl Family {
     /// plausibly the even harmonics of a line at twice its order, and a
     /// series built from another family's sidebands is rarely complete.
     fn dominates(&self, other: &Family) -> bool {
-        let (a, b) = (u16::from(self.counted), u16::from(self.highest.max(1)));
-        let (c, d) = (u16::from(other.counted), u16::from(other.highest.max(1)));
-        match (a * d).cmp(&(c * b)) {
+        match self.completeness_cmp(other) {
             core::cmp::Ordering::Greater => true,
             core::cmp::Ordering::Less => false,
             core::cmp::Ordering::Equal => self.strength > other.strength,
         }
+    }
+
+    /// Compares the completeness of two series: counted harmonics over the
+    /// highest counted harmonic number, exactly.
+    fn completeness_cmp(&self, other: &Family) -> core::cmp::Ordering {
+        let (a, b) = (u16::from(self.counted), u16::from(self.highest.max(1)));
+        let (c, d) = (u16::from(other.counted), u16::from(other.highest.max(1)));
+        (a * d).cmp(&(c * b))
     }
 }
 
@@ -795,6 +801,19 @@ impl DefectSearch {
     /// assert!((m.prominence_db - 33.98).abs() < 0.1); // 20 log10(0.5 / 0.01)
     /// ```
     pub fn measure_line(&self, spectrum: &SpectrumView<'_>, order: f32) -> LineMeasurement {
+        let w = self.wide(order, 1, spectrum.orders_per_bin());
+        self.measure_line_within(spectrum, order, w.half)
+    }
+
+    /// Measures one watched line at `order` as [`Self::measure_line`], in a
+    /// window of half-width `half` orders (a line that does not slip, such as
+    /// a gear mesh, gets a narrow one).
+    pub fn measure_line_within(
+        &self,
+        spectrum: &SpectrumView<'_>,
+        order: f32,
+        half: f32,
+    ) -> LineMeasurement {
         let opb = spectrum.orders_per_bin();
         let ctx = Ctx {
             amps: spectrum.amplitudes(),
@@ -806,10 +825,13 @@ impl DefectSearch {
             mask: false,
         };
         let mut m = LineMeasurement::not_searched(order);
-        if !(order.is_finite() && order > 0.0) {
+        if !(order.is_finite() && order > 0.0 && half.is_finite() && half > 0.0) {
             return m;
         }
-        let w = self.wide(order, 1, opb);
+        let w = Window1 {
+            expected: order,
+            half,
+        };
         if !ctx.fits(w) {
             return m;
         }
@@ -874,20 +896,19 @@ impl DefectSearch {
     ///   `L'` and its modulation sidebands (tolerances as in step 5 of the
     ///   module doc).
     /// * Who keeps shared peaks: of two detected families of different
-    ///   bearings whose combs hold some of each other's counted peaks, the one
-    ///   that explains the larger share of the other's counted peaks keeps
-    ///   them (a family whose whole evidence is part of another's is the
-    ///   other's echo); on equal shares, the more complete series (counted
-    ///   harmonics over the highest counted harmonic number), then the larger
-    ///   summed prominence.
+    ///   bearings whose combs hold some of each other's counted peaks, the
+    ///   more complete series (counted harmonics over the highest counted
+    ///   harmonic number), then the one that explains the larger share of the
+    ///   other's counted peaks (a family whose whole evidence is part of
+    ///   another's is that one's echo), then the larger summed prominence.
     /// * Order: families that no other takes from are settled first; each
     ///   settled family that is still detected claims the peaks on its comb,
     ///   and every later line (detected or not) of another bearing loses
     ///   them (`shared_bearing`, `shared_with` name the owner) and is decided
     ///   again.
     /// * Shared finding: when the two families' nominal lines coincide
-    ///   within the slip window (1:1) and their shares are equal, the
-    ///   evidence cannot tell the bearings apart: one finding is kept, on the
+    ///   within the slip window (1:1) and each explains at least half of the
+    ///   other's counted peaks, the evidence cannot tell the bearings apart: one finding is kept, on the
     ///   dominating family, with [`DefectResult::shared_finding`] naming the
     ///   other bearing's line (ambiguous by physics), never two detections.
     ///
@@ -950,10 +971,14 @@ impl DefectSearch {
                     .unwrap_or(0),
             )
         };
-        // j takes the shared peaks from i: it explains the larger share of
-        // i's evidence than i of its own; on equal shares the more complete,
-        // then the stronger series (`Family::dominates`), unless the two
-        // nominal lines coincide: then the evidence is shared by both.
+        // j takes the shared peaks from i: when the two nominal lines
+        // coincide (1:1 within the slip window) and each explains at least
+        // half of the other's peaks, the evidence is shared by both (one
+        // finding, on the dominating family); otherwise the more complete
+        // series (counted harmonics over the highest counted harmonic
+        // number), then the one explaining the larger share of the other's
+        // peaks (a family whose whole evidence is part of another's is that
+        // one's echo), then the stronger.
         let relation = |j: usize, i: usize| -> Relation {
             let (Some(fi), Some(fj)) = (fams.get(i), fams.get(j)) else {
                 return Relation::None;
@@ -963,19 +988,25 @@ impl DefectSearch {
                 return Relation::None;
             }
             let (n_i, n_j) = (u16::from(fi.counted.max(1)), u16::from(fj.counted.max(1)));
-            match (e_i * n_j).cmp(&(e_j * n_i)) {
-                core::cmp::Ordering::Greater => Relation::Takes,
-                core::cmp::Ordering::Less => Relation::None,
-                core::cmp::Ordering::Equal => {
-                    let coincide = libm::fabsf(fi.nominal - fj.nominal)
-                        <= cfg.slip_tolerance * fi.nominal.max(fj.nominal);
-                    let first = fj.dominates(fi) || (!fi.dominates(fj) && j < i);
-                    match (coincide, first) {
-                        (true, true) => Relation::Shares,
-                        (false, true) => Relation::Takes,
-                        _ => Relation::None,
-                    }
-                }
+            let coincide = libm::fabsf(fi.nominal - fj.nominal)
+                <= cfg.slip_tolerance * fi.nominal.max(fj.nominal);
+            let first = fj.dominates(fi) || (!fi.dominates(fj) && j < i);
+            if coincide && 2 * e_i >= n_i && 2 * e_j >= n_j {
+                return if first {
+                    Relation::Shares
+                } else {
+                    Relation::None
+                };
+            }
+            let takes = fj
+                .completeness_cmp(fi)
+                .then((e_i * n_j).cmp(&(e_j * n_i)))
+                .then(fj.strength.total_cmp(&fi.strength))
+                .then(i.cmp(&j));
+            if takes == core::cmp::Ordering::Greater {
+                Relation::Takes
+            } else {
+                Relation::None
             }
         };
         // Order: a family no unprocessed family takes from comes first

@@ -42,6 +42,7 @@ pub mod design;
 pub mod frame;
 pub mod frontend;
 pub mod kinematics;
+pub mod mesh;
 pub mod num;
 pub mod order_track;
 pub mod overall;

@@ -220,6 +220,22 @@ pub fn to_json(report: &Report, file: Option<&str>) -> Value {
                     "amplitude": finite(m.amplitude),
                     "floor": finite(m.floor),
                     "prominence_db": finite(m.prominence_db),
+                    // First sidebands at the carrying shaft's and the mate
+                    // shaft's orders (a faulty gear modulates the mesh once
+                    // per turn of its shaft).
+                    "sideband_spacing": [finite(l.sidebands.spacing[0]), finite(l.sidebands.spacing[1])],
+                    "sideband_db": {
+                        "shaft": l.sidebands.best_db(0).map_or(Value::Null, finite),
+                        "mate": l.sidebands.best_db(1).map_or(Value::Null, finite),
+                    },
+                    "sidebands": l.sidebands.bands.iter().enumerate().map(|(i, b)| json!({
+                        "shaft": if i < 2 { "shaft" } else { "mate" },
+                        "side": if i % 2 == 0 { "lower" } else { "upper" },
+                        "order": finite(b.order),
+                        "amplitude": finite(b.amplitude),
+                        "prominence_db": finite(b.prominence_db),
+                        "searched": b.searched,
+                    })).collect::<Vec<_>>(),
                 })
             })
             .collect::<Vec<_>>(),
@@ -377,17 +393,28 @@ pub fn to_table(report: &Report, group: MachineGroup, support: Support) -> Strin
     }
     for l in &report.lines {
         let m = &l.measurement;
+        let db = |v: Option<f32>| v.map_or_else(|| "-".to_string(), |v| format!("{v:.1}"));
         let _ = writeln!(
             out,
-            "{:<16} {:<5} {:>8.3} {:>9}  (gear mesh, watched line)",
+            "{:<16} {:<5} {:>8.3} {:>9} {:>5} {:>10} {:>10}  gear mesh: line dB over floor; \
+             sidebands dB: shaft {}, mate {}",
             l.name.as_str(),
             "MESH",
             m.order,
             if m.searched {
                 format!("{:.1}", m.prominence_db)
             } else {
+                "NOT SEARCHED".into()
+            },
+            "",
+            if m.searched {
+                format!("{:.2e}", m.amplitude)
+            } else {
                 "-".into()
             },
+            "",
+            db(l.sidebands.best_db(0)),
+            db(l.sidebands.best_db(1)),
         );
     }
     out

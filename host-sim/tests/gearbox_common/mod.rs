@@ -240,6 +240,7 @@ pub fn machine(
                 teeth: *teeth,
                 amplitude_g: 0.2,
                 sideband_g: 0.03,
+                ..GearMeshSpec::default()
             })
             .collect(),
         noise: NoiseSpec {
