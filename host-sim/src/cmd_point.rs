@@ -5,14 +5,14 @@
 //!
 //! Checked: every bearing (its passes, [`dsp_core::coverage`]), every gear
 //! mesh line (its order below the first pass's search limit `S/4`) and its
-//! sidebands (at least [`dsp_core::mesh::MIN_SIDEBAND_BINS`] bins from the
+//! sidebands (at least [`dsp_core::diagnosis::mesh::MIN_SIDEBAND_BINS`] bins from the
 //! line at the first pass's resolution `S/N`).
 
 use std::path::PathBuf;
 
 use dsp_core::config::PointConfig;
-use dsp_core::coverage::{gaps, plan, search_limit};
-use dsp_core::mesh::MIN_SIDEBAND_BINS;
+use dsp_core::diagnosis::coverage::{gaps, plan};
+use dsp_core::diagnosis::mesh::MIN_SIDEBAND_BINS;
 use dsp_core::pipeline::NodePipeline;
 
 use crate::error::CliError;
@@ -111,6 +111,11 @@ pub fn unsearchable(point: &PointConfig) -> Vec<String> {
         }
     }
     out
+}
+
+/// Highest order a pass at `s` searches (`S / 4`, as `dsp_core::coverage`).
+fn search_limit(s: u16) -> f32 {
+    0.25 * f32::from(s)
 }
 
 fn prev_pow2(x: f32) -> u32 {

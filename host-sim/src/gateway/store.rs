@@ -2,8 +2,8 @@
 //! idempotent inserts. Described in docs/gateway.md.
 
 use crate::error::CliError;
-use dsp_core::frame::{DefectKind, Frame, IsoZone};
 use rusqlite::{params, Connection, OptionalExtension};
+use wire::frame::{DefectKind, Frame, IsoZone};
 
 /// Migrations in order; migration i brings `user_version` from i to i + 1.
 pub const MIGRATIONS: &[&str] = &[
@@ -358,7 +358,7 @@ fn name_of<T: serde::Serialize>(v: &T) -> String {
 /// Inserts a status frame unless stored; returns whether it was new.
 fn insert_status(
     conn: &Connection,
-    r: &dsp_core::frame::StatusReport,
+    r: &wire::frame::StatusReport,
     payload: &[u8],
     json: &str,
     o: &Origin<'_>,
