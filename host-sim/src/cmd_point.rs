@@ -77,8 +77,11 @@ pub fn unsearchable(point: &PointConfig) -> Vec<String> {
         // The line, its upper sideband and the window's guard must fit.
         let top = order + r.max(m.mate.and_then(ratio).unwrap_or(0.0)) + 4.0 * opb;
         if top > search_limit(s0) {
-            let needed = (top * 4.0).ceil().max(8.0) as u32;
-            let needed = needed.next_power_of_two();
+            // The smallest power of two S with S/4 >= top.
+            let mut needed = 8u32;
+            while (needed as f32) < 4.0 * top && needed < 65_536 {
+                needed *= 2;
+            }
             out.push(format!(
                 "mesh {} (order {order:.3}): not searched: above the search range {:.1} at \
                  samples_per_rev = {s0}; samples_per_rev = {needed} would reach it",
