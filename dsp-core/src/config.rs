@@ -125,6 +125,9 @@ pub struct Mesh {
     pub shaft: u8,
     /// Teeth of that gear.
     pub teeth: u16,
+    /// Index into [`PointConfig::shafts`] of the shaft whose gear meshes with
+    /// it (its first sidebands are measured too); `None` when not given.
+    pub mate: Option<u8>,
 }
 
 impl Bearing {
@@ -340,7 +343,8 @@ impl fmt::Display for ConfigError {
                 "defect search thresholds out of range (harmonics 1..=10, slip in (0, 0.2], thresholds > 0 dB)"
             }
             ConfigError::Mesh => {
-                "gear mesh needs teeth >= 1, an existing shaft and a unique name"
+                "gear mesh needs teeth >= 1, an existing shaft, a mate shaft (if given) that \
+                 exists and is another shaft, and a unique name"
             }
             ConfigError::OrderRange => {
                 "highest watched order exceeds the spectrum; raise samples_per_rev"
@@ -551,10 +555,12 @@ impl PointConfig {
             }
         }
         if has_duplicates(self.meshes.iter().map(|m| m.name.as_str()))
-            || self
-                .meshes
-                .iter()
-                .any(|m| m.teeth == 0 || usize::from(m.shaft) >= self.shafts.len())
+            || self.meshes.iter().any(|m| {
+                m.teeth == 0
+                    || usize::from(m.shaft) >= self.shafts.len()
+                    || m.mate
+                        .is_some_and(|x| x == m.shaft || usize::from(x) >= self.shafts.len())
+            })
         {
             return Err(ConfigError::Mesh);
         }

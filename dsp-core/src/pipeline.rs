@@ -153,6 +153,9 @@ struct Setup {
     orders: Vec<BearingOrders, MAX_BEARINGS>,
     /// Gear-mesh orders of the tach shaft, in point order.
     mesh_orders: Vec<f32, MAX_MESHES>,
+    /// Sideband spacings of each mesh: the carrying and the mate shaft's
+    /// orders (0 without a mate).
+    mesh_spacing: Vec<[f32; 2], MAX_MESHES>,
     segments_wanted: u32,
     max_search_order: f32,
 }
@@ -384,14 +387,17 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
                 .map_err(|_| PipelineError::Config(ConfigError::BearingShaft))?;
         }
         let mut mesh_orders = Vec::new();
+        let mut mesh_spacing = Vec::new();
         for m in &point.meshes {
-            let ratio = point
-                .shafts
-                .get(usize::from(m.shaft))
-                .map(|sh| sh.ratio)
-                .ok_or(ConfigError::Mesh)?;
+            let ratio_of = |i: u8| point.shafts.get(usize::from(i)).map(|sh| sh.ratio);
+            let ratio = ratio_of(m.shaft).ok_or(ConfigError::Mesh)?;
+            let mate = match m.mate {
+                Some(x) => ratio_of(x).ok_or(ConfigError::Mesh)?,
+                None => 0.0,
+            };
             // Same capacity as the point's mesh list.
             let _ = mesh_orders.push(f32::from(m.teeth) * ratio);
+            let _ = mesh_spacing.push([ratio, mate]);
         }
 
         Ok(Plan {
@@ -404,6 +410,7 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
                 search,
                 orders,
                 mesh_orders,
+                mesh_spacing,
                 segments_wanted,
                 max_search_order,
             },
@@ -647,15 +654,26 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
                     b.diagnosis = None;
                 }
             }
-            for (m, &order) in point.meshes.iter().zip(setup.mesh_orders.iter()) {
-                let measurement = match (&view, analysable) {
-                    (Some(v), true) => setup.search.measure_line(v, order),
-                    _ => crate::diagnosis::defects::LineMeasurement::not_searched(order),
+            for ((m, &order), &spacing) in point
+                .meshes
+                .iter()
+                .zip(setup.mesh_orders.iter())
+                .zip(setup.mesh_spacing.iter())
+            {
+                let (measurement, sidebands) = match (&view, analysable) {
+                    (Some(v), true) => {
+                        crate::diagnosis::mesh::measure_mesh(&setup.search, v, order, spacing)
+                    }
+                    _ => (
+                        crate::diagnosis::defects::LineMeasurement::not_searched(order),
+                        crate::diagnosis::mesh::MeshSidebands::NONE,
+                    ),
                 };
                 // Same capacity as the point's mesh list.
                 let _ = lines.push(LineReport {
                     name: m.name.clone(),
                     measurement,
+                    sidebands,
                 });
             }
         }
@@ -819,6 +837,7 @@ mod tests {
         };
         for (name, teeth) in [("mesh7", 7u16), ("mesh40", 40)] {
             let _ = point.meshes.push(Mesh {
+                mate: None,
                 name: name_from(name),
                 shaft: 0,
                 teeth,

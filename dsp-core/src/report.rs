@@ -160,6 +160,9 @@ pub struct LineReport {
     /// The measurement (`searched` false when the record was not analysable
     /// or the order lies beyond the search range).
     pub measurement: LineMeasurement,
+    /// Its first sidebands at the carrying and the mate shaft's orders
+    /// ([`crate::diagnosis::mesh`]).
+    pub sidebands: crate::diagnosis::mesh::MeshSidebands,
 }
 
 /// The diagnosis of one measurement.

@@ -334,6 +334,10 @@ pub fn run_cmd(args: &AnalyzeArgs) -> Result<(), CliError> {
         for c in &caution {
             println!("{c}");
         }
+        // Lines this setting cannot search (as `envord point check`).
+        for l in crate::cmd_point::unsearchable(&point) {
+            println!("caution: {l}");
+        }
     }
     Ok(())
 }

@@ -21,6 +21,7 @@ pub mod cmd_analyze;
 pub mod cmd_batch;
 pub mod cmd_compare;
 pub mod cmd_demo;
+pub mod cmd_point;
 pub mod cmd_simulate;
 pub mod edges_csv;
 pub mod energy;

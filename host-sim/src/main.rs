@@ -37,6 +37,9 @@ enum Command {
     Validate(host_sim::validate::ValidateArgs),
     /// Energy budget of one measurement and battery life at given intervals.
     Energy(host_sim::energy::EnergyArgs),
+    /// Check a measuring point: every watched line it cannot search, and
+    /// the setting that would (`envord point check P.toml`; exit 1 if any).
+    Point(host_sim::cmd_point::PointArgs),
 }
 
 fn main() -> ExitCode {
@@ -73,5 +76,6 @@ fn dispatch(command: Command) -> Result<(), host_sim::error::CliError> {
         Command::Gateway(a) => host_sim::gateway::run(a),
         Command::Validate(a) => host_sim::validate::run_cmd(&a),
         Command::Energy(a) => host_sim::energy::run(&a),
+        Command::Point(a) => host_sim::cmd_point::run_cmd(&a),
     }
 }

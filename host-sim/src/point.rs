@@ -49,6 +49,8 @@ struct MeshEntry {
     name: String,
     shaft: Option<String>,
     teeth: u16,
+    /// The shaft whose gear meshes with this one (sidebands at its order too).
+    mate_shaft: Option<String>,
 }
 
 #[derive(Debug, Default, Deserialize)]
@@ -453,11 +455,26 @@ fn meshes(entries: &[MeshEntry], p: &mut PointConfig) -> Result<(), String> {
             ));
         }
         let shaft = shaft_of(p, "mesh", &e.name, e.shaft.as_deref())?;
+        let mate = match e.mate_shaft.as_deref() {
+            Some(m) => {
+                let x = shaft_of(p, "mesh", &e.name, Some(m))?;
+                if x == shaft {
+                    return Err(format!(
+                        "mesh `{}`: mate_shaft `{m}` is the gear's own shaft; name the shaft \
+                         of the meshing gear",
+                        e.name
+                    ));
+                }
+                Some(x)
+            }
+            None => None,
+        };
         p.meshes
             .push(Mesh {
                 name: name_from(&e.name),
                 shaft,
                 teeth: e.teeth,
+                mate,
             })
             .map_err(|_| "mesh: capacity exceeded".to_string())?;
     }

@@ -30,6 +30,7 @@ fn defect_json(
     line_order: f32,
     r: Option<&DefectResult>,
     not_searched: Option<String>,
+    bearing_name: &dyn Fn(u8) -> String,
 ) -> Value {
     let searched = r.is_some_and(DefectResult::searched);
     let mut v = json!({
@@ -47,6 +48,12 @@ fn defect_json(
         "amplitude_g": r.map_or(Value::Null, |r| finite(r.amplitude_sum())),
         "sidebands": r.map_or(0, |r| r.sidebands),
         "margin_db": r.and_then(DefectResult::margin_db).map_or(Value::Null, finite),
+        // A finding shared with a coinciding line of another bearing (ambiguous
+        // by physics): that bearing and kind; null otherwise.
+        "shared_finding": r.and_then(|r| r.shared_finding).map_or(Value::Null, |l| json!({
+            "bearing": bearing_name(l.bearing),
+            "kind": l.kind.name(),
+        })),
     });
     let Some(obj) = v.as_object_mut() else {
         return v;
@@ -79,6 +86,7 @@ fn defect_json(
                             "found": h.found,
                             "counted": h.counted,
                             "shared_with": h.shared_with.map(|k| k.name()),
+                            "shared_bearing": h.shared_bearing.map(bearing_name),
                         })
                     })
                     .collect(),
@@ -88,10 +96,19 @@ fn defect_json(
     v
 }
 
+/// The name of bearing `i` of a report (`#i` when out of range).
+pub fn bearing_name(report: &Report, i: u8) -> String {
+    report
+        .bearings
+        .get(usize::from(i))
+        .map_or_else(|| format!("#{i}"), |b| b.name.to_string())
+}
+
 /// The report as JSON; `file` names the recording when there is one.
 pub fn to_json(report: &Report, file: Option<&str>) -> Value {
     let s = &report.speed;
     let o = &report.overall;
+    let bearing_name = |i: u8| bearing_name(report, i);
     let bearings: Vec<Value> = report
         .bearings
         .iter()
@@ -101,7 +118,13 @@ pub fn to_json(report: &Report, file: Option<&str>) -> Value {
                 .iter()
                 .map(|&k| {
                     let r = b.diagnosis.as_ref().and_then(|d| d.get(k));
-                    defect_json(k, b.orders.line(k), r, why.map(|w| w.to_string()))
+                    defect_json(
+                        k,
+                        b.orders.line(k),
+                        r,
+                        why.map(|w| w.to_string()),
+                        &bearing_name,
+                    )
                 })
                 .collect();
             let pass = b.coverage.ok();
@@ -197,6 +220,22 @@ pub fn to_json(report: &Report, file: Option<&str>) -> Value {
                     "amplitude": finite(m.amplitude),
                     "floor": finite(m.floor),
                     "prominence_db": finite(m.prominence_db),
+                    // First sidebands at the carrying shaft's and the mate
+                    // shaft's orders (a faulty gear modulates the mesh once
+                    // per turn of its shaft).
+                    "sideband_spacing": [finite(l.sidebands.spacing[0]), finite(l.sidebands.spacing[1])],
+                    "sideband_db": {
+                        "shaft": l.sidebands.best_db(0).map_or(Value::Null, finite),
+                        "mate": l.sidebands.best_db(1).map_or(Value::Null, finite),
+                    },
+                    "sidebands": l.sidebands.bands.iter().enumerate().map(|(i, b)| json!({
+                        "shaft": if i < 2 { "shaft" } else { "mate" },
+                        "side": if i % 2 == 0 { "lower" } else { "upper" },
+                        "order": finite(b.order),
+                        "amplitude": finite(b.amplitude),
+                        "prominence_db": finite(b.prominence_db),
+                        "searched": b.searched,
+                    })).collect::<Vec<_>>(),
                 })
             })
             .collect::<Vec<_>>(),
@@ -336,27 +375,46 @@ pub fn to_table(report: &Report, group: MachineGroup, support: Support) -> Strin
                 )),
                 r.map_or("-".into(), |r| format!("{:.2e}", r.fundamental_amplitude)),
                 r.map_or("-".into(), |r| format!("{:.2e}", r.amplitude_sum())),
-                if r.is_some_and(|r| r.detected) {
-                    "YES"
-                } else {
-                    "no"
+                match r {
+                    Some(r) if r.detected => match r.shared_finding {
+                        Some(l) => format!(
+                            "YES, shared by {} and {} ({} {}): coinciding lines, either bearing",
+                            b.name.as_str(),
+                            bearing_name(report, l.bearing),
+                            bearing_name(report, l.bearing),
+                            l.kind.name()
+                        ),
+                        None => "YES".into(),
+                    },
+                    _ => "no".into(),
                 }
             );
         }
     }
     for l in &report.lines {
         let m = &l.measurement;
+        let db = |v: Option<f32>| v.map_or_else(|| "-".to_string(), |v| format!("{v:.1}"));
         let _ = writeln!(
             out,
-            "{:<16} {:<5} {:>8.3} {:>9}  (gear mesh, watched line)",
+            "{:<16} {:<5} {:>8.3} {:>9} {:>5} {:>10} {:>10}  gear mesh: line dB over floor; \
+             sidebands dB: shaft {}, mate {}",
             l.name.as_str(),
             "MESH",
             m.order,
             if m.searched {
                 format!("{:.1}", m.prominence_db)
             } else {
+                "NOT SEARCHED".into()
+            },
+            "",
+            if m.searched {
+                format!("{:.2e}", m.amplitude)
+            } else {
                 "-".into()
             },
+            "",
+            db(l.sidebands.best_db(0)),
+            db(l.sidebands.best_db(1)),
         );
     }
     out

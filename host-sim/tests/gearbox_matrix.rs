@@ -80,6 +80,7 @@ fn gearbox_matrix_meets_its_goals() {
         "gearbox", "bearing", "outer", "inner", "ball"
     );
     let (mut named, mut eligible, mut others, mut unsearched) = (0usize, 0usize, 0usize, 0usize);
+    let mut shared_findings = 0usize;
     for (gi, g) in boxes.iter().enumerate() {
         for bi in 0..g.bearings.len() {
             let mut row = format!("{:<18} {:<8}", g.name, g.bearings[bi].0);
@@ -104,7 +105,9 @@ fn gearbox_matrix_meets_its_goals() {
                 for o in &mine {
                     others += o.others.len();
                     unsearched += o.not_searched.len();
+                    shared_findings += o.shared.len();
                     row_others.extend(o.others.iter().cloned());
+                    row_others.extend(o.shared.iter().map(|s| format!("[{s}]")));
                     for w in &o.not_searched {
                         row_others.push(format!("not searched: {w}"));
                     }
@@ -117,7 +120,7 @@ fn gearbox_matrix_meets_its_goals() {
     }
     let share = named as f64 / eligible.max(1) as f64;
     println!(
-        "named {named}/{eligible} = {:.1} % of cases without coinciding lines; other-bearing detections {others}; lines not searched {unsearched}",
+        "named {named}/{eligible} = {:.1} % of cases without coinciding lines; other-bearing detections {others}; lines not searched {unsearched}; shared findings {shared_findings} ([A K shared by B])",
         100.0 * share
     );
 
@@ -150,13 +153,11 @@ fn gearbox_matrix_meets_its_goals() {
         false_alarms.is_empty(),
         "healthy detections: {false_alarms:?}"
     );
-    // NOT YET MET (see the node note of issue 15): the issue's goals are
-    // >= 95 % named and 0 detections on another bearing. Asserted here are
-    // the figures of this commit as ceilings, so that they can only improve:
-    // named 114/128 = 89.1 %, 16 detections on another bearing.
-    assert!(share >= 0.89, "named in {:.1} % < 89 %", 100.0 * share);
-    assert!(
-        others <= 16,
-        "{others} detections on another bearing (> 16)"
-    );
+    // NOT YET MET (see the diagnosis note of issue 15): the issue's goals
+    // are >= 95 % named and 0 detections on another bearing. Asserted here
+    // are the figures reached (floors and ceilings, so that they can only
+    // improve): named 120/128 = 93.8 %, 6 detections on another bearing
+    // (before the cross-bearing attribution of this branch: 89.1 %, 16).
+    assert!(share >= 0.93, "named in {:.1} % < 93 %", 100.0 * share);
+    assert!(others <= 6, "{others} detections on another bearing (> 6)");
 }

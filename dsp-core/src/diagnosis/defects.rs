@@ -10,9 +10,12 @@
 //!    past the last bin, or below bin 1, is reported with `searched = false`.
 //! 2. **Peak**: the largest bin in the window that is a local maximum and not
 //!    masked. Bins within one main-lobe half-width of a harmonic of the
-//!    bearing's shaft are masked when `mask_shaft_harmonics` is set (running
-//!    speed lines are common in envelope spectra and would otherwise be taken
-//!    for, e.g., the 5th cage harmonic). Position by parabolic interpolation
+//!    bearing's shaft are masked when `mask_shaft_harmonics` is set and a
+//!    running-speed line is present there (the bin nearest the harmonic is a
+//!    local maximum): running speed lines are common in envelope spectra and
+//!    would otherwise be taken for, e.g., the 5th cage harmonic, but where
+//!    none is present the bins stay, so that a defect line beside a shaft
+//!    harmonic is not deleted. Position by parabolic interpolation
 //!    of the log magnitude; amplitude corrected by the window kernel at that
 //!    offset (Hann; flat-top needs none).
 //! 3. **Floor**: median of the bins in `±(w + lobe + floor_band_orders)`
@@ -79,14 +82,16 @@
 //! [`DefectSearch::attribute_bearings`] runs after every bearing of a point
 //! has been searched (the pipeline calls it): a counted peak that lies on
 //! the comb of a *detected* family of another bearing (a harmonic of its
-//! anchored line or one of its modulation sidebands, as in step 5) is not
-//! counted for the weaker family (`shared_bearing`), and the decisions are
-//! made again. The more complete series is the stronger one (counted
-//! harmonics over the highest counted harmonic number), then the larger
-//! summed prominence. Lines of different bearings on one shaft train can
-//! coincide, and a race fault's sidebands otherwise make up a line family
-//! for a healthy bearing (`envord validate --decoy` measures this on open
-//! data, docs/validation.md).
+//! anchored line or one of its modulation sidebands, as in step 5) counts
+//! for only one of them. The more complete series keeps them (then the one
+//! explaining the larger share of the other's peaks, then the stronger);
+//! the other loses them (`shared_bearing`) and is decided again.
+//! Where two watched lines coincide within the slip window and the evidence
+//! is the same, one finding is reported naming both bearings
+//! ([`DefectResult::shared_finding`]). Lines of different bearings on one
+//! shaft train can coincide, and a race fault's sidebands otherwise make up
+//! a line family for a healthy bearing (`envord validate --decoy` measures
+//! this on open data, docs/validation.md).
 //!
 //! These rules were checked on open bearing data (`envord validate`,
 //! docs/validation.md).
@@ -273,6 +278,22 @@ pub struct DefectResult {
     pub score_db: f32,
     /// Decision by the documented rule.
     pub detected: bool,
+    /// A watched line of another bearing of the point that coincides with
+    /// this one (within the slip window) and is explained by exactly the same
+    /// peaks: the finding is shared by both bearings (ambiguous by physics),
+    /// reported once, here (see [`DefectSearch::attribute_bearings`]).
+    pub shared_finding: Option<LineRef>,
+}
+
+/// One watched line of a point: a bearing (index in the point's list) and
+/// a kind.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct LineRef {
+    /// Index of the bearing in the point's bearing list.
+    pub bearing: u8,
+    /// Defect kind of the line.
+    pub kind: DefectKind,
 }
 
 impl DefectResult {
@@ -417,13 +438,24 @@ impl Ctx<'_> {
         self.window.kernel_gain(delta).max(0.1)
     }
 
+    /// Whether bin `k` is masked: within one main-lobe half-width of a
+    /// harmonic `j` of the bearing's shaft where a running-speed line is
+    /// present, i.e. the bin nearest `j` x shaft is a local maximum. A
+    /// defect line a bin or more beside `j` x shaft, whose own peak makes
+    /// that bin its flank, is kept (at 16-20 bins per shaft order the fixed
+    /// mask deleted such lines, e.g. a 6203's BPFI 4.947 x shaft).
     fn masked(&self, k: usize) -> bool {
         if !self.mask {
             return false;
         }
         let o = usize_to_f32(k) * self.opb;
         let j = libm::roundf(o / self.shaft_order);
-        j >= 1.0 && libm::fabsf(o - j * self.shaft_order) <= self.lobe_bins * self.opb
+        if !(j >= 1.0 && libm::fabsf(o - j * self.shaft_order) <= self.lobe_bins * self.opb) {
+            return false;
+        }
+        let c = f32_to_usize_sat(libm::roundf(j * self.shaft_order / self.opb));
+        let v = self.amp(c);
+        c >= 1 && v > 0.0 && v >= self.amp(c - 1) && v >= self.amp(c + 1)
     }
 
     /// Bin range `[lo, hi]` covering orders `[a, b]`, clipped to the spectrum.
@@ -603,6 +635,19 @@ fn modulation_spacing(kind: DefectKind, shaft_order: f32, ftf_order: f32) -> [f3
     }
 }
 
+/// How one detected family stands to another's evidence (cross-bearing
+/// attribution).
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum Relation {
+    /// No shared peaks, or the other family keeps them.
+    None,
+    /// This family takes the shared peaks.
+    Takes,
+    /// The nominal lines coincide and the evidence is the same: one finding
+    /// shared by both bearings, reported on this family.
+    Shares,
+}
+
 /// A detected family of one bearing, for cross-bearing attribution.
 struct Family {
     bearing: usize,
@@ -654,13 +699,19 @@ impl Family {
     /// plausibly the even harmonics of a line at twice its order, and a
     /// series built from another family's sidebands is rarely complete.
     fn dominates(&self, other: &Family) -> bool {
-        let (a, b) = (u16::from(self.counted), u16::from(self.highest.max(1)));
-        let (c, d) = (u16::from(other.counted), u16::from(other.highest.max(1)));
-        match (a * d).cmp(&(c * b)) {
+        match self.completeness_cmp(other) {
             core::cmp::Ordering::Greater => true,
             core::cmp::Ordering::Less => false,
             core::cmp::Ordering::Equal => self.strength > other.strength,
         }
+    }
+
+    /// Compares the completeness of two series: counted harmonics over the
+    /// highest counted harmonic number, exactly.
+    fn completeness_cmp(&self, other: &Family) -> core::cmp::Ordering {
+        let (a, b) = (u16::from(self.counted), u16::from(self.highest.max(1)));
+        let (c, d) = (u16::from(other.counted), u16::from(other.highest.max(1)));
+        (a * d).cmp(&(c * b))
     }
 }
 
@@ -759,6 +810,19 @@ impl DefectSearch {
     /// assert!((m.prominence_db - 33.98).abs() < 0.1); // 20 log10(0.5 / 0.01)
     /// ```
     pub fn measure_line(&self, spectrum: &SpectrumView<'_>, order: f32) -> LineMeasurement {
+        let w = self.wide(order, 1, spectrum.orders_per_bin());
+        self.measure_line_within(spectrum, order, w.half)
+    }
+
+    /// Measures one watched line at `order` as [`Self::measure_line`], in a
+    /// window of half-width `half` orders (a line that does not slip, such as
+    /// a gear mesh, gets a narrow one).
+    pub fn measure_line_within(
+        &self,
+        spectrum: &SpectrumView<'_>,
+        order: f32,
+        half: f32,
+    ) -> LineMeasurement {
         let opb = spectrum.orders_per_bin();
         let ctx = Ctx {
             amps: spectrum.amplitudes(),
@@ -770,10 +834,13 @@ impl DefectSearch {
             mask: false,
         };
         let mut m = LineMeasurement::not_searched(order);
-        if !(order.is_finite() && order > 0.0) {
+        if !(order.is_finite() && order > 0.0 && half.is_finite() && half > 0.0) {
             return m;
         }
-        let w = self.wide(order, 1, opb);
+        let w = Window1 {
+            expected: order,
+            half,
+        };
         if !ctx.fits(w) {
             return m;
         }
@@ -832,16 +899,30 @@ impl DefectSearch {
     /// Lines of different bearings can coincide (a 4th outer-race harmonic of
     /// one bearing within 2 % of another bearing's BPFI), and the shaft-rate
     /// sidebands of an inner-race fault can line up as a harmonic series of
-    /// another bearing's line. A counted peak of one bearing's family that
-    /// lies on the comb of a *detected* family of another bearing (a harmonic
-    /// `m >= 1` of its anchored line `L'` or a modulation sideband of one,
-    /// tolerances as in step 5 of the module doc), where that family is the
-    /// stronger, is not counted for the weaker one; `shared_bearing` and
-    /// `shared_with` name the other bearing and kind. Stronger means the
-    /// more complete series (counted harmonics over the highest counted
-    /// harmonic number), then the larger summed prominence of the counted
-    /// harmonics. Scores and decisions are then made again. Strengths are
-    /// taken before any change, so the order of the bearings does not matter.
+    /// another bearing's line. A peak explained by one detected family is
+    /// never also evidence for another bearing's line:
+    /// * Comb: a family's comb is every harmonic `m >= 1` of its anchored line
+    ///   `L'` and its modulation sidebands (tolerances as in step 5 of the
+    ///   module doc).
+    /// * Who keeps shared peaks: of two detected families of different
+    ///   bearings whose combs hold some of each other's counted peaks, the
+    ///   more complete series (counted harmonics over the highest counted
+    ///   harmonic number), then the one that explains the larger share of the
+    ///   other's counted peaks (a family whose whole evidence is part of
+    ///   another's is that one's echo), then the larger summed prominence.
+    /// * Order: families that no other takes from are settled first; each
+    ///   settled family that is still detected claims the peaks on its comb,
+    ///   and every later line (detected or not) of another bearing loses
+    ///   them (`shared_bearing`, `shared_with` name the owner) and is decided
+    ///   again.
+    /// * Shared finding: when the two families' nominal lines coincide
+    ///   within the slip window (1:1) and each explains at least half of the
+    ///   other's counted peaks, the evidence cannot tell the bearings apart: one finding is kept, on the
+    ///   dominating family, with [`DefectResult::shared_finding`] naming the
+    ///   other bearing's line (ambiguous by physics), never two detections.
+    ///
+    /// Relations are taken from the results before any change, so the order
+    /// of the bearings does not matter (except to break a full tie).
     pub fn attribute_bearings(
         &self,
         spectrum: &SpectrumView<'_>,
@@ -849,7 +930,8 @@ impl DefectSearch {
         diagnoses: &mut [&mut Option<BearingDiagnosis>],
     ) {
         let opb = spectrum.orders_per_bin();
-        // Detected families of every bearing, as the others see them.
+        let cfg = &self.config;
+        // Detected families of every bearing before any change (snapshot).
         let mut fams: heapless::Vec<Family, MAX_FAMILIES> = heapless::Vec::new();
         for (bi, (d, o)) in diagnoses.iter().zip(orders.iter()).enumerate() {
             let Some(d) = &**d else { continue };
@@ -863,41 +945,214 @@ impl DefectSearch {
                 let _ = fams.push(fam);
             }
         }
-        for (bi, (d, o)) in diagnoses.iter_mut().zip(orders.iter()).enumerate() {
-            let Some(d) = &mut **d else { continue };
+        let result = |d: &[&mut Option<BearingDiagnosis>], f: &Family| {
+            d.get(f.bearing)
+                .and_then(|d| d.as_ref())
+                .and_then(|d| d.get(f.kind))
+                .cloned()
+        };
+        // explained[i][j]: counted peaks of family i on family j's comb.
+        let mut explained = [[0u8; MAX_FAMILIES]; MAX_FAMILIES];
+        for (i, fi) in fams.iter().enumerate() {
+            let Some(ri) = result(diagnoses, fi) else {
+                continue;
+            };
+            for (j, fj) in fams.iter().enumerate() {
+                if fj.bearing == fi.bearing {
+                    continue;
+                }
+                let n = ri
+                    .harmonics
+                    .iter()
+                    .filter(|h| h.counted && fj.explains(h.found_order, cfg, opb))
+                    .count();
+                if let Some(slot) = explained.get_mut(i).and_then(|row| row.get_mut(j)) {
+                    *slot = u8::try_from(n).unwrap_or(u8::MAX);
+                }
+            }
+        }
+        let ex = |i: usize, j: usize| {
+            u16::from(
+                explained
+                    .get(i)
+                    .and_then(|row| row.get(j))
+                    .copied()
+                    .unwrap_or(0),
+            )
+        };
+        // j takes the shared peaks from i: when the two nominal lines
+        // coincide (1:1 within the slip window) and each explains at least
+        // half of the other's peaks, the evidence is shared by both (one
+        // finding, on the dominating family); otherwise the more complete
+        // series (counted harmonics over the highest counted harmonic
+        // number), then the one explaining the larger share of the other's
+        // peaks (a family whose whole evidence is part of another's is that
+        // one's echo), then the stronger.
+        let relation = |j: usize, i: usize| -> Relation {
+            let (Some(fi), Some(fj)) = (fams.get(i), fams.get(j)) else {
+                return Relation::None;
+            };
+            let (e_i, e_j) = (ex(i, j), ex(j, i));
+            if fi.bearing == fj.bearing || (e_i == 0 && e_j == 0) {
+                return Relation::None;
+            }
+            let (n_i, n_j) = (u16::from(fi.counted.max(1)), u16::from(fj.counted.max(1)));
+            let coincide = libm::fabsf(fi.nominal - fj.nominal)
+                <= cfg.slip_tolerance * fi.nominal.max(fj.nominal);
+            let first = fj.dominates(fi) || (!fi.dominates(fj) && j < i);
+            if coincide && 2 * e_i >= n_i && 2 * e_j >= n_j {
+                return if first {
+                    Relation::Shares
+                } else {
+                    Relation::None
+                };
+            }
+            let takes = fj
+                .completeness_cmp(fi)
+                .then((e_i * n_j).cmp(&(e_j * n_i)))
+                .then(fj.strength.total_cmp(&fi.strength))
+                .then(i.cmp(&j));
+            if takes == core::cmp::Ordering::Greater {
+                Relation::Takes
+            } else {
+                Relation::None
+            }
+        };
+        // Order: a family no unprocessed family takes from comes first
+        // (ties: the dominating one); in a cycle, the dominating one.
+        let mut order: heapless::Vec<usize, MAX_FAMILIES> = heapless::Vec::new();
+        let mut done = [false; MAX_FAMILIES];
+        for _ in 0..fams.len() {
+            let open = || (0..fams.len()).filter(|&i| !done.get(i).copied().unwrap_or(true));
+            let free = |i: usize| open().all(|j| j == i || relation(j, i) == Relation::None);
+            let better = |a: usize, b: usize| match (fams.get(a), fams.get(b)) {
+                (Some(fa), Some(fb)) => fa.dominates(fb),
+                _ => false,
+            };
+            let pick = |only_free: bool| {
+                open()
+                    .filter(|&i| !only_free || free(i))
+                    .fold(None, |best: Option<usize>, i| match best {
+                        Some(b) if !better(i, b) => Some(b),
+                        _ => Some(i),
+                    })
+            };
+            let Some(next) = pick(true).or_else(|| pick(false)) else {
+                break;
+            };
+            if let Some(d) = done.get_mut(next) {
+                *d = true;
+            }
+            let _ = order.push(next);
+        }
+        // Accepted families claim the peaks on their combs, in that order.
+        let mut accepted: heapless::Vec<usize, MAX_FAMILIES> = heapless::Vec::new();
+        for &i in &order {
+            let Some(fi) = fams.get(i) else { continue };
+            let mut shared_by: Option<usize> = None;
+            let still = self.claim(
+                spectrum,
+                orders,
+                diagnoses,
+                fi.bearing,
+                Some(fi.kind),
+                |o| {
+                    accepted.iter().find_map(|&a| {
+                        let fa = fams.get(a)?;
+                        fa.explains(o, cfg, opb).then(|| {
+                            if relation(a, i) == Relation::Shares {
+                                shared_by = Some(a);
+                            }
+                            (fa.bearing, fa.kind)
+                        })
+                    })
+                },
+            );
+            if let Some(fa) = shared_by.and_then(|a| fams.get(a)) {
+                let line = LineRef {
+                    bearing: u8::try_from(fi.bearing).unwrap_or(u8::MAX),
+                    kind: fi.kind,
+                };
+                if let Some(r) = diagnoses
+                    .get_mut(fa.bearing)
+                    .and_then(|d| d.as_mut())
+                    .and_then(|d| d.results.get_mut(fa.kind.index()))
+                {
+                    if r.shared_finding.is_none() {
+                        r.shared_finding = Some(line);
+                    }
+                }
+            }
+            if still {
+                let _ = accepted.push(i);
+            }
+        }
+        // Lines not detected lose the peaks an accepted family explains too.
+        for bi in 0..diagnoses.len() {
+            for kind in DefectKind::ALL {
+                if fams.iter().any(|f| f.bearing == bi && f.kind == kind) {
+                    continue;
+                }
+                self.claim(spectrum, orders, diagnoses, bi, Some(kind), |o| {
+                    accepted.iter().find_map(|&a| {
+                        let fa = fams.get(a)?;
+                        (fa.bearing != bi && fa.explains(o, cfg, opb))
+                            .then_some((fa.bearing, fa.kind))
+                    })
+                });
+            }
+            if let Some(d) = diagnoses.get_mut(bi).and_then(|d| d.as_mut()) {
+                Self::cage_as_modulation(&mut d.results);
+            }
+        }
+    }
+
+    /// Uncounts the counted peaks of bearing `bi`'s `kind` line for which
+    /// `owner` names another bearing's family, marks them shared with it and
+    /// decides again. Returns whether the line is still detected.
+    fn claim(
+        &self,
+        spectrum: &SpectrumView<'_>,
+        orders: &[BearingOrders],
+        diagnoses: &mut [&mut Option<BearingDiagnosis>],
+        bi: usize,
+        kind: Option<DefectKind>,
+        mut owner: impl FnMut(f32) -> Option<(usize, DefectKind)>,
+    ) -> bool {
+        let (Some(kind), Some(o)) = (kind, orders.get(bi)) else {
+            return false;
+        };
+        let Some(r) = diagnoses
+            .get_mut(bi)
+            .and_then(|d| d.as_mut())
+            .and_then(|d| d.results.get_mut(kind.index()))
+        else {
+            return false;
+        };
+        let mut changed = false;
+        for hr in r.harmonics.iter_mut().filter(|h| h.counted) {
+            if let Some((ob, ok)) = owner(hr.found_order) {
+                if ob != bi {
+                    hr.counted = false;
+                    hr.shared_with = Some(ok);
+                    hr.shared_bearing = u8::try_from(ob).ok();
+                    changed = true;
+                }
+            }
+        }
+        if changed {
             let ctx = Ctx {
                 amps: spectrum.amplitudes(),
-                opb,
+                opb: spectrum.orders_per_bin(),
                 lobe_bins: spectrum.window().main_lobe_half_width_bins(),
                 window: spectrum.window(),
                 shaft_order: o.shaft_order(),
                 ftf_order: o.ftf_order(),
                 mask: self.config.mask_shaft_harmonics,
             };
-            for r in d.results.iter_mut() {
-                // This family as the rivals see it (anchored line, comb).
-                let me = Family::of(bi, r, o);
-                let mut changed = false;
-                for hr in r.harmonics.iter_mut().filter(|h| h.counted) {
-                    let f = hr.found_order;
-                    let rival = fams.iter().find(|fam| {
-                        fam.bearing != bi
-                            && fam.explains(f, &self.config, opb)
-                            && me.as_ref().is_none_or(|me| fam.dominates(me))
-                    });
-                    if let Some(fam) = rival {
-                        hr.counted = false;
-                        hr.shared_with = Some(fam.kind);
-                        hr.shared_bearing = u8::try_from(fam.bearing).ok();
-                        changed = true;
-                    }
-                }
-                if changed {
-                    self.decide(&ctx, r, o);
-                }
-            }
-            Self::cage_as_modulation(&mut d.results);
+            self.decide(&ctx, r, o);
         }
+        r.detected
     }
 
     fn search_kind(&self, ctx: &Ctx<'_>, kind: DefectKind, line: f32) -> DefectResult {
@@ -1000,6 +1255,7 @@ impl DefectSearch {
             sidebands: 0,
             score_db: 0.0,
             detected: false,
+            shared_finding: None,
         }
     }
 

@@ -7,11 +7,14 @@
 //!   shaft; lines no pass serves are reported as not searched.
 //! * [`defects`]: harmonics, noise floor, attribution between coinciding
 //!   lines, sidebands, score and decision on a [`crate::spectrum`] view.
+//! * [`mesh`]: gear-mesh lines and their first sidebands at both meshing
+//!   shafts' orders.
 
 pub mod coverage;
 pub mod defects;
 pub mod kind_call;
 pub mod kinematics;
+pub mod mesh;
 
 pub use coverage::{Coverage, NotSearched, Pass, MAX_PASSES};
 pub use defects::{

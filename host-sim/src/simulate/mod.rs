@@ -16,7 +16,9 @@
 //! * each impact excites a damped structural resonance: the impulse
 //!   response `A exp(-zeta wn t) sin(wd t)` is added starting at the impact's
 //!   exact (fractional-sample) time;
-//! * gear meshes are tones at teeth x shaft order with sidebands at +-1x;
+//! * gear meshes are tones at teeth x shaft order with sidebands at +-1x,
+//!   optionally driving a structural ringing (`carrier_g`) and modulated
+//!   once per turn by a damaged tooth (`fault_shaft`, `fault_depth`);
 //!   imbalance is a 1x sine; broadband Gaussian noise is added last.
 //!
 //! The tach channel is band-limited the simplest way: each sample holds the
@@ -257,10 +259,21 @@ pub fn simulate(spec: &MachineSpec, seed: u64) -> Result<SimOutput, SpecError> {
             .and_then(|i| spec.shafts.get(i))
             .map_or(1.0, |s| s.ratio);
         let z = f64::from(g.teeth);
-        for (y, th) in accel.iter_mut().zip(&track.theta) {
+        let fault_ratio = spec
+            .shaft_index(&g.fault_shaft)
+            .and_then(|i| spec.shafts.get(i))
+            .map(|s| s.ratio);
+        for (i, (y, th)) in accel.iter_mut().zip(&track.theta).enumerate() {
             let a = TAU * ratio * th;
-            *y += g.amplitude_g * (z * a).sin()
+            // A damaged tooth: once per turn of its shaft.
+            let m = fault_ratio.map_or(1.0, |r| 1.0 + g.fault_depth * (TAU * r * th).cos());
+            *y += m * g.amplitude_g * (z * a).sin()
                 + g.sideband_g * (((z + 1.0) * a).sin() + ((z - 1.0) * a).sin());
+            if g.carrier_g > 0.0 {
+                let t = i as f64 / fs;
+                *y +=
+                    m * g.carrier_g * 0.5 * (1.0 + (z * a).cos()) * (TAU * g.carrier_hz * t).sin();
+            }
         }
     }
 

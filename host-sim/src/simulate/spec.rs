@@ -214,6 +214,20 @@ pub struct GearMeshSpec {
     pub amplitude_g: f64,
     /// Amplitude of each sideband, g.
     pub sideband_g: f64,
+    /// Ringing of the structure that the meshing drives, g (0: none): a
+    /// carrier at `carrier_hz` whose amplitude follows the tooth meshing,
+    /// `carrier_g x (1 + cos(mesh angle)) / 2`, so that the mesh order shows
+    /// in the envelope spectrum of a band around `carrier_hz`.
+    pub carrier_g: f64,
+    /// Frequency of that ringing, Hz (used when `carrier_g` > 0).
+    pub carrier_hz: f64,
+    /// Shaft of a gear with a damaged tooth ("" = none): the mesh (tone and
+    /// carrier) is modulated once per turn of that shaft by `1 + fault_depth
+    /// x cos(shaft angle)`, which puts sidebands at `mesh +- that shaft's
+    /// order` (common practice for a local gear fault).
+    pub fault_shaft: String,
+    /// Depth of that modulation, 0 to 1.
+    pub fault_depth: f64,
 }
 
 impl Default for GearMeshSpec {
@@ -224,6 +238,10 @@ impl Default for GearMeshSpec {
             teeth: 20,
             amplitude_g: 0.0,
             sideband_g: 0.0,
+            carrier_g: 0.0,
+            carrier_hz: 0.0,
+            fault_shaft: String::new(),
+            fault_depth: 0.0,
         }
     }
 }
@@ -307,6 +325,7 @@ impl Default for MachineSpec {
                     teeth: 19,
                     amplitude_g: 0.3,
                     sideband_g: 0.05,
+                    ..GearMeshSpec::default()
                 },
                 GearMeshSpec {
                     name: "stage 2".into(),
@@ -314,6 +333,7 @@ impl Default for MachineSpec {
                     teeth: 17,
                     amplitude_g: 0.2,
                     sideband_g: 0.03,
+                    ..GearMeshSpec::default()
                 },
             ],
             noise: NoiseSpec {
@@ -634,6 +654,23 @@ impl MachineSpec {
             within(f("teeth"), f64::from(g.teeth), 1.0, 10_000.0, "1 to 10000")?;
             within(f("amplitude_g"), g.amplitude_g, 0.0, 1e4, "0 to 10000 g")?;
             within(f("sideband_g"), g.sideband_g, 0.0, 1e4, "0 to 10000 g")?;
+            within(f("carrier_g"), g.carrier_g, 0.0, 1e4, "0 to 10000 g")?;
+            within(f("fault_depth"), g.fault_depth, 0.0, 1.0, "0 to 1")?;
+            if g.carrier_g > 0.0 {
+                within(
+                    f("carrier_hz"),
+                    g.carrier_hz,
+                    1.0,
+                    nyq,
+                    "1 Hz to the Nyquist rate",
+                )?;
+            }
+            if !g.fault_shaft.is_empty() && self.shaft_index(&g.fault_shaft).is_none() {
+                return Err(SpecError::UnknownShaft {
+                    field: f("fault_shaft"),
+                    shaft: g.fault_shaft.clone(),
+                });
+            }
             let ratio = self.shafts.get(si).map_or(1.0, |s| s.ratio);
             let hz = (f64::from(g.teeth) + 1.0) * ratio * max_tach_hz;
             if hz >= nyq {

@@ -240,6 +240,7 @@ pub fn machine(
                 teeth: *teeth,
                 amplitude_g: 0.2,
                 sideband_g: 0.03,
+                ..GearMeshSpec::default()
             })
             .collect(),
         noise: NoiseSpec {
@@ -325,6 +326,8 @@ pub struct Outcome {
     pub wrong_kind: Vec<String>,
     /// Watched lines not searched (bearing KIND reason), any point.
     pub not_searched: Vec<String>,
+    /// Findings shared by two bearings (coinciding lines), "A KIND shared by B".
+    pub shared: Vec<String>,
 }
 
 /// Scores the reports of one record against the faulted bearing.
@@ -347,9 +350,38 @@ pub fn score(g: &Gearbox, reports: &[Report], faulty: Option<(usize, Fault)>) ->
                     ));
                 }
             }
-            for k in d.detected() {
+            for res in d.results.iter().filter(|r| r.detected) {
+                let k = res.kind;
+                // A finding shared by two bearings (coinciding lines) names both.
+                let shared = res
+                    .shared_finding
+                    .map(|l| (idx[usize::from(l.bearing)], l.kind));
+                let is = |(f, kind): (usize, Fault), (b2, k2): (usize, DefectKind)| {
+                    f == b2 && k2 == kind_of(kind)
+                };
+                if let Some((sb, sk)) = shared {
+                    out.shared.push(format!(
+                        "{} {} shared by {}",
+                        b.name,
+                        k.name(),
+                        g.bearings[sb].0
+                    ));
+                    match faulty {
+                        Some(f) if is(f, (bi, k)) || is(f, (sb, sk)) => out.named = true,
+                        Some((f, _)) if f == bi || f == sb => {
+                            out.wrong_kind.push(format!("{} {}", b.name, k.name()));
+                        }
+                        _ => out.others.push(format!(
+                            "{} {} (shared by {})",
+                            b.name,
+                            k.name(),
+                            g.bearings[sb].0
+                        )),
+                    }
+                    continue;
+                }
                 match faulty {
-                    Some((f, kind)) if f == bi && k == kind_of(kind) => out.named = true,
+                    Some(f) if is(f, (bi, k)) => out.named = true,
                     Some((f, _)) if f == bi => {
                         out.wrong_kind.push(format!("{} {}", b.name, k.name()));
                     }

@@ -203,6 +203,7 @@ pub fn machine(profile: SpeedProfile, fault: Fault, impact_g: f64, noise_g: f64)
             teeth: 25,
             amplitude_g: 0.25,
             sideband_g: 0.04,
+            ..GearMeshSpec::default()
         }],
         noise: NoiseSpec {
             rms_g: noise_g,
