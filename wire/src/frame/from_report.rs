@@ -66,11 +66,13 @@ fn not_searched(code: NotSearchedCode, needed: Option<u16>) -> DefectResult {
     }
 }
 
-/// The other bearing's coinciding line of a shared finding. Main's core
-/// does not mark shared findings yet (every detection is state 2); the
-/// diagnosis branch's `shared_finding` connects here.
-fn shared_link(_d: &Found) -> Option<LineLink> {
-    None
+/// The other bearing's coinciding line of a shared finding (the diagnosis
+/// names it when two watched lines share their evidence).
+fn shared_link(d: &Found) -> Option<LineLink> {
+    d.shared_finding.map(|l| LineLink {
+        bearing: l.bearing,
+        kind: l.kind,
+    })
 }
 
 /// One searched line of a bearing (`None` diagnosis entries never reach here).
@@ -121,9 +123,25 @@ fn mesh(l: &LineReport) -> MeshResult {
         } else {
             f32::NAN
         },
-        sideband_gear_g: f32::NAN,
-        sideband_mate_g: f32::NAN,
+        sideband_gear_g: sideband_g(l, 0),
+        sideband_mate_g: sideband_g(l, 1),
     }
+}
+
+/// The stronger of a mesh line's two first sidebands at shaft `i` (0 the
+/// gear's own shaft, 1 the mate's), in g; NaN ("not measured") when neither
+/// side was searched or the mesh has no mate in the point.
+fn sideband_g(l: &LineReport, i: usize) -> f32 {
+    l.sidebands
+        .bands
+        .get(2 * i..2 * i + 2)
+        .and_then(|pair| {
+            pair.iter()
+                .filter(|b| b.searched)
+                .map(|b| b.amplitude)
+                .max_by(f32::total_cmp)
+        })
+        .unwrap_or(f32::NAN)
 }
 
 fn flags(q: Q) -> QualityFlags {
