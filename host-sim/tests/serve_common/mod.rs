@@ -190,9 +190,11 @@ fn full_frame(node: u16, seq: u16, bpfo_db: f32, flags_sensor: bool) -> Vec<u8> 
             };
         }
         if b == 0 {
+            // the envelope amplitude rises with the score (the amplitude
+            // grading reads it): +30 dB over the quiet 10 mg at the end
             br.defects[0] = DefectResult {
                 score_db: bpfo_db,
-                amplitude_1x_g: 0.01,
+                amplitude_1x_g: 0.01 * 10f32.powf((bpfo_db - 5.0).max(0.0) / 20.0),
                 harmonics: 4,
                 detected: bpfo_db > 20.0,
             };
@@ -586,10 +588,10 @@ impl Drop for Gateway {
 pub type Frames = Vec<(u16, u16, Vec<u8>)>;
 
 pub fn stored(url: &str) -> (Frames, Frames, i64) {
-    use host_sim::gateway::{db, queries};
+    use host_sim::gateway::{db, store};
     let mut d = db::open(url).unwrap();
     let d = d.as_mut();
-    let reports = queries::arrivals(d).unwrap();
+    let reports = store::arrivals(d).unwrap();
     let rows = d
         .query(
             "SELECT node_id, seq, payload FROM node_status ORDER BY id",
@@ -606,20 +608,20 @@ pub fn stored(url: &str) -> (Frames, Frames, i64) {
             )
         })
         .collect();
-    let rejects = queries::count(d, "rejects").unwrap();
+    let rejects = store::count(d, "rejects").unwrap();
     (reports, statuses, rejects)
 }
 
 /// Waits until the store holds `n` reports + statuses + rejects (bounded), then settles.
 pub fn wait_stored(url: &str, want: usize, secs: u64) {
-    use host_sim::gateway::{db, queries};
+    use host_sim::gateway::{db, store};
     let t0 = Instant::now();
     let mut d = db::open(url).unwrap();
     let mut last = 0usize;
     loop {
         let n = ["reports", "node_status", "rejects"]
             .iter()
-            .map(|t| queries::count(d.as_mut(), t).unwrap_or(0) as usize)
+            .map(|t| store::count(d.as_mut(), t).unwrap_or(0) as usize)
             .sum::<usize>();
         if n >= want {
             std::thread::sleep(Duration::from_millis(500));
