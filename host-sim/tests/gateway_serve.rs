@@ -216,7 +216,17 @@ fn broker_restart_mid_stream_postgres_mqtt311() {
     let chunks = s.messages.len().div_ceil(1000);
     publish(broker.port, &s.messages, 1000, |i| {
         if i == chunks / 3 || i == 2 * chunks / 3 {
+            // each restart seen by the gateway: wait for its reconnect
+            let before = gw.log_text().matches("\"broker connected\"").count();
             broker.restart();
+            let t = Instant::now();
+            while gw.log_text().matches("\"broker connected\"").count() <= before {
+                assert!(
+                    t.elapsed() < Duration::from_secs(30),
+                    "gateway did not reconnect within 30 s"
+                );
+                std::thread::sleep(Duration::from_millis(50));
+            }
         }
     });
     wait_stored(&store, want_rows(&s), 180);

@@ -113,13 +113,14 @@ impl Handle {
                 .map_err(|e| e.to_string()),
         }
     }
+    /// Blocks until the request is queued (never call from the event thread).
     fn subscribe(&self, topic: &str) -> Result<(), String> {
         match self {
             Handle::V4(c) => c
-                .try_subscribe(topic, rumqttc::QoS::AtLeastOnce)
+                .subscribe(topic, rumqttc::QoS::AtLeastOnce)
                 .map_err(|e| e.to_string()),
             Handle::V5(c) => c
-                .try_subscribe(topic, rumqttc::v5::mqttbytes::QoS::AtLeastOnce)
+                .subscribe(topic, rumqttc::v5::mqttbytes::QoS::AtLeastOnce)
                 .map_err(|e| e.to_string()),
         }
     }
@@ -196,6 +197,25 @@ fn mqtt_options_tls(c: &ServeConfig) -> Result<Option<rumqttc::TlsConfiguration>
     }))
 }
 
+/// (Re)subscribes on every connection, from its own thread: the request
+/// queue may be full of acks at a reconnect, and the event thread that
+/// empties it must not wait on it (a subscription request dropped there
+/// would leave a broker that lost the session sending us nothing).
+fn subscribe_all(h: &Handle, topics: &[String], log: Log) {
+    let h = h.clone();
+    let topics = topics.to_vec();
+    std::thread::spawn(move || {
+        for t in &topics {
+            if let Err(e) = h.subscribe(t) {
+                log.warn(
+                    "subscribe failed",
+                    serde_json::json!({"topic": t, "error": e}),
+                );
+            }
+        }
+    });
+}
+
 /// Connects to the broker; the event thread feeds `tx` and keeps reconnecting.
 fn connect(
     c: &ServeConfig,
@@ -237,14 +257,7 @@ fn connect(
                                 "broker connected",
                                 serde_json::json!({"session_present": ack.session_present}),
                             );
-                            for t in &topics {
-                                if let Err(e) = h2.subscribe(t) {
-                                    log.warn(
-                                        "subscribe failed",
-                                        serde_json::json!({"topic": t, "error": e}),
-                                    );
-                                }
-                            }
+                            subscribe_all(&h2, &topics, log);
                         }
                         Ok(Event::Incoming(Packet::Publish(p))) => {
                             let m = Msg {
@@ -304,14 +317,7 @@ fn connect(
                                 "broker connected",
                                 serde_json::json!({"session_present": ack.session_present}),
                             );
-                            for t in &topics {
-                                if let Err(e) = h2.subscribe(t) {
-                                    log.warn(
-                                        "subscribe failed",
-                                        serde_json::json!({"topic": t, "error": e}),
-                                    );
-                                }
-                            }
+                            subscribe_all(&h2, &topics, log);
                         }
                         Ok(Event::Incoming(Packet::Publish(p))) => {
                             let m = Msg {

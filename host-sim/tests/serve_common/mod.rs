@@ -55,10 +55,16 @@ impl Broker {
         let dir = dir.join(format!("mosquitto-{port}"));
         std::fs::create_dir_all(&dir).unwrap();
         let user = if unsafe_is_root() { "user root\n" } else { "" };
+        // ENVORD_TEST_MOSQUITTO_DEBUG=1: every packet in the broker's log
+        let debug = if std::env::var_os("ENVORD_TEST_MOSQUITTO_DEBUG").is_some() {
+            "log_type all\n"
+        } else {
+            ""
+        };
         let conf = format!(
             "listener {port} 127.0.0.1\nallow_anonymous true\npersistence true\npersistence_location {}/\n\
              autosave_interval 1\nmax_inflight_messages 1000\nmax_queued_messages 0\nmax_queued_bytes 0\n\
-             log_dest file {}/log\n{user}",
+             log_dest file {}/log\n{user}{debug}",
             dir.display(),
             dir.display()
         );
@@ -106,6 +112,12 @@ impl Broker {
 
 impl Drop for Broker {
     fn drop(&mut self) {
+        if let Some(keep) = std::env::var_os("ENVORD_TEST_KEEP_LOGS") {
+            let _ = std::fs::copy(
+                self.dir.join("log"),
+                Path::new(&keep).join(format!("mosquitto-{}.log", self.port)),
+            );
+        }
         if let Some(mut c) = self.child.take() {
             let _ = c.kill();
             let _ = c.wait();
@@ -348,57 +360,76 @@ pub fn day_stream(nodes: u16, per_node: u16, raw: bool, topic_prefix: &str) -> S
     s
 }
 
-/// Publishes every message at QoS 1, in chunks: a chunk is sent again whole
-/// when the connection dropped before all of it was acknowledged (the broker
-/// may then hold repeats: the store absorbs them). `on_progress(i)` runs after
-/// chunk i (e.g. to restart a server mid-stream). Returns the publish wall
-/// times (ms since the epoch) of each message's last sending.
+/// What the publisher's event thread reports.
+enum PubEv {
+    /// A publish written to the network with this packet id.
+    Out(u16),
+    /// The broker acknowledged this packet id.
+    Ack(u16),
+    /// (Re)connected; whether the broker kept the session.
+    Conn(bool),
+}
+
+/// Publishes every message at QoS 1, in chunks, as an at-least-once
+/// publisher must: a persistent session (fixed client id, clean session
+/// off), so that after a broker restart the client retransmits what the
+/// broker had not acknowledged, and a chunk counts as done only when every
+/// packet id written for it has its PubAck (acks are matched by id, never
+/// counted). The earlier version of this helper used a clean session and
+/// counted PubAcks: on a reconnect the MQTT client dropped its unacknowledged
+/// and queued publishes (a new session has none to resume) while acks of the
+/// first sending completed the count of the re-sent chunk, so messages the
+/// publisher took as delivered never reached the broker (the
+/// broker-restart "loss"). Should the broker come back without the session,
+/// the chunk is sent again whole (repeats are the store's to absorb).
+/// `on_progress(i)` runs after chunk i (e.g. to restart a server
+/// mid-stream). Returns the publish wall times (ms since the epoch) of each
+/// message's last sending.
 pub fn publish(
     port: u16,
     msgs: &[(String, Vec<u8>)],
     chunk: usize,
     mut on_progress: impl FnMut(usize),
 ) -> Vec<i64> {
-    use rumqttc::{Client, Event, MqttOptions, Packet, QoS};
+    use rumqttc::{Client, Event, MqttOptions, Outgoing, Packet, QoS};
     let mut o = MqttOptions::new(
         format!("envord-test-pub-{port}-{}", std::process::id()),
         "127.0.0.1",
         port,
     );
     o.set_keep_alive(Duration::from_secs(10))
-        .set_clean_session(true)
+        .set_clean_session(false)
         .set_inflight(1000);
     let (client, mut conn) = Client::new(o, 2000);
-    let (tx, rx) = mpsc::channel::<bool>(); // true = PubAck, false = (re)connected
+    let (tx, rx) = mpsc::channel::<PubEv>();
     std::thread::spawn(move || {
         for ev in conn.iter() {
-            match ev {
-                Ok(Event::Incoming(Packet::PubAck(_))) => {
-                    if tx.send(true).is_err() {
-                        break;
-                    }
+            let m = match ev {
+                Ok(Event::Outgoing(Outgoing::Publish(pkid))) => PubEv::Out(pkid),
+                Ok(Event::Incoming(Packet::PubAck(a))) => PubEv::Ack(a.pkid),
+                Ok(Event::Incoming(Packet::ConnAck(c))) => PubEv::Conn(c.session_present),
+                Ok(_) => continue,
+                Err(_) => {
+                    std::thread::sleep(Duration::from_millis(200));
+                    continue;
                 }
-                Ok(Event::Incoming(Packet::ConnAck(_))) => {
-                    if tx.send(false).is_err() {
-                        break;
-                    }
-                }
-                Ok(_) => {}
-                Err(_) => std::thread::sleep(Duration::from_millis(200)),
+            };
+            if tx.send(m).is_err() {
+                break;
             }
         }
     });
-    // first connection
     let t0 = Instant::now();
     loop {
         match rx.recv_timeout(Duration::from_secs(20)) {
-            Ok(false) => break,
-            Ok(true) => {}
+            Ok(PubEv::Conn(_)) => break,
+            Ok(_) => {}
             Err(_) => panic!("publisher could not connect to the broker on 127.0.0.1:{port}"),
         }
     }
     let mut times = vec![0i64; msgs.len()];
     let deadline = t0 + Duration::from_secs(600);
+    let mut outstanding: HashSet<u16> = HashSet::new();
     for (ci, part) in msgs.chunks(chunk).enumerate() {
         'resend: loop {
             assert!(
@@ -420,12 +451,30 @@ pub fn publish(
                     std::thread::sleep(Duration::from_millis(2));
                 }
             }
-            let mut acked = 0;
-            while acked < part.len() {
+            // written = publishes of this chunk given a fresh packet id
+            let mut written = 0usize;
+            while written < part.len() || !outstanding.is_empty() {
                 match rx.recv_timeout(Duration::from_secs(30)) {
-                    Ok(true) => acked += 1,
-                    Ok(false) => continue 'resend, // reconnected: send the chunk again
-                    Err(_) => panic!("no PubAck within 30 s (chunk {ci})"),
+                    Ok(PubEv::Out(p)) => {
+                        // a retransmission reuses its outstanding id
+                        if outstanding.insert(p) {
+                            written += 1;
+                        }
+                    }
+                    Ok(PubEv::Ack(p)) => {
+                        outstanding.remove(&p);
+                    }
+                    Ok(PubEv::Conn(true)) => {} // the client retransmits
+                    Ok(PubEv::Conn(false)) => {
+                        // the broker lost the session: the client dropped its queue
+                        outstanding.clear();
+                        continue 'resend;
+                    }
+                    Err(_) => panic!(
+                        "chunk {ci}: {written} of {} written, {} unacknowledged after 30 s of silence",
+                        part.len(),
+                        outstanding.len()
+                    ),
                 }
             }
             break;
@@ -578,6 +627,11 @@ fn spawn_gw(config: &Path, log: &Path, store: &str) -> Child {
 
 impl Drop for Gateway {
     fn drop(&mut self) {
+        if let Some(keep) = std::env::var_os("ENVORD_TEST_KEEP_LOGS") {
+            if let Some(name) = self.log.file_name() {
+                let _ = std::fs::copy(&self.log, Path::new(&keep).join(name));
+            }
+        }
         let _ = self.child.kill();
         let _ = self.child.wait();
     }
