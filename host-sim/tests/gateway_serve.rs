@@ -146,7 +146,11 @@ fn day_replay_500_nodes_sqlite_mqtt5() {
     let mut last: std::collections::HashMap<(i64, String, String), String> = Default::default();
     for r in &ev {
         last.insert(
-            (r[0].int("n").unwrap(), r[1].text("b").unwrap(), r[2].text("k").unwrap()),
+            (
+                r[0].int("n").unwrap(),
+                r[1].text("b").unwrap(),
+                r[2].text("k").unwrap(),
+            ),
             r[3].text("t").unwrap(),
         );
     }
@@ -161,7 +165,11 @@ fn day_replay_500_nodes_sqlite_mqtt5() {
         let rec = last.get(&key).map(String::as_str);
         if st == "alert" || st == "danger" {
             in_alarm += 1;
-            assert_eq!(rec, Some(st), "line {key:?}: status {st}, last alarm event {rec:?}");
+            assert_eq!(
+                rec,
+                Some(st),
+                "line {key:?}: status {st}, last alarm event {rec:?}"
+            );
         } else {
             assert!(
                 !matches!(rec, Some("alert" | "danger")),

@@ -188,7 +188,11 @@ impl Alarms {
     pub fn frame(&mut self, node: u16, flags: u16, is_report: bool, out: &mut Vec<AlarmEvent>) {
         self.last_seen.insert(node, Instant::now());
         let silent_key = (node, EV_SILENT.to_string());
-        if self.node_state.get(&silent_key).is_some_and(|s| s == "silent") {
+        if self
+            .node_state
+            .get(&silent_key)
+            .is_some_and(|s| s == "silent")
+        {
             self.node_change(node, EV_SILENT, "reporting", out);
         }
         let f = dsp_core::frame::QualityFlags::from_bits(flags);

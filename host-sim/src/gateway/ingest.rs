@@ -162,25 +162,32 @@ pub fn write(db: &mut dyn Db, batch: &[Uplink]) -> Result<Vec<Outcome>, DbError>
     for (i, (u, d)) in batch.iter().zip(&decoded).enumerate() {
         match d {
             Err(reason) => {
-                let new =
-                    insert_reject(db, &u.origin.source, u.origin.line, &u.text, reason)?;
-                set(&mut out, i, Outcome::Rejected {
-                    reason: reason.clone(),
-                    new,
-                });
+                let new = insert_reject(db, &u.origin.source, u.origin.line, &u.text, reason)?;
+                set(
+                    &mut out,
+                    i,
+                    Outcome::Rejected {
+                        reason: reason.clone(),
+                        new,
+                    },
+                );
             }
             Ok(f @ Frame::Status(_)) => {
                 flush_reports(db, batch, &decoded, &mut run, &mut out)?;
                 let payload = u.bytes.as_deref().unwrap_or(&[]);
                 let new = insert_status(db, f, payload, &u.origin)?;
-                set(&mut out, i, if new {
-                    Outcome::New {
-                        frame: f.clone(),
-                        seq: None,
-                    }
-                } else {
-                    Outcome::Known { frame: f.clone() }
-                });
+                set(
+                    &mut out,
+                    i,
+                    if new {
+                        Outcome::New {
+                            frame: f.clone(),
+                            seq: None,
+                        }
+                    } else {
+                        Outcome::Known { frame: f.clone() }
+                    },
+                );
             }
             Ok(_) => run.push(i),
         }
@@ -375,7 +382,11 @@ fn flush_reports(
         for (j, &i) in part.iter().enumerate() {
             if let Some(f) = frame_of(i) {
                 let (n, s) = store::node_seq(f);
-                cond.push(format!("(node_id = ?{} AND seq = ?{})", 2 * j + 1, 2 * j + 2));
+                cond.push(format!(
+                    "(node_id = ?{} AND seq = ?{})",
+                    2 * j + 1,
+                    2 * j + 2
+                ));
                 params.extend([n.into(), s.into()]);
             }
         }
@@ -454,10 +465,14 @@ fn flush_reports(
             set(out, i, Outcome::Known { frame: f.clone() });
             continue;
         };
-        set(out, i, Outcome::New {
-            frame: f.clone(),
-            seq: None,
-        });
+        set(
+            out,
+            i,
+            Outcome::New {
+                frame: f.clone(),
+                seq: None,
+            },
+        );
         match f {
             Frame::Full(r) => {
                 for (b, br) in (0u8..).zip(r.bearings.iter()) {

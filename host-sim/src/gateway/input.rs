@@ -255,7 +255,10 @@ mod tests {
     #[test]
     fn hex_and_lines() {
         assert_eq!(parse_hex("0aFF").unwrap(), vec![0x0a, 0xff]);
-        assert_eq!(parse_hex("abc").unwrap_err(), "odd number of hex digits (3)");
+        assert_eq!(
+            parse_hex("abc").unwrap_err(),
+            "odd number of hex digits (3)"
+        );
         assert_eq!(parse_hex("0aZ1").unwrap_err(), "bad hex digits \"Z1\"");
         let items = parse_text(
             "x",

@@ -404,12 +404,9 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
             .saturating_mul(u64::from(cfg.alarms.silent_intervals)),
     );
     // The history of frames is the store's (unique key); keep only positions.
-    let (mut tracker, _) = ingest::decided_order(
-        db.as_mut(),
-        super::seq::SeqTracker::without_history(),
-        None,
-    )
-    .map_err(|e| CliError::Other(format!("{shown_url}: {e}")))?;
+    let (mut tracker, _) =
+        ingest::decided_order(db.as_mut(), super::seq::SeqTracker::without_history(), None)
+            .map_err(|e| CliError::Other(format!("{shown_url}: {e}")))?;
 
     let stop = Arc::new(AtomicBool::new(false));
     for sig in [signal_hook::consts::SIGTERM, signal_hook::consts::SIGINT] {
@@ -686,7 +683,15 @@ fn spawn_alarms(
             }
             if !events.is_empty() {
                 let batch = std::mem::take(&mut events);
-                publish_alarms(&mut alarms, db.as_mut(), topic.as_deref(), &mqtt, batch, &health, log);
+                publish_alarms(
+                    &mut alarms,
+                    db.as_mut(),
+                    topic.as_deref(),
+                    &mqtt,
+                    batch,
+                    &health,
+                    log,
+                );
             }
             if stop {
                 break;

@@ -1,8 +1,8 @@
 //! The gateway service's TOML configuration (docs/gateway.md, "gateway serve").
 
+use super::ingest::Origin;
 use super::ingest::Uplink;
 use super::input::{parse_base64, parse_hex};
-use super::ingest::Origin;
 use crate::error::CliError;
 use serde::Deserialize;
 
