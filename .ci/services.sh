@@ -58,7 +58,7 @@ export ENVORD_TEST_PG_CTL="${RUNAS[*]} $PGBIN/pg_ctl -D $PGDATA -w -t 30 -m fast
 echo "PostgreSQL $("$PGBIN/postgres" --version | awk '{print $3}') on 127.0.0.1:$PGPORT; $("$MOSQ" -h | head -1)"
 
 case "${1:-tests}" in
-  tests) cargo test -q -p host-sim --features service-tests --locked --test gateway_serve -- --test-threads=1 ;;
+  tests) cargo test -q -p host-sim --features service-tests --locked --test gateway_serve -- --test-threads=1 --nocapture ;;
   bench) cargo bench -q -p host-sim --features service-tests --locked --bench gateway_ingest ;;
   *) "$@" ;;
 esac
