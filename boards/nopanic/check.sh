@@ -18,7 +18,7 @@ trap 'rm -f "$LOG"' EXIT
 
 echo "no-panic check: building envord-nopanic (thumbv7em-none-eabihf, release)"
 if cargo rustc --release --locked -j2 -- -D warnings -C "link-arg=-Map=$OUT/nopanic.map" >"$LOG" 2>&1; then
-  echo "PASS: no panic path is reachable from the dsp-core API and the firmware node (cycle, downlinks, records, flash store, survey) and the block ring exercised in boards/nopanic/src/main.rs"
+  echo "PASS: no panic path is reachable from the dsp-core API, the wire decoders and the firmware node (cycle, downlinks, records, flash store, survey) and the block ring exercised in boards/nopanic/src/main.rs"
   exit 0
 fi
 

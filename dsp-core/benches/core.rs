@@ -10,7 +10,7 @@
 
 use criterion::{black_box, criterion_group, criterion_main, Criterion, Throughput};
 use dsp_core::config::{Bearing, BearingKinematics, PointConfig, SpeedInput};
-use dsp_core::decimate::Decimator;
+use dsp_core::frontend::decimate::Decimator;
 use dsp_core::frontend::{FrontEnd, FrontEndConfig};
 use dsp_core::pipeline::{NodePipeline, ADC_BLOCK};
 use dsp_core::spectrum::real_fft;

@@ -40,7 +40,7 @@ fn main() {
         .get(6)
         .map_or(point.sample_rate_hz, |f| f.parse().expect("sample rate"));
     point.band_hz = Some([5000.0, 10000.0]);
-    point.rectifier = dsp_core::rectify::Rectifier::Square;
+    point.rectifier = dsp_core::frontend::rectify::Rectifier::Square;
     for (name, rollers, d, pd) in [
         ("drive-end", 9u16, 7.9f32, 39.0f32),
         ("fan-end", 8, 6.7, 31.0),
@@ -94,13 +94,13 @@ fn main() {
     }
     // The band-pass alone (8 poles, the point's band), in place over a copy.
     let p = NodePipeline::new(&point).expect("point");
-    let sos =
-        dsp_core::design::butter_bandpass(5000.0, 10000.0, point.sample_rate_hz, 8).expect("band");
+    let sos = dsp_core::frontend::design::butter_bandpass(5000.0, 10000.0, point.sample_rate_hz, 8)
+        .expect("band");
     let mut best_bp = f64::INFINITY;
     let mut y = x.clone();
     for _ in 0..repeats {
         y.copy_from_slice(&x);
-        let mut bp = dsp_core::biquad::BiquadCascade::new(sos);
+        let mut bp = dsp_core::frontend::biquad::BiquadCascade::new(sos);
         let t0 = Instant::now();
         bp.process(&mut y);
         best_bp = best_bp.min(t0.elapsed().as_secs_f64());
@@ -127,9 +127,9 @@ fn main() {
         std::hint::black_box(acc.snapshot());
     });
     let t_vel = best_of(&mut || {
-        let mut v = dsp_core::velocity::VelocityMeter::new(
+        let mut v = dsp_core::overall::velocity::VelocityMeter::new(
             point.sample_rate_hz,
-            &dsp_core::velocity::VelocityConfig::default(),
+            &dsp_core::overall::velocity::VelocityConfig::default(),
         )
         .expect("velocity");
         for blk in x.chunks(ADC_BLOCK) {
@@ -149,7 +149,7 @@ fn main() {
         }
         std::hint::black_box(sink);
     });
-    let vel = dsp_core::velocity::velocity_decimation(point.sample_rate_hz);
+    let vel = dsp_core::overall::velocity::velocity_decimation(point.sample_rate_hz);
     println!(
         "{{\"seconds\": {best:.6}, \"samples\": {n}, \"segments\": {segments}, \
          \"msps\": {:.3}, \"records\": {records}, \"threads\": {threads}, \

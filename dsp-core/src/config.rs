@@ -10,16 +10,16 @@ use core::fmt;
 
 use heapless::{String, Vec};
 
-pub use crate::defects::DefectSearchConfig;
-pub use crate::rectify::Rectifier;
+pub use crate::diagnosis::defects::DefectSearchConfig;
+pub use crate::frontend::rectify::Rectifier;
+pub use crate::overall::velocity::{MachineGroup, Support};
 pub use crate::spectrum::Window;
-pub use crate::velocity::{MachineGroup, Support};
 
 /// Most bearings one measuring point watches: a three-stage gearbox has
 /// eight on four shafts, and cross-bearing attribution can only give a peak
 /// to a bearing the point knows. The radio frame of format version 1 and
 /// the node's configuration record carry at most four
-/// ([`crate::frame::layout::MAX_BEARINGS`]).
+/// (`wire::MAX_BEARINGS`).
 pub const MAX_BEARINGS: usize = 8;
 /// Most shafts one measuring point describes (the tach shaft included).
 pub const MAX_SHAFTS: usize = 4;
@@ -130,14 +130,14 @@ pub struct Mesh {
 impl Bearing {
     /// The bearing's defect multiples of its own shaft speed (from the
     /// geometry by the kinematic formulas, or as given).
-    pub fn multiples(&self) -> Result<crate::kinematics::DefectMultiples, ConfigError> {
+    pub fn multiples(&self) -> Result<crate::diagnosis::kinematics::DefectMultiples, ConfigError> {
         match self.kinematics {
             BearingKinematics::Geometry {
                 rollers,
                 roller_diameter,
                 pitch_diameter,
                 contact_angle_deg,
-            } => crate::kinematics::BearingGeometry {
+            } => crate::diagnosis::kinematics::BearingGeometry {
                 rollers,
                 roller_diameter,
                 pitch_diameter,
@@ -150,7 +150,7 @@ impl Bearing {
                 bpfi_x,
                 ftf_x,
                 bsf_x,
-            } => crate::kinematics::DefectMultiples::new(bpfo_x, bpfi_x, ftf_x, bsf_x)
+            } => crate::diagnosis::kinematics::DefectMultiples::new(bpfo_x, bpfi_x, ftf_x, bsf_x)
                 .map_err(|_| ConfigError::BearingMultiples),
         }
     }
@@ -366,7 +366,7 @@ pub struct LineCoincidence {
     /// Indices into [`PointConfig::bearings`], the first the lower.
     pub bearings: [u8; 2],
     /// The watched kind of each (BPFO, BPFI or BSF; BSF watched at 2 x BSF).
-    pub kinds: [crate::kinematics::DefectKind; 2],
+    pub kinds: [crate::diagnosis::kinematics::DefectKind; 2],
     /// The harmonic of each line that coincides (1 or 2).
     pub harmonics: [u8; 2],
     /// Those harmonics in tach-shaft orders.
@@ -399,7 +399,7 @@ impl PointConfig {
     /// assert_eq!(p.line_coincidences().len(), 3);
     /// ```
     pub fn line_coincidences(&self) -> Vec<LineCoincidence, MAX_COINCIDENCES> {
-        use crate::kinematics::{DefectKind, ShaftRatio};
+        use crate::diagnosis::kinematics::{DefectKind, ShaftRatio};
         const KINDS: [DefectKind; 3] = [DefectKind::Bpfo, DefectKind::Bpfi, DefectKind::Bsf];
         let tol = self.search.slip_tolerance;
         let orders = |b: &Bearing| {

@@ -35,35 +35,35 @@ pub fn f64_to_f32(x: f64) -> f32 {
 /// Converts an `f64` to `u64`, saturating: NaN and negatives give 0.
 #[inline]
 #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
-pub fn f64_to_u64_sat(x: f64) -> u64 {
+pub(crate) fn f64_to_u64_sat(x: f64) -> u64 {
     x as u64
 }
 
 /// Converts an `f64` to `u32`, saturating: NaN and negatives give 0.
 #[inline]
 #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
-pub fn f64_to_u32_sat(x: f64) -> u32 {
+pub(crate) fn f64_to_u32_sat(x: f64) -> u32 {
     x as u32
 }
 
 /// Converts an `f64` to `i64`, saturating; NaN gives 0.
 #[inline]
 #[allow(clippy::cast_possible_truncation)]
-pub fn f64_to_i64_sat(x: f64) -> i64 {
+pub(crate) fn f64_to_i64_sat(x: f64) -> i64 {
     x as i64
 }
 
 /// The low 32 bits of a `u64` (intentional truncation, e.g. a wrapping counter).
 #[inline]
 #[allow(clippy::cast_possible_truncation)]
-pub fn u64_low_u32(x: u64) -> u32 {
+pub(crate) fn u64_low_u32(x: u64) -> u32 {
     x as u32
 }
 
 /// Converts a `usize` to `f32` (exact below 2^24).
 #[inline]
 #[allow(clippy::cast_precision_loss)]
-pub fn usize_to_f32(x: usize) -> f32 {
+pub(crate) fn usize_to_f32(x: usize) -> f32 {
     x as f32
 }
 

@@ -31,18 +31,17 @@ use core::fmt;
 use heapless::Vec;
 
 use crate::config::{ConfigError, PointConfig, SpeedInput, MAX_BEARINGS, MAX_MESHES};
-use crate::coverage::{Coverage, NotSearched};
-use crate::defects::DefectSearch;
+use crate::diagnosis::coverage::{Coverage, NotSearched};
+use crate::diagnosis::defects::DefectSearch;
+use crate::diagnosis::kinematics::{BearingOrders, ShaftRatio};
+use crate::frontend::decimation_for;
 use crate::frontend::{FrontEnd, FrontEndConfig, FrontEndPlan};
-use crate::kinematics::{BearingOrders, ShaftRatio};
 use crate::num::usize_to_f32;
-use crate::order_track::{
-    decimation_for, OrderFlags, OrderTrackConfig, OrderTrackPlan, OrderTracker,
-};
+use crate::overall::velocity::VelocityConfig;
 use crate::report::{BearingReport, LineReport, PassReport, QualityFlags, Report};
 use crate::spectrum::{OrderSpectrum, SpectrumConfig, SpectrumView};
-use crate::tach::{SpeedSource, TachConfig, TachFlags, TachPlan, TachTracker};
-use crate::velocity::VelocityConfig;
+use crate::speed::order_track::{OrderFlags, OrderTrackConfig, OrderTrackPlan, OrderTracker};
+use crate::speed::tach::{SpeedSource, TachConfig, TachFlags, TachPlan, TachTracker};
 
 /// Samples per ADC block on the node (one DMA half-buffer). The host
 /// simulator feeds recordings in blocks of this size so its reports equal the
@@ -51,7 +50,7 @@ pub const ADC_BLOCK: usize = 256;
 
 /// Ring of decimated envelope samples on the node (8 KiB): enough for three
 /// revolutions at the slowest configured speed; see
-/// [`crate::order_track::ring_needed`].
+/// [`crate::speed::order_track::ring_needed`].
 pub const NODE_RING: usize = 2048;
 
 /// Spectrum bins the node keeps: those up to `S/4` orders (`N/4 + 1` for
@@ -71,17 +70,18 @@ const SATURATED_SHARE: f32 = 0.01;
 /// Why [`Pipeline::new`] refused a measuring point.
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum PipelineError {
     /// The point itself is invalid.
     Config(ConfigError),
     /// The front end refused the band, rate or decimation.
     FrontEnd(crate::frontend::FrontEndError),
     /// The speed source was refused.
-    Tach(crate::tach::TachConfigError),
+    Tach(crate::speed::tach::TachConfigError),
     /// The order tracker was refused: usually the speed range is too wide
     /// for the resampler ring at this decimation (narrow the range or lower
     /// `samples_per_rev`).
-    OrderTrack(crate::order_track::OrderTrackError),
+    OrderTrack(crate::speed::order_track::OrderTrackError),
     /// The spectrum refused `samples_per_rev` for this FFT size.
     Spectrum(crate::spectrum::SpectrumError),
 }
@@ -141,7 +141,7 @@ pub struct Pipeline<const N: usize, const H: usize, const RING: usize> {
 /// The small, per-point part of a configured pipeline.
 struct Setup {
     point: PointConfig,
-    /// The passes and which one reports each bearing ([`crate::coverage`]).
+    /// The passes and which one reports each bearing ([`crate::diagnosis::coverage`]).
     coverage: Coverage,
     /// The pass being recorded (index into `coverage.passes`).
     pass: u8,
@@ -246,11 +246,11 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
         self.raised = QualityFlags::empty();
     }
 
-    /// Validates the point, plans its passes ([`crate::coverage`]), checks
+    /// Validates the point, plans its passes ([`crate::diagnosis::coverage`]), checks
     /// that every stage accepts every pass, and plans the first.
     fn plan(point: &PointConfig) -> Result<Plan, PipelineError> {
         point.validate()?;
-        let coverage = crate::coverage::plan(point, N);
+        let coverage = crate::diagnosis::coverage::plan(point, N);
         for i in 1..coverage.passes.len() {
             // Checked up front: a later pass never fails mid-measurement.
             let _ = Self::plan_pass(point, &coverage, i, 0)?;
@@ -452,7 +452,7 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
         self.raised.insert(flags);
     }
 
-    /// Pushes one tach edge (capture-timer ticks, see [`crate::tach`]).
+    /// Pushes one tach edge (capture-timer ticks, see [`crate::speed::tach`]).
     /// Push the edges captured during a block before the block itself.
     pub fn push_edge(&mut self, tick: u32) {
         let wanted = self.segments_wanted();
@@ -624,7 +624,7 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
                 // Filled by push, not collect: heapless' collect panics on
                 // overflow (both lists hold at most MAX_BEARINGS).
                 let mut diagnoses: Vec<
-                    &mut Option<crate::defects::BearingDiagnosis>,
+                    &mut Option<crate::diagnosis::defects::BearingDiagnosis>,
                     MAX_BEARINGS,
                 > = Vec::new();
                 for b in bearings.iter_mut() {
@@ -644,7 +644,7 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
             for (m, &order) in point.meshes.iter().zip(setup.mesh_orders.iter()) {
                 let measurement = match (&view, analysable) {
                     (Some(v), true) => setup.search.measure_line(v, order),
-                    _ => crate::defects::LineMeasurement::not_searched(order),
+                    _ => crate::diagnosis::defects::LineMeasurement::not_searched(order),
                 };
                 // Same capacity as the point's mesh list.
                 let _ = lines.push(LineReport {
@@ -688,7 +688,7 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
         }
     }
 
-    /// Passes of the configured point ([`crate::coverage`]); 0 unconfigured.
+    /// Passes of the configured point ([`crate::diagnosis::coverage`]); 0 unconfigured.
     pub fn pass_count(&self) -> usize {
         self.setup.as_ref().map_or(0, |s| s.coverage.passes.len())
     }

@@ -6,11 +6,11 @@ use core::fmt;
 use heapless::Vec;
 
 use crate::config::{Name, MAX_BEARINGS, MAX_MESHES};
-use crate::coverage::{NotSearched, MAX_PASSES};
-use crate::defects::{BearingDiagnosis, LineMeasurement};
-use crate::kinematics::{BearingOrders, DefectKind};
+use crate::diagnosis::coverage::{NotSearched, MAX_PASSES};
+use crate::diagnosis::defects::{BearingDiagnosis, LineMeasurement};
+use crate::diagnosis::kinematics::{BearingOrders, DefectKind};
 use crate::overall::Overall;
-use crate::tach::SpeedSummary;
+use crate::speed::tach::SpeedSummary;
 
 /// Quality flags of a report: what went wrong or is doubtful. A report with
 /// any of [`QualityFlags::NOT_ANALYSABLE`] carries no defect results.
@@ -126,7 +126,7 @@ pub struct BearingReport {
     /// Defect results; `None` when not searched (see [`Self::not_searched`]).
     pub diagnosis: Option<BearingDiagnosis>,
     /// The pass that reports this bearing, or why no pass can search it
-    /// ([`crate::coverage`]).
+    /// ([`crate::diagnosis::coverage`]).
     pub coverage: Result<u8, NotSearched>,
 }
 
@@ -175,7 +175,7 @@ pub struct Report {
     /// Envelope band used, Hz.
     pub band_hz: [f32; 2],
     /// Rectifier: spectrum amplitudes are in g (`Abs`) or g² (`Square`).
-    pub rectifier: crate::rectify::Rectifier,
+    pub rectifier: crate::frontend::rectify::Rectifier,
     /// Decimation factor of the envelope.
     pub decimation: u16,
     /// Angle-domain samples per revolution.
@@ -197,7 +197,7 @@ pub struct Report {
     pub passes: Vec<PassReport, MAX_PASSES>,
 }
 
-/// What one pass of a measurement recorded ([`crate::coverage`]).
+/// What one pass of a measurement recorded ([`crate::diagnosis::coverage`]).
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct PassReport {

@@ -4,7 +4,7 @@
 //!
 //! Blocks go straight from the ADC into the survey's filter bank; no raw
 //! record is kept. The survey settings come from the measuring point through
-//! [`dsp_core::band_choice`], the code `envord analyze` uses on the host, so
+//! [`dsp_core::survey::band_choice`], the code `envord analyze` uses on the host, so
 //! the node and the host choose the same band, bit for bit, from the same
 //! samples (checked under QEMU by `boards/ci.sh`). The capture is as long
 //! as a measurement record ([`crate::config::PointRecord::record_blocks`]).
@@ -23,7 +23,7 @@
 //! measured on a kit (a gapped capture is discarded, not used). Figures:
 //! docs/commissioning.md, `boards/size.sh`.
 
-use dsp_core::band_choice::survey_config;
+use dsp_core::survey::band_choice::survey_config;
 use dsp_core::survey::{BandSurvey, SurveyError};
 
 use crate::config::PointRecord;
@@ -42,6 +42,7 @@ pub struct SurveyChoice {
 /// Why a survey could not run or choose.
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum CommissionError {
     /// The measurement core has no band survey.
     Unsupported,

@@ -9,7 +9,7 @@
 //!   velocity RMS (as a level, 20 log10 of the ratio),
 //! * or [`ReportPolicy::full_every`] cycles have passed since it;
 //!
-//! otherwise the 11-byte reduced frame ([`dsp_core::frame::encode_reduced`]),
+//! otherwise the 11-byte reduced frame ([`wire::frame::encode_reduced`]),
 //! which the gateway reads as "as before, with this worst score". The
 //! comparison is made on the values as the frame carries them (quantised),
 //! so what the gateway sees decides. Peak, crest factor, kurtosis, speed and
@@ -20,8 +20,8 @@
 //! ([`ExceptionState::sent`]): a cycle that fails before the uplink does not
 //! make the next reduced frame refer to a full frame never sent.
 
-use dsp_core::frame::{FrameReport, QualityFlags};
 use dsp_core::num::log10f;
+use wire::frame::{FrameReport, QualityFlags};
 
 /// When the node sends a full frame. The defaults are this project's
 /// choice: 3 dB is half the +6 dB alert rise of the gateway's trend limits
@@ -29,6 +29,7 @@ use dsp_core::num::log10f;
 /// a day at one measurement per hour.
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub struct ReportPolicy {
     /// A finding that moved by this much (dB) or more since the last full
     /// frame sends a full frame. 0 sends one on any change.
@@ -89,6 +90,7 @@ impl core::error::Error for PolicyError {}
 /// Why a full frame is sent.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum FullReason {
     /// No full frame sent since boot.
     First,
@@ -221,7 +223,7 @@ fn changed(last: &FrameReport, now: &FrameReport, margin: f32) -> bool {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use dsp_core::frame::{BearingResult, IsoZone};
+    use wire::frame::{BearingResult, IsoZone};
 
     fn report(score: f32) -> FrameReport {
         let mut r = FrameReport {

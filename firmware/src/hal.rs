@@ -3,10 +3,42 @@
 //!
 //! The sensor power switch and the settling delay use embedded-hal 1.0
 //! traits directly (`OutputPin`, `DelayNs`).
+//!
+//! [`Board`] names one type per device, so the node is generic over the
+//! board and the core only ([`crate::cycle::Node<B, C>`]) rather than over
+//! every device; a board implements it on a marker type and fills a
+//! [`crate::cycle::Devices<B>`] with its drivers.
 
 use crate::commission::{CommissionError, SurveyChoice};
 use crate::config::PointRecord;
 use crate::quality::QualityFlags;
+use embedded_hal::delay::DelayNs;
+use embedded_hal::digital::OutputPin;
+
+/// A board: the device types the measurement cycle runs over, one each.
+///
+/// Implemented on a marker type (`struct Mps2;`) by each board and by host
+/// test benches; the drivers themselves travel in [`crate::cycle::Devices`].
+pub trait Board {
+    /// ADC blocks (DMA double buffer or block ring).
+    type Source: BlockSource;
+    /// Tach edge capture on the sample clock.
+    type Capture: PulseCapture;
+    /// Radio link to the gateway.
+    type Radio: RadioLink;
+    /// Sleep and wake-up alarm.
+    type Alarm: Alarm;
+    /// Persistent storage of the records.
+    type Storage: Storage;
+    /// Supply monitor.
+    type Battery: Battery;
+    /// Independent watchdog.
+    type Watchdog: Watchdog;
+    /// Sensor supply switch (high = on).
+    type Power: OutputPin;
+    /// Delay for sensor settling.
+    type Delay: DelayNs;
+}
 
 /// One filled block handed out by a [`BlockSource`].
 #[derive(Clone, Copy, Debug)]
@@ -70,6 +102,7 @@ pub trait RadioLink {
 /// Why the node woke up.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum WakeReason {
     /// The measurement interval elapsed.
     Schedule,
@@ -122,7 +155,7 @@ pub trait Watchdog {
 }
 
 /// The signal-processing core as the firmware sees it. The lead's adapter
-/// implements this over `dsp_core::pipeline::Pipeline` and `dsp_core::frame`.
+/// implements this over `dsp_core::pipeline::Pipeline` and `wire::frame`.
 pub trait MeasurementCore {
     /// Core error (configuration refused, frame too small, ...).
     type Error;

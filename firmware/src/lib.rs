@@ -4,10 +4,9 @@
 //!   hardware traits, host-testable with mocks.
 //! * [`hal`]: the small hardware traits boards implement, and the
 //!   [`hal::MeasurementCore`] trait the DSP core is adapted to.
-//! * [`config`]: the measuring-point configuration as a versioned, CRC-checked
-//!   binary record; [`downlink`]: commands that replace it, accepted only
-//!   when [`downlink_auth`] verifies them under the node's key
-//!   ([`identity`], written at provisioning).
+//! * [`config`], [`downlink`], [`downlink_auth`], [`identity`], [`crc`],
+//!   [`point`]: re-exported from the `wire` crate, which owns every byte the
+//!   node and the gateway share (records, frames, downlinks, CRCs).
 //! * [`store`]: power-safe record storage on NOR flash (two pages per record,
 //!   sequence number and CRC, newest valid copy wins).
 //! * [`commission`]: the band survey that chooses the envelope band on the node.
@@ -16,9 +15,7 @@
 //!   cycle, deep enough for the block that completes a spectrum segment.
 //! * [`exception`]: reports by exception (a full frame when a finding
 //!   changed, a flag is raised or every N cycles; else the reduced frame).
-//! * [`crc`]: CRC-32 for stored records.
 //! * [`pipeline_core`]: the adapter to the `dsp-core` pipeline and frame codec.
-//! * [`point`]: the record as `dsp-core`'s measuring point, for the pipeline adapter.
 //! * [`overall_core`]: a minimal overall-level core, so board images run the
 //!   whole cycle before the envelope pipeline is adapted.
 //!
@@ -37,18 +34,16 @@
 )]
 
 pub mod commission;
-pub mod config;
-pub mod crc;
 pub mod cycle;
-pub mod downlink;
-pub mod downlink_auth;
 pub mod exception;
 pub mod hal;
-pub mod identity;
 mod log;
 pub mod overall_core;
 pub mod pipeline_core;
-pub mod point;
 pub mod quality;
 pub mod ring;
 pub mod store;
+
+// The byte formats live in the `wire` crate; these paths stay for the
+// firmware's own modules and the board images.
+pub use wire::{config, crc, downlink, downlink_auth, identity, point};

@@ -5,19 +5,17 @@
 //! stays useful as a fallback mode. Sums are kept in integers, so the host and
 //! the target compute bit-identical frames from the same samples.
 //!
-//! Frame (12 bytes, little-endian): kind `0x4F`, quality flags, RMS about the
-//! mean in 0.1 counts (u16), peak about the mean in counts (u16), crest factor
-//! × 1000 (u16), tach shaft speed in 0.1 rpm (u32). Fields saturate.
+//! Frame: the 12-byte `0x4F` overall frame of [`wire::overall`] (its byte
+//! layout lives there and in docs/frame-format.md); this module computes the
+//! figures and rounds them to the frame's units. Fields saturate.
 
 use crate::config::PointRecord;
 use crate::hal::MeasurementCore;
 use crate::quality::QualityFlags;
 use dsp_core::num::{f32_to_u32_sat, sqrtf};
 
-/// Frame kind byte of an overall-only frame.
-pub const FRAME_KIND: u8 = 0x4F;
-/// Encoded frame length.
-pub const FRAME_LEN: usize = 12;
+use wire::overall::OverallFrame;
+pub use wire::overall::{FRAME_KIND, FRAME_LEN};
 
 /// Why the overall core failed.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -167,28 +165,14 @@ impl MeasurementCore for OverallCore {
     fn encode(&mut self, frame: &mut [u8]) -> Result<usize, OverallError> {
         let flags = self.flags;
         let o = self.result.ok_or(OverallError::NotFinished)?;
-        let out = frame
-            .get_mut(..FRAME_LEN)
-            .ok_or(OverallError::BufferTooSmall)?;
-        let rms = field_u16(o.rms * 10.0).to_le_bytes();
-        let peak = field_u16(o.peak).to_le_bytes();
-        let crest = field_u16(o.crest * 1000.0).to_le_bytes();
-        let speed = f32_to_u32_sat(o.speed_rpm * 10.0 + 0.5).to_le_bytes();
-        let bytes = [
-            FRAME_KIND,
-            flags.bits(),
-            rms[0],
-            rms[1],
-            peak[0],
-            peak[1],
-            crest[0],
-            crest[1],
-            speed[0],
-            speed[1],
-            speed[2],
-            speed[3],
-        ];
-        out.copy_from_slice(&bytes);
-        Ok(FRAME_LEN)
+        OverallFrame {
+            flags: flags.bits(),
+            rms_decicounts: field_u16(o.rms * 10.0),
+            peak_counts: field_u16(o.peak),
+            crest_milli: field_u16(o.crest * 1000.0),
+            speed_decirpm: f32_to_u32_sat(o.speed_rpm * 10.0 + 0.5),
+        }
+        .emit(frame)
+        .map_err(|_| OverallError::BufferTooSmall)
     }
 }

@@ -8,7 +8,7 @@
 //! * Blocks and edges go straight to the pipeline (nothing is buffered here).
 //! * `finish` raises the firmware's flags in the pipeline, then keeps its
 //!   [`Report`]; `encode` fills a [`FrameReport`] and packs the full frame
-//!   (`dsp_core::frame::encode`, at most 58 bytes for 4 bearings).
+//!   (`wire::frame::encode`, at most 58 bytes for 4 bearings).
 //!
 //! * `start_survey` sets the pipeline aside (unstarted) for a band survey
 //!   ([`crate::commission::Commissioning`], kept beside the pipeline and set
@@ -25,9 +25,9 @@ use crate::config::PointRecord;
 use crate::hal::MeasurementCore;
 use crate::point::{point_config, PointError};
 use crate::quality::QualityFlags;
-use dsp_core::frame::{self, EncodeError, FrameReport};
 use dsp_core::pipeline::{Pipeline, PipelineError, NODE_BINS, NODE_RING};
 use dsp_core::report::{QualityFlags as ReportFlags, Report};
+use wire::frame::{self, EncodeError, FrameReport};
 
 /// The node's core: 4096-point spectrum, node-sized resampler ring.
 pub type NodeCore = PipelineCore<4096, NODE_BINS, NODE_RING>;
@@ -35,6 +35,7 @@ pub type NodeCore = PipelineCore<4096, NODE_BINS, NODE_RING>;
 /// Why the pipeline core failed.
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum PipelineCoreError {
     /// The record could not become a measuring point.
     Point(PointError),
@@ -163,7 +164,7 @@ impl<const N: usize, const H: usize, const RING: usize> MeasurementCore
         } else if self.started {
             self.pipeline.push_i16(samples);
             // A pass done and another to come: keep its report, go on with
-            // the next pass on the next block (dsp_core::coverage).
+            // the next pass on the next block (dsp_core::diagnosis::coverage).
             if self.pipeline.complete() && self.pipeline.pass() + 1 < self.pipeline.pass_count() {
                 self.end_pass();
                 let _ = self.pipeline.next_pass();

@@ -1,5 +1,26 @@
 //! Quality flags carried by every frame, and the signal-health checks that
 //! raise them while blocks stream past (no raw record is kept).
+//!
+//! # Two sensor-fault checks, one flag
+//!
+//! `SENSOR_FAULT` is raised by two different checks, kept apart on purpose
+//! (they look at different things, and merging them would change flags):
+//!
+//! * the node's **input check** ([`SignalHealth`], here): raw ADC counts
+//!   before any processing; a dead input is a peak-to-peak span of at most
+//!   [`HealthLimits::flat_counts`], a saturated one has at least
+//!   [`HealthLimits::saturated_permille`] of its samples at the clip level.
+//!   Its limits travel in the configuration record, so the gateway can
+//!   tune them per sensor by downlink. It runs with every core, also one
+//!   without dsp-core (the overall-only core).
+//! * the core's **channel check** (`dsp_core::pipeline`, in `finish`): the
+//!   front end's AC RMS below one ADC count in g (flat), or more than 1 % of
+//!   the samples at full scale (saturated), fixed, the same on the node and
+//!   in `envord analyze` on the host.
+//!
+//! On the node both run and their results are OR-ed: the firmware passes
+//! its flags to the core ([`crate::hal::MeasurementCore::finish`]), and the
+//! frame's one `sensor_fault` bit means "either check failed".
 
 /// Bit set of conditions that make a measurement doubtful.
 ///
@@ -14,7 +35,8 @@ impl QualityFlags {
     pub const TACH_MISSING: Self = Self(1 << 0);
     /// Some samples reached the clip level.
     pub const CLIPPING: Self = Self(1 << 1);
-    /// Sensor fault: flat (open or shorted sensor) or saturated signal.
+    /// Sensor fault: flat (open or shorted sensor) or saturated signal, by
+    /// the node's input check or the core's channel check (module docs).
     pub const SENSOR_FAULT: Self = Self(1 << 2);
     /// The sample source overran: processing was too slow and blocks were lost.
     pub const PROCESSING_OVERRUN: Self = Self(1 << 3);
@@ -59,34 +81,13 @@ impl core::ops::BitOr for QualityFlags {
     }
 }
 
-/// Thresholds for [`SignalHealth`], taken from the stored configuration.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub struct HealthLimits {
-    /// A record whose peak-to-peak span is at most this many counts is "flat".
-    pub flat_counts: u16,
-    /// Magnitude at or above which a sample counts as clipped.
-    pub clip_level: i16,
-    /// Clipped samples, per mille of the record, from which CLIPPING is raised.
-    pub clip_permille: u16,
-    /// Clipped samples, per mille, from which the sensor is called saturated.
-    pub saturated_permille: u16,
-}
+/// Thresholds of the node's input check ([`SignalHealth`]; not the core's
+/// channel check, see the module docs), taken from the stored configuration
+/// (the record's fields, so defined with it in `wire::config`).
+pub use wire::config::HealthLimits;
 
-impl Default for HealthLimits {
-    fn default() -> Self {
-        // 12-bit ADC in a signed 16-bit container (common practice); flat span
-        // of a few counts covers ADC noise on a dead input.
-        Self {
-            flat_counts: 4,
-            clip_level: 2047,
-            clip_permille: 1,
-            saturated_permille: 100,
-        }
-    }
-}
-
-/// Running min/max/clip counts over a streamed record.
+/// The node's input check: running min/max/clip counts over a streamed
+/// record of raw ADC counts.
 #[derive(Clone, Copy, Debug)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct SignalHealth {

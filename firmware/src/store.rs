@@ -60,6 +60,7 @@ pub struct Layout {
 /// Why a flash store operation failed.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
 pub enum StoreError {
     /// The flash driver refused an erase, write or read.
     Flash,

@@ -2,7 +2,7 @@
 //! runs the band survey (`dsp_core::survey`, Antoni's kurtogram idea as a
 //! filter bank) over a streamed capture, stores the band with its kurtosis,
 //! reports it in a status frame and measures with it afterwards. The band
-//! must equal, bit for bit, the one the host path (`dsp_core::band_choice`,
+//! must equal, bit for bit, the one the host path (`dsp_core::survey::band_choice`,
 //! used by `envord analyze`) chooses from the same samples.
 #![allow(
     clippy::panic,
@@ -14,12 +14,12 @@
 )]
 mod common;
 use common::*;
-use dsp_core::frame::status::{decode_status, BandSource as FrameBand, SurveyStatus};
 use firmware::commission::Commissioning;
 use firmware::config::{BandSource, PointRecord};
 use firmware::cycle::{CycleKind, DownlinkOutcome, SurveyOutcome};
 use firmware::hal::WakeReason;
 use firmware::pipeline_core::NodeCore;
+use wire::frame::status::{decode_status, BandSource as FrameBand, SurveyStatus};
 
 const FS: f32 = 25_600.0;
 const RPM: f32 = 1480.0;
@@ -106,7 +106,7 @@ fn survey_chooses_the_ringing_band_stores_it_and_the_next_cycles_measure_with_it
 
     // Bit for bit the host path: same rule, same 256-sample blocks, f32 input.
     let point = firmware::point::point_config(&rec).unwrap();
-    let mut host = dsp_core::band_choice::new_survey(&point).unwrap();
+    let mut host = dsp_core::survey::band_choice::new_survey(&point).unwrap();
     for blk in x[..blocks * 256].chunks(256) {
         let f: Vec<f32> = blk.iter().map(|&c| f32::from(c)).collect();
         host.push_f32(&f);

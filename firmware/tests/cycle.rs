@@ -70,9 +70,9 @@ fn each_transition_of_a_healthy_cycle() {
         })
         .collect();
     assert_eq!(sends.len(), 2);
-    let st = dsp_core::frame::status::decode_status(&sends[1]).unwrap();
+    let st = wire::frame::status::decode_status(&sends[1]).unwrap();
     assert_eq!(st.node_id, NODE_ID);
-    assert_eq!(st.boot_config, dsp_core::frame::status::BootConfig::Stored);
+    assert_eq!(st.boot_config, wire::frame::status::BootConfig::Stored);
     assert!(st.provisioned && s.status_sent);
     // later cycles without a downlink send the report only
     let mark = log.borrow().len();

@@ -10,10 +10,10 @@
 )]
 mod common;
 use common::*;
-use dsp_core::frame::status::{decode_status, DownlinkResult, StatusReport};
 use firmware::cycle::DownlinkOutcome;
 use firmware::downlink::DownlinkError;
 use firmware::downlink_auth::AuthError;
+use wire::frame::status::{decode_status, DownlinkResult, StatusReport};
 
 fn sent(log: &Log) -> Vec<Vec<u8>> {
     log.borrow()

@@ -38,7 +38,7 @@ fn outer_race_defect_recording_gives_a_bpfo_detection_in_the_frame() {
     if let Some(out) = std::env::var_os("ENVORD_HOST_PIPELINE_FRAMES_OUT") {
         std::fs::write(out, &bytes).unwrap();
     }
-    // full frame for one bearing: 30 bytes (dsp_core::frame::layout::full_frame_len(1));
+    // full frame for one bearing: 30 bytes (wire::frame::layout::full_frame_len(1));
     // the first report is followed by the boot status frame (27 bytes); the
     // second report changed by less than the default margin (3 dB): it goes
     // out as the 11-byte reduced frame, "as before" with its worst defect
@@ -48,15 +48,15 @@ fn outer_race_defect_recording_gives_a_bpfo_detection_in_the_frame() {
         frames.iter().map(Vec::len).collect::<Vec<_>>(),
         [30, 27, 11]
     );
-    let full = dsp_core::frame::decode(&frames[0]).unwrap();
+    let full = wire::frame::decode(&frames[0]).unwrap();
     check_report(&full, 0);
-    let reduced = dsp_core::frame::decode_reduced(&frames[2]).unwrap();
+    let reduced = wire::frame::decode_reduced(&frames[2]).unwrap();
     assert_eq!((reduced.node_id, reduced.seq), (1, 1));
-    assert_eq!(reduced.flags, dsp_core::frame::QualityFlags::default());
+    assert_eq!(reduced.flags, wire::frame::QualityFlags::default());
     let w = reduced.worst.unwrap();
     assert_eq!(
         (w.bearing, w.kind, w.detected),
-        (0, dsp_core::frame::DefectKind::Bpfo, true)
+        (0, wire::frame::DefectKind::Bpfo, true)
     );
     assert!(
         (w.score_db - full.bearings[0].defects[0].score_db).abs() < 3.0,
@@ -77,16 +77,16 @@ fn every_cycle_policy_sends_two_full_frames() {
         [30, 27, 30]
     );
     for (seq, f) in [&frames[0], &frames[2]].into_iter().enumerate() {
-        check_report(&dsp_core::frame::decode(f).unwrap(), seq);
+        check_report(&wire::frame::decode(f).unwrap(), seq);
     }
 }
 
-fn check_report(r: &dsp_core::frame::FrameReport, seq: usize) {
+fn check_report(r: &wire::frame::FrameReport, seq: usize) {
     assert_eq!(r.node_id, 1);
     assert_eq!(usize::from(r.seq), seq);
     assert_eq!(
         r.flags,
-        dsp_core::frame::QualityFlags::default(),
+        wire::frame::QualityFlags::default(),
         "{:?}",
         r.flags
     );
@@ -118,7 +118,7 @@ fn firmware_flags_reach_the_frame() {
         .unwrap();
     let mut buf = [0u8; 64];
     let n = c.encode(&mut buf).unwrap();
-    let r = dsp_core::frame::decode(&buf[..n]).unwrap();
+    let r = wire::frame::decode(&buf[..n]).unwrap();
     assert!(r.flags.processing_overrun && r.flags.low_battery);
     // no tach edges at all: the pipeline adds tach_missing; an all-zero input is flat
     assert!(

@@ -49,7 +49,7 @@ fn replay_matches_numpy_reference() {
         frames.iter().map(Vec::len).collect::<Vec<_>>(),
         [12, 27, 12]
     );
-    let status = dsp_core::frame::status::decode_status(&frames[1]).unwrap();
+    let status = wire::frame::status::decode_status(&frames[1]).unwrap();
     assert_eq!((status.node_id, status.downlink_counter), (1, 0));
     assert_eq!(status.band_hz, [2000.0, 8000.0]);
     let reports: Vec<&Vec<u8>> = frames.iter().filter(|f| f.len() == 12).collect();

@@ -19,10 +19,10 @@
 //! loss the old or the new bytes load, never anything else.
 #![no_main]
 
-use firmware::config::{StoredConfig, MAX_RECORD_LEN, MAX_STORED_LEN};
-use firmware::crc::crc32;
+use wire::config::{StoredConfig, MAX_RECORD_LEN, MAX_STORED_LEN};
+use wire::crc::crc32;
 use firmware::hal::{Slot, Storage};
-use firmware::identity::{Identity, IDENTITY_LEN};
+use wire::identity::{Identity, IDENTITY_LEN};
 use firmware::store::{FlashStore, Layout, MAX_PAYLOAD, PAGE_HEADER_LEN, PAGE_MAGIC};
 use libfuzzer_sys::fuzz_target;
 

@@ -1,4 +1,4 @@
-//! The node's downlink opener (`firmware::downlink::open`: authentication
+//! The node's downlink opener (`wire::downlink::open`: authentication
 //! under the node's key, then the command and configuration parsers), as the
 //! cycle calls it on every received downlink, with a fixed test key.
 //!
@@ -17,11 +17,11 @@
 //!   so every field check of the record parser is reached.
 #![no_main]
 
-use firmware::config::{PointRecord, MAX_RECORD_LEN};
-use firmware::crc::crc32;
-use firmware::downlink::{open, parse, Command, DownlinkError};
-use firmware::downlink_auth::{sign, AuthError, DownlinkKey, HEADER_LEN, TAG_LEN};
-use firmware::identity::{encode, Identity, IDENTITY_LEN};
+use wire::config::{PointRecord, MAX_RECORD_LEN};
+use wire::crc::crc32;
+use wire::downlink::{open, parse, Command, DownlinkError};
+use wire::downlink_auth::{sign, AuthError, DownlinkKey, HEADER_LEN, TAG_LEN};
+use wire::identity::{encode, Identity, IDENTITY_LEN};
 use libfuzzer_sys::fuzz_target;
 
 /// Test key and node id (committed, not secret; never used on a node).

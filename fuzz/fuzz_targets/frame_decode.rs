@@ -7,8 +7,8 @@
 //! mutations get past the CRC to the full, reduced and status field decoders.
 #![no_main]
 
-use dsp_core::frame::crc::crc16;
-use dsp_core::frame::{decode_any, encode, encode_reduced_report, to_json, Frame};
+use wire::crc::crc16;
+use wire::frame::{decode_any, encode, encode_reduced_report, to_json, Frame};
 use libfuzzer_sys::fuzz_target;
 
 fn check(data: &[u8]) {
@@ -23,7 +23,7 @@ fn check(data: &[u8]) {
             Frame::Reduced(r) => {
                 encode_reduced_report(r, &mut buf).expect("decoded report must encode")
             }
-            Frame::Status(r) => dsp_core::frame::status::encode_status(r, &mut buf)
+            Frame::Status(r) => wire::frame::status::encode_status(r, &mut buf)
                 .expect("decoded status must encode"),
         };
         assert_eq!(&buf[..n], data);

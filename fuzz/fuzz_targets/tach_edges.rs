@@ -6,7 +6,7 @@
 use dsp_core::config::{PointConfig, SpeedInput};
 use dsp_core::pipeline::Pipeline;
 use dsp_core::report::QualityFlags;
-use dsp_core::tach::{SpeedSource, TachConfig, TachTracker};
+use dsp_core::speed::tach::{SpeedSource, TachConfig, TachTracker};
 use libfuzzer_sys::fuzz_target;
 
 fuzz_target!(|data: &[u8]| {
@@ -40,7 +40,7 @@ fuzz_target!(|data: &[u8]| {
     c.max_rpm = max_rpm;
     if let Ok(mut t) = TachTracker::new(&SpeedSource::Tach(c)) {
         let mut last: Option<(f64, u32)> = None;
-        let mut check = |m: dsp_core::tach::RevMark| {
+        let mut check = |m: dsp_core::speed::tach::RevMark| {
             assert!(m.time_samples.is_finite());
             if let Some((t0, i0)) = last {
                 assert!(m.time_samples >= t0, "marks out of time order");

@@ -26,7 +26,7 @@
 #[path = "../tests/roundtrip_common/mod.rs"]
 mod roundtrip_common;
 
-use dsp_core::kinematics::DefectKind;
+use dsp_core::diagnosis::kinematics::DefectKind;
 use host_sim::simulate::{Fault, SpeedProfile};
 use roundtrip_common::*;
 

@@ -4,7 +4,7 @@
 // input.bytes (array of 0..255) and input.fPort, returning { data, errors,
 // warnings }. Plain ES5 so it runs in the codec sandboxes of network servers.
 // The frame format is docs/frame-format.md (version 1); this file mirrors the
-// Rust decoder dsp_core::frame and is checked against its vectors by test.js.
+// Rust decoder wire::frame and is checked against its vectors by test.js.
 /* eslint-disable no-var */
 
 var ENVORD_VERSION = 1;
@@ -18,7 +18,7 @@ var REDUCED_LEN = 11;
 var STATUS_LEN = 27;
 var BAND_SOURCES = ["configured", "survey", "unset"];
 var BOOT_CONFIGS = ["stored", "default_empty", "default_invalid"];
-// Status frame codes (docs/frame-format.md, dsp_core::frame::status).
+// Status frame codes (docs/frame-format.md, wire::frame::status).
 var DOWNLINK_RESULTS = {
   0: "none", 1: "config_applied", 2: "measure_now", 3: "baseline_applied",
   4: "survey_requested", 5: "not_stored", 16: "truncated", 17: "unknown_version",

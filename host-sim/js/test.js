@@ -1,5 +1,5 @@
 // Checks envord-codec.js against the Rust codec's vectors (vectors.json,
-// written by tests/tests/frame_vectors.rs). Node built-ins only:
+// written by wire/tests/frame_vectors.rs). Node built-ins only:
 //   node host-sim/js/test.js
 "use strict";
 var assert = require("assert");

@@ -5,11 +5,11 @@
 //! acquisition stopped once the configured revolutions are in.
 
 use dsp_core::config::{PointConfig, SpeedInput};
-use dsp_core::order_track::OrderTrackError;
 use dsp_core::pipeline::{NodePipeline, PipelineError, ADC_BLOCK};
 use dsp_core::report::Report;
+use dsp_core::speed::order_track::OrderTrackError;
+use dsp_core::speed::tach::EdgeDetector;
 use dsp_core::survey::{SurveyError, SurveyResult};
-use dsp_core::tach::EdgeDetector;
 
 use crate::error::CliError;
 
@@ -98,7 +98,7 @@ pub fn edges_from_channel(tach: &[f32], sample_rate_hz: f32) -> Result<Vec<f64>,
 }
 
 /// Chooses the envelope band when `point` has none: the band survey with
-/// the node's commissioning rule ([`dsp_core::band_choice`]) over the whole
+/// the node's commissioning rule ([`dsp_core::survey::band_choice`]) over the whole
 /// record, in ADC-sized blocks, ADC counts through `push_i16` as on the
 /// node, so the node and the host choose the same band bit for bit from the
 /// same samples. Sets `point.band_hz` and the recording's sample rate and
@@ -111,7 +111,7 @@ pub fn choose_band(
         return Ok(None);
     }
     point.sample_rate_hz = rec.sample_rate_hz;
-    let mut s = dsp_core::band_choice::new_survey(point)?;
+    let mut s = dsp_core::survey::band_choice::new_survey(point)?;
     match &rec.accel {
         Accel::Counts(v) => v.chunks(ADC_BLOCK).for_each(|b| s.push_i16(b)),
         Accel::G(v) => v.chunks(ADC_BLOCK).for_each(|b| s.push_f32(b)),
@@ -126,18 +126,36 @@ pub const SAMPLE_RATE_RANGE_HZ: [f32; 2] = [1000.0, 400_000.0];
 
 /// Refuses a sample rate outside [`SAMPLE_RATE_RANGE_HZ`] with the fix in
 /// words, before any stage turns it into jargon about rings or Nyquist.
-pub fn check_sample_rate(fs: f32) -> Result<(), String> {
+pub fn check_sample_rate(fs: f32) -> Result<(), SampleRateError> {
     let [lo, hi] = SAMPLE_RATE_RANGE_HZ;
     if fs.is_finite() && (lo..=hi).contains(&fs) {
         Ok(())
     } else {
-        Err(format!(
-            "sample rate {fs} Hz (from the WAV header) is outside the {lo:.0} to {hi:.0} Hz \
-             the analysis supports: check that the header's rate is the rate the samples were \
-             taken at, or resample the recording"
-        ))
+        Err(SampleRateError { fs })
     }
 }
+
+/// A recording's sample rate outside [`SAMPLE_RATE_RANGE_HZ`].
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SampleRateError {
+    /// The rate given, Hz.
+    pub fs: f32,
+}
+
+impl std::fmt::Display for SampleRateError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        let [lo, hi] = SAMPLE_RATE_RANGE_HZ;
+        write!(
+            f,
+            "sample rate {} Hz (from the WAV header) is outside the {lo:.0} to {hi:.0} Hz \
+             the analysis supports: check that the header's rate is the rate the samples were \
+             taken at, or resample the recording",
+            self.fs
+        )
+    }
+}
+
+impl std::error::Error for SampleRateError {}
 
 /// A pipeline refusal in words a user can act on: which point-file key to
 /// change, and to what, where that can be worked out.
@@ -186,7 +204,7 @@ pub fn explain_pipeline_error(point: &PointConfig, e: PipelineError) -> String {
 pub fn run(point: &PointConfig, rec: &Record) -> Result<Analysis, CliError> {
     let mut point = point.clone();
     point.sample_rate_hz = rec.sample_rate_hz;
-    check_sample_rate(rec.sample_rate_hz).map_err(CliError::Input)?;
+    check_sample_rate(rec.sample_rate_hz).map_err(|e| CliError::Input(e.to_string()))?;
     let mut p = Box::new(NodePipeline::new(&point).map_err(|e| {
         CliError::input(
             format!(
@@ -313,7 +331,7 @@ mod tests {
         let r = choose_band(&mut p, &rec).unwrap().unwrap();
         assert_eq!(p.band_hz, Some(r.band_hz));
         assert_eq!(p.sample_rate_hz, 25_600.0);
-        let mut node = dsp_core::band_choice::new_survey(&p).unwrap();
+        let mut node = dsp_core::survey::band_choice::new_survey(&p).unwrap();
         for b in x.chunks(ADC_BLOCK) {
             node.push_i16(b);
         }

@@ -56,20 +56,20 @@ pub fn frame_hex(
     node_id: u16,
     seq: u16,
 ) -> Result<String, CliError> {
-    let most = dsp_core::frame::layout::MAX_BEARINGS;
+    let most = wire::frame::layout::MAX_BEARINGS;
     if report.bearings.len() > most {
         // The frame would silently carry only the first bearings.
         return Err(CliError::Other(format!(
             "frame: the point watches {} bearings; radio frame format {} carries at most {most}: \
              split the point into points of at most {most} bearings for the node",
             report.bearings.len(),
-            dsp_core::frame::layout::FORMAT_VERSION
+            wire::frame::layout::FORMAT_VERSION
         )));
     }
-    let fr = dsp_core::frame::FrameReport::from_report(report, node_id, seq);
+    let fr = wire::frame::FrameReport::from_report(report, node_id, seq);
     let mut buf = [0u8; 64];
-    let n = dsp_core::frame::encode(&fr, &mut buf)
-        .map_err(|e| CliError::Other(format!("frame: {e}")))?;
+    let n =
+        wire::frame::encode(&fr, &mut buf).map_err(|e| CliError::Other(format!("frame: {e}")))?;
     Ok(buf.iter().take(n).map(|b| format!("{b:02x}")).collect())
 }
 
@@ -254,8 +254,8 @@ pub fn coincidences(point: &PointConfig) -> (Vec<String>, serde_json::Value) {
             .get(usize::from(i))
             .map_or_else(|| format!("#{i}"), |b| b.name.to_string())
     };
-    let kind = |k: dsp_core::kinematics::DefectKind| match k {
-        dsp_core::kinematics::DefectKind::Bsf => "2xBSF",
+    let kind = |k: dsp_core::diagnosis::kinematics::DefectKind| match k {
+        dsp_core::diagnosis::kinematics::DefectKind::Bsf => "2xBSF",
         other => other.name(),
     };
     let list = point.line_coincidences();

@@ -9,7 +9,7 @@ use std::fmt::Write as _;
 use std::path::PathBuf;
 
 use clap::Args;
-use dsp_core::kinematics::DefectKind;
+use dsp_core::diagnosis::kinematics::DefectKind;
 
 use crate::cmd_analyze::{analyze_record, load_record, mark_band_choice, speed_for};
 use crate::error::CliError;
@@ -54,7 +54,7 @@ struct RowFigures {
     best_bearing: [String; 4],
     detected: Vec<String>,
     band: String,
-    zone: Option<dsp_core::velocity::Zone>,
+    zone: Option<dsp_core::overall::velocity::Zone>,
 }
 
 struct Row {

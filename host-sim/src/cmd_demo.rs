@@ -7,7 +7,7 @@
 use std::path::PathBuf;
 
 use clap::Args;
-use dsp_core::kinematics::DefectKind;
+use dsp_core::diagnosis::kinematics::DefectKind;
 
 use crate::analysis::{edges_from_channel, run, Accel, Analysis, Record};
 use crate::error::CliError;

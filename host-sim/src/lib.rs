@@ -15,13 +15,13 @@
 )]
 
 pub mod analysis;
+pub mod bearing_len;
 pub mod closed_stdout;
 pub mod cmd_analyze;
 pub mod cmd_batch;
 pub mod cmd_compare;
 pub mod cmd_demo;
 pub mod cmd_simulate;
-pub mod cmd_validate;
 pub mod edges_csv;
 pub mod energy;
 pub mod error;
@@ -33,4 +33,5 @@ pub mod point;
 pub mod report_json;
 pub mod report_policy;
 pub mod simulate;
+pub mod validate;
 pub mod wav;

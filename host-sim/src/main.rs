@@ -34,7 +34,7 @@ enum Command {
     /// histories, signed messages to nodes (every subcommand: `envord gateway --help`).
     Gateway(host_sim::gateway::GatewayArgs),
     /// Check the diagnosis on a labelled data folder (manifest.toml + WAVs).
-    Validate(host_sim::cmd_validate::ValidateArgs),
+    Validate(host_sim::validate::ValidateArgs),
     /// Energy budget of one measurement and battery life at given intervals.
     Energy(host_sim::energy::EnergyArgs),
 }
@@ -71,7 +71,7 @@ fn dispatch(command: Command) -> Result<(), host_sim::error::CliError> {
         Command::Compare(a) => host_sim::cmd_compare::run(&a),
         Command::Batch(a) => host_sim::cmd_batch::run(&a),
         Command::Gateway(a) => host_sim::gateway::run(a),
-        Command::Validate(a) => host_sim::cmd_validate::run_cmd(&a),
+        Command::Validate(a) => host_sim::validate::run_cmd(&a),
         Command::Energy(a) => host_sim::energy::run(&a),
     }
 }

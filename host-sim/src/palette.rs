@@ -3,7 +3,7 @@
 //! spectrum plot's (`crate::plot`); none of them is used for an alarm level
 //! (levels are drawn in black and grey, told apart by line pattern and text).
 
-use dsp_core::kinematics::DefectKind;
+use dsp_core::diagnosis::kinematics::DefectKind;
 use plotters::style::RGBColor;
 
 /// Colour of a defect kind.

@@ -4,7 +4,7 @@
 
 use std::path::Path;
 
-use dsp_core::kinematics::DefectKind;
+use dsp_core::diagnosis::kinematics::DefectKind;
 use plotters::coord::Shift;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
@@ -150,8 +150,8 @@ where
         .max(1e-9)
         * 1.25;
     let unit = match r.rectifier {
-        dsp_core::rectify::Rectifier::Abs => "g",
-        dsp_core::rectify::Rectifier::Square => "g²",
+        dsp_core::frontend::rectify::Rectifier::Abs => "g",
+        dsp_core::frontend::rectify::Rectifier::Square => "g²",
     };
     let mut chart = ChartBuilder::on(&top)
         .caption(

@@ -15,8 +15,6 @@ use serde::Deserialize;
 
 use crate::error::CliError;
 
-const MM_PER_IN: f32 = 25.4;
-
 #[derive(Debug, Default, Deserialize)]
 #[serde(deny_unknown_fields)]
 struct PointFile {
@@ -345,14 +343,8 @@ fn length(
     mm: Option<f32>,
     inch: Option<f32>,
 ) -> Result<Option<f32>, String> {
-    match (mm, inch) {
-        (Some(_), Some(_)) => Err(format!(
-            "bearing `{bearing}`: give {key}_mm or {key}_in, not both"
-        )),
-        (Some(v), None) => Ok(Some(v)),
-        (None, Some(v)) => Ok(Some(v * MM_PER_IN)),
-        (None, None) => Ok(None),
-    }
+    crate::bearing_len::length_mm(mm, inch)
+        .map_err(|_| format!("bearing `{bearing}`: give {key}_mm or {key}_in, not both"))
 }
 
 fn check_count(what: &str, n: usize, cap: usize) -> Result<(), String> {

@@ -8,10 +8,10 @@
 //! line (2 x BSF) and `bsf_order` the single-sided ball spin order. Everything
 //! else (`flags`, `overall`, `speed`, per-harmonic detail) is added beside it.
 
-use dsp_core::defects::DefectResult;
-use dsp_core::kinematics::DefectKind;
+use dsp_core::diagnosis::defects::DefectResult;
+use dsp_core::diagnosis::kinematics::DefectKind;
+use dsp_core::overall::velocity::{zone_limits, MachineGroup, Support, Zone};
 use dsp_core::report::Report;
-use dsp_core::velocity::{zone_limits, MachineGroup, Support, Zone};
 use serde_json::{json, Value};
 
 /// Version of this JSON layout (bumped only for incompatible changes).
@@ -149,12 +149,12 @@ pub fn to_json(report: &Report, file: Option<&str>) -> Value {
         "envelope": {
             "band_hz": [finite(report.band_hz[0]), finite(report.band_hz[1])],
             "rectifier": match report.rectifier {
-                dsp_core::rectify::Rectifier::Abs => "abs",
-                dsp_core::rectify::Rectifier::Square => "square",
+                dsp_core::frontend::rectify::Rectifier::Abs => "abs",
+                dsp_core::frontend::rectify::Rectifier::Square => "square",
             },
             "amplitude_unit": match report.rectifier {
-                dsp_core::rectify::Rectifier::Abs => "g",
-                dsp_core::rectify::Rectifier::Square => "g^2",
+                dsp_core::frontend::rectify::Rectifier::Abs => "g",
+                dsp_core::frontend::rectify::Rectifier::Square => "g^2",
             },
             "decimation": report.decimation,
             "samples_per_rev": report.samples_per_rev,
@@ -297,12 +297,12 @@ pub fn to_table(report: &Report, group: MachineGroup, support: Support) -> Strin
         "score dB",
         "harm",
         match report.rectifier {
-            dsp_core::rectify::Rectifier::Abs => "1x amp g",
-            dsp_core::rectify::Rectifier::Square => "1x amp g^2",
+            dsp_core::frontend::rectify::Rectifier::Abs => "1x amp g",
+            dsp_core::frontend::rectify::Rectifier::Square => "1x amp g^2",
         },
         match report.rectifier {
-            dsp_core::rectify::Rectifier::Abs => "sum amp g",
-            dsp_core::rectify::Rectifier::Square => "sum g^2",
+            dsp_core::frontend::rectify::Rectifier::Abs => "sum amp g",
+            dsp_core::frontend::rectify::Rectifier::Square => "sum g^2",
         }
     );
     for b in &report.bearings {

@@ -29,7 +29,7 @@ use std::path::{Path, PathBuf};
 use std::process::Command;
 
 use dsp_core::config::PointConfig;
-use dsp_core::kinematics::DefectKind;
+use dsp_core::diagnosis::kinematics::DefectKind;
 use dsp_core::pipeline::{NodePipeline, ADC_BLOCK};
 use dsp_core::report::Report;
 use host_sim::cmd_demo::to_counts;

@@ -10,7 +10,7 @@
 //! (2011), section 2; from memory).
 #![allow(clippy::unwrap_used, clippy::indexing_slicing, clippy::panic)]
 
-use dsp_core::kinematics::DefectKind;
+use dsp_core::diagnosis::kinematics::DefectKind;
 use host_sim::cmd_demo::{demo_analysis, DEMO_SEED};
 
 #[test]

@@ -22,13 +22,13 @@
     missing_docs
 )]
 
-use dsp_core::frame::{decode, encode, encode_reduced, FrameReport};
 use firmware::exception::{Choice, ExceptionState, ReportPolicy};
 use host_sim::analysis::{edges_from_channel, run, Accel, Record};
 use host_sim::cmd_demo::{to_counts, DEMO_MACHINE, DEMO_POINT};
 use host_sim::energy::lora::{time_on_air_s, LoraParams};
 use host_sim::gateway::{store, trend, trend_cmd};
 use host_sim::simulate::{simulate, MachineSpec};
+use wire::frame::{decode, encode, encode_reduced, FrameReport};
 
 const DAYS: u32 = 365;
 const NODE: u16 = 7;
@@ -53,7 +53,7 @@ fn states(conn: &rusqlite::Connection) -> Vec<(u8, String, trend::State, Option<
 }
 
 fn insert(conn: &mut rusqlite::Connection, bytes: &[u8], line: usize) {
-    let frame = dsp_core::frame::decode_any(bytes).unwrap();
+    let frame = wire::frame::decode_any(bytes).unwrap();
     let tx = conn.transaction().unwrap();
     let origin = store::Origin {
         source: "year",

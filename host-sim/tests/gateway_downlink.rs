@@ -12,11 +12,11 @@
 use std::path::Path;
 use std::process::{Command, Output};
 
-use firmware::config::{BandSource, PointRecord};
-use firmware::downlink::{open, Command as Cmd};
-use firmware::downlink_auth::{verify, AuthError, DownlinkKey};
-use firmware::identity::Identity;
 use serde_json::Value;
+use wire::config::{BandSource, PointRecord};
+use wire::downlink::{open, Command as Cmd};
+use wire::downlink_auth::{verify, AuthError, DownlinkKey};
+use wire::identity::Identity;
 
 const BIN: &str = env!("CARGO_BIN_EXE_envord");
 const VECTORS: &str = concat!(

@@ -344,7 +344,7 @@ fn first_detection_is_alert_unless_an_absolute_danger_level_is_crossed() {
 
 /// A node status frame of node 7 announcing its band.
 fn status_line(seq: u16, band: [f32; 2], at_s: i64) -> String {
-    use dsp_core::frame::status::{encode_status, BandSource, StatusReport};
+    use wire::frame::status::{encode_status, BandSource, StatusReport};
     let r = StatusReport {
         node_id: 7,
         seq,

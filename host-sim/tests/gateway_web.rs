@@ -17,12 +17,12 @@
 mod common;
 
 use common::{hex, run, stdout, BIN};
-use dsp_core::frame::{encode, BearingResult, DefectResult, FrameReport};
 use host_sim::gateway::web::clock;
 use std::io::{Read, Write};
 use std::path::Path;
 use std::process::{Child, Command, Stdio};
 use std::time::{Duration, Instant};
+use wire::frame::{encode, BearingResult, DefectResult, FrameReport};
 
 /// A full frame with per-bearing BPFO scores (other kinds quiet).
 fn frame(node: u16, seq: u16, bpfo: &[f32], low_battery: bool) -> Vec<u8> {
@@ -56,7 +56,7 @@ fn frame(node: u16, seq: u16, bpfo: &[f32], low_battery: bool) -> Vec<u8> {
 }
 
 fn status_frame(node: u16, seq: u16, band: [f32; 2], refused: u8) -> Vec<u8> {
-    use dsp_core::frame::status::{
+    use wire::frame::status::{
         encode_status, BandSource, DownlinkResult, StatusReport, SurveyStatus,
     };
     let r = StatusReport {

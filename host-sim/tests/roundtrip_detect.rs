@@ -21,7 +21,7 @@
 
 mod roundtrip_common;
 
-use dsp_core::kinematics::DefectKind;
+use dsp_core::diagnosis::kinematics::DefectKind;
 use host_sim::simulate::Fault;
 use roundtrip_common::*;
 
@@ -71,7 +71,7 @@ fn check_fault(fault: Fault) {
     }
     assert!(failures.is_empty(), "{fault:?}: {failures:#?}");
     // The healthy output-shaft bearing is searched since every bearing gets
-    // a pass at its own shaft's resolution (dsp_core::coverage); before, it
+    // a pass at its own shaft's resolution (dsp_core::diagnosis::coverage); before, it
     // was never searched and so never "alarmed". A rolling-element fault on
     // the input bearing still makes one false call on it at one speed (a
     // known gap of cross-bearing attribution, issue notes): allowed once,

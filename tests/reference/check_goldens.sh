@@ -4,7 +4,7 @@
 # abs. 1e-12; design magnitudes are stored rounded to 1e-6 dB, so 2e-6 dB there).
 set -euo pipefail
 here="$(cd "$(dirname "$0")" && pwd)"
-data="$here/../data/frontend"
+data="$here/../../dsp-core/tests/data/frontend"
 tmp="$(mktemp -d)"
 trap 'rm -rf "$tmp"' EXIT
 python3 "$here/frontend_golden.py" "$tmp"

@@ -1,7 +1,7 @@
 #!/usr/bin/env python3
 """Golden data for the dsp-core envelope front end, computed with scipy/numpy.
 
-Outputs (into OUTDIR, default tests/data/frontend):
+Outputs (into OUTDIR, default dsp-core/tests/data/frontend):
   design_golden.json    scipy.signal.butter(N, [lo, hi], 'bandpass', fs, output='sos')
                         magnitude (sosfreqz) on a grid and group delay at the band centre.
   frontend_golden.json  whole front end on the committed CWRU excerpt:
@@ -9,7 +9,7 @@ Outputs (into OUTDIR, default tests/data/frontend):
                         lfilter(h, 1, x)[M-1::M], where the stage taps h are re-derived here
                         (odd stages scipy.signal.kaiserord + firwin(window=('kaiser', beta)),
                         half-bands scipy.signal.remez via halfband_tables.py) using the band
-                        plan documented in dsp-core/src/decimate.rs. Also numpy/scipy.stats
+                        plan documented in dsp-core/src/frontend/decimate.rs. Also numpy/scipy.stats
                         overall indicators of the raw excerpt.
 
   --extract  re-creates the committed excerpt from the CWRU WAV (needs the dataset).
@@ -28,13 +28,13 @@ sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 import halfband_tables  # noqa: E402
 
 HERE = os.path.dirname(os.path.abspath(__file__))
-DATA = os.path.normpath(os.path.join(HERE, "..", "data", "frontend"))
+DATA = os.path.normpath(os.path.join(HERE, "..", "..", "dsp-core", "tests", "data", "frontend"))
 EXCERPT = os.path.join(DATA, "cwru_ir007_1hp_de_excerpt.f32")
 WAV = os.path.normpath(os.path.join(HERE, "..", "..", "..", "shared", "data", "cwru",
                                     "cwru-12k-de-ir007-1hp.de.wav"))
 START, LEN = 12000, 6000  # samples 12000..17999 (1.0 s .. 1.5 s) at 12 kHz
 
-# Decimator band plan (mirrors dsp-core/src/decimate.rs).
+# Decimator band plan (mirrors dsp-core/src/frontend/decimate.rs).
 STOP_DB = 66.0
 PASS_FRACTION = 0.4
 

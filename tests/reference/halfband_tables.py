@@ -1,7 +1,7 @@
 #!/usr/bin/env python3
 """Equiripple half-band tables of the envelope decimator, designed with
 scipy.signal.remez, and a check of the tables committed in
-dsp-core/src/decimate.rs.
+dsp-core/src/frontend/decimate.rs.
 
 A factor-2 stage with input rate r_in (in units of the final output rate fo)
 must pass [0, 0.4 fo] and reject from r_in/2 - 0.4 fo (band plan in
@@ -29,7 +29,7 @@ import numpy as np
 import scipy.signal as sig
 
 HERE = os.path.dirname(os.path.abspath(__file__))
-RUST = os.path.normpath(os.path.join(HERE, "..", "..", "dsp-core", "src", "decimate.rs"))
+RUST = os.path.normpath(os.path.join(HERE, "..", "..", "dsp-core", "src", "frontend", "decimate.rs"))
 STOP_DB = 66.0
 PASS_FRACTION = 0.4
 RATES = (2, 4, 8)  # input rate of the stage in units of the final output rate

@@ -3,7 +3,7 @@
 //! records and MFPT fault data sets; labels, speeds and bearing geometry from
 //! each dataset's documentation). The excerpts are written as WAV files with
 //! a manifest into a temporary folder and run through the command's own
-//! method ([`host_sim::cmd_validate::validate_dir`]: segment length by rule,
+//! method ([`host_sim::validate::validate_dir`]: segment length by rule,
 //! band of highest spectral kurtosis from the band survey, default search
 //! thresholds), so this check needs no `../shared/data`; CI runs the full
 //! development set as well when it is there. Clear inner- and outer-race
@@ -22,8 +22,8 @@
 
 use std::path::{Path, PathBuf};
 
-use dsp_core::kinematics::DefectKind;
-use host_sim::cmd_validate::{validate_dir, BandRule, RecordResult};
+use dsp_core::DefectKind;
+use host_sim::validate::{validate_dir, BandRule, RecordResult};
 
 struct Excerpt {
     file: &'static str,

@@ -1,5 +1,6 @@
 //! Link-time proof that no panic path is reachable from dsp-core's public
-//! API and from the firmware node (its whole cycle with the pipeline core:
+//! API, from every decoder of the `wire` crate (frames, records, downlinks)
+//! and from the firmware node (its whole cycle with the pipeline core:
 //! downlink authentication and parsing, configuration and identity records,
 //! the power-safe flash store, the commissioning survey, status frames) and
 //! the block ring between the sampling interrupt and the cycle, when built
@@ -23,13 +24,13 @@ use core::panic::PanicInfo;
 
 use cortex_m_rt::entry;
 use dsp_core::config::PointConfig;
-use dsp_core::frame::{
+use wire::frame::{
     decode, decode_any, decode_reduced, encode, encode_reduced, encode_reduced_report, encoded_len,
     Frame, FrameReport, ReducedReport,
 };
 use dsp_core::pipeline::{NodePipeline, Pipeline, ADC_BLOCK};
 use dsp_core::report::QualityFlags;
-use dsp_core::tach::{EdgeDetector, SpeedSource, TachConfig, TachTracker};
+use dsp_core::speed::tach::{EdgeDetector, SpeedSource, TachConfig, TachTracker};
 
 // Declared, never defined: referencing it is what makes the link fail.
 unsafe extern "C" {
@@ -100,7 +101,7 @@ fn frames() {
     match decode_any(input) {
         Ok(Frame::Full(r)) => black_box(encode(&r, black_box(&mut out[..]))).ok(),
         Ok(Frame::Reduced(r)) => black_box(encode_reduced_report(&r, black_box(&mut out[..]))).ok(),
-        Ok(Frame::Status(r)) => black_box(dsp_core::frame::status::encode_status(
+        Ok(Frame::Status(r)) => black_box(wire::frame::status::encode_status(
             &r,
             black_box(&mut out[..]),
         ))
@@ -110,6 +111,10 @@ fn frames() {
             None
         }
     };
+    // The 0x4F overall frame (wire::overall): parse, then emit what came out.
+    if let Ok(o) = wire::overall::OverallFrame::parse(black_box(&bytes[..12])) {
+        let _ = black_box(o.emit(black_box(&mut out[..])));
+    }
     // An arbitrary report (values the decoder would never produce).
     let r: FrameReport = black_box(FrameReport::default());
     let _ = black_box(encode(&r, black_box(&mut out[..])));
@@ -167,7 +172,7 @@ fn survey() {
 
 /// Downlink authentication on arbitrary radio bytes.
 fn downlink() {
-    use firmware::downlink_auth::{sign, verify, DownlinkKey};
+    use wire::downlink_auth::{sign, verify, DownlinkKey};
     let key = DownlinkKey::new(black_box([0u8; 32]));
     let bytes = [0u8; 64];
     if let Ok(a) = verify(&key, black_box(1), black_box(0), black_box(&bytes[..])) {
@@ -284,6 +289,20 @@ mod opaque {
 
     /// A flash whose contents and results are opaque (any page contents,
     /// any failure).
+    /// The opaque devices as a board.
+    pub struct Board;
+    impl firmware::hal::Board for Board {
+        type Source = Source;
+        type Capture = Capture;
+        type Radio = Radio;
+        type Alarm = Sleep;
+        type Storage = firmware::store::FlashStore<Flash>;
+        type Battery = Batt;
+        type Watchdog = Dog;
+        type Power = Pin;
+        type Delay = Delay;
+    }
+
     pub struct Flash;
     impl ErrorType for Flash {
         type Error = NorFlashErrorKind;
@@ -332,7 +351,7 @@ fn node() {
     let Some(core) = cortex_m::singleton!(: NodeCore = NodeCore::new(0)) else {
         return;
     };
-    let dev = Devices {
+    let dev = Devices::<opaque::Board> {
         source: opaque::Source(black_box([0; 256])),
         capture: opaque::Capture,
         radio: opaque::Radio(black_box([0; 300])),
@@ -385,8 +404,8 @@ fn ring() {
 
 /// Records read from storage or radio, on arbitrary bytes.
 fn records() {
-    use firmware::config::{PointRecord, StoredConfig};
-    use firmware::identity::Identity;
+    use wire::config::{PointRecord, StoredConfig};
+    use wire::identity::Identity;
     let bytes = [0u8; 300];
     let input: &[u8] = black_box(&bytes[..]);
     if let Ok(s) = StoredConfig::decode(input) {
@@ -406,7 +425,7 @@ fn records() {
     }
     if let Ok(id) = Identity::decode(input) {
         black_box(id.node_id());
-        let _ = black_box(firmware::downlink::open(Some(&id), black_box(0), input));
+        let _ = black_box(wire::downlink::open(Some(&id), black_box(0), input));
     }
 }
 
@@ -418,7 +437,9 @@ fn main() -> ! {
         black_box(point.band());
         black_box(point.default_band_hz());
         // The node's sizes and a smaller host-like set.
-        measure::<4096, { dsp_core::pipeline::NODE_BINS }, { dsp_core::pipeline::NODE_RING }>(&point);
+        measure::<4096, { dsp_core::pipeline::NODE_BINS }, { dsp_core::pipeline::NODE_RING }>(
+            &point,
+        );
         measure::<1024, 512, 2048>(&point);
         black_box(NodePipeline::new(&opaque_point()).is_ok());
         frames();

@@ -62,6 +62,20 @@ impl embedded_hal::delay::DelayNs for SpinDelay {
     }
 }
 
+/// The nRF52840 DK as the firmware's board: one module per peripheral.
+struct Dk;
+impl firmware::hal::Board for Dk {
+    type Source = sampling::SaadcSource;
+    type Capture = sampling::TachCapture;
+    type Radio = ble::Advertiser;
+    type Alarm = sleep::RtcAlarm;
+    type Storage = storage::FlashStorage;
+    type Battery = sampling::VddMonitor;
+    type Watchdog = Wdt;
+    type Power = Output<'static>;
+    type Delay = SpinDelay;
+}
+
 #[cortex_m_rt::entry]
 fn main() -> ! {
     let mut cfg = config::Config::default();
@@ -93,7 +107,7 @@ fn main() -> ! {
         }
     };
 
-    let dev = Devices {
+    let dev = Devices::<Dk> {
         source: sampling::SaadcSource::new(adc),
         capture: sampling::TachCapture::new(),
         radio: ble::Advertiser::new(),

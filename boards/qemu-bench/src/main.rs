@@ -16,22 +16,22 @@ use core::hint::black_box;
 use core::ptr::{read_volatile, write_volatile};
 
 use cortex_m_rt::{entry, exception, ExceptionFrame};
-use dsp_core::biquad::BiquadCascade;
+use dsp_core::frontend::biquad::BiquadCascade;
 use dsp_core::config::{Bearing, BearingKinematics, PointConfig, SpeedInput};
-use dsp_core::decimate::Decimator;
-use dsp_core::defects::{DefectSearch, DefectSearchConfig};
-use dsp_core::design::butter_bandpass;
+use dsp_core::frontend::decimate::Decimator;
+use dsp_core::diagnosis::defects::{DefectSearch, DefectSearchConfig};
+use dsp_core::frontend::design::butter_bandpass;
 use dsp_core::frontend::{FrontEnd, FrontEndConfig};
-use dsp_core::kinematics::{BearingGeometry, BearingOrders, ShaftRatio};
-use dsp_core::order_track::{OrderTrackConfig, OrderTracker};
+use dsp_core::diagnosis::kinematics::{BearingGeometry, BearingOrders, ShaftRatio};
+use dsp_core::speed::order_track::{OrderTrackConfig, OrderTracker};
 use dsp_core::pipeline::{NodePipeline, ADC_BLOCK, NODE_BINS, NODE_RING};
-use dsp_core::rectify::Rectifier;
+use dsp_core::frontend::rectify::Rectifier;
 use dsp_core::spectrum::{
     real_fft, OrderSpectrum, OrderSpectrum4096, SpectrumConfig, SpectrumView, Window,
 };
 use dsp_core::survey::BandSurvey;
-use dsp_core::tach::RevMark;
-use dsp_core::velocity::{VelocityConfig, VelocityMeter};
+use dsp_core::speed::tach::RevMark;
+use dsp_core::overall::velocity::{VelocityConfig, VelocityMeter};
 use semihosting::{eprintln, process};
 
 /// CMSDK APB timer0 registers (CTRL +0, VALUE +4, RELOAD +8).
@@ -243,7 +243,7 @@ fn bench_front_end_stages(m: &Meter) {
             total += m.instr(&mut || {
                 // As FrontEnd::run: the band-pass writes the squared samples
                 // straight into the decimator's first stage, block by block.
-                for c in black_box(&blk).chunks(dsp_core::decimate::BLOCK) {
+                for c in black_box(&blk).chunks(dsp_core::frontend::decimate::BLOCK) {
                     dec.process_with(
                         c.len(),
                         |h| bp.process_map_into(c, h, |v| v * v),
@@ -790,7 +790,7 @@ fn memory() {
     );
     r(
         "mem_tach",
-        size_of::<dsp_core::tach::TachTracker>(),
+        size_of::<dsp_core::speed::tach::TachTracker>(),
         "TachTracker",
     );
     r(

@@ -25,6 +25,22 @@ use firmware::store::Layout;
 use semihosting::fs::File;
 use semihosting::io::{Read, Seek, SeekFrom, Write};
 
+/// The mps2-an386 under QEMU as the firmware's [`firmware::hal::Board`]:
+/// semihosting files for the ADC, tach, radio and flash.
+pub struct Mps2;
+
+impl firmware::hal::Board for Mps2 {
+    type Source = FileSource;
+    type Capture = FileCapture;
+    type Radio = FileRadio;
+    type Alarm = InstantAlarm;
+    type Storage = firmware::store::FlashStore<FileFlash>;
+    type Battery = FixedBattery;
+    type Watchdog = CountingWatchdog;
+    type Power = PowerFlag;
+    type Delay = SpinDelay;
+}
+
 /// Samples per ADC block, the same as the nRF52840 board's DMA halves.
 pub const BLOCK_LEN: usize = 256;
 

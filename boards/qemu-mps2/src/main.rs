@@ -77,7 +77,7 @@ fn run_with<C: MeasurementCore>(core: C) -> i32 {
     let Ok(storage) = firmware::store::FlashStore::new(flash, LAYOUT) else {
         return 2;
     };
-    let dev = Devices {
+    let dev = Devices::<Mps2> {
         source,
         capture: FileCapture::open(),
         radio,
@@ -173,7 +173,7 @@ fn run_with<C: MeasurementCore>(core: C) -> i32 {
                     dsp_core::num::f32_to_u32_sat(st.band_hz[1]),
                     st.band_hz[0].to_bits(),
                     st.band_hz[1].to_bits(),
-                    dsp_core::frame::status::kurtosis_encode(st.band_kurtosis)
+                    wire::frame::status::kurtosis_encode(st.band_kurtosis)
                 );
                 defmt::info!("cycle {}: {}", cycles, s);
             }

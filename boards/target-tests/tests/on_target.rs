@@ -5,7 +5,7 @@
 #![no_std]
 #![no_main]
 
-use firmware::config::PointRecord;
+use wire::config::PointRecord;
 use firmware::cycle::{Devices, Node, State};
 use firmware::hal::*;
 use firmware::overall_core::OverallCore;
@@ -151,10 +151,21 @@ impl embedded_hal::delay::DelayNs for NoDelay {
     fn delay_ns(&mut self, _ns: u32) {}
 }
 
-fn devices(
-    blocks: u32,
-    overrun_at: Option<u32>,
-) -> Devices<RamSource, Edges, Radio, NoAlarm, RamStorage, Batt, Dog, Pin, NoDelay> {
+/// The RAM devices as a board, with either tach source.
+struct RamBoard<P>(core::marker::PhantomData<P>);
+impl<P: PulseCapture> Board for RamBoard<P> {
+    type Source = RamSource;
+    type Capture = P;
+    type Radio = Radio;
+    type Alarm = NoAlarm;
+    type Storage = RamStorage;
+    type Battery = Batt;
+    type Watchdog = Dog;
+    type Power = Pin;
+    type Delay = NoDelay;
+}
+
+fn devices(blocks: u32, overrun_at: Option<u32>) -> Devices<RamBoard<Edges>> {
     Devices {
         source: RamSource {
             buf: [0; BLOCK],
@@ -238,7 +249,7 @@ mod tests {
     #[test]
     fn crc32_check_value() {
         // CRC catalogue, CRC-32/ISO-HDLC check value
-        defmt::assert_eq!(firmware::crc::crc32(b"123456789"), 0xCBF4_3926);
+        defmt::assert_eq!(wire::crc::crc32(b"123456789"), 0xCBF4_3926);
     }
 
     #[test]
@@ -395,7 +406,7 @@ mod tests {
         use firmware::pipeline_core::NodeCore;
         let core = cortex_m::singleton!(: NodeCore = NodeCore::new(9)).unwrap();
         let d = devices(1098, None);
-        let dev = Devices {
+        let dev = Devices::<RamBoard<TachGen>> {
             source: d.source,
             capture: TachGen(0),
             radio: d.radio,
@@ -411,7 +422,7 @@ mod tests {
         defmt::assert!(s.fed_watchdog);
         // early stop: 64 revolutions at 1479.8 rpm come before the 1400 rpm limit
         defmt::assert!(s.blocks < 1098);
-        let r = dsp_core::frame::decode(node.frame()).unwrap();
+        let r = wire::frame::decode(node.frame()).unwrap();
         defmt::assert_eq!(r.node_id, 9);
         defmt::assert!(!r.flags.tach_missing && !r.flags.processing_overrun);
         defmt::assert!((r.speed_rpm - 1479.8).abs() < 0.5);

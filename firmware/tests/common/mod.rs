@@ -311,19 +311,23 @@ impl MeasurementCore for MockCore {
     }
 }
 
+/// The mock devices as a board, with any storage.
+pub struct MockBoard<St>(std::marker::PhantomData<St>);
+
+impl<St: Storage> Board for MockBoard<St> {
+    type Source = MockSource;
+    type Capture = MockCapture;
+    type Radio = MockRadio;
+    type Alarm = MockAlarm;
+    type Storage = St;
+    type Battery = MockBattery;
+    type Watchdog = MockWatchdog;
+    type Power = MockPin;
+    type Delay = MockDelay;
+}
+
 /// A node over the mock devices, with any storage and core.
-pub type MockNode<St, C = MockCore> = Node<
-    MockSource,
-    MockCapture,
-    MockRadio,
-    MockAlarm,
-    St,
-    MockBattery,
-    MockWatchdog,
-    MockPin,
-    MockDelay,
-    C,
->;
+pub type MockNode<St, C = MockCore> = Node<MockBoard<St>, C>;
 
 pub type TestNode = MockNode<MockStorage>;
 
@@ -405,7 +409,7 @@ impl Bench {
         core: C,
     ) -> (MockNode<St, C>, Log) {
         let log = self.log.clone();
-        let dev = Devices {
+        let dev = Devices::<MockBoard<St>> {
             source: MockSource {
                 log: log.clone(),
                 blocks: self.blocks.into(),

@@ -162,7 +162,22 @@ pub fn input_store() -> Store {
     }
 }
 
-pub type ReplayNode<C> = Node<Src, Cap, Radio, NoSleep, Store, Batt, Dog, Pin, NoDelay, C>;
+/// The replay bench as a board.
+pub struct ReplayBoard;
+
+impl Board for ReplayBoard {
+    type Source = Src;
+    type Capture = Cap;
+    type Radio = Radio;
+    type Alarm = NoSleep;
+    type Storage = Store;
+    type Battery = Batt;
+    type Watchdog = Dog;
+    type Power = Pin;
+    type Delay = NoDelay;
+}
+
+pub type ReplayNode<C> = Node<ReplayBoard, C>;
 
 /// Runs cycles over the committed input until no full record is left;
 /// returns the node (frames in `devices().radio.0`).
@@ -192,7 +207,7 @@ where
         .map(|b| u32::from_le_bytes([b[0], b[1], b[2], b[3]]))
         .collect();
     let clock = Rc::new(Cell::new(0));
-    let dev = Devices {
+    let dev = Devices::<ReplayBoard> {
         source: Src {
             samples,
             pos: 0,
@@ -228,9 +243,9 @@ pub fn split_frames(mut b: &[u8]) -> Vec<Vec<u8>> {
     while !b.is_empty() {
         let n = match b[0] {
             0x4F => 12,
-            0x10 => dsp_core::frame::layout::full_frame_len(usize::from(b[7] & 7)),
-            0x11 => dsp_core::frame::layout::REDUCED_LEN,
-            0x12 => dsp_core::frame::layout::STATUS_LEN,
+            0x10 => wire::frame::layout::full_frame_len(usize::from(b[7] & 7)),
+            0x11 => wire::frame::layout::REDUCED_LEN,
+            0x12 => wire::frame::layout::STATUS_LEN,
             x => panic!("unknown frame start {x:#04x}"),
         };
         out.push(b[..n].to_vec());

@@ -20,8 +20,8 @@ use std::path::{Path, PathBuf};
 
 use clap::Args;
 use dsp_core::config::SpeedInput;
-use dsp_core::frame::layout::{full_frame_len, REDUCED_LEN};
 use firmware::exception::ReportPolicy;
+use wire::frame::layout::{full_frame_len, REDUCED_LEN};
 
 use crate::error::CliError;
 use budget::{AtInterval, Cycle, Measurement};

@@ -5,19 +5,20 @@
 //! * `envord gateway provision`: 32 random bytes from the operating
 //!   system's cryptographic source as the node's key (a hex key file for the
 //!   gateway) and the identity record the node reads
-//!   (`firmware::identity`), to write over the debug port.
+//!   (`wire::identity`), to write over the debug port.
 //! * `envord gateway downlink ... config|measure-now|survey`: the command
-//!   signed with the node's key and a counter (`firmware::downlink_auth`);
+//!   signed with the node's key and a counter (`wire::downlink_auth`);
 //!   `config` turns a point file into the node's configuration record
-//!   (`firmware::config`), refusing anything the record cannot carry.
+//!   (`wire::config`), refusing anything the record cannot carry.
 
 use std::path::{Path, PathBuf};
 
-use dsp_core::config::{BearingKinematics, PointConfig, SpeedInput};
-use firmware::config::{BandSource, BearingModel, BearingSpec, PointRecord, MAX_RECORD_LEN};
-use firmware::downlink::{CMD_MEASURE_NOW, CMD_SET_CONFIG, CMD_SURVEY};
-use firmware::downlink_auth::{sign, DownlinkKey, HEADER_LEN, KEY_LEN, TAG_LEN};
-use firmware::identity::IDENTITY_LEN;
+use dsp_core::config::PointConfig;
+use wire::config::{PointRecord, MAX_RECORD_LEN};
+use wire::downlink::{CMD_MEASURE_NOW, CMD_SET_CONFIG, CMD_SURVEY};
+use wire::downlink_auth::{sign, DownlinkKey, HEADER_LEN, KEY_LEN, TAG_LEN};
+use wire::identity::IDENTITY_LEN;
+use wire::point::NodeSettings;
 
 use crate::error::CliError;
 use crate::output::Access;
@@ -150,147 +151,20 @@ fn warn_if_shared(path: &Path) {
 #[cfg(not(unix))]
 fn warn_if_shared(_path: &Path) {}
 
-/// Why a point cannot become the node's configuration record.
-fn unsupported(key: &str, why: &str) -> String {
-    format!("{key}: {why}; the node's configuration record cannot carry it")
-}
-
-/// The node's configuration record for a measuring point and node settings.
-/// Everything the point file sets must survive the node's own conversion
-/// (`firmware::point::point_config`), else the key is named in the error.
+/// The node's configuration record for a measuring point and node settings
+/// (the mapping is `wire::point::record_from_point`; its error names the key).
 pub fn record_from_point(p: &PointConfig, s: &ConfigArgs) -> Result<PointRecord, String> {
-    let mut r = PointRecord::default();
-    let fs = p.sample_rate_hz;
-    if !(fs.is_finite() && fs >= 1.0 && fs.fract() == 0.0 && fs <= 200_000.0) {
-        return Err(unsupported(
-            "sensor.sample_rate_hz",
-            "the node samples at a whole number of Hz up to 200 kHz",
-        ));
-    }
-    // whole number up to 200 000: exact
-    #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
-    {
-        r.sample_rate_hz = fs as u32;
-    }
-    match p.band_hz {
-        Some([lo, hi]) => {
-            r.band_lo_hz = lo;
-            r.band_hi_hz = hi;
-            r.band_source = BandSource::Configured;
-        }
-        None => {
-            r.band_lo_hz = 0.0;
-            r.band_hi_hz = 0.0;
-            r.band_source = BandSource::Unset;
-        }
-    }
-    r.poles = p.poles;
-    match p.speed {
-        SpeedInput::Tach {
-            pulses_per_rev,
-            tick_hz,
-            tick_at_sample0,
-        } => {
-            if tick_at_sample0 != 0 {
-                return Err(unsupported(
-                    "speed.tick_at_sample0",
-                    "the node's tach timer starts with its sample clock (0)",
-                ));
-            }
-            r.pulses_per_rev = pulses_per_rev;
-            r.tach_tick_hz = tick_hz;
-        }
-        SpeedInput::Constant { .. } => {
-            return Err(unsupported(
-                "speed.source",
-                "the node measures speed with a tach (`source = \"tach\"`)",
-            ))
-        }
-    }
-    r.speed_min_rpm = p.min_rpm;
-    r.speed_max_rpm = p.max_rpm;
-    r.record_revs = p.revolutions;
-    r.counts_to_g = p.counts_to_g;
-    r.health.clip_level = p.adc_full_scale;
-    r.health.flat_counts = s.flat_counts;
-    r.health.clip_permille = s.clip_permille;
-    r.health.saturated_permille = s.saturated_permille;
-    r.settle_ms = s.settle_ms;
-    r.interval_s = s.interval_s;
-    r.low_battery_mv = s.low_battery_mv;
-    r.alert_db = s.alert_db;
-    r.danger_db = s.danger_db;
-    r.bearings.clear();
-    for b in &p.bearings {
-        let ratio = p
-            .shafts
-            .get(usize::from(b.shaft))
-            .map(|x| x.ratio)
-            .ok_or_else(|| format!("bearing `{}`.shaft: no such shaft", b.name.as_str()))?;
-        let model = match b.kinematics {
-            BearingKinematics::Geometry {
-                rollers,
-                roller_diameter,
-                pitch_diameter,
-                contact_angle_deg,
-            } => BearingModel::Geometry {
-                elements: u8::try_from(rollers).map_err(|_| {
-                    unsupported(
-                        &format!("bearing `{}`.rollers", b.name.as_str()),
-                        "at most 255 rolling elements",
-                    )
-                })?,
-                element_mm: roller_diameter,
-                pitch_mm: pitch_diameter,
-                contact_deg: contact_angle_deg,
-            },
-            BearingKinematics::Multiples {
-                bpfo_x,
-                bpfi_x,
-                ftf_x,
-                bsf_x,
-            } => BearingModel::Orders {
-                bpfo: bpfo_x,
-                bpfi: bpfi_x,
-                ftf: ftf_x,
-                bsf: bsf_x,
-            },
-        };
-        r.bearings
-            .push(BearingSpec {
-                shaft_ratio: ratio,
-                model,
-            })
-            .map_err(|_| unsupported("bearing", "at most 4 bearings"))?;
-    }
-    r.validate()
-        .map_err(|e| format!("{e} (the node's own range checks)"))?;
-    // What the node will make of it must be the point the file describes.
-    let back = firmware::point::point_config(&r)
-        .map_err(|e| format!("the node would refuse this point: {e}"))?;
-    let checks: [(&str, bool); 8] = [
-        ("envelope.rectifier", back.rectifier == p.rectifier),
-        (
-            "spectrum.samples_per_rev",
-            back.samples_per_rev == p.samples_per_rev,
-        ),
-        ("spectrum.window", back.window == p.window),
-        (
-            "speed.max_change_pct",
-            back.max_speed_change_pct == p.max_speed_change_pct,
-        ),
-        ("search", back.search == p.search),
-        ("iso.machine_group", back.machine_group == p.machine_group),
-        ("iso.support", back.support == p.support),
-        ("mesh", p.meshes.is_empty()),
-    ];
-    if let Some((key, _)) = checks.iter().find(|(_, same)| !same) {
-        return Err(unsupported(
-            key,
-            "set to other than the node's default in the point file",
-        ));
-    }
-    Ok(r)
+    let node = NodeSettings {
+        settle_ms: s.settle_ms,
+        interval_s: s.interval_s,
+        low_battery_mv: s.low_battery_mv,
+        alert_db: s.alert_db,
+        danger_db: s.danger_db,
+        flat_counts: s.flat_counts,
+        clip_permille: s.clip_permille,
+        saturated_permille: s.saturated_permille,
+    };
+    wire::point::record_from_point(p, &node).map_err(|e| e.to_string())
 }
 
 /// The payload (command byte and data) of a downlink command.
@@ -359,7 +233,7 @@ pub fn provision_cmd(a: &ProvisionArgs) -> Result<(), CliError> {
     getrandom::fill(&mut key)
         .map_err(|e| CliError::Other(format!("operating system random source: {e}")))?;
     let mut ident = [0u8; IDENTITY_LEN];
-    firmware::identity::encode(a.node_id, &key, &mut ident)
+    wire::identity::encode(a.node_id, &key, &mut ident)
         .map_err(|e| CliError::Other(e.to_string()))?;
     // Both hold the secret key: created owner-only (docs/downlink-security.md).
     crate::output::write_as(

@@ -13,8 +13,8 @@ use super::db::{Db, DbError, Val};
 use super::input::InputItem;
 use super::seq::{SeqEvent, SeqTracker};
 use super::store;
-use dsp_core::frame::{decode_any, DefectKind, Frame, IsoZone};
 use std::collections::{HashMap, HashSet};
+use wire::frame::{decode_any, DefectKind, Frame, IsoZone};
 
 /// Where a frame came from and what the network said about it.
 #[derive(Clone, Debug, Default)]

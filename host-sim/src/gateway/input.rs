@@ -2,10 +2,10 @@
 //! receive time) or from raw binary files of concatenated frames.
 
 use crate::error::CliError;
-use dsp_core::frame::layout::{
+use std::io::Read;
+use wire::frame::layout::{
     full_frame_len, OFF_COUNT_ZONE, REDUCED_LEN, STATUS_LEN, TYPE_FULL, TYPE_REDUCED, TYPE_STATUS,
 };
-use std::io::Read;
 
 /// How payloads are written in the input.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum)]

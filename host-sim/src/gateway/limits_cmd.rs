@@ -5,7 +5,7 @@
 use super::limits::{self, LimitRow, Limits};
 use super::store;
 use crate::error::CliError;
-use dsp_core::frame::DefectKind;
+use wire::frame::DefectKind;
 
 /// Arguments of `envord gateway limits`.
 #[derive(clap::Args, Debug)]

@@ -42,11 +42,11 @@ pub mod trend_cmd;
 pub mod web;
 
 use crate::error::CliError;
-use dsp_core::frame::{decode_any, DefectKind, Frame};
 use input::{read_inputs, InputFormat, InputItem};
 use seq::{SeqEvent, SeqTracker};
 use std::io::Write;
 use trend::State;
+use wire::frame::{decode_any, DefectKind, Frame};
 
 /// Arguments of `envord gateway`.
 #[derive(clap::Args, Debug)]
@@ -256,7 +256,7 @@ fn decode_cmd(a: DecodeArgs) -> Result<(), CliError> {
                 if a.table {
                     let (kind, flags, speed, detail) = match &frame {
                         Frame::Full(r) => {
-                            let worst = dsp_core::frame::ReducedReport::from_report(r).worst;
+                            let worst = wire::frame::ReducedReport::from_report(r).worst;
                             (
                                 "full",
                                 r.flags.to_bits(),
@@ -332,7 +332,7 @@ fn decode_cmd(a: DecodeArgs) -> Result<(), CliError> {
     }
 }
 
-fn status_text(r: &dsp_core::frame::StatusReport) -> String {
+fn status_text(r: &wire::frame::StatusReport) -> String {
     let name = |v: serde_json::Value| v.as_str().unwrap_or("?").to_string();
     format!(
         "counter {} last downlink {} refused {} band {:.0}-{:.0} Hz ({}{}) survey {}",
@@ -351,7 +351,7 @@ fn status_text(r: &dsp_core::frame::StatusReport) -> String {
     )
 }
 
-fn worst_text(w: Option<dsp_core::frame::WorstDefect>) -> String {
+fn worst_text(w: Option<wire::frame::WorstDefect>) -> String {
     match w {
         Some(w) => format!(
             "worst: bearing {} {} {:.0} dB{}",

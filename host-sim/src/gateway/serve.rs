@@ -380,8 +380,8 @@ fn health_http(addr: &str, health: Arc<Mutex<Health>>, log: Log) -> Result<(), C
     Ok(())
 }
 
-fn frame_flags(f: &dsp_core::frame::Frame) -> u16 {
-    use dsp_core::frame::Frame;
+fn frame_flags(f: &wire::frame::Frame) -> u16 {
+    use wire::frame::Frame;
     match f {
         Frame::Full(r) => r.flags.to_bits(),
         Frame::Reduced(r) => r.flags.to_bits(),

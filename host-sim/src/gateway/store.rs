@@ -3,8 +3,8 @@
 
 use super::db::{Db, DbError, Row, SqliteRef, Val};
 use crate::error::CliError;
-use dsp_core::frame::Frame;
 use rusqlite::Connection;
+use wire::frame::Frame;
 
 /// Migrations in order; migration i brings `user_version` from i to i + 1.
 pub const MIGRATIONS: &[&str] = &[

@@ -131,7 +131,7 @@ pub fn trend_cmd(a: &TrendArgs) -> Result<(), CliError> {
         .collect();
     // frame order (BPFO, BPFI, FTF, BSF), as the report and the spectrum plot
     lines.sort_by_key(|l| {
-        dsp_core::frame::DefectKind::ALL
+        wire::frame::DefectKind::ALL
             .iter()
             .position(|k| k.name() == l.state.kind)
             .unwrap_or(usize::MAX)

@@ -1,8 +1,8 @@
 // Shared helpers of the gateway tests (included with `#[path]`).
 #![allow(dead_code)]
-use dsp_core::frame::{encode, encode_reduced, BearingResult, DefectResult, FrameReport};
 use std::path::Path;
 use std::process::{Command, Output};
+use wire::frame::{encode, encode_reduced, BearingResult, DefectResult, FrameReport};
 
 pub const BIN: &str = env!("CARGO_BIN_EXE_envord");
 
@@ -40,7 +40,7 @@ pub fn frame(node: u16, seq: u16, bpfo_db: f32, detected: bool) -> Vec<u8> {
 }
 
 pub fn reduced(node: u16, seq: u16, bpfo_db: f32) -> Vec<u8> {
-    let full = dsp_core::frame::decode(&frame(node, seq, bpfo_db, true)).unwrap();
+    let full = wire::frame::decode(&frame(node, seq, bpfo_db, true)).unwrap();
     let mut buf = [0u8; 11];
     encode_reduced(&full, &mut buf).unwrap();
     buf.to_vec()
@@ -48,7 +48,7 @@ pub fn reduced(node: u16, seq: u16, bpfo_db: f32) -> Vec<u8> {
 
 /// A status frame of an invented node after a refused downlink.
 pub fn status(node: u16, seq: u16, counter: u32, refused: u8) -> Vec<u8> {
-    use dsp_core::frame::status::{
+    use wire::frame::status::{
         encode_status, BandSource, DownlinkResult, StatusReport, SurveyStatus,
     };
     let r = StatusReport {
@@ -98,7 +98,7 @@ pub fn db_count(db: &Path, table: &str) -> i64 {
 /// A full frame of an invented node: bearing 0 BPFO with 1x amplitude
 /// `bpfo_g` (score 20 dB when detected, else 0), the other lines quiet.
 pub fn frame_amp(node: u16, seq: u16, bpfo_g: f32, detected: bool) -> Vec<u8> {
-    let mut f = dsp_core::frame::decode(&frame(node, seq, 0.0, false)).unwrap();
+    let mut f = wire::frame::decode(&frame(node, seq, 0.0, false)).unwrap();
     f.bearings[0].defects[0] = DefectResult {
         score_db: if detected { 20.0 } else { 0.0 },
         amplitude_1x_g: bpfo_g,

@@ -12,7 +12,7 @@
 //!
 //! Point rule (the same for every case): 64 samples per revolution of the
 //! input (tach) shaft, two segments per pass (the passes for the slower
-//! shafts are planned by `dsp_core::coverage`), speed range 10 % beyond the
+//! shafts are planned by `dsp_core::diagnosis::coverage`), speed range 10 % beyond the
 //! record's, search defaults.
 #![allow(
     dead_code,
@@ -26,7 +26,7 @@
 )]
 
 use dsp_core::config::{name_from, Bearing, BearingKinematics, PointConfig, Shaft, SpeedInput};
-use dsp_core::kinematics::DefectKind;
+use dsp_core::diagnosis::kinematics::DefectKind;
 use dsp_core::report::Report;
 use host_sim::analysis::{edges_from_channel, run, Accel, Record};
 use host_sim::cmd_demo::to_counts;
@@ -171,7 +171,7 @@ pub fn revs_needed(g: &Gearbox) -> f64 {
     points(g, RPM / 2.0, RPM)
         .iter()
         .map(|p| {
-            dsp_core::coverage::plan(p, 4096)
+            dsp_core::diagnosis::coverage::plan(p, 4096)
                 .passes
                 .iter()
                 .map(|q| f64::from(q.revolutions))

@@ -24,7 +24,7 @@
 )]
 
 use dsp_core::config::PointConfig;
-use dsp_core::kinematics::DefectKind;
+use dsp_core::diagnosis::kinematics::DefectKind;
 use dsp_core::report::Report;
 use host_sim::analysis::{edges_from_channel, run, Accel, Analysis, Record};
 use host_sim::cmd_demo::to_counts;
@@ -138,7 +138,7 @@ fn output_bearing() -> [f64; 4] {
 
 /// Record length that gives the pipeline its two passes (256 revolutions at
 /// 128 samples per revolution for the input bearing, then 256 at 32 for the
-/// output-shaft bearing, dsp_core::coverage) plus a few revolutions for the
+/// output-shaft bearing, dsp_core::diagnosis::coverage) plus a few revolutions for the
 /// tach tracker's start-up and the pass switch, s.
 pub fn seconds_for(profile: SpeedProfile) -> f64 {
     let (lo, hi) = profile.rpm_bounds();

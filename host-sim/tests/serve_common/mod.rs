@@ -5,7 +5,6 @@
 // ENVORD_TEST_PG_CTL (pg_ctl command line of that cluster, for restarts).
 #![allow(dead_code)]
 
-use dsp_core::frame::{encode, encode_reduced, BearingResult, DefectResult, FrameReport};
 use host_sim::gateway::input::to_base64;
 use std::collections::{BTreeSet, HashSet};
 use std::io::Write;
@@ -14,6 +13,7 @@ use std::path::{Path, PathBuf};
 use std::process::{Child, Command, Stdio};
 use std::sync::mpsc;
 use std::time::{Duration, Instant};
+use wire::frame::{encode, encode_reduced, BearingResult, DefectResult, FrameReport};
 
 pub const BIN: &str = env!("CARGO_BIN_EXE_envord");
 
@@ -219,7 +219,7 @@ fn full_frame(node: u16, seq: u16, bpfo_db: f32, flags_sensor: bool) -> Vec<u8> 
 }
 
 fn status_frame(node: u16, seq: u16) -> Vec<u8> {
-    use dsp_core::frame::status::{
+    use wire::frame::status::{
         encode_status, BandSource, DownlinkResult, StatusReport, SurveyStatus,
     };
     let r = StatusReport {
@@ -304,7 +304,7 @@ pub fn day_stream(nodes: u16, per_node: u16, raw: bool, topic_prefix: &str) -> S
                 let sensor = node == 7 && (40..60).contains(&slot);
                 let full = full_frame(node, q, bpfo, sensor);
                 if (usize::from(slot) + usize::from(node)) % 3 == 0 {
-                    let d = dsp_core::frame::decode(&full).unwrap();
+                    let d = wire::frame::decode(&full).unwrap();
                     let mut buf = [0u8; 11];
                     encode_reduced(&d, &mut buf).unwrap();
                     s.reduced += 1;

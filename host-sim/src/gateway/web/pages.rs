@@ -11,9 +11,9 @@ use super::{Inner, WebConfig};
 use crate::gateway::map::SensorRef;
 use crate::gateway::trend::{DefectState, State};
 use crate::gateway::{bearing_states, combine};
-use dsp_core::frame::{DefectKind, QualityFlags};
 use std::collections::HashMap;
 use std::fmt::Write as _;
+use wire::frame::{DefectKind, QualityFlags};
 
 const CSS: &str = r#"
 :root{--ink:#1d2330;--paper:#f6f4ef;--panel:#fff;--line:#d9d4c7;--muted:#5d6472;
