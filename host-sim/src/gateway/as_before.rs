@@ -14,22 +14,26 @@
 
 use std::collections::{BTreeMap, BTreeSet};
 
-use rusqlite::Connection;
-
+use super::db::{Db, DbError};
 use super::series::Point;
 use super::store::{self, Observation};
 
 /// Every defect observation in arrival order, reduced frames expanded "as before".
-pub fn observations(conn: &Connection) -> rusqlite::Result<Vec<Observation>> {
-    let obs = store::observations(conn)?;
-    Ok(expand(obs, &reduced_reports(conn)?))
+pub fn observations(db: &mut dyn Db) -> Result<Vec<Observation>, DbError> {
+    let obs = store::observations(db)?;
+    Ok(expand(obs, &reduced_reports(db, None)?))
 }
 
-/// Report ids of the stored reduced frames.
-pub fn reduced_reports(conn: &Connection) -> rusqlite::Result<BTreeSet<i64>> {
-    let mut stmt = conn.prepare("SELECT id FROM reports WHERE frame_type = 'reduced'")?;
-    let ids = stmt.query_map([], |r| r.get::<_, i64>(0))?;
-    ids.collect()
+/// Report ids of the stored reduced frames (of these nodes when given).
+pub fn reduced_reports(db: &mut dyn Db, nodes: Option<&[u16]>) -> Result<BTreeSet<i64>, DbError> {
+    let sql = format!(
+        "SELECT id FROM reports WHERE frame_type = 'reduced'{}",
+        store::node_filter("node_id", nodes)
+    );
+    db.query(&sql, &[])?
+        .iter()
+        .map(|r| store::col(r, 0).int("id"))
+        .collect()
 }
 
 /// One defect row of a report, as the expansion needs it: the store's

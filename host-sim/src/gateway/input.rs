@@ -32,51 +32,53 @@ pub struct InputItem {
     pub bytes: Result<Vec<u8>, String>,
 }
 
-/// Decodes hex (upper or lower case, even length).
+/// Decodes hex (upper or lower case, even length), through the `hex` crate.
 pub fn parse_hex(s: &str) -> Result<Vec<u8>, String> {
-    if s.len() % 2 != 0 {
-        return Err(format!("odd number of hex digits ({})", s.len()));
-    }
-    s.as_bytes()
-        .chunks_exact(2)
-        .map(|p| {
-            let t = std::str::from_utf8(p).map_err(|_| "not ASCII".to_string())?;
-            u8::from_str_radix(t, 16).map_err(|_| format!("bad hex digits {t:?}"))
-        })
-        .collect()
-}
-
-fn b64_value(c: u8) -> Option<u32> {
-    match c {
-        b'A'..=b'Z' => Some(u32::from(c - b'A')),
-        b'a'..=b'z' => Some(u32::from(c - b'a') + 26),
-        b'0'..=b'9' => Some(u32::from(c - b'0') + 52),
-        b'+' | b'-' => Some(62),
-        b'/' | b'_' => Some(63),
-        _ => None,
-    }
-}
-
-/// Decodes base64 (RFC 4648, standard or URL alphabet, padding optional).
-pub fn parse_base64(s: &str) -> Result<Vec<u8>, String> {
-    let body = s.trim_end_matches('=');
-    let mut out = Vec::with_capacity(body.len() * 3 / 4);
-    let mut acc = 0u32;
-    let mut nbits = 0u32;
-    for c in body.bytes() {
-        let v = b64_value(c).ok_or_else(|| format!("bad base64 character {:?}", char::from(c)))?;
-        acc = (acc << 6) | v;
-        nbits += 6;
-        if nbits >= 8 {
-            nbits -= 8;
-            out.push(u8::try_from((acc >> nbits) & 0xFF).unwrap_or(0));
+    hex::decode(s).map_err(|e| match e {
+        hex::FromHexError::InvalidHexCharacter { index, .. } => {
+            // name the pair of digits the bad one belongs to
+            let at = index - index % 2;
+            match s.as_bytes().get(at..at + 2).map(std::str::from_utf8) {
+                Some(Ok(t)) => format!("bad hex digits {t:?}"),
+                _ => "not ASCII".to_string(),
+            }
         }
+        _ => format!("odd number of hex digits ({})", s.len()),
+    })
+}
+
+fn b64_char_ok(c: u8) -> bool {
+    c.is_ascii_alphanumeric() || matches!(c, b'+' | b'-' | b'/' | b'_')
+}
+
+/// Decodes base64 (RFC 4648, standard or URL alphabet, padding optional),
+/// through the `base64` crate: the padding is dropped, the URL alphabet's
+/// two characters mapped to the standard's, and the rest decoded with
+/// padding absent and the leftover bits required to be zero (RFC 4648).
+pub fn parse_base64(s: &str) -> Result<Vec<u8>, String> {
+    use base64::engine::{DecodePaddingMode, GeneralPurpose, GeneralPurposeConfig};
+    use base64::Engine as _;
+    const ENGINE: GeneralPurpose = GeneralPurpose::new(
+        &base64::alphabet::STANDARD,
+        GeneralPurposeConfig::new()
+            .with_decode_padding_mode(DecodePaddingMode::RequireNone)
+            .with_decode_allow_trailing_bits(false),
+    );
+    let body = s.trim_end_matches('=');
+    if let Some(c) = body.bytes().find(|c| !b64_char_ok(*c)) {
+        return Err(format!("bad base64 character {:?}", char::from(c)));
     }
-    // RFC 4648: leftover bits must be padding zeros; 6 leftover bits is an impossible length.
-    if nbits >= 6 || acc & ((1 << nbits) - 1) != 0 {
-        return Err("base64 length or padding bits invalid".into());
-    }
-    Ok(out)
+    let std: Vec<u8> = body
+        .bytes()
+        .map(|c| match c {
+            b'-' => b'+',
+            b'_' => b'/',
+            c => c,
+        })
+        .collect();
+    ENGINE
+        .decode(std)
+        .map_err(|_| "base64 length or padding bits invalid".to_string())
 }
 
 /// Encodes base64 (standard alphabet, padded); used by tests and vectors.
@@ -224,14 +226,28 @@ mod tests {
             assert_eq!(to_base64(plain.as_bytes()), enc);
             assert_eq!(parse_base64(enc).unwrap(), plain.as_bytes());
         }
-        assert!(parse_base64("Zm9v!").is_err());
-        assert!(parse_base64("Z").is_err());
+        assert_eq!(
+            parse_base64("Zm9v!").unwrap_err(),
+            "bad base64 character '!'"
+        );
+        assert_eq!(
+            parse_base64("Z").unwrap_err(),
+            "base64 length or padding bits invalid"
+        );
+        // leftover bits must be zero (RFC 4648 section 3.5)
+        assert!(parse_base64("Zh==").is_err());
+        // URL alphabet, padding optional
+        assert_eq!(parse_base64("-_8").unwrap(), parse_base64("+/8=").unwrap());
     }
 
     #[test]
     fn hex_and_lines() {
         assert_eq!(parse_hex("0aFF").unwrap(), vec![0x0a, 0xff]);
-        assert!(parse_hex("abc").is_err());
+        assert_eq!(
+            parse_hex("abc").unwrap_err(),
+            "odd number of hex digits (3)"
+        );
+        assert_eq!(parse_hex("0aZ1").unwrap_err(), "bad hex digits \"Z1\"");
         let items = parse_text(
             "x",
             "# c\n\n0a0b\n2026-01-01T00:00:00Z Cgs=\na b c\n",

@@ -4,7 +4,8 @@
 //! setting resolves from the most specific row that holds it, then from the
 //! built-in defaults ([`Limits::default`]).
 
-use rusqlite::{params, Connection};
+use super::db::{Db, DbError};
+use super::store::col;
 
 /// The alarm settings of one line (node, bearing, defect kind), resolved.
 #[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
@@ -185,46 +186,40 @@ fn key(r: &LimitRow) -> (i64, i64, String) {
 
 /// Every stored row (none on a store without the table, i.e. an old
 /// read-only store).
-pub fn rows(conn: &Connection) -> rusqlite::Result<Vec<LimitRow>> {
-    let exists: i64 = conn.query_row(
-        "SELECT COUNT(*) FROM sqlite_master WHERE type = 'table' AND name = 'point_limits'",
-        [],
-        |r| r.get(0),
-    )?;
-    if exists == 0 {
+pub fn rows(db: &mut dyn Db) -> Result<Vec<LimitRow>, DbError> {
+    if !db.has_column("point_limits", "node_id")? {
         return Ok(Vec::new());
     }
-    let mut stmt = conn.prepare(
+    db.query(
         "SELECT node_id, bearing, kind, baseline_count, alert_db, danger_db, alert_abs_g,
                 danger_abs_g, floor_g, baseline_g, stale_after_s, origin
          FROM point_limits ORDER BY node_id, bearing, kind",
-    )?;
-    let rows = stmt.query_map([], |r| {
-        let node: i64 = r.get(0)?;
-        let bearing: i64 = r.get(1)?;
-        let kind: String = r.get(2)?;
-        let count: Option<i64> = r.get(3)?;
+        &[],
+    )?
+    .iter()
+    .map(|r| {
+        let kind = col(r, 2).text("kind")?;
         Ok(LimitRow {
-            node: u16::try_from(node).ok(),
-            bearing: u8::try_from(bearing).ok(),
+            node: u16::try_from(col(r, 0).int("node_id")?).ok(),
+            bearing: u8::try_from(col(r, 1).int("bearing")?).ok(),
             kind: (kind != "*").then_some(kind),
-            baseline_count: count.and_then(|c| usize::try_from(c).ok()),
-            alert_db: r.get(4)?,
-            danger_db: r.get(5)?,
-            alert_abs_g: r.get(6)?,
-            danger_abs_g: r.get(7)?,
-            floor_g: r.get(8)?,
-            baseline_g: r.get(9)?,
-            stale_after_s: r.get(10)?,
-            origin: r.get(11)?,
+            baseline_count: col(r, 3).opt_int().and_then(|c| usize::try_from(c).ok()),
+            alert_db: col(r, 4).opt_real(),
+            danger_db: col(r, 5).opt_real(),
+            alert_abs_g: col(r, 6).opt_real(),
+            danger_abs_g: col(r, 7).opt_real(),
+            floor_g: col(r, 8).opt_real(),
+            baseline_g: col(r, 9).opt_real(),
+            stale_after_s: col(r, 10).opt_real(),
+            origin: col(r, 11).text("origin")?,
         })
-    })?;
-    rows.collect()
+    })
+    .collect()
 }
 
 /// Stores `row`, merged over the stored row of the same scope.
-pub fn upsert(conn: &Connection, row: &LimitRow) -> rusqlite::Result<LimitRow> {
-    let mut merged = rows(conn)?
+pub fn upsert(db: &mut dyn Db, row: &LimitRow) -> Result<LimitRow, DbError> {
+    let mut merged = rows(db)?
         .into_iter()
         .find(|r| key(r) == key(row))
         .unwrap_or_else(|| LimitRow {
@@ -235,7 +230,7 @@ pub fn upsert(conn: &Connection, row: &LimitRow) -> rusqlite::Result<LimitRow> {
         });
     merged.merge_from(row);
     let (n, b, k) = key(&merged);
-    conn.execute(
+    db.execute(
         "INSERT INTO point_limits (node_id, bearing, kind, baseline_count, alert_db, danger_db,
            alert_abs_g, danger_abs_g, floor_g, baseline_g, stale_after_s, origin)
          VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12)
@@ -245,21 +240,22 @@ pub fn upsert(conn: &Connection, row: &LimitRow) -> rusqlite::Result<LimitRow> {
            danger_abs_g = excluded.danger_abs_g, floor_g = excluded.floor_g,
            baseline_g = excluded.baseline_g, stale_after_s = excluded.stale_after_s,
            origin = excluded.origin",
-        params![
-            n,
-            b,
-            k,
+        &[
+            n.into(),
+            b.into(),
+            k.into(),
             merged
                 .baseline_count
-                .map(|c| i64::try_from(c).unwrap_or(i64::MAX)),
-            merged.alert_db,
-            merged.danger_db,
-            merged.alert_abs_g,
-            merged.danger_abs_g,
-            merged.floor_g,
-            merged.baseline_g,
-            merged.stale_after_s,
-            merged.origin
+                .map(|c| i64::try_from(c).unwrap_or(i64::MAX))
+                .into(),
+            merged.alert_db.into(),
+            merged.danger_db.into(),
+            merged.alert_abs_g.into(),
+            merged.danger_abs_g.into(),
+            merged.floor_g.into(),
+            merged.baseline_g.into(),
+            merged.stale_after_s.into(),
+            merged.origin.as_str().into(),
         ],
     )?;
     Ok(merged)
@@ -267,17 +263,17 @@ pub fn upsert(conn: &Connection, row: &LimitRow) -> rusqlite::Result<LimitRow> {
 
 /// Removes the row of one scope; returns whether there was one.
 pub fn clear(
-    conn: &Connection,
+    db: &mut dyn Db,
     node: Option<u16>,
     bearing: Option<u8>,
     kind: Option<&str>,
-) -> rusqlite::Result<bool> {
-    let n = conn.execute(
+) -> Result<bool, DbError> {
+    let n = db.execute(
         "DELETE FROM point_limits WHERE node_id = ?1 AND bearing = ?2 AND kind = ?3",
-        params![
-            node.map_or(-1, i64::from),
-            bearing.map_or(-1, i64::from),
-            kind.unwrap_or("*")
+        &[
+            node.map_or(-1, i64::from).into(),
+            bearing.map_or(-1, i64::from).into(),
+            kind.unwrap_or("*").into(),
         ],
     )?;
     Ok(n > 0)

@@ -27,8 +27,8 @@ enum LimitsCommand {
 /// Which lines a row applies to.
 #[derive(clap::Args, Debug)]
 pub struct ScopeArgs {
-    /// Gateway database file.
-    #[arg(long)]
+    /// Gateway store: SQLite file or postgres:// URL.
+    #[arg(long, env = "ENVORD_DB")]
     db: String,
     /// Node id (omit: every node).
     #[arg(long)]
@@ -73,8 +73,8 @@ struct SetArgs {
 
 #[derive(clap::Args, Debug)]
 struct ShowArgs {
-    /// Gateway database file.
-    #[arg(long)]
+    /// Gateway store: SQLite file or postgres:// URL.
+    #[arg(long, env = "ENVORD_DB")]
     db: String,
     /// Print JSON.
     #[arg(long)]
@@ -90,8 +90,8 @@ pub fn run(a: &LimitsArgs) -> Result<(), CliError> {
     }
 }
 
-fn sql(path: &str) -> impl Fn(rusqlite::Error) -> CliError + '_ {
-    move |e| CliError::Other(format!("{path}: {e}"))
+fn sql(path: &str) -> impl Fn(super::db::DbError) -> CliError + '_ {
+    move |e| CliError::Other(format!("{}: {e}", super::db::redact(path)))
 }
 
 /// Parses a defect name to the frame's name (`BPFO`...).
@@ -139,19 +139,31 @@ fn scope_text(r: &LimitRow) -> String {
 /// usable limits; prints what was stored.
 pub fn store_row(db: &str, row: &LimitRow) -> Result<LimitRow, CliError> {
     // limits may be set before the first frame arrives: creates the store
-    let conn = store::open(db)?;
-    let tx = conn.unchecked_transaction().map_err(sql(db))?;
-    let merged = limits::upsert(&tx, row).map_err(sql(db))?;
-    let rows = limits::rows(&tx).map_err(sql(db))?;
-    let probe = limits::resolve(
-        &rows,
-        merged.node.unwrap_or(0),
-        merged.bearing.unwrap_or(0),
-        merged.kind.as_deref().unwrap_or("BPFO"),
-    );
-    limits::check(&probe).map_err(|m| CliError::input("limits", m))?;
-    tx.commit().map_err(sql(db))?;
-    Ok(merged)
+    let mut conn = super::db::open(db)?;
+    let tx = conn.as_mut();
+    tx.begin().map_err(sql(db))?;
+    let checked = (|| {
+        let merged = limits::upsert(tx, row).map_err(sql(db))?;
+        let rows = limits::rows(tx).map_err(sql(db))?;
+        let probe = limits::resolve(
+            &rows,
+            merged.node.unwrap_or(0),
+            merged.bearing.unwrap_or(0),
+            merged.kind.as_deref().unwrap_or("BPFO"),
+        );
+        limits::check(&probe).map_err(|m| CliError::input("limits", m))?;
+        Ok(merged)
+    })();
+    match checked {
+        Ok(merged) => {
+            tx.commit().map_err(sql(db))?;
+            Ok(merged)
+        }
+        Err(e) => {
+            tx.rollback();
+            Err(e)
+        }
+    }
 }
 
 /// Stores the alert/danger levels a configuration downlink carries to a
@@ -245,9 +257,9 @@ pub fn limits_text(l: &Limits) -> String {
 }
 
 fn show_cmd(a: &ShowArgs) -> Result<(), CliError> {
-    let conn = store::open_read_only(&a.db)?;
-    let rows = limits::rows(&conn).map_err(sql(&a.db))?;
-    let lines = store::observations(&conn).map_err(sql(&a.db))?;
+    let mut conn = super::db::open_mode(&a.db, super::db::Mode::ReadOnly)?;
+    let rows = limits::rows(conn.as_mut()).map_err(sql(&a.db))?;
+    let lines = store::observations(conn.as_mut()).map_err(sql(&a.db))?;
     let mut keys: Vec<(u16, u8, String)> = lines
         .iter()
         .map(|o| (o.node, o.bearing, o.kind.clone()))
@@ -288,9 +300,9 @@ fn show_cmd(a: &ShowArgs) -> Result<(), CliError> {
 
 fn clear_cmd(a: &ScopeArgs) -> Result<(), CliError> {
     let row = scope(a)?;
-    let conn = store::open_existing(&a.db)?;
-    let had =
-        limits::clear(&conn, row.node, row.bearing, row.kind.as_deref()).map_err(sql(&a.db))?;
+    let mut conn = super::db::open_mode(&a.db, super::db::Mode::Existing)?;
+    let had = limits::clear(conn.as_mut(), row.node, row.bearing, row.kind.as_deref())
+        .map_err(sql(&a.db))?;
     if had {
         println!("limits of {} removed", scope_text(&row));
     } else {

@@ -14,9 +14,18 @@
 //! * `downlink`: build a signed downlink (configuration, measure now, band
 //!   survey) for a node from its key file; `provision`: make a node's key and
 //!   identity record.
+//! * `serve`: the long-running MQTT consumer (docs/gateway.md), storing
+//!   through the same path as `import` ([`ingest`]) and publishing alarm
+//!   changes ([`alarms`]).
+//!
+//! Every command that takes `--db` accepts an SQLite file or a
+//! `postgres://` URL ([`db`]); the dashboard (`web`) reads SQLite only.
 
+pub mod alarms;
 pub mod as_before;
+pub mod db;
 pub mod downlink;
+pub mod ingest;
 pub mod input;
 pub mod limits;
 pub mod limits_cmd;
@@ -25,6 +34,8 @@ pub mod map;
 pub mod plot;
 pub mod seq;
 pub mod series;
+pub mod serve;
+pub mod serve_config;
 pub mod store;
 pub mod timefmt;
 pub mod trend;
@@ -67,6 +78,8 @@ enum GatewayCommand {
     Web(web::WebArgs),
     /// Manage the dashboard's users file (add a user, hash a password).
     User(web::UserArgs),
+    /// Run the gateway service: MQTT uplinks into the store, alarm changes out.
+    Serve(serve::ServeArgs),
 }
 
 #[derive(clap::Args, Debug)]
@@ -89,8 +102,8 @@ struct DecodeArgs {
 
 #[derive(clap::Args, Debug)]
 struct ImportArgs {
-    /// Gateway database file (created if missing).
-    #[arg(long)]
+    /// Gateway store: SQLite file (created if missing) or postgres:// URL.
+    #[arg(long, env = "ENVORD_DB")]
     db: String,
     /// Input files (none or "-" for stdin).
     files: Vec<String>,
@@ -110,8 +123,8 @@ struct ImportArgs {
 
 #[derive(clap::Args, Debug)]
 struct StatusArgs {
-    /// Gateway database file.
-    #[arg(long)]
+    /// Gateway store: SQLite file or postgres:// URL.
+    #[arg(long, env = "ENVORD_DB")]
     db: String,
     /// Gateway map (TOML) naming physical bearings.
     #[arg(long)]
@@ -126,8 +139,8 @@ struct StatusArgs {
 
 #[derive(clap::Args, Debug)]
 struct BaselineArgs {
-    /// Gateway database file.
-    #[arg(long)]
+    /// Gateway store: SQLite file or postgres:// URL.
+    #[arg(long, env = "ENVORD_DB")]
     db: String,
     /// Node id.
     #[arg(long)]
@@ -159,6 +172,7 @@ pub fn run(args: GatewayArgs) -> Result<(), CliError> {
         GatewayCommand::Provision(a) => downlink::provision_cmd(&a),
         GatewayCommand::Web(a) => web::web_cmd(&a),
         GatewayCommand::User(a) => web::user_cmd(&a),
+        GatewayCommand::Serve(a) => serve::serve_cmd(&a),
     }
 }
 
@@ -351,7 +365,7 @@ fn worst_text(w: Option<wire::frame::WorstDefect>) -> String {
     }
 }
 
-fn sql_err(e: rusqlite::Error) -> CliError {
+fn sql_err(e: db::DbError) -> CliError {
     CliError::Other(format!("database: {e}"))
 }
 
@@ -360,60 +374,45 @@ fn import_cmd(a: ImportArgs) -> Result<(), CliError> {
         return Err(CliError::input("--batch-size", "must be at least 1"));
     }
     let items = read_inputs(&a.files, a.format)?;
-    let mut conn = store::open(&a.db)?;
+    let mut conn = db::open(&a.db)?;
     // Seed the tracker with what is stored so events refer to the full history.
-    let (mut tracker, _) = decided_order(&conn)?;
+    let (mut tracker, _) = decided_order(conn.as_mut())?;
     let (mut new, mut known, mut rejected, mut new_rejects) = (0u64, 0u64, 0u64, 0u64);
     let mut events: Vec<String> = Vec::new();
     for batch in items.chunks(a.batch_size) {
-        // Immediate: the batch reads (band of the latest status frame) and
-        // writes; taking the write lock first lets a concurrent importer wait
-        // (busy timeout) instead of failing with "database is locked".
-        let tx = conn
-            .transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)
-            .map_err(sql_err)?;
-        for item in batch {
-            match decode_item(item) {
-                Ok(frame) => {
-                    let payload = item.bytes.as_deref().unwrap_or(&[]);
-                    let origin = store::Origin {
-                        source: &item.source,
-                        line: item.line,
-                        rx_time: item.rx_time.as_deref(),
-                    };
-                    if store::insert_frame(&tx, &frame, payload, &origin).map_err(sql_err)? {
-                        new += 1;
-                        let (node, seq) = store::node_seq(&frame);
-                        if !store::is_report(&frame) {
-                            // status frames: their own sequence, restart evidence
-                            tracker.observe_status(node, seq, payload);
-                            continue;
-                        }
-                        let ev = tracker.observe(node, seq, payload);
+        let uplinks: Vec<ingest::Uplink> = batch.iter().map(ingest::Uplink::from_item).collect();
+        // The same path as `gateway serve`: one transaction per batch (on
+        // SQLite BEGIN IMMEDIATE: the batch reads the band of the latest
+        // status frame and writes; taking the write lock first lets a
+        // concurrent importer wait instead of failing with "database is locked").
+        let outcomes =
+            ingest::store_batch(conn.as_mut(), &mut tracker, &uplinks).map_err(sql_err)?;
+        for (o, item) in outcomes.iter().zip(batch) {
+            match o {
+                ingest::Outcome::New { frame, seq } => {
+                    new += 1;
+                    let (node, sq) = store::node_seq(frame);
+                    if let Some(ev) = seq {
                         if !matches!(ev, SeqEvent::InOrder | SeqEvent::First) {
                             events.push(format!(
-                                "{}:{}: node {node} seq {seq}: {}",
+                                "{}:{}: node {node} seq {sq}: {}",
                                 item.source,
                                 item.line,
                                 ev.describe()
                             ));
                         }
-                    } else {
-                        known += 1;
                     }
                 }
-                Err(reason) => {
+                ingest::Outcome::Known { .. } => known += 1,
+                ingest::Outcome::Rejected { reason, new } => {
                     rejected += 1;
-                    if store::insert_reject(&tx, &item.source, item.line, &item.text, &reason)
-                        .map_err(sql_err)?
-                    {
+                    if *new {
                         new_rejects += 1;
                     }
                     events.push(format!("{}:{}: rejected: {reason}", item.source, item.line));
                 }
             }
         }
-        tx.commit().map_err(sql_err)?;
         if a.batch_pause_ms > 0 {
             std::thread::sleep(std::time::Duration::from_millis(a.batch_pause_ms));
         }
@@ -435,15 +434,16 @@ fn status_cmd(a: StatusArgs) -> Result<(), CliError> {
         Some(p) => Some(map::GatewayMap::load(p)?),
         None => None,
     };
-    let conn = store::open_read_only(&a.db)?;
+    let mut conn = db::open_mode(&a.db, db::Mode::ReadOnly)?;
+    let conn = conn.as_mut();
     let now = trend_cmd::now_ms(a.now.as_deref())?;
-    let states: Vec<trend::DefectState> = trend_cmd::grade_store(&conn, &a.db, now)?
+    let states: Vec<trend::DefectState> = trend_cmd::grade_db(conn, &a.db, now, None)?
         .into_iter()
         .map(|l| l.state)
         .collect();
-    let (tracker, _) = decided_order(&conn)?;
-    let rejects = store::count(&conn, "rejects").map_err(sql_err)?;
-    let nodes = store::latest_status(&conn).map_err(sql_err)?;
+    let (tracker, _) = decided_order(conn)?;
+    let rejects = store::count(conn, "rejects").map_err(sql_err)?;
+    let nodes = store::latest_status(conn).map_err(sql_err)?;
     let combined = gmap
         .as_ref()
         .map(|m| combine(m, &states))
@@ -565,17 +565,9 @@ fn status_cmd(a: StatusArgs) -> Result<(), CliError> {
 /// restart evidence; the two tables keep no common arrival order), then the
 /// reports in arrival order, giving each report id its decided place.
 pub(crate) fn decided_order(
-    conn: &rusqlite::Connection,
+    conn: &mut dyn db::Db,
 ) -> Result<(SeqTracker, std::collections::HashMap<i64, seq::Order>), CliError> {
-    let mut tracker = SeqTracker::new();
-    for (node, seq, payload) in store::status_arrivals(conn).map_err(sql_err)? {
-        tracker.observe_status(node, seq, &payload);
-    }
-    let mut order = std::collections::HashMap::new();
-    for (id, node, seq, payload) in store::report_arrivals(conn).map_err(sql_err)? {
-        order.insert(id, tracker.observe_ordered(node, seq, &payload).1);
-    }
-    Ok((tracker, order))
+    ingest::decided_order(conn, SeqTracker::new(), None).map_err(sql_err)
 }
 
 fn fmt_db(x: Option<f64>) -> String {
@@ -692,7 +684,7 @@ pub fn combine(m: &map::GatewayMap, states: &[trend::DefectState]) -> Vec<Combin
 
 fn baseline_cmd(a: BaselineArgs) -> Result<(), CliError> {
     // a write to an existing store: a mistyped path is refused, not created
-    drop(store::open_existing(&a.db)?);
+    drop(db::open_mode(&a.db, db::Mode::Existing)?);
     let kind = parse_kind(&a.defect)?;
     if a.bearing > 3 {
         return Err(CliError::input("--bearing", "bearing index must be 0..=3"));

@@ -124,6 +124,9 @@ pub struct NodeSeqStats {
 pub struct SeqTracker {
     nodes: HashMap<u16, NodeSeqStats>,
     seen: HashSet<(u16, u16, Vec<u8>)>,
+    /// False for a long-running service whose store already absorbs
+    /// duplicates: the set of seen frames is not kept (memory stays flat).
+    forget: bool,
     /// Per node: (epoch, unwrapped position) of its last accepted report.
     place: HashMap<u16, (u32, i64)>,
     /// Per node: last status sequence number seen.
@@ -140,6 +143,15 @@ impl SeqTracker {
         Self::default()
     }
 
+    /// A tracker that keeps no set of seen frames (duplicates are then
+    /// the caller's to filter, e.g. by the store's unique key).
+    pub fn without_history() -> Self {
+        Self {
+            forget: true,
+            ..Self::default()
+        }
+    }
+
     /// Records one status frame (status frames count their own sequence,
     /// from 0 at boot). Returns true when it shows a restart: a new status
     /// frame (not a duplicate) whose number is below [`RESET_WINDOW`] and not
@@ -147,7 +159,7 @@ impl SeqTracker {
     /// other content). The node's first status frame is its first boot, not
     /// a restart.
     pub fn observe_status(&mut self, node: u16, status_seq: u16, payload: &[u8]) -> bool {
-        if !self.seen.insert((node, status_seq, payload.to_vec())) {
+        if !self.forget && !self.seen.insert((node, status_seq, payload.to_vec())) {
             return false;
         }
         let restart = match self.status_last.get(&node) {
@@ -182,7 +194,7 @@ impl SeqTracker {
         let st = self.nodes.entry(node).or_default();
         st.frames += 1;
         let here = |late: bool, pos: i64, epoch: u32| Order { epoch, pos, late };
-        if !self.seen.insert((node, seq, payload.to_vec())) {
+        if !self.forget && !self.seen.insert((node, seq, payload.to_vec())) {
             st.duplicates += 1;
             return (SeqEvent::Duplicate, here(true, place.1, place.0));
         }

@@ -2,8 +2,9 @@
 //! alarm logic reads it: amplitude, detection, coverage, receive time and
 //! the envelope band in force.
 
+use super::db::{Db, DbError};
+use super::store::{col, node_filter, u16_of, u8_of};
 use super::timefmt::parse_rfc3339_ms;
-use rusqlite::{params, Connection};
 
 /// One stored defect row with what the alarm logic needs.
 #[derive(Clone, Debug, serde::Serialize)]
@@ -35,14 +36,15 @@ pub struct Point {
     /// False when the node's setting cannot search this line.
     pub searched: bool,
     /// Envelope band in force when the report arrived (from the node's
-    /// latest status frame before it), Hz.
+    /// latest status frame before it, stamped by [`super::ingest`]), Hz.
     pub band_hz: Option<[f64; 2]>,
 }
 
-/// Every stored defect row in arrival order (by report, bearing, kind).
-pub fn points(conn: &Connection) -> rusqlite::Result<Vec<Point>> {
-    let has_band = has_column(conn, "reports", "band_lo_hz")?;
-    let band = if has_band {
+/// Every stored defect row in arrival order (by report, bearing, kind),
+/// of these nodes when given (a line's grading reads only its own node's
+/// rows, so grading a node's rows alone gives the whole store's states of it).
+pub fn points(db: &mut dyn Db, nodes: Option<&[u16]>) -> Result<Vec<Point>, DbError> {
+    let band = if db.has_column("reports", "band_lo_hz")? {
         "r.band_lo_hz, r.band_hi_hz"
     } else {
         "NULL, NULL"
@@ -50,60 +52,38 @@ pub fn points(conn: &Connection) -> rusqlite::Result<Vec<Point>> {
     let sql = format!(
         "SELECT r.id, r.node_id, r.seq, r.rx_time, r.rx_time_ms, d.bearing, d.kind, d.score_db,
                 d.amplitude_g, d.amplitude_1x_g, d.detected, d.searched, {band}
-         FROM defects d JOIN reports r ON r.id = d.report_id ORDER BY r.id, d.bearing, d.kind"
+         FROM defects d JOIN reports r ON r.id = d.report_id WHERE 1 = 1{}
+         ORDER BY r.id, d.bearing, d.kind",
+        node_filter("r.node_id", nodes)
     );
-    let mut stmt = conn.prepare(&sql)?;
-    let rows = stmt.query_map([], |r| {
-        let rx_time: Option<String> = r.get(3)?;
-        let rx_ms: Option<i64> = r.get(4)?;
-        let amp: Option<f64> = r.get(8)?;
-        let amp1: Option<f64> = r.get(9)?;
-        let lo: Option<f64> = r.get(12)?;
-        let hi: Option<f64> = r.get(13)?;
-        let (amplitude_g, amplitude_source) = match amp {
-            Some(a) => (Some(a), "amplitude_g"),
-            None => (amp1, "amplitude_1x_g"),
-        };
-        Ok(Point {
-            report_id: r.get(0)?,
-            node: r.get(1)?,
-            seq: r.get(2)?,
-            time_ms: rx_ms.or_else(|| rx_time.as_deref().and_then(parse_rfc3339_ms)),
-            rx_time,
-            bearing: r.get(5)?,
-            kind: r.get(6)?,
-            score_db: r.get(7)?,
-            amplitude_g,
-            amplitude_source,
-            detected: r.get(10)?,
-            searched: r.get::<_, Option<i64>>(11)?.is_none_or(|s| s != 0),
-            band_hz: lo.zip(hi).map(|(a, b)| [a, b]),
+    db.query(&sql, &[])?
+        .iter()
+        .map(|r| {
+            let rx_time = col(r, 3).opt_text();
+            let rx_ms = col(r, 4).opt_int();
+            let amp = col(r, 8).opt_real();
+            let amp1 = col(r, 9).opt_real();
+            let lo = col(r, 12).opt_real();
+            let hi = col(r, 13).opt_real();
+            let (amplitude_g, amplitude_source) = match amp {
+                Some(a) => (Some(a), "amplitude_g"),
+                None => (amp1, "amplitude_1x_g"),
+            };
+            Ok(Point {
+                report_id: col(r, 0).int("id")?,
+                node: u16_of(col(r, 1), "node_id")?,
+                seq: u16_of(col(r, 2), "seq")?,
+                time_ms: rx_ms.or_else(|| rx_time.as_deref().and_then(parse_rfc3339_ms)),
+                rx_time,
+                bearing: u8_of(col(r, 5), "bearing")?,
+                kind: col(r, 6).text("kind")?,
+                score_db: col(r, 7).opt_real(),
+                amplitude_g,
+                amplitude_source,
+                detected: col(r, 10).int("detected")? != 0,
+                searched: col(r, 11).opt_int().is_none_or(|s| s != 0),
+                band_hz: lo.zip(hi).map(|(a, b)| [a, b]),
+            })
         })
-    })?;
-    rows.collect()
-}
-
-fn has_column(conn: &Connection, table: &str, col: &str) -> rusqlite::Result<bool> {
-    let mut stmt = conn.prepare(&format!("PRAGMA table_info({table})"))?;
-    let names = stmt.query_map([], |r| r.get::<_, String>(1))?;
-    for n in names {
-        if n? == col {
-            return Ok(true);
-        }
-    }
-    Ok(false)
-}
-
-/// Stamps report `id` of `node` with the band of the node's latest stored
-/// status frame (the band in force when it arrived). Called by the store's
-/// insert inside the import transaction, so arrival order decides.
-pub fn stamp_band(conn: &Connection, id: i64, node: u16) -> rusqlite::Result<()> {
-    conn.execute(
-        "UPDATE reports SET (band_lo_hz, band_hi_hz) = (
-           SELECT band_lo_hz, band_hi_hz FROM node_status WHERE node_id = ?2
-           ORDER BY id DESC LIMIT 1)
-         WHERE id = ?1",
-        params![id, node],
-    )?;
-    Ok(())
+        .collect()
 }

@@ -1,9 +1,10 @@
 //! The gateway's SQLite store: schema, versioned migrations (`user_version`),
 //! idempotent inserts. Described in docs/gateway.md.
 
+use super::db::{Db, DbError, Row, SqliteRef, Val};
 use crate::error::CliError;
-use rusqlite::{params, Connection, OptionalExtension};
-use wire::frame::{DefectKind, Frame, IsoZone};
+use rusqlite::Connection;
+use wire::frame::Frame;
 
 /// Migrations in order; migration i brings `user_version` from i to i + 1.
 pub const MIGRATIONS: &[&str] = &[
@@ -319,19 +320,6 @@ pub fn migrate(conn: &mut Connection, path: &str) -> Result<(), CliError> {
     Ok(())
 }
 
-fn opt(x: f32) -> Option<f64> {
-    x.is_finite().then_some(f64::from(x))
-}
-
-fn zone_name(z: Option<IsoZone>) -> Option<&'static str> {
-    z.map(|z| match z {
-        IsoZone::A => "A",
-        IsoZone::B => "B",
-        IsoZone::C => "C",
-        IsoZone::D => "D",
-    })
-}
-
 /// Node and sequence number of a decoded frame. Status frames count their
 /// own sequence; the link statistics track reports only ([`is_report`]).
 pub fn node_seq(f: &Frame) -> (u16, u16) {
@@ -345,50 +333,6 @@ pub fn node_seq(f: &Frame) -> (u16, u16) {
 /// True for report frames (full, reduced), false for status frames.
 pub fn is_report(f: &Frame) -> bool {
     !matches!(f, Frame::Status(_))
-}
-
-/// JSON name of a serde unit variant (e.g. `"config_applied"`).
-fn name_of<T: serde::Serialize>(v: &T) -> String {
-    serde_json::to_value(v)
-        .ok()
-        .and_then(|x| x.as_str().map(str::to_string))
-        .unwrap_or_default()
-}
-
-/// Inserts a status frame unless stored; returns whether it was new.
-fn insert_status(
-    conn: &Connection,
-    r: &wire::frame::StatusReport,
-    payload: &[u8],
-    json: &str,
-    o: &Origin<'_>,
-) -> rusqlite::Result<bool> {
-    let line = i64::try_from(o.line).unwrap_or(i64::MAX);
-    let n = conn.execute(
-        "INSERT OR IGNORE INTO node_status (node_id, seq, payload, rx_time, source, line, flags,
-           downlink_counter, last_downlink, refused_downlinks, survey, band_source, band_lo_hz,
-           band_hi_hz, band_kurtosis, json)
-         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16)",
-        params![
-            r.node_id,
-            r.seq,
-            payload,
-            o.rx_time,
-            o.source,
-            line,
-            r.flags.to_bits(),
-            r.downlink_counter,
-            name_of(&r.last_downlink),
-            r.refused_downlinks,
-            name_of(&r.survey),
-            name_of(&r.band_source),
-            f64::from(r.band_hz[0]),
-            f64::from(r.band_hz[1]),
-            opt(r.band_kurtosis),
-            json
-        ],
-    )?;
-    Ok(n > 0)
 }
 
 /// The latest status frame of one node.
@@ -417,28 +361,62 @@ pub struct NodeStatus {
 }
 
 /// The latest (last arrived) status frame of every node, by node.
-pub fn latest_status(conn: &Connection) -> rusqlite::Result<Vec<NodeStatus>> {
-    let mut stmt = conn.prepare(
+pub fn latest_status(db: &mut dyn Db) -> Result<Vec<NodeStatus>, DbError> {
+    let rows = db.query(
         "SELECT node_id, seq, rx_time, downlink_counter, last_downlink, refused_downlinks, survey,
                 band_source, band_lo_hz, band_hi_hz, band_kurtosis
          FROM node_status WHERE id IN (SELECT MAX(id) FROM node_status GROUP BY node_id)
          ORDER BY node_id",
+        &[],
     )?;
-    let rows = stmt.query_map([], |r| {
-        Ok(NodeStatus {
-            node: r.get(0)?,
-            seq: r.get(1)?,
-            rx_time: r.get(2)?,
-            downlink_counter: r.get(3)?,
-            last_downlink: r.get(4)?,
-            refused_downlinks: r.get(5)?,
-            survey: r.get(6)?,
-            band_source: r.get(7)?,
-            band_hz: [r.get(8)?, r.get(9)?],
-            band_kurtosis: r.get(10)?,
+    rows.iter()
+        .map(|r| {
+            Ok(NodeStatus {
+                node: u16_of(col(r, 0), "node_id")?,
+                seq: u16_of(col(r, 1), "seq")?,
+                rx_time: col(r, 2).opt_text(),
+                downlink_counter: u32::try_from(col(r, 3).int("downlink_counter")?)
+                    .map_err(|_| DbError::Type("downlink_counter: out of range".into()))?,
+                last_downlink: col(r, 4).text("last_downlink")?,
+                refused_downlinks: u8_of(col(r, 5), "refused_downlinks")?,
+                survey: col(r, 6).text("survey")?,
+                band_source: col(r, 7).text("band_source")?,
+                band_hz: [col(r, 8).real("band_lo_hz")?, col(r, 9).real("band_hi_hz")?],
+                band_kurtosis: col(r, 10).opt_real(),
+            })
         })
-    })?;
-    rows.collect()
+        .collect()
+}
+
+/// A value as u16, naming the column when it does not fit.
+pub fn u16_of(v: &Val, col: &str) -> Result<u16, DbError> {
+    u16::try_from(v.int(col)?).map_err(|_| DbError::Type(format!("{col}: out of range")))
+}
+
+/// A value as u8, naming the column when it does not fit.
+pub fn u8_of(v: &Val, col: &str) -> Result<u8, DbError> {
+    u8::try_from(v.int(col)?).map_err(|_| DbError::Type(format!("{col}: out of range")))
+}
+
+/// Column `i` of a row (NULL past its end).
+pub fn col(r: &Row, i: usize) -> &Val {
+    const NULL: Val = Val::Int(None);
+    r.get(i).unwrap_or(&NULL)
+}
+
+/// `AND node_id IN (...)` for a node filter (node ids are numbers: inlined).
+pub fn node_filter(column: &str, nodes: Option<&[u16]>) -> String {
+    match nodes {
+        None => String::new(),
+        Some(ns) => {
+            let list: Vec<String> = ns.iter().map(u16::to_string).collect();
+            if list.is_empty() {
+                format!(" AND {column} IS NULL")
+            } else {
+                format!(" AND {column} IN ({})", list.join(", "))
+            }
+        }
+    }
 }
 
 /// Where a frame came from.
@@ -453,136 +431,87 @@ pub struct Origin<'a> {
 
 /// Inserts a decoded frame unless the same node+seq+payload is stored;
 /// returns whether it was new. Reports go to `reports` (and `defects`),
-/// status frames to `node_status`. Call inside a transaction.
+/// status frames to `node_status`. Call inside a transaction. The same
+/// writer as `gateway import` and `gateway serve` ([`super::ingest`]).
 pub fn insert_frame(
     conn: &Connection,
     f: &Frame,
     payload: &[u8],
     o: &Origin<'_>,
-) -> rusqlite::Result<bool> {
-    let (node, seq) = node_seq(f);
-    let json = serde_json::to_string(f).unwrap_or_default();
-    let line = i64::try_from(o.line).unwrap_or(i64::MAX);
-    if let Frame::Status(r) = f {
-        return insert_status(conn, r, payload, &json, o);
-    }
-    let n = match f {
-        Frame::Full(r) => conn.execute(
-            "INSERT OR IGNORE INTO reports (node_id, seq, frame_type, payload, rx_time, source, line, flags,
-               speed_rpm, accel_rms_g, peak_g, crest_factor, kurtosis, velocity_rms_mm_s, iso_zone, json)
-             VALUES (?1, ?2, 'full', ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15)",
-            params![
-                node, seq, payload, o.rx_time, o.source, line, r.flags.to_bits(),
-                opt(r.speed_rpm), opt(r.overall.accel_rms_g), opt(r.overall.peak_g),
-                opt(r.overall.crest_factor), opt(r.overall.kurtosis), opt(r.overall.velocity_rms_mm_s),
-                zone_name(r.overall.iso_zone), json
-            ],
-        )?,
-        Frame::Reduced(r) => conn.execute(
-            "INSERT OR IGNORE INTO reports (node_id, seq, frame_type, payload, rx_time, source, line, flags, json)
-             VALUES (?1, ?2, 'reduced', ?3, ?4, ?5, ?6, ?7, ?8)",
-            params![node, seq, payload, o.rx_time, o.source, line, r.flags.to_bits(), json],
-        )?,
-        Frame::Status(_) => 0,
+) -> Result<bool, DbError> {
+    let u = super::ingest::Uplink {
+        origin: super::ingest::Origin {
+            source: o.source.to_string(),
+            line: o.line,
+            rx_time: o.rx_time.map(str::to_string),
+            rx_time_ms: o.rx_time.and_then(super::timefmt::parse_rfc3339_ms),
+            ..super::ingest::Origin::default()
+        },
+        text: String::new(),
+        bytes: Ok(payload.to_vec()),
+        claimed_node: None,
     };
-    if n == 0 {
-        return Ok(false);
-    }
-    let id = conn.last_insert_rowid();
-    super::series::stamp_band(conn, id, node)?;
-    let mut stmt = conn.prepare_cached(
-        "INSERT INTO defects (report_id, bearing, kind, score_db, amplitude_1x_g, harmonics, detected,
-           searched, amplitude_g, harmonics_searched, sidebands, margin_db)
-         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12)",
-    )?;
-    match f {
-        Frame::Full(r) => {
-            for (b, br) in (0u8..).zip(r.bearings.iter()) {
-                for (k, d) in DefectKind::ALL.iter().zip(br.defects.iter()) {
-                    // v3 columns: from v2 frames, NULL for v1 (line_columns).
-                    let c = super::line_columns::line_columns(d);
-                    stmt.execute(params![
-                        id,
-                        b,
-                        k.name(),
-                        opt(d.score_db),
-                        opt(d.amplitude_1x_g),
-                        d.harmonics,
-                        d.detected,
-                        c.searched,
-                        c.amplitude_g,
-                        c.harmonics_searched,
-                        c.sidebands,
-                        c.margin_db
-                    ])?;
-                }
-            }
-        }
-        Frame::Reduced(r) => {
-            if let Some(w) = r.worst {
-                stmt.execute(params![
-                    id,
-                    w.bearing,
-                    w.kind.name(),
-                    opt(w.score_db),
-                    None::<f64>,
-                    None::<i64>,
-                    w.detected,
-                    true,
-                    None::<f64>,
-                    None::<i64>,
-                    None::<i64>,
-                    None::<f64>
-                ])?;
-            }
-        }
-        Frame::Status(_) => {}
-    }
-    Ok(true)
+    let mut db = SqliteRef(conn);
+    let out = super::ingest::write(&mut db, std::slice::from_ref(&u))?;
+    let (node, seq) = node_seq(f);
+    Ok(out.iter().any(|o| {
+        matches!(o, super::ingest::Outcome::New { frame, .. } if node_seq(frame) == (node, seq))
+    }))
 }
 
-/// Records a rejected input line; returns whether it was new.
-pub fn insert_reject(
-    conn: &Connection,
-    source: &str,
-    line: usize,
-    text: &str,
-    reason: &str,
-) -> rusqlite::Result<bool> {
-    let n = conn.execute(
-        "INSERT OR IGNORE INTO rejects (source, line, text, reason) VALUES (?1, ?2, ?3, ?4)",
-        params![
-            source,
-            i64::try_from(line).unwrap_or(i64::MAX),
-            text,
-            reason
-        ],
-    )?;
-    Ok(n > 0)
+fn triples(rows: &[Row]) -> Result<Vec<(u16, u16, Vec<u8>)>, DbError> {
+    rows.iter()
+        .map(|r| {
+            Ok((
+                u16_of(col(r, 0), "node_id")?,
+                u16_of(col(r, 1), "seq")?,
+                col(r, 2).blob("payload")?,
+            ))
+        })
+        .collect()
 }
 
 /// (node, seq, payload) of every stored report in arrival order.
-pub fn arrivals(conn: &Connection) -> rusqlite::Result<Vec<(u16, u16, Vec<u8>)>> {
-    let mut stmt = conn.prepare("SELECT node_id, seq, payload FROM reports ORDER BY id")?;
-    let rows = stmt.query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))?;
-    rows.collect()
+pub fn arrivals(db: &mut dyn Db) -> Result<Vec<(u16, u16, Vec<u8>)>, DbError> {
+    triples(&db.query("SELECT node_id, seq, payload FROM reports ORDER BY id", &[])?)
 }
 
 /// A stored report's row id, node, sequence number and payload.
 pub type ReportArrival = (i64, u16, u16, Vec<u8>);
 
-/// Every stored report in arrival order.
-pub fn report_arrivals(conn: &Connection) -> rusqlite::Result<Vec<ReportArrival>> {
-    let mut stmt = conn.prepare("SELECT id, node_id, seq, payload FROM reports ORDER BY id")?;
-    let rows = stmt.query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?)))?;
-    rows.collect()
+/// Every stored report in arrival order (of these nodes when given).
+pub fn report_arrivals(
+    db: &mut dyn Db,
+    nodes: Option<&[u16]>,
+) -> Result<Vec<ReportArrival>, DbError> {
+    let sql = format!(
+        "SELECT id, node_id, seq, payload FROM reports WHERE 1 = 1{} ORDER BY id",
+        node_filter("node_id", nodes)
+    );
+    db.query(&sql, &[])?
+        .iter()
+        .map(|r| {
+            Ok((
+                col(r, 0).int("id")?,
+                u16_of(col(r, 1), "node_id")?,
+                u16_of(col(r, 2), "seq")?,
+                col(r, 3).blob("payload")?,
+            ))
+        })
+        .collect()
 }
 
-/// (node, status seq, payload) of every stored status frame in arrival order.
-pub fn status_arrivals(conn: &Connection) -> rusqlite::Result<Vec<(u16, u16, Vec<u8>)>> {
-    let mut stmt = conn.prepare("SELECT node_id, seq, payload FROM node_status ORDER BY id")?;
-    let rows = stmt.query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))?;
-    rows.collect()
+/// (node, status seq, payload) of every stored status frame in arrival
+/// order (of these nodes when given).
+pub fn status_arrivals(
+    db: &mut dyn Db,
+    nodes: Option<&[u16]>,
+) -> Result<Vec<(u16, u16, Vec<u8>)>, DbError> {
+    let sql = format!(
+        "SELECT node_id, seq, payload FROM node_status WHERE 1 = 1{} ORDER BY id",
+        node_filter("node_id", nodes)
+    );
+    triples(&db.query(&sql, &[])?)
 }
 
 /// One stored score observation.
@@ -607,71 +536,40 @@ pub struct Observation {
 }
 
 /// Every defect observation in arrival order.
-pub fn observations(conn: &Connection) -> rusqlite::Result<Vec<Observation>> {
-    let mut stmt = conn.prepare(
+pub fn observations(db: &mut dyn Db) -> Result<Vec<Observation>, DbError> {
+    let rows = db.query(
         "SELECT r.id, r.node_id, r.seq, r.rx_time, d.bearing, d.kind, d.score_db, d.detected
          FROM defects d JOIN reports r ON r.id = d.report_id ORDER BY r.id, d.bearing, d.kind",
+        &[],
     )?;
-    let rows = stmt.query_map([], |r| {
-        Ok(Observation {
-            report_id: r.get(0)?,
-            node: r.get(1)?,
-            seq: r.get(2)?,
-            rx_time: r.get(3)?,
-            bearing: r.get(4)?,
-            kind: r.get(5)?,
-            score_db: r.get(6)?,
-            detected: r.get(7)?,
+    rows.iter()
+        .map(|r| {
+            Ok(Observation {
+                report_id: col(r, 0).int("id")?,
+                node: u16_of(col(r, 1), "node_id")?,
+                seq: u16_of(col(r, 2), "seq")?,
+                rx_time: col(r, 3).opt_text(),
+                bearing: u8_of(col(r, 4), "bearing")?,
+                kind: col(r, 5).text("kind")?,
+                score_db: col(r, 6).opt_real(),
+                detected: col(r, 7).int("detected")? != 0,
+            })
         })
-    })?;
-    rows.collect()
-}
-
-/// The hand-set baseline of one defect, if any.
-pub fn manual_baseline(
-    conn: &Connection,
-    node: u16,
-    bearing: u8,
-    kind: &str,
-) -> rusqlite::Result<Option<f64>> {
-    conn.query_row(
-        "SELECT score_db FROM baselines WHERE node_id = ?1 AND bearing = ?2 AND kind = ?3",
-        params![node, bearing, kind],
-        |r| r.get(0),
-    )
-    .optional()
-}
-
-/// Sets (Some) or clears (None) a hand-set baseline.
-pub fn set_baseline(
-    conn: &Connection,
-    node: u16,
-    bearing: u8,
-    kind: &str,
-    v: Option<f64>,
-) -> rusqlite::Result<()> {
-    match v {
-        Some(x) => conn.execute(
-            "INSERT INTO baselines (node_id, bearing, kind, score_db) VALUES (?1, ?2, ?3, ?4)
-             ON CONFLICT (node_id, bearing, kind) DO UPDATE SET score_db = excluded.score_db",
-            params![node, bearing, kind, x],
-        )?,
-        None => conn.execute(
-            "DELETE FROM baselines WHERE node_id = ?1 AND bearing = ?2 AND kind = ?3",
-            params![node, bearing, kind],
-        )?,
-    };
-    Ok(())
+        .collect()
 }
 
 /// Count of rows in a table of this schema.
-pub fn count(conn: &Connection, table: &str) -> rusqlite::Result<i64> {
+pub fn count(db: &mut dyn Db, table: &str) -> Result<i64, DbError> {
     let sql = match table {
         "reports" => "SELECT COUNT(*) FROM reports",
         "defects" => "SELECT COUNT(*) FROM defects",
         "rejects" => "SELECT COUNT(*) FROM rejects",
         "node_status" => "SELECT COUNT(*) FROM node_status",
-        _ => "SELECT COUNT(*) FROM baselines",
+        "alarm_events" => "SELECT COUNT(*) FROM alarm_events",
+        _ => "SELECT COUNT(*) FROM point_limits",
     };
-    conn.query_row(sql, [], |r| r.get(0))
+    let rows = db.query(sql, &[])?;
+    rows.first()
+        .map(|r| col(r, 0).int("count"))
+        .unwrap_or(Ok(0))
 }

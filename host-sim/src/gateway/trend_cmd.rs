@@ -5,7 +5,6 @@
 use super::limits;
 use super::plot;
 use super::series;
-use super::store;
 use super::timefmt::{format_rfc3339, parse_rfc3339_ms};
 use super::trend::{self, Line};
 use crate::error::CliError;
@@ -26,21 +25,37 @@ pub fn now_ms(now: Option<&str>) -> Result<Option<i64>, CliError> {
     }
 }
 
-/// Every line of the store, graded with its stored limits.
+/// Every line of the store, graded with its stored limits (an SQLite
+/// connection; [`grade_db`] on either backend).
 pub fn grade_store(
     conn: &rusqlite::Connection,
     db: &str,
     now: Option<i64>,
 ) -> Result<Vec<Line>, CliError> {
-    let sql = |e: rusqlite::Error| CliError::Other(format!("{db}: {e}"));
-    let mut points = series::points(conn).map_err(sql)?;
+    grade_db(&mut super::db::SqliteRef(conn), db, now, None)
+}
+
+/// Every line of the store (of these nodes only when given), graded with
+/// its stored limits. A line's grade depends only on its own node's rows,
+/// so grading some nodes gives exactly the states grading the whole store
+/// gives them (what the service's alarm evaluation relies on).
+pub fn grade_db(
+    conn: &mut dyn super::db::Db,
+    db: &str,
+    now: Option<i64>,
+    nodes: Option<&[u16]>,
+) -> Result<Vec<Line>, CliError> {
+    let shown = super::db::redact(db);
+    let sql = |e: super::db::DbError| CliError::Other(format!("{shown}: {e}"));
+    let mut points = series::points(conn, nodes).map_err(sql)?;
     // Each node's decided order (a late or replayed frame in its place, never
     // last); arrival order among equals. The sort is stable, so the rows of
     // one report keep their bearing and kind order.
-    let (_, order) = super::decided_order(conn)?;
+    let (_, order) =
+        super::ingest::decided_order(conn, super::seq::SeqTracker::new(), nodes).map_err(sql)?;
     points.sort_by_key(|p| (order.get(&p.report_id).copied(), p.report_id));
     // reduced frames read "as before" (reports by exception)
-    let reduced = super::as_before::reduced_reports(conn).map_err(sql)?;
+    let reduced = super::as_before::reduced_reports(conn, nodes).map_err(sql)?;
     let points = super::as_before::expand(points, &reduced);
     let rows = limits::rows(conn).map_err(sql)?;
     let bad: std::cell::RefCell<Option<String>> = std::cell::RefCell::new(None);
@@ -58,7 +73,7 @@ pub fn grade_store(
     );
     match bad.into_inner() {
         Some(m) => Err(CliError::input(
-            db,
+            &shown,
             format!("stored limits unusable ({m}); fix them with `envord gateway limits set`"),
         )),
         None => Ok(lines),
@@ -68,8 +83,8 @@ pub fn grade_store(
 /// Arguments of `envord gateway trend`.
 #[derive(clap::Args, Debug)]
 pub struct TrendArgs {
-    /// Gateway database file.
-    #[arg(long)]
+    /// Gateway store: SQLite file or postgres:// URL.
+    #[arg(long, env = "ENVORD_DB")]
     db: String,
     /// Node id.
     #[arg(long)]
@@ -106,8 +121,8 @@ pub fn trend_cmd(a: &TrendArgs) -> Result<(), CliError> {
         .as_deref()
         .map(super::limits_cmd::kind_name)
         .transpose()?;
-    let conn = store::open_read_only(&a.db)?;
-    let all = grade_store(&conn, &a.db, now_ms(a.now.as_deref())?)?;
+    let mut conn = super::db::open_mode(&a.db, super::db::Mode::ReadOnly)?;
+    let all = grade_db(conn.as_mut(), &a.db, now_ms(a.now.as_deref())?, None)?;
     let mut lines: Vec<&Line> = all
         .iter()
         .filter(|l| l.state.node == a.node && l.state.bearing == a.bearing)

@@ -385,7 +385,7 @@ impl WebStore for SqliteWeb {
     }
 
     fn latest_status(&mut self) -> Result<Vec<NodeStatus>, DataError> {
-        Ok(store::latest_status(&self.conn)?)
+        store::latest_status(&mut self.conn).map_err(|e| DataError::Query(e.to_string()))
     }
 
     fn node_status(&mut self, node: u16) -> Result<Vec<StatusRow>, DataError> {
