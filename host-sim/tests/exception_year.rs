@@ -108,7 +108,7 @@ fn a_year_by_exception_gives_the_same_gateway_states_in_less_airtime() {
         };
         let report = run(&point, &rec).unwrap().report;
         let fr = FrameReport::from_report(&report, NODE, day as u16);
-        let mut buf = [0u8; 64];
+        let mut buf = [0u8; 256];
         let n = encode(&fr, &mut buf).unwrap();
         let full = buf[..n].to_vec();
         // the node decides on the values as the frame carries them
@@ -120,7 +120,7 @@ fn a_year_by_exception_gives_the_same_gateway_states_in_less_airtime() {
                 full.clone()
             }
             Choice::Reduced => {
-                let mut b = [0u8; 64];
+                let mut b = [0u8; 256];
                 let m = encode_reduced(&carried, &mut b).unwrap();
                 b[..m].to_vec()
             }
