@@ -15,6 +15,8 @@ MOSQ=$(command -v mosquitto || true)
 [ -n "$MOSQ" ] || { [ -x /usr/sbin/mosquitto ] && MOSQ=/usr/sbin/mosquitto; } || true
 [ -n "$MOSQ" ] || need+=(mosquitto)
 ls /usr/lib/postgresql/*/bin/initdb >/dev/null 2>&1 || need+=(postgresql)
+# the TLS test makes its CA and broker certificate with the openssl command
+command -v openssl >/dev/null || need+=(openssl)
 if [ ${#need[@]} -gt 0 ]; then
   echo "installing ${need[*]}"
   apt-get update -qq
@@ -22,6 +24,7 @@ if [ ${#need[@]} -gt 0 ]; then
   MOSQ=$(command -v mosquitto || echo /usr/sbin/mosquitto)
 fi
 [ -x "$MOSQ" ] || { echo "FAILED: mosquitto is not installed and could not be installed"; exit 1; }
+command -v openssl >/dev/null || { echo "FAILED: openssl is not installed and could not be installed"; exit 1; }
 PGBIN=$(ls -d /usr/lib/postgresql/*/bin | sort -V | tail -1)
 [ -x "$PGBIN/initdb" ] || { echo "FAILED: PostgreSQL initdb not found under /usr/lib/postgresql"; exit 1; }
 

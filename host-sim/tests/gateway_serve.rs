@@ -580,3 +580,100 @@ fn config_permissions_and_no_credentials_in_logs() {
     );
     assert!(log.contains("envord:***@"), "{log}");
 }
+
+/// The broker over TLS with a login: a CA and a server certificate made
+/// for the test (openssl), Mosquitto's TLS listener on 127.0.0.1 taking
+/// only our user and password. The frames are stored exactly; a CA that
+/// did not sign the broker's certificate, and a wrong password, each stop
+/// the gateway at start with exit 2 and a message naming the key to fix.
+#[test]
+fn tls_broker_with_login() {
+    let dir = tempfile::tempdir().unwrap();
+    let (broker, tls) = Broker::start_tls(dir.path(), "envord-gw", "s3cret-test-pass");
+    let store = sqlite_url(dir.path(), "tls");
+    let spec = GwSpec {
+        port: tls.port,
+        protocol: "5",
+        client_id: "gw-tls",
+        topics: &["plant/+/up"],
+        store: &store,
+        raw: false,
+        alarm_topic: None,
+        extra: "",
+        alarms_extra: "",
+    };
+    // the broker's keys come first in the common config, then [uplink]
+    let config = |ca: &std::path::Path, password: &str| {
+        config_text(&spec).replacen(
+            "\n\n[uplink]",
+            &format!(
+                "\nusername = \"envord-gw\"\npassword = {password:?}\n\n[broker.tls]\nca_file = {:?}\n\n[uplink]",
+                ca.display().to_string()
+            ),
+            1,
+        )
+    };
+    let mut gw = Gateway::spawn(
+        dir.path(),
+        "gw-tls",
+        &config(&tls.ca, "s3cret-test-pass"),
+        &store,
+    );
+    gw.wait_connected();
+    let s = day_stream(20, 144, false, "plant");
+    let t0 = Instant::now();
+    publish(broker.port, &s.messages, 2000, |_| {});
+    wait_stored(&store, want_rows(&s), 120);
+    let got = check_exact(&store, &s);
+    summary(
+        "TLS broker with login, SQLite, MQTT 5",
+        &s,
+        got,
+        t0.elapsed().as_secs_f64(),
+    );
+    let log = gw.stop();
+    assert!(log.contains("\"tls\":true"), "{log}");
+    assert!(
+        !log.contains("s3cret-test-pass"),
+        "the broker password is in the log"
+    );
+
+    // a CA that did not sign the broker's certificate
+    let wrong_ca = Gateway::spawn(
+        dir.path(),
+        "gw-wrong-ca",
+        &config(&tls.other_ca, "s3cret-test-pass"),
+        &sqlite_url(dir.path(), "wrong-ca"),
+    );
+    let (code, log) = wrong_ca.wait_exit(30);
+    println!(
+        "wrong CA: exit {code:?}: {}",
+        log.lines().last().unwrap_or("")
+    );
+    assert_eq!(code, Some(2), "{log}");
+    assert!(
+        log.contains("broker.tls.ca_file") && log.contains("TLS connection to the broker"),
+        "{log}"
+    );
+    // a wrong password
+    let wrong_pw = Gateway::spawn(
+        dir.path(),
+        "gw-wrong-pw",
+        &config(&tls.ca, "not-the-password"),
+        &sqlite_url(dir.path(), "wrong-pw"),
+    );
+    let (code, log) = wrong_pw.wait_exit(30);
+    println!(
+        "wrong password: exit {code:?}: {}",
+        log.lines().last().unwrap_or("")
+    );
+    assert_eq!(code, Some(2), "{log}");
+    assert!(
+        log.contains("refused the login") && log.contains("broker.password"),
+        "{log}"
+    );
+    assert!(
+        !log.contains("not-the-password"),
+        "the password is in the log"
+    );
+}

@@ -12,7 +12,7 @@ use super::serve_config::{LogFormat, Protocol, ServeConfig};
 use super::store;
 use crate::error::CliError;
 use std::io::Write;
-use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 use std::sync::{mpsc, Arc, Mutex};
 use std::time::{Duration, Instant};
 
@@ -144,7 +144,10 @@ struct Health {
     rejected: u64,
     alarm_events: u64,
     batches: u64,
+    /// Messages received and waiting for the next batch (after the last take).
     queued: usize,
+    /// Most messages held at once (waiting + the batch taken), since start.
+    queued_max: usize,
     /// Commit time minus the uplink's receive time, ms (recent window).
     lag_p50_ms: Option<i64>,
     lag_p99_ms: Option<i64>,
@@ -216,21 +219,236 @@ fn subscribe_all(h: &Handle, topics: &[String], log: Log) {
     });
 }
 
+/// What the event thread makes of one event of either protocol's loop.
+enum Step {
+    /// Connected (again); whether the broker kept our session.
+    Connected { session_present: bool },
+    /// A message to store, and what acknowledges it.
+    Message {
+        topic: String,
+        payload: Vec<u8>,
+        ack: Ack,
+    },
+    /// Our own disconnect went out: the loop ends.
+    Disconnected,
+    /// Anything else (acks, pings, subscriptions).
+    Other,
+    /// The connection failed; the client reconnects on the next poll.
+    Failed(String, Option<Refusal>),
+}
+
+/// A connection failure that retrying cannot mend: the configuration is at
+/// fault. Fatal before the first connection (a service started with a
+/// wrong CA or password says so and exits); after it, retried like any
+/// other failure (a broker being reconfigured or restarted).
+#[derive(Clone, Copy)]
+enum Refusal {
+    /// The TLS handshake failed (certificate not from `ca_file`, wrong name).
+    Tls,
+    /// The broker refused the login (bad user name or password, not authorised).
+    Login,
+}
+
+/// Classifies a TLS set-up failure: a handshake cut short (the broker
+/// restarting) is retried, anything else is the configuration's.
+fn tls_refusal(e: &rumqttc::TlsError) -> Option<Refusal> {
+    match e {
+        rumqttc::TlsError::Io(io) => io_refusal(io),
+        _ => Some(Refusal::Tls),
+    }
+}
+
+/// Classifies an I/O failure: rustls' handshake errors arrive as I/O errors.
+fn io_refusal(e: &std::io::Error) -> Option<Refusal> {
+    e.get_ref()
+        .is_some_and(|i| i.downcast_ref::<rustls::Error>().is_some())
+        .then_some(Refusal::Tls)
+}
+
+/// One MQTT version's event type, mapped onto [`Step`]. The payload is
+/// copied out and the client's buffers (the payload and topic of the packet
+/// share the read buffer) are dropped: a queued message holds only its own
+/// bytes and what acknowledges it (packet id, QoS).
+trait EventSource {
+    fn step(self) -> Step;
+}
+
+impl EventSource for Result<rumqttc::Event, rumqttc::ConnectionError> {
+    fn step(self) -> Step {
+        use rumqttc::{Event, Outgoing, Packet};
+        match self {
+            Ok(Event::Incoming(Packet::ConnAck(a))) => Step::Connected {
+                session_present: a.session_present,
+            },
+            Ok(Event::Incoming(Packet::Publish(mut p))) => {
+                let topic = std::mem::take(&mut p.topic);
+                let payload = std::mem::take(&mut p.payload).to_vec();
+                Step::Message {
+                    topic,
+                    payload,
+                    ack: Ack::V4(p),
+                }
+            }
+            Ok(Event::Outgoing(Outgoing::Disconnect)) => Step::Disconnected,
+            Ok(_) => Step::Other,
+            Err(e) => {
+                use rumqttc::{ConnectReturnCode as C, ConnectionError as E};
+                let r = match &e {
+                    E::Tls(t) => tls_refusal(t),
+                    E::Io(io) => io_refusal(io),
+                    E::ConnectionRefused(C::BadUserNamePassword | C::NotAuthorized) => {
+                        Some(Refusal::Login)
+                    }
+                    _ => None,
+                };
+                Step::Failed(e.to_string(), r)
+            }
+        }
+    }
+}
+
+impl EventSource for Result<rumqttc::v5::Event, rumqttc::v5::ConnectionError> {
+    fn step(self) -> Step {
+        use rumqttc::v5::mqttbytes::v5::Packet;
+        use rumqttc::v5::Event;
+        use rumqttc::Outgoing;
+        match self {
+            Ok(Event::Incoming(Packet::ConnAck(a))) => Step::Connected {
+                session_present: a.session_present,
+            },
+            Ok(Event::Incoming(Packet::Publish(mut p))) => {
+                let topic = String::from_utf8_lossy(&std::mem::take(&mut p.topic)).into_owned();
+                let payload = std::mem::take(&mut p.payload).to_vec();
+                p.properties = None;
+                Step::Message {
+                    topic,
+                    payload,
+                    ack: Ack::V5(p),
+                }
+            }
+            Ok(Event::Outgoing(Outgoing::Disconnect)) => Step::Disconnected,
+            Ok(_) => Step::Other,
+            Err(e) => {
+                use rumqttc::v5::mqttbytes::v5::ConnectReturnCode as C;
+                use rumqttc::v5::ConnectionError as E;
+                let r = match &e {
+                    E::Tls(t) => tls_refusal(t),
+                    E::Io(io) => io_refusal(io),
+                    E::ConnectionRefused(C::BadUserNamePassword | C::NotAuthorized) => {
+                        Some(Refusal::Login)
+                    }
+                    _ => None,
+                };
+                Step::Failed(e.to_string(), r)
+            }
+        }
+    }
+}
+
+/// What the event thread shares with the rest of the service.
+struct EventCtx {
+    handle: Handle,
+    topics: Vec<String>,
+    tx: mpsc::Sender<Msg>,
+    /// Messages handed over and not yet taken by the ingest loop.
+    queued: Arc<AtomicUsize>,
+    connected: Arc<AtomicBool>,
+    stopping: Arc<AtomicBool>,
+    log: Log,
+    /// "host:port", for messages.
+    broker: String,
+    /// Why the thread gave up, when the configuration is at fault.
+    refused: Arc<Mutex<Option<String>>>,
+}
+
+/// The event thread of either protocol: drives the client (which also
+/// carries our acks out, so it never blocks on the ingest loop), hands
+/// messages over, resubscribes on every connection and keeps reconnecting.
+fn event_loop<E: EventSource>(events: impl Iterator<Item = E>, ctx: EventCtx) {
+    let mut ever_connected = false;
+    for ev in events {
+        match ev.step() {
+            Step::Connected { session_present } => {
+                GENERATION.fetch_add(1, Ordering::SeqCst);
+                ever_connected = true;
+                ctx.connected.store(true, Ordering::SeqCst);
+                ctx.log.info(
+                    "broker connected",
+                    serde_json::json!({"session_present": session_present}),
+                );
+                subscribe_all(&ctx.handle, &ctx.topics, ctx.log);
+            }
+            Step::Message {
+                topic,
+                payload,
+                ack,
+            } => {
+                let m = Msg {
+                    topic,
+                    payload,
+                    ack,
+                    generation: GENERATION.load(Ordering::SeqCst),
+                };
+                ctx.queued.fetch_add(1, Ordering::SeqCst);
+                if ctx.tx.send(m).is_err() {
+                    break;
+                }
+            }
+            Step::Disconnected => break,
+            Step::Other => {}
+            Step::Failed(e, refusal) => {
+                ctx.connected.store(false, Ordering::SeqCst);
+                if ctx.stopping.load(Ordering::SeqCst) {
+                    break;
+                }
+                if let (false, Some(r)) = (ever_connected, refusal) {
+                    let b = &ctx.broker;
+                    let msg = match r {
+                        Refusal::Tls => format!(
+                            "TLS connection to the broker at {b} failed ({e}): check broker.tls.ca_file (the CA that signed the broker's certificate) and that broker.host is a name in that certificate"
+                        ),
+                        Refusal::Login => format!(
+                            "the broker at {b} refused the login ({e}): check broker.username and broker.password / broker.password_env"
+                        ),
+                    };
+                    if let Ok(mut f) = ctx.refused.lock() {
+                        *f = Some(msg);
+                    }
+                    break;
+                }
+                ctx.log.warn(
+                    "broker connection lost, retrying in 1 s",
+                    serde_json::json!({"error": e}),
+                );
+                std::thread::sleep(Duration::from_secs(1));
+            }
+        }
+    }
+    ctx.connected.store(false, Ordering::SeqCst);
+}
+
 /// Connects to the broker; the event thread feeds `tx` and keeps reconnecting.
+///
+/// What the service holds unacknowledged is bounded by the broker's send
+/// window: with MQTT 5 our receive maximum (`ingest.max_unacked`), with
+/// MQTT 3.1.1 the broker's own setting (Mosquitto: `max_inflight_messages`).
 fn connect(
     c: &ServeConfig,
     tx: mpsc::Sender<Msg>,
+    queued: Arc<AtomicUsize>,
     connected: Arc<AtomicBool>,
     stopping: Arc<AtomicBool>,
+    refused: Arc<Mutex<Option<String>>>,
     log: Log,
 ) -> Result<(Handle, std::thread::JoinHandle<()>), CliError> {
     let b = &c.broker;
     let password = c.password()?;
     let tls = mqtt_options_tls(c)?;
-    let topics = c.uplink.topics.clone();
     let keep_alive = Duration::from_secs(b.keep_alive_s.max(5));
-    let cap = c.ingest.batch_max * 4 + 64;
-    match b.protocol {
+    // requests (acks of up to `max_unacked` messages, alarm publishes)
+    let cap = c.ingest.window() + c.ingest.batch_max + 64;
+    let transport = tls.map(rumqttc::Transport::Tls);
+    let (handle, spawn): (Handle, Box<dyn FnOnce(EventCtx) + Send>) = match b.protocol {
         Protocol::V311 => {
             let mut o = rumqttc::MqttOptions::new(&b.client_id, &b.host, b.port);
             o.set_keep_alive(keep_alive)
@@ -240,116 +458,48 @@ fn connect(
             if let (Some(u), p) = (&b.username, &password) {
                 o.set_credentials(u, p.clone().unwrap_or_default());
             }
-            if let Some(t) = tls {
-                o.set_transport(rumqttc::Transport::Tls(t));
+            if let Some(t) = transport {
+                o.set_transport(t);
             }
             let (client, mut conn) = rumqttc::Client::new(o, cap);
-            let handle = Handle::V4(client);
-            let h2 = handle.clone();
-            let th = std::thread::spawn(move || {
-                use rumqttc::{Event, Packet};
-                for ev in conn.iter() {
-                    match ev {
-                        Ok(Event::Incoming(Packet::ConnAck(ack))) => {
-                            GENERATION.fetch_add(1, Ordering::SeqCst);
-                            connected.store(true, Ordering::SeqCst);
-                            log.info(
-                                "broker connected",
-                                serde_json::json!({"session_present": ack.session_present}),
-                            );
-                            subscribe_all(&h2, &topics, log);
-                        }
-                        Ok(Event::Incoming(Packet::Publish(p))) => {
-                            let m = Msg {
-                                topic: p.topic.clone(),
-                                payload: p.payload.to_vec(),
-                                ack: Ack::V4(p),
-                                generation: GENERATION.load(Ordering::SeqCst),
-                            };
-                            if tx.send(m).is_err() {
-                                break;
-                            }
-                        }
-                        Ok(Event::Outgoing(rumqttc::Outgoing::Disconnect)) => break,
-                        Ok(_) => {}
-                        Err(e) => {
-                            connected.store(false, Ordering::SeqCst);
-                            if stopping.load(Ordering::SeqCst) {
-                                break;
-                            }
-                            log.warn(
-                                "broker connection lost, retrying in 1 s",
-                                serde_json::json!({"error": e.to_string()}),
-                            );
-                            std::thread::sleep(Duration::from_secs(1));
-                        }
-                    }
-                }
-                connected.store(false, Ordering::SeqCst);
-            });
-            Ok((handle, th))
+            (
+                Handle::V4(client),
+                Box::new(move |ctx| event_loop(conn.iter(), ctx)),
+            )
         }
         Protocol::V5 => {
-            use rumqttc::v5::mqttbytes::v5::Packet;
-            use rumqttc::v5::{Event, MqttOptions};
-            let mut o = MqttOptions::new(&b.client_id, &b.host, b.port);
+            let mut o = rumqttc::v5::MqttOptions::new(&b.client_id, &b.host, b.port);
             o.set_keep_alive(keep_alive)
                 .set_clean_start(false)
                 .set_session_expiry_interval(Some(b.session_expiry_s))
+                .set_receive_maximum(Some(u16::try_from(c.ingest.window()).unwrap_or(u16::MAX)))
                 .set_manual_acks(true)
                 .set_max_packet_size(Some(1 << 20));
             if let (Some(u), p) = (&b.username, &password) {
                 o.set_credentials(u, p.clone().unwrap_or_default());
             }
-            if let Some(t) = tls {
-                o.set_transport(rumqttc::Transport::Tls(t));
+            if let Some(t) = transport {
+                o.set_transport(t);
             }
             let (client, mut conn) = rumqttc::v5::Client::new(o, cap);
-            let handle = Handle::V5(client);
-            let h2 = handle.clone();
-            let th = std::thread::spawn(move || {
-                for ev in conn.iter() {
-                    match ev {
-                        Ok(Event::Incoming(Packet::ConnAck(ack))) => {
-                            GENERATION.fetch_add(1, Ordering::SeqCst);
-                            connected.store(true, Ordering::SeqCst);
-                            log.info(
-                                "broker connected",
-                                serde_json::json!({"session_present": ack.session_present}),
-                            );
-                            subscribe_all(&h2, &topics, log);
-                        }
-                        Ok(Event::Incoming(Packet::Publish(p))) => {
-                            let m = Msg {
-                                topic: String::from_utf8_lossy(&p.topic).into_owned(),
-                                payload: p.payload.to_vec(),
-                                ack: Ack::V5(p),
-                                generation: GENERATION.load(Ordering::SeqCst),
-                            };
-                            if tx.send(m).is_err() {
-                                break;
-                            }
-                        }
-                        Ok(Event::Outgoing(rumqttc::Outgoing::Disconnect)) => break,
-                        Ok(_) => {}
-                        Err(e) => {
-                            connected.store(false, Ordering::SeqCst);
-                            if stopping.load(Ordering::SeqCst) {
-                                break;
-                            }
-                            log.warn(
-                                "broker connection lost, retrying in 1 s",
-                                serde_json::json!({"error": e.to_string()}),
-                            );
-                            std::thread::sleep(Duration::from_secs(1));
-                        }
-                    }
-                }
-                connected.store(false, Ordering::SeqCst);
-            });
-            Ok((handle, th))
+            (
+                Handle::V5(client),
+                Box::new(move |ctx| event_loop(conn.iter(), ctx)),
+            )
         }
-    }
+    };
+    let ctx = EventCtx {
+        handle: handle.clone(),
+        topics: c.uplink.topics.clone(),
+        tx,
+        queued,
+        connected,
+        stopping,
+        log,
+        broker: format!("{}:{}", b.host, b.port),
+        refused,
+    };
+    Ok((handle, std::thread::spawn(move || spawn(ctx))))
 }
 
 fn health_http(addr: &str, health: Arc<Mutex<Health>>, log: Log) -> Result<(), CliError> {
@@ -422,12 +572,21 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
     }
     let connected = Arc::new(AtomicBool::new(false));
     let stopping = Arc::new(AtomicBool::new(false));
-    // Unbounded on purpose: the event thread must never block (it also
-    // carries our acks out); the broker bounds what is unacknowledged
-    // (receive maximum / max_inflight_messages), so this queue is bounded too.
+    // Not bounded here: the event thread must never block (it also carries
+    // our acks out). The broker's send window bounds what is unacknowledged
+    // (see `connect`), so this queue is bounded by it; `queued` counts it.
     let (tx, rx) = mpsc::channel::<Msg>();
-    let (mqtt, event_thread) =
-        connect(&cfg, tx, Arc::clone(&connected), Arc::clone(&stopping), log)?;
+    let queued = Arc::new(AtomicUsize::new(0));
+    let refused = Arc::new(Mutex::new(None));
+    let (mqtt, event_thread) = connect(
+        &cfg,
+        tx,
+        Arc::clone(&queued),
+        Arc::clone(&connected),
+        Arc::clone(&stopping),
+        Arc::clone(&refused),
+        log,
+    )?;
     let (alarm_tx, alarm_thread) = spawn_alarms(
         url.clone(),
         &cfg,
@@ -453,6 +612,7 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
     };
     let mut received: u64 = 0;
     let mut last_health = Instant::now();
+    let mut last_quantiles = Instant::now();
     let batch_wait = Duration::from_millis(cfg.ingest.batch_ms);
     let health_every = Duration::from_secs(cfg.log.health_interval_s);
     let mut pending: Vec<Msg> = Vec::new();
@@ -466,7 +626,10 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
                 Err(mpsc::RecvTimeoutError::Timeout) => {}
                 Err(mpsc::RecvTimeoutError::Disconnected) => {
                     if !stopping_now {
-                        exit_err = Some(CliError::Other("broker event thread ended".into()));
+                        exit_err = Some(match refused.lock().ok().and_then(|mut r| r.take()) {
+                            Some(m) => CliError::input(&a.config, m),
+                            None => CliError::Other("broker event thread ended".into()),
+                        });
                     }
                 }
             }
@@ -482,6 +645,13 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
             }
         }
         if !pending.is_empty() {
+            let left = queued
+                .fetch_sub(pending.len(), Ordering::SeqCst)
+                .saturating_sub(pending.len());
+            if let Ok(mut h) = health.lock() {
+                h.queued = left;
+                h.queued_max = h.queued_max.max(left + pending.len());
+            }
             let now = now_ms();
             let uplinks: Vec<Uplink> = pending
                 .iter()
@@ -577,12 +747,20 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
             pending.clear();
         }
 
-        let (p50, p99, max) = lags.quantiles();
+        // The quantiles sort the whole window: once a second is enough.
+        let quantiles = if last_quantiles.elapsed() >= Duration::from_secs(1) || stopping_now {
+            last_quantiles = Instant::now();
+            Some(lags.quantiles())
+        } else {
+            None
+        };
         if let Ok(mut h) = health.lock() {
             h.broker_connected = connected.load(Ordering::SeqCst);
-            h.lag_p50_ms = p50;
-            h.lag_p99_ms = p99;
-            h.lag_max_ms = max;
+            if let Some((p50, p99, max)) = quantiles {
+                h.lag_p50_ms = p50;
+                h.lag_p99_ms = p99;
+                h.lag_max_ms = max;
+            }
         }
         if !health_every.is_zero() && last_health.elapsed() >= health_every {
             last_health = Instant::now();
@@ -611,7 +789,8 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
     while !event_thread.is_finished() && t0.elapsed() < Duration::from_secs(5) {
         std::thread::sleep(Duration::from_millis(20));
     }
-    if let Ok(h) = health.lock() {
+    if let Ok(mut h) = health.lock() {
+        (h.lag_p50_ms, h.lag_p99_ms, h.lag_max_ms) = lags.quantiles();
         log.info(
             "gateway serve stopped",
             serde_json::to_value(&*h).unwrap_or_default(),

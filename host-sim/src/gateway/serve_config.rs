@@ -169,6 +169,21 @@ pub struct IngestConfig {
     /// Longest wait for a batch to fill, ms (bounds the latency).
     #[serde(default = "default_batch_ms")]
     pub batch_ms: u64,
+    /// Messages received but not yet acknowledged, at most: the MQTT 5
+    /// receive maximum the broker is asked to keep to (what the service
+    /// holds in memory). MQTT 3.1.1 has no such request: there the broker's
+    /// own window (Mosquitto `max_inflight_messages`) bounds it. Default:
+    /// two batches (`2 x batch_max`), so one fills while one commits.
+    pub max_unacked: Option<usize>,
+}
+
+impl IngestConfig {
+    /// The receive window in force (see `max_unacked`).
+    pub fn window(&self) -> usize {
+        self.max_unacked
+            .unwrap_or(self.batch_max.saturating_mul(2))
+            .min(65_535)
+    }
 }
 
 impl Default for IngestConfig {
@@ -176,6 +191,7 @@ impl Default for IngestConfig {
         Self {
             batch_max: default_batch_max(),
             batch_ms: default_batch_ms(),
+            max_unacked: None,
         }
     }
 }
@@ -339,6 +355,15 @@ impl ServeConfig {
         }
         if c.ingest.batch_max == 0 || c.ingest.batch_max > 10_000 {
             return bad("ingest.batch_max", "must be 1..=10000");
+        }
+        if c.ingest
+            .max_unacked
+            .is_some_and(|m| m < c.ingest.batch_max || m > 65_535)
+        {
+            return bad(
+                "ingest.max_unacked",
+                "must be at least batch_max and at most 65535 (MQTT receive maximum)",
+            );
         }
         if c.alarms.expected_interval_s == 0 || c.alarms.silent_intervals == 0 {
             return bad(
@@ -590,6 +615,15 @@ topics = ["plant/+/up"]
         let e =
             ServeConfig::parse("t.toml", &format!("{MIN}\n[ingest]\nbatch_max = 0\n")).unwrap_err();
         assert!(e.to_string().contains("ingest.batch_max"), "{e}");
+        let e = ServeConfig::parse(
+            "t.toml",
+            &format!("{MIN}\n[ingest]\nbatch_max = 500\nmax_unacked = 100\n"),
+        )
+        .unwrap_err();
+        assert!(e.to_string().contains("ingest.max_unacked"), "{e}");
+        let c =
+            ServeConfig::parse("t.toml", &format!("{MIN}\n[ingest]\nbatch_max = 300\n")).unwrap();
+        assert_eq!(c.ingest.window(), 600);
         let raw = MIN.replace("[uplink]", "[uplink]\nshape = \"raw\"");
         let e = ServeConfig::parse("t.toml", &raw).unwrap_err();
         assert!(e.to_string().contains("node_topic_level"), "{e}");

@@ -49,8 +49,159 @@ pub struct Broker {
     child: Option<Child>,
 }
 
+/// What [`Broker::start_tls`] made: a second listener with TLS and login.
+pub struct TlsListener {
+    pub port: u16,
+    /// The CA that signed the broker's certificate (PEM).
+    pub ca: PathBuf,
+    /// Another CA, which did not.
+    pub other_ca: PathBuf,
+}
+
+fn openssl(dir: &Path, args: &[&str]) {
+    let out = Command::new("openssl")
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .unwrap_or_else(|e| {
+            panic!("the openssl command could not run ({e}): .ci/services.sh installs it")
+        });
+    assert!(
+        out.status.success(),
+        "openssl {}: {}",
+        args.join(" "),
+        String::from_utf8_lossy(&out.stderr)
+    );
+}
+
+/// A CA (EC P-256, self-signed) in `dir` as `{name}.pem` / `{name}.key`.
+fn make_ca(dir: &Path, name: &str) -> PathBuf {
+    openssl(
+        dir,
+        &[
+            "req",
+            "-x509",
+            "-newkey",
+            "ec",
+            "-pkeyopt",
+            "ec_paramgen_curve:prime256v1",
+            "-nodes",
+            "-keyout",
+            &format!("{name}.key"),
+            "-out",
+            &format!("{name}.pem"),
+            "-days",
+            "2",
+            "-subj",
+            &format!("/CN=envord test {name}"),
+            "-addext",
+            "basicConstraints=critical,CA:TRUE",
+            "-addext",
+            "keyUsage=critical,keyCertSign,cRLSign",
+        ],
+    );
+    dir.join(format!("{name}.pem"))
+}
+
 impl Broker {
     pub fn start(dir: &Path) -> Broker {
+        Self::start_with(dir, |_| String::new())
+    }
+
+    /// A broker with its plain loopback listener (anonymous, for the test's
+    /// publisher) and a TLS listener on 127.0.0.1 with a server
+    /// certificate (name 127.0.0.1 and localhost) signed by a CA made in
+    /// the broker's dir, which takes only `user`/`password`.
+    pub fn start_tls(dir: &Path, user: &str, password: &str) -> (Broker, TlsListener) {
+        let tls_port = free_port();
+        let mut made = None;
+        let b = Self::start_with(dir, |d| {
+            let ca = make_ca(d, "ca");
+            let other_ca = make_ca(d, "other-ca");
+            std::fs::write(
+                d.join("server.ext"),
+                "subjectAltName=IP:127.0.0.1,DNS:localhost\nbasicConstraints=CA:FALSE\n\
+                 keyUsage=critical,digitalSignature\nextendedKeyUsage=serverAuth\n",
+            )
+            .unwrap();
+            openssl(
+                d,
+                &[
+                    "req",
+                    "-newkey",
+                    "ec",
+                    "-pkeyopt",
+                    "ec_paramgen_curve:prime256v1",
+                    "-nodes",
+                    "-keyout",
+                    "server.key",
+                    "-out",
+                    "server.csr",
+                    "-subj",
+                    "/CN=127.0.0.1",
+                ],
+            );
+            openssl(
+                d,
+                &[
+                    "x509",
+                    "-req",
+                    "-in",
+                    "server.csr",
+                    "-CA",
+                    "ca.pem",
+                    "-CAkey",
+                    "ca.key",
+                    "-CAcreateserial",
+                    "-out",
+                    "server.pem",
+                    "-days",
+                    "2",
+                    "-extfile",
+                    "server.ext",
+                ],
+            );
+            let passwd = d.join("passwd");
+            let st = Command::new("mosquitto_passwd")
+                .args(["-c", "-b"])
+                .arg(&passwd)
+                .args([user, password])
+                .output()
+                .unwrap_or_else(|e| {
+                    panic!(
+                        "mosquitto_passwd could not run ({e}): it comes with the mosquitto package"
+                    )
+                });
+            assert!(
+                st.status.success(),
+                "mosquitto_passwd: {}",
+                String::from_utf8_lossy(&st.stderr)
+            );
+            made = Some(TlsListener {
+                port: tls_port,
+                ca,
+                other_ca,
+            });
+            format!(
+                "listener {tls_port} 127.0.0.1\nallow_anonymous false\npassword_file {}\n\
+                 cafile {}\ncertfile {}\nkeyfile {}\n",
+                passwd.display(),
+                d.join("ca.pem").display(),
+                d.join("server.pem").display(),
+                d.join("server.key").display()
+            )
+        });
+        assert!(
+            wait_port(tls_port, 10),
+            "mosquitto did not listen with TLS on 127.0.0.1:{tls_port} (log in {})",
+            b.dir.display()
+        );
+        (b, made.unwrap())
+    }
+
+    /// `extra(dir)`: more listeners (they follow the plain one, so with
+    /// per-listener settings each has its own login rules).
+    fn start_with(dir: &Path, extra: impl FnOnce(&Path) -> String) -> Broker {
         let port = free_port();
         let dir = dir.join(format!("mosquitto-{port}"));
         std::fs::create_dir_all(&dir).unwrap();
@@ -61,10 +212,16 @@ impl Broker {
         } else {
             ""
         };
+        let more = extra(&dir);
+        let per_listener = if more.is_empty() {
+            ""
+        } else {
+            "per_listener_settings true\n"
+        };
         let conf = format!(
-            "listener {port} 127.0.0.1\nallow_anonymous true\npersistence true\npersistence_location {}/\n\
+            "{per_listener}persistence true\npersistence_location {}/\n\
              autosave_interval 1\nmax_inflight_messages 1000\nmax_queued_messages 0\nmax_queued_bytes 0\n\
-             log_dest file {}/log\n{user}{debug}",
+             log_dest file {}/log\n{user}{debug}listener {port} 127.0.0.1\nallow_anonymous true\n{more}",
             dir.display(),
             dir.display()
         );
@@ -514,29 +671,41 @@ pub struct GwSpec<'a> {
     pub alarms_extra: &'a str,
 }
 
+/// The gateway config of a spec (the tests' common shape).
+pub fn config_text(g: &GwSpec<'_>) -> String {
+    let topics: Vec<String> = g.topics.iter().map(|t| format!("{t:?}")).collect();
+    let shape = if g.raw {
+        "shape = \"raw\"\nnode_topic_level = 1\n"
+    } else {
+        ""
+    };
+    let alarm = g
+        .alarm_topic
+        .map(|t| format!("topic = {t:?}\n"))
+        .unwrap_or_default();
+    format!(
+        "[broker]\nhost = \"127.0.0.1\"\nport = {}\nprotocol = {:?}\nclient_id = {:?}\n\n[uplink]\ntopics = [{}]\n{shape}\n\
+         [store]\nurl_env = \"ENVORD_TEST_GW_STORE\"\n\n[alarms]\n{alarm}{}\n[log]\nformat = \"json\"\nhealth_interval_s = 2\n{}",
+        g.port,
+        g.protocol,
+        g.client_id,
+        topics.join(", "),
+        g.alarms_extra,
+        g.extra
+    )
+}
+
 impl Gateway {
     pub fn start(dir: &Path, name: &str, g: &GwSpec<'_>) -> Gateway {
+        let mut gw = Self::spawn(dir, name, &config_text(g), g.store);
+        gw.wait_connected();
+        gw
+    }
+
+    /// Writes `text` as the config (mode 0600) and starts the gateway on
+    /// it, without waiting for anything.
+    pub fn spawn(dir: &Path, name: &str, text: &str, store: &str) -> Gateway {
         let config = dir.join(format!("{name}.toml"));
-        let topics: Vec<String> = g.topics.iter().map(|t| format!("{t:?}")).collect();
-        let shape = if g.raw {
-            "shape = \"raw\"\nnode_topic_level = 1\n"
-        } else {
-            ""
-        };
-        let alarm = g
-            .alarm_topic
-            .map(|t| format!("topic = {t:?}\n"))
-            .unwrap_or_default();
-        let text = format!(
-            "[broker]\nhost = \"127.0.0.1\"\nport = {}\nprotocol = {:?}\nclient_id = {:?}\n\n[uplink]\ntopics = [{}]\n{shape}\n\
-             [store]\nurl_env = \"ENVORD_TEST_GW_STORE\"\n\n[alarms]\n{alarm}{}\n[log]\nformat = \"json\"\nhealth_interval_s = 2\n{}",
-            g.port,
-            g.protocol,
-            g.client_id,
-            topics.join(", "),
-            g.alarms_extra,
-            g.extra
-        );
         {
             use std::os::unix::fs::OpenOptionsExt;
             let mut f = std::fs::OpenOptions::new()
@@ -549,16 +718,29 @@ impl Gateway {
             f.write_all(text.as_bytes()).unwrap();
         }
         let log = dir.join(format!("{name}.log"));
-        let mut gw = Gateway {
-            child: spawn_gw(&config, &log, g.store),
+        Gateway {
+            child: spawn_gw(&config, &log, store),
             config,
             log,
-        };
-        gw.wait_connected();
-        gw
+        }
     }
 
-    fn wait_connected(&mut self) {
+    /// Waits (bounded) for the gateway to exit on its own; its exit code and log.
+    pub fn wait_exit(mut self, secs: u64) -> (Option<i32>, String) {
+        let t0 = Instant::now();
+        while t0.elapsed() < Duration::from_secs(secs) {
+            if let Ok(Some(st)) = self.child.try_wait() {
+                return (st.code(), self.log_text());
+            }
+            std::thread::sleep(Duration::from_millis(50));
+        }
+        panic!(
+            "gateway still running {secs} s after start:\n{}",
+            self.log_text()
+        );
+    }
+
+    pub fn wait_connected(&mut self) {
         let t0 = Instant::now();
         while t0.elapsed() < Duration::from_secs(30) {
             if self.log_text().contains("\"broker connected\"") {
@@ -722,9 +904,11 @@ pub fn check_exact(url: &str, s: &Stream) -> (usize, usize, i64) {
     (reports.len(), statuses.len(), rejects)
 }
 
-/// As [`publish`], with each JSON message's `"received"` set to the time it
-/// is handed to the client (for publish-to-commit latency).
-pub fn publish_stamped(port: u16, msgs: &[(String, Vec<u8>)], chunk: usize) {
+/// Publishes at QoS 1 at `rate` messages/s (0: as fast as the broker takes
+/// them), each JSON message's `"received"` set to the time it is handed to
+/// the client (for publish-to-commit latency); waits for every PubAck.
+/// Returns how many were published.
+pub fn publish_paced(port: u16, msgs: &[(String, Vec<u8>)], rate: u32) -> usize {
     use rumqttc::{Client, Event, MqttOptions, Packet, QoS};
     let mut o = MqttOptions::new(format!("envord-bench-pub-{port}"), "127.0.0.1", port);
     o.set_keep_alive(Duration::from_secs(10))
@@ -755,29 +939,38 @@ pub fn publish_stamped(port: u16, msgs: &[(String, Vec<u8>)], chunk: usize) {
         Ok(false),
         "publisher: no connection"
     );
-    for part in msgs.chunks(chunk) {
-        for (topic, body) in part {
-            let text = String::from_utf8_lossy(body);
-            let body = match text.find("\"received\":") {
-                Some(i) => {
-                    let start = i + "\"received\":".len();
-                    let end = start + text[start..].find(',').unwrap_or(0);
-                    format!("{}{}{}", &text[..start], now_ms(), &text[end..]).into_bytes()
-                }
-                None => body.clone(),
-            };
-            client
-                .publish(topic.as_str(), QoS::AtLeastOnce, false, body)
-                .unwrap();
-        }
-        let mut acked = 0;
-        while acked < part.len() {
-            match rx.recv_timeout(Duration::from_secs(30)) {
-                Ok(true) => acked += 1,
-                Ok(false) => {}
-                Err(_) => panic!("bench publisher: no PubAck within 30 s"),
+    let t0 = Instant::now();
+    let mut acked = 0usize;
+    for (i, (topic, body)) in msgs.iter().enumerate() {
+        if rate > 0 {
+            let due = t0 + Duration::from_secs_f64(i as f64 / f64::from(rate));
+            let now = Instant::now();
+            if due > now {
+                std::thread::sleep(due - now);
             }
+        }
+        let text = String::from_utf8_lossy(body);
+        let body = match text.find("\"received\":") {
+            Some(i) => {
+                let start = i + "\"received\":".len();
+                let end = start + text[start..].find(',').unwrap_or(0);
+                format!("{}{}{}", &text[..start], now_ms(), &text[end..]).into_bytes()
+            }
+            None => body.clone(),
+        };
+        client
+            .publish(topic.as_str(), QoS::AtLeastOnce, false, body)
+            .unwrap();
+        while let Ok(a) = rx.try_recv() {
+            acked += usize::from(a);
+        }
+    }
+    while acked < msgs.len() {
+        match rx.recv_timeout(Duration::from_secs(30)) {
+            Ok(a) => acked += usize::from(a),
+            Err(_) => panic!("bench publisher: no PubAck within 30 s"),
         }
     }
     let _ = client.disconnect();
+    msgs.len()
 }
