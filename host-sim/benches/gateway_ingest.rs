@@ -74,7 +74,12 @@ fn health(addr: &str) -> serde_json::Value {
 fn run(backend: &str, store: &str, dir: &std::path::Path, rates: &[u32]) {
     let broker = Broker::start(dir);
     let health_addr = format!("127.0.0.1:{}", free_port());
-    let extra = format!("health_http = {health_addr:?}\n");
+    let mut extra = format!("health_http = {health_addr:?}\n");
+    // ENVORD_BENCH_MAX_UNACKED: another receive window (65535 = the
+    // protocol's default, i.e. none asked for: how the memory grew before)
+    if let Ok(m) = std::env::var("ENVORD_BENCH_MAX_UNACKED") {
+        extra.push_str(&format!("\n[ingest]\nmax_unacked = {m}\n"));
+    }
     let gw = Gateway::start(
         dir,
         &format!("bench-{backend}"),
@@ -184,7 +189,9 @@ fn main() {
         std::env::var("ENVORD_BENCH_BACKENDS").unwrap_or_else(|_| "sqlite,postgresql".into());
     let dir = tempfile::tempdir().unwrap();
     println!(
-        "gateway ingest: 500 nodes, one simulated day per phase at rates {rates:?} (0 = as fast as taken), JSON uplinks over MQTT 5, batch_max 500, batch_ms 20, receive maximum 1000, alarms every 10 s"
+        "gateway ingest: 500 nodes, one simulated day per phase at rates {rates:?} (0 = as fast as taken), profile {}, JSON uplinks over MQTT 5, batch_max 500, batch_ms 20, receive maximum {}, alarms every 10 s",
+        if cfg!(debug_assertions) { "with debug assertions" } else { "optimised" },
+        std::env::var("ENVORD_BENCH_MAX_UNACKED").unwrap_or_else(|_| "1000 (default)".into())
     );
     if only.contains("sqlite") {
         let lite = dir.path().join("bench.db").display().to_string();

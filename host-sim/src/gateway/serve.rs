@@ -91,10 +91,12 @@ enum Handle {
 }
 
 impl Handle {
-    fn ack(&self, a: &Ack) -> Result<(), String> {
+    /// Queues an ack without waiting (the request queue may be full while
+    /// the event thread waits for room in ours: never block on it here).
+    fn try_ack(&self, a: &Ack) -> Result<(), String> {
         match (self, a) {
-            (Handle::V4(c), Ack::V4(p)) => c.ack(p).map_err(|e| e.to_string()),
-            (Handle::V5(c), Ack::V5(p)) => c.ack(p).map_err(|e| e.to_string()),
+            (Handle::V4(c), Ack::V4(p)) => c.try_ack(p).map_err(|e| e.to_string()),
+            (Handle::V5(c), Ack::V5(p)) => c.try_ack(p).map_err(|e| e.to_string()),
             _ => Err("ack of another protocol".into()),
         }
     }
@@ -349,7 +351,7 @@ impl EventSource for Result<rumqttc::v5::Event, rumqttc::v5::ConnectionError> {
 struct EventCtx {
     handle: Handle,
     topics: Vec<String>,
-    tx: mpsc::Sender<Msg>,
+    tx: mpsc::SyncSender<Msg>,
     /// Messages handed over and not yet taken by the ingest loop.
     queued: Arc<AtomicUsize>,
     connected: Arc<AtomicBool>,
@@ -362,8 +364,9 @@ struct EventCtx {
 }
 
 /// The event thread of either protocol: drives the client (which also
-/// carries our acks out, so it never blocks on the ingest loop), hands
-/// messages over, resubscribes on every connection and keeps reconnecting.
+/// carries our acks out), hands messages over (waiting while the ingest
+/// loop holds a full window of them), resubscribes on every connection and
+/// keeps reconnecting.
 fn event_loop<E: EventSource>(events: impl Iterator<Item = E>, ctx: EventCtx) {
     let mut ever_connected = false;
     for ev in events {
@@ -434,7 +437,7 @@ fn event_loop<E: EventSource>(events: impl Iterator<Item = E>, ctx: EventCtx) {
 /// MQTT 3.1.1 the broker's own setting (Mosquitto: `max_inflight_messages`).
 fn connect(
     c: &ServeConfig,
-    tx: mpsc::Sender<Msg>,
+    tx: mpsc::SyncSender<Msg>,
     queued: Arc<AtomicUsize>,
     connected: Arc<AtomicBool>,
     stopping: Arc<AtomicBool>,
@@ -572,10 +575,12 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
     }
     let connected = Arc::new(AtomicBool::new(false));
     let stopping = Arc::new(AtomicBool::new(false));
-    // Not bounded here: the event thread must never block (it also carries
-    // our acks out). The broker's send window bounds what is unacknowledged
-    // (see `connect`), so this queue is bounded by it; `queued` counts it.
-    let (tx, rx) = mpsc::channel::<Msg>();
+    // Bounded by the receive window: a broker that sends past it (Mosquitto
+    // 2.0 was measured doing so) makes the event thread wait here and the
+    // rest wait in the socket, not in our memory. Our acks go out through
+    // that thread, so the ingest loop never blocks on them (`flush_acks`).
+    let (tx, rx) = mpsc::sync_channel::<Msg>(cfg.ingest.window());
+    let mut unsent: std::collections::VecDeque<(u64, Ack)> = std::collections::VecDeque::new();
     let queued = Arc::new(AtomicUsize::new(0));
     let refused = Arc::new(Mutex::new(None));
     let (mqtt, event_thread) = connect(
@@ -700,15 +705,8 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
                 break;
             };
             let commit_ms = now_ms();
-            let generation = GENERATION.load(Ordering::SeqCst);
-            for m in pending.iter().filter(|m| m.generation == generation) {
-                if let Err(e) = mqtt.ack(&m.ack) {
-                    log.warn(
-                        "ack failed (the broker will redeliver)",
-                        serde_json::json!({"error": e}),
-                    );
-                }
-            }
+            unsent.extend(pending.drain(..).map(|m| (m.generation, m.ack)));
+            flush_acks(&mqtt, &mut unsent);
             let (mut stored, mut known, mut rejected) = (0u64, 0u64, 0u64);
             for (o, u) in outcomes.iter().zip(&uplinks) {
                 match o {
@@ -744,8 +742,8 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
                 h.batches += 1;
                 h.last_message = Some(super::timefmt::format_rfc3339(commit_ms));
             }
-            pending.clear();
         }
+        flush_acks(&mqtt, &mut unsent);
 
         // The quantiles sort the whole window: once a second is enough.
         let quantiles = if last_quantiles.elapsed() >= Duration::from_secs(1) || stopping_now {
@@ -779,6 +777,11 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
             }
         }
     }
+    let t0 = Instant::now();
+    while !unsent.is_empty() && t0.elapsed() < Duration::from_secs(2) {
+        flush_acks(&mqtt, &mut unsent);
+        std::thread::sleep(Duration::from_millis(10));
+    }
     // Last evaluation of what was committed, before leaving.
     let _ = alarm_tx.send(AlarmMsg::Stop);
     let _ = alarm_thread.join();
@@ -799,6 +802,24 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
     match exit_err {
         Some(e) => Err(e),
         None => Ok(()),
+    }
+}
+
+/// Sends the acks of committed messages as far as the client's request
+/// queue takes them; the rest stay for the next call. An ack of an earlier
+/// connection is dropped (its packet id may name another message now; the
+/// broker redelivers the message and the unique key absorbs it).
+fn flush_acks(mqtt: &Handle, unsent: &mut std::collections::VecDeque<(u64, Ack)>) {
+    let generation = GENERATION.load(Ordering::SeqCst);
+    while let Some((g, a)) = unsent.front() {
+        if *g != generation {
+            unsent.pop_front();
+            continue;
+        }
+        if mqtt.try_ack(a).is_err() {
+            return; // full (or the client is gone): retried next time
+        }
+        unsent.pop_front();
     }
 }
 

@@ -220,7 +220,7 @@ impl Broker {
         };
         let conf = format!(
             "{per_listener}persistence true\npersistence_location {}/\n\
-             autosave_interval 1\nmax_inflight_messages 1000\nmax_queued_messages 0\nmax_queued_bytes 0\n\
+             autosave_interval 1\nmax_inflight_messages 1000\nmax_queued_messages 10000000\nmax_queued_bytes 0\n\
              log_dest file {}/log\n{user}{debug}listener {port} 127.0.0.1\nallow_anonymous true\n{more}",
             dir.display(),
             dir.display()
