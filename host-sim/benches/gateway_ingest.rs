@@ -80,6 +80,9 @@ fn run(backend: &str, store: &str, dir: &std::path::Path, rates: &[u32]) {
     if let Ok(m) = std::env::var("ENVORD_BENCH_MAX_UNACKED") {
         extra.push_str(&format!("\n[ingest]\nmax_unacked = {m}\n"));
     }
+    let eval = std::env::var("ENVORD_BENCH_EVAL_MS")
+        .map(|ms| format!("eval_ms = {ms}\n"))
+        .unwrap_or_default();
     let gw = Gateway::start(
         dir,
         &format!("bench-{backend}"),
@@ -92,8 +95,9 @@ fn run(backend: &str, store: &str, dir: &std::path::Path, rates: &[u32]) {
             raw: false,
             alarm_topic: None,
             extra: &extra,
-            // alarm evaluation as shipped (every 10 s, its own thread)
-            alarms_extra: "",
+            // alarm evaluation as shipped (every 10 s, its own thread), or
+            // ENVORD_BENCH_EVAL_MS (e.g. 3600000: none during the run)
+            alarms_extra: &eval,
         },
     );
     let pid = gw.child.id();
@@ -189,9 +193,10 @@ fn main() {
         std::env::var("ENVORD_BENCH_BACKENDS").unwrap_or_else(|_| "sqlite,postgresql".into());
     let dir = tempfile::tempdir().unwrap();
     println!(
-        "gateway ingest: 500 nodes, one simulated day per phase at rates {rates:?} (0 = as fast as taken), profile {}, JSON uplinks over MQTT 5, batch_max 500, batch_ms 20, receive maximum {}, alarms every 10 s",
+        "gateway ingest: 500 nodes, one simulated day per phase at rates {rates:?} (0 = as fast as taken), profile {}, JSON uplinks over MQTT 5, batch_max 500, batch_ms 20, receive maximum {}, alarms every {} ms",
         if cfg!(debug_assertions) { "with debug assertions" } else { "optimised" },
-        std::env::var("ENVORD_BENCH_MAX_UNACKED").unwrap_or_else(|_| "1000 (default)".into())
+        std::env::var("ENVORD_BENCH_MAX_UNACKED").unwrap_or_else(|_| "1000 (default)".into()),
+        std::env::var("ENVORD_BENCH_EVAL_MS").unwrap_or_else(|_| "10000 (default)".into())
     );
     if only.contains("sqlite") {
         let lite = dir.path().join("bench.db").display().to_string();
