@@ -467,6 +467,9 @@ impl postgres::types::ToSql for Val {
     postgres::types::to_sql_checked!();
 }
 
+/// Prepared statements kept per connection, at most.
+const PG_STATEMENTS_KEPT: usize = 256;
+
 /// Advisory lock key serialising migrations of several gateway instances.
 const PG_MIGRATION_LOCK: i64 = 0x656e_766f_7264;
 
@@ -487,6 +490,12 @@ impl PgDb {
             return Ok(s.clone());
         }
         let st = self.client.prepare(&pg_placeholders(sql))?;
+        // Bounded: texts with inlined node lists (the alarm thread's
+        // per-evaluation reads) are new every time; a dropped statement is
+        // closed on the server too, so neither side grows with the run.
+        if self.cache.len() >= PG_STATEMENTS_KEPT {
+            self.cache.clear();
+        }
         self.cache.insert(sql.to_string(), st.clone());
         Ok(st)
     }

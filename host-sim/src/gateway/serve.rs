@@ -222,6 +222,8 @@ fn subscribe_all(h: &Handle, topics: &[String], log: Log) {
 }
 
 /// What the event thread makes of one event of either protocol's loop.
+// A step lives for one match; boxing the message would cost an allocation each.
+#[allow(clippy::large_enum_variant)]
 enum Step {
     /// Connected (again); whether the broker kept our session.
     Connected { session_present: bool },
