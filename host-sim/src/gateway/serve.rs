@@ -126,11 +126,12 @@ impl Handle {
                 .map_err(|e| e.to_string()),
         }
     }
-    fn disconnect(&self) {
-        let _ = match self {
-            Handle::V4(c) => c.disconnect().map_err(|e| e.to_string()),
-            Handle::V5(c) => c.disconnect().map_err(|e| e.to_string()),
-        };
+    /// Queues a disconnect without waiting; false when the queue is full.
+    fn try_disconnect(&self) -> bool {
+        match self {
+            Handle::V4(c) => c.try_disconnect().is_ok(),
+            Handle::V5(c) => c.try_disconnect().is_ok(),
+        }
     }
 }
 
@@ -789,9 +790,17 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
     let _ = alarm_thread.join();
     std::thread::sleep(Duration::from_millis(100)); // let the event loop send them
     stopping.store(true, Ordering::SeqCst);
-    mqtt.disconnect();
+    // The event thread may be waiting for room in our queue (a broker still
+    // sending): messages arriving now are not stored, so not acknowledged
+    // (the broker redelivers them); taking them lets it reach our acks and
+    // the disconnect. Never block on the client's request queue here.
+    let mut disconnect_queued = mqtt.try_disconnect();
     let t0 = Instant::now();
     while !event_thread.is_finished() && t0.elapsed() < Duration::from_secs(5) {
+        while rx.try_recv().is_ok() {}
+        if !disconnect_queued {
+            disconnect_queued = mqtt.try_disconnect();
+        }
         std::thread::sleep(Duration::from_millis(20));
     }
     if let Ok(mut h) = health.lock() {
