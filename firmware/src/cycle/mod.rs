@@ -65,16 +65,9 @@ pub const FRAME_CAPACITY: usize = wire::frame::v2::full_frame_len_v2(
     wire::frame::layout::MAX_BEARINGS,
     wire::frame::layout::MAX_MESHES,
 );
-/// Largest downlink accepted (authentication header and tag, command byte,
-/// largest record).
-pub const DOWNLINK_CAPACITY: usize = crate::downlink_auth::HEADER_LEN
-    + crate::downlink_auth::TAG_LEN
-    + 1
-    + if crate::config::MAX_RECORD_LEN > MAX_BASELINE_LEN {
-        crate::config::MAX_RECORD_LEN
-    } else {
-        MAX_BASELINE_LEN
-    };
+/// Largest downlink accepted (authentication header and tag, command
+/// byte, largest record): [`crate::downlink::MAX_DOWNLINK_LEN`].
+pub const DOWNLINK_CAPACITY: usize = crate::downlink::MAX_DOWNLINK_LEN;
 /// Upper bound on blocks per record whatever the configuration says.
 pub const MAX_RECORD_BLOCKS: u32 = 4_096;
 
