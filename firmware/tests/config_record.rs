@@ -182,9 +182,20 @@ fn encode_refuses_an_invalid_record() {
         c.encode(&mut buf),
         Err(ConfigError::OutOfRange("danger_db"))
     );
+    // no bearings: overall levels only (record version 3 carries that)
     let mut c = sample();
     c.bearings.clear();
-    assert_eq!(c.encode(&mut buf), Err(ConfigError::OutOfRange("bearings")));
+    assert!(c.encode(&mut buf).is_ok());
+    c.bearings
+        .push(BearingSpec {
+            shaft: 2,
+            model: sample().bearings[0].model,
+        })
+        .unwrap();
+    assert_eq!(
+        c.encode(&mut buf),
+        Err(ConfigError::OutOfRange("bearing_shaft"))
+    );
     let c = sample();
     assert_eq!(c.encode(&mut buf[..20]), Err(ConfigError::BufferTooSmall));
 }

@@ -17,7 +17,7 @@
 //!    (else Hann), bit 2 ISO group 1 "large" (else group 2), bit 3 support
 //!    flexible (else rigid), bit 4 a search block follows (else dsp-core's
 //!    default search), bits 5-7 zero
-//! 73 shaft count u8 (1..=4)  74 bearing count u8 (1..=8)  75 mesh count u8 (0..=4)
+//! 73 shaft count u8 (1..=4)  74 bearing count u8 (0..=8)  75 mesh count u8 (0..=4)
 //! 76 shaft ratios, f32 each (shaft 0 is the tach shaft)
 //!    search block (option bit 4), 28 bytes: harmonics u8, min_harmonics u8,
 //!    anchor_harmonics u8, mask_shaft_harmonics u8 (0/1), then f32:
@@ -254,7 +254,8 @@ pub struct PointRecord {
     /// Shaft speeds over the tach shaft's (1 to [`MAX_SHAFTS`]; index 0 is
     /// the tach shaft).
     pub shafts: Vec<f32, MAX_SHAFTS>,
-    /// Monitored bearings (1 to [`MAX_BEARINGS`]).
+    /// Monitored bearings (0 to [`MAX_BEARINGS`]; none: overall levels only,
+    /// as `analyze` of a point without bearings).
     pub bearings: Vec<BearingSpec, MAX_BEARINGS>,
     /// Watched gear meshes (0 to [`MAX_MESHES`]).
     pub meshes: Vec<MeshSpec, MAX_MESHES>,
@@ -555,7 +556,6 @@ impl PointRecord {
             "shaft_ratio",
         )?;
         let shafts = self.shafts.len();
-        check(!self.bearings.is_empty(), "bearings")?;
         for b in &self.bearings {
             check(usize::from(b.shaft) < shafts, "bearing_shaft")?;
             match b.model {
@@ -853,10 +853,7 @@ fn decode_v3_tail(r: &mut Reader<'_>, rec: &mut PointRecord) -> Result<(), Confi
     let bearings = r.u8()?;
     let meshes = r.u8()?;
     check((1..=MAX_SHAFTS).contains(&usize::from(shafts)), "shafts")?;
-    check(
-        (1..=MAX_BEARINGS).contains(&usize::from(bearings)),
-        "bearings",
-    )?;
+    check(usize::from(bearings) <= MAX_BEARINGS, "bearings")?;
     check(usize::from(meshes) <= MAX_MESHES, "meshes")?;
     for _ in 0..shafts {
         rec.shafts

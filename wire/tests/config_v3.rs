@@ -210,7 +210,6 @@ fn every_new_field_out_of_range_is_named() {
         (72, vec![0x3F], "options"),
         (73, vec![0], "shafts"),
         (73, vec![5], "shafts"),
-        (74, vec![0], "bearings"),
         (74, vec![9], "bearings"),
         (75, vec![5], "meshes"),
         (80, f(0.0).to_vec(), "shaft_ratio"),
