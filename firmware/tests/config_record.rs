@@ -14,9 +14,10 @@ use firmware::config::{
 fn sample() -> PointRecord {
     let mut c = PointRecord::default();
     // a second bearing given by defect orders (values of a fictional bearing)
+    c.shafts.push(0.25).unwrap();
     c.bearings
         .push(BearingSpec {
-            shaft_ratio: 0.25,
+            shaft: 1,
             model: BearingModel::Orders {
                 bpfo: 3.58,
                 bpfi: 5.42,
@@ -33,7 +34,8 @@ fn round_trip_preserves_every_field() {
     let c = sample();
     let bytes = encode(&c);
     assert_eq!(bytes.len(), c.encoded_len());
-    assert_eq!(bytes.len(), 66 + 2 * 22 + 4);
+    // v3: fixed part, two shaft ratios, a geometry and an orders bearing, CRC
+    assert_eq!(bytes.len(), 76 + 2 * 4 + 14 + 17 + 4);
     assert!(bytes.len() <= MAX_RECORD_LEN);
     assert_eq!(PointRecord::decode(&bytes).unwrap(), c);
 }
@@ -54,7 +56,7 @@ fn crc_trailer_is_zlib_crc32_of_the_body() {
         u32::from_le_bytes(crc.try_into().unwrap()),
         firmware::crc::crc32(body)
     );
-    assert_eq!(&bytes[..3], b"EP\x02");
+    assert_eq!(&bytes[..3], b"EP\x03");
 }
 
 #[test]
@@ -98,10 +100,10 @@ fn wrong_magic_and_version_are_refused() {
     bytes[0] = b'X';
     assert_eq!(PointRecord::decode(&bytes), Err(ConfigError::BadMagic));
     let mut bytes = encode(&sample());
-    bytes[2] = 3;
+    bytes[2] = 4;
     assert_eq!(
         PointRecord::decode(&bytes),
-        Err(ConfigError::UnsupportedVersion(3))
+        Err(ConfigError::UnsupportedVersion(4))
     );
 }
 
@@ -118,56 +120,56 @@ fn out_of_range_fields_are_refused_even_with_a_good_crc() {
     let good = encode(&sample());
     // band upper edge above Nyquist (fs/2 = 12.8 kHz, sampling theorem)
     let mut b = good.clone();
-    b[12..16].copy_from_slice(&13_000.0f32.to_le_bytes());
+    b[13..17].copy_from_slice(&13_000.0f32.to_le_bytes());
     assert_eq!(
         PointRecord::decode(&reseal(b)),
         Err(ConfigError::OutOfRange("band_hi_hz"))
     );
     // NaN band edge
     let mut b = good.clone();
-    b[8..12].copy_from_slice(&f32::NAN.to_le_bytes());
+    b[9..13].copy_from_slice(&f32::NAN.to_le_bytes());
     assert_eq!(
         PointRecord::decode(&reseal(b)),
         Err(ConfigError::OutOfRange("band_lo_hz"))
     );
     // odd filter order
     let mut b = good.clone();
-    b[16] = 3;
+    b[17] = 3;
     assert_eq!(
         PointRecord::decode(&reseal(b)),
         Err(ConfigError::OutOfRange("poles"))
     );
     // minimum speed above maximum
     let mut b = good.clone();
-    b[20..24].copy_from_slice(&5_000.0f32.to_le_bytes());
+    b[21..25].copy_from_slice(&5_000.0f32.to_le_bytes());
     assert_eq!(
         PointRecord::decode(&reseal(b)),
         Err(ConfigError::OutOfRange("speed_max_rpm"))
     );
     // element diameter larger than pitch diameter (impossible geometry)
     let mut b = good.clone();
-    b[66 + 6..66 + 10].copy_from_slice(&50.0f32.to_le_bytes());
+    b[84 + 2..84 + 6].copy_from_slice(&50.0f32.to_le_bytes());
     assert_eq!(
         PointRecord::decode(&reseal(b)),
         Err(ConfigError::OutOfRange("element_mm"))
     );
     // zero sensitivity
     let mut b = good.clone();
-    b[56..60].copy_from_slice(&0.0f32.to_le_bytes());
+    b[57..61].copy_from_slice(&0.0f32.to_le_bytes());
     assert_eq!(
         PointRecord::decode(&reseal(b)),
         Err(ConfigError::OutOfRange("counts_to_g"))
     );
     // unknown bearing kind
     let mut b = good.clone();
-    b[66] = 7;
+    b[84] = 7;
     assert_eq!(
         PointRecord::decode(&reseal(b)),
         Err(ConfigError::OutOfRange("bearing_kind"))
     );
     // bearing count that does not match the length
     let mut b = good;
-    b[60] = 1;
+    b[74] = 1;
     assert_eq!(PointRecord::decode(&reseal(b)), Err(ConfigError::BadLength));
 }
 
@@ -180,9 +182,20 @@ fn encode_refuses_an_invalid_record() {
         c.encode(&mut buf),
         Err(ConfigError::OutOfRange("danger_db"))
     );
+    // no bearings: overall levels only (record version 3 carries that)
     let mut c = sample();
     c.bearings.clear();
-    assert_eq!(c.encode(&mut buf), Err(ConfigError::OutOfRange("bearings")));
+    assert!(c.encode(&mut buf).is_ok());
+    c.bearings
+        .push(BearingSpec {
+            shaft: 2,
+            model: sample().bearings[0].model,
+        })
+        .unwrap();
+    assert_eq!(
+        c.encode(&mut buf),
+        Err(ConfigError::OutOfRange("bearing_shaft"))
+    );
     let c = sample();
     assert_eq!(c.encode(&mut buf[..20]), Err(ConfigError::BufferTooSmall));
 }
@@ -214,10 +227,10 @@ fn version_1_records_still_decode_as_configured_bands() {
     let r = PointRecord::decode(&v1).unwrap();
     assert_eq!(r.band_source, BandSource::Configured);
     assert_eq!(r.band_hz(), Some([2000.0, 8000.0]));
-    // re-encoded as version 2: 4 bytes longer (the kurtosis field)
-    let v2 = encode(&r);
-    assert_eq!(&v2[..4], &[b'E', b'P', 2, 92]);
-    assert_eq!(PointRecord::decode(&v2).unwrap(), r);
+    // re-encoded as version 3 (98 bytes: one shaft, one geometry bearing)
+    let v3 = encode(&r);
+    assert_eq!(&v3[..5], &[b'E', b'P', 3, 98, 0]);
+    assert_eq!(PointRecord::decode(&v3).unwrap(), r);
     // a v1 record with a non-zero reserved byte 61 is refused
     let mut b = v1.clone();
     b[61] = 1;

@@ -45,12 +45,14 @@ fn committed_qemu_config_builds_the_node_pipeline() {
 }
 
 #[test]
-fn bearing_shaft_ratios_become_shafts() {
+fn record_shafts_keep_their_indices() {
     let mut rec = PointRecord::default();
-    for ratio in [0.25, 0.25, 3.0] {
+    rec.shafts.push(0.25).unwrap();
+    rec.shafts.push(3.0).unwrap();
+    for shaft in [1, 1, 2] {
         rec.bearings
             .push(BearingSpec {
-                shaft_ratio: ratio,
+                shaft,
                 model: BearingModel::Orders {
                     bpfo: 3.1,
                     bpfi: 4.9,
@@ -88,22 +90,13 @@ fn too_short_a_record_is_refused_by_the_node_pipeline() {
 }
 
 #[test]
-fn more_shaft_ratios_than_dsp_core_holds_are_refused() {
-    // tach shaft + 4 distinct ratios = 5 shafts > dsp_core::config::MAX_SHAFTS (4)
+fn a_bearing_on_a_shaft_the_record_lacks_is_refused() {
     let mut rec = PointRecord::default();
-    rec.bearings.clear();
-    for ratio in [0.5, 2.0, 3.0, 4.0] {
-        rec.bearings
-            .push(BearingSpec {
-                shaft_ratio: ratio,
-                model: BearingModel::Orders {
-                    bpfo: 3.1,
-                    bpfi: 4.9,
-                    ftf: 0.39,
-                    bsf: 2.0,
-                },
-            })
-            .unwrap();
-    }
-    assert_eq!(point_config(&rec), Err(PointError::TooManyShafts));
+    rec.bearings[0].shaft = 1;
+    assert_eq!(
+        rec.validate(),
+        Err(firmware::config::ConfigError::OutOfRange("bearing_shaft"))
+    );
+    // through point_config too (it validates the point it builds)
+    assert!(matches!(point_config(&rec), Err(PointError::Refused(_))));
 }

@@ -75,13 +75,18 @@ fn page_image(seq: u32, payload: &[u8]) -> Vec<u8> {
 }
 
 /// A stored configuration (counter + record) whose record has a valid
-/// magic, version (1 or 2), length and CRC around arbitrary field bytes.
+/// magic, version (1, 2 or 3), length and CRC around arbitrary field bytes.
 fn sealed_config(inp: &mut Input) -> Vec<u8> {
     let counter = inp.u32();
-    let version = 1 + (inp.u8() & 1);
-    let n = usize::from(inp.u8()) % (MAX_RECORD_LEN - 7);
+    let version = 1 + inp.u8() % 3;
+    let n = usize::from(inp.u8()) % (MAX_RECORD_LEN - 8);
     let fields = inp.take(n).to_vec();
-    let mut rec = vec![b'E', b'P', version, (4 + fields.len() + 4) as u8];
+    let mut rec = vec![b'E', b'P', version];
+    if version == 3 {
+        rec.extend_from_slice(&((5 + fields.len() + 4) as u16).to_le_bytes());
+    } else {
+        rec.push((4 + fields.len() + 4).min(255) as u8);
+    }
     rec.extend_from_slice(&fields);
     let crc = crc32(&rec);
     rec.extend_from_slice(&crc.to_le_bytes());

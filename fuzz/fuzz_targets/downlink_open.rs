@@ -101,11 +101,17 @@ fuzz_target!(|data: &[u8]| {
         }
         _ => {
             if rest.len() >= 9 {
-                // version 1 or 2 by the low bit; magic, length and CRC made right
-                let version = 1 + (rest[8] & 1);
-                let fields = &rest[9..rest.len().min(9 + MAX_RECORD_LEN - 8)];
-                let len = 4 + fields.len() + 4;
-                let mut payload = vec![0x01, b'E', b'P', version, len as u8];
+                // version 1, 2 or 3; magic, length (u8, from v3 u16) and
+                // CRC made right
+                let version = 1 + rest[8] % 3;
+                let fields = &rest[9..rest.len().min(9 + MAX_RECORD_LEN - 9)];
+                let mut payload = vec![0x01, b'E', b'P', version];
+                if version == 3 {
+                    let len = 5 + fields.len() + 4;
+                    payload.extend_from_slice(&(len as u16).to_le_bytes());
+                } else {
+                    payload.push((4 + fields.len() + 4).min(255) as u8);
+                }
                 payload.extend_from_slice(fields);
                 let crc = crc32(&payload[1..]);
                 payload.extend_from_slice(&crc.to_le_bytes());

@@ -198,6 +198,13 @@ pub fn analyze_auto(
     args: &AnalyzeArgs,
 ) -> Result<(Analysis, Option<dsp_core::survey::SurveyResult>), CliError> {
     let point = crate::point::load(&args.point)?;
+    // One configuration: what is analysed here can be sent to the node.
+    wire::point::check_sendable(&point).map_err(|e| {
+        CliError::input(
+            args.point.display(),
+            format!("{e}; the node could not be sent this point, so it is not analysed"),
+        )
+    })?;
     let rec = load_record(
         &args.recording,
         args.channel,

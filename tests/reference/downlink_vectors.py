@@ -58,7 +58,7 @@ def build():
                 mi.TEST_KEY,
                 1,
                 7,
-                b"\x01" + mi.config_record(32, version=2),
+                b"\x01" + mi.config_record(32, version=3),
                 ["config", "--point", "{point32}", "--settle-ms", "50"],
             ),
             # the same without a band: the node surveys it
@@ -67,7 +67,7 @@ def build():
                 mi.TEST_KEY,
                 1,
                 8,
-                b"\x01" + mi.config_record(32, version=2, band_source=2),
+                b"\x01" + mi.config_record(32, version=3, band_source=2),
                 ["config", "--point", "{point32_noband}", "--settle-ms", "50"],
             ),
         ],

@@ -1,30 +1,45 @@
 //! The measuring-point configuration as a compact, versioned binary record.
 //!
-//! Layout, version 2, all fields little-endian (offsets in bytes):
+//! Layout, version 3, all fields little-endian (offsets in bytes; the
+//! table with sizes is in docs/frame-format.md, "Configuration record"):
 //!
 //! ```text
-//!  0 magic "EP"          2 version u8 = 2      3 total length u8 (incl. CRC)
-//!  4 sample_rate_hz u32  8 band_lo_hz f32     12 band_hi_hz f32
-//! 16 poles u8           17 pulses_per_rev u8  18 record_revs u16
-//! 20 speed_min_rpm f32  24 speed_max_rpm f32  28 tach_tick_hz u32
-//! 32 settle_ms u16      34 interval_s u32     38 flat_counts u16
-//! 40 clip_level i16     42 clip_permille u16  44 saturated_permille u16
-//! 46 low_battery_mv u16 48 alert_db f32       52 danger_db f32
-//! 56 counts_to_g f32 (sensor and ADC sensitivity, g per count)
-//! 60 bearing count u8   61 band source u8: 0 configured, 1 chosen by the
-//!                          node's band survey, 2 none (band fields 0: the
-//!                          node surveys, meanwhile dsp-core's default band)
-//! 62 survey kurtosis f32 (source 1: spectral kurtosis of the band; else 0)
-//! 66 bearings, 22 bytes each:
-//!    +0 kind u8 (0 = defect orders given, 1 = geometry)  +1 rolling elements u8
-//!    +2 shaft_ratio f32 (bearing shaft speed / tach shaft speed)
-//!    +6 four f32: kind 0: BPFO, BPFI, FTF, BSF in orders of the bearing shaft
-//!                 kind 1: element diameter mm, pitch diameter mm, contact angle deg, 0
+//!  0 magic "EP"          2 version u8 = 3      3 total length u16 (incl. CRC)
+//!  5 sample_rate_hz u32  9 band_lo_hz f32     13 band_hi_hz f32
+//! 17 poles u8           18 pulses_per_rev u8  19 record_revs u16
+//! 21 speed_min_rpm f32  25 speed_max_rpm f32  29 tach_tick_hz u32
+//! 33 settle_ms u16      35 interval_s u32     39 flat_counts u16
+//! 41 clip_level i16     43 clip_permille u16  45 saturated_permille u16
+//! 47 low_battery_mv u16 49 alert_db f32       53 danger_db f32
+//! 57 counts_to_g f32    61 band source u8     62 survey kurtosis f32
+//! 66 samples_per_rev u16                      68 max_speed_change_pct f32
+//! 72 options u8: bit 0 rectifier square (else abs), bit 1 window flat-top
+//!    (else Hann), bit 2 ISO group 1 "large" (else group 2), bit 3 support
+//!    flexible (else rigid), bit 4 a search block follows (else dsp-core's
+//!    default search), bits 5-7 zero
+//! 73 shaft count u8 (1..=4)  74 bearing count u8 (0..=8)  75 mesh count u8 (0..=4)
+//! 76 shaft ratios, f32 each (shaft 0 is the tach shaft)
+//!    search block (option bit 4), 28 bytes: harmonics u8, min_harmonics u8,
+//!    anchor_harmonics u8, mask_shaft_harmonics u8 (0/1), then f32:
+//!    slip_tolerance, min_window_bins, prominence_db, floor_band_orders,
+//!    refine_bins, sideband_db
+//!    bearings: +0 u8 bits 1..0 kind (0 orders, 1 geometry), bits 5..4 shaft
+//!    index, other bits zero; kind 0: BPFO, BPFI, FTF, BSF f32 in orders of
+//!    the bearing's shaft (17 bytes); kind 1: rolling elements u8, element
+//!    diameter, pitch diameter, contact angle deg f32 (14 bytes)
+//!    meshes, 3 bytes each: u8 bits 1..0 shaft, bits 7..4 mate shaft (15 =
+//!    none), teeth u16
 //!  end: CRC-32 (ISO-HDLC) of all preceding bytes
 //! ```
 //!
-//! Version 1 records (no kurtosis field, byte 61 reserved and zero, bearings
-//! from offset 62) are still read, as configured bands.
+//! Version 2 (66-byte header with a one-byte length, at most 4 bearings of
+//! 22 bytes with their shaft ratio) and version 1 (no kurtosis field, byte
+//! 61 reserved and zero, bearings from offset 62) are still read: their
+//! distinct bearing-shaft ratios become the shafts (tach shaft first), and
+//! what they cannot say takes the value the node used before version 3
+//! (64 samples per revolution, 60 % speed change, abs rectifier, Hann,
+//! ISO group 2 rigid, dsp-core's default search, no meshes). Only version 3
+//! is written.
 //!
 //! A record is decoded and validated in one step ([`PointRecord::decode`]);
 //! once it exists, its accessors cannot fail. What the node stores is a
@@ -32,25 +47,58 @@
 //! brought it, in one write (`firmware::store`).
 
 use crate::crc::crc32;
+use dsp_core::config::{DefectSearchConfig, MachineGroup, Rectifier, Support, Window};
 use heapless::Vec;
 
 /// Format version written by this firmware.
-pub const VERSION: u8 = 2;
-/// The previous version, still read.
+pub const VERSION: u8 = 3;
+/// Version 2, still read.
+pub const VERSION_2: u8 = 2;
+/// Version 1, still read.
 pub const VERSION_1: u8 = 1;
 /// Record magic.
 pub const MAGIC: [u8; 2] = *b"EP";
-/// Most bearings one measuring point describes.
-/// Record versions 1 and 2 carry 4 bearings (the v1 frame's capacity); a
-/// v2 report frame carries 8 ([`crate::frame::layout::MAX_BEARINGS`]).
-pub const MAX_BEARINGS: usize = crate::frame::layout::V1_MAX_BEARINGS;
-const HEADER_LEN: usize = 66;
+/// Most bearings one measuring point describes: as many as a v2 report
+/// frame carries ([`crate::frame::layout::MAX_BEARINGS`]) and a `dsp-core`
+/// point watches.
+pub const MAX_BEARINGS: usize = crate::frame::layout::MAX_BEARINGS;
+/// Most bearings a version 1 or 2 record carries.
+pub const V2_MAX_BEARINGS: usize = crate::frame::layout::V1_MAX_BEARINGS;
+/// Most shafts (the tach shaft included), as `dsp-core`.
+pub const MAX_SHAFTS: usize = dsp_core::config::MAX_SHAFTS;
+/// Most gear meshes, as `dsp-core`.
+pub const MAX_MESHES: usize = dsp_core::config::MAX_MESHES;
+/// Fixed part of a version 3 record (before the shaft ratios).
+pub const HEADER_LEN: usize = 76;
+const HEADER_LEN_V2: usize = 66;
 const HEADER_LEN_V1: usize = 62;
-const BEARING_LEN: usize = 22;
-/// Largest encoded record in bytes.
-pub const MAX_RECORD_LEN: usize = HEADER_LEN + MAX_BEARINGS * BEARING_LEN + 4;
+const BEARING_LEN_V2: usize = 22;
+/// Bytes of the optional search block.
+pub const SEARCH_LEN: usize = 28;
+/// Bytes of a bearing given by its defect orders.
+pub const ORDERS_LEN: usize = 17;
+/// Bytes of a bearing given by its geometry.
+pub const GEOMETRY_LEN: usize = 14;
+/// Bytes of a gear mesh.
+pub const MESH_LEN: usize = 3;
+const CRC_LEN: usize = 4;
+const NO_MATE: u8 = 0x0F;
+/// Largest encoded record in bytes (4 shafts, the search block, 8 bearings
+/// by orders, 4 meshes): 272.
+pub const MAX_RECORD_LEN: usize = HEADER_LEN
+    + 4 * MAX_SHAFTS
+    + SEARCH_LEN
+    + MAX_BEARINGS * ORDERS_LEN
+    + MAX_MESHES * MESH_LEN
+    + CRC_LEN;
 /// Largest stored configuration ([`StoredConfig`]: counter + record).
 pub const MAX_STORED_LEN: usize = 4 + MAX_RECORD_LEN;
+
+const OPT_SQUARE: u8 = 1;
+const OPT_FLAT_TOP: u8 = 1 << 1;
+const OPT_GROUP_LARGE: u8 = 1 << 2;
+const OPT_FLEXIBLE: u8 = 1 << 3;
+const OPT_SEARCH: u8 = 1 << 4;
 
 /// Signal-health thresholds the record carries (bytes 38..46), used by the
 /// node's streamed checks (`firmware::quality::SignalHealth`).
@@ -128,10 +176,23 @@ pub enum BearingModel {
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct BearingSpec {
-    /// Bearing shaft speed divided by tach shaft speed (gear ratio).
-    pub shaft_ratio: f32,
+    /// Index into [`PointRecord::shafts`] of the shaft it sits on.
+    pub shaft: u8,
     /// Defect frequencies or geometry.
     pub model: BearingModel,
+}
+
+/// One watched gear mesh (teeth of the gear on `shaft`; the mesh order is
+/// teeth x that shaft's order).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct MeshSpec {
+    /// Index into [`PointRecord::shafts`] of the shaft carrying the gear.
+    pub shaft: u8,
+    /// Teeth of that gear (>= 1).
+    pub teeth: u16,
+    /// Shaft of the meshing gear (its sidebands are measured too).
+    pub mate: Option<u8>,
 }
 
 /// Measuring-point configuration (decoded and validated).
@@ -151,7 +212,7 @@ pub struct PointRecord {
     pub poles: u8,
     /// Tach pulses per revolution of the tach shaft.
     pub pulses_per_rev: u8,
-    /// Revolutions of the tach shaft to record.
+    /// Revolutions of the tach shaft to record (first pass).
     pub record_revs: u16,
     /// Lowest shaft speed measured, rpm.
     pub speed_min_rpm: f32,
@@ -176,8 +237,30 @@ pub struct PointRecord {
     pub danger_db: f32,
     /// Acceleration per ADC count, g (sensor sensitivity and ADC gain).
     pub counts_to_g: f32,
-    /// Monitored bearings (1 to [`MAX_BEARINGS`]).
+    /// Angle-domain samples per tach revolution of the first pass (a power
+    /// of two, 16..=1024); later passes follow from the shafts
+    /// (`dsp_core::diagnosis::coverage::plan`).
+    pub samples_per_rev: u16,
+    /// Largest speed change over a record, percent of the mean.
+    pub max_speed_change_pct: f32,
+    /// Envelope rectifier.
+    pub rectifier: Rectifier,
+    /// Spectral window.
+    pub window: Window,
+    /// ISO 20816-3 machine group.
+    pub machine_group: MachineGroup,
+    /// ISO 20816-3 support class.
+    pub support: Support,
+    /// Shaft speeds over the tach shaft's (1 to [`MAX_SHAFTS`]; index 0 is
+    /// the tach shaft).
+    pub shafts: Vec<f32, MAX_SHAFTS>,
+    /// Monitored bearings (0 to [`MAX_BEARINGS`]; none: overall levels only,
+    /// as `analyze` of a point without bearings).
     pub bearings: Vec<BearingSpec, MAX_BEARINGS>,
+    /// Watched gear meshes (0 to [`MAX_MESHES`]).
+    pub meshes: Vec<MeshSpec, MAX_MESHES>,
+    /// Defect search settings.
+    pub search: DefectSearchConfig,
 }
 
 impl Default for PointRecord {
@@ -187,7 +270,7 @@ impl Default for PointRecord {
         let mut bearings = Vec::new();
         // capacity is MAX_BEARINGS >= 1, so this push cannot fail
         let _ = bearings.push(BearingSpec {
-            shaft_ratio: 1.0,
+            shaft: 0,
             model: BearingModel::Geometry {
                 elements: 9,
                 element_mm: 7.94,
@@ -195,6 +278,8 @@ impl Default for PointRecord {
                 contact_deg: 0.0,
             },
         });
+        let mut shafts = Vec::new();
+        let _ = shafts.push(1.0);
         Self {
             sample_rate_hz: 25_600,
             band_lo_hz: 2_000.0,
@@ -216,7 +301,16 @@ impl Default for PointRecord {
             danger_db: 12.0,
             // 100 mV/g sensor, 3.6 V over 4096 counts: 0.879 mV per count
             counts_to_g: 0.008_789,
+            samples_per_rev: 64,
+            max_speed_change_pct: 60.0,
+            rectifier: Rectifier::Abs,
+            window: Window::Hann,
+            machine_group: MachineGroup::Medium,
+            support: Support::Rigid,
+            shafts,
             bearings,
+            meshes: Vec::new(),
+            search: DefectSearchConfig::default(),
         }
     }
 }
@@ -231,11 +325,12 @@ pub enum ConfigError {
     BadMagic,
     /// Written by a format version this firmware does not read.
     UnsupportedVersion(u8),
-    /// Declared length does not match the bearing count.
+    /// Declared length does not match the content.
     BadLength,
     /// CRC mismatch: corrupted in storage or transit.
     BadCrc,
-    /// A field is out of its allowed range (the field's name).
+    /// A field is out of its allowed range (the field's name, as in
+    /// [`PointRecord`]; `search.*` for the search settings).
     OutOfRange(&'static str),
     /// The output buffer is too small to encode the record.
     BufferTooSmall,
@@ -267,7 +362,7 @@ impl<'a> Reader<'a> {
         let (head, rest) = self
             .data
             .split_at_checked(N)
-            .ok_or(ConfigError::Truncated)?;
+            .ok_or(ConfigError::BadLength)?;
         self.data = rest;
         let mut out = [0u8; N];
         out.copy_from_slice(head);
@@ -310,6 +405,12 @@ impl Writer<'_> {
         self.pos = end;
         Ok(())
     }
+    fn f32s(&mut self, v: &[f32]) -> Result<(), ConfigError> {
+        for x in v {
+            self.put(&x.to_le_bytes())?;
+        }
+        Ok(())
+    }
 }
 
 fn check(ok: bool, field: &'static str) -> Result<(), ConfigError> {
@@ -322,6 +423,65 @@ fn check(ok: bool, field: &'static str) -> Result<(), ConfigError> {
 
 fn in_range(x: f32, lo: f32, hi: f32) -> bool {
     x.is_finite() && x >= lo && x <= hi
+}
+
+fn positive(x: f32, hi: f32) -> bool {
+    x.is_finite() && x > 0.0 && x <= hi
+}
+
+/// The options byte of a version 3 record, or the field no code names.
+fn options(r: &PointRecord) -> Result<u8, ConfigError> {
+    let mut o = 0u8;
+    if r.rectifier == Rectifier::Square {
+        o |= OPT_SQUARE;
+    }
+    match r.window {
+        Window::Hann => {}
+        Window::FlatTop => o |= OPT_FLAT_TOP,
+        _ => return Err(ConfigError::OutOfRange("window")),
+    }
+    if r.machine_group == MachineGroup::Large {
+        o |= OPT_GROUP_LARGE;
+    }
+    if r.support == Support::Flexible {
+        o |= OPT_FLEXIBLE;
+    }
+    if r.search != DefectSearchConfig::default() {
+        o |= OPT_SEARCH;
+    }
+    Ok(o)
+}
+
+/// Checks the search settings field by field (the ranges of
+/// `DefectSearchConfig::validate`, each with its own name).
+fn validate_search(s: &DefectSearchConfig) -> Result<(), ConfigError> {
+    check((1..=10).contains(&s.harmonics), "search.harmonics")?;
+    check(
+        (1..=s.harmonics).contains(&s.min_harmonics),
+        "search.min_harmonics",
+    )?;
+    check(
+        (1..=s.harmonics).contains(&s.anchor_harmonics),
+        "search.anchor_harmonics",
+    )?;
+    check(positive(s.slip_tolerance, 0.2), "search.slip_tolerance")?;
+    check(
+        in_range(s.min_window_bins, 0.5, 1000.0),
+        "search.min_window_bins",
+    )?;
+    check(
+        positive(s.prominence_threshold_db, f32::MAX),
+        "search.prominence_db",
+    )?;
+    check(
+        positive(s.floor_band_orders, 1000.0),
+        "search.floor_band_orders",
+    )?;
+    check(in_range(s.refine_bins, 0.5, 1000.0), "search.refine_bins")?;
+    check(
+        positive(s.sideband_threshold_db, f32::MAX),
+        "search.sideband_db",
+    )
 }
 
 impl PointRecord {
@@ -351,12 +511,9 @@ impl PointRecord {
             check(in_range(kurtosis, -3.0, 1.0e6), "band_kurtosis")?;
         }
         check(matches!(self.poles, 2 | 4 | 6 | 8), "poles")?;
-        check((1..=64).contains(&self.pulses_per_rev), "pulses_per_rev")?;
-        check((4..=1_000).contains(&self.record_revs), "record_revs")?;
-        check(
-            in_range(self.speed_min_rpm, 10.0, 60_000.0),
-            "speed_min_rpm",
-        )?;
+        check(self.pulses_per_rev >= 1, "pulses_per_rev")?;
+        check(self.record_revs >= 1, "record_revs")?;
+        check(in_range(self.speed_min_rpm, 1.0, 60_000.0), "speed_min_rpm")?;
         check(
             in_range(self.speed_max_rpm, self.speed_min_rpm, 60_000.0),
             "speed_max_rpm",
@@ -383,10 +540,24 @@ impl PointRecord {
         )?;
         check(in_range(self.alert_db, 0.0, 60.0), "alert_db")?;
         check(in_range(self.danger_db, self.alert_db, 60.0), "danger_db")?;
-        check(in_range(self.counts_to_g, 1e-7, 1.0), "counts_to_g")?;
-        check(!self.bearings.is_empty(), "bearings")?;
+        check(in_range(self.counts_to_g, 1e-9, 1e3), "counts_to_g")?;
+        check(
+            self.samples_per_rev.is_power_of_two() && (16..=1024).contains(&self.samples_per_rev),
+            "samples_per_rev",
+        )?;
+        check(
+            positive(self.max_speed_change_pct, 1e4),
+            "max_speed_change_pct",
+        )?;
+        options(self)?;
+        validate_search(&self.search)?;
+        check(
+            !self.shafts.is_empty() && self.shafts.iter().all(|&r| in_range(r, 1e-4, 1e4)),
+            "shaft_ratio",
+        )?;
+        let shafts = self.shafts.len();
         for b in &self.bearings {
-            check(in_range(b.shaft_ratio, 0.01, 100.0), "shaft_ratio")?;
+            check(usize::from(b.shaft) < shafts, "bearing_shaft")?;
             match b.model {
                 BearingModel::Orders {
                     bpfo,
@@ -395,7 +566,7 @@ impl PointRecord {
                     bsf,
                 } => {
                     for o in [bpfo, bpfi, ftf, bsf] {
-                        check(in_range(o, 0.05, 100.0), "defect_order")?;
+                        check(in_range(o, 0.01, 1000.0), "defect_order")?;
                     }
                 }
                 BearingModel::Geometry {
@@ -404,40 +575,69 @@ impl PointRecord {
                     pitch_mm,
                     contact_deg,
                 } => {
-                    check((3..=64).contains(&elements), "elements")?;
-                    check(in_range(pitch_mm, 1.0, 5_000.0), "pitch_mm")?;
+                    check(elements >= 1, "elements")?;
+                    check(positive(pitch_mm, 1e5), "pitch_mm")?;
                     check(
-                        in_range(element_mm, 0.1, pitch_mm) && element_mm < pitch_mm,
+                        positive(element_mm, pitch_mm) && element_mm < pitch_mm,
                         "element_mm",
                     )?;
-                    check(in_range(contact_deg, 0.0, 45.0), "contact_deg")?;
+                    check(
+                        in_range(contact_deg, 0.0, 90.0) && contact_deg < 90.0,
+                        "contact_deg",
+                    )?;
                 }
             }
+        }
+        for m in &self.meshes {
+            check(usize::from(m.shaft) < shafts, "mesh_shaft")?;
+            check(m.teeth >= 1, "mesh_teeth")?;
+            check(
+                m.mate
+                    .is_none_or(|x| x != m.shaft && usize::from(x) < shafts),
+                "mesh_mate",
+            )?;
         }
         Ok(())
     }
 
-    /// Encoded length of this record in bytes.
+    /// Encoded length of this record in bytes (version 3).
     pub fn encoded_len(&self) -> usize {
-        HEADER_LEN + self.bearings.len() * BEARING_LEN + 4
+        let search = if self.search == DefectSearchConfig::default() {
+            0
+        } else {
+            SEARCH_LEN
+        };
+        let bearings: usize = self
+            .bearings
+            .iter()
+            .map(|b| match b.model {
+                BearingModel::Orders { .. } => ORDERS_LEN,
+                BearingModel::Geometry { .. } => GEOMETRY_LEN,
+            })
+            .sum();
+        HEADER_LEN
+            + 4 * self.shafts.len()
+            + search
+            + bearings
+            + MESH_LEN * self.meshes.len()
+            + CRC_LEN
     }
 
-    /// Validates and writes the record; returns its length.
+    /// Validates and writes the record (version 3); returns its length.
     pub fn encode(&self, buf: &mut [u8]) -> Result<usize, ConfigError> {
         self.validate()?;
-        let len = self.encoded_len();
-        let len_u8 = u8::try_from(len).map_err(|_| ConfigError::BadLength)?;
-        let count = u8::try_from(self.bearings.len()).map_err(|_| ConfigError::BadLength)?;
+        let len = u16::try_from(self.encoded_len()).map_err(|_| ConfigError::BadLength)?;
+        let count = |n: usize| u8::try_from(n).map_err(|_| ConfigError::BadLength);
+        let opts = options(self)?;
         let mut w = Writer { buf, pos: 0 };
         w.put(&MAGIC)?;
-        w.put(&[VERSION, len_u8])?;
+        w.put(&[VERSION])?;
+        w.put(&len.to_le_bytes())?;
         w.put(&self.sample_rate_hz.to_le_bytes())?;
-        w.put(&self.band_lo_hz.to_le_bytes())?;
-        w.put(&self.band_hi_hz.to_le_bytes())?;
+        w.f32s(&[self.band_lo_hz, self.band_hi_hz])?;
         w.put(&[self.poles, self.pulses_per_rev])?;
         w.put(&self.record_revs.to_le_bytes())?;
-        w.put(&self.speed_min_rpm.to_le_bytes())?;
-        w.put(&self.speed_max_rpm.to_le_bytes())?;
+        w.f32s(&[self.speed_min_rpm, self.speed_max_rpm])?;
         w.put(&self.tach_tick_hz.to_le_bytes())?;
         w.put(&self.settle_ms.to_le_bytes())?;
         w.put(&self.interval_s.to_le_bytes())?;
@@ -446,62 +646,98 @@ impl PointRecord {
         w.put(&self.health.clip_permille.to_le_bytes())?;
         w.put(&self.health.saturated_permille.to_le_bytes())?;
         w.put(&self.low_battery_mv.to_le_bytes())?;
-        w.put(&self.alert_db.to_le_bytes())?;
-        w.put(&self.danger_db.to_le_bytes())?;
-        w.put(&self.counts_to_g.to_le_bytes())?;
+        w.f32s(&[self.alert_db, self.danger_db, self.counts_to_g])?;
         let (source, kurtosis) = match self.band_source {
             BandSource::Configured => (0u8, 0.0f32),
             BandSource::Survey { kurtosis } => (1, kurtosis),
             BandSource::Unset => (2, 0.0),
         };
-        w.put(&[count, source])?;
+        w.put(&[source])?;
         w.put(&kurtosis.to_le_bytes())?;
+        w.put(&self.samples_per_rev.to_le_bytes())?;
+        w.put(&self.max_speed_change_pct.to_le_bytes())?;
+        w.put(&[
+            opts,
+            count(self.shafts.len())?,
+            count(self.bearings.len())?,
+            count(self.meshes.len())?,
+        ])?;
+        w.f32s(&self.shafts)?;
+        if opts & OPT_SEARCH != 0 {
+            let s = &self.search;
+            w.put(&[
+                s.harmonics,
+                s.min_harmonics,
+                s.anchor_harmonics,
+                u8::from(s.mask_shaft_harmonics),
+            ])?;
+            w.f32s(&[
+                s.slip_tolerance,
+                s.min_window_bins,
+                s.prominence_threshold_db,
+                s.floor_band_orders,
+                s.refine_bins,
+                s.sideband_threshold_db,
+            ])?;
+        }
         for b in &self.bearings {
-            let (kind, elements, v) = match b.model {
+            let tag = b.shaft << 4;
+            match b.model {
                 BearingModel::Orders {
                     bpfo,
                     bpfi,
                     ftf,
                     bsf,
-                } => (0u8, 0u8, [bpfo, bpfi, ftf, bsf]),
+                } => {
+                    w.put(&[tag])?;
+                    w.f32s(&[bpfo, bpfi, ftf, bsf])?;
+                }
                 BearingModel::Geometry {
                     elements,
                     element_mm,
                     pitch_mm,
                     contact_deg,
-                } => (1, elements, [element_mm, pitch_mm, contact_deg, 0.0]),
-            };
-            w.put(&[kind, elements])?;
-            w.put(&b.shaft_ratio.to_le_bytes())?;
-            for x in v {
-                w.put(&x.to_le_bytes())?;
+                } => {
+                    w.put(&[tag | 1, elements])?;
+                    w.f32s(&[element_mm, pitch_mm, contact_deg])?;
+                }
             }
+        }
+        for m in &self.meshes {
+            w.put(&[m.shaft | (m.mate.unwrap_or(NO_MATE) << 4)])?;
+            w.put(&m.teeth.to_le_bytes())?;
         }
         let crc = crc32(w.buf.get(..w.pos).ok_or(ConfigError::BufferTooSmall)?);
         w.put(&crc.to_le_bytes())?;
         Ok(w.pos)
     }
 
-    /// Parses, checks the CRC, version (1 or 2) and every range. Trailing
-    /// bytes after the declared length are ignored.
+    /// Parses, checks the CRC, version (1, 2 or 3), the length against the
+    /// content and every range. Trailing bytes after the declared length
+    /// are ignored.
     pub fn decode(data: &[u8]) -> Result<Self, ConfigError> {
-        let head = data.get(..4).ok_or(ConfigError::Truncated)?;
+        let head = data.get(..5).ok_or(ConfigError::Truncated)?;
         if head.get(..2) != Some(&MAGIC[..]) {
             return Err(ConfigError::BadMagic);
         }
         let version = head.get(2).copied().unwrap_or(0);
-        let header_len = match version {
-            VERSION => HEADER_LEN,
-            VERSION_1 => HEADER_LEN_V1,
+        let b3 = usize::from(head.get(3).copied().unwrap_or(0));
+        let (len, min_len, body_at) = match version {
+            VERSION => (
+                b3 | usize::from(head.get(4).copied().unwrap_or(0)) << 8,
+                HEADER_LEN,
+                5,
+            ),
+            VERSION_2 => (b3, HEADER_LEN_V2, 4),
+            VERSION_1 => (b3, HEADER_LEN_V1, 4),
             v => return Err(ConfigError::UnsupportedVersion(v)),
         };
-        let len = usize::from(head.get(3).copied().unwrap_or(0));
-        if len < header_len + 4 {
+        if len < min_len + CRC_LEN {
             return Err(ConfigError::BadLength);
         }
         let record = data.get(..len).ok_or(ConfigError::Truncated)?;
         let (body, crc_bytes) = record
-            .split_at_checked(len - 4)
+            .split_at_checked(len - CRC_LEN)
             .ok_or(ConfigError::Truncated)?;
         let mut crc = [0u8; 4];
         crc.copy_from_slice(crc_bytes);
@@ -509,86 +745,51 @@ impl PointRecord {
             return Err(ConfigError::BadCrc);
         }
         let mut r = Reader {
-            data: body.get(4..).ok_or(ConfigError::Truncated)?,
+            data: body.get(body_at..).ok_or(ConfigError::Truncated)?,
         };
-        let sample_rate_hz = r.u32()?;
-        let band_lo_hz = r.f32()?;
-        let band_hi_hz = r.f32()?;
-        let poles = r.u8()?;
-        let pulses_per_rev = r.u8()?;
-        let record_revs = r.u16()?;
-        let speed_min_rpm = r.f32()?;
-        let speed_max_rpm = r.f32()?;
-        let tach_tick_hz = r.u32()?;
-        let settle_ms = r.u16()?;
-        let interval_s = r.u32()?;
-        let health = HealthLimits {
-            flat_counts: r.u16()?,
-            clip_level: r.i16()?,
-            clip_permille: r.u16()?,
-            saturated_permille: r.u16()?,
+        let mut rec = Self {
+            sample_rate_hz: r.u32()?,
+            band_lo_hz: r.f32()?,
+            band_hi_hz: r.f32()?,
+            poles: r.u8()?,
+            pulses_per_rev: r.u8()?,
+            record_revs: r.u16()?,
+            speed_min_rpm: r.f32()?,
+            speed_max_rpm: r.f32()?,
+            tach_tick_hz: r.u32()?,
+            settle_ms: r.u16()?,
+            interval_s: r.u32()?,
+            health: HealthLimits {
+                flat_counts: r.u16()?,
+                clip_level: r.i16()?,
+                clip_permille: r.u16()?,
+                saturated_permille: r.u16()?,
+            },
+            low_battery_mv: r.u16()?,
+            alert_db: r.f32()?,
+            danger_db: r.f32()?,
+            counts_to_g: r.f32()?,
+            ..Self::default()
         };
-        let low_battery_mv = r.u16()?;
-        let alert_db = r.f32()?;
-        let danger_db = r.f32()?;
-        let counts_to_g = r.f32()?;
-        let count = usize::from(r.u8()?);
+        rec.bearings.clear();
+        rec.shafts.clear();
+        let old_count = if version == VERSION { 0 } else { r.u8()? };
         let source = r.u8()?;
-        let kurtosis = if version == VERSION { r.f32()? } else { 0.0 };
-        if count > MAX_BEARINGS || len != header_len + count * BEARING_LEN + 4 {
-            return Err(ConfigError::BadLength);
-        }
-        let band_source = match (version, source) {
-            (VERSION_1, 0) | (VERSION, 0) if kurtosis == 0.0 => BandSource::Configured,
-            (VERSION, 1) => BandSource::Survey { kurtosis },
-            (VERSION, 2) if kurtosis == 0.0 => BandSource::Unset,
+        let kurtosis = if version == VERSION_1 { 0.0 } else { r.f32()? };
+        rec.band_source = match (version, source) {
+            (_, 0) if kurtosis == 0.0 => BandSource::Configured,
+            (VERSION_2 | VERSION, 1) => BandSource::Survey { kurtosis },
+            (VERSION_2 | VERSION, 2) if kurtosis == 0.0 => BandSource::Unset,
             _ => return Err(ConfigError::OutOfRange("band_source")),
         };
-        let mut bearings = Vec::new();
-        for _ in 0..count {
-            let kind = r.u8()?;
-            let elements = r.u8()?;
-            let shaft_ratio = r.f32()?;
-            let v = [r.f32()?, r.f32()?, r.f32()?, r.f32()?];
-            let model = match kind {
-                0 => BearingModel::Orders {
-                    bpfo: v[0],
-                    bpfi: v[1],
-                    ftf: v[2],
-                    bsf: v[3],
-                },
-                1 => BearingModel::Geometry {
-                    elements,
-                    element_mm: v[0],
-                    pitch_mm: v[1],
-                    contact_deg: v[2],
-                },
-                _ => return Err(ConfigError::OutOfRange("bearing_kind")),
-            };
-            bearings
-                .push(BearingSpec { shaft_ratio, model })
-                .map_err(|_| ConfigError::BadLength)?;
+        if version == VERSION {
+            decode_v3_tail(&mut r, &mut rec)?;
+        } else {
+            decode_v2_bearings(&mut r, &mut rec, usize::from(old_count))?;
         }
-        let rec = Self {
-            sample_rate_hz,
-            band_lo_hz,
-            band_hi_hz,
-            band_source,
-            poles,
-            pulses_per_rev,
-            record_revs,
-            speed_min_rpm,
-            speed_max_rpm,
-            tach_tick_hz,
-            settle_ms,
-            interval_s,
-            health,
-            low_battery_mv,
-            alert_db,
-            danger_db,
-            counts_to_g,
-            bearings,
-        };
+        if !r.data.is_empty() {
+            return Err(ConfigError::BadLength);
+        }
         rec.validate()?;
         Ok(rec)
     }
@@ -619,6 +820,156 @@ impl PointRecord {
         let blocks = ceil_to_u32(samples / block);
         blocks.clamp(1, max_blocks.max(1))
     }
+}
+
+/// Version 3 after the band source: first-pass spectrum, options, shafts,
+/// search block, bearings, meshes.
+fn decode_v3_tail(r: &mut Reader<'_>, rec: &mut PointRecord) -> Result<(), ConfigError> {
+    rec.samples_per_rev = r.u16()?;
+    rec.max_speed_change_pct = r.f32()?;
+    let opts = r.u8()?;
+    check(opts < 1 << 5, "options")?;
+    rec.rectifier = if opts & OPT_SQUARE != 0 {
+        Rectifier::Square
+    } else {
+        Rectifier::Abs
+    };
+    rec.window = if opts & OPT_FLAT_TOP != 0 {
+        Window::FlatTop
+    } else {
+        Window::Hann
+    };
+    rec.machine_group = if opts & OPT_GROUP_LARGE != 0 {
+        MachineGroup::Large
+    } else {
+        MachineGroup::Medium
+    };
+    rec.support = if opts & OPT_FLEXIBLE != 0 {
+        Support::Flexible
+    } else {
+        Support::Rigid
+    };
+    let shafts = r.u8()?;
+    let bearings = r.u8()?;
+    let meshes = r.u8()?;
+    check((1..=MAX_SHAFTS).contains(&usize::from(shafts)), "shafts")?;
+    check(usize::from(bearings) <= MAX_BEARINGS, "bearings")?;
+    check(usize::from(meshes) <= MAX_MESHES, "meshes")?;
+    for _ in 0..shafts {
+        rec.shafts
+            .push(r.f32()?)
+            .map_err(|_| ConfigError::OutOfRange("shafts"))?;
+    }
+    if opts & OPT_SEARCH != 0 {
+        let s = &mut rec.search;
+        s.harmonics = r.u8()?;
+        s.min_harmonics = r.u8()?;
+        s.anchor_harmonics = r.u8()?;
+        s.mask_shaft_harmonics = match r.u8()? {
+            0 => false,
+            1 => true,
+            _ => return Err(ConfigError::OutOfRange("search.mask_shaft_harmonics")),
+        };
+        s.slip_tolerance = r.f32()?;
+        s.min_window_bins = r.f32()?;
+        s.prominence_threshold_db = r.f32()?;
+        s.floor_band_orders = r.f32()?;
+        s.refine_bins = r.f32()?;
+        s.sideband_threshold_db = r.f32()?;
+        // canonical: a block equal to the default is written as none
+        check(*s != DefectSearchConfig::default(), "options")?;
+    }
+    for _ in 0..bearings {
+        let tag = r.u8()?;
+        check(tag & 0b1100_1110 == 0, "bearing_kind")?;
+        let shaft = tag >> 4;
+        let model = if tag & 1 == 0 {
+            BearingModel::Orders {
+                bpfo: r.f32()?,
+                bpfi: r.f32()?,
+                ftf: r.f32()?,
+                bsf: r.f32()?,
+            }
+        } else {
+            BearingModel::Geometry {
+                elements: r.u8()?,
+                element_mm: r.f32()?,
+                pitch_mm: r.f32()?,
+                contact_deg: r.f32()?,
+            }
+        };
+        rec.bearings
+            .push(BearingSpec { shaft, model })
+            .map_err(|_| ConfigError::OutOfRange("bearings"))?;
+    }
+    for _ in 0..meshes {
+        let b = r.u8()?;
+        check(b & 0b1100 == 0, "mesh_shaft")?;
+        let mate = match b >> 4 {
+            NO_MATE => None,
+            x => Some(x),
+        };
+        rec.meshes
+            .push(MeshSpec {
+                shaft: b & 0b11,
+                teeth: r.u16()?,
+                mate,
+            })
+            .map_err(|_| ConfigError::OutOfRange("meshes"))?;
+    }
+    Ok(())
+}
+
+/// Versions 1 and 2: `count` bearings of 22 bytes with their shaft ratio;
+/// the distinct ratios become the shafts, the tach shaft (1) first.
+fn decode_v2_bearings(
+    r: &mut Reader<'_>,
+    rec: &mut PointRecord,
+    count: usize,
+) -> Result<(), ConfigError> {
+    if count > V2_MAX_BEARINGS || r.data.len() != count * BEARING_LEN_V2 {
+        return Err(ConfigError::BadLength);
+    }
+    rec.shafts
+        .push(1.0)
+        .map_err(|_| ConfigError::OutOfRange("shafts"))?;
+    for _ in 0..count {
+        let kind = r.u8()?;
+        let elements = r.u8()?;
+        let ratio = r.f32()?;
+        let v = [r.f32()?, r.f32()?, r.f32()?, r.f32()?];
+        let model = match kind {
+            0 => BearingModel::Orders {
+                bpfo: v[0],
+                bpfi: v[1],
+                ftf: v[2],
+                bsf: v[3],
+            },
+            1 => BearingModel::Geometry {
+                elements,
+                element_mm: v[0],
+                pitch_mm: v[1],
+                contact_deg: v[2],
+            },
+            _ => return Err(ConfigError::OutOfRange("bearing_kind")),
+        };
+        let shaft = match rec.shafts.iter().position(|&s| s == ratio) {
+            Some(i) => i,
+            None => {
+                rec.shafts
+                    .push(ratio)
+                    .map_err(|_| ConfigError::OutOfRange("shafts"))?;
+                rec.shafts.len() - 1
+            }
+        };
+        rec.bearings
+            .push(BearingSpec {
+                shaft: u8::try_from(shaft).map_err(|_| ConfigError::OutOfRange("shafts"))?,
+                model,
+            })
+            .map_err(|_| ConfigError::OutOfRange("bearings"))?;
+    }
+    Ok(())
 }
 
 /// Rounds up to an integer, saturating (NaN and negatives give 0).

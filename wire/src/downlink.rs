@@ -8,7 +8,7 @@
 //!
 //! | byte 0 | data                                     |
 //! |--------|------------------------------------------|
-//! | 0x01   | a complete configuration record ([`crate::config`]) |
+//! | 0x01   | a complete configuration record ([`crate::config`], version 3 written, 1-3 read) |
 //! | 0x02   | none: measure again right away            |
 //! | 0x03   | baseline bytes for the core (1..=[`MAX_BASELINE_LEN`]) |
 //! | 0x04   | none: run the band survey (commissioning) right away |
@@ -20,8 +20,26 @@ use crate::identity::Identity;
 /// Largest baseline payload accepted.
 pub const MAX_BASELINE_LEN: usize = 128;
 
+/// Longest signed downlink a node accepts: authentication header, command
+/// byte, the largest configuration record (version 3: 272 bytes), tag; 288
+/// bytes. Longer than one EU868 downlink (222 bytes at DR4 and faster,
+/// RP002-1.0.x, from memory): the gateway refuses a configuration downlink
+/// over 222 bytes unless told otherwise (`--accept-oversize`, for another
+/// link); a record is never split over several downlinks.
+pub const MAX_DOWNLINK_LEN: usize = crate::downlink_auth::HEADER_LEN
+    + 1
+    + if crate::config::MAX_RECORD_LEN > MAX_BASELINE_LEN {
+        crate::config::MAX_RECORD_LEN
+    } else {
+        MAX_BASELINE_LEN
+    }
+    + crate::downlink_auth::TAG_LEN;
+
 /// A parsed downlink.
 #[derive(Clone, Debug, PartialEq)]
+// No heap to box the record in (no_std); a parsed command lives for one
+// call and the record is moved into the node's configuration.
+#[allow(clippy::large_enum_variant)]
 pub enum Command<'a> {
     /// Replace the measuring-point configuration.
     SetConfig(PointRecord),

@@ -2,8 +2,8 @@
 //! the adapter from the firmware's `firmware::hal::MeasurementCore` to
 //! `dsp_core::pipeline::Pipeline`.
 //!
-//! The tach shaft is shaft 0 (ratio 1); every other distinct bearing-shaft
-//! ratio gets its own shaft. Tach ticks count from the first ADC sample
+//! The record's shafts, bearings and meshes keep their order and indices
+//! (shaft 0 is the tach shaft); they are named by their place. Tach ticks count from the first ADC sample
 //! (both boards start the capture time base with the sample clock), so
 //! `tick_at_sample0` is 0. The alert/danger levels are not part of the
 //! point: they apply when a report is compared with the baseline.
@@ -11,11 +11,13 @@
 //! [`record_from_point`] goes the other way for the gateway's configuration
 //! downlink: a measuring point and the node settings a point file does not
 //! hold become a record, refused with the key named when the record cannot
-//! carry something or the node would read back another point.
+//! carry something or the node would read back another point. Both
+//! directions live here only: `analyze` ([`check_sendable`]), the gateway's
+//! `downlink config` and the node all go through them.
 
-use crate::config::{BandSource, BearingModel, BearingSpec, PointRecord};
+use crate::config::{BandSource, BearingModel, BearingSpec, MeshSpec, PointRecord};
 use dsp_core::config::{
-    name_from, Bearing, BearingKinematics, ConfigError, Name, PointConfig, Shaft, SpeedInput,
+    name_from, Bearing, BearingKinematics, ConfigError, Mesh, Name, PointConfig, Shaft, SpeedInput,
 };
 
 /// Why a record could not become a measuring point.
@@ -23,7 +25,8 @@ use dsp_core::config::{
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 #[non_exhaustive]
 pub enum PointError {
-    /// More distinct shaft ratios than `dsp_core::config::MAX_SHAFTS`.
+    /// More shafts, bearings or meshes than `dsp-core` holds (cannot happen
+    /// for a validated record: the capacities are the same).
     TooManyShafts,
     /// dsp-core refused the converted point.
     Refused(ConfigError),
@@ -32,7 +35,9 @@ pub enum PointError {
 impl core::fmt::Display for PointError {
     fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
         match self {
-            Self::TooManyShafts => f.write_str("too many distinct shaft ratios"),
+            Self::TooManyShafts => {
+                f.write_str("more shafts, bearings or meshes than dsp-core holds")
+            }
             Self::Refused(e) => write!(f, "measuring point refused: {e}"),
         }
     }
@@ -41,9 +46,14 @@ impl core::fmt::Display for PointError {
 impl core::error::Error for PointError {}
 
 const SHAFT_NAMES: [&str; 4] = ["tach", "shaft1", "shaft2", "shaft3"];
-const BEARING_NAMES: [&str; 4] = ["bearing0", "bearing1", "bearing2", "bearing3"];
+const BEARING_NAMES: [&str; 8] = [
+    "bearing0", "bearing1", "bearing2", "bearing3", "bearing4", "bearing5", "bearing6", "bearing7",
+];
+const MESH_NAMES: [&str; 4] = ["mesh0", "mesh1", "mesh2", "mesh3"];
 
-/// Converts and validates.
+/// Converts and validates. The record carries no names: shafts, bearings
+/// and meshes are named by their place (`tach`, `shaft1`, `bearing0`,
+/// `mesh0`, ...); nothing in the diagnosis depends on a name.
 ///
 /// ```
 /// let point = wire::point::point_config(&wire::config::PointRecord::default()).unwrap();
@@ -66,30 +76,25 @@ pub fn point_config(rec: &PointRecord) -> Result<PointConfig, PointError> {
     p.min_rpm = rec.speed_min_rpm;
     p.max_rpm = rec.speed_max_rpm;
     p.revolutions = rec.record_revs;
+    p.samples_per_rev = rec.samples_per_rev;
+    p.max_speed_change_pct = rec.max_speed_change_pct;
+    p.rectifier = rec.rectifier;
+    p.window = rec.window;
+    p.machine_group = rec.machine_group;
+    p.support = rec.support;
+    p.search = rec.search;
     p.shafts.clear();
     p.bearings.clear();
-    p.shafts
-        .push(Shaft {
-            name: name_from(SHAFT_NAMES[0]),
-            ratio: 1.0,
-        })
-        .map_err(|_| PointError::TooManyShafts)?;
+    p.meshes.clear();
+    for (&ratio, name) in rec.shafts.iter().zip(SHAFT_NAMES) {
+        p.shafts
+            .push(Shaft {
+                name: name_from(name),
+                ratio,
+            })
+            .map_err(|_| PointError::TooManyShafts)?;
+    }
     for (b, name) in rec.bearings.iter().zip(BEARING_NAMES) {
-        let found = p.shafts.iter().position(|s| s.ratio == b.shaft_ratio);
-        let shaft = match found {
-            Some(i) => i,
-            None => {
-                let i = p.shafts.len();
-                let shaft_name = SHAFT_NAMES.get(i).ok_or(PointError::TooManyShafts)?;
-                p.shafts
-                    .push(Shaft {
-                        name: name_from(shaft_name),
-                        ratio: b.shaft_ratio,
-                    })
-                    .map_err(|_| PointError::TooManyShafts)?;
-                i
-            }
-        };
         let kinematics = match b.model {
             BearingModel::Orders {
                 bpfo,
@@ -117,8 +122,18 @@ pub fn point_config(rec: &PointRecord) -> Result<PointConfig, PointError> {
         p.bearings
             .push(Bearing {
                 name: name_from(name),
-                shaft: u8::try_from(shaft).map_err(|_| PointError::TooManyShafts)?,
+                shaft: b.shaft,
                 kinematics,
+            })
+            .map_err(|_| PointError::TooManyShafts)?;
+    }
+    for (m, name) in rec.meshes.iter().zip(MESH_NAMES) {
+        p.meshes
+            .push(Mesh {
+                name: name_from(name),
+                shaft: m.shaft,
+                teeth: m.teeth,
+                mate: m.mate,
             })
             .map_err(|_| PointError::TooManyShafts)?;
     }
@@ -146,6 +161,24 @@ pub struct NodeSettings {
     pub clip_permille: u16,
     /// SENSOR_FAULT from this many per mille of clipped samples.
     pub saturated_permille: u16,
+}
+
+impl Default for NodeSettings {
+    /// The defaults of `envord gateway downlink ... config` (and of
+    /// [`PointRecord::default`]).
+    fn default() -> Self {
+        let r = PointRecord::default();
+        Self {
+            settle_ms: r.settle_ms,
+            interval_s: r.interval_s,
+            low_battery_mv: r.low_battery_mv,
+            alert_db: r.alert_db,
+            danger_db: r.danger_db,
+            flat_counts: r.health.flat_counts,
+            clip_permille: r.health.clip_permille,
+            saturated_permille: r.health.saturated_permille,
+        }
+    }
 }
 
 /// Why a measuring point cannot become a configuration record.
@@ -187,6 +220,12 @@ impl core::fmt::Display for RecordError {
             Self::NoSuchShaft { bearing } => {
                 write!(f, "bearing `{}`.shaft: no such shaft", bearing.as_str())
             }
+            Self::Invalid(crate::config::ConfigError::OutOfRange(field)) => write!(
+                f,
+                "{}: outside the range the node's configuration record carries (record field \
+                 `{field}`, docs/frame-format.md \"Configuration record\")",
+                point_key(field)
+            ),
             Self::Invalid(e) => write!(f, "{e} (the node's own range checks)"),
             Self::NodeRefuses(e) => write!(f, "the node would refuse this point: {e}"),
         }
@@ -264,15 +303,26 @@ pub fn record_from_point(p: &PointConfig, s: &NodeSettings) -> Result<PointRecor
     r.low_battery_mv = s.low_battery_mv;
     r.alert_db = s.alert_db;
     r.danger_db = s.danger_db;
+    r.samples_per_rev = p.samples_per_rev;
+    r.max_speed_change_pct = p.max_speed_change_pct;
+    r.rectifier = p.rectifier;
+    r.window = p.window;
+    r.machine_group = p.machine_group;
+    r.support = p.support;
+    r.search = p.search;
+    r.shafts.clear();
+    for sh in &p.shafts {
+        r.shafts
+            .push(sh.ratio)
+            .map_err(|_| unsupported("shaft", "at most 4 shafts"))?;
+    }
     r.bearings.clear();
     for b in &p.bearings {
-        let ratio = p
-            .shafts
-            .get(usize::from(b.shaft))
-            .map(|x| x.ratio)
-            .ok_or_else(|| RecordError::NoSuchShaft {
+        if usize::from(b.shaft) >= p.shafts.len() {
+            return Err(RecordError::NoSuchShaft {
                 bearing: b.name.clone(),
-            })?;
+            });
+        }
         let model = match b.kinematics {
             BearingKinematics::Geometry {
                 rollers,
@@ -301,35 +351,84 @@ pub fn record_from_point(p: &PointConfig, s: &NodeSettings) -> Result<PointRecor
         };
         r.bearings
             .push(BearingSpec {
-                shaft_ratio: ratio,
+                shaft: b.shaft,
                 model,
             })
-            .map_err(|_| unsupported("bearing", "at most 4 bearings"))?;
+            .map_err(|_| unsupported("bearing", "at most 8 bearings"))?;
+    }
+    r.meshes.clear();
+    for m in &p.meshes {
+        r.meshes
+            .push(MeshSpec {
+                shaft: m.shaft,
+                teeth: m.teeth,
+                mate: m.mate,
+            })
+            .map_err(|_| unsupported("mesh", "at most 4 meshes"))?;
     }
     r.validate().map_err(RecordError::Invalid)?;
-    // What the node will make of it must be the point the file describes.
-    let back = point_config(&r).map_err(RecordError::NodeRefuses)?;
-    let checks: [(&'static str, bool); 8] = [
-        ("envelope.rectifier", back.rectifier == p.rectifier),
-        (
-            "spectrum.samples_per_rev",
-            back.samples_per_rev == p.samples_per_rev,
-        ),
-        ("spectrum.window", back.window == p.window),
-        (
-            "speed.max_change_pct",
-            back.max_speed_change_pct == p.max_speed_change_pct,
-        ),
-        ("search", back.search == p.search),
-        ("iso.machine_group", back.machine_group == p.machine_group),
-        ("iso.support", back.support == p.support),
-        ("mesh", p.meshes.is_empty()),
-    ];
-    if let Some((key, _)) = checks.iter().find(|(_, same)| !same) {
+    // What the node will make of it must be the point the file describes,
+    // names apart (the record carries none).
+    let mut back = point_config(&r).map_err(RecordError::NodeRefuses)?;
+    for (x, y) in back.shafts.iter_mut().zip(&p.shafts) {
+        x.name = y.name.clone();
+    }
+    for (x, y) in back.bearings.iter_mut().zip(&p.bearings) {
+        x.name = y.name.clone();
+    }
+    for (x, y) in back.meshes.iter_mut().zip(&p.meshes) {
+        x.name = y.name.clone();
+    }
+    if back != *p {
         return Err(unsupported(
-            key,
-            "set to other than the node's default in the point file",
+            "point",
+            "the node would read back another point (a value the record rounds)",
         ));
     }
     Ok(r)
+}
+
+/// Whether the node could be sent this point (with the default node
+/// settings): `Ok` when [`record_from_point`] accepts it. A constant-speed
+/// point (a recording with a known rpm and no tach) is checked as if its
+/// speed came from the node's tach: the speed source belongs to the
+/// recording, everything else to the point.
+pub fn check_sendable(p: &PointConfig) -> Result<(), RecordError> {
+    let mut q = p.clone();
+    if let SpeedInput::Constant { .. } = q.speed {
+        q.speed = SpeedInput::default();
+    }
+    record_from_point(&q, &NodeSettings::default()).map(|_| ())
+}
+
+/// The point-file key of a record field named by
+/// [`ConfigError::OutOfRange`](crate::config::ConfigError::OutOfRange)
+/// (the field name itself when it has no point-file key).
+pub fn point_key(field: &'static str) -> &'static str {
+    match field {
+        "sample_rate_hz" => "sensor.sample_rate_hz",
+        "counts_to_g" => "sensor.counts_to_g",
+        "clip_level" => "sensor.adc_full_scale",
+        "band_lo_hz" | "band_hi_hz" => "envelope.band_hz",
+        "poles" => "envelope.poles",
+        "pulses_per_rev" => "speed.pulses_per_rev",
+        "tach_tick_hz" => "speed.tick_hz",
+        "speed_min_rpm" => "speed.min_rpm",
+        "speed_max_rpm" => "speed.max_rpm",
+        "max_speed_change_pct" => "speed.max_change_pct",
+        "record_revs" => "spectrum.revolutions",
+        "samples_per_rev" => "spectrum.samples_per_rev",
+        "window" => "spectrum.window",
+        "shaft_ratio" | "shafts" => "shaft.ratio",
+        "bearings" | "bearing_shaft" => "bearing",
+        "defect_order" => "bearing.*_x",
+        "elements" => "bearing.rollers",
+        "pitch_mm" => "bearing.pitch_diameter",
+        "element_mm" => "bearing.roller_diameter",
+        "contact_deg" => "bearing.contact_angle_deg",
+        "mesh_shaft" | "mesh_teeth" | "mesh_mate" | "meshes" => "mesh",
+        "search.prominence_db" => "search.prominence_db",
+        "search.sideband_db" => "search.sideband_db",
+        other => other,
+    }
 }

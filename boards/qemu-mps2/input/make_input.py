@@ -48,9 +48,14 @@ FLASH_PAGES = 5  # config A, config B, baseline A, baseline B, identity
 
 
 def config_record(revs=64, version=1, band_source=0):
-    """Version 1 (the committed config.bin) or 2 (band source 0 configured,
-    2 unset: zero band edges, the node surveys)."""
+    """Version 1 (the committed config.bin), 2 or 3 (band source 0
+    configured, 2 unset: zero band edges, the node surveys). Version 3: the
+    point's spectrum and search at the node's defaults (64 samples/rev, 60 %
+    speed change, abs rectifier, Hann, ISO group 2 rigid, default search:
+    no search block), one shaft, the bearing by geometry."""
     body = b"EP" + bytes([version, 0])  # magic, version, length patched below
+    if version == 3:
+        body += b"\x00"  # the length is a u16 from version 3
     body += struct.pack("<I", FS)
     band = (0.0, 0.0) if band_source == 2 else (2000.0, 8000.0)
     body += struct.pack("<ff", *band)
@@ -62,6 +67,15 @@ def config_record(revs=64, version=1, band_source=0):
     body += struct.pack("<H", 3000)  # low battery mV
     body += struct.pack("<ff", 6.0, 12.0)  # alert / alarm dB
     body += struct.pack("<f", 0.008789)  # g per count: 100 mV/g sensor, 3.6 V / 4096 counts
+    if version == 3:
+        body += bytes([band_source]) + struct.pack("<f", 0.0)  # band source, kurtosis
+        body += struct.pack("<Hf", 64, 60.0)  # samples/rev, speed change %
+        body += bytes([0, 1, 1, 0])  # options, shafts, bearings, meshes
+        body += struct.pack("<f", 1.0)  # the tach shaft
+        body += bytes([0x01, 9]) + struct.pack("<fff", 7.94, 39.04, 0.0)
+        length = len(body) + 4
+        body = body[:3] + struct.pack("<H", length) + body[5:]
+        return body + struct.pack("<I", zlib.crc32(body))
     body += bytes([1, band_source if version == 2 else 0])  # one bearing, band source
     if version == 2:
         body += struct.pack("<f", 0.0)  # survey kurtosis (none)

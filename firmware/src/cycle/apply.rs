@@ -3,7 +3,7 @@
 //! the baseline sealed with a CRC-32.
 
 use super::{DownlinkOutcome, Node};
-use crate::config::{PointRecord, StoredConfig, MAX_STORED_LEN};
+use crate::config::{PointRecord, MAX_STORED_LEN};
 use crate::crc::crc32;
 use crate::downlink::{self, Command, DownlinkError, MAX_BASELINE_LEN};
 use crate::hal::{Board, MeasurementCore, Slot, Storage};
@@ -11,26 +11,16 @@ use crate::log::log_warn;
 
 impl<B: Board, C: MeasurementCore> Node<B, C> {
     /// Writes the configuration with its counter in one record.
-    #[inline(never)] // keeps its buffers out of the frame of every step
     pub(super) fn store_config(&mut self, counter: u32, record: &PointRecord) -> bool {
-        let mut buf = [0u8; MAX_STORED_LEN];
-        let stored = StoredConfig {
-            counter,
-            record: record.clone(),
-        };
-        stored
-            .encode(&mut buf)
-            .ok()
-            .and_then(|n| buf.get(..n))
-            .is_some_and(|bytes| self.dev.storage.store(Slot::Config, bytes).is_ok())
+        store_config(&mut self.dev.storage, counter, record)
     }
 
     /// Advances the stored counter (same record, new counter) before a
     /// command that changes no configuration takes effect, so it cannot be
     /// replayed after a power cycle either.
     fn commit_counter(&mut self, counter: u32) -> bool {
-        let record = self.config.clone();
-        let ok = self.store_config(counter, &record);
+        // no copy of the record: the storage and the record are disjoint fields
+        let ok = store_config(&mut self.dev.storage, counter, &self.config);
         if ok {
             self.counter = counter;
         }
@@ -102,6 +92,22 @@ impl<B: Board, C: MeasurementCore> Node<B, C> {
             }
         }
     }
+}
+
+/// Writes `counter` and `record` as one [`crate::config::StoredConfig`]
+/// (counter u32 LE, then the record), without copying the record.
+#[inline(never)] // keeps its buffer out of the frame of every step
+fn store_config<S: Storage>(storage: &mut S, counter: u32, record: &PointRecord) -> bool {
+    let mut buf = [0u8; MAX_STORED_LEN];
+    let Some((head, rest)) = buf.split_at_mut_checked(4) else {
+        return false;
+    };
+    head.copy_from_slice(&counter.to_le_bytes());
+    let Ok(n) = record.encode(rest) else {
+        return false;
+    };
+    buf.get(..4 + n)
+        .is_some_and(|bytes| storage.store(Slot::Config, bytes).is_ok())
 }
 
 /// Appends a CRC-32 to `data` in `buf`.

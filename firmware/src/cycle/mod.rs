@@ -65,16 +65,9 @@ pub const FRAME_CAPACITY: usize = wire::frame::v2::full_frame_len_v2(
     wire::frame::layout::MAX_BEARINGS,
     wire::frame::layout::MAX_MESHES,
 );
-/// Largest downlink accepted (authentication header and tag, command byte,
-/// largest record).
-pub const DOWNLINK_CAPACITY: usize = crate::downlink_auth::HEADER_LEN
-    + crate::downlink_auth::TAG_LEN
-    + 1
-    + if crate::config::MAX_RECORD_LEN > MAX_BASELINE_LEN {
-        crate::config::MAX_RECORD_LEN
-    } else {
-        MAX_BASELINE_LEN
-    };
+/// Largest downlink accepted (authentication header and tag, command
+/// byte, largest record): [`crate::downlink::MAX_DOWNLINK_LEN`].
+pub const DOWNLINK_CAPACITY: usize = crate::downlink::MAX_DOWNLINK_LEN;
 /// Upper bound on blocks per record whatever the configuration says.
 pub const MAX_RECORD_BLOCKS: u32 = 4_096;
 
@@ -496,13 +489,7 @@ impl<B: Board, C: MeasurementCore> Node<B, C> {
                 State::Listen
             }
             State::Listen => {
-                let mut buf = [0u8; DOWNLINK_CAPACITY];
-                let got = self.dev.radio.receive(&mut buf).map_err(|_| Fault::Radio)?;
-                if let Some(n) = got {
-                    let msg = buf.get(..n.min(DOWNLINK_CAPACITY)).unwrap_or(&[]);
-                    self.downlink = self.apply_downlink(msg);
-                    log_info!("downlink {}", self.downlink);
-                }
+                self.listen()?;
                 // healthy: every state passed and no block was lost
                 if !self
                     .summary
@@ -515,5 +502,20 @@ impl<B: Board, C: MeasurementCore> Node<B, C> {
                 State::Sleep
             }
         })
+    }
+
+    /// One receive window: a downlink, if any, is applied. Not inlined: the
+    /// receive buffer (the longest downlink, 288 bytes with record v3) stays
+    /// out of the frame of every other step, the measurement's included.
+    #[inline(never)]
+    fn listen(&mut self) -> Result<(), Fault> {
+        let mut buf = [0u8; DOWNLINK_CAPACITY];
+        let got = self.dev.radio.receive(&mut buf).map_err(|_| Fault::Radio)?;
+        if let Some(n) = got {
+            let msg = buf.get(..n.min(DOWNLINK_CAPACITY)).unwrap_or(&[]);
+            self.downlink = self.apply_downlink(msg);
+            log_info!("downlink {}", self.downlink);
+        }
+        Ok(())
     }
 }

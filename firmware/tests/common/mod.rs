@@ -500,7 +500,7 @@ pub fn signed(counter: u32, payload: &[u8]) -> Vec<u8> {
 
 /// A downlink for any node and key.
 pub fn signed_for(node: u16, key: &[u8; 32], counter: u32, payload: &[u8]) -> Vec<u8> {
-    let mut buf = [0u8; 256];
+    let mut buf = [0u8; 512];
     let n = firmware::downlink_auth::sign(
         &firmware::downlink_auth::DownlinkKey::new(*key),
         node,

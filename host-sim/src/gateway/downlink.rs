@@ -23,6 +23,8 @@ use wire::point::NodeSettings;
 use crate::error::CliError;
 use crate::output::Access;
 
+mod checks;
+
 /// Arguments of `envord gateway downlink`.
 #[derive(clap::Args, Debug)]
 pub struct DownlinkArgs {
@@ -90,6 +92,16 @@ pub struct ConfigArgs {
     /// SENSOR_FAULT when this many per mille of samples are clipped.
     #[arg(long, default_value_t = 100)]
     pub saturated_permille: u16,
+    /// Send the point although some of its watched lines cannot be searched
+    /// with its setting (listed on stderr; without this flag such a point is
+    /// refused, exit 1, nothing written).
+    #[arg(long)]
+    pub accept_gaps: bool,
+    /// Write the downlink although it is longer than the largest EU868
+    /// payload (222 bytes), for a link that carries it (e.g. the debug
+    /// port); without this flag it is refused, exit 1, nothing written.
+    #[arg(long)]
+    pub accept_oversize: bool,
 }
 
 /// Arguments of `envord gateway provision`.
@@ -181,6 +193,7 @@ pub fn payload(cmd: &DownlinkCommand) -> Result<Vec<u8>, CliError> {
             }
             let rec =
                 record_from_point(&point, c).map_err(|m| CliError::input(c.point.display(), m))?;
+            checks::coverage(&point, c)?;
             let mut buf = [0u8; MAX_RECORD_LEN];
             let n = rec
                 .encode(&mut buf)
@@ -200,17 +213,17 @@ pub fn downlink_cmd(a: &DownlinkArgs) -> Result<(), CliError> {
     let n = sign(&key, a.node_id, a.counter, &payload, &mut frame)
         .map_err(|e| CliError::Other(e.to_string()))?;
     frame.truncate(n);
-    // LoRaWAN Regional Parameters (RP002), quoted from memory: EU868 DR0-DR2
-    // carry 51 bytes, DR3 115, DR4 and up 222.
-    let rate = match n {
-        0..=51 => "any EU868 data rate",
-        52..=115 => "EU868 DR3 or faster (115-byte payloads)",
-        _ => "EU868 DR4 or faster (222-byte payloads)",
-    };
+    let rate = crate::cmd_analyze::slowest_eu868_rate(n);
     eprintln!(
-        "envord: downlink for node {} with counter {}: {n} bytes, needs {rate}",
-        a.node_id, a.counter
+        "envord: downlink for node {} with counter {}: {n} bytes, slowest EU868 data rate that \
+         carries it: {}",
+        a.node_id,
+        a.counter,
+        rate.unwrap_or("none (over 222 bytes)")
     );
+    if let DownlinkCommand::Config(c) = &a.command {
+        checks::size(n, c)?;
+    }
     match &a.out {
         Some(p) => crate::output::write(p, &frame)?,
         None => println!("{}", super::input::to_hex(&frame)),
