@@ -180,11 +180,14 @@ fn gearbox_matrix_meets_its_goals() {
     // NOT YET MET (see the attribution note of issue 15): the issue's goals
     // are >= 95 % named and 0 detections on another bearing. Asserted here
     // are the figures reached (floors and ceilings, so that they can only
-    // improve): named 120/128 = 93.75 %, 1 detection on another bearing
-    // (before the cross-bearing attribution: 89.1 %, 16; before the
-    // cross-pass attribution and the hidden-harmonic completeness: 93.8 %, 6).
+    // improve): named 139/148 = 93.9 %, 2 detections on another bearing
+    // (the first two gearboxes alone: 120/128 = 93.75 % and 1; before the
+    // cross-pass attribution and the hidden-harmonic completeness: 93.8 %
+    // and 6; before the cross-bearing attribution: 89.1 %, 16).
     // The misses left are weak (0.5 g) output-shaft cases: too few impacts
-    // in the record for a second harmonic or a sideband pair.
-    assert!(share >= 0.9375, "named in {:.2} % < 93.75 %", 100.0 * share);
-    assert!(others <= 1, "{others} detections on another bearing (> 1)");
+    // in the record for a second harmonic or a sideband pair. At a 2.0
+    // stage ratio every input-bearing line is twice an intermediate one of
+    // the same type: those cases are all ambiguous by physics (starred).
+    assert!(share >= 0.939, "named in {:.2} % < 93.9 %", 100.0 * share);
+    assert!(others <= 2, "{others} detections on another bearing (> 2)");
 }
