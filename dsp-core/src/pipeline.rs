@@ -693,6 +693,10 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
             max_search_order,
             decimation: self.decimation(),
             mean_rpm: speed.mean_rpm,
+            search: self
+                .setup
+                .as_ref()
+                .map_or_else(Default::default, |s| *s.search.config()),
         });
         Report {
             flags,

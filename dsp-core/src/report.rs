@@ -7,7 +7,7 @@ use heapless::Vec;
 
 use crate::config::{Name, MAX_BEARINGS, MAX_MESHES};
 use crate::diagnosis::coverage::{NotSearched, MAX_PASSES};
-use crate::diagnosis::defects::{BearingDiagnosis, LineMeasurement};
+use crate::diagnosis::defects::{BearingDiagnosis, DefectSearchConfig, LineMeasurement};
 use crate::diagnosis::kinematics::{BearingOrders, DefectKind};
 use crate::overall::Overall;
 use crate::speed::tach::SpeedSummary;
@@ -222,6 +222,9 @@ pub struct PassReport {
     pub decimation: u16,
     /// Mean tach-shaft speed over the pass, rpm.
     pub mean_rpm: f32,
+    /// The defect search settings of the pass (for the cross-pass
+    /// attribution of [`Report::merge_pass`]).
+    pub search: DefectSearchConfig,
 }
 
 impl Report {
@@ -260,5 +263,37 @@ impl Report {
             // Capacity MAX_PASSES: one entry per pass of the plan.
             let _ = self.passes.push(p);
         }
+        self.attribute_across_passes();
+    }
+
+    /// Cross-pass attribution between the bearings merged so far
+    /// ([`crate::diagnosis::defects::attribute_across_passes`]).
+    #[inline(never)]
+    fn attribute_across_passes(&mut self) {
+        let Some(cfg) = self.passes.first().map(|p| p.search) else {
+            return;
+        };
+        let mut orders: Vec<BearingOrders, MAX_BEARINGS> = Vec::new();
+        let mut pass_opb: Vec<Option<(u8, f32)>, MAX_BEARINGS> = Vec::new();
+        for b in &self.bearings {
+            let _ = orders.push(b.orders);
+            let opb = b.coverage.ok().and_then(|k| {
+                self.passes
+                    .iter()
+                    .find(|p| p.pass == k)
+                    .map(|p| (k, p.orders_per_bin))
+            });
+            let _ = pass_opb.push(opb);
+        }
+        let mut diagnoses: Vec<&mut Option<BearingDiagnosis>, MAX_BEARINGS> = Vec::new();
+        for b in self.bearings.iter_mut() {
+            let _ = diagnoses.push(&mut b.diagnosis);
+        }
+        crate::diagnosis::defects::attribute_across_passes(
+            &cfg,
+            &orders,
+            &pass_opb,
+            &mut diagnoses,
+        );
     }
 }

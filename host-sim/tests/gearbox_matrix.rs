@@ -2,7 +2,9 @@
 //! `gearbox_common/mod.rs` for the gearboxes, bearings and their sources).
 //! Prints the table (`cargo test --release -p host-sim --test gearbox_matrix
 //! -- --nocapture`). Goals of the issue (the first two not yet met: the test
-//! holds today's figures as floors and ceilings, see its end):
+//! holds today's figures as floors and ceilings, see its end; every eligible
+//! case not named and every case with a detection on another bearing is
+//! listed under the table):
 //! * the faulted bearing and kind named in >= 95 % of the cases whose lines
 //!   do not coincide with another bearing's (within the 2 % slip window);
 //! * no detection on another bearing, in any case;
@@ -118,6 +120,28 @@ fn gearbox_matrix_meets_its_goals() {
             println!("{row}   {}", row_others.join(", "));
         }
     }
+    // Every eligible case not named, and every case with a detection on
+    // another bearing, one line each (what to look at when a figure moves).
+    for ((gi, bi, f, pi, si), o) in cases.iter().zip(&outcomes) {
+        let g = &boxes[*gi];
+        let missed = !o.named && !coincides(g, *bi, kind_of(*f));
+        if missed || !o.others.is_empty() {
+            println!(
+                "  case {} {} {:?} {} {} g: {}{}",
+                g.name,
+                g.bearings[*bi].0,
+                f,
+                profiles()[*pi].0,
+                SEVERITIES[*si],
+                if missed { "NOT NAMED" } else { "named" },
+                if o.others.is_empty() && o.wrong_kind.is_empty() {
+                    String::new()
+                } else {
+                    format!("; others {:?}; wrong kind {:?}", o.others, o.wrong_kind)
+                }
+            );
+        }
+    }
     let share = named as f64 / eligible.max(1) as f64;
     println!(
         "named {named}/{eligible} = {:.1} % of cases without coinciding lines; other-bearing detections {others}; lines not searched {unsearched}; shared findings {shared_findings} ([A K shared by B])",
@@ -153,11 +177,17 @@ fn gearbox_matrix_meets_its_goals() {
         false_alarms.is_empty(),
         "healthy detections: {false_alarms:?}"
     );
-    // NOT YET MET (see the diagnosis note of issue 15): the issue's goals
+    // NOT YET MET (see the attribution note of issue 15): the issue's goals
     // are >= 95 % named and 0 detections on another bearing. Asserted here
     // are the figures reached (floors and ceilings, so that they can only
-    // improve): named 120/128 = 93.8 %, 6 detections on another bearing
-    // (before the cross-bearing attribution of this branch: 89.1 %, 16).
-    assert!(share >= 0.93, "named in {:.1} % < 93 %", 100.0 * share);
-    assert!(others <= 6, "{others} detections on another bearing (> 6)");
+    // improve): named 139/148 = 93.9 %, 2 detections on another bearing
+    // (the first two gearboxes alone: 120/128 = 93.75 % and 1; before the
+    // cross-pass attribution and the hidden-harmonic completeness: 93.8 %
+    // and 6; before the cross-bearing attribution: 89.1 %, 16).
+    // The misses left are weak (0.5 g) output-shaft cases: too few impacts
+    // in the record for a second harmonic or a sideband pair. At a 2.0
+    // stage ratio every input-bearing line is twice an intermediate one of
+    // the same type: those cases are all ambiguous by physics (starred).
+    assert!(share >= 0.939, "named in {:.2} % < 93.9 %", 100.0 * share);
+    assert!(others <= 2, "{others} detections on another bearing (> 2)");
 }

@@ -635,6 +635,26 @@ fn modulation_spacing(kind: DefectKind, shaft_order: f32, ftf_order: f32) -> [f3
     }
 }
 
+/// The decision of the module doc from a result's counted harmonics and
+/// whether a sideband pair reaches the threshold.
+fn detection_rule(r: &DefectResult, sideband_pair: bool, cfg: &DefectSearchConfig) -> bool {
+    let fundamental_counted = r.harmonics.first().is_some_and(|h| h.counted);
+    let family = r.harmonics_found >= cfg.min_harmonics;
+    let strong_family = r.harmonics_found > cfg.min_harmonics;
+    match r.kind {
+        // Inner race and rolling element pass through the load zone (at
+        // shaft and cage rate): their modulation sidebands are the
+        // hallmark; without them, one more harmonic is required.
+        DefectKind::Bpfi | DefectKind::Bsf => {
+            ((family || fundamental_counted) && sideband_pair) || strong_family
+        }
+        DefectKind::Bpfo => family,
+        // Cage: one more harmonic and the fundamental (cage lines are
+        // rarely a primary envelope finding); see `cage_as_modulation`.
+        DefectKind::Ftf => strong_family && fundamental_counted,
+    }
+}
+
 /// How one detected family stands to another's evidence (cross-bearing
 /// attribution).
 #[derive(Clone, Copy, PartialEq, Eq)]
@@ -663,11 +683,15 @@ struct Family {
     /// Counted harmonics and the highest counted harmonic number.
     counted: u8,
     highest: u8,
+    /// Harmonics below the highest counted one that sit on a present
+    /// running-speed line of the bearing's own shaft (masked bins): they
+    /// cannot be seen, so they are no gap in the series.
+    hidden: u8,
 }
 
 impl Family {
     /// The family of `r` (bearing `bearing`, its orders `o`), when anchored.
-    fn of(bearing: usize, r: &DefectResult, o: &BearingOrders) -> Option<Self> {
+    fn of(bearing: usize, r: &DefectResult, o: &BearingOrders, hidden: u8) -> Option<Self> {
         let anchor = r.anchor.filter(|_| r.line_actual > 0.0)?;
         let counted = r.harmonics.iter().filter(|h| h.counted);
         Some(Family {
@@ -680,7 +704,31 @@ impl Family {
             spacing: modulation_spacing(r.kind, o.shaft_order(), o.ftf_order()),
             counted: u8::try_from(counted.clone().count()).unwrap_or(u8::MAX),
             highest: counted.map(|h| h.harmonic).max().unwrap_or(0),
+            hidden,
         })
+    }
+
+    /// Harmonics of `r` below its highest counted one, not counted, whose
+    /// order `h·L'` falls on a masked bin of `ctx` (a present running-speed
+    /// line of the bearing's shaft).
+    fn hidden_in(ctx: &Ctx<'_>, r: &DefectResult) -> u8 {
+        let highest = r
+            .harmonics
+            .iter()
+            .filter(|h| h.counted)
+            .map(|h| h.harmonic)
+            .max()
+            .unwrap_or(0);
+        let n = r
+            .harmonics
+            .iter()
+            .filter(|h| h.harmonic < highest && !h.counted)
+            .filter(|h| {
+                let o = f32::from(h.harmonic) * r.line_actual;
+                ctx.masked(f32_to_usize_sat(libm::roundf(o / ctx.opb)))
+            })
+            .count();
+        u8::try_from(n).unwrap_or(u8::MAX)
     }
 
     /// Whether the order `o` lies on this family's comb: a harmonic of the
@@ -707,12 +755,210 @@ impl Family {
     }
 
     /// Compares the completeness of two series: counted harmonics over the
-    /// highest counted harmonic number, exactly.
+    /// harmonics up to the highest counted one that could be seen (not
+    /// hidden by a running-speed line), exactly.
     fn completeness_cmp(&self, other: &Family) -> core::cmp::Ordering {
-        let (a, b) = (u16::from(self.counted), u16::from(self.highest.max(1)));
-        let (c, d) = (u16::from(other.counted), u16::from(other.highest.max(1)));
+        let seen = |f: &Family| u16::from(f.highest.saturating_sub(f.hidden).max(1));
+        let (a, b) = (u16::from(self.counted), seen(self));
+        let (c, d) = (u16::from(other.counted), seen(other));
         (a * d).cmp(&(c * b))
     }
+
+    /// How family `self` (`j`) stands to family `fi` (`i`) of another
+    /// bearing, given `e_i` counted peaks of `fi` on this comb and `e_j` of
+    /// this family on `fi`'s comb; `j_first` breaks a full tie (see
+    /// [`DefectSearch::attribute_bearings`]).
+    fn relation_to(
+        &self,
+        fi: &Family,
+        e_i: u16,
+        e_j: u16,
+        j_first: bool,
+        cfg: &DefectSearchConfig,
+    ) -> Relation {
+        let fj = self;
+        if fi.bearing == fj.bearing || (e_i == 0 && e_j == 0) {
+            return Relation::None;
+        }
+        let (n_i, n_j) = (u16::from(fi.counted.max(1)), u16::from(fj.counted.max(1)));
+        let coincide =
+            libm::fabsf(fi.nominal - fj.nominal) <= cfg.slip_tolerance * fi.nominal.max(fj.nominal);
+        let first = fj.dominates(fi) || (!fi.dominates(fj) && j_first);
+        if coincide && 2 * e_i >= n_i && 2 * e_j >= n_j {
+            return if first {
+                Relation::Shares
+            } else {
+                Relation::None
+            };
+        }
+        let tie = if j_first {
+            core::cmp::Ordering::Greater
+        } else {
+            core::cmp::Ordering::Less
+        };
+        let takes = fj
+            .completeness_cmp(fi)
+            .then((e_i * n_j).cmp(&(e_j * n_i)))
+            .then(fj.strength.total_cmp(&fi.strength))
+            .then(tie);
+        if takes == core::cmp::Ordering::Greater {
+            Relation::Takes
+        } else {
+            Relation::None
+        }
+    }
+}
+
+/// Most families one cross-pass step compares, and most (victim, owner) pairs it applies.
+const MAX_PASS_PAIRS: usize = 32;
+
+/// Cross-pass attribution: the step of [`DefectSearch::attribute_bearings`]
+/// between bearings reported from *different* passes of one measurement
+/// ([`crate::diagnosis::coverage`]), run when the passes' reports are merged
+/// ([`crate::report::Report::merge_pass`]).
+///
+/// A pass searches every bearing, but a bearing whose shaft is too slow for
+/// that pass's resolution (its own pass is a later one) cannot show its
+/// family there: its running-speed mask and windows do not fit. Its high
+/// harmonics and sidebands can then make up a family of a faster bearing in
+/// the first pass (a 7th and 14th outer-race harmonic of an intermediate
+/// bearing read as a 6203's BPFO on the input), with no detected family in
+/// that pass to explain them. Each bearing's result here is from its own
+/// pass; families are compared by their anchored lines (tach orders, the same
+/// in every pass), with the tolerance of the coarser pass, by the same rules
+/// as within a pass: the more complete series keeps shared peaks, then the
+/// one explaining the larger share, then the stronger; coinciding lines with
+/// the same evidence give one shared finding. The losing line is decided again
+/// from what it keeps: its sideband pairs at the lost harmonics (among the
+/// first three) are dropped, as the spectrum is no longer at hand.
+///
+/// `pass_opb[i]` is bearing `i`'s pass and that pass's orders per bin (`None`:
+/// not searched).
+pub fn attribute_across_passes(
+    cfg: &DefectSearchConfig,
+    orders: &[BearingOrders],
+    pass_opb: &[Option<(u8, f32)>],
+    diagnoses: &mut [&mut Option<BearingDiagnosis>],
+) {
+    // Detected families with their pass and resolution (snapshot).
+    let mut fams: heapless::Vec<(Family, u8, f32), MAX_PASS_PAIRS> = heapless::Vec::new();
+    for (bi, (d, o)) in diagnoses.iter().zip(orders.iter()).enumerate() {
+        let (Some(d), Some(Some((pass, opb)))) = (&**d, pass_opb.get(bi)) else {
+            continue;
+        };
+        for fam in d
+            .results
+            .iter()
+            .filter(|r| r.detected)
+            .filter_map(|r| Family::of(bi, r, o, 0))
+        {
+            let _ = fams.push((fam, *pass, *opb));
+        }
+    }
+    let counted_on = |d: &[&mut Option<BearingDiagnosis>], f: &Family, g: &Family, opb: f32| {
+        let n = d
+            .get(f.bearing)
+            .and_then(|d| d.as_ref())
+            .and_then(|d| d.get(f.kind))
+            .map_or(0, |r| {
+                r.harmonics
+                    .iter()
+                    .filter(|h| h.counted && g.explains(h.found_order, cfg, opb))
+                    .count()
+            });
+        u16::try_from(n).unwrap_or(u16::MAX)
+    };
+    // (victim, owner, shared finding) from the snapshot.
+    let mut pairs: heapless::Vec<(u8, u8, bool), MAX_PASS_PAIRS> = heapless::Vec::new();
+    for (i, (fi, pi, oi)) in fams.iter().enumerate() {
+        for (j, (fj, pj, oj)) in fams.iter().enumerate() {
+            if pi == pj || fi.bearing == fj.bearing {
+                continue;
+            }
+            let opb = oi.max(*oj);
+            let (e_i, e_j) = (
+                counted_on(diagnoses, fi, fj, opb),
+                counted_on(diagnoses, fj, fi, opb),
+            );
+            if e_i == 0 {
+                continue;
+            }
+            let rel = fj.relation_to(fi, e_i, e_j, j < i, cfg);
+            if rel != Relation::None {
+                let (Ok(a), Ok(b)) = (u8::try_from(i), u8::try_from(j)) else {
+                    continue;
+                };
+                let _ = pairs.push((a, b, rel == Relation::Shares));
+            }
+        }
+    }
+    for &(i, j, shares) in &pairs {
+        let (Some((fi, _, oi)), Some((fj, _, oj))) =
+            (fams.get(usize::from(i)), fams.get(usize::from(j)))
+        else {
+            continue;
+        };
+        let opb = oi.max(*oj);
+        if let Some(r) = diagnoses
+            .get_mut(fi.bearing)
+            .and_then(|d| d.as_mut())
+            .and_then(|d| d.results.get_mut(fi.kind.index()))
+        {
+            let mut lost_early = 0u8;
+            for h in r.harmonics.iter_mut().filter(|h| h.counted) {
+                if fj.explains(h.found_order, cfg, opb) {
+                    h.counted = false;
+                    h.shared_with = Some(fj.kind);
+                    h.shared_bearing = u8::try_from(fj.bearing).ok();
+                    if h.harmonic <= 3 {
+                        lost_early = lost_early.saturating_add(1);
+                    }
+                }
+            }
+            decide_from_counts(r, lost_early, cfg);
+        }
+        if shares {
+            let line = LineRef {
+                bearing: u8::try_from(fi.bearing).unwrap_or(u8::MAX),
+                kind: fi.kind,
+            };
+            if let Some(r) = diagnoses
+                .get_mut(fj.bearing)
+                .and_then(|d| d.as_mut())
+                .and_then(|d| d.results.get_mut(fj.kind.index()))
+            {
+                if r.shared_finding.is_none() {
+                    r.shared_finding = Some(line);
+                }
+            }
+        }
+    }
+}
+
+/// Decides `r` again after it lost counted harmonics without the spectrum:
+/// harmonics found and score from the counted ones, sideband pairs less the
+/// `lost_early` lost harmonics among the first three (where pairs are sought).
+fn decide_from_counts(r: &mut DefectResult, lost_early: u8, cfg: &DefectSearchConfig) {
+    let counted = r.harmonics.iter().filter(|h| h.counted);
+    let (sa, sf) = counted.clone().fold((0.0f32, 0.0f32), |(a, f), h| {
+        (a + h.amplitude * h.amplitude, f + h.floor * h.floor)
+    });
+    r.harmonics_found = u8::try_from(counted.count()).unwrap_or(u8::MAX);
+    r.score_db = if r.harmonics_found == 0 {
+        0.0
+    } else if sf > 0.0 {
+        10.0 * crate::num::log10f(sa / sf)
+    } else {
+        200.0
+    };
+    r.sidebands = r.sidebands.saturating_sub(lost_early);
+    if r.sidebands == 0
+        && r.sideband_db
+            .is_some_and(|s| s >= cfg.sideband_threshold_db)
+    {
+        r.sideband_db = None;
+    }
+    r.detected = detection_rule(r, r.sidebands > 0, cfg);
 }
 
 /// Attribution rank: the family's other evidence (dB), then lower harmonic number.
@@ -935,11 +1181,20 @@ impl DefectSearch {
         let mut fams: heapless::Vec<Family, MAX_FAMILIES> = heapless::Vec::new();
         for (bi, (d, o)) in diagnoses.iter().zip(orders.iter()).enumerate() {
             let Some(d) = &**d else { continue };
+            let ctx = Ctx {
+                amps: spectrum.amplitudes(),
+                opb,
+                lobe_bins: spectrum.window().main_lobe_half_width_bins(),
+                window: spectrum.window(),
+                shaft_order: o.shaft_order(),
+                ftf_order: o.ftf_order(),
+                mask: cfg.mask_shaft_harmonics,
+            };
             for fam in d
                 .results
                 .iter()
                 .filter(|r| r.detected)
-                .filter_map(|r| Family::of(bi, r, o))
+                .filter_map(|r| Family::of(bi, r, o, Family::hidden_in(&ctx, r)))
             {
                 // Capacity 4 kinds x 8 bearings; more are not compared.
                 let _ = fams.push(fam);
@@ -992,31 +1247,7 @@ impl DefectSearch {
             let (Some(fi), Some(fj)) = (fams.get(i), fams.get(j)) else {
                 return Relation::None;
             };
-            let (e_i, e_j) = (ex(i, j), ex(j, i));
-            if fi.bearing == fj.bearing || (e_i == 0 && e_j == 0) {
-                return Relation::None;
-            }
-            let (n_i, n_j) = (u16::from(fi.counted.max(1)), u16::from(fj.counted.max(1)));
-            let coincide = libm::fabsf(fi.nominal - fj.nominal)
-                <= cfg.slip_tolerance * fi.nominal.max(fj.nominal);
-            let first = fj.dominates(fi) || (!fi.dominates(fj) && j < i);
-            if coincide && 2 * e_i >= n_i && 2 * e_j >= n_j {
-                return if first {
-                    Relation::Shares
-                } else {
-                    Relation::None
-                };
-            }
-            let takes = fj
-                .completeness_cmp(fi)
-                .then((e_i * n_j).cmp(&(e_j * n_i)))
-                .then(fj.strength.total_cmp(&fi.strength))
-                .then(i.cmp(&j));
-            if takes == core::cmp::Ordering::Greater {
-                Relation::Takes
-            } else {
-                Relation::None
-            }
+            fj.relation_to(fi, ex(i, j), ex(j, i), j < i, cfg)
         };
         // Order: a family no unprocessed family takes from comes first
         // (ties: the dominating one); in a cycle, the dominating one.
@@ -1394,24 +1625,10 @@ impl DefectSearch {
             r.sidebands = u8::try_from(pairs.filter(|&p| p >= cfg.sideband_threshold_db).count())
                 .unwrap_or(u8::MAX);
         }
-        let fundamental_counted = r.harmonics.first().is_some_and(|h| h.counted);
         let sideband_pair = r
             .sideband_db
             .is_some_and(|s| s >= cfg.sideband_threshold_db);
-        let family = r.harmonics_found >= cfg.min_harmonics;
-        let strong_family = r.harmonics_found > cfg.min_harmonics;
-        r.detected = match r.kind {
-            // Inner race and rolling element pass through the load zone (at
-            // shaft and cage rate): their modulation sidebands are the
-            // hallmark; without them, one more harmonic is required.
-            DefectKind::Bpfi | DefectKind::Bsf => {
-                ((family || fundamental_counted) && sideband_pair) || strong_family
-            }
-            DefectKind::Bpfo => family,
-            // Cage: one more harmonic and the fundamental (cage lines are
-            // rarely a primary envelope finding); see `cage_as_modulation`.
-            DefectKind::Ftf => strong_family && fundamental_counted,
-        };
+        r.detected = detection_rule(r, sideband_pair, cfg);
     }
 
     /// Cage lines beside a detected race or rolling-element family of the

@@ -1,4 +1,5 @@
-//! The simulated gearbox matrix (issue 15): two- and three-stage gearboxes,
+//! The simulated gearbox matrix (issue 15): two- and three-stage gearboxes
+//! (stage ratios 2.0 to 5.6),
 //! every bearing in turn with an outer-race, inner-race and rolling-element
 //! fault, at constant speed and over a 2:1 run-down, at two severities, each
 //! gearbox watched by one measuring point that knows all its bearings (so
@@ -65,7 +66,7 @@ pub struct Gearbox {
     pub gears: Vec<(usize, u32)>,
 }
 
-/// The two gearboxes.
+/// The three gearboxes.
 pub fn gearboxes() -> Vec<Gearbox> {
     // Two stages, 3.2 and 4.1 (the issue's example): 23/74, 20/82 teeth.
     let a = Gearbox {
@@ -101,7 +102,24 @@ pub fn gearboxes() -> Vec<Gearbox> {
         points: vec![(64, (0..8).collect())],
         gears: vec![(0, 20), (1, 19), (2, 22)],
     };
-    vec![a, b]
+    // Two stages at the ends of the issue's 2-6 range per stage, 2.0 and
+    // 5.6 (25/50 and 17/95 teeth): a slow output (11.2:1) and an
+    // intermediate shaft at half the input speed.
+    let c = Gearbox {
+        name: "2-stage 2.0x5.6",
+        ratios: vec![1.0, 1.0 / 2.0, 1.0 / (2.0 * 95.0 / 17.0)],
+        bearings: vec![
+            ("in-de", 0, B6205),
+            ("in-nde", 0, B6203),
+            ("int-de", 1, B6205),
+            ("int-nde", 1, B6203),
+            ("out-de", 2, B6205),
+            ("out-nde", 2, B6203),
+        ],
+        points: vec![(64, (0..6).collect())],
+        gears: vec![(0, 25), (1, 17)],
+    };
+    vec![a, b, c]
 }
 
 /// Speed profiles: constant input speed, and a 2:1 run-down.
