@@ -305,7 +305,9 @@ impl DefectResult {
             .iter()
             .filter(|h| h.counted)
             .map(|h| h.amplitude)
-            .sum()
+            // A fold from +0.0: `Iterator::sum` of floats starts at -0.0, which
+            // printed "-0.00e0" for an empty sum.
+            .fold(0.0, |acc, a| acc + a)
     }
 
     /// Margin over the floor: the prominence of the strongest counted
