@@ -13,6 +13,7 @@ pub mod clock;
 pub mod data;
 pub mod estimate;
 pub mod pages;
+pub mod service;
 pub mod summary;
 
 use crate::error::CliError;
@@ -30,8 +31,8 @@ use std::sync::{Arc, Mutex};
 /// Arguments of `envord gateway web`.
 #[derive(clap::Args, Debug)]
 pub struct WebArgs {
-    /// Gateway database file (must exist).
-    #[arg(long)]
+    /// Gateway store: SQLite file (must exist) or postgres:// URL.
+    #[arg(long, env = "ENVORD_DB")]
     db: String,
     /// Users file (TOML, see `envord gateway user add`).
     #[arg(long)]
@@ -128,6 +129,9 @@ pub struct WebConfig {
     pub secure_cookie: bool,
     /// A node is stale after this long without a report, ms.
     pub stale_after_ms: i64,
+    /// Record the state changes as alarm events (the standalone dashboard);
+    /// off under `gateway serve`, whose alarm evaluation records them.
+    pub record_events: bool,
 }
 
 /// The store and the running summary, behind one lock.
@@ -161,7 +165,7 @@ impl App {
                     .map(|s| ((s.node, s.bearing), b.name.clone()))
             })
             .collect();
-        let mut summary = summary::Summary::new(names);
+        let mut summary = summary::Summary::new(names, cfg.record_events);
         summary
             .refresh(store.as_mut(), Some(clock::now_ms()))
             .map_err(|e| CliError::Other(e.to_string()))?;
@@ -177,6 +181,14 @@ impl App {
         self.inner
             .lock()
             .unwrap_or_else(std::sync::PoisonError::into_inner)
+    }
+
+    /// Brings the summary up to date with the store (new reports folded,
+    /// their nodes graded again), staleness judged at `now_ms`.
+    pub fn refresh(&self, now_ms: i64) -> Result<summary::Refreshed, data::DataError> {
+        let mut inner = self.lock_inner();
+        let Inner { store, summary } = &mut *inner;
+        summary.refresh(store.as_mut(), Some(now_ms))
     }
 
     /// Renders a page by path for a session (the router's handlers and the
@@ -655,10 +667,11 @@ pub fn web_cmd(a: &WebArgs) -> Result<(), CliError> {
         map,
         secure_cookie: a.secure_cookie,
         stale_after_ms: i64::from(a.stale_after_min) * 60_000,
+        record_events: true,
     };
     if !a.listen.ip().is_loopback() {
         eprintln!("warning: listening on {} (not loopback); put a TLS reverse proxy in front and pass --secure-cookie (docs/gateway.md)", a.listen);
     }
-    let store = data::SqliteWeb::open(&a.db)?;
+    let store = data::StoreWeb::open(&a.db)?;
     serve(cfg, Box::new(store), a.listen)
 }
