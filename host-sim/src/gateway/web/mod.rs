@@ -633,6 +633,7 @@ pub async fn serve_on(listener: tokio::net::TcpListener, app: Arc<App>) -> std::
 /// Serves the dashboard at `listen` until interrupted (blocking).
 pub fn serve(cfg: WebConfig, store: Box<dyn WebStore>, listen: SocketAddr) -> Result<(), CliError> {
     let app = Arc::new(App::new(cfg, store)?);
+    service::spawn_refresher(Arc::clone(&app), std::time::Duration::from_secs(5))?;
     let rt = tokio::runtime::Builder::new_current_thread()
         .enable_all()
         .build()

@@ -100,6 +100,22 @@ pub fn start_in_service(web: Option<&ServiceWebConfig>, store_url: &str) -> Resu
     Ok(())
 }
 
+/// Refreshes the dashboard's graded state every `every` on its own thread,
+/// so that a page view only grades what arrived since the last tick (a
+/// regrade costs about one `gateway status` of the nodes with new reports).
+pub fn spawn_refresher(app: Arc<App>, every: Duration) -> Result<(), CliError> {
+    std::thread::Builder::new()
+        .name("web-refresh".into())
+        .spawn(move || loop {
+            std::thread::sleep(every);
+            if let Err(e) = app.refresh(clock::now_ms()) {
+                eprintln!("dashboard refresh: {e}");
+            }
+        })
+        .map(|_| ())
+        .map_err(|e| CliError::Other(format!("web refresh thread: {e}")))
+}
+
 fn run(
     cfg: WebConfig,
     store: Box<dyn data::WebStore>,
@@ -113,16 +129,7 @@ fn run(
         "envord plant view on http://{listen}/ (store folded in {:.1} s)",
         t.elapsed().as_secs_f64()
     );
-    let bg = Arc::clone(&app);
-    std::thread::Builder::new()
-        .name("web-refresh".into())
-        .spawn(move || loop {
-            std::thread::sleep(every);
-            if let Err(e) = bg.refresh(clock::now_ms()) {
-                eprintln!("gateway serve: dashboard refresh: {e}");
-            }
-        })
-        .map_err(|e| CliError::Other(format!("web refresh thread: {e}")))?;
+    spawn_refresher(Arc::clone(&app), every)?;
     let rt = tokio::runtime::Builder::new_current_thread()
         .enable_all()
         .build()
