@@ -24,9 +24,9 @@
     missing_docs
 )]
 
+use host_sim::gateway::db::{self, Db, Val};
 use host_sim::gateway::map::GatewayMap;
 use host_sim::gateway::web::auth::{Role, Session, Users};
-use host_sim::gateway::db::{self, Db, Val};
 use host_sim::gateway::web::{clock, data::StoreWeb, App, WebConfig};
 use std::time::Instant;
 
@@ -228,7 +228,12 @@ fn run(label: &str, url: &str) {
         "\n{label}: start-up (one pass over the store, every node graded, alarm events derived): {:.0} ms",
         t.elapsed().as_secs_f64() * 1000.0
     );
-    time_pages(&app, &s, &format!("{label}, pages (graded state kept)"), &PAGES);
+    time_pages(
+        &app,
+        &s,
+        &format!("{label}, pages (graded state kept)"),
+        &PAGES,
+    );
     println!("\n{label}, after new reports (render = refresh of the new reports' nodes + page)");
     println!(
         "{:<40} {:>10} {:>8} {:>14}",
@@ -299,7 +304,9 @@ fn main() {
     drop(c);
     match std::env::var("ENVORD_TEST_PG_URL") {
         Ok(url) => postgres(&path, &url),
-        Err(_) => println!("\nPostgreSQL: not measured (ENVORD_TEST_PG_URL unset; run under .ci/services.sh)"),
+        Err(_) => println!(
+            "\nPostgreSQL: not measured (ENVORD_TEST_PG_URL unset; run under .ci/services.sh)"
+        ),
     }
     // Without reports_by_node (the index every per-node read and the
     // regrade lead with), on a copy: never drop indexes of a store the
@@ -307,17 +314,27 @@ fn main() {
     let copy = format!("{path}.noidx");
     std::fs::copy(&path, &copy).unwrap();
     let c = rusqlite::Connection::open(&copy).unwrap();
-    c.execute_batch("DROP INDEX IF EXISTS reports_by_node; DROP INDEX IF EXISTS node_status_by_node;")
-        .unwrap();
+    c.execute_batch(
+        "DROP INDEX IF EXISTS reports_by_node; DROP INDEX IF EXISTS node_status_by_node;",
+    )
+    .unwrap();
     drop(c);
     let s = session();
     let mut w = db::open(&copy).unwrap();
     let app = App::new(cfg(), Box::new(StoreWeb::open(&copy).unwrap())).unwrap();
-    time_pages(&app, &s, "SQLite without reports_by_node and node_status_by_node", &PAGES[2..5]);
+    time_pages(
+        &app,
+        &s,
+        "SQLite without reports_by_node and node_status_by_node",
+        &PAGES[2..5],
+    );
     add_reports(w.as_mut(), &[7], 0);
     let t = Instant::now();
     app.render("/", "", &s).unwrap().unwrap();
-    println!("fleet after 1 new report (node 7 graded again): {:.1} ms", t.elapsed().as_secs_f64() * 1000.0);
+    println!(
+        "fleet after 1 new report (node 7 graded again): {:.1} ms",
+        t.elapsed().as_secs_f64() * 1000.0
+    );
     drop(app);
     let _ = std::fs::remove_file(&copy);
 }
@@ -393,7 +410,9 @@ fn postgres(path: &str, url: &str) {
     pg.batch_execute("ANALYZE").unwrap();
     println!(
         "\nPostgreSQL {}: copied the same rows in {:.1} s",
-        pg.query_one("SHOW server_version", &[]).unwrap().get::<_, String>(0),
+        pg.query_one("SHOW server_version", &[])
+            .unwrap()
+            .get::<_, String>(0),
         t.elapsed().as_secs_f64()
     );
     run("PostgreSQL", url);

@@ -20,8 +20,8 @@
 mod serve_common;
 
 use serve_common::{
-    check_exact, day_stream, free_port, pg_database, publish, wait_stored, Broker, Gateway,
-    GwSpec, BIN,
+    check_exact, day_stream, free_port, pg_database, publish, wait_stored, Broker, Gateway, GwSpec,
+    BIN,
 };
 use std::io::Write;
 use std::path::Path;
@@ -51,7 +51,17 @@ fn envord(args: &[&str], store: &str, cwd: &Path) -> Output {
 
 fn add_user(dir: &Path, name: &str, role: &str, pass: &str) {
     let mut c = Command::new(BIN)
-        .args(["gateway", "user", "add", "--users", "users.toml", "--name", name, "--role", role])
+        .args([
+            "gateway",
+            "user",
+            "add",
+            "--users",
+            "users.toml",
+            "--name",
+            name,
+            "--role",
+            role,
+        ])
         .current_dir(dir)
         .stdin(Stdio::piped())
         .stdout(Stdio::piped())
@@ -64,7 +74,11 @@ fn add_user(dir: &Path, name: &str, role: &str, pass: &str) {
         .write_all(format!("{pass}\n").as_bytes())
         .unwrap();
     let o = c.wait_with_output().unwrap();
-    assert!(o.status.success(), "user add: {}", String::from_utf8_lossy(&o.stderr));
+    assert!(
+        o.status.success(),
+        "user add: {}",
+        String::from_utf8_lossy(&o.stderr)
+    );
 }
 
 fn chromium() -> String {
@@ -130,10 +144,18 @@ fn service_filled_dashboard(label: &str, store: &str, dir: &Path) {
     std::thread::sleep(Duration::from_secs(2));
 
     // What the terminal commands print for the same store.
-    let o = envord(&["gateway", "status", "--map", "map.toml", "--json"], store, dir);
+    let o = envord(
+        &["gateway", "status", "--map", "map.toml", "--json"],
+        store,
+        dir,
+    );
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let status: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
-    let o = envord(&["gateway", "trend", "--node", "0", "--bearing", "0"], store, dir);
+    let o = envord(
+        &["gateway", "trend", "--node", "0", "--bearing", "0"],
+        store,
+        dir,
+    );
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let trend_rows = String::from_utf8_lossy(&o.stdout)
         .lines()
@@ -180,7 +202,10 @@ fn service_filled_dashboard(label: &str, store: &str, dir: &Path) {
     let v: serde_json::Value =
         serde_json::from_str(String::from_utf8_lossy(&o.stdout).trim()).unwrap();
 
-    assert_eq!(v["unauth"]["hasLogin"], true, "no session: the login page; {v}");
+    assert_eq!(
+        v["unauth"]["hasLogin"], true,
+        "no session: the login page; {v}"
+    );
     assert_eq!(v["afterLogin"], "/");
     // Fleet == `gateway status` (every channel's worst state).
     let mut want: Vec<(u64, u64, String)> = status["bearings"]
@@ -236,26 +261,51 @@ fn service_filled_dashboard(label: &str, store: &str, dir: &Path) {
         .collect();
     phys.sort();
     gotp.sort();
-    assert_eq!(gotp, phys, "physical bearings vs gateway status --map ({label})");
+    assert_eq!(
+        gotp, phys,
+        "physical bearings vs gateway status --map ({label})"
+    );
     // Bearing page: node 0 bearing 0 draws as many points as `gateway trend` lists.
     let series = v["bearing"].as_array().unwrap();
     let mine: Vec<&serde_json::Value> = series.iter().filter(|s| s["sensor"] == "0-0").collect();
     let points: u64 = mine.iter().map(|s| s["points"].as_u64().unwrap()).sum();
     let drawn: u64 = mine.iter().map(|s| s["drawn"].as_u64().unwrap()).sum();
-    assert_eq!(points as usize, trend_rows, "page points vs gateway trend rows");
-    assert_eq!(drawn as usize, trend_rows, "drawn points vs gateway trend rows");
-    assert!(series.iter().any(|s| s["sensor"] == "1-1"), "the mesh's second sensor");
+    assert_eq!(
+        points as usize, trend_rows,
+        "page points vs gateway trend rows"
+    );
+    assert_eq!(
+        drawn as usize, trend_rows,
+        "drawn points vs gateway trend rows"
+    );
+    assert!(
+        series.iter().any(|s| s["sensor"] == "1-1"),
+        "the mesh's second sensor"
+    );
     // Events (recorded by the service), CSRF and roles.
     assert!(v["events"].as_u64().unwrap() >= 5, "{v}");
     assert!(
-        v["forged"].as_str().unwrap().contains("CSRF token is missing or wrong"),
+        v["forged"]
+            .as_str()
+            .unwrap()
+            .contains("CSRF token is missing or wrong"),
         "{}",
         v["forged"]
     );
-    assert!(v["ackNotice"].as_str().unwrap().contains("acknowledged by ines"), "{}", v["ackNotice"]);
+    assert!(
+        v["ackNotice"]
+            .as_str()
+            .unwrap()
+            .contains("acknowledged by ines"),
+        "{}",
+        v["ackNotice"]
+    );
     assert_eq!(v["viewer"]["ackButtons"], 0);
     assert!(
-        v["viewer"]["ackResult"].as_str().unwrap().contains("needs the operator role"),
+        v["viewer"]["ackResult"]
+            .as_str()
+            .unwrap()
+            .contains("needs the operator role"),
         "{}",
         v["viewer"]
     );

@@ -390,7 +390,16 @@ async fn page(State(app): State<Arc<App>>, uri: axum::http::Uri, headers: Header
             None,
         );
     };
-    let r = app.render(uri.path(), uri.query().unwrap_or(""), &session);
+    // The store clients block (the PostgreSQL one runs its own runtime):
+    // render off the async threads.
+    let (app2, s2) = (app.clone(), session.clone());
+    let (path, query) = (
+        uri.path().to_string(),
+        uri.query().unwrap_or("").to_string(),
+    );
+    let r = tokio::task::spawn_blocking(move || app2.render(&path, &query, &s2))
+        .await
+        .unwrap_or_else(|e| Err(data::DataError::Query(format!("page task: {e}"))));
     secure_headers(match r {
         Ok(Some((ct, body))) => ([(header::CONTENT_TYPE, ct)], body).into_response(),
         Ok(None) => (
@@ -584,14 +593,18 @@ async fn ack(
         );
     }
     let now = clock::now_ms();
-    let mut inner = app.lock_inner();
-    let notice = match inner.store.ack_event(id, &s.user, now) {
-        Ok(true) => format!("Event {id} acknowledged by {}.", s.user),
-        Ok(false) => format!("Event {id} does not exist or was acknowledged already."),
-        Err(e) => e.to_string(),
-    };
-    let body = pages::events_page(&mut inner, &s, &app.cfg, now, Some(&notice));
-    drop(inner);
+    let app2 = app.clone();
+    let body = tokio::task::spawn_blocking(move || {
+        let mut inner = app2.lock_inner();
+        let notice = match inner.store.ack_event(id, &s.user, now) {
+            Ok(true) => format!("Event {id} acknowledged by {}.", s.user),
+            Ok(false) => format!("Event {id} does not exist or was acknowledged already."),
+            Err(e) => e.to_string(),
+        };
+        pages::events_page(&mut inner, &s, &app2.cfg, now, Some(&notice))
+    })
+    .await
+    .unwrap_or_else(|e| Err(data::DataError::Query(format!("ack task: {e}"))));
     secure_headers(match body {
         Ok(b) => axum::response::Html(b).into_response(),
         Err(e) => (StatusCode::INTERNAL_SERVER_ERROR, e.to_string()).into_response(),
