@@ -312,7 +312,12 @@ fn main() {
     // regrade lead with), on a copy: never drop indexes of a store the
     // caller named.
     let copy = format!("{path}.noidx");
-    std::fs::copy(&path, &copy).unwrap();
+    // VACUUM INTO: a consistent copy (a file copy can miss pages in the WAL)
+    let _ = std::fs::remove_file(&copy);
+    rusqlite::Connection::open(&path)
+        .unwrap()
+        .execute_batch(&format!("VACUUM INTO '{copy}'"))
+        .unwrap();
     let c = rusqlite::Connection::open(&copy).unwrap();
     c.execute_batch(
         "DROP INDEX IF EXISTS reports_by_node; DROP INDEX IF EXISTS node_status_by_node;",
