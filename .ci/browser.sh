@@ -6,6 +6,9 @@
 # (host-sim/tests/browser/drive.mjs). A browser that cannot start FAILS it.
 # With ENVORD_WEB_SHOTS=DIR the run writes the page screenshots there
 # (docs/web/ holds the committed ones).
+# `--service`: the dashboard served by `gateway serve` over a store the
+# service fills from the MQTT replay (host-sim/tests/gateway_web_serve.rs,
+# SQLite and PostgreSQL), under .ci/services.sh (Mosquitto, PostgreSQL).
 set -euo pipefail
 cd "$(dirname "$0")/.."
 need=()
@@ -17,6 +20,9 @@ if [ ${#need[@]} -gt 0 ]; then
 fi
 chromium --version
 node --version
-if [ "${1:-}" != "--install-only" ]; then
-  cargo test -p host-sim --locked --test gateway_web
-fi
+case "${1:-}" in
+  --install-only) ;;
+  --service) bash .ci/services.sh cargo test -p host-sim --features service-tests --locked \
+      --test gateway_web_serve -- --test-threads=1 --nocapture ;;
+  *) cargo test -p host-sim --locked --test gateway_web ;;
+esac

@@ -1,15 +1,19 @@
-//! Page times of `envord gateway web` on a large generated SQLite store:
-//! 500 nodes x 2,000 reports (1,000,000 reports, 8,000,000 defect rows, two
-//! bearings of four kinds each), one report per node every 263 min (a year),
-//! a status frame every 100 reports, a developing fault on every 20th node.
-//! Prints figures only; nothing is asserted.
+//! Page times of `envord gateway web` on a large generated store: 500 nodes
+//! x 2,000 reports (1,000,000 reports, 8,000,000 defect rows, two bearings
+//! of four kinds each), one report per node every 263 min (a year), a
+//! status frame every 100 reports, a developing fault on every 20th node.
+//! Measured on SQLite and, when `ENVORD_TEST_PG_URL` names a PostgreSQL
+//! database (`.ci/services.sh` starts one), on a copy of the same rows in
+//! PostgreSQL. Also times the refresh after new reports (the graded state
+//! is kept; only nodes with new reports are graded again). Prints figures
+//! only; nothing is asserted.
 //!
 //! ```text
-//! cargo run --release --example web_bench [-- STORE.sqlite]
+//! .ci/services.sh cargo run --release -p host-sim --example web_bench [-- STORE.sqlite]
 //! ```
 //!
-//! With a path the store is kept (and reused when it exists); the runs
-//! without indexes use a copy beside it, removed afterwards.
+//! With a path the store is kept (and reused when it exists); the run
+//! without the dashboard's indexes uses a copy beside it, removed afterwards.
 #![allow(
     clippy::unwrap_used,
     clippy::expect_used,
@@ -20,9 +24,10 @@
     missing_docs
 )]
 
+use host_sim::gateway::db::{self, Db, Val};
 use host_sim::gateway::map::GatewayMap;
 use host_sim::gateway::web::auth::{Role, Session, Users};
-use host_sim::gateway::web::{clock, data::SqliteWeb, App, WebConfig};
+use host_sim::gateway::web::{clock, data::StoreWeb, App, WebConfig};
 use std::time::Instant;
 
 const NODES: u16 = 500;
@@ -144,6 +149,133 @@ fn time_pages(app: &App, s: &Session, label: &str, pages: &[(&str, &str, &str)])
     }
 }
 
+const PAGES: [(&str, &str, &str); 9] = [
+    ("fleet (1000 channels)", "/", ""),
+    ("fleet, danger only", "/", "state=danger"),
+    ("bearing node 0 b0", "/bearing/0/0", ""),
+    ("bearing node 250 b1", "/bearing/250/1", ""),
+    ("node 0", "/node/0", ""),
+    ("alarm events", "/events", ""),
+    ("export fleet.csv", "/export/fleet.csv", ""),
+    ("export fleet.json", "/export/fleet.json", ""),
+    (
+        "export trend.csv node 0 b0",
+        "/export/trend.csv",
+        "node=0&bearing=0",
+    ),
+];
+
+fn cfg() -> WebConfig {
+    WebConfig {
+        users: Users::default(),
+        map: Some(map()),
+        secure_cookie: false,
+        stale_after_ms: 3 * 3_600_000,
+        record_events: true,
+    }
+}
+
+fn session() -> Session {
+    Session {
+        user: "bench".into(),
+        role: Role::Operator,
+        csrf: "x".into(),
+        expires_ms: i64::MAX,
+    }
+}
+
+/// Stores one new report (8 defect rows) for each of `nodes` through the
+/// store trait (what the service's ingest adds between two page views).
+fn add_reports(db: &mut dyn Db, nodes: &[u16], round: u16) {
+    let now = clock::now_ms();
+    db.begin().unwrap();
+    for &n in nodes {
+        let seq = 2_000 + round;
+        let r = db
+            .query(
+                "INSERT INTO reports (node_id, seq, frame_type, payload, rx_time, rx_time_ms, source, line, flags, speed_rpm, json)
+                 VALUES (?1, ?2, 'full', ?3, ?4, ?5, 'bench', 0, 0, 1480.0, '{}') RETURNING id",
+                &[
+                    n.into(),
+                    seq.into(),
+                    Val::Blob([n.to_be_bytes(), seq.to_be_bytes()].concat()),
+                    clock::rfc3339(now).into(),
+                    now.into(),
+                ],
+            )
+            .unwrap();
+        let id = r[0][0].int("id").unwrap();
+        for b in 0..2u8 {
+            for kind in ["bpfo", "bpfi", "ftf", "bsf"] {
+                db.execute(
+                    "INSERT INTO defects (report_id, bearing, kind, score_db, amplitude_1x_g, harmonics, detected)
+                     VALUES (?1, ?2, ?3, 5.0, 0.0036, 1, 0)",
+                    &[id.into(), b.into(), kind.into()],
+                )
+                .unwrap();
+            }
+        }
+    }
+    db.commit().unwrap();
+}
+
+/// Start-up, every page, then the refresh after new reports.
+fn run(label: &str, url: &str) {
+    let s = session();
+    let t = Instant::now();
+    let app = App::new(cfg(), Box::new(StoreWeb::open(url).unwrap())).unwrap();
+    println!(
+        "\n{label}: start-up (one pass over the store, every node graded, alarm events derived): {:.0} ms",
+        t.elapsed().as_secs_f64() * 1000.0
+    );
+    time_pages(
+        &app,
+        &s,
+        &format!("{label}, pages (graded state kept)"),
+        &PAGES,
+    );
+    println!("\n{label}, after new reports (render = refresh of the new reports' nodes + page)");
+    println!(
+        "{:<40} {:>10} {:>8} {:>14}",
+        "new reports", "fleet ms", "graded", "next fleet ms"
+    );
+    let mut w = db::open(url).unwrap();
+    for (round, nodes) in [
+        vec![7u16],
+        (0..10u16).map(|n| n * 50).collect(),
+        (0..50u16).map(|n| n * 10).collect::<Vec<u16>>(),
+    ]
+    .iter()
+    .enumerate()
+    {
+        add_reports(w.as_mut(), nodes, round as u16);
+        let t = Instant::now();
+        let r = app.refresh(clock::now_ms()).unwrap();
+        app.render("/", "", &s).unwrap().unwrap();
+        let ms = t.elapsed().as_secs_f64() * 1000.0;
+        let t = Instant::now();
+        app.render("/", "", &s).unwrap().unwrap();
+        let next = t.elapsed().as_secs_f64() * 1000.0;
+        println!(
+            "{:<40} {ms:>10.1} {:>8} {next:>14.1}",
+            format!("1 report on each of {} node(s)", nodes.len()),
+            r.nodes_graded
+        );
+    }
+    // the bench's new reports are left out of the next run's store
+    w.execute("DELETE FROM alarm_events", &[]).unwrap();
+    w.execute(
+        "DELETE FROM defects WHERE report_id IN (SELECT id FROM reports WHERE source = 'bench' AND line = 0)",
+        &[],
+    )
+    .unwrap();
+    w.execute(
+        "DELETE FROM reports WHERE source = 'bench' AND line = 0",
+        &[],
+    )
+    .unwrap();
+}
+
 fn main() {
     let arg = std::env::args().nth(1);
     let dir = tempfile::tempdir().unwrap();
@@ -156,97 +288,150 @@ fn main() {
     if !std::path::Path::new(&path).exists() {
         generate(&path);
     }
-    let cfg = || WebConfig {
-        users: Users::default(),
-        map: Some(map()),
-        secure_cookie: false,
-        stale_after_ms: 3 * 3_600_000,
-    };
-    let s = Session {
-        user: "bench".into(),
-        role: Role::Operator,
-        csrf: "x".into(),
-        expires_ms: i64::MAX,
-    };
-    let t = Instant::now();
-    let app = App::new(cfg(), Box::new(SqliteWeb::open(&path).unwrap())).unwrap();
-    println!(
-        "start-up (one pass over the store into the summary, alarm events derived): {:.0} ms",
-        t.elapsed().as_secs_f64() * 1000.0
-    );
-    let pages = [
-        ("fleet (1000 channels)", "/", ""),
-        ("fleet, danger only", "/", "state=danger"),
-        ("bearing node 0 b0", "/bearing/0/0", ""),
-        ("bearing node 250 b1", "/bearing/250/1", ""),
-        ("node 0", "/node/0", ""),
-        ("alarm events", "/events", ""),
-        ("export fleet.csv", "/export/fleet.csv", ""),
-        ("export fleet.json", "/export/fleet.json", ""),
-        (
-            "export trend.csv node 0 b0",
-            "/export/trend.csv",
-            "node=0&bearing=0",
-        ),
-    ];
-    time_pages(&app, &s, "SQLite, schema with migration 4 indexes", &pages);
-    postgres_note();
-    // One new report per node since start-up: what a refresh costs.
-    drop(app);
+    run("SQLite", &path);
     let c = rusqlite::Connection::open(&path).unwrap();
     for (name, sql) in [
+        ("one node's points (regrade)", "EXPLAIN QUERY PLAN SELECT r.id FROM defects d JOIN reports r ON r.id = d.report_id WHERE 1 = 1 AND r.node_id IN (7) ORDER BY r.id, d.bearing, d.kind"),
         ("reports of one sensor", "EXPLAIN QUERY PLAN SELECT r.id FROM reports r CROSS JOIN defects d ON d.report_id = r.id AND d.bearing = 0 WHERE r.node_id = 7 ORDER BY r.id, d.kind"),
+        ("new reports", "EXPLAIN QUERY PLAN SELECT r.id FROM reports r LEFT JOIN defects d ON d.report_id = r.id WHERE r.id > 5 AND r.id <= 9 ORDER BY r.id, d.bearing, d.kind"),
         ("status frames of one node", "EXPLAIN QUERY PLAN SELECT id FROM node_status WHERE node_id = 7 ORDER BY id"),
         ("latest status per node", "EXPLAIN QUERY PLAN SELECT node_id FROM node_status WHERE id IN (SELECT MAX(id) FROM node_status GROUP BY node_id)"),
-        ("event already stored?", "EXPLAIN QUERY PLAN SELECT 1 FROM alarm_events WHERE report_id = 5 AND node_id = 1 AND bearing = '0' AND kind = 'bpfo' AND event = 'enter' AND state_to = 'alert'"),
     ] {
         let mut st = c.prepare(sql).unwrap();
         let plan: Vec<String> = st.query_map([], |r| r.get::<_, String>(3)).unwrap().map(Result::unwrap).collect();
-        println!("plan, {name}: {}", plan.join(" / "));
+        println!("SQLite plan, {name}: {}", plan.join(" / "));
     }
-    // Without the dashboard's indexes (migration 4) and without reports_by_node
-    // (v3), on a copy: never drop indexes of a store the caller named.
+    drop(c);
+    match std::env::var("ENVORD_TEST_PG_URL") {
+        Ok(url) => postgres(&path, &url),
+        Err(_) => println!(
+            "\nPostgreSQL: not measured (ENVORD_TEST_PG_URL unset; run under .ci/services.sh)"
+        ),
+    }
+    // Without reports_by_node (the index every per-node read and the
+    // regrade lead with), on a copy: never drop indexes of a store the
+    // caller named.
     let copy = format!("{path}.noidx");
-    std::fs::copy(&path, &copy).unwrap();
-    let path = copy;
+    // VACUUM INTO: a consistent copy (a file copy can miss pages in the WAL)
+    let _ = std::fs::remove_file(&copy);
+    rusqlite::Connection::open(&path)
+        .unwrap()
+        .execute_batch(&format!("VACUUM INTO '{copy}'"))
+        .unwrap();
+    let c = rusqlite::Connection::open(&copy).unwrap();
     c.execute_batch(
-        "DROP INDEX IF EXISTS node_status_by_node; DROP INDEX IF EXISTS alarm_events_by_report;",
+        "DROP INDEX IF EXISTS reports_by_node; DROP INDEX IF EXISTS node_status_by_node;",
     )
     .unwrap();
     drop(c);
-    let app = App::new(
-        cfg(),
-        Box::new(SqliteWeb::from_connection(
-            rusqlite::Connection::open(&path).unwrap(),
-        )),
-    )
-    .unwrap();
+    let s = session();
+    let mut w = db::open(&copy).unwrap();
+    let app = App::new(cfg(), Box::new(StoreWeb::open(&copy).unwrap())).unwrap();
     time_pages(
         &app,
         &s,
-        "SQLite without migration 4's indexes",
-        &pages[2..6],
+        "SQLite without reports_by_node and node_status_by_node",
+        &PAGES[2..5],
+    );
+    add_reports(w.as_mut(), &[7], 0);
+    let t = Instant::now();
+    app.render("/", "", &s).unwrap().unwrap();
+    println!(
+        "fleet after 1 new report (node 7 graded again): {:.1} ms",
+        t.elapsed().as_secs_f64() * 1000.0
     );
     drop(app);
-    let c = rusqlite::Connection::open(&path).unwrap();
-    c.execute_batch("DROP INDEX IF EXISTS reports_by_node;")
-        .unwrap();
-    drop(c);
-    let app = App::new(
-        cfg(),
-        Box::new(SqliteWeb::from_connection(
-            rusqlite::Connection::open(&path).unwrap(),
-        )),
-    )
-    .unwrap();
-    time_pages(
-        &app,
-        &s,
-        "SQLite without reports_by_node (schema v3's index) either",
-        &pages[2..5],
-    );
+    let _ = std::fs::remove_file(&copy);
 }
 
-fn postgres_note() {
-    println!("\nPostgreSQL: not measured (no PostgreSQL store behind the dashboard's WebStore trait in this build).");
+/// Copies the generated rows into PostgreSQL (COPY, schema by the gateway's
+/// own migrations), then runs the same measurements.
+fn postgres(path: &str, url: &str) {
+    let mut pg = postgres::Client::connect(url, postgres::NoTls).unwrap();
+    pg.batch_execute("DROP SCHEMA public CASCADE; CREATE SCHEMA public;")
+        .unwrap();
+    drop(db::open(url).unwrap()); // creates the schema (migrations)
+    let c = rusqlite::Connection::open(path).unwrap();
+    let t = Instant::now();
+    for table in ["reports", "defects", "node_status"] {
+        let cols: Vec<String> = c
+            .prepare(&format!("SELECT name FROM pragma_table_info('{table}')"))
+            .unwrap()
+            .query_map([], |r| r.get(0))
+            .unwrap()
+            .map(Result::unwrap)
+            .collect();
+        let list = cols.join(", ");
+        let mut w = pg
+            .copy_in(&format!("COPY {table} ({list}) FROM STDIN"))
+            .unwrap();
+        let mut st = c.prepare(&format!("SELECT {list} FROM {table}")).unwrap();
+        let mut rows = st.query([]).unwrap();
+        let mut buf = String::new();
+        while let Some(r) = rows.next().unwrap() {
+            for i in 0..cols.len() {
+                if i > 0 {
+                    buf.push('\t');
+                }
+                use rusqlite::types::ValueRef as V;
+                match r.get_ref(i).unwrap() {
+                    V::Null => buf.push_str("\\N"),
+                    V::Integer(v) => buf.push_str(&v.to_string()),
+                    V::Real(v) => buf.push_str(&format!("{v:?}")),
+                    V::Text(t) => {
+                        for ch in String::from_utf8_lossy(t).chars() {
+                            match ch {
+                                '\\' => buf.push_str("\\\\"),
+                                '\t' => buf.push_str("\\t"),
+                                '\n' => buf.push_str("\\n"),
+                                '\r' => buf.push_str("\\r"),
+                                c => buf.push(c),
+                            }
+                        }
+                    }
+                    V::Blob(b) => {
+                        buf.push_str("\\\\x");
+                        for x in b {
+                            buf.push_str(&format!("{x:02x}"));
+                        }
+                    }
+                }
+            }
+            buf.push('\n');
+            if buf.len() > 1 << 20 {
+                std::io::Write::write_all(&mut w, buf.as_bytes()).unwrap();
+                buf.clear();
+            }
+        }
+        std::io::Write::write_all(&mut w, buf.as_bytes()).unwrap();
+        w.finish().unwrap();
+        if cols.iter().any(|c| c == "id") {
+            pg.batch_execute(&format!(
+                "SELECT setval(pg_get_serial_sequence('{table}', 'id'), (SELECT MAX(id) FROM {table}))"
+            ))
+            .unwrap();
+        }
+    }
+    pg.batch_execute("ANALYZE").unwrap();
+    println!(
+        "\nPostgreSQL {}: copied the same rows in {:.1} s",
+        pg.query_one("SHOW server_version", &[])
+            .unwrap()
+            .get::<_, String>(0),
+        t.elapsed().as_secs_f64()
+    );
+    run("PostgreSQL", url);
+    for (name, sql) in [
+        ("one node's points (regrade)", "EXPLAIN SELECT r.id FROM defects d JOIN reports r ON r.id = d.report_id WHERE 1 = 1 AND r.node_id IN (7) ORDER BY r.id, d.bearing, d.kind"),
+        ("reports of one sensor", "EXPLAIN SELECT r.id FROM reports r JOIN defects d ON d.report_id = r.id AND d.bearing = 0 WHERE r.node_id = 7 ORDER BY r.id, d.kind"),
+        ("status frames of one node", "EXPLAIN SELECT id FROM node_status WHERE node_id = 7 ORDER BY id"),
+    ] {
+        let plan: Vec<String> = pg
+            .query(sql, &[])
+            .unwrap()
+            .iter()
+            .map(|r| r.get::<_, String>(0).trim().to_string())
+            .collect();
+        println!("PostgreSQL plan, {name}: {}", plan.join(" / "));
+    }
 }

@@ -576,6 +576,7 @@ pub fn serve_cmd(a: &ServeArgs) -> Result<(), CliError> {
     if let Some(addr) = &cfg.log.health_http {
         health_http(addr, Arc::clone(&health), log)?;
     }
+    super::web::service::start_in_service(cfg.web.as_ref(), &url)?;
     let connected = Arc::new(AtomicBool::new(false));
     let stopping = Arc::new(AtomicBool::new(false));
     // Bounded by the receive window: a broker that sends past it (Mosquitto

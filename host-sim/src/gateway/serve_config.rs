@@ -26,6 +26,8 @@ pub struct ServeConfig {
     /// Logs and health.
     #[serde(default)]
     pub log: LogConfig,
+    /// The dashboard, served from the same process and store (optional).
+    pub web: Option<super::web::service::ServiceWebConfig>,
 }
 
 /// MQTT protocol version.

@@ -285,6 +285,37 @@ pub fn grade_line(points: &[&Point], l: &Limits) -> Vec<Graded> {
     out
 }
 
+/// The newest receive time of each node's points (staleness is judged
+/// against it).
+pub fn node_last(points: &[Point]) -> BTreeMap<u16, i64> {
+    let mut last: BTreeMap<u16, i64> = BTreeMap::new();
+    for p in points {
+        if let Some(t) = p.time_ms {
+            let e = last.entry(p.node).or_insert(t);
+            *e = (*e).max(t);
+        }
+    }
+    last
+}
+
+/// Marks a line stale when its node (newest receive time `node_last`) is
+/// silent for longer than its limits' `stale_after_s` at `now_ms`: a state
+/// up to NORMAL then reads STALE. `st` must be the line's state as graded
+/// with no reference time (so a cached state can be judged again later).
+pub fn mark_stale(st: &mut DefectState, node_last: Option<i64>, now_ms: Option<i64>) {
+    st.stale = match (now_ms, node_last, st.limits.stale_after_s) {
+        (Some(now), Some(t), Some(s)) => {
+            #[allow(clippy::cast_precision_loss)] // ms spans far below 2^52
+            let silent_s = (now - t) as f64 / 1000.0;
+            silent_s > s
+        }
+        _ => false,
+    };
+    if st.stale && st.state <= State::Normal {
+        st.state = State::Stale;
+    }
+}
+
 /// Grades every line of `points`; `limits_of` gives each line's limits;
 /// `now_ms` is the reference time for staleness (None: never stale).
 pub fn evaluate(
@@ -293,37 +324,22 @@ pub fn evaluate(
     now_ms: Option<i64>,
 ) -> Vec<Line> {
     let mut groups: BTreeMap<(u16, u8, String), Vec<&Point>> = BTreeMap::new();
-    let mut node_last: BTreeMap<u16, i64> = BTreeMap::new();
     for p in points {
         groups
             .entry((p.node, p.bearing, p.kind.clone()))
             .or_default()
             .push(p);
-        if let Some(t) = p.time_ms {
-            let e = node_last.entry(p.node).or_insert(t);
-            *e = (*e).max(t);
-        }
     }
+    let node_last = node_last(points);
     groups
         .into_iter()
         .map(|((node, bearing, kind), list)| {
             let limits = limits_of(node, bearing, &kind);
             let history = grade_line(&list, &limits);
             let last = history.last();
-            let stale = match (now_ms, node_last.get(&node), limits.stale_after_s) {
-                (Some(now), Some(t), Some(s)) => {
-                    #[allow(clippy::cast_precision_loss)] // ms spans far below 2^52
-                    let silent_s = (now - t) as f64 / 1000.0;
-                    silent_s > s
-                }
-                _ => false,
-            };
-            let mut state = last.map_or(State::NoData, |g| g.state);
-            if stale && state <= State::Normal {
-                state = State::Stale;
-            }
+            let node_last = node_last.get(&node).copied();
             let band_changes = history.iter().filter(|g| g.band_changed).count();
-            let st = DefectState {
+            let mut st = DefectState {
                 node,
                 bearing,
                 kind,
@@ -341,9 +357,10 @@ pub fn evaluate(
                 last_time_ms: last.and_then(|g| g.point.time_ms),
                 band_hz: last.and_then(|g| g.point.band_hz),
                 band_changes,
-                stale,
-                state,
+                stale: false,
+                state: last.map_or(State::NoData, |g| g.state),
             };
+            mark_stale(&mut st, node_last, now_ms);
             Line { history, state: st }
         })
         .collect()

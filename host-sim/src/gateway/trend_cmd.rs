@@ -45,6 +45,23 @@ pub fn grade_db(
     now: Option<i64>,
     nodes: Option<&[u16]>,
 ) -> Result<Vec<Line>, CliError> {
+    let (mut lines, last) = grade_db_unstaled(conn, db, nodes)?;
+    for l in &mut lines {
+        let t = last.get(&l.state.node).copied();
+        trend::mark_stale(&mut l.state, t, now);
+    }
+    Ok(lines)
+}
+
+/// [`grade_db`] with no reference time (no line stale) and each node's
+/// newest receive time, so that a caller keeping the lines (the dashboard)
+/// can judge staleness later with [`trend::mark_stale`] and get what
+/// [`grade_db`] would give at that time.
+pub fn grade_db_unstaled(
+    conn: &mut dyn super::db::Db,
+    db: &str,
+    nodes: Option<&[u16]>,
+) -> Result<(Vec<Line>, std::collections::BTreeMap<u16, i64>), CliError> {
     let shown = super::db::redact(db);
     let sql = |e: super::db::DbError| CliError::Other(format!("{shown}: {e}"));
     let mut points = series::points(conn, nodes).map_err(sql)?;
@@ -58,6 +75,7 @@ pub fn grade_db(
     let reduced = super::as_before::reduced_reports(conn, nodes).map_err(sql)?;
     let points = super::as_before::expand(points, &reduced);
     let rows = limits::rows(conn).map_err(sql)?;
+    let last = trend::node_last(&points);
     let bad: std::cell::RefCell<Option<String>> = std::cell::RefCell::new(None);
     let lines = trend::evaluate(
         &points,
@@ -69,14 +87,14 @@ pub fn grade_db(
             }
             l
         },
-        now,
+        None,
     );
     match bad.into_inner() {
         Some(m) => Err(CliError::input(
             &shown,
             format!("stored limits unusable ({m}); fix them with `envord gateway limits set`"),
         )),
-        None => Ok(lines),
+        None => Ok((lines, last)),
     }
 }
 

@@ -1,9 +1,13 @@
 //! The dashboard's read queries (and its two writes: derived alarm events and
-//! acknowledgements) behind a small trait, so that a PostgreSQL store can be
-//! added beside the SQLite one.
+//! acknowledgements) behind a small trait, written once over the store trait
+//! [`crate::gateway::db::Db`], so the dashboard runs on SQLite and
+//! PostgreSQL alike.
 
-use crate::gateway::store::{self, NodeStatus};
-use rusqlite::{params, Connection, OpenFlags, OptionalExtension};
+use crate::gateway::db::{self, Db, DbError, Row, Val};
+use crate::gateway::limits::LimitRow;
+use crate::gateway::store::{self, col, u16_of, u8_of, NodeStatus};
+use crate::gateway::trend::Line;
+use std::collections::BTreeMap;
 use std::fmt;
 
 /// A failed store query.
@@ -23,8 +27,8 @@ impl fmt::Display for DataError {
 
 impl std::error::Error for DataError {}
 
-impl From<rusqlite::Error> for DataError {
-    fn from(e: rusqlite::Error) -> Self {
+impl From<DbError> for DataError {
+    fn from(e: DbError) -> Self {
         DataError::Query(e.to_string())
     }
 }
@@ -153,10 +157,22 @@ pub struct NewEvent {
     pub report_id: i64,
 }
 
+/// Lines graded with no reference time (never stale) and each node's
+/// newest receive time, from which staleness is judged at render time
+/// ([`crate::gateway::trend::mark_stale`]).
+pub type GradedNodes = (Vec<Line>, BTreeMap<u16, i64>);
+
 /// What the dashboard reads from (and the two things it writes to) a store.
 pub trait WebStore: Send {
-    /// Reports with id > `after` in id order, with their defect rows.
-    fn reports_after(&mut self, after: i64, f: &mut dyn FnMut(ReportRow)) -> Result<(), DataError>;
+    /// Reports with `after` < id <= `upto` in id order, with their defect rows.
+    fn reports_between(
+        &mut self,
+        after: i64,
+        upto: i64,
+        f: &mut dyn FnMut(ReportRow),
+    ) -> Result<(), DataError>;
+    /// The largest report id stored (0 when none).
+    fn max_report_id(&mut self) -> Result<i64, DataError>;
     /// Every report of one node with only the rows of one bearing index.
     fn sensor_reports(&mut self, node: u16, bearing: u8) -> Result<Vec<ReportRow>, DataError>;
     /// The newest `limit` reports of one node, newest first, all rows.
@@ -165,8 +181,6 @@ pub trait WebStore: Send {
     fn node_arrivals(&mut self, node: u16) -> Result<Vec<Arrival>, DataError>;
     /// The JSON document of one report.
     fn report_json(&mut self, id: i64) -> Result<Option<String>, DataError>;
-    /// Hand-set baselines: (node, bearing, kind, dB).
-    fn manual_baselines(&mut self) -> Result<Vec<(u16, u8, String, f64)>, DataError>;
     /// The latest status frame of every node.
     fn latest_status(&mut self) -> Result<Vec<NodeStatus>, DataError>;
     /// Status frames of one node, oldest first.
@@ -178,83 +192,88 @@ pub trait WebStore: Send {
     fn record_events(&mut self, ev: &[NewEvent]) -> Result<usize, DataError>;
     /// Acknowledges an event; false if it does not exist or is acknowledged.
     fn ack_event(&mut self, id: i64, by: &str, at_ms: i64) -> Result<bool, DataError>;
-    /// Every line graded exactly as `gateway status` grades it (stored
-    /// limits, decided order, reduced frames read "as before"), staleness
-    /// judged at `now_ms`.
-    fn graded(
-        &mut self,
-        now_ms: Option<i64>,
-    ) -> Result<Vec<crate::gateway::trend::Line>, DataError>;
+    /// The stored limit rows (a change regrades every line).
+    fn limit_rows(&mut self) -> Result<Vec<LimitRow>, DataError>;
+    /// The lines of these nodes graded exactly as `gateway status` grades
+    /// them (`trend_cmd::grade_db`: stored limits, decided order, reduced
+    /// frames read "as before"), without staleness.
+    fn graded_nodes(&mut self, nodes: &[u16]) -> Result<GradedNodes, DataError>;
 }
 
-/// The SQLite store.
-pub struct SqliteWeb {
-    conn: Connection,
+/// The dashboard's store on either backend.
+pub struct StoreWeb {
+    db: Box<dyn Db + Send>,
+    /// The store URL, redacted (for messages).
+    name: String,
 }
 
-impl SqliteWeb {
-    /// Opens an existing store (migrating it to this build's schema).
-    pub fn open(path: &str) -> Result<Self, crate::error::CliError> {
-        // Refuse to create an empty store by a typo in --db.
-        Connection::open_with_flags(path, OpenFlags::SQLITE_OPEN_READ_ONLY).map_err(|e| {
-            crate::error::CliError::input(path, format!("cannot open the store: {e}"))
-        })?;
+impl StoreWeb {
+    /// Opens an existing store: a SQLite file (migrated to this build's
+    /// schema) or a `postgres://` URL.
+    pub fn open(url: &str) -> Result<Self, crate::error::CliError> {
         Ok(Self {
-            conn: store::open(path)?,
+            db: db::open_mode(url, db::Mode::Existing)?,
+            name: db::redact(url),
         })
     }
 
-    /// Wraps an open connection.
-    pub fn from_connection(conn: Connection) -> Self {
-        Self { conn }
+    /// Wraps an open store connection.
+    pub fn from_db(db: Box<dyn Db + Send>, name: &str) -> Self {
+        Self {
+            db,
+            name: db::redact(name),
+        }
     }
 }
 
 const REPORT_COLS: &str = "r.id, r.node_id, r.seq, r.frame_type, r.rx_time, r.rx_time_ms, r.flags, r.rssi_dbm, r.snr_db, r.speed_rpm, r.payload";
 
-fn report_of(r: &rusqlite::Row<'_>) -> rusqlite::Result<ReportRow> {
+fn report_of(r: &Row) -> Result<ReportRow, DbError> {
     Ok(ReportRow {
-        id: r.get(0)?,
-        node: r.get(1)?,
-        seq: r.get(2)?,
-        frame_type: r.get(3)?,
-        rx_time: r.get(4)?,
-        rx_time_ms: r.get(5)?,
-        flags: r.get(6)?,
-        rssi_dbm: r.get(7)?,
-        snr_db: r.get(8)?,
-        speed_rpm: r.get(9)?,
-        payload: r.get(10)?,
+        id: col(r, 0).int("id")?,
+        node: u16_of(col(r, 1), "node_id")?,
+        seq: u16_of(col(r, 2), "seq")?,
+        frame_type: col(r, 3).text("frame_type")?,
+        rx_time: col(r, 4).opt_text(),
+        rx_time_ms: col(r, 5).opt_int(),
+        flags: u16::try_from(col(r, 6).opt_int().unwrap_or(0))
+            .map_err(|_| DbError::Type("flags: out of range".into()))?,
+        rssi_dbm: col(r, 7).opt_real(),
+        snr_db: col(r, 8).opt_real(),
+        speed_rpm: col(r, 9).opt_real(),
+        payload: col(r, 10).blob("payload")?,
         defects: Vec::new(),
     })
 }
 
-fn defect_of(r: &rusqlite::Row<'_>, at: usize) -> rusqlite::Result<DefectRow> {
-    Ok(DefectRow {
-        bearing: r.get(at)?,
-        kind: r.get(at + 1)?,
-        score_db: r.get(at + 2)?,
-        detected: r.get(at + 3)?,
-        amplitude_1x_g: r.get(at + 4)?,
-        harmonics: r.get(at + 5)?,
-    })
+/// The defect columns at `at`, None when the LEFT JOIN found no row.
+fn defect_of(r: &Row, at: usize) -> Result<Option<DefectRow>, DbError> {
+    if col(r, at) == &Val::Int(None) {
+        return Ok(None);
+    }
+    Ok(Some(DefectRow {
+        bearing: u8_of(col(r, at), "bearing")?,
+        kind: col(r, at + 1).text("kind")?,
+        score_db: col(r, at + 2).opt_real(),
+        detected: col(r, at + 3).opt_int().is_some_and(|d| d != 0),
+        amplitude_1x_g: col(r, at + 4).opt_real(),
+        harmonics: col(r, at + 5).opt_int(),
+    }))
 }
 
 /// Groups (report, defect) join rows into reports.
-fn grouped(
-    rows: impl Iterator<Item = rusqlite::Result<(ReportRow, Option<DefectRow>)>>,
-    f: &mut dyn FnMut(ReportRow),
-) -> Result<(), DataError> {
+fn grouped(rows: &[Row], f: &mut dyn FnMut(ReportRow)) -> Result<(), DataError> {
     let mut cur: Option<ReportRow> = None;
     for row in rows {
-        let (rep, d) = row?;
+        let id = col(row, 0).int("id")?;
+        let d = defect_of(row, 11)?;
         match cur.as_mut() {
-            Some(c) if c.id == rep.id => c.defects.extend(d),
+            Some(c) if c.id == id => c.defects.extend(d),
             _ => {
                 if let Some(done) = cur.take() {
                     f(done);
                 }
-                let mut rep = rep;
+                let mut rep = report_of(row)?;
                 rep.defects.extend(d);
                 cur = Some(rep);
             }
@@ -269,212 +288,236 @@ fn grouped(
 const DEFECT_COLS: &str =
     "d.bearing, d.kind, d.score_db, d.detected, d.amplitude_1x_g, d.harmonics";
 
-fn status_of(r: &rusqlite::Row<'_>) -> rusqlite::Result<StatusRow> {
-    let rx_time: Option<String> = r.get(3)?;
-    let ms: Option<i64> = r.get(12)?;
+fn status_of(r: &Row) -> Result<StatusRow, DbError> {
+    let rx_time = col(r, 3).opt_text();
+    let ms = col(r, 12).opt_int();
+    let u32_of = |i: usize, name: &str| -> Result<u32, DbError> {
+        u32::try_from(col(r, i).int(name)?)
+            .map_err(|_| DbError::Type(format!("{name}: out of range")))
+    };
     Ok(StatusRow {
-        id: r.get(0)?,
+        id: col(r, 0).int("id")?,
         time_ms: ms.or_else(|| rx_time.as_deref().and_then(super::clock::parse_rfc3339_ms)),
         status: NodeStatus {
-            node: r.get(1)?,
-            seq: r.get(2)?,
+            node: u16_of(col(r, 1), "node_id")?,
+            seq: u16_of(col(r, 2), "seq")?,
             rx_time,
-            downlink_counter: r.get(4)?,
-            last_downlink: r.get(5)?,
-            refused_downlinks: r.get(6)?,
-            survey: r.get(7)?,
-            band_source: r.get(8)?,
-            band_hz: [r.get(9)?, r.get(10)?],
-            band_kurtosis: r.get(11)?,
+            downlink_counter: u32_of(4, "downlink_counter")?,
+            last_downlink: col(r, 5).text("last_downlink")?,
+            refused_downlinks: u8::try_from(col(r, 6).int("refused_downlinks")?)
+                .map_err(|_| DbError::Type("refused_downlinks: out of range".into()))?,
+            survey: col(r, 7).text("survey")?,
+            band_source: col(r, 8).text("band_source")?,
+            band_hz: [
+                col(r, 9).real("band_lo_hz")?,
+                col(r, 10).real("band_hi_hz")?,
+            ],
+            band_kurtosis: col(r, 11).opt_real(),
         },
     })
 }
 
-impl WebStore for SqliteWeb {
-    fn graded(
-        &mut self,
-        now_ms: Option<i64>,
-    ) -> Result<Vec<crate::gateway::trend::Line>, DataError> {
-        crate::gateway::trend_cmd::grade_store(&self.conn, "store", now_ms)
+fn lim(limit: usize) -> Val {
+    Val::Int(Some(i64::try_from(limit).unwrap_or(i64::MAX)))
+}
+
+impl WebStore for StoreWeb {
+    fn graded_nodes(&mut self, nodes: &[u16]) -> Result<GradedNodes, DataError> {
+        crate::gateway::trend_cmd::grade_db_unstaled(self.db.as_mut(), &self.name, Some(nodes))
             .map_err(|e| DataError::Query(e.to_string()))
     }
-    fn reports_after(&mut self, after: i64, f: &mut dyn FnMut(ReportRow)) -> Result<(), DataError> {
-        let tx = self.conn.transaction()?;
-        {
-            let mut stmt = tx.prepare_cached(&format!(
+
+    fn limit_rows(&mut self) -> Result<Vec<LimitRow>, DataError> {
+        Ok(crate::gateway::limits::rows(self.db.as_mut())?)
+    }
+
+    fn max_report_id(&mut self) -> Result<i64, DataError> {
+        let rows = self
+            .db
+            .query("SELECT COALESCE(MAX(id), 0) FROM reports", &[])?;
+        Ok(rows.first().map_or(0, |r| col(r, 0).opt_int().unwrap_or(0)))
+    }
+
+    fn reports_between(
+        &mut self,
+        after: i64,
+        upto: i64,
+        f: &mut dyn FnMut(ReportRow),
+    ) -> Result<(), DataError> {
+        let rows = self.db.query(
+            &format!(
                 "SELECT {REPORT_COLS}, {DEFECT_COLS} FROM reports r LEFT JOIN defects d ON d.report_id = r.id
-                 WHERE r.id > ?1 ORDER BY r.id, d.bearing, d.kind"
-            ))?;
-            let rows = stmt.query_map([after], |r| {
-                let d = if r.get_ref(11)?.data_type() == rusqlite::types::Type::Null {
-                    None
-                } else {
-                    Some(defect_of(r, 11)?)
-                };
-                Ok((report_of(r)?, d))
-            })?;
-            grouped(rows, f)?;
-        }
-        tx.commit()?;
-        Ok(())
+                 WHERE r.id > ?1 AND r.id <= ?2 ORDER BY r.id, d.bearing, d.kind"
+            ),
+            &[after.into(), upto.into()],
+        )?;
+        grouped(&rows, f)
     }
 
     fn sensor_reports(&mut self, node: u16, bearing: u8) -> Result<Vec<ReportRow>, DataError> {
-        let mut stmt = self.conn.prepare_cached(&format!(
-            "SELECT {REPORT_COLS}, {DEFECT_COLS} FROM reports r CROSS JOIN defects d ON d.report_id = r.id AND d.bearing = ?2
-             WHERE r.node_id = ?1 ORDER BY r.id, d.kind"
-        ))?;
-        let rows = stmt.query_map(params![node, bearing], |r| {
-            Ok((report_of(r)?, Some(defect_of(r, 11)?)))
-        })?;
+        // CROSS JOIN: SQLite walks the node's reports (reports_by_node), then
+        // each report's rows by the unique key, instead of defects by kind.
+        let cross = match self.db.backend() {
+            db::Backend::Sqlite => "CROSS JOIN",
+            db::Backend::Postgres => "JOIN",
+        };
+        let rows = self.db.query(
+            &format!(
+                "SELECT {REPORT_COLS}, {DEFECT_COLS} FROM reports r {cross} defects d ON d.report_id = r.id AND d.bearing = ?2
+                 WHERE r.node_id = ?1 ORDER BY r.id, d.kind"
+            ),
+            &[node.into(), bearing.into()],
+        )?;
         let mut out = Vec::new();
-        grouped(rows, &mut |r| out.push(r))?;
+        grouped(&rows, &mut |r| out.push(r))?;
         Ok(out)
     }
 
     fn node_reports(&mut self, node: u16, limit: usize) -> Result<Vec<ReportRow>, DataError> {
-        let mut stmt = self.conn.prepare_cached(&format!(
-            "SELECT {REPORT_COLS}, {DEFECT_COLS} FROM
-               (SELECT * FROM reports WHERE node_id = ?1 ORDER BY id DESC LIMIT ?2) r
-             LEFT JOIN defects d ON d.report_id = r.id ORDER BY r.id DESC, d.bearing, d.kind"
-        ))?;
-        let lim = i64::try_from(limit).unwrap_or(i64::MAX);
-        let rows = stmt.query_map(params![node, lim], |r| {
-            let d = if r.get_ref(11)?.data_type() == rusqlite::types::Type::Null {
-                None
-            } else {
-                Some(defect_of(r, 11)?)
-            };
-            Ok((report_of(r)?, d))
-        })?;
+        let rows = self.db.query(
+            &format!(
+                "SELECT {REPORT_COLS}, {DEFECT_COLS} FROM
+                   (SELECT * FROM reports WHERE node_id = ?1 ORDER BY id DESC LIMIT ?2) r
+                 LEFT JOIN defects d ON d.report_id = r.id ORDER BY r.id DESC, d.bearing, d.kind"
+            ),
+            &[node.into(), lim(limit)],
+        )?;
         let mut out = Vec::new();
-        grouped(rows, &mut |r| out.push(r))?;
+        grouped(&rows, &mut |r| out.push(r))?;
         Ok(out)
     }
 
     fn node_arrivals(&mut self, node: u16) -> Result<Vec<Arrival>, DataError> {
-        let mut stmt = self.conn.prepare_cached(
+        let rows = self.db.query(
             "SELECT id, seq, payload, rx_time_ms, rx_time FROM reports WHERE node_id = ?1 ORDER BY id",
+            &[node.into()],
         )?;
-        let rows = stmt.query_map([node], |r| {
-            let ms: Option<i64> = r.get(3)?;
-            let text: Option<String> = r.get(4)?;
-            Ok((
-                r.get(0)?,
-                r.get(1)?,
-                r.get(2)?,
-                ms.or_else(|| text.as_deref().and_then(super::clock::parse_rfc3339_ms)),
-            ))
-        })?;
-        Ok(rows.collect::<rusqlite::Result<_>>()?)
+        rows.iter()
+            .map(|r| {
+                let ms = col(r, 3).opt_int();
+                let text = col(r, 4).opt_text();
+                Ok((
+                    col(r, 0).int("id")?,
+                    u16_of(col(r, 1), "seq")?,
+                    col(r, 2).blob("payload")?,
+                    ms.or_else(|| text.as_deref().and_then(super::clock::parse_rfc3339_ms)),
+                ))
+            })
+            .collect()
     }
 
     fn report_json(&mut self, id: i64) -> Result<Option<String>, DataError> {
-        Ok(self
-            .conn
-            .query_row("SELECT json FROM reports WHERE id = ?1", [id], |r| r.get(0))
-            .optional()?)
-    }
-
-    fn manual_baselines(&mut self) -> Result<Vec<(u16, u8, String, f64)>, DataError> {
-        let mut stmt = self
-            .conn
-            .prepare_cached("SELECT node_id, bearing, kind, score_db FROM baselines")?;
-        let rows = stmt.query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?)))?;
-        Ok(rows.collect::<rusqlite::Result<_>>()?)
+        let rows = self
+            .db
+            .query("SELECT json FROM reports WHERE id = ?1", &[id.into()])?;
+        Ok(rows.first().and_then(|r| col(r, 0).opt_text()))
     }
 
     fn latest_status(&mut self) -> Result<Vec<NodeStatus>, DataError> {
-        store::latest_status(&mut self.conn).map_err(|e| DataError::Query(e.to_string()))
+        Ok(store::latest_status(self.db.as_mut())?)
     }
 
     fn node_status(&mut self, node: u16) -> Result<Vec<StatusRow>, DataError> {
-        let mut stmt = self.conn.prepare_cached(
+        let rows = self.db.query(
             "SELECT id, node_id, seq, rx_time, downlink_counter, last_downlink, refused_downlinks, survey,
                     band_source, band_lo_hz, band_hi_hz, band_kurtosis, rx_time_ms
              FROM node_status WHERE node_id = ?1 ORDER BY id",
+            &[node.into()],
         )?;
-        let rows = stmt.query_map([node], status_of)?;
-        Ok(rows.collect::<rusqlite::Result<_>>()?)
+        Ok(rows.iter().map(status_of).collect::<Result<_, _>>()?)
     }
 
     fn events(&mut self, node: Option<u16>, limit: usize) -> Result<Vec<EventRow>, DataError> {
-        let mut stmt = self.conn.prepare_cached(
-            "SELECT id, at_ms, node_id, bearing, kind, event, state_from, state_to, report_id, acked_by, acked_at_ms, detail
-             FROM alarm_events WHERE ?1 IS NULL OR node_id = ?1 ORDER BY at_ms DESC, id DESC LIMIT ?2",
-        )?;
-        let lim = i64::try_from(limit).unwrap_or(i64::MAX);
-        let rows = stmt.query_map(params![node, lim], |r| {
+        const COLS: &str = "SELECT id, at_ms, node_id, bearing, kind, event, state_from, state_to, report_id, acked_by, acked_at_ms, detail FROM alarm_events";
+        let rows = match node {
+            Some(n) => self.db.query(
+                &format!("{COLS} WHERE node_id = ?1 ORDER BY at_ms DESC, id DESC LIMIT ?2"),
+                &[n.into(), lim(limit)],
+            )?,
+            None => self.db.query(
+                &format!("{COLS} ORDER BY at_ms DESC, id DESC LIMIT ?1"),
+                &[lim(limit)],
+            )?,
+        };
+        let event = |r: &Row| -> Result<EventRow, DbError> {
             Ok(EventRow {
-                id: r.get(0)?,
-                at_ms: r.get(1)?,
-                node: r.get(2)?,
-                bearing: r.get(3)?,
-                bearing_index: r
-                    .get::<_, String>(11)
-                    .ok()
+                id: col(r, 0).int("id")?,
+                at_ms: col(r, 1).int("at_ms")?,
+                node: u16_of(col(r, 2), "node_id")?,
+                bearing: col(r, 3).opt_text(),
+                bearing_index: col(r, 11)
+                    .opt_text()
                     .and_then(|d| serde_json::from_str::<serde_json::Value>(&d).ok())
                     .and_then(|v| v.get("bearing_index").and_then(serde_json::Value::as_u64))
                     .and_then(|b| u8::try_from(b).ok()),
-                kind: r.get(4)?,
-                event: r.get(5)?,
-                state_from: r.get(6)?,
-                state_to: r.get(7)?,
-                report_id: r.get(8)?,
-                acked_by: r.get(9)?,
-                acked_at_ms: r.get(10)?,
+                kind: col(r, 4).opt_text(),
+                event: col(r, 5).text("event")?,
+                state_from: col(r, 6).opt_text(),
+                state_to: col(r, 7).opt_text(),
+                report_id: col(r, 8).opt_int(),
+                acked_by: col(r, 9).opt_text(),
+                acked_at_ms: col(r, 10).opt_int(),
             })
-        })?;
-        Ok(rows.collect::<rusqlite::Result<_>>()?)
+        };
+        Ok(rows.iter().map(event).collect::<Result<_, _>>()?)
     }
 
     fn record_events(&mut self, ev: &[NewEvent]) -> Result<usize, DataError> {
-        let tx = self.conn.transaction()?;
+        self.db.begin()?;
         let mut n = 0;
-        {
-            let mut exists = tx.prepare_cached(
-                "SELECT 1 FROM alarm_events WHERE report_id = ?1 AND node_id = ?2 AND bearing = ?3 AND kind = ?4 AND event = ?5 AND state_to = ?6",
-            )?;
-            let mut ins = tx.prepare_cached(
-                "INSERT INTO alarm_events (at_ms, node_id, bearing, kind, event, state_from, state_to, report_id, detail)
-                 VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)",
-            )?;
+        let r = (|| {
             for e in ev {
-                let b = &e.bearing_name;
+                let b = e.bearing_name.as_str();
+                let key: [Val; 6] = [
+                    e.report_id.into(),
+                    e.node.into(),
+                    b.into(),
+                    e.kind.as_str().into(),
+                    e.event.into(),
+                    e.to.into(),
+                ];
+                let exists = self.db.query(
+                    "SELECT 1 FROM alarm_events WHERE report_id = ?1 AND node_id = ?2 AND bearing = ?3 AND kind = ?4 AND event = ?5 AND state_to = ?6",
+                    &key,
+                )?;
+                if !exists.is_empty() {
+                    continue;
+                }
                 let detail =
                     serde_json::json!({"source": "gateway web", "bearing_index": e.bearing})
                         .to_string();
-                if exists
-                    .query_row(
-                        params![e.report_id, e.node, b, e.kind, e.event, e.to],
-                        |_| Ok(()),
-                    )
-                    .optional()?
-                    .is_none()
-                {
-                    ins.execute(params![
-                        e.at_ms,
-                        e.node,
-                        b,
-                        e.kind,
-                        e.event,
-                        e.from,
-                        e.to,
-                        e.report_id,
-                        detail
-                    ])?;
-                    n += 1;
-                }
+                self.db.execute(
+                    "INSERT INTO alarm_events (at_ms, node_id, bearing, kind, event, state_from, state_to, report_id, detail)
+                     VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)",
+                    &[
+                        e.at_ms.into(),
+                        e.node.into(),
+                        b.into(),
+                        e.kind.as_str().into(),
+                        e.event.into(),
+                        e.from.into(),
+                        e.to.into(),
+                        e.report_id.into(),
+                        detail.into(),
+                    ],
+                )?;
+                n += 1;
+            }
+            Ok::<(), DbError>(())
+        })();
+        match r.and_then(|()| self.db.commit()) {
+            Ok(()) => Ok(n),
+            Err(e) => {
+                self.db.rollback();
+                Err(e.into())
             }
         }
-        tx.commit()?;
-        Ok(n)
     }
 
     fn ack_event(&mut self, id: i64, by: &str, at_ms: i64) -> Result<bool, DataError> {
-        let n = self.conn.execute(
+        let n = self.db.execute(
             "UPDATE alarm_events SET acked_by = ?2, acked_at_ms = ?3 WHERE id = ?1 AND acked_by IS NULL",
-            params![id, by, at_ms],
+            &[id.into(), by.into(), at_ms.into()],
         )?;
         Ok(n > 0)
     }

@@ -13,6 +13,7 @@ pub mod clock;
 pub mod data;
 pub mod estimate;
 pub mod pages;
+pub mod service;
 pub mod summary;
 
 use crate::error::CliError;
@@ -30,8 +31,8 @@ use std::sync::{Arc, Mutex};
 /// Arguments of `envord gateway web`.
 #[derive(clap::Args, Debug)]
 pub struct WebArgs {
-    /// Gateway database file (must exist).
-    #[arg(long)]
+    /// Gateway store: SQLite file (must exist) or postgres:// URL.
+    #[arg(long, env = "ENVORD_DB")]
     db: String,
     /// Users file (TOML, see `envord gateway user add`).
     #[arg(long)]
@@ -128,6 +129,9 @@ pub struct WebConfig {
     pub secure_cookie: bool,
     /// A node is stale after this long without a report, ms.
     pub stale_after_ms: i64,
+    /// Record the state changes as alarm events (the standalone dashboard);
+    /// off under `gateway serve`, whose alarm evaluation records them.
+    pub record_events: bool,
 }
 
 /// The store and the running summary, behind one lock.
@@ -161,7 +165,7 @@ impl App {
                     .map(|s| ((s.node, s.bearing), b.name.clone()))
             })
             .collect();
-        let mut summary = summary::Summary::new(names);
+        let mut summary = summary::Summary::new(names, cfg.record_events);
         summary
             .refresh(store.as_mut(), Some(clock::now_ms()))
             .map_err(|e| CliError::Other(e.to_string()))?;
@@ -177,6 +181,14 @@ impl App {
         self.inner
             .lock()
             .unwrap_or_else(std::sync::PoisonError::into_inner)
+    }
+
+    /// Brings the summary up to date with the store (new reports folded,
+    /// their nodes graded again), staleness judged at `now_ms`.
+    pub fn refresh(&self, now_ms: i64) -> Result<summary::Refreshed, data::DataError> {
+        let mut inner = self.lock_inner();
+        let Inner { store, summary } = &mut *inner;
+        summary.refresh(store.as_mut(), Some(now_ms))
     }
 
     /// Renders a page by path for a session (the router's handlers and the
@@ -378,7 +390,16 @@ async fn page(State(app): State<Arc<App>>, uri: axum::http::Uri, headers: Header
             None,
         );
     };
-    let r = app.render(uri.path(), uri.query().unwrap_or(""), &session);
+    // The store clients block (the PostgreSQL one runs its own runtime):
+    // render off the async threads.
+    let (app2, s2) = (app.clone(), session.clone());
+    let (path, query) = (
+        uri.path().to_string(),
+        uri.query().unwrap_or("").to_string(),
+    );
+    let r = tokio::task::spawn_blocking(move || app2.render(&path, &query, &s2))
+        .await
+        .unwrap_or_else(|e| Err(data::DataError::Query(format!("page task: {e}"))));
     secure_headers(match r {
         Ok(Some((ct, body))) => ([(header::CONTENT_TYPE, ct)], body).into_response(),
         Ok(None) => (
@@ -572,14 +593,18 @@ async fn ack(
         );
     }
     let now = clock::now_ms();
-    let mut inner = app.lock_inner();
-    let notice = match inner.store.ack_event(id, &s.user, now) {
-        Ok(true) => format!("Event {id} acknowledged by {}.", s.user),
-        Ok(false) => format!("Event {id} does not exist or was acknowledged already."),
-        Err(e) => e.to_string(),
-    };
-    let body = pages::events_page(&mut inner, &s, &app.cfg, now, Some(&notice));
-    drop(inner);
+    let app2 = app.clone();
+    let body = tokio::task::spawn_blocking(move || {
+        let mut inner = app2.lock_inner();
+        let notice = match inner.store.ack_event(id, &s.user, now) {
+            Ok(true) => format!("Event {id} acknowledged by {}.", s.user),
+            Ok(false) => format!("Event {id} does not exist or was acknowledged already."),
+            Err(e) => e.to_string(),
+        };
+        pages::events_page(&mut inner, &s, &app2.cfg, now, Some(&notice))
+    })
+    .await
+    .unwrap_or_else(|e| Err(data::DataError::Query(format!("ack task: {e}"))));
     secure_headers(match body {
         Ok(b) => axum::response::Html(b).into_response(),
         Err(e) => (StatusCode::INTERNAL_SERVER_ERROR, e.to_string()).into_response(),
@@ -621,6 +646,7 @@ pub async fn serve_on(listener: tokio::net::TcpListener, app: Arc<App>) -> std::
 /// Serves the dashboard at `listen` until interrupted (blocking).
 pub fn serve(cfg: WebConfig, store: Box<dyn WebStore>, listen: SocketAddr) -> Result<(), CliError> {
     let app = Arc::new(App::new(cfg, store)?);
+    service::spawn_refresher(Arc::clone(&app), std::time::Duration::from_secs(5))?;
     let rt = tokio::runtime::Builder::new_current_thread()
         .enable_all()
         .build()
@@ -655,10 +681,11 @@ pub fn web_cmd(a: &WebArgs) -> Result<(), CliError> {
         map,
         secure_cookie: a.secure_cookie,
         stale_after_ms: i64::from(a.stale_after_min) * 60_000,
+        record_events: true,
     };
     if !a.listen.ip().is_loopback() {
         eprintln!("warning: listening on {} (not loopback); put a TLS reverse proxy in front and pass --secure-cookie (docs/gateway.md)", a.listen);
     }
-    let store = data::SqliteWeb::open(&a.db)?;
+    let store = data::StoreWeb::open(&a.db)?;
     serve(cfg, Box::new(store), a.listen)
 }

@@ -715,13 +715,7 @@ pub fn bearing_data(
     let mut out = Vec::new();
     for s in sensors {
         let reports = inner.store.sensor_reports(s.node, s.bearing)?;
-        let lines: Vec<crate::gateway::trend::Line> = inner
-            .summary
-            .lines()
-            .iter()
-            .filter(|l| l.state.node == s.node && l.state.bearing == s.bearing)
-            .cloned()
-            .collect();
+        let lines = inner.summary.lines_of(s.node, s.bearing);
         let states = lines.iter().map(|l| l.state.clone()).collect();
         let status = inner.store.node_status(s.node)?;
         let mut band_changes = Vec::new();

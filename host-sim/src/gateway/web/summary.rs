@@ -3,14 +3,26 @@
 //! lines and the state changes as alarm events. Node data is folded once over
 //! the store and then only over new report rows.
 //!
-//! States are not computed here: every refresh takes the graded lines from
-//! [`WebStore::graded`], i.e. `trend_cmd::grade_store`, the function
-//! `gateway status` prints, so the pages cannot disagree with it.
+//! States are not computed here: the graded lines come from
+//! [`WebStore::graded_nodes`], i.e. `trend_cmd::grade_db`, the function
+//! `gateway status` prints, so the pages cannot disagree with it. They are
+//! kept between refreshes: a refresh grades again only the nodes with
+//! reports stored since the last one (a line's grade depends only on its
+//! own node's rows), or every node when the stored limits changed.
+//! Staleness moves with the clock and is judged at each refresh's time from
+//! each node's newest receive time ([`trend::mark_stale`]), as `grade_db`
+//! judges it.
 
 use super::data::{DataError, NewEvent, ReportRow, WebStore};
+use crate::gateway::limits::LimitRow;
 use crate::gateway::seq::{NodeSeqStats, SeqTracker};
-use crate::gateway::trend::{DefectState, Line, State};
-use std::collections::{BTreeMap, HashMap};
+use crate::gateway::trend::{self, DefectState, Line, State};
+use std::collections::{BTreeMap, BTreeSet, HashMap};
+
+/// Reports read per query while folding (bounds memory on a large store).
+const FOLD_CHUNK: i64 = 20_000;
+/// Nodes graded per query (bounds memory on a large store).
+const GRADE_CHUNK: usize = 16;
 
 /// (node, bearing index, defect kind).
 pub type Key = (u16, u8, String);
@@ -43,8 +55,16 @@ pub struct NodeFold {
 
 /// The summary.
 pub struct Summary {
-    lines: Vec<Line>,
+    /// Graded lines per node, without staleness.
+    lines: BTreeMap<u16, Vec<Line>>,
+    /// Newest receive time per node over its graded points.
+    node_last: BTreeMap<u16, i64>,
+    /// The reference time of the last refresh.
+    now_ms: Option<i64>,
+    /// The limit rows the lines were graded with.
+    limits: Option<Vec<LimitRow>>,
     names: HashMap<(u16, u8), String>,
+    record: bool,
     upto: i64,
     /// Per key.
     pub keys: BTreeMap<Key, KeyFold>,
@@ -52,6 +72,15 @@ pub struct Summary {
     pub nodes: BTreeMap<u16, NodeFold>,
     tracker: SeqTracker,
     pending: Vec<NewEvent>,
+}
+
+/// What one refresh did.
+#[derive(Clone, Copy, Debug, Default)]
+pub struct Refreshed {
+    /// Reports folded.
+    pub reports: usize,
+    /// Nodes graded again.
+    pub nodes_graded: usize,
 }
 
 fn state_name(s: State) -> &'static str {
@@ -68,11 +97,17 @@ fn state_name(s: State) -> &'static str {
 
 impl Summary {
     /// An empty summary; `names` are the physical bearings' names of the
-    /// gateway map (alarm events carry them).
-    pub fn new(names: HashMap<(u16, u8), String>) -> Self {
+    /// gateway map (alarm events carry them); `record`: write the state
+    /// changes as alarm events (off when the MQTT service, which records
+    /// them itself, serves the dashboard).
+    pub fn new(names: HashMap<(u16, u8), String>, record: bool) -> Self {
         Self {
-            lines: Vec::new(),
+            lines: BTreeMap::new(),
+            node_last: BTreeMap::new(),
+            now_ms: None,
+            limits: None,
             names,
+            record,
             upto: 0,
             keys: BTreeMap::new(),
             nodes: BTreeMap::new(),
@@ -81,37 +116,71 @@ impl Summary {
         }
     }
 
-    /// Folds reports stored since the last call, grades the store again at
-    /// `now_ms` and records the state changes of the new reports as alarm
-    /// events; returns the reports folded.
+    /// Folds reports stored since the last call, grades again the nodes
+    /// that have new reports (every node when the stored limits changed),
+    /// judges staleness at `now_ms` and records the state changes of the new
+    /// reports as alarm events.
     pub fn refresh(
         &mut self,
         store: &mut dyn WebStore,
         now_ms: Option<i64>,
-    ) -> Result<usize, DataError> {
+    ) -> Result<Refreshed, DataError> {
         let before = self.upto;
+        let top = store.max_report_id()?;
+        let mut dirty: BTreeSet<u16> = BTreeSet::new();
         let mut n = 0;
-        store.reports_after(self.upto, &mut |r| {
-            self.fold(r);
-            n += 1;
-        })?;
-        // staleness moves with the clock: grade on every refresh
-        self.lines = store.graded(now_ms)?;
-        if n > 0 {
-            self.events_after(before);
+        let mut from = self.upto;
+        while from < top {
+            let to = from.saturating_add(FOLD_CHUNK).min(top);
+            store.reports_between(from, to, &mut |r| {
+                dirty.insert(r.node);
+                self.fold(r);
+                n += 1;
+            })?;
+            from = to;
         }
+        self.upto = self.upto.max(top);
+        let limits = store.limit_rows()?;
+        if self.limits.as_ref() != Some(&limits) {
+            dirty.extend(self.nodes.keys().copied());
+            self.limits = Some(limits);
+        }
+        let dirty: Vec<u16> = dirty.into_iter().collect();
+        for chunk in dirty.chunks(GRADE_CHUNK) {
+            let (lines, last) = store.graded_nodes(chunk)?;
+            for node in chunk {
+                self.lines.remove(node);
+                self.node_last.remove(node);
+            }
+            self.node_last.extend(last);
+            for l in lines {
+                self.lines.entry(l.state.node).or_default().push(l);
+            }
+            if self.record && n > 0 {
+                for node in chunk {
+                    self.events_after(*node, before);
+                }
+            }
+        }
+        self.now_ms = now_ms;
         if !self.pending.is_empty() {
             store.record_events(&self.pending)?;
             self.pending.clear();
         }
-        Ok(n)
+        Ok(Refreshed {
+            reports: n,
+            nodes_graded: dirty.len(),
+        })
     }
 
-    /// Alarm events (entering or leaving ALERT/DANGER) caused by reports
-    /// with id > `after`, from the graded history of each line.
-    fn events_after(&mut self, after: i64) {
+    /// Alarm events (entering or leaving ALERT/DANGER) of one node caused
+    /// by reports with id > `after`, from the graded history of each line.
+    fn events_after(&mut self, node: u16, after: i64) {
         let alarm = |s: State| s >= State::Alert;
-        for l in &self.lines {
+        let Some(lines) = self.lines.get(&node) else {
+            return;
+        };
+        for l in lines {
             let mut prev = State::NoData;
             for g in &l.history {
                 let now = g.state;
@@ -139,7 +208,6 @@ impl Summary {
     }
 
     fn fold(&mut self, mut r: ReportRow) {
-        self.upto = self.upto.max(r.id);
         self.tracker.observe(r.node, r.seq, &r.payload);
         let time = r.time_ms();
         let flags = wire::frame::QualityFlags::from_bits(r.flags);
@@ -163,14 +231,39 @@ impl Summary {
         nf.last = Some(r);
     }
 
-    /// Every line's state as `gateway status` prints it.
-    pub fn states(&self) -> Vec<DefectState> {
-        self.lines.iter().map(|l| l.state.clone()).collect()
+    fn staled(&self, st: &DefectState) -> DefectState {
+        let mut st = st.clone();
+        let t = self.node_last.get(&st.node).copied();
+        trend::mark_stale(&mut st, t, self.now_ms);
+        st
     }
 
-    /// The graded lines (state and per-report history with its levels).
-    pub fn lines(&self) -> &[Line] {
-        &self.lines
+    /// Every line's state as `gateway status` prints it (at the last
+    /// refresh's time), in its order (node, bearing, kind).
+    pub fn states(&self) -> Vec<DefectState> {
+        let mut v: Vec<DefectState> = self
+            .lines
+            .values()
+            .flatten()
+            .map(|l| self.staled(&l.state))
+            .collect();
+        v.sort_by(|a, b| (a.node, a.bearing, &a.kind).cmp(&(b.node, b.bearing, &b.kind)));
+        v
+    }
+
+    /// The graded lines of one node's bearing (state and per-report history
+    /// with its levels), staleness judged at the last refresh's time.
+    pub fn lines_of(&self, node: u16, bearing: u8) -> Vec<Line> {
+        self.lines
+            .get(&node)
+            .into_iter()
+            .flatten()
+            .filter(|l| l.state.bearing == bearing)
+            .map(|l| Line {
+                history: l.history.clone(),
+                state: self.staled(&l.state),
+            })
+            .collect()
     }
 
     /// Link counters per node (as `gateway status` prints them).
