@@ -8,13 +8,33 @@ use crate::error::CliError;
 use std::io::Write;
 use wire::frame::{decode_any, Frame};
 
+/// Why an input item was rejected (its text is the reject reason).
+#[derive(Debug, Clone, PartialEq)]
+pub enum RejectReason {
+    /// The payload text could not be turned into bytes (hex/base64).
+    Unreadable(String),
+    /// The bytes are not a valid frame.
+    Frame(wire::frame::DecodeError),
+}
+
+impl std::fmt::Display for RejectReason {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            Self::Unreadable(e) => write!(f, "unreadable payload: {e}"),
+            Self::Frame(e) => write!(f, "{e}"),
+        }
+    }
+}
+
+impl std::error::Error for RejectReason {}
+
 /// Decodes one input item: the frame or the reject reason.
-pub fn decode_item(item: &InputItem) -> Result<Frame, String> {
+pub fn decode_item(item: &InputItem) -> Result<Frame, RejectReason> {
     let bytes = item
         .bytes
         .as_ref()
-        .map_err(|e| format!("unreadable payload: {e}"))?;
-    decode_any(bytes).map_err(|e| format!("{e}"))
+        .map_err(|e| RejectReason::Unreadable(e.clone()))?;
+    decode_any(bytes).map_err(RejectReason::Frame)
 }
 
 fn seq_json(ev: &SeqEvent) -> serde_json::Value {
@@ -122,6 +142,7 @@ pub(super) fn run(a: DecodeArgs) -> Result<(), CliError> {
                 }
             }
             Err(reason) => {
+                let reason = reason.to_string();
                 let v = serde_json::json!({
                     "type": "reject", "source": item.source, "line": item.line,
                     "rx_time": item.rx_time, "text": item.text, "reason": reason,

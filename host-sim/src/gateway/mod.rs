@@ -53,7 +53,7 @@ use crate::error::CliError;
 use input::InputFormat;
 use seq::SeqTracker;
 
-pub use decode::decode_item;
+pub use decode::{decode_item, RejectReason};
 pub use status::{bearing_states, combine, BearingState, CombinedBearing, CombinedDefect};
 
 /// Arguments of `envord gateway`.
