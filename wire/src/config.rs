@@ -80,21 +80,7 @@ impl Default for HealthLimits {
     }
 }
 
-/// Where the envelope band of a record comes from.
-#[derive(Clone, Copy, Debug, PartialEq)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub enum BandSource {
-    /// Set by the operator.
-    Configured,
-    /// Chosen by the node's band survey (commissioning).
-    Survey {
-        /// Spectral kurtosis of the chosen band (finite).
-        kurtosis: f32,
-    },
-    /// No band: the node runs a band survey; until one is stored it
-    /// measures with dsp-core's default band. The band fields are 0.
-    Unset,
-}
+pub use crate::band::BandSource;
 
 /// How a bearing's defect frequencies are given.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -147,6 +133,9 @@ pub struct PointRecord {
     pub band_hi_hz: f32,
     /// Where the band comes from.
     pub band_source: BandSource,
+    /// Spectral kurtosis of the band when [`BandSource::Survey`] (finite);
+    /// otherwise 0 (written as 0 whatever it holds).
+    pub band_kurtosis: f32,
     /// Band-pass order (poles), even.
     pub poles: u8,
     /// Tach pulses per revolution of the tach shaft.
@@ -200,6 +189,7 @@ impl Default for PointRecord {
             band_lo_hz: 2_000.0,
             band_hi_hz: 8_000.0,
             band_source: BandSource::Configured,
+            band_kurtosis: 0.0,
             poles: 4,
             pulses_per_rev: 1,
             record_revs: 64,
@@ -347,8 +337,8 @@ impl PointRecord {
                 "band_hi_hz",
             )?;
         }
-        if let BandSource::Survey { kurtosis } = self.band_source {
-            check(in_range(kurtosis, -3.0, 1.0e6), "band_kurtosis")?;
+        if self.band_source == BandSource::Survey {
+            check(in_range(self.band_kurtosis, -3.0, 1.0e6), "band_kurtosis")?;
         }
         check(matches!(self.poles, 2 | 4 | 6 | 8), "poles")?;
         check((1..=64).contains(&self.pulses_per_rev), "pulses_per_rev")?;
@@ -451,7 +441,7 @@ impl PointRecord {
         w.put(&self.counts_to_g.to_le_bytes())?;
         let (source, kurtosis) = match self.band_source {
             BandSource::Configured => (0u8, 0.0f32),
-            BandSource::Survey { kurtosis } => (1, kurtosis),
+            BandSource::Survey => (1, self.band_kurtosis),
             BandSource::Unset => (2, 0.0),
         };
         w.put(&[count, source])?;
@@ -540,7 +530,7 @@ impl PointRecord {
         }
         let band_source = match (version, source) {
             (VERSION_1, 0) | (VERSION, 0) if kurtosis == 0.0 => BandSource::Configured,
-            (VERSION, 1) => BandSource::Survey { kurtosis },
+            (VERSION, 1) => BandSource::Survey,
             (VERSION, 2) if kurtosis == 0.0 => BandSource::Unset,
             _ => return Err(ConfigError::OutOfRange("band_source")),
         };
@@ -574,6 +564,7 @@ impl PointRecord {
             band_lo_hz,
             band_hi_hz,
             band_source,
+            band_kurtosis: kurtosis,
             poles,
             pulses_per_rev,
             record_revs,
@@ -604,7 +595,8 @@ impl PointRecord {
         let mut r = self.clone();
         r.band_lo_hz = band_hz[0];
         r.band_hi_hz = band_hz[1];
-        r.band_source = BandSource::Survey { kurtosis };
+        r.band_source = BandSource::Survey;
+        r.band_kurtosis = kurtosis;
         r.validate()?;
         Ok(r)
     }

@@ -89,7 +89,9 @@ impl std::fmt::Display for IntervalError {
                 f,
                 "--interval {s:?}: give a number with s, min, h or d (e.g. 10min, 1h, 6h)"
             ),
-            Self::Number { given, num } => write!(f, "--interval {given:?}: {num:?} is not a number"),
+            Self::Number { given, num } => {
+                write!(f, "--interval {given:?}: {num:?} is not a number")
+            }
             Self::NotPositive(s) => write!(f, "--interval {s:?}: must be > 0"),
         }
     }
