@@ -55,18 +55,6 @@ pub mod spectrum;
 pub mod speed;
 pub mod survey;
 
-// Transitional paths, hidden from the docs: code that other branches of this
-// restructure move meanwhile still names these modules at the root (diagnosis
-// and performance branches in flight).
-// New code uses the stage paths or the root re-exports; remove these once
-// those moves are merged.
-#[doc(hidden)]
-pub use diagnosis::{defects, kinematics};
-#[doc(hidden)]
-pub use overall::velocity;
-#[doc(hidden)]
-pub use survey::band_choice;
-
 pub use config::{
     name_from, Bearing, BearingKinematics, ConfigError, LineCoincidence, Mesh, Name, PointConfig,
     Shaft, SpeedInput, MAX_BEARINGS, MAX_COINCIDENCES, MAX_MESHES, MAX_SHAFTS, NAME_LEN,

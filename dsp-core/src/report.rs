@@ -14,6 +14,14 @@ use crate::speed::tach::SpeedSummary;
 
 /// Quality flags of a report: what went wrong or is doubtful. A report with
 /// any of [`QualityFlags::NOT_ANALYSABLE`] carries no defect results.
+///
+/// The one set of quality conditions of a measurement: the pipeline raises
+/// most of them, the node raises its own ([`Self::OVERRUN`],
+/// [`Self::LOW_BATTERY`], and its input check's [`Self::SENSOR_FAULT`],
+/// [`Self::CLIPPING`], [`Self::TACH_MISSING`]) in the same type. The bytes
+/// on the air are the `wire` crate's: its frame flag field
+/// (`wire::frame::FrameFlags`, 7 bits) and the overall frame's flag byte
+/// are fixed layouts that these flags are mapped onto.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Hash)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct QualityFlags(pub u16);
@@ -68,6 +76,11 @@ impl QualityFlags {
         self.0 |= other.0;
     }
 
+    /// No flag is set.
+    pub const fn is_empty(self) -> bool {
+        self.0 == 0
+    }
+
     /// The raw bits.
     pub const fn bits(self) -> u16 {
         self.0
@@ -97,6 +110,13 @@ pub const FLAG_NAMES: [(QualityFlags, &str); 12] = [
     (QualityFlags::INCOMPLETE, "incomplete_record"),
     (QualityFlags::RESAMPLER, "resampler_fault"),
 ];
+
+impl core::ops::BitOr for QualityFlags {
+    type Output = Self;
+    fn bitor(self, rhs: Self) -> Self {
+        Self(self.0 | rhs.0)
+    }
+}
 
 impl fmt::Display for QualityFlags {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {

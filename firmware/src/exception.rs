@@ -21,7 +21,7 @@
 //! make the next reduced frame refer to a full frame never sent.
 
 use dsp_core::num::log10f;
-use wire::frame::{FrameReport, QualityFlags};
+use wire::frame::{FrameFlags, FrameReport};
 
 /// When the node sends a full frame. The defaults are this project's
 /// choice: 3 dB is half the +6 dB alert rise of the gateway's trend limits
@@ -138,7 +138,7 @@ impl ExceptionState {
         if policy.validate().is_err() || policy.full_every <= 1 {
             return Choice::Full(FullReason::Periodic);
         }
-        if r.flags != QualityFlags::default() || r.flags != last.flags {
+        if r.flags != FrameFlags::default() || r.flags != last.flags {
             return Choice::Full(FullReason::Flags);
         }
         if changed(last, r, policy.margin_db) {

@@ -11,7 +11,7 @@
 
 use crate::commission::{CommissionError, SurveyChoice};
 use crate::config::PointRecord;
-use crate::quality::QualityFlags;
+use dsp_core::QualityFlags;
 use embedded_hal::delay::DelayNs;
 use embedded_hal::digital::OutputPin;
 

@@ -11,10 +11,10 @@
 
 use crate::config::PointRecord;
 use crate::hal::MeasurementCore;
-use crate::quality::QualityFlags;
 use dsp_core::num::{f32_to_u32_sat, sqrtf};
+use dsp_core::QualityFlags;
 
-use wire::overall::OverallFrame;
+use wire::overall::{flag_byte, OverallFrame};
 pub use wire::overall::{FRAME_KIND, FRAME_LEN};
 
 /// Why the overall core failed.
@@ -166,7 +166,7 @@ impl MeasurementCore for OverallCore {
         let flags = self.flags;
         let o = self.result.ok_or(OverallError::NotFinished)?;
         OverallFrame {
-            flags: flags.bits(),
+            flags: flag_byte(flags),
             rms_decicounts: field_u16(o.rms * 10.0),
             peak_counts: field_u16(o.peak),
             crest_milli: field_u16(o.crest * 1000.0),

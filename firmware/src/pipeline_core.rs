@@ -24,9 +24,8 @@ use crate::commission::{CommissionError, Commissioning, SurveyChoice};
 use crate::config::PointRecord;
 use crate::hal::MeasurementCore;
 use crate::point::{point_config, PointError};
-use crate::quality::QualityFlags;
 use dsp_core::pipeline::{Pipeline, PipelineError, NODE_BINS, NODE_RING};
-use dsp_core::report::{QualityFlags as ReportFlags, Report};
+use dsp_core::report::{QualityFlags, Report};
 use wire::frame::{self, EncodeError, FrameReport};
 
 /// The node's core: 4096-point spectrum, node-sized resampler ring.
@@ -130,24 +129,6 @@ impl<const N: usize, const H: usize, const RING: usize> PipelineCore<N, H, RING>
     }
 }
 
-/// Firmware flags as the pipeline's report flags.
-pub fn report_flags(f: QualityFlags) -> ReportFlags {
-    let mut r = ReportFlags::empty();
-    let map = [
-        (QualityFlags::TACH_MISSING, ReportFlags::TACH_MISSING),
-        (QualityFlags::CLIPPING, ReportFlags::CLIPPING),
-        (QualityFlags::SENSOR_FAULT, ReportFlags::SENSOR_FAULT),
-        (QualityFlags::PROCESSING_OVERRUN, ReportFlags::OVERRUN),
-        (QualityFlags::LOW_BATTERY, ReportFlags::LOW_BATTERY),
-    ];
-    for (ours, theirs) in map {
-        if f.contains(ours) {
-            r.insert(theirs);
-        }
-    }
-    r
-}
-
 /// A pipeline report as the frame codec's input (the mapping is
 /// [`FrameReport::from_report`], shared with the host simulator).
 pub fn frame_report(r: &Report, node_id: u16, seq: u16) -> FrameReport {
@@ -203,7 +184,7 @@ impl<const N: usize, const H: usize, const RING: usize> MeasurementCore
         if !self.started {
             return Err(PipelineCoreError::OutOfOrder);
         }
-        self.pipeline.raise(report_flags(flags));
+        self.pipeline.raise(flags);
         self.end_pass();
         Ok(())
     }

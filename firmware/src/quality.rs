@@ -1,5 +1,6 @@
-//! Quality flags carried by every frame, and the signal-health checks that
-//! raise them while blocks stream past (no raw record is kept).
+//! The node's signal-health checks that raise quality flags
+//! ([`dsp_core::QualityFlags`], the one flag set of node, core and host)
+//! while blocks stream past (no raw record is kept).
 //!
 //! # Two sensor-fault checks, one flag
 //!
@@ -22,64 +23,7 @@
 //! its flags to the core ([`crate::hal::MeasurementCore::finish`]), and the
 //! frame's one `sensor_fault` bit means "either check failed".
 
-/// Bit set of conditions that make a measurement doubtful.
-///
-/// The bit layout is the firmware's own; the adapter to the frame codec maps
-/// each bit to the frame's flag field.
-#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub struct QualityFlags(u8);
-
-impl QualityFlags {
-    /// No once-per-revolution pulse (or only one) during the record.
-    pub const TACH_MISSING: Self = Self(1 << 0);
-    /// Some samples reached the clip level.
-    pub const CLIPPING: Self = Self(1 << 1);
-    /// Sensor fault: flat (open or shorted sensor) or saturated signal, by
-    /// the node's input check or the core's channel check (module docs).
-    pub const SENSOR_FAULT: Self = Self(1 << 2);
-    /// The sample source overran: processing was too slow and blocks were lost.
-    pub const PROCESSING_OVERRUN: Self = Self(1 << 3);
-    /// Battery below the configured threshold (measured under load).
-    pub const LOW_BATTERY: Self = Self(1 << 4);
-
-    /// No flags.
-    pub const fn empty() -> Self {
-        Self(0)
-    }
-
-    /// Raw bits.
-    pub const fn bits(self) -> u8 {
-        self.0
-    }
-
-    /// From raw bits; unknown bits are dropped.
-    pub const fn from_bits_truncate(bits: u8) -> Self {
-        Self(bits & 0x1F)
-    }
-
-    /// True when every bit of `other` is set.
-    pub const fn contains(self, other: Self) -> bool {
-        self.0 & other.0 == other.0
-    }
-
-    /// Sets the bits of `other`.
-    pub fn insert(&mut self, other: Self) {
-        self.0 |= other.0;
-    }
-
-    /// True when no flag is set.
-    pub const fn is_empty(self) -> bool {
-        self.0 == 0
-    }
-}
-
-impl core::ops::BitOr for QualityFlags {
-    type Output = Self;
-    fn bitor(self, rhs: Self) -> Self {
-        Self(self.0 | rhs.0)
-    }
-}
+use dsp_core::QualityFlags;
 
 /// Thresholds of the node's input check ([`SignalHealth`]; not the core's
 /// channel check, see the module docs), taken from the stored configuration

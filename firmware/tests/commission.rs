@@ -19,7 +19,7 @@ use firmware::config::{BandSource, PointRecord};
 use firmware::cycle::{CycleKind, DownlinkOutcome, SurveyOutcome};
 use firmware::hal::WakeReason;
 use firmware::pipeline_core::NodeCore;
-use wire::frame::status::{decode_status, BandSource as FrameBand, SurveyStatus};
+use wire::frame::status::{decode_status, SurveyStatus};
 
 const FS: f32 = 25_600.0;
 const RPM: f32 = 1480.0;
@@ -133,7 +133,7 @@ fn survey_chooses_the_ringing_band_stores_it_and_the_next_cycles_measure_with_it
         .collect();
     assert_eq!(frames.len(), 1);
     let st = decode_status(&frames[0]).unwrap();
-    assert_eq!(st.band_source, FrameBand::Survey);
+    assert_eq!(st.band_source, BandSource::Survey);
     assert_eq!(st.survey, SurveyStatus::Stored);
     assert_eq!(st.band_hz[0].to_bits(), choice.band_hz[0].to_bits());
     assert_eq!(st.band_hz[1].to_bits(), choice.band_hz[1].to_bits());
@@ -168,10 +168,7 @@ fn a_survey_command_replaces_a_configured_band_and_a_reboot_keeps_it() {
     let s = node.run_cycle().unwrap();
     assert_eq!((s.kind, s.reason), (CycleKind::Survey, WakeReason::Command));
     assert!(matches!(node.survey(), SurveyOutcome::Stored(_)));
-    assert!(matches!(
-        node.config().band_source,
-        BandSource::Survey { .. }
-    ));
+    assert_eq!(node.config().band_source, BandSource::Survey);
     let saved = node.config().clone();
     let stored_bytes = node.devices().storage.slots["config"].clone();
     assert_eq!(stored_bytes, stored(1, &saved));
@@ -184,7 +181,7 @@ fn a_survey_command_replaces_a_configured_band_and_a_reboot_keeps_it() {
     assert_eq!(node.config(), &saved);
     assert_eq!(node.counter(), 1);
     assert_eq!(node.run_cycle().unwrap().kind, CycleKind::Measure);
-    assert_eq!(node.status().band_source, FrameBand::Survey);
+    assert_eq!(node.status().band_source, BandSource::Survey);
 }
 
 #[test]
@@ -213,7 +210,7 @@ fn clipped_or_flat_captures_leave_the_band_unset_and_are_not_retried_each_cycle(
         // measured with dsp-core's default band until a survey succeeds
         let s = node.run_cycle().unwrap();
         assert_eq!(s.kind, CycleKind::Measure, "{want:?}");
-        assert_eq!(node.status().band_source, FrameBand::Unset);
+        assert_eq!(node.status().band_source, BandSource::Unset);
         // an octave ending at 0.75 x Nyquist = 9.6 kHz (cap 12 kHz not reached)
         assert_eq!(node.status().band_hz, [4800.0, 9600.0]);
     }
@@ -235,8 +232,8 @@ fn a_core_without_survey_reports_unsupported_with_the_sensor_off() {
 
 #[test]
 fn the_core_reuses_its_survey_in_place_with_the_same_choice_every_time() {
+    use dsp_core::QualityFlags;
     use firmware::hal::MeasurementCore;
-    use firmware::quality::QualityFlags;
     let rec = unset_point();
     let blocks = rec.record_blocks(256, 4096) as usize;
     let x = signal(256 * blocks);

@@ -9,9 +9,9 @@
 )]
 mod common;
 use common::*;
+use dsp_core::QualityFlags;
 use firmware::cycle::{ConfigSource, CycleError, DownlinkOutcome, Fault, State};
 use firmware::hal::{Slot, WakeReason};
-use firmware::quality::QualityFlags;
 
 #[test]
 fn each_transition_of_a_healthy_cycle() {
@@ -128,12 +128,15 @@ fn overrun_is_flagged_and_does_not_feed_the_watchdog() {
     bench.blocks[2].1 = true; // a block was lost before block 2
     let (mut node, log) = bench.build();
     let s = node.run_cycle().unwrap();
-    assert!(s.flags.contains(QualityFlags::PROCESSING_OVERRUN));
+    assert!(s.flags.contains(QualityFlags::OVERRUN));
     assert_eq!(s.overruns, 1);
     assert!(!s.fed_watchdog);
     assert_eq!(count(&log, |e| *e == Ev::Feed), 0);
     // the frame still goes out, carrying the flag
-    assert_eq!(node.frame()[0], QualityFlags::PROCESSING_OVERRUN.bits());
+    assert_eq!(
+        node.frame()[0],
+        wire::overall::flag_byte(QualityFlags::OVERRUN)
+    );
 }
 
 #[test]

@@ -9,10 +9,10 @@
     clippy::cast_possible_truncation,
     missing_docs
 )]
+use dsp_core::QualityFlags;
 use firmware::config::PointRecord;
 use firmware::hal::MeasurementCore;
 use firmware::overall_core::{OverallCore, OverallError, FRAME_KIND, FRAME_LEN};
-use firmware::quality::QualityFlags;
 
 fn sine(n: usize, amp: f64, offset: f64, cycles_per_sample: f64) -> Vec<i16> {
     (0..n)

@@ -52,7 +52,7 @@ fn outer_race_defect_recording_gives_a_bpfo_detection_in_the_frame() {
     check_report(&full, 0);
     let reduced = wire::frame::decode_reduced(&frames[2]).unwrap();
     assert_eq!((reduced.node_id, reduced.seq), (1, 1));
-    assert_eq!(reduced.flags, wire::frame::QualityFlags::default());
+    assert_eq!(reduced.flags, wire::frame::FrameFlags::default());
     let w = reduced.worst.unwrap();
     assert_eq!(
         (w.bearing, w.kind, w.detected),
@@ -84,12 +84,7 @@ fn every_cycle_policy_sends_two_full_frames() {
 fn check_report(r: &wire::frame::FrameReport, seq: usize) {
     assert_eq!(r.node_id, 1);
     assert_eq!(usize::from(r.seq), seq);
-    assert_eq!(
-        r.flags,
-        wire::frame::QualityFlags::default(),
-        "{:?}",
-        r.flags
-    );
+    assert_eq!(r.flags, wire::frame::FrameFlags::default(), "{:?}", r.flags);
     // the fictional stand runs at 1480 rpm (make_input.py); frame step 0.25 rpm
     assert!((r.speed_rpm - 1480.0).abs() < 1.0, "speed {}", r.speed_rpm);
     // overall RMS: numpy std of the same samples is 225.7 counts (expected_frames.txt),
@@ -130,13 +125,13 @@ fn check_report(r: &wire::frame::FrameReport, seq: usize) {
 
 #[test]
 fn firmware_flags_reach_the_frame() {
-    use firmware::quality::QualityFlags;
+    use dsp_core::QualityFlags;
     let bytes = std::fs::read(replay_common::input("config.bin")).unwrap();
     let rec = firmware::config::PointRecord::decode(&bytes).unwrap();
     let mut c = Box::new(NodeCore::new(1));
     c.start(&rec).unwrap();
     c.push_block(&[0i16; 256]);
-    c.finish(QualityFlags::PROCESSING_OVERRUN | QualityFlags::LOW_BATTERY)
+    c.finish(QualityFlags::OVERRUN | QualityFlags::LOW_BATTERY)
         .unwrap();
     let mut buf = [0u8; 64];
     let n = c.encode(&mut buf).unwrap();
@@ -166,7 +161,7 @@ fn encode_before_finish_is_refused() {
     let mut buf = [0u8; 64];
     assert_eq!(c.encode(&mut buf), Err(PipelineCoreError::OutOfOrder));
     assert_eq!(
-        c.finish(firmware::quality::QualityFlags::empty()),
+        c.finish(dsp_core::QualityFlags::empty()),
         Err(PipelineCoreError::OutOfOrder)
     );
 }

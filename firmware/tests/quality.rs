@@ -1,6 +1,7 @@
 //! Streamed signal-health checks on their own.
 #![allow(clippy::cast_possible_truncation, clippy::unwrap_used, missing_docs)]
-use firmware::quality::{HealthLimits, QualityFlags, SignalHealth};
+use dsp_core::QualityFlags;
+use firmware::quality::{HealthLimits, SignalHealth};
 
 #[test]
 fn span_and_clip_counts_accumulate_over_blocks() {
@@ -52,19 +53,22 @@ fn saturation_limit_in_per_mille() {
 }
 
 #[test]
-fn flag_bits_are_distinct_and_truncate_unknown_bits() {
+fn node_flags_take_bits_0_to_4_of_the_overall_frame_byte() {
+    // the byte layout of docs/frame-format.md (0x4F frame, byte 1)
     let all = [
         QualityFlags::TACH_MISSING,
         QualityFlags::CLIPPING,
         QualityFlags::SENSOR_FAULT,
-        QualityFlags::PROCESSING_OVERRUN,
+        QualityFlags::OVERRUN,
         QualityFlags::LOW_BATTERY,
     ];
     let mut acc = QualityFlags::empty();
-    for f in all {
-        assert_eq!(f.bits().count_ones(), 1);
+    for (i, f) in all.into_iter().enumerate() {
+        assert_eq!(wire::overall::flag_byte(f), 1 << i);
         assert!(!acc.contains(f));
         acc.insert(f);
     }
-    assert_eq!(QualityFlags::from_bits_truncate(0xFF), acc);
+    assert_eq!(wire::overall::flag_byte(acc), 0x1F);
+    // the core's own conditions have no bit in the node's byte
+    assert_eq!(wire::overall::flag_byte(QualityFlags::RESAMPLER), 0);
 }

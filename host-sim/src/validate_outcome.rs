@@ -9,7 +9,7 @@
 //! any finding, kind-uncertain included, is a false alarm.
 
 use dsp_core::diagnosis::kind_call::KindCall;
-use dsp_core::kinematics::DefectKind;
+use dsp_core::DefectKind;
 
 /// Outcome of one scored record.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

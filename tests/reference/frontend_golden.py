@@ -9,7 +9,7 @@ Outputs (into OUTDIR, default dsp-core/tests/data/frontend):
                         lfilter(h, 1, x)[M-1::M], where the stage taps h are re-derived here
                         (odd stages scipy.signal.kaiserord + firwin(window=('kaiser', beta)),
                         half-bands scipy.signal.remez via halfband_tables.py) using the band
-                        plan documented in dsp-core/src/frontend/decimate.rs. Also numpy/scipy.stats
+                        plan documented in dsp-core/src/frontend/decimate/. Also numpy/scipy.stats
                         overall indicators of the raw excerpt.
 
   --extract  re-creates the committed excerpt from the CWRU WAV (needs the dataset).
@@ -34,7 +34,7 @@ WAV = os.path.normpath(os.path.join(HERE, "..", "..", "..", "shared", "data", "c
                                     "cwru-12k-de-ir007-1hp.de.wav"))
 START, LEN = 12000, 6000  # samples 12000..17999 (1.0 s .. 1.5 s) at 12 kHz
 
-# Decimator band plan (mirrors dsp-core/src/frontend/decimate.rs).
+# Decimator band plan (mirrors dsp-core/src/frontend/decimate/).
 STOP_DB = 66.0
 PASS_FRACTION = 0.4
 

@@ -1,7 +1,7 @@
 #!/usr/bin/env python3
 """Equiripple half-band tables of the envelope decimator, designed with
 scipy.signal.remez, and a check of the tables committed in
-dsp-core/src/frontend/decimate.rs.
+dsp-core/src/frontend/decimate/design.rs.
 
 A factor-2 stage with input rate r_in (in units of the final output rate fo)
 must pass [0, 0.4 fo] and reject from r_in/2 - 0.4 fo (band plan in
@@ -18,7 +18,7 @@ shortest length with >= 66 dB rejection (the decimator's STOP_DB) over
 [0.5 - fp, 0.5].
 
 Usage: halfband_tables.py          print the tables as Rust constants
-       halfband_tables.py --check  compare with decimate.rs (1e-7) and verify the rejection
+       halfband_tables.py --check  compare with decimate/design.rs (1e-7) and verify the rejection
 """
 import math
 import os
@@ -29,7 +29,7 @@ import numpy as np
 import scipy.signal as sig
 
 HERE = os.path.dirname(os.path.abspath(__file__))
-RUST = os.path.normpath(os.path.join(HERE, "..", "..", "dsp-core", "src", "frontend", "decimate.rs"))
+RUST = os.path.normpath(os.path.join(HERE, "..", "..", "dsp-core", "src", "frontend", "decimate", "design.rs"))
 STOP_DB = 66.0
 PASS_FRACTION = 0.4
 RATES = (2, 4, 8)  # input rate of the stage in units of the final output rate
@@ -70,7 +70,7 @@ def shortest(r_in):
 
 
 def committed():
-    """Tables in decimate.rs: `const HB_R{r}: [f32; k] = [ ... ];`"""
+    """Tables in decimate/design.rs: `const HB_R{r}: [f32; k] = [ ... ];`"""
     src = open(RUST, encoding="utf-8").read()
     out = {}
     for m in re.finditer(r"const HB_R(\d+): \[f32; (\d+)\] = \[([^\]]*)\]", src):

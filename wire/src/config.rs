@@ -128,21 +128,7 @@ impl Default for HealthLimits {
     }
 }
 
-/// Where the envelope band of a record comes from.
-#[derive(Clone, Copy, Debug, PartialEq)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub enum BandSource {
-    /// Set by the operator.
-    Configured,
-    /// Chosen by the node's band survey (commissioning).
-    Survey {
-        /// Spectral kurtosis of the chosen band (finite).
-        kurtosis: f32,
-    },
-    /// No band: the node runs a band survey; until one is stored it
-    /// measures with dsp-core's default band. The band fields are 0.
-    Unset,
-}
+pub use crate::band::BandSource;
 
 /// How a bearing's defect frequencies are given.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -208,6 +194,9 @@ pub struct PointRecord {
     pub band_hi_hz: f32,
     /// Where the band comes from.
     pub band_source: BandSource,
+    /// Spectral kurtosis of the band when [`BandSource::Survey`] (finite);
+    /// otherwise 0 (written as 0 whatever it holds).
+    pub band_kurtosis: f32,
     /// Band-pass order (poles), even.
     pub poles: u8,
     /// Tach pulses per revolution of the tach shaft.
@@ -285,6 +274,7 @@ impl Default for PointRecord {
             band_lo_hz: 2_000.0,
             band_hi_hz: 8_000.0,
             band_source: BandSource::Configured,
+            band_kurtosis: 0.0,
             poles: 4,
             pulses_per_rev: 1,
             record_revs: 64,
@@ -507,8 +497,8 @@ impl PointRecord {
                 "band_hi_hz",
             )?;
         }
-        if let BandSource::Survey { kurtosis } = self.band_source {
-            check(in_range(kurtosis, -3.0, 1.0e6), "band_kurtosis")?;
+        if self.band_source == BandSource::Survey {
+            check(in_range(self.band_kurtosis, -3.0, 1.0e6), "band_kurtosis")?;
         }
         check(matches!(self.poles, 2 | 4 | 6 | 8), "poles")?;
         check(self.pulses_per_rev >= 1, "pulses_per_rev")?;
@@ -649,7 +639,7 @@ impl PointRecord {
         w.f32s(&[self.alert_db, self.danger_db, self.counts_to_g])?;
         let (source, kurtosis) = match self.band_source {
             BandSource::Configured => (0u8, 0.0f32),
-            BandSource::Survey { kurtosis } => (1, kurtosis),
+            BandSource::Survey => (1, self.band_kurtosis),
             BandSource::Unset => (2, 0.0),
         };
         w.put(&[source])?;
@@ -776,9 +766,10 @@ impl PointRecord {
         let old_count = if version == VERSION { 0 } else { r.u8()? };
         let source = r.u8()?;
         let kurtosis = if version == VERSION_1 { 0.0 } else { r.f32()? };
+        rec.band_kurtosis = kurtosis;
         rec.band_source = match (version, source) {
             (_, 0) if kurtosis == 0.0 => BandSource::Configured,
-            (VERSION_2 | VERSION, 1) => BandSource::Survey { kurtosis },
+            (VERSION_2 | VERSION, 1) => BandSource::Survey,
             (VERSION_2 | VERSION, 2) if kurtosis == 0.0 => BandSource::Unset,
             _ => return Err(ConfigError::OutOfRange("band_source")),
         };
@@ -805,7 +796,8 @@ impl PointRecord {
         let mut r = self.clone();
         r.band_lo_hz = band_hz[0];
         r.band_hi_hz = band_hz[1];
-        r.band_source = BandSource::Survey { kurtosis };
+        r.band_source = BandSource::Survey;
+        r.band_kurtosis = kurtosis;
         r.validate()?;
         Ok(r)
     }

@@ -43,6 +43,7 @@
     )
 )]
 
+pub mod band;
 pub mod config;
 pub mod crc;
 pub mod downlink;
@@ -58,5 +59,5 @@ pub mod point;
 /// records up to version 2 carry 4 ([`frame::layout::V1_MAX_BEARINGS`]).
 pub use frame::layout::MAX_BEARINGS;
 
-pub use frame::status::BandSource;
-pub use frame::QualityFlags;
+pub use band::BandSource;
+pub use frame::FrameFlags;

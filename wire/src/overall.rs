@@ -6,7 +6,7 @@
 //!
 //! ```text
 //!  0  u8   0x4F (frame kind; no version nibble, see below)
-//!  1  u8   the node's quality flags (firmware::quality::QualityFlags bits:
+//!  1  u8   the node's quality flags ([`flag_byte`] of `dsp_core::QualityFlags`:
 //!          0 tach missing, 1 clipping, 2 sensor fault, 3 processing overrun,
 //!          4 low battery; bits 7..5 zero)
 //!  2  u16  RMS about the mean, 0.1 ADC counts
@@ -20,6 +20,27 @@
 //! (`0x4F`: high nibble 4) never collides with a report frame's version
 //! nibble 1. Every field saturates at its maximum.
 
+use dsp_core::QualityFlags;
+
+/// Byte 1 of the frame: the node's conditions among `q`, in this frame's own
+/// fixed bit order (0 tach missing, 1 clipping, 2 sensor fault, 3 processing
+/// overrun, 4 low battery). Other flags have no bit here.
+pub fn flag_byte(q: QualityFlags) -> u8 {
+    let mut b = 0u8;
+    for (bit, f) in [
+        (0x01, QualityFlags::TACH_MISSING),
+        (0x02, QualityFlags::CLIPPING),
+        (0x04, QualityFlags::SENSOR_FAULT),
+        (0x08, QualityFlags::OVERRUN),
+        (0x10, QualityFlags::LOW_BATTERY),
+    ] {
+        if q.contains(f) {
+            b |= bit;
+        }
+    }
+    b
+}
+
 /// Frame kind byte of an overall-only frame.
 pub const FRAME_KIND: u8 = 0x4F;
 /// Encoded frame length.
@@ -29,7 +50,7 @@ pub const FRAME_LEN: usize = 12;
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct OverallFrame {
-    /// The node's quality flag bits (byte 1).
+    /// The node's quality flag bits (byte 1, see [`flag_byte`]).
     pub flags: u8,
     /// RMS about the mean, 0.1 counts.
     pub rms_decicounts: u16,

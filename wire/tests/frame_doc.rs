@@ -12,7 +12,7 @@
 mod common;
 
 use wire::frame::{
-    decode, encode, encode_reduced, BearingResult, DefectResult, FrameReport, IsoZone, QualityFlags,
+    decode, encode, encode_reduced, BearingResult, DefectResult, FrameFlags, FrameReport, IsoZone,
 };
 
 /// The example of the document (an invented node on an invented gearbox).
@@ -27,9 +27,9 @@ fn example() -> FrameReport {
     let mut r = FrameReport {
         node_id: 0x0A17,
         seq: 513,
-        flags: QualityFlags {
+        flags: FrameFlags {
             low_battery: true,
-            ..QualityFlags::default()
+            ..FrameFlags::default()
         },
         speed_rpm: 1487.3,
         ..FrameReport::default()

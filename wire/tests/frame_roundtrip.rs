@@ -14,8 +14,8 @@ mod common;
 use proptest::prelude::*;
 use wire::frame::quantisation::{self as q, Linear};
 use wire::frame::{
-    decode, decode_reduced, encode, encode_reduced, BearingResult, DefectResult, FrameReport,
-    IsoZone, QualityFlags, ReducedReport,
+    decode, decode_reduced, encode, encode_reduced, BearingResult, DefectResult, FrameFlags,
+    FrameReport, IsoZone, ReducedReport,
 };
 
 /// Expected decode of a linear field: NaN stays NaN, below 0 -> 0, above max
@@ -101,7 +101,7 @@ fn report() -> impl Strategy<Value = FrameReport> {
                 let mut r = FrameReport {
                     node_id: node,
                     seq,
-                    flags: QualityFlags::from_bits(flags),
+                    flags: FrameFlags::from_bits(flags),
                     speed_rpm: speed,
                     ..FrameReport::default()
                 };

@@ -154,7 +154,7 @@ fn run_with<C: MeasurementCore>(core: C) -> i32 {
                     cycles,
                     s.blocks,
                     s.edges,
-                    s.flags.bits(),
+                    wire::overall::flag_byte(s.flags),
                     s.fed_watchdog,
                     node.downlink(),
                     s.kind

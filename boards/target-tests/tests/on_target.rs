@@ -9,7 +9,7 @@ use wire::config::PointRecord;
 use firmware::cycle::{Devices, Node, State};
 use firmware::hal::*;
 use firmware::overall_core::OverallCore;
-use firmware::quality::QualityFlags;
+use dsp_core::QualityFlags;
 
 /// The committed QEMU input configuration, written by an independent Python
 /// encoder (boards/qemu-mps2/input/make_input.py, CRC from zlib.crc32).
@@ -286,7 +286,7 @@ mod tests {
     fn overrun_cycle_does_not_feed() {
         let mut node = Node::new(devices(1098, Some(100)), OverallCore::new());
         let s = node.run_cycle().unwrap();
-        defmt::assert!(s.flags.contains(QualityFlags::PROCESSING_OVERRUN));
+        defmt::assert!(s.flags.contains(QualityFlags::OVERRUN));
         defmt::assert_eq!(node.devices().watchdog.0, 0);
     }
 

@@ -75,7 +75,7 @@ impl MeshSidebands {
 /// (a spacing of 0 is skipped).
 ///
 /// ```
-/// use dsp_core::defects::{DefectSearch, DefectSearchConfig};
+/// use dsp_core::{DefectSearch, DefectSearchConfig};
 /// use dsp_core::diagnosis::mesh::measure_mesh;
 /// use dsp_core::spectrum::{SpectrumView, Window};
 /// let mut amps = [0.01f32; 2048];

@@ -44,8 +44,9 @@ use crate::hal::{
 };
 use crate::identity::{Identity, IDENTITY_LEN};
 use crate::log::{log_info, log_warn};
-use crate::quality::{QualityFlags, SignalHealth};
+use crate::quality::SignalHealth;
 use apply::unseal;
+use dsp_core::QualityFlags;
 use embedded_hal::delay::DelayNs;
 use embedded_hal::digital::OutputPin;
 
@@ -56,7 +57,7 @@ mod state;
 mod survey;
 
 pub use outcome::{ConfigSource, CycleKind, CycleSummary, DownlinkOutcome, SurveyOutcome};
-pub use report::{band_in_use, frame_flags};
+pub use report::band_in_use;
 pub use state::{CycleError, Fault, State};
 
 /// Capacity of the uplink frame buffer: the longest v2 report frame (8
@@ -408,7 +409,7 @@ impl<B: Board, C: MeasurementCore> Node<B, C> {
                 let block = self.dev.source.next_block().map_err(|_| Fault::Source)?;
                 if block.overrun {
                     self.summary.overruns = self.summary.overruns.saturating_add(1);
-                    self.summary.flags.insert(QualityFlags::PROCESSING_OVERRUN);
+                    self.summary.flags.insert(QualityFlags::OVERRUN);
                 }
                 if self.kind == CycleKind::Measure {
                     // edges captured up to now happened during or before this
@@ -491,11 +492,7 @@ impl<B: Board, C: MeasurementCore> Node<B, C> {
             State::Listen => {
                 self.listen()?;
                 // healthy: every state passed and no block was lost
-                if !self
-                    .summary
-                    .flags
-                    .contains(QualityFlags::PROCESSING_OVERRUN)
-                {
+                if !self.summary.flags.contains(QualityFlags::OVERRUN) {
                     self.dev.watchdog.feed();
                     self.summary.fed_watchdog = true;
                 }

@@ -7,8 +7,8 @@ use crate::downlink::DownlinkError;
 use crate::downlink_auth::AuthError;
 use crate::exception::Choice;
 use crate::hal::WakeReason;
-use crate::quality::QualityFlags;
 use dsp_core::survey::SurveyError;
+use dsp_core::QualityFlags;
 use wire::frame::status::{DownlinkResult, SurveyStatus};
 
 /// Where the configuration in use came from at boot.

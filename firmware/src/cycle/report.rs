@@ -6,21 +6,8 @@ use crate::config::{BandSource, PointRecord};
 use crate::exception::Choice;
 use crate::hal::{Board, MeasurementCore};
 use crate::log::log_info;
-use crate::quality::QualityFlags;
-use wire::frame::status::{encode_status, BandSource as FrameBandSource, BootConfig, StatusReport};
-use wire::frame::QualityFlags as FrameFlags;
-
-/// Firmware flags as the frame's flag field.
-pub fn frame_flags(f: QualityFlags) -> FrameFlags {
-    FrameFlags {
-        tach_missing: f.contains(QualityFlags::TACH_MISSING),
-        clipping: f.contains(QualityFlags::CLIPPING),
-        sensor_fault: f.contains(QualityFlags::SENSOR_FAULT),
-        processing_overrun: f.contains(QualityFlags::PROCESSING_OVERRUN),
-        low_battery: f.contains(QualityFlags::LOW_BATTERY),
-        ..FrameFlags::default()
-    }
-}
+use wire::frame::status::{encode_status, BootConfig, StatusReport};
+use wire::frame::FrameFlags;
 
 /// The band a record measures with: its own, or dsp-core's default band for
 /// its sample rate when it has none.
@@ -42,15 +29,16 @@ impl<B: Board, C: MeasurementCore> Node<B, C> {
     /// The status the next status frame would carry (sequence number
     /// included; the flags are those of the last cycle).
     pub fn status(&self) -> StatusReport {
-        let (band_source, band_kurtosis) = match self.config.band_source {
-            BandSource::Configured => (FrameBandSource::Configured, f32::NAN),
-            BandSource::Survey { kurtosis } => (FrameBandSource::Survey, kurtosis),
-            BandSource::Unset => (FrameBandSource::Unset, f32::NAN),
+        // the status frame shows the kurtosis of a surveyed band only
+        let band_source = self.config.band_source;
+        let band_kurtosis = match band_source {
+            BandSource::Survey => self.config.band_kurtosis,
+            BandSource::Configured | BandSource::Unset => f32::NAN,
         };
         StatusReport {
             node_id: self.node_id().unwrap_or(0),
             seq: self.link.status_seq,
-            flags: frame_flags(self.summary.flags),
+            flags: FrameFlags::from_quality(self.summary.flags),
             band_source,
             boot_config: match self.config_source {
                 ConfigSource::Stored => BootConfig::Stored,

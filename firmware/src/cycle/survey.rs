@@ -5,8 +5,8 @@ use super::{Node, SurveyOutcome};
 use crate::commission::CommissionError;
 use crate::hal::{Board, MeasurementCore};
 use crate::log::log_info;
-use crate::quality::QualityFlags;
 use dsp_core::survey::SurveyError;
+use dsp_core::QualityFlags;
 
 impl<B: Board, C: MeasurementCore> Node<B, C> {
     /// The survey's choice, unless the capture was unhealthy.
@@ -21,7 +21,7 @@ impl<B: Board, C: MeasurementCore> Node<B, C> {
         for f in [
             QualityFlags::CLIPPING,
             QualityFlags::SENSOR_FAULT,
-            QualityFlags::PROCESSING_OVERRUN,
+            QualityFlags::OVERRUN,
         ] {
             if self.summary.flags.contains(f) {
                 bad.insert(f);

@@ -12,10 +12,10 @@
 
 pub mod flash;
 
+use dsp_core::QualityFlags;
 use firmware::config::PointRecord;
 use firmware::cycle::{Devices, Node};
 use firmware::hal::*;
-use firmware::quality::QualityFlags;
 use std::cell::RefCell;
 use std::collections::{HashMap, VecDeque};
 use std::rc::Rc;
@@ -301,7 +301,7 @@ impl MeasurementCore for MockCore {
             .unwrap_or(u16::MAX)
             .to_le_bytes();
         let out = [
-            flags.bits(),
+            wire::overall::flag_byte(flags),
             n[0],
             n[1],
             u8::try_from(self.edges.len()).unwrap_or(255),

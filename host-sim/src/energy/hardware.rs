@@ -156,13 +156,16 @@ impl Hardware {
     }
 
     /// Sets `p` after checking its range; `Err` names the key.
-    pub fn set(&mut self, p: P, v: f64, origin: Origin) -> Result<(), String> {
+    pub fn set(&mut self, p: P, v: f64, origin: Origin) -> Result<(), RangeError> {
         let d = p.def();
         if !(v.is_finite() && v >= d.min && v <= d.max) {
-            return Err(format!(
-                "{}: {v} is outside {} ..= {} {}",
-                d.key, d.min, d.max, d.unit
-            ));
+            return Err(RangeError {
+                key: d.key,
+                value: v,
+                min: d.min,
+                max: d.max,
+                unit: d.unit,
+            });
         }
         if let (Some(slot), Some(o)) = (
             self.values.get_mut(p as usize),
@@ -189,8 +192,9 @@ impl Hardware {
     }
 
     /// Parses hardware-file text; the error names the key (or the TOML line).
-    pub fn parse(text: &str, source: &str) -> Result<Self, String> {
-        let table: toml::Table = toml::from_str(text).map_err(|e| e.to_string())?;
+    pub fn parse(text: &str, source: &str) -> Result<Self, HardwareFileError> {
+        let table: toml::Table =
+            toml::from_str(text).map_err(|e| HardwareFileError::Toml(e.to_string()))?;
         let by_key: BTreeMap<&str, P> = ALL.iter().map(|&p| (p.def().key, p)).collect();
         let sections: Vec<&str> = {
             let mut s: Vec<&str> = PARAMS
@@ -203,16 +207,16 @@ impl Hardware {
         let mut hw = Self::default();
         for (section, body) in &table {
             let Some(body) = body.as_table() else {
-                return Err(format!(
-                    "`{section}`: expected a section [{section}]; sections are {}",
-                    sections.join(", ")
-                ));
+                return Err(HardwareFileError::NotSection {
+                    section: section.clone(),
+                    sections: sections.join(", "),
+                });
             };
             if !sections.contains(&section.as_str()) {
-                return Err(format!(
-                    "[{section}]: unknown section; sections are {}",
-                    sections.join(", ")
-                ));
+                return Err(HardwareFileError::UnknownSection {
+                    section: section.clone(),
+                    sections: sections.join(", "),
+                });
             }
             for (key, value) in body {
                 let full = format!("{section}.{key}");
@@ -221,10 +225,11 @@ impl Hardware {
                         .iter()
                         .filter_map(|d| d.key.strip_prefix(&format!("{section}.")))
                         .collect();
-                    return Err(format!(
-                        "{full}: unknown key; [{section}] takes {}",
-                        known.join(", ")
-                    ));
+                    return Err(HardwareFileError::UnknownKey {
+                        key: full,
+                        section: section.clone(),
+                        known: known.join(", "),
+                    });
                 };
                 let v = match value {
                     toml::Value::Float(x) => *x,
@@ -235,19 +240,115 @@ impl Hardware {
                         x
                     }
                     other => {
-                        return Err(format!(
-                            "{full}: expected a number ({}), found {}",
-                            p.def().unit,
-                            other.type_str()
-                        ))
+                        return Err(HardwareFileError::NotNumber {
+                            key: full,
+                            unit: p.def().unit,
+                            found: other.type_str(),
+                        })
                     }
                 };
-                hw.set(p, v, Origin::File(source.to_string()))?;
+                hw.set(p, v, Origin::File(source.to_string()))
+                    .map_err(HardwareFileError::Range)?;
             }
         }
         Ok(hw)
     }
 }
+
+/// A value outside its parameter's range ([`Hardware::set`]).
+#[derive(Debug, Clone, PartialEq)]
+pub struct RangeError {
+    /// The parameter's key.
+    pub key: &'static str,
+    /// The value given.
+    pub value: f64,
+    /// Lowest allowed.
+    pub min: f64,
+    /// Highest allowed.
+    pub max: f64,
+    /// Unit of the parameter.
+    pub unit: &'static str,
+}
+
+impl std::fmt::Display for RangeError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(
+            f,
+            "{}: {} is outside {} ..= {} {}",
+            self.key, self.value, self.min, self.max, self.unit
+        )
+    }
+}
+
+impl std::error::Error for RangeError {}
+
+/// Why a hardware file was refused ([`Hardware::parse`]); the text names
+/// the section or key (or the TOML line).
+#[derive(Debug, Clone, PartialEq)]
+pub enum HardwareFileError {
+    /// Not TOML (the parser's message names the line).
+    Toml(String),
+    /// A top-level key that is not a section.
+    NotSection {
+        /// The key.
+        section: String,
+        /// The known sections, comma-separated.
+        sections: String,
+    },
+    /// A section that does not exist.
+    UnknownSection {
+        /// The section.
+        section: String,
+        /// The known sections, comma-separated.
+        sections: String,
+    },
+    /// A key that its section does not take.
+    UnknownKey {
+        /// `section.key`.
+        key: String,
+        /// The section.
+        section: String,
+        /// The keys it takes, comma-separated.
+        known: String,
+    },
+    /// A value that is not a number.
+    NotNumber {
+        /// `section.key`.
+        key: String,
+        /// Unit of the parameter.
+        unit: &'static str,
+        /// TOML type found.
+        found: &'static str,
+    },
+    /// A number outside the parameter's range.
+    Range(RangeError),
+}
+
+impl std::fmt::Display for HardwareFileError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            Self::Toml(e) => f.write_str(e),
+            Self::NotSection { section, sections } => write!(
+                f,
+                "`{section}`: expected a section [{section}]; sections are {sections}"
+            ),
+            Self::UnknownSection { section, sections } => {
+                write!(f, "[{section}]: unknown section; sections are {sections}")
+            }
+            Self::UnknownKey {
+                key,
+                section,
+                known,
+            } => write!(f, "{key}: unknown key; [{section}] takes {known}"),
+            Self::NotNumber { key, unit, found } => {
+                write!(f, "{key}: expected a number ({unit}), found {found}")
+            }
+            Self::Range(e) => write!(f, "{e}"),
+        }
+    }
+}
+
+impl std::error::Error for HardwareFileError {}
 
 #[cfg(test)]
 mod tests {
@@ -290,7 +391,7 @@ mod tests {
             ("[mcu\n", "line 1"),
         ];
         for (text, want) in cases {
-            let err = Hardware::parse(text, "hw.toml").unwrap_err();
+            let err = Hardware::parse(text, "hw.toml").unwrap_err().to_string();
             assert!(err.contains(want), "{text:?}: {err}");
         }
     }

@@ -66,8 +66,41 @@ pub struct EnergyArgs {
     pub json: bool,
 }
 
+/// Why an `--interval` value was refused (the text names the option).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum IntervalError {
+    /// No unit of s, min, h or d.
+    Unit(String),
+    /// The number part is not a number.
+    Number {
+        /// The whole value.
+        given: String,
+        /// Its number part.
+        num: String,
+    },
+    /// Zero, negative or not finite.
+    NotPositive(String),
+}
+
+impl std::fmt::Display for IntervalError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            Self::Unit(s) => write!(
+                f,
+                "--interval {s:?}: give a number with s, min, h or d (e.g. 10min, 1h, 6h)"
+            ),
+            Self::Number { given, num } => {
+                write!(f, "--interval {given:?}: {num:?} is not a number")
+            }
+            Self::NotPositive(s) => write!(f, "--interval {s:?}: must be > 0"),
+        }
+    }
+}
+
+impl std::error::Error for IntervalError {}
+
 /// Parses an interval: a positive number followed by s, min, h or d.
-pub fn parse_interval(s: &str) -> Result<f64, String> {
+pub fn parse_interval(s: &str) -> Result<f64, IntervalError> {
     let t = s.trim();
     let split = t
         .find(|c: char| !(c.is_ascii_digit() || c == '.'))
@@ -78,17 +111,14 @@ pub fn parse_interval(s: &str) -> Result<f64, String> {
         "min" => 60.0,
         "h" => 3600.0,
         "d" => 86_400.0,
-        _ => {
-            return Err(format!(
-                "--interval {s:?}: give a number with s, min, h or d (e.g. 10min, 1h, 6h)"
-            ))
-        }
+        _ => return Err(IntervalError::Unit(s.to_string())),
     };
-    let v: f64 = num
-        .parse()
-        .map_err(|_| format!("--interval {s:?}: {num:?} is not a number"))?;
+    let v: f64 = num.parse().map_err(|_| IntervalError::Number {
+        given: s.to_string(),
+        num: num.to_string(),
+    })?;
     if !(v.is_finite() && v > 0.0) {
-        return Err(format!("--interval {s:?}: must be > 0"));
+        return Err(IntervalError::NotPositive(s.to_string()));
     }
     Ok(v * scale)
 }
@@ -264,7 +294,7 @@ pub fn build(a: &EnergyArgs) -> Result<EnergyReport, CliError> {
     let mut by_exception = Vec::new();
     let share = 1.0 / f64::from(policy.full_every.max(1));
     for s in &a.intervals {
-        let t = parse_interval(s).map_err(CliError::Input)?;
+        let t = parse_interval(s).map_err(|e| CliError::Input(e.to_string()))?;
         let key = format!("--interval {s}");
         every_cycle.push(
             budget::at_interval(&hw, &full, &reduced, 1.0, t)
@@ -543,7 +573,7 @@ mod tests {
         assert_eq!(parse_interval("1.5d").unwrap(), 129_600.0);
         assert_eq!(parse_interval("90s").unwrap(), 90.0);
         for bad in ["10", "h", "-1h", "1w", "0h", "1..2h"] {
-            let e = parse_interval(bad).unwrap_err();
+            let e = parse_interval(bad).unwrap_err().to_string();
             assert!(e.starts_with("--interval"), "{bad}: {e}");
         }
         assert_eq!(interval_label(600.0), "10 min");

@@ -198,7 +198,7 @@ impl Alarms {
         {
             self.node_change(node, EV_SILENT, "reporting", out);
         }
-        let f = wire::frame::QualityFlags::from_bits(flags);
+        let f = wire::frame::FrameFlags::from_bits(flags);
         for (ev, on) in [
             (EV_SENSOR, f.sensor_fault || f.clipping),
             (EV_TACH, f.tach_missing || f.tach_irregular),

@@ -151,27 +151,73 @@ pub fn resolve(rows: &[LimitRow], node: u16, bearing: u8, kind: &str) -> Limits 
     l
 }
 
+/// Why a set of limits is not usable; the text names the setting.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum LimitsError {
+    /// `alert_db` / `danger_db` not with 0 < alert <= danger.
+    Levels {
+        /// `alert_db`.
+        alert_db: f64,
+        /// `danger_db`.
+        danger_db: f64,
+    },
+    /// `floor_g` not a positive amplitude.
+    Floor(f64),
+    /// `alert_abs_g` above `danger_abs_g`.
+    Absolute {
+        /// `alert_abs_g`.
+        alert: f64,
+        /// `danger_abs_g`.
+        danger: f64,
+    },
+    /// `baseline_count` 0 without a hand-set `baseline_g`.
+    NoBaseline,
+}
+
+impl std::fmt::Display for LimitsError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match *self {
+            Self::Levels {
+                alert_db,
+                danger_db,
+            } => write!(
+                f,
+                "alert_db {alert_db} / danger_db {danger_db}: need 0 < alert_db <= danger_db"
+            ),
+            Self::Floor(g) => write!(f, "floor_g {g}: need a positive amplitude"),
+            Self::Absolute { alert, danger } => write!(
+                f,
+                "alert_abs_g {alert} > danger_abs_g {danger}: need alert <= danger"
+            ),
+            Self::NoBaseline => f.write_str("baseline_count 0 needs a hand-set baseline_g"),
+        }
+    }
+}
+
+impl std::error::Error for LimitsError {}
+
 /// Why a set of limits is not usable, naming the setting.
-pub fn check(l: &Limits) -> Result<(), String> {
+pub fn check(l: &Limits) -> Result<(), LimitsError> {
     let fin = |x: f64| x.is_finite();
     if !fin(l.alert_db) || !fin(l.danger_db) || l.alert_db <= 0.0 || l.alert_db > l.danger_db {
-        return Err(format!(
-            "alert_db {} / danger_db {}: need 0 < alert_db <= danger_db",
-            l.alert_db, l.danger_db
-        ));
+        return Err(LimitsError::Levels {
+            alert_db: l.alert_db,
+            danger_db: l.danger_db,
+        });
     }
     if !fin(l.floor_g) || l.floor_g <= 0.0 {
-        return Err(format!("floor_g {}: need a positive amplitude", l.floor_g));
+        return Err(LimitsError::Floor(l.floor_g));
     }
     if let (Some(a), Some(d)) = (l.alert_abs_g, l.danger_abs_g) {
         if a > d {
-            return Err(format!(
-                "alert_abs_g {a} > danger_abs_g {d}: need alert <= danger"
-            ));
+            return Err(LimitsError::Absolute {
+                alert: a,
+                danger: d,
+            });
         }
     }
     if l.baseline_count == 0 && l.baseline_g.is_none() {
-        return Err("baseline_count 0 needs a hand-set baseline_g".into());
+        return Err(LimitsError::NoBaseline);
     }
     Ok(())
 }

@@ -3,7 +3,7 @@
 //! the field (see the module doc of [`crate::validate`]).
 
 use dsp_core::config::{name_from, Bearing, BearingKinematics};
-use dsp_core::kinematics::{BearingGeometry, DefectKind, DefectMultiples};
+use dsp_core::{BearingGeometry, DefectKind, DefectMultiples};
 
 use crate::bearing_len::{length_mm, mm_from_in, BothGiven};
 

@@ -5,9 +5,9 @@
 use std::path::Path;
 
 use dsp_core::config::{name_from, Bearing, PointConfig, SpeedInput};
-use dsp_core::kinematics::{DefectKind, ShaftRatio};
 use dsp_core::pipeline::NodePipeline;
 use dsp_core::survey::SurveyError;
+use dsp_core::{DefectKind, ShaftRatio};
 
 use super::manifest::{decoy_entry, expected_kind, parse_manifest, ManifestEntry, ManifestRecord};
 use super::BandRule;
@@ -241,7 +241,7 @@ impl std::error::Error for BandError {}
 /// Chooses the band of one record by `rule`; returns the band, whether it
 /// came from the survey, and the survey's kurtosis. The survey is the one the
 /// analysis runs ([`crate::analysis::choose_band`]: the node's own rule,
-/// [`dsp_core::band_choice`], fed in ADC-sized blocks) for `point`.
+/// [`dsp_core::survey::band_choice`], fed in ADC-sized blocks) for `point`.
 pub fn choose_band(
     rule: BandRule,
     rec: &Record,
@@ -465,7 +465,7 @@ fn analyse_into(
 }
 
 /// Found harmonics per kind, as text: `h2@10.809(28)`, `*` = not counted.
-fn detail_lines(d: &dsp_core::defects::BearingDiagnosis, prefix: &str) -> Vec<String> {
+fn detail_lines(d: &dsp_core::BearingDiagnosis, prefix: &str) -> Vec<String> {
     d.results
         .iter()
         .map(|r| {
@@ -598,7 +598,7 @@ mod tests {
     #[test]
     fn survey_bandwidth_passes_second_harmonic_sidebands() {
         let p = validation_point(&rec(12_000.0, 1797.0, CWRU_DE), 122_000).unwrap();
-        let bw = dsp_core::band_choice::min_bandwidth_hz(&p);
+        let bw = dsp_core::survey::band_choice::min_bandwidth_hz(&p);
         assert!((bw - 4.0 * 5.4152 * 1797.0 / 60.0).abs() < 0.5, "{bw}");
         assert!(bw > 2828.4 - 2244.9);
     }

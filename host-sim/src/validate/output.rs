@@ -3,7 +3,7 @@
 
 use std::path::Path;
 
-use dsp_core::kinematics::DefectKind;
+use dsp_core::DefectKind;
 use serde_json::{json, Value};
 
 use super::method::RecordResult;

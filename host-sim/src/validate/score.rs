@@ -1,7 +1,7 @@
 //! Judging one record and counting the results (see the module doc of
 //! [`crate::validate`] for what counts as right).
 
-use dsp_core::kinematics::DefectKind;
+use dsp_core::DefectKind;
 
 use super::manifest::canonical_location;
 use super::method::RecordResult;

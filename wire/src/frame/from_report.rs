@@ -25,12 +25,12 @@
 //! the core yet (NaN, "not measured").
 
 use super::v2::{LineDetail, LineLink, LineState, MeshResult, NotSearchedCode};
-use super::{BearingResult, DefectResult, FrameReport, IsoZone, OverallIndicators, QualityFlags};
+use super::{BearingResult, DefectResult, FrameFlags, FrameReport, IsoZone, OverallIndicators};
 use dsp_core::diagnosis::coverage::NotSearched;
 use dsp_core::diagnosis::defects::DefectResult as Found;
-use dsp_core::kinematics::DefectKind as Kind;
 use dsp_core::report::{LineReport, QualityFlags as Q, Report};
-use dsp_core::velocity::Zone;
+use dsp_core::DefectKind as Kind;
+use dsp_core::Zone;
 
 fn reason(n: NotSearched) -> (NotSearchedCode, Option<u16>) {
     match n {
@@ -144,18 +144,25 @@ fn sideband_g(l: &LineReport, i: usize) -> f32 {
         .unwrap_or(f32::NAN)
 }
 
-fn flags(q: Q) -> QualityFlags {
-    QualityFlags {
-        tach_missing: q.contains(Q::TACH_MISSING),
-        tach_irregular: q.intersects(Q(Q::TACH_IRREGULAR.0
-            | Q::SPEED_UNSTABLE.0
-            | Q::TOO_FEW_REVS.0
-            | Q::INCOMPLETE.0)),
-        speed_out_of_range: q.contains(Q::SPEED_OUT_OF_RANGE),
-        clipping: q.contains(Q::CLIPPING),
-        sensor_fault: q.intersects(Q(Q::SENSOR_FAULT.0 | Q::NON_FINITE.0)),
-        processing_overrun: q.intersects(Q(Q::OVERRUN.0 | Q::RESAMPLER.0)),
-        low_battery: q.contains(Q::LOW_BATTERY),
+impl FrameFlags {
+    /// The frame's flag field for the measurement's quality flags: a
+    /// many-to-one fold of the core's finer set onto the field's seven bits
+    /// (irregular speed, too few revolutions and an incomplete record show
+    /// as `tach_irregular`; non-finite samples as `sensor_fault`; a
+    /// resampler fault as `processing_overrun`).
+    pub fn from_quality(q: Q) -> Self {
+        Self {
+            tach_missing: q.contains(Q::TACH_MISSING),
+            tach_irregular: q.intersects(Q(Q::TACH_IRREGULAR.0
+                | Q::SPEED_UNSTABLE.0
+                | Q::TOO_FEW_REVS.0
+                | Q::INCOMPLETE.0)),
+            speed_out_of_range: q.contains(Q::SPEED_OUT_OF_RANGE),
+            clipping: q.contains(Q::CLIPPING),
+            sensor_fault: q.intersects(Q(Q::SENSOR_FAULT.0 | Q::NON_FINITE.0)),
+            processing_overrun: q.intersects(Q(Q::OVERRUN.0 | Q::RESAMPLER.0)),
+            low_battery: q.contains(Q::LOW_BATTERY),
+        }
     }
 }
 
@@ -207,7 +214,7 @@ impl FrameReport {
             // Both lists hold at most MAX_MESHES (4) meshes.
             let _ = meshes.push(mesh(l));
         }
-        let flags = flags(r.flags);
+        let flags = FrameFlags::from_quality(r.flags);
         FrameReport {
             node_id,
             seq,

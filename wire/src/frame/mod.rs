@@ -44,8 +44,8 @@ pub use status::StatusReport;
 pub use v2::{LineDetail, LineLink, LineState, MeshResult, NotSearchedCode};
 
 /// Bearing defect kinds, in their fixed frame order (BPFO, BPFI, FTF, BSF):
-/// the core's own kinds, coded in frames by [`dsp_core::kinematics::DefectKind::index`].
-pub use dsp_core::kinematics::DefectKind;
+/// the core's own kinds, coded in frames by [`dsp_core::DefectKind::index`].
+pub use dsp_core::DefectKind;
 
 /// The 2-bit frame code of a kind.
 fn kind_code(k: DefectKind) -> u8 {
@@ -71,11 +71,18 @@ pub enum IsoZone {
     D,
 }
 
-/// Quality flags of one report. In the frame they are bits 0..=6 of a
-/// big-endian u16; bits 7..=15 are spare and must be zero in version 1.
+/// The flag field of a report or status frame. In the frame they are bits
+/// 0..=6 of a big-endian u16; bits 7..=15 are spare and must be zero in
+/// version 1.
+///
+/// Not a second set of quality flags but the field's on-air form: the
+/// measurement's conditions are `dsp_core::QualityFlags` (12 of them),
+/// which [`FrameFlags::from_quality`] folds onto these seven fixed bits. It
+/// is a type of its own because its bit order is frozen by the frame format
+/// and its serde form (named booleans) is what decoded frames show in JSON.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub struct QualityFlags {
+pub struct FrameFlags {
     /// No tach pulses during the acquisition (bit 0).
     pub tach_missing: bool,
     /// Tach pulse intervals too irregular for order tracking (bit 1).
@@ -95,7 +102,7 @@ pub struct QualityFlags {
 /// Mask of the flag bits defined in version 1.
 pub const FLAGS_DEFINED_MASK: u16 = 0x007F;
 
-impl QualityFlags {
+impl FrameFlags {
     /// Bit form as carried in the frame.
     pub fn to_bits(self) -> u16 {
         u16::from(self.tach_missing)
@@ -176,7 +183,7 @@ pub struct FrameReport {
     /// Report sequence number (wraps at 65535 -> 0).
     pub seq: u16,
     /// Quality flags.
-    pub flags: QualityFlags,
+    pub flags: FrameFlags,
     /// Shaft speed in rpm (NaN when unknown).
     pub speed_rpm: f32,
     /// Overall indicators.
@@ -198,7 +205,7 @@ impl Default for FrameReport {
             version: FORMAT_VERSION,
             node_id: 0,
             seq: 0,
-            flags: QualityFlags::default(),
+            flags: FrameFlags::default(),
             speed_rpm: 0.0,
             overall: OverallIndicators::default(),
             bearings: Vec::new(),
@@ -232,7 +239,7 @@ pub struct ReducedReport {
     /// Report sequence number.
     pub seq: u16,
     /// Quality flags.
-    pub flags: QualityFlags,
+    pub flags: FrameFlags,
     /// Worst defect; `None` when the report has no bearings.
     pub worst: Option<WorstDefect>,
 }
@@ -748,12 +755,12 @@ fn check_envelope(bytes: &[u8]) -> Result<u8, DecodeError> {
     Ok(ftype)
 }
 
-fn decode_flags(bytes: &[u8]) -> Result<QualityFlags, DecodeError> {
+fn decode_flags(bytes: &[u8]) -> Result<FrameFlags, DecodeError> {
     let bits = get_u16(bytes, OFF_FLAGS);
     if bits & !FLAGS_DEFINED_MASK != 0 {
         return Err(DecodeError::ReservedBits { offset: OFF_FLAGS });
     }
-    Ok(QualityFlags::from_bits(bits))
+    Ok(FrameFlags::from_bits(bits))
 }
 
 fn byte(bytes: &[u8], off: usize) -> u8 {

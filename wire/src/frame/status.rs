@@ -27,22 +27,10 @@
 use serde::{Deserialize, Serialize};
 
 use super::layout::{FORMAT_VERSION, STATUS_LEN, TYPE_STATUS};
-use super::{get_u16, seal, DecodeError, EncodeError, QualityFlags};
+use super::{get_u16, seal, DecodeError, EncodeError, FrameFlags};
 use dsp_core::num::f32_to_i32_sat;
 
-/// Where the envelope band in use came from.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-#[serde(rename_all = "snake_case")]
-pub enum BandSource {
-    /// Set by the operator in the configuration (code 0).
-    Configured,
-    /// Chosen by the node's band survey (code 1).
-    Survey,
-    /// None configured and no survey stored yet: the node uses the default
-    /// band of `PointConfig::default_band_hz` (code 2).
-    Unset,
-}
+pub use crate::band::BandSource;
 
 /// Which configuration the node started with at its last boot.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
@@ -204,7 +192,7 @@ pub struct StatusReport {
     /// Status sequence number (wraps 65535 -> 0), counted apart from reports.
     pub seq: u16,
     /// Quality flags of the cycle that sent the frame.
-    pub flags: QualityFlags,
+    pub flags: FrameFlags,
     /// Origin of the band in use.
     pub band_source: BandSource,
     /// Configuration at the last boot.
@@ -231,7 +219,7 @@ impl Default for StatusReport {
             version: FORMAT_VERSION,
             node_id: 0,
             seq: 0,
-            flags: QualityFlags::default(),
+            flags: FrameFlags::default(),
             band_source: BandSource::Configured,
             boot_config: BootConfig::Stored,
             provisioned: false,
@@ -448,9 +436,9 @@ mod tests {
         StatusReport {
             node_id: 0x0A17,
             seq: 3,
-            flags: QualityFlags {
+            flags: FrameFlags {
                 low_battery: true,
-                ..QualityFlags::default()
+                ..FrameFlags::default()
             },
             band_source: BandSource::Survey,
             boot_config: BootConfig::DefaultInvalid,

@@ -1,6 +1,6 @@
 // Shared helpers of the frame tests (included with `#[path]`, not a test crate of its own).
 #![allow(dead_code)]
-use wire::frame::{BearingResult, DefectResult, FrameReport, IsoZone, QualityFlags};
+use wire::frame::{BearingResult, DefectResult, FrameFlags, FrameReport, IsoZone};
 
 /// Small deterministic generator (xorshift64*, Vigna 2016) so committed vectors are stable.
 pub struct Rng(pub u64);
@@ -37,7 +37,7 @@ pub fn random_report(rng: &mut Rng) -> FrameReport {
     let mut r = FrameReport {
         node_id: rng.next_u64() as u16,
         seq: rng.next_u64() as u16,
-        flags: QualityFlags::from_bits(rng.next_u64() as u16 & 0x7F),
+        flags: FrameFlags::from_bits(rng.next_u64() as u16 & 0x7F),
         speed_rpm: rng.value(0.0, 16383.5),
         ..FrameReport::default()
     };
@@ -193,7 +193,7 @@ pub fn random_status(rng: &mut Rng) -> wire::frame::StatusReport {
     StatusReport {
         node_id: rng.next_u64() as u16,
         seq: rng.next_u64() as u16,
-        flags: QualityFlags::from_bits(rng.next_u64() as u16 & 0x7F),
+        flags: FrameFlags::from_bits(rng.next_u64() as u16 & 0x7F),
         band_source: [
             BandSource::Configured,
             BandSource::Survey,

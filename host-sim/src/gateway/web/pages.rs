@@ -13,7 +13,7 @@ use crate::gateway::trend::{DefectState, State};
 use crate::gateway::{bearing_states, combine};
 use std::collections::HashMap;
 use std::fmt::Write as _;
-use wire::frame::{DefectKind, QualityFlags};
+use wire::frame::{DefectKind, FrameFlags};
 
 const CSS: &str = r#"
 :root{--ink:#1d2330;--paper:#f6f4ef;--panel:#fff;--line:#d9d4c7;--muted:#5d6472;
@@ -307,7 +307,7 @@ pub fn fleet(inner: &mut Inner, cfg: &WebConfig, now_ms: i64) -> Result<Fleet, D
             snr_db: last.and_then(|r| r.snr_db),
             sensor_faults: nf.map_or(0, |n| n.sensor_faults),
             tach_faults: nf.map_or(0, |n| n.tach_faults),
-            battery_low: last.is_some_and(|r| QualityFlags::from_bits(r.flags).low_battery),
+            battery_low: last.is_some_and(|r| FrameFlags::from_bits(r.flags).low_battery),
             refused_downlinks: st.map(|s| s.refused_downlinks),
             band_hz: st.map(|s| s.band_hz),
             band_source: st.map(|s| s.band_source.clone()),
@@ -1211,7 +1211,7 @@ pub fn node_page(
     }
     b.push_str("</section><section class=\"panel\"><h2>Newest reports</h2><div class=\"wrap\"><table id=\"node-reports\"><thead><tr><th>Received</th><th class=\"num\">Seq</th><th>Frame</th><th class=\"num\">Speed rpm</th><th>Flags</th><th class=\"hide-s\">Link</th><th>Worst</th></tr></thead><tbody>");
     for r in &reports {
-        let fl = QualityFlags::from_bits(r.flags);
+        let fl = FrameFlags::from_bits(r.flags);
         let mut names = Vec::new();
         for (on, n) in [
             (fl.tach_missing, "tach missing"),

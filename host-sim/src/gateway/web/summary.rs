@@ -210,7 +210,7 @@ impl Summary {
     fn fold(&mut self, mut r: ReportRow) {
         self.tracker.observe(r.node, r.seq, &r.payload);
         let time = r.time_ms();
-        let flags = wire::frame::QualityFlags::from_bits(r.flags);
+        let flags = wire::frame::FrameFlags::from_bits(r.flags);
         for d in std::mem::take(&mut r.defects) {
             let k = self.keys.entry((r.node, d.bearing, d.kind)).or_default();
             if d.score_db.is_some() {
