@@ -144,7 +144,7 @@ pub fn load(path: &Path) -> Result<PointConfig, CliError> {
 /// Parses and validates point-file text; the error names the key or line.
 pub fn parse(text: &str) -> Result<PointConfig, String> {
     let file: PointFile = toml::from_str(text).map_err(|e| e.to_string())?;
-    crate::report_policy::from_section(&file.report)?;
+    crate::report_policy::from_section(&file.report).map_err(|e| e.to_string())?;
     let mut p = PointConfig::default();
 
     if let Some(v) = file.sensor.sample_rate_hz {
