@@ -95,19 +95,48 @@ pub enum Outcome {
     },
 }
 
+/// Why an uplink gives no frame (its text is the reject reason stored).
+#[derive(Clone, Debug, PartialEq)]
+pub enum UplinkError {
+    /// The input gave no bytes (why, as the reader said).
+    Unreadable(String),
+    /// The bytes are not a frame.
+    Frame(wire::frame::DecodeError),
+    /// The transport named another node than the frame.
+    NodeMismatch {
+        /// Node id the transport gave.
+        claimed: u16,
+        /// Node id in the frame.
+        node: u16,
+    },
+}
+
+impl std::fmt::Display for UplinkError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            UplinkError::Unreadable(e) => write!(f, "unreadable payload: {e}"),
+            UplinkError::Frame(e) => write!(f, "{e}"),
+            UplinkError::NodeMismatch { claimed, node } => write!(
+                f,
+                "node id {claimed} given by the transport differs from the frame's node id {node}"
+            ),
+        }
+    }
+}
+
+impl std::error::Error for UplinkError {}
+
 /// Decodes an uplink: the frame or the reject reason.
-pub fn decode(u: &Uplink) -> Result<Frame, String> {
+pub fn decode(u: &Uplink) -> Result<Frame, UplinkError> {
     let bytes = u
         .bytes
         .as_ref()
-        .map_err(|e| format!("unreadable payload: {e}"))?;
-    let frame = decode_any(bytes).map_err(|e| format!("{e}"))?;
+        .map_err(|e| UplinkError::Unreadable(e.clone()))?;
+    let frame = decode_any(bytes).map_err(UplinkError::Frame)?;
     if let Some(claimed) = u.claimed_node {
         let (node, _) = store::node_seq(&frame);
         if node != claimed {
-            return Err(format!(
-                "node id {claimed} given by the transport differs from the frame's node id {node}"
-            ));
+            return Err(UplinkError::NodeMismatch { claimed, node });
         }
     }
     Ok(frame)
@@ -156,12 +185,14 @@ pub fn store_batch(
 
 /// Writes a batch inside the caller's transaction (no sequence tracking).
 pub fn write(db: &mut dyn Db, batch: &[Uplink]) -> Result<Vec<Outcome>, DbError> {
-    let decoded: Vec<Result<Frame, String>> = batch.iter().map(decode).collect();
+    let decoded: Vec<Result<Frame, UplinkError>> = batch.iter().map(decode).collect();
     let mut out: Vec<Option<Outcome>> = vec![None; batch.len()];
     let mut run: Vec<usize> = Vec::new();
     for (i, (u, d)) in batch.iter().zip(&decoded).enumerate() {
         match d {
-            Err(reason) => {
+            Err(e) => {
+                // the reason is stored as text (reject log, outcome)
+                let reason = &e.to_string();
                 let new = insert_reject(db, &u.origin.source, u.origin.line, &u.text, reason)?;
                 set(
                     &mut out,
@@ -360,7 +391,7 @@ fn key_of(f: &Frame, payload: &[u8]) -> Key {
 fn flush_reports(
     db: &mut dyn Db,
     batch: &[Uplink],
-    decoded: &[Result<Frame, String>],
+    decoded: &[Result<Frame, UplinkError>],
     run: &mut Vec<usize>,
     out: &mut [Option<Outcome>],
 ) -> Result<(), DbError> {

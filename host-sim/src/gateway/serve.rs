@@ -84,6 +84,29 @@ enum Ack {
     V5(rumqttc::v5::mqttbytes::v5::Publish),
 }
 
+/// Why a request (ack, publish, subscribe) was not queued to the MQTT client.
+#[derive(Debug)]
+enum QueueError {
+    /// The MQTT 3.1.1 client refused it.
+    V4(Box<rumqttc::ClientError>),
+    /// The MQTT 5 client refused it (boxed: the request it returns is large).
+    V5(Box<rumqttc::v5::ClientError>),
+    /// An ack for a message of the other protocol version.
+    OtherProtocol,
+}
+
+impl std::fmt::Display for QueueError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            QueueError::V4(e) => write!(f, "{e}"),
+            QueueError::V5(e) => write!(f, "{e}"),
+            QueueError::OtherProtocol => f.write_str("ack of another protocol"),
+        }
+    }
+}
+
+impl std::error::Error for QueueError {}
+
 #[derive(Clone)]
 enum Handle {
     V4(rumqttc::Client),
@@ -93,18 +116,18 @@ enum Handle {
 impl Handle {
     /// Queues an ack without waiting (the request queue may be full while
     /// the event thread waits for room in ours: never block on it here).
-    fn try_ack(&self, a: &Ack) -> Result<(), String> {
+    fn try_ack(&self, a: &Ack) -> Result<(), QueueError> {
         match (self, a) {
-            (Handle::V4(c), Ack::V4(p)) => c.try_ack(p).map_err(|e| e.to_string()),
-            (Handle::V5(c), Ack::V5(p)) => c.try_ack(p).map_err(|e| e.to_string()),
-            _ => Err("ack of another protocol".into()),
+            (Handle::V4(c), Ack::V4(p)) => c.try_ack(p).map_err(|e| QueueError::V4(Box::new(e))),
+            (Handle::V5(c), Ack::V5(p)) => c.try_ack(p).map_err(|e| QueueError::V5(Box::new(e))),
+            _ => Err(QueueError::OtherProtocol),
         }
     }
-    fn publish(&self, topic: &str, payload: Vec<u8>) -> Result<(), String> {
+    fn publish(&self, topic: &str, payload: Vec<u8>) -> Result<(), QueueError> {
         match self {
             Handle::V4(c) => c
                 .try_publish(topic, rumqttc::QoS::AtLeastOnce, false, payload)
-                .map_err(|e| e.to_string()),
+                .map_err(|e| QueueError::V4(Box::new(e))),
             Handle::V5(c) => c
                 .try_publish(
                     topic,
@@ -112,18 +135,18 @@ impl Handle {
                     false,
                     payload,
                 )
-                .map_err(|e| e.to_string()),
+                .map_err(|e| QueueError::V5(Box::new(e))),
         }
     }
     /// Blocks until the request is queued (never call from the event thread).
-    fn subscribe(&self, topic: &str) -> Result<(), String> {
+    fn subscribe(&self, topic: &str) -> Result<(), QueueError> {
         match self {
             Handle::V4(c) => c
                 .subscribe(topic, rumqttc::QoS::AtLeastOnce)
-                .map_err(|e| e.to_string()),
+                .map_err(|e| QueueError::V4(Box::new(e))),
             Handle::V5(c) => c
                 .subscribe(topic, rumqttc::v5::mqttbytes::QoS::AtLeastOnce)
-                .map_err(|e| e.to_string()),
+                .map_err(|e| QueueError::V5(Box::new(e))),
         }
     }
     /// Queues a disconnect without waiting; false when the queue is full.
@@ -215,7 +238,7 @@ fn subscribe_all(h: &Handle, topics: &[String], log: Log) {
             if let Err(e) = h.subscribe(t) {
                 log.warn(
                     "subscribe failed",
-                    serde_json::json!({"topic": t, "error": e}),
+                    serde_json::json!({"topic": t, "error": e.to_string()}),
                 );
             }
         }
@@ -940,7 +963,10 @@ fn publish_alarms(
         log.info("alarm change", v.clone());
         if let Some(t) = topic {
             if let Err(err) = mqtt.publish(t, v.to_string().into_bytes()) {
-                log.warn("alarm publish failed", serde_json::json!({"error": err}));
+                log.warn(
+                    "alarm publish failed",
+                    serde_json::json!({"error": err.to_string()}),
+                );
             }
         }
     }
