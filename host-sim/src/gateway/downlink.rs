@@ -18,7 +18,7 @@ use wire::config::{PointRecord, MAX_RECORD_LEN};
 use wire::downlink::{CMD_MEASURE_NOW, CMD_SET_CONFIG, CMD_SURVEY};
 use wire::downlink_auth::{sign, DownlinkKey, HEADER_LEN, KEY_LEN, TAG_LEN};
 use wire::identity::IDENTITY_LEN;
-use wire::point::NodeSettings;
+use wire::point::{NodeSettings, RecordError};
 
 use crate::error::CliError;
 use crate::output::Access;
@@ -165,7 +165,7 @@ fn warn_if_shared(_path: &Path) {}
 
 /// The node's configuration record for a measuring point and node settings
 /// (the mapping is `wire::point::record_from_point`; its error names the key).
-pub fn record_from_point(p: &PointConfig, s: &ConfigArgs) -> Result<PointRecord, String> {
+pub fn record_from_point(p: &PointConfig, s: &ConfigArgs) -> Result<PointRecord, RecordError> {
     let node = NodeSettings {
         settle_ms: s.settle_ms,
         interval_s: s.interval_s,
@@ -176,7 +176,7 @@ pub fn record_from_point(p: &PointConfig, s: &ConfigArgs) -> Result<PointRecord,
         clip_permille: s.clip_permille,
         saturated_permille: s.saturated_permille,
     };
-    wire::point::record_from_point(p, &node).map_err(|e| e.to_string())
+    wire::point::record_from_point(p, &node)
 }
 
 /// The payload (command byte and data) of a downlink command.
