@@ -348,7 +348,8 @@ pub fn analyse_entry(dir: &Path, entry: &ManifestEntry, rule: BandRule) -> Recor
             // The core never panics; the host's reading and glue are guarded
             // too, so one record cannot end the run.
             std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
-                analyse_into(dir, rec, rule, &mut out)
+                // the record's `error` is text: converted here
+                analyse_into(dir, rec, rule, &mut out).map_err(|e| e.to_string())
             }))
             .unwrap_or_else(|_| Err(format!("{}: internal error while analysing", rec.file)))
         }
@@ -366,16 +367,67 @@ pub fn analyse_entry(dir: &Path, entry: &ManifestEntry, rule: BandRule) -> Recor
     out
 }
 
+/// Why one record could not be analysed (its text is the record's `error`
+/// in the output); each names the record's file.
+#[derive(Debug)]
+enum AnalyseError {
+    /// The WAV file could not be read.
+    Wav {
+        file: String,
+        err: crate::wav::WavError,
+    },
+    /// The WAV file holds no samples.
+    NoSamples { file: String },
+    /// The manifest's rate differs from the file's.
+    SampleRate { file: String, given: f32, wav: f32 },
+    /// No analysis plan fits the record.
+    Plan { file: String, err: PlanError },
+    /// The fallback default band could not be set.
+    DefaultBand(BandError),
+    /// The band rule gave no band.
+    Band { file: String, err: BandError },
+    /// The analysis refused the record.
+    Run { file: String, err: CliError },
+    /// The report is not analysable (its flags say why).
+    NotAnalysable {
+        file: String,
+        flags: dsp_core::QualityFlags,
+    },
+}
+
+impl std::fmt::Display for AnalyseError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            AnalyseError::Wav { file, err } => write!(f, "{file} (`file`): {err}"),
+            AnalyseError::NoSamples { file } => write!(f, "{file} (`file`): no samples"),
+            AnalyseError::SampleRate { file, given, wav } => write!(
+                f,
+                "{file}: `sample_rate_hz` {given} differs from the WAV's {wav} Hz"
+            ),
+            AnalyseError::Plan { file, err } => write!(f, "{file}: {err}"),
+            AnalyseError::DefaultBand(e) => write!(f, "{e}"),
+            AnalyseError::Band { file, err } => write!(f, "{file}: {err}"),
+            AnalyseError::Run { file, err } => write!(f, "{file}: {err}"),
+            AnalyseError::NotAnalysable { file, flags } => {
+                write!(f, "{file}: not analysable ({flags})")
+            }
+        }
+    }
+}
+
+impl std::error::Error for AnalyseError {}
+
 /// Analyses one record into `out`; errors name the file and the field.
 fn analyse_into(
     dir: &Path,
     rec: &ManifestRecord,
     rule: BandRule,
     out: &mut RecordResult,
-) -> Result<(), String> {
+) -> Result<(), AnalyseError> {
+    let file = || rec.file.clone();
     let path = dir.join(&rec.file);
     let wav = read_wav(&path, ReadOptions::accept_truncated())
-        .map_err(|e| format!("{} (`file`): {e}", rec.file))?;
+        .map_err(|err| AnalyseError::Wav { file: file(), err })?;
     if let Some(t) = &wav.truncation {
         out.notes.push(format!("WAV data truncated: {t:?}"));
     }
@@ -390,16 +442,18 @@ fn analyse_into(
         .into_iter()
         .next()
         .filter(|c| !c.is_empty())
-        .ok_or_else(|| format!("{} (`file`): no samples", rec.file))?;
+        .ok_or_else(|| AnalyseError::NoSamples { file: file() })?;
     #[allow(clippy::cast_precision_loss)]
     let fs = wav.info.sample_rate as f32;
     if (fs - rec.sample_rate_hz).abs() > 0.5 {
-        return Err(format!(
-            "{}: `sample_rate_hz` {} differs from the WAV's {fs} Hz",
-            rec.file, rec.sample_rate_hz
-        ));
+        return Err(AnalyseError::SampleRate {
+            file: file(),
+            given: rec.sample_rate_hz,
+            wav: fs,
+        });
     }
-    let mut point = validation_point(rec, x.len()).map_err(|e| format!("{}: {e}", rec.file))?;
+    let mut point =
+        validation_point(rec, x.len()).map_err(|err| AnalyseError::Plan { file: file(), err })?;
     out.samples_per_rev = point.samples_per_rev;
     let planned = usize::from(point.revolutions) / (4096 / usize::from(point.samples_per_rev));
     if planned < MIN_SEGMENTS {
@@ -424,20 +478,23 @@ fn analyse_into(
         // default octave, noted.
         Err(e) if matches!(rule, BandRule::Auto | BandRule::Evidence) => {
             out.notes.push(format!("{e}: default band used"));
-            choose_band(BandRule::Default, &record, &point).map_err(|e| e.to_string())?
+            choose_band(BandRule::Default, &record, &point).map_err(AnalyseError::DefaultBand)?
         }
-        Err(e) => return Err(format!("{}: {e}", rec.file)),
+        Err(err) => return Err(AnalyseError::Band { file: file(), err }),
     };
     out.band_hz = band;
     out.band_auto = auto;
     out.band_kurtosis = k;
     point.band_hz = Some(band);
-    let a = run(&point, &record).map_err(|e| format!("{}: {e}", rec.file))?;
+    let a = run(&point, &record).map_err(|err| AnalyseError::Run { file: file(), err })?;
     let rep = &a.report;
     out.segments = rep.segments;
     out.flags = rep.flags.to_string();
     if !rep.analysed() {
-        return Err(format!("{}: not analysable ({})", rec.file, rep.flags));
+        return Err(AnalyseError::NotAnalysable {
+            file: file(),
+            flags: rep.flags,
+        });
     }
     if let Some(d) = rep.bearings.first().and_then(|b| b.diagnosis.as_ref()) {
         out.detected = d.detected().collect();
