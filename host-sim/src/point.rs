@@ -141,10 +141,201 @@ pub fn load(path: &Path) -> Result<PointConfig, CliError> {
     parse(&text).map_err(|m| CliError::input(path.display(), m))
 }
 
+/// Why point-file text is refused; the message names the key or line.
+#[derive(Clone, Debug, PartialEq)]
+pub enum PointError {
+    /// Not TOML, or a key unknown or of the wrong type (the parser's message).
+    Toml(toml::de::Error),
+    /// The `[report]` section is refused.
+    Report(crate::report_policy::SectionError),
+    /// A key's value is none of the two it may be.
+    NotOneOf {
+        /// The key (`envelope.rectifier`, ...).
+        key: &'static str,
+        /// The value given.
+        value: String,
+        /// The two values allowed.
+        allowed: [&'static str; 2],
+    },
+    /// `speed.source = "constant"` without `speed.rpm`.
+    RpmMissing,
+    /// `iso.group` is not 1 or 2.
+    IsoGroup(u8),
+    /// A name is empty or too long (`what`: shaft, bearing, mesh).
+    NameLength {
+        /// Entry kind (`shaft`, `bearing`, `mesh`).
+        what: &'static str,
+        /// The name given.
+        name: String,
+    },
+    /// Two entries of one kind (`what`, plural `whats`) share a name.
+    DuplicateName {
+        /// Entry kind (`shaft`, `bearing`, `mesh`).
+        what: &'static str,
+        /// Its plural.
+        whats: &'static str,
+        /// The name given.
+        name: String,
+    },
+    /// More entries than fit a point.
+    TooMany {
+        /// Entry kind (`shaft`, `bearing`, `mesh`).
+        what: &'static str,
+        /// Entries given.
+        n: usize,
+        /// Entries that fit.
+        cap: usize,
+    },
+    /// An entry's list is full.
+    Capacity(&'static str),
+    /// `driven_by` names no shaft listed before.
+    DrivenBy {
+        /// The shaft named.
+        shaft: String,
+        /// The shaft `driven_by` names.
+        by: String,
+    },
+    /// A tooth count is 0.
+    ZeroTeeth {
+        /// The shaft named.
+        shaft: String,
+    },
+    /// Neither `ratio` nor `driven_by` with `teeth` (or both).
+    RatioOrTeeth {
+        /// The shaft named.
+        shaft: String,
+    },
+    /// The first shaft's ratio is not 1.
+    FirstRatio {
+        /// The shaft named.
+        shaft: String,
+    },
+    /// A length given both in mm and in inches.
+    BothUnits {
+        /// The bearing's name.
+        bearing: String,
+        /// The key, without unit suffix.
+        key: &'static str,
+    },
+    /// `shaft` names no shaft.
+    NoShaft {
+        /// Entry kind (`shaft`, `bearing`, `mesh`).
+        what: &'static str,
+        /// The entry's name.
+        owner: String,
+        /// The shaft named.
+        shaft: String,
+    },
+    /// A bearing has a shaft's name.
+    BearingNamedAsShaft {
+        /// The name given.
+        name: String,
+    },
+    /// Geometry given without `rollers`.
+    RollersMissing {
+        /// The bearing's name.
+        bearing: String,
+    },
+    /// Geometry given without a diameter (`key`: roller_diameter, pitch_diameter).
+    DiameterMissing {
+        /// The bearing's name.
+        bearing: String,
+        /// The key, without unit suffix.
+        key: &'static str,
+    },
+    /// Neither complete geometry nor all four multiples.
+    GeometryOrMultiples {
+        /// The bearing's name.
+        bearing: String,
+    },
+    /// A mesh's mate shaft is its own shaft.
+    MateIsOwnShaft {
+        /// The mesh's name.
+        mesh: String,
+        /// The mate shaft named.
+        mate: String,
+    },
+    /// The point is refused by the core's check (the key it refers to).
+    Invalid(dsp_core::config::ConfigError),
+}
+
+impl std::fmt::Display for PointError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            PointError::Toml(e) => write!(f, "{e}"),
+            PointError::Report(e) => write!(f, "{e}"),
+            PointError::NotOneOf {
+                key,
+                value,
+                allowed: [a, b],
+            } => write!(f, "{key}: `{value}` is not `{a}` or `{b}`"),
+            PointError::RpmMissing => {
+                f.write_str("speed.rpm: required when speed.source = \"constant\"")
+            }
+            PointError::IsoGroup(g) => write!(f, "iso.group: {g} is not 1 or 2"),
+            PointError::NameLength { what, name } => {
+                write!(f, "{what}.name `{name}`: must be 1 to {NAME_LEN} bytes")
+            }
+            PointError::DuplicateName { what, whats, name } => write!(
+                f,
+                "{what}.name `{name}`: two {whats} share this name; give each {what} its own name"
+            ),
+            PointError::TooMany { what, n, cap } => {
+                write!(f, "{what}: {n} given, at most {cap} fit one measuring point")
+            }
+            PointError::Capacity(what) => write!(f, "{what}: capacity exceeded"),
+            PointError::DrivenBy { shaft, by } => write!(
+                f,
+                "shaft `{shaft}`.driven_by: `{by}` is not a shaft listed before it"
+            ),
+            PointError::ZeroTeeth { shaft } => {
+                write!(f, "shaft `{shaft}`.teeth: tooth counts must be > 0")
+            }
+            PointError::RatioOrTeeth { shaft } => write!(
+                f,
+                "shaft `{shaft}`: give either `ratio`, or `driven_by` with `teeth`"
+            ),
+            PointError::FirstRatio { shaft } => write!(
+                f,
+                "shaft `{shaft}`: the first shaft is the tach shaft and has ratio 1"
+            ),
+            PointError::BothUnits { bearing, key } => {
+                write!(f, "bearing `{bearing}`: give {key}_mm or {key}_in, not both")
+            }
+            PointError::NoShaft { what, owner, shaft } => {
+                write!(f, "{what} `{owner}`.shaft: no shaft named `{shaft}`")
+            }
+            PointError::BearingNamedAsShaft { name } => write!(
+                f,
+                "bearing.name `{name}`: also the name of a shaft; shaft and bearing names must differ"
+            ),
+            PointError::RollersMissing { bearing } => {
+                write!(f, "bearing `{bearing}`.rollers: missing")
+            }
+            PointError::DiameterMissing { bearing, key } => {
+                write!(f, "bearing `{bearing}`: {key}_mm or _in missing")
+            }
+            PointError::GeometryOrMultiples { bearing } => write!(
+                f,
+                "bearing `{bearing}`: give either geometry (rollers, roller_diameter_*, \
+                 pitch_diameter_*, contact_angle_deg) or all of bpfo_x, bpfi_x, ftf_x, bsf_x"
+            ),
+            PointError::MateIsOwnShaft { mesh, mate } => write!(
+                f,
+                "mesh `{mesh}`: mate_shaft `{mate}` is the gear's own shaft; name the shaft \
+                 of the meshing gear"
+            ),
+            PointError::Invalid(e) => write!(f, "{e} ({})", config_key(*e)),
+        }
+    }
+}
+
+impl std::error::Error for PointError {}
+
 /// Parses and validates point-file text; the error names the key or line.
-pub fn parse(text: &str) -> Result<PointConfig, String> {
-    let file: PointFile = toml::from_str(text).map_err(|e| e.to_string())?;
-    crate::report_policy::from_section(&file.report).map_err(|e| e.to_string())?;
+pub fn parse(text: &str) -> Result<PointConfig, PointError> {
+    let file: PointFile = toml::from_str(text).map_err(PointError::Toml)?;
+    crate::report_policy::from_section(&file.report).map_err(PointError::Report)?;
     let mut p = PointConfig::default();
 
     if let Some(v) = file.sensor.sample_rate_hz {
@@ -166,9 +357,11 @@ pub fn parse(text: &str) -> Result<PointConfig, String> {
             "abs" => Rectifier::Abs,
             "square" => Rectifier::Square,
             other => {
-                return Err(format!(
-                    "envelope.rectifier: `{other}` is not `abs` or `square`"
-                ))
+                return Err(PointError::NotOneOf {
+                    key: "envelope.rectifier",
+                    value: other.to_string(),
+                    allowed: ["abs", "square"],
+                })
             }
         };
     }
@@ -194,14 +387,14 @@ pub fn parse(text: &str) -> Result<PointConfig, String> {
             tick_at_sample0: 0,
         },
         "constant" => SpeedInput::Constant {
-            rpm: s
-                .rpm
-                .ok_or("speed.rpm: required when speed.source = \"constant\"")?,
+            rpm: s.rpm.ok_or(PointError::RpmMissing)?,
         },
         other => {
-            return Err(format!(
-                "speed.source: `{other}` is not `tach` or `constant`"
-            ))
+            return Err(PointError::NotOneOf {
+                key: "speed.source",
+                value: other.to_string(),
+                allowed: ["tach", "constant"],
+            })
         }
     };
 
@@ -216,9 +409,11 @@ pub fn parse(text: &str) -> Result<PointConfig, String> {
             "hann" => Window::Hann,
             "flattop" => Window::FlatTop,
             other => {
-                return Err(format!(
-                    "spectrum.window: `{other}` is not `hann` or `flattop`"
-                ))
+                return Err(PointError::NotOneOf {
+                    key: "spectrum.window",
+                    value: other.to_string(),
+                    allowed: ["hann", "flattop"],
+                })
             }
         };
     }
@@ -247,7 +442,7 @@ pub fn parse(text: &str) -> Result<PointConfig, String> {
         p.machine_group = match g {
             1 => MachineGroup::Large,
             2 => MachineGroup::Medium,
-            other => return Err(format!("iso.group: {other} is not 1 or 2")),
+            other => return Err(PointError::IsoGroup(other)),
         };
     }
     if let Some(sup) = &file.iso.support {
@@ -255,9 +450,11 @@ pub fn parse(text: &str) -> Result<PointConfig, String> {
             "rigid" => Support::Rigid,
             "flexible" => Support::Flexible,
             other => {
-                return Err(format!(
-                    "iso.support: `{other}` is not `rigid` or `flexible`"
-                ))
+                return Err(PointError::NotOneOf {
+                    key: "iso.support",
+                    value: other.to_string(),
+                    allowed: ["rigid", "flexible"],
+                })
             }
         };
     }
@@ -266,21 +463,21 @@ pub fn parse(text: &str) -> Result<PointConfig, String> {
     bearings(&file.bearing, &mut p)?;
     meshes(&file.mesh, &mut p)?;
 
-    p.validate()
-        .map_err(|e| format!("{e} ({})", config_key(e)))?;
+    p.validate().map_err(PointError::Invalid)?;
     Ok(p)
 }
 
-fn check_name(what: &str, name: &str) -> Result<(), String> {
+fn check_name(what: &'static str, name: &str) -> Result<(), PointError> {
     if name.is_empty() || name.len() > NAME_LEN {
-        return Err(format!(
-            "{what}.name `{name}`: must be 1 to {NAME_LEN} bytes"
-        ));
+        return Err(PointError::NameLength {
+            what,
+            name: name.to_string(),
+        });
     }
     Ok(())
 }
 
-fn shafts(entries: &[ShaftEntry], p: &mut PointConfig) -> Result<(), String> {
+fn shafts(entries: &[ShaftEntry], p: &mut PointConfig) -> Result<(), PointError> {
     if entries.is_empty() {
         return Ok(()); // the default single tach shaft, ratio 1
     }
@@ -289,10 +486,11 @@ fn shafts(entries: &[ShaftEntry], p: &mut PointConfig) -> Result<(), String> {
     for (i, e) in entries.iter().enumerate() {
         check_name("shaft", &e.name)?;
         if entries.iter().take(i).any(|o| o.name == e.name) {
-            return Err(format!(
-                "shaft.name `{}`: two shafts share this name; give each shaft its own name",
-                e.name
-            ));
+            return Err(PointError::DuplicateName {
+                what: "shaft",
+                whats: "shafts",
+                name: e.name.clone(),
+            });
         }
         let ratio = match (e.ratio, &e.driven_by, e.teeth) {
             (Some(r), None, None) => r,
@@ -301,93 +499,97 @@ fn shafts(entries: &[ShaftEntry], p: &mut PointConfig) -> Result<(), String> {
                     .shafts
                     .iter()
                     .find(|s| s.name.as_str() == by)
-                    .ok_or_else(|| {
-                        format!(
-                            "shaft `{}`.driven_by: `{by}` is not a shaft listed before it",
-                            e.name
-                        )
+                    .ok_or_else(|| PointError::DrivenBy {
+                        shaft: e.name.clone(),
+                        by: by.clone(),
                     })?;
                 if z_driver == 0 || z_driven == 0 {
-                    return Err(format!(
-                        "shaft `{}`.teeth: tooth counts must be > 0",
-                        e.name
-                    ));
+                    return Err(PointError::ZeroTeeth {
+                        shaft: e.name.clone(),
+                    });
                 }
                 driver.ratio * f32::from(z_driver) / f32::from(z_driven)
             }
             (None, None, None) if i == 0 => 1.0,
             _ => {
-                return Err(format!(
-                    "shaft `{}`: give either `ratio`, or `driven_by` with `teeth`",
-                    e.name
-                ))
+                return Err(PointError::RatioOrTeeth {
+                    shaft: e.name.clone(),
+                })
             }
         };
         if i == 0 && (ratio - 1.0).abs() > f32::EPSILON {
-            return Err(format!(
-                "shaft `{}`: the first shaft is the tach shaft and has ratio 1",
-                e.name
-            ));
+            return Err(PointError::FirstRatio {
+                shaft: e.name.clone(),
+            });
         }
         p.shafts
             .push(Shaft {
                 name: name_from(&e.name),
                 ratio,
             })
-            .map_err(|_| "shaft: capacity exceeded".to_string())?;
+            .map_err(|_| PointError::Capacity("shaft"))?;
     }
     Ok(())
 }
 
 fn length(
     bearing: &str,
-    key: &str,
+    key: &'static str,
     mm: Option<f32>,
     inch: Option<f32>,
-) -> Result<Option<f32>, String> {
-    crate::bearing_len::length_mm(mm, inch)
-        .map_err(|_| format!("bearing `{bearing}`: give {key}_mm or {key}_in, not both"))
+) -> Result<Option<f32>, PointError> {
+    crate::bearing_len::length_mm(mm, inch).map_err(|_| PointError::BothUnits {
+        bearing: bearing.to_string(),
+        key,
+    })
 }
 
-fn check_count(what: &str, n: usize, cap: usize) -> Result<(), String> {
+fn check_count(what: &'static str, n: usize, cap: usize) -> Result<(), PointError> {
     if n > cap {
-        return Err(format!(
-            "{what}: {n} given, at most {cap} fit one measuring point"
-        ));
+        return Err(PointError::TooMany { what, n, cap });
     }
     Ok(())
 }
 
 /// Index of the shaft `shaft` names (the tach shaft when absent).
-fn shaft_of(p: &PointConfig, what: &str, owner: &str, shaft: Option<&str>) -> Result<u8, String> {
+fn shaft_of(
+    p: &PointConfig,
+    what: &'static str,
+    owner: &str,
+    shaft: Option<&str>,
+) -> Result<u8, PointError> {
     let i = match shaft {
         None => 0,
         Some(s) => p
             .shafts
             .iter()
             .position(|x| x.name.as_str() == s)
-            .ok_or_else(|| format!("{what} `{owner}`.shaft: no shaft named `{s}`"))?,
+            .ok_or_else(|| PointError::NoShaft {
+                what,
+                owner: owner.to_string(),
+                shaft: s.to_string(),
+            })?,
     };
     // At most MAX_SHAFTS (4) shafts exist.
     Ok(u8::try_from(i).unwrap_or(u8::MAX))
 }
 
-fn bearings(entries: &[BearingEntry], p: &mut PointConfig) -> Result<(), String> {
+fn bearings(entries: &[BearingEntry], p: &mut PointConfig) -> Result<(), PointError> {
     check_count("bearing", entries.len(), MAX_BEARINGS)?;
     for (i, e) in entries.iter().enumerate() {
         check_name("bearing", &e.name)?;
         if entries.iter().take(i).any(|o| o.name == e.name) {
-            return Err(format!(
-                "bearing.name `{}`: two bearings share this name; give each bearing its own name",
-                e.name
-            ));
+            return Err(PointError::DuplicateName {
+                what: "bearing",
+                whats: "bearings",
+                name: e.name.clone(),
+            });
         }
         // one name, one thing: reports and gateway maps refer to both by name
         if p.shafts.iter().any(|s| s.name.as_str() == e.name) {
-            return Err(format!(
-                "bearing.name `{}`: also the name of a shaft; shaft and bearing names must differ",
-                e.name
-            ));
+            return Err(PointError::BearingNamedAsShaft {
+                name: e.name.clone(),
+            });
         }
         let shaft = shaft_of(p, "bearing", &e.name, e.shaft.as_deref())?;
         let d = length(
@@ -406,14 +608,16 @@ fn bearings(entries: &[BearingEntry], p: &mut PointConfig) -> Result<(), String>
         let multiples = [e.bpfo_x, e.bpfi_x, e.ftf_x, e.bsf_x];
         let kinematics = match (geometry, multiples) {
             (true, [None, None, None, None]) => BearingKinematics::Geometry {
-                rollers: e
-                    .rollers
-                    .ok_or_else(|| format!("bearing `{}`.rollers: missing", e.name))?,
-                roller_diameter: d.ok_or_else(|| {
-                    format!("bearing `{}`: roller_diameter_mm or _in missing", e.name)
+                rollers: e.rollers.ok_or_else(|| PointError::RollersMissing {
+                    bearing: e.name.clone(),
                 })?,
-                pitch_diameter: pd.ok_or_else(|| {
-                    format!("bearing `{}`: pitch_diameter_mm or _in missing", e.name)
+                roller_diameter: d.ok_or_else(|| PointError::DiameterMissing {
+                    bearing: e.name.clone(),
+                    key: "roller_diameter",
+                })?,
+                pitch_diameter: pd.ok_or_else(|| PointError::DiameterMissing {
+                    bearing: e.name.clone(),
+                    key: "pitch_diameter",
                 })?,
                 contact_angle_deg: e.contact_angle_deg.unwrap_or(0.0),
             },
@@ -426,11 +630,9 @@ fn bearings(entries: &[BearingEntry], p: &mut PointConfig) -> Result<(), String>
                 }
             }
             _ => {
-                return Err(format!(
-                    "bearing `{}`: give either geometry (rollers, roller_diameter_*, \
-                     pitch_diameter_*, contact_angle_deg) or all of bpfo_x, bpfi_x, ftf_x, bsf_x",
-                    e.name
-                ))
+                return Err(PointError::GeometryOrMultiples {
+                    bearing: e.name.clone(),
+                })
             }
         };
         p.bearings
@@ -439,31 +641,31 @@ fn bearings(entries: &[BearingEntry], p: &mut PointConfig) -> Result<(), String>
                 shaft,
                 kinematics,
             })
-            .map_err(|_| "bearing: capacity exceeded".to_string())?;
+            .map_err(|_| PointError::Capacity("bearing"))?;
     }
     Ok(())
 }
 
-fn meshes(entries: &[MeshEntry], p: &mut PointConfig) -> Result<(), String> {
+fn meshes(entries: &[MeshEntry], p: &mut PointConfig) -> Result<(), PointError> {
     check_count("mesh", entries.len(), MAX_MESHES)?;
     for (i, e) in entries.iter().enumerate() {
         check_name("mesh", &e.name)?;
         if entries.iter().take(i).any(|o| o.name == e.name) {
-            return Err(format!(
-                "mesh.name `{}`: two meshes share this name; give each mesh its own name",
-                e.name
-            ));
+            return Err(PointError::DuplicateName {
+                what: "mesh",
+                whats: "meshes",
+                name: e.name.clone(),
+            });
         }
         let shaft = shaft_of(p, "mesh", &e.name, e.shaft.as_deref())?;
         let mate = match e.mate_shaft.as_deref() {
             Some(m) => {
                 let x = shaft_of(p, "mesh", &e.name, Some(m))?;
                 if x == shaft {
-                    return Err(format!(
-                        "mesh `{}`: mate_shaft `{m}` is the gear's own shaft; name the shaft \
-                         of the meshing gear",
-                        e.name
-                    ));
+                    return Err(PointError::MateIsOwnShaft {
+                        mesh: e.name.clone(),
+                        mate: m.to_string(),
+                    });
                 }
                 Some(x)
             }
@@ -476,7 +678,7 @@ fn meshes(entries: &[MeshEntry], p: &mut PointConfig) -> Result<(), String> {
                 teeth: e.teeth,
                 mate,
             })
-            .map_err(|_| "mesh: capacity exceeded".to_string())?;
+            .map_err(|_| PointError::Capacity("mesh"))?;
     }
     Ok(())
 }
@@ -628,7 +830,7 @@ mod tests {
             ("[[mesh]]\nname = \"m\"\nshaft = \"x\"\nteeth = 9\n", "no shaft named"),
         ];
         for (text, key) in cases {
-            let err = parse(text).unwrap_err();
+            let err = parse(text).unwrap_err().to_string();
             assert!(
                 err.contains(key),
                 "{text:?} gave {err:?}, want mention of {key}"
@@ -640,7 +842,7 @@ mod tests {
     fn a_name_shared_by_a_shaft_and_a_bearing_is_refused() {
         let text = "[[shaft]]\nname = \"input\"\n[[shaft]]\nname = \"out\"\nratio = 0.25\n\
                     [[bearing]]\nname = \"out\"\nshaft = \"out\"\nbpfo_x = 3.0\nbpfi_x = 5.0\nftf_x = 0.4\nbsf_x = 2.0\n";
-        let err = parse(text).unwrap_err();
+        let err = parse(text).unwrap_err().to_string();
         assert!(
             err.contains("bearing.name `out`") && err.contains("shaft"),
             "{err}"
@@ -648,7 +850,10 @@ mod tests {
         // the default tach shaft (no [[shaft]] given) is named `input`
         let text =
             "[[bearing]]\nname = \"input\"\nbpfo_x = 3.0\nbpfi_x = 5.0\nftf_x = 0.4\nbsf_x = 2.0\n";
-        assert!(parse(text).unwrap_err().contains("bearing.name `input`"));
+        assert!(parse(text)
+            .unwrap_err()
+            .to_string()
+            .contains("bearing.name `input`"));
         // distinct names parse
         let text = "[[shaft]]\nname = \"input\"\n[[bearing]]\nname = \"de\"\nbpfo_x = 3.0\nbpfi_x = 5.0\nftf_x = 0.4\nbsf_x = 2.0\n";
         assert!(parse(text).is_ok());
@@ -660,15 +865,21 @@ mod tests {
     fn duplicate_names_are_named() {
         let b = "bpfo_x = 3.0\nbpfi_x = 5.0\nftf_x = 0.4\nbsf_x = 2.0\n";
         let text = format!("[[bearing]]\nname = \"de\"\n{b}[[bearing]]\nname = \"de\"\n{b}");
-        let err = parse(&text).unwrap_err();
+        let err = parse(&text).unwrap_err().to_string();
         assert!(
             err.contains("bearing.name `de`") && err.contains("two bearings"),
             "{err}"
         );
         let text = "[[shaft]]\nname = \"in\"\n[[shaft]]\nname = \"in\"\nratio = 0.5\n";
-        assert!(parse(text).unwrap_err().contains("shaft.name `in`"));
+        assert!(parse(text)
+            .unwrap_err()
+            .to_string()
+            .contains("shaft.name `in`"));
         let text = "[[mesh]]\nname = \"m\"\nteeth = 9\n[[mesh]]\nname = \"m\"\nteeth = 7\n";
-        assert!(parse(text).unwrap_err().contains("mesh.name `m`"));
+        assert!(parse(text)
+            .unwrap_err()
+            .to_string()
+            .contains("mesh.name `m`"));
     }
 
     #[test]
@@ -679,6 +890,6 @@ mod tests {
                 "[[bearing]]\nname = \"b{i}\"\nbpfo_x = 3.0\nbpfi_x = 5.0\nftf_x = 0.4\nbsf_x = 2.0\n"
             ));
         }
-        assert!(parse(&text).unwrap_err().contains("at most 8"));
+        assert!(parse(&text).unwrap_err().to_string().contains("at most 8"));
     }
 }
