@@ -14,7 +14,8 @@
 //! * [`ring`]: the queue of ADC blocks between the sampling interrupt and the
 //!   cycle, deep enough for the block that completes a spectrum segment.
 //! * [`exception`]: reports by exception (a full frame when a finding
-//!   changed, a flag is raised or every N cycles; else the reduced frame).
+//!   changed, a flag is raised or every N cycles; else the reduced frame);
+//!   the rule lives in `wire::exception`, which the gateway shares.
 //! * [`pipeline_core`]: the adapter to the `dsp-core` pipeline and frame codec.
 //! * [`overall_core`]: a minimal overall-level core, so board images run the
 //!   whole cycle before the envelope pipeline is adapted.
@@ -35,7 +36,7 @@
 
 pub mod commission;
 pub mod cycle;
-pub mod exception;
+pub use wire::exception;
 pub mod hal;
 mod log;
 pub mod overall_core;

@@ -1,6 +1,6 @@
 //! The `[report]` section of a point file: when the node sends a full
 //! report frame rather than the reduced one (reports by exception,
-//! `firmware::exception`).
+//! `wire::exception`).
 //!
 //! ```toml
 //! [report]
@@ -14,7 +14,7 @@
 
 use std::path::Path;
 
-use firmware::exception::{PolicyError, ReportPolicy};
+use wire::exception::{PolicyError, ReportPolicy};
 use serde::Deserialize;
 
 use crate::error::CliError;

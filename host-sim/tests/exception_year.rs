@@ -5,7 +5,7 @@
 //! intermediate-shaft bearing grows (impact amplitude 0.02 g -> 0.8 g,
 //! exponential); each record runs through the node's pipeline as the
 //! firmware runs it (host_sim::analysis), becomes the full frame, and the
-//! node's policy (firmware::exception, default margin and period) decides
+//! node's policy (wire::exception, default margin and period) decides
 //! which frame goes out. Two gateway stores are fed: every cycle's full
 //! frame, and what the policy sends. After every cycle the gateway's state
 //! of every (bearing, defect) must be the same in both; the airtime of both
@@ -22,7 +22,7 @@
     missing_docs
 )]
 
-use firmware::exception::{Choice, ExceptionState, ReportPolicy};
+use wire::exception::{Choice, ExceptionState, ReportPolicy};
 use host_sim::analysis::{edges_from_channel, run, Accel, Record};
 use host_sim::cmd_demo::{to_counts, DEMO_MACHINE, DEMO_POINT};
 use host_sim::energy::lora::{time_on_air_s, LoraParams};

@@ -12,6 +12,9 @@
 //! * [`downlink`]: downlink commands, accepted only when [`downlink_auth`]
 //!   verifies them under the node's key.
 //! * [`crc`]: the one CRC module (CRC-16 for frames, CRC-32 for records).
+//! * [`exception`]: the rule that decides between a full and a reduced
+//!   report frame. The node applies it and the gateway reads a reduced frame
+//!   ("as before") by it, so it lives with the frames both sides share.
 //!
 //! The model is a network stack's wire layer: bytes are checked once
 //! (`decode` / `parse` / `verify` return a typed error naming what is
@@ -48,6 +51,7 @@ pub mod config;
 pub mod crc;
 pub mod downlink;
 pub mod downlink_auth;
+pub mod exception;
 pub mod frame;
 pub mod identity;
 pub mod overall;

@@ -19,7 +19,7 @@ use super::lora::{self, LoraError, LoraParams};
 pub const YEAR_S: f64 = 365.25 * 86_400.0;
 
 /// Shortest and longest measurement interval the node accepts (s): the
-/// range `PointRecord::validate` checks (firmware/src/config.rs).
+/// range `PointRecord::validate` checks (wire/src/config.rs).
 pub const INTERVAL_RANGE_S: (f64, f64) = (10.0, 7.0 * 86_400.0);
 
 /// Delay of the second receive window after the end of the uplink, s

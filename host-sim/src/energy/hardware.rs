@@ -81,7 +81,7 @@ params! {
     SensorMa = ("sensor.on_ma", 1.0, "mA", 0.0, 1000.0,
         "assumption: a wide-band MEMS accelerometer and its front end powered through the sensor switch (from memory, typical of such parts)");
     SettleMs = ("sensor.settle_ms", 200.0, "ms", 0.0, 10_000.0,
-        "sensor power-on and settling before sampling: the node's default `settle_ms` (firmware/src/config.rs)");
+        "sensor power-on and settling before sampling: the node's default `settle_ms` (wire/src/config.rs)");
     TxMa = ("radio.tx_ma", 29.0, "mA", 0.0, 1000.0,
         "SX1276 transmitting at +13 dBm on the RFO pin (SX1276/77/78/79 datasheet, section 2.5.1 Power Consumption, IDDT; from memory; +17 dBm on PA_BOOST: 87 mA)");
     RxMa = ("radio.rx_ma", 10.8, "mA", 0.0, 1000.0,

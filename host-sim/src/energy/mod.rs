@@ -20,7 +20,7 @@ use std::path::{Path, PathBuf};
 
 use clap::Args;
 use dsp_core::config::SpeedInput;
-use firmware::exception::ReportPolicy;
+use wire::exception::ReportPolicy;
 use wire::frame::layout::{full_frame_len, REDUCED_LEN};
 
 use crate::error::CliError;

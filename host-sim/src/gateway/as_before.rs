@@ -1,6 +1,6 @@
 //! Reduced frames read as "as before".
 //!
-//! A node reporting by exception (`firmware::exception`) sends the reduced
+//! A node reporting by exception (`wire::exception`) sends the reduced
 //! frame when no finding moved by its margin since its last full frame: the
 //! frame means "everything as in my last full frame, and this is my worst
 //! defect now". The store keeps what arrived (the reduced frame's one

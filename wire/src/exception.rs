@@ -9,7 +9,7 @@
 //!   velocity RMS (as a level, 20 log10 of the ratio),
 //! * or [`ReportPolicy::full_every`] cycles have passed since it;
 //!
-//! otherwise the 11-byte reduced frame ([`wire::frame::encode_reduced`]),
+//! otherwise the 11-byte reduced frame ([`crate::frame::encode_reduced`]),
 //! which the gateway reads as "as before, with this worst score". The
 //! comparison is made on the values as the frame carries them (quantised),
 //! so what the gateway sees decides. Peak, crest factor, kurtosis, speed and
@@ -21,7 +21,7 @@
 //! make the next reduced frame refer to a full frame never sent.
 
 use dsp_core::num::log10f;
-use wire::frame::{FrameFlags, FrameReport};
+use crate::frame::{FrameFlags, FrameReport};
 
 /// When the node sends a full frame. The defaults are this project's
 /// choice: 3 dB is half the +6 dB alert rise of the gateway's trend limits
@@ -216,8 +216,8 @@ fn changed(last: &FrameReport, now: &FrameReport, margin: f32) -> bool {
             // v2 frames: a line's state (not searched / searched /
             // detected / shared) is news, and their size is the summed
             // amplitude (the 1x amplitude is not carried)
-            let state = |d: &wire::frame::DefectResult| d.line.map(|l| l.state);
-            let summed = |d: &wire::frame::DefectResult| d.line.map_or(f32::NAN, |l| l.amplitude_g);
+            let state = |d: &crate::frame::DefectResult| d.line.map(|l| l.state);
+            let summed = |d: &crate::frame::DefectResult| d.line.map_or(f32::NAN, |l| l.amplitude_g);
             x.detected != y.detected
                 || state(x) != state(y)
                 || moved_db(x.score_db, y.score_db, margin)
@@ -230,7 +230,7 @@ fn changed(last: &FrameReport, now: &FrameReport, margin: f32) -> bool {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use wire::frame::{BearingResult, IsoZone};
+    use crate::frame::{BearingResult, IsoZone};
 
     fn report(score: f32) -> FrameReport {
         let mut r = FrameReport {
