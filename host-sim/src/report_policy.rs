@@ -14,8 +14,8 @@
 
 use std::path::Path;
 
-use wire::exception::{PolicyError, ReportPolicy};
 use serde::Deserialize;
+use wire::exception::{PolicyError, ReportPolicy};
 
 use crate::error::CliError;
 

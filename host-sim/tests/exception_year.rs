@@ -22,12 +22,12 @@
     missing_docs
 )]
 
-use wire::exception::{Choice, ExceptionState, ReportPolicy};
 use host_sim::analysis::{edges_from_channel, run, Accel, Record};
 use host_sim::cmd_demo::{to_counts, DEMO_MACHINE, DEMO_POINT};
 use host_sim::energy::lora::{time_on_air_s, LoraParams};
 use host_sim::gateway::{store, trend, trend_cmd};
 use host_sim::simulate::{simulate, MachineSpec};
+use wire::exception::{Choice, ExceptionState, ReportPolicy};
 use wire::frame::{decode, encode, encode_reduced, FrameReport};
 
 const DAYS: u32 = 365;

@@ -20,8 +20,8 @@
 //! ([`ExceptionState::sent`]): a cycle that fails before the uplink does not
 //! make the next reduced frame refer to a full frame never sent.
 
-use dsp_core::num::log10f;
 use crate::frame::{FrameFlags, FrameReport};
+use dsp_core::num::log10f;
 
 /// When the node sends a full frame. The defaults are this project's
 /// choice: 3 dB is half the +6 dB alert rise of the gateway's trend limits
@@ -217,7 +217,8 @@ fn changed(last: &FrameReport, now: &FrameReport, margin: f32) -> bool {
             // detected / shared) is news, and their size is the summed
             // amplitude (the 1x amplitude is not carried)
             let state = |d: &crate::frame::DefectResult| d.line.map(|l| l.state);
-            let summed = |d: &crate::frame::DefectResult| d.line.map_or(f32::NAN, |l| l.amplitude_g);
+            let summed =
+                |d: &crate::frame::DefectResult| d.line.map_or(f32::NAN, |l| l.amplitude_g);
             x.detected != y.detected
                 || state(x) != state(y)
                 || moved_db(x.score_db, y.score_db, margin)
