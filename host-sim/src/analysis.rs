@@ -80,9 +80,21 @@ pub fn edges_to_ticks(edges_s: &[f64], tick_hz: u32, tick_at_sample0: u32) -> Ve
         .collect()
 }
 
+/// A digitised tach channel whose edges cannot be found.
+#[derive(Debug)]
+pub struct TachChannelError(dsp_core::speed::tach::EdgeDetectorError);
+
+impl std::fmt::Display for TachChannelError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "tach channel: {}", self.0)
+    }
+}
+
+impl std::error::Error for TachChannelError {}
+
 /// Finds rising edges in a digitised tach channel: hysteresis at 30 % and
 /// 70 % of the channel's range, sub-sample interpolation. Times in seconds.
-pub fn edges_from_channel(tach: &[f32], sample_rate_hz: f32) -> Result<Vec<f64>, String> {
+pub fn edges_from_channel(tach: &[f32], sample_rate_hz: f32) -> Result<Vec<f64>, TachChannelError> {
     let finite = tach.iter().copied().filter(|x| x.is_finite());
     let lo = finite.clone().fold(f32::INFINITY, f32::min);
     let hi = finite.fold(f32::NEG_INFINITY, f32::max);
@@ -90,8 +102,7 @@ pub fn edges_from_channel(tach: &[f32], sample_rate_hz: f32) -> Result<Vec<f64>,
         return Ok(Vec::new()); // a flat channel has no edges: the core flags it
     }
     let span = hi - lo;
-    let mut det = EdgeDetector::new(lo + 0.3 * span, lo + 0.7 * span)
-        .map_err(|e| format!("tach channel: {e}"))?;
+    let mut det = EdgeDetector::new(lo + 0.3 * span, lo + 0.7 * span).map_err(TachChannelError)?;
     let mut out = Vec::new();
     det.process(tach, |t| out.push(t / f64::from(sample_rate_hz)));
     Ok(out)

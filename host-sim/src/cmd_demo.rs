@@ -60,7 +60,7 @@ pub fn demo_analysis(seed: u64) -> Result<Analysis, CliError> {
     let sim = simulate(&spec, seed).map_err(|e| CliError::Other(format!("simulate: {e}")))?;
     #[allow(clippy::cast_possible_truncation)]
     let fs = sim.fs as f32;
-    let edges = edges_from_channel(&sim.tach, fs).map_err(CliError::Other)?;
+    let edges = edges_from_channel(&sim.tach, fs).map_err(|e| CliError::Other(e.to_string()))?;
     let rec = Record {
         sample_rate_hz: fs,
         accel: Accel::Counts(to_counts(&sim.accel, point.counts_to_g)),

@@ -32,18 +32,49 @@ pub struct InputItem {
     pub bytes: Result<Vec<u8>, String>,
 }
 
+/// A payload token that is not valid hex or base64. Its text is the reject
+/// reason the store keeps.
+#[derive(Clone, Debug, PartialEq, Eq)]
+#[non_exhaustive]
+pub enum PayloadError {
+    /// A hex pair with a non-hex digit (the pair as given).
+    HexDigits(String),
+    /// Hex text that is not ASCII.
+    NotAscii,
+    /// Hex text of odd length (the length).
+    OddHex(usize),
+    /// A character outside both base64 alphabets.
+    Base64Char(char),
+    /// Base64 of an impossible length or with non-zero padding bits.
+    Base64Length,
+}
+
+impl std::fmt::Display for PayloadError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            Self::HexDigits(t) => write!(f, "bad hex digits {t:?}"),
+            Self::NotAscii => f.write_str("not ASCII"),
+            Self::OddHex(n) => write!(f, "odd number of hex digits ({n})"),
+            Self::Base64Char(c) => write!(f, "bad base64 character {c:?}"),
+            Self::Base64Length => f.write_str("base64 length or padding bits invalid"),
+        }
+    }
+}
+
+impl std::error::Error for PayloadError {}
+
 /// Decodes hex (upper or lower case, even length), through the `hex` crate.
-pub fn parse_hex(s: &str) -> Result<Vec<u8>, String> {
+pub fn parse_hex(s: &str) -> Result<Vec<u8>, PayloadError> {
     hex::decode(s).map_err(|e| match e {
         hex::FromHexError::InvalidHexCharacter { index, .. } => {
             // name the pair of digits the bad one belongs to
             let at = index - index % 2;
             match s.as_bytes().get(at..at + 2).map(std::str::from_utf8) {
-                Some(Ok(t)) => format!("bad hex digits {t:?}"),
-                _ => "not ASCII".to_string(),
+                Some(Ok(t)) => PayloadError::HexDigits(t.to_string()),
+                _ => PayloadError::NotAscii,
             }
         }
-        _ => format!("odd number of hex digits ({})", s.len()),
+        _ => PayloadError::OddHex(s.len()),
     })
 }
 
@@ -55,7 +86,7 @@ fn b64_char_ok(c: u8) -> bool {
 /// through the `base64` crate: the padding is dropped, the URL alphabet's
 /// two characters mapped to the standard's, and the rest decoded with
 /// padding absent and the leftover bits required to be zero (RFC 4648).
-pub fn parse_base64(s: &str) -> Result<Vec<u8>, String> {
+pub fn parse_base64(s: &str) -> Result<Vec<u8>, PayloadError> {
     use base64::engine::{DecodePaddingMode, GeneralPurpose, GeneralPurposeConfig};
     use base64::Engine as _;
     const ENGINE: GeneralPurpose = GeneralPurpose::new(
@@ -66,7 +97,7 @@ pub fn parse_base64(s: &str) -> Result<Vec<u8>, String> {
     );
     let body = s.trim_end_matches('=');
     if let Some(c) = body.bytes().find(|c| !b64_char_ok(*c)) {
-        return Err(format!("bad base64 character {:?}", char::from(c)));
+        return Err(PayloadError::Base64Char(char::from(c)));
     }
     let std: Vec<u8> = body
         .bytes()
@@ -76,9 +107,7 @@ pub fn parse_base64(s: &str) -> Result<Vec<u8>, String> {
             c => c,
         })
         .collect();
-    ENGINE
-        .decode(std)
-        .map_err(|_| "base64 length or padding bits invalid".to_string())
+    ENGINE.decode(std).map_err(|_| PayloadError::Base64Length)
 }
 
 /// Encodes base64 (standard alphabet, padded); used by tests and vectors.
@@ -106,7 +135,7 @@ pub fn to_hex(b: &[u8]) -> String {
     b.iter().map(|x| format!("{x:02x}")).collect()
 }
 
-fn parse_token(tok: &str, fmt: InputFormat) -> Result<Vec<u8>, String> {
+fn parse_token(tok: &str, fmt: InputFormat) -> Result<Vec<u8>, PayloadError> {
     match fmt {
         InputFormat::Hex => parse_hex(tok),
         InputFormat::Base64 => parse_base64(tok),
@@ -131,8 +160,12 @@ pub fn parse_text(source: &str, text: &str, fmt: InputFormat) -> Vec<InputItem> 
         }
         let toks: Vec<&str> = line.split_whitespace().collect();
         let (rx_time, tok, bytes) = match toks.as_slice() {
-            [p] => (None, *p, parse_token(p, fmt)),
-            [t, p] => (Some((*t).to_string()), *p, parse_token(p, fmt)),
+            [p] => (None, *p, parse_token(p, fmt).map_err(|e| e.to_string())),
+            [t, p] => (
+                Some((*t).to_string()),
+                *p,
+                parse_token(p, fmt).map_err(|e| e.to_string()),
+            ),
             _ => (
                 None,
                 line,
@@ -227,11 +260,11 @@ mod tests {
             assert_eq!(parse_base64(enc).unwrap(), plain.as_bytes());
         }
         assert_eq!(
-            parse_base64("Zm9v!").unwrap_err(),
+            parse_base64("Zm9v!").unwrap_err().to_string(),
             "bad base64 character '!'"
         );
         assert_eq!(
-            parse_base64("Z").unwrap_err(),
+            parse_base64("Z").unwrap_err().to_string(),
             "base64 length or padding bits invalid"
         );
         // leftover bits must be zero (RFC 4648 section 3.5)
@@ -244,10 +277,13 @@ mod tests {
     fn hex_and_lines() {
         assert_eq!(parse_hex("0aFF").unwrap(), vec![0x0a, 0xff]);
         assert_eq!(
-            parse_hex("abc").unwrap_err(),
+            parse_hex("abc").unwrap_err().to_string(),
             "odd number of hex digits (3)"
         );
-        assert_eq!(parse_hex("0aZ1").unwrap_err(), "bad hex digits \"Z1\"");
+        assert_eq!(
+            parse_hex("0aZ1").unwrap_err().to_string(),
+            "bad hex digits \"Z1\""
+        );
         let items = parse_text(
             "x",
             "# c\n\n0a0b\n2026-01-01T00:00:00Z Cgs=\na b c\n",

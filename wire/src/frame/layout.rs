@@ -25,6 +25,10 @@ pub const DEFECT_BITS: usize = 19;
 pub const DEFECTS_PER_BEARING: usize = 4;
 /// Most bearings one v2 full frame can carry (4-bit count field, limited to 8).
 pub const MAX_BEARINGS: usize = 8;
+// The frame format's limit is its own constant (a format does not change
+// when a capacity elsewhere does), but it must equal a measuring point's
+// capacity, so that every report fits one frame: checked at compile time.
+const _: () = assert!(MAX_BEARINGS == dsp_core::config::MAX_BEARINGS);
 /// Most bearings one v1 full frame can carry (3-bit count field, limited to 4).
 pub const V1_MAX_BEARINGS: usize = 4;
 /// Most gear meshes one v2 full frame can carry (3-bit count field, limited to 4).
