@@ -22,6 +22,13 @@ use crate::speed::tach::SpeedSummary;
 /// on the air are the `wire` crate's: its frame flag field
 /// (`wire::frame::FrameFlags`, 7 bits) and the overall frame's flag byte
 /// are fixed layouts that these flags are mapped onto.
+///
+/// Hand-written rather than with the `bitflags` crate: the node logs it
+/// with `defmt::Format` (a derive that bitflags' generated type does not
+/// take), and dsp-core stays free of dependencies beyond its numeric ones,
+/// which keeps the no-panic link check and the bit-exact board images
+/// independent of a macro crate's output. It is a handful of const bit
+/// operations.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Hash)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct QualityFlags(pub u16);

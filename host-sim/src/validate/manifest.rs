@@ -1,6 +1,15 @@
 //! Reading `manifest.toml`: one [`ManifestEntry`] per `[[recording]]`
 //! table, usable or carrying the [`FieldError`] that names the record and
 //! the field (see the module doc of [`crate::validate`]).
+//!
+//! A walk over `toml::Table` rather than `serde` derive with aliases: the
+//! manifest accepts two spellings of one key given together when they agree
+//! (`n_balls` and `n_rollers`; `_mm` and `_in` lengths) and names the record
+//! and the key when they disagree, takes a number as integer, float or text,
+//! and lists one bad record while analysing the others. `#[serde(alias)]`
+//! makes the first a "duplicate field" error and stops at the first bad
+//! record, so derive would need a custom `Deserialize` per field: the same
+//! walk in another shape.
 
 use dsp_core::config::{name_from, Bearing, BearingKinematics};
 use dsp_core::{BearingGeometry, DefectKind, DefectMultiples};
