@@ -24,11 +24,9 @@ use crate::speed::tach::SpeedSummary;
 /// are fixed layouts that these flags are mapped onto.
 ///
 /// Hand-written rather than with the `bitflags` crate: the node logs it
-/// with `defmt::Format` (a derive that bitflags' generated type does not
-/// take), and dsp-core stays free of dependencies beyond its numeric ones,
-/// which keeps the no-panic link check and the bit-exact board images
-/// independent of a macro crate's output. It is a handful of const bit
-/// operations.
+/// with `defmt::Format`, which bitflags' generated type does not derive,
+/// and the frame fold and tests read its bits through the public field; it
+/// is a handful of const bit operations.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Hash)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct QualityFlags(pub u16);
