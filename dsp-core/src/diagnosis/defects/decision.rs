@@ -26,10 +26,9 @@ fn detection_rule(r: &DefectResult, sideband_pair: bool, cfg: &DefectSearchConfi
     }
 }
 
-/// Decides `r` again after it lost counted harmonics without the spectrum:
-/// harmonics found and score from the counted ones, sideband pairs less the
-/// `lost_early` lost harmonics among the first three (where pairs are sought).
-pub(super) fn decide_from_counts(r: &mut DefectResult, lost_early: u8, cfg: &DefectSearchConfig) {
+/// Harmonics found and the score (dB, counted amplitude over counted floor,
+/// both as power sums) from `r`'s counted harmonics.
+fn count_and_score(r: &mut DefectResult) {
     let counted = r.harmonics.iter().filter(|h| h.counted);
     let (sa, sf) = counted.clone().fold((0.0f32, 0.0f32), |(a, f), h| {
         (a + h.amplitude * h.amplitude, f + h.floor * h.floor)
@@ -42,6 +41,13 @@ pub(super) fn decide_from_counts(r: &mut DefectResult, lost_early: u8, cfg: &Def
     } else {
         200.0
     };
+}
+
+/// Decides `r` again after it lost counted harmonics without the spectrum:
+/// harmonics found and score from the counted ones, sideband pairs less the
+/// `lost_early` lost harmonics among the first three (where pairs are sought).
+pub(super) fn decide_from_counts(r: &mut DefectResult, lost_early: u8, cfg: &DefectSearchConfig) {
+    count_and_score(r);
     r.sidebands = r.sidebands.saturating_sub(lost_early);
     if r.sidebands == 0
         && r.sideband_db
@@ -55,18 +61,7 @@ pub(super) fn decide_from_counts(r: &mut DefectResult, lost_early: u8, cfg: &Def
 impl DefectSearch {
     pub(super) fn decide(&self, ctx: &Ctx<'_>, r: &mut DefectResult, orders: &BearingOrders) {
         let cfg = &self.config;
-        let counted = r.harmonics.iter().filter(|h| h.counted);
-        let (sa, sf) = counted.clone().fold((0.0f32, 0.0f32), |(a, f), h| {
-            (a + h.amplitude * h.amplitude, f + h.floor * h.floor)
-        });
-        r.harmonics_found = u8::try_from(counted.count()).unwrap_or(u8::MAX);
-        r.score_db = if r.harmonics_found == 0 {
-            0.0
-        } else if sf > 0.0 {
-            10.0 * crate::num::log10f(sa / sf)
-        } else {
-            200.0
-        };
+        count_and_score(r);
         let spacing = match r.kind {
             DefectKind::Bpfi => Some((orders.shaft_order(), 0.0)),
             DefectKind::Bsf => Some((orders.ftf_order(), cfg.slip_tolerance * orders.ftf_order())),
