@@ -12,10 +12,14 @@
 //!   `tach_fault`: `on`/`off`; sensor fault = sensor fault or clipping, tach
 //!   fault = pulses missing or irregular, as the dashboard counts them).
 //!
-//! Grading reads only the nodes with new reports since the last evaluation
-//! (a line's state depends only on its own node's rows), every `eval_ms`.
+//! Grading is incremental (`grading.rs`): every `eval_ms` the nodes with new
+//! frames since the last evaluation fold only those frames into their lines'
+//! running states (a node seen for the first time, or whose new frames do
+//! not come after what it folded, is read whole once), so an evaluation
+//! costs what arrived, not the store's history.
 
 use super::db::{Db, DbError, Val};
+use super::grading::{Grading, Transition};
 use super::store::col;
 use super::trend::{Line, State};
 use crate::error::CliError;
@@ -66,29 +70,28 @@ fn is_alarm(s: State) -> bool {
 /// Every entering/leaving of ALERT/DANGER in the graded histories (the
 /// dashboard's rule: a change into, out of or between the alarm states).
 pub fn line_changes(lines: &[Line]) -> Vec<AlarmEvent> {
-    let mut out = Vec::new();
-    for l in lines {
-        let mut prev = State::NoData;
-        for g in &l.history {
-            let now = g.state;
-            let p = &g.point;
-            if now != prev && (is_alarm(now) || is_alarm(prev)) {
-                out.push(AlarmEvent {
-                    at_ms: p.time_ms.unwrap_or(0),
-                    node: p.node,
-                    bearing: Some(format!("node {} bearing {}", p.node, p.bearing)),
-                    bearing_index: Some(p.bearing),
-                    kind: Some(p.kind.clone()),
-                    event: if is_alarm(now) { "enter" } else { "leave" }.into(),
-                    state_from: Some(state_name(prev).into()),
-                    state_to: state_name(now).into(),
-                    report_id: Some(p.report_id),
-                });
-            }
-            prev = now;
-        }
+    lines
+        .iter()
+        .flat_map(|l| super::grading::transitions(&l.history))
+        .map(|t| event_of(&t))
+        .collect()
+}
+
+/// The alarm event of one line transition.
+pub fn event_of(t: &Transition) -> AlarmEvent {
+    let p = &t.graded.point;
+    let now = t.graded.state;
+    AlarmEvent {
+        at_ms: p.time_ms.unwrap_or(0),
+        node: p.node,
+        bearing: Some(format!("node {} bearing {}", p.node, p.bearing)),
+        bearing_index: Some(p.bearing),
+        kind: Some(p.kind.clone()),
+        event: if is_alarm(now) { "enter" } else { "leave" }.into(),
+        state_from: Some(state_name(t.from).into()),
+        state_to: state_name(now).into(),
+        report_id: Some(p.report_id),
     }
-    out
 }
 
 /// (report id, bearing, kind, event, state_to): the dashboard's check key.
@@ -118,14 +121,13 @@ fn now_ms() -> i64 {
         .unwrap_or(0)
 }
 
-/// Nodes graded together in one alarm evaluation step.
-const GRADE_NODES: usize = 16;
-
 /// The alarm tracker of one service instance (runs on its own thread
 /// and store connection).
 pub struct Alarms {
     url: String,
-    /// Nodes with new reports since the last evaluation.
+    /// Each line's running grading state.
+    grading: Grading,
+    /// Nodes with new frames since the last evaluation.
     dirty: BTreeSet<u16>,
     /// Per node, the stored line events (loaded once per node).
     recorded: HashMap<u16, HashSet<LineKey>>,
@@ -159,6 +161,7 @@ impl Alarms {
         }
         Ok(Self {
             url: url.to_string(),
+            grading: Grading::new(url),
             dirty: BTreeSet::new(),
             recorded: HashMap::new(),
             node_state,
@@ -211,9 +214,9 @@ impl Alarms {
                 self.node_change(node, ev, if on { "on" } else { "off" }, out);
             }
         }
-        if is_report {
-            self.dirty.insert(node);
-        }
+        // a status frame can change the decided order (a restart)
+        let _ = is_report;
+        self.dirty.insert(node);
     }
 
     /// Nodes silent for longer than the limit.
@@ -230,37 +233,41 @@ impl Alarms {
         }
     }
 
-    /// Grades the nodes with new reports and gives their line changes not
+    /// Grades the nodes with new frames and gives their line changes not
     /// recorded yet.
     pub fn evaluate(&mut self, db: &mut dyn Db, out: &mut Vec<AlarmEvent>) -> Result<(), CliError> {
         if self.dirty.is_empty() {
             return Ok(());
         }
         let nodes: Vec<u16> = std::mem::take(&mut self.dirty).into_iter().collect();
-        let now = Some(now_ms());
-        // A few nodes at a time: what one grading holds (every row of its
-        // nodes, their graded histories) stays that of GRADE_NODES nodes,
-        // not of the whole fleet, however many nodes reported meanwhile.
-        for chunk in nodes.chunks(GRADE_NODES) {
-            self.evaluate_nodes(db, chunk, now, out)?;
+        let r = self.evaluate_nodes(db, &nodes, out);
+        if r.is_err() {
+            // tried again at the next evaluation
+            self.dirty.extend(nodes);
         }
-        Ok(())
+        r
+    }
+
+    /// Rebuilds done by the grading (nodes read whole), for the stop line.
+    pub fn rebuilds(&self) -> u64 {
+        self.grading.rebuilds
     }
 
     fn evaluate_nodes(
         &mut self,
         db: &mut dyn Db,
         nodes: &[u16],
-        now: Option<i64>,
         out: &mut Vec<AlarmEvent>,
     ) -> Result<(), CliError> {
-        let lines = super::trend_cmd::grade_db(db, &self.url, now, Some(nodes))?;
+        let moved = self.grading.update(db, nodes)?;
         let sql = |e: DbError| CliError::Other(format!("{}: {e}", super::db::redact(&self.url)));
-        let missing: Vec<u16> = nodes
+        let mut missing: Vec<u16> = moved
             .iter()
-            .copied()
+            .map(|t| t.graded.point.node)
             .filter(|n| !self.recorded.contains_key(n))
             .collect();
+        missing.sort_unstable();
+        missing.dedup();
         if !missing.is_empty() {
             let q = format!(
                 "SELECT report_id, bearing, kind, event, state_to, node_id FROM alarm_events
@@ -282,7 +289,7 @@ impl Alarms {
                 self.recorded.entry(node).or_default().insert(key);
             }
         }
-        for e in line_changes(&lines) {
+        for e in moved.iter().map(event_of) {
             let Some(k) = line_key(&e) else { continue };
             if !self.recorded.get(&e.node).is_some_and(|s| s.contains(&k)) {
                 out.push(e);
@@ -301,6 +308,11 @@ impl Alarms {
         if events.is_empty() {
             return Ok(events);
         }
+        let line_nodes: BTreeSet<u16> = events
+            .iter()
+            .filter(|e| e.report_id.is_some())
+            .map(|e| e.node)
+            .collect();
         db.begin()?;
         let mut kept = Vec::new();
         let r = (|| {
@@ -355,6 +367,12 @@ impl Alarms {
             }
             Err(e) => {
                 db.rollback();
+                // graded past these events: read those nodes whole again at
+                // the next evaluation, which gives the unrecorded changes again
+                for n in line_nodes {
+                    self.grading.forget(n);
+                    self.dirty.insert(n);
+                }
                 Err(e)
             }
         }

@@ -30,6 +30,7 @@ mod baseline;
 pub mod db;
 mod decode;
 pub mod downlink;
+pub mod grading;
 mod import;
 pub mod ingest;
 pub mod input;

@@ -2,7 +2,7 @@
 //! alarm logic reads it: amplitude, detection, coverage, receive time and
 //! the envelope band in force.
 
-use super::db::{Db, DbError};
+use super::db::{Db, DbError, Val};
 use super::store::{col, node_filter, u16_of, u8_of};
 use super::timefmt::parse_rfc3339_ms;
 
@@ -44,6 +44,16 @@ pub struct Point {
 /// of these nodes when given (a line's grading reads only its own node's
 /// rows, so grading a node's rows alone gives the whole store's states of it).
 pub fn points(db: &mut dyn Db, nodes: Option<&[u16]>) -> Result<Vec<Point>, DbError> {
+    points_after(db, nodes, i64::MIN)
+}
+
+/// [`points`] of the reports with a row id above `after` only (what the
+/// incremental grading reads of the reports stored since its last look).
+pub fn points_after(
+    db: &mut dyn Db,
+    nodes: Option<&[u16]>,
+    after: i64,
+) -> Result<Vec<Point>, DbError> {
     let band = if db.has_column("reports", "band_lo_hz")? {
         "r.band_lo_hz, r.band_hi_hz"
     } else {
@@ -52,11 +62,11 @@ pub fn points(db: &mut dyn Db, nodes: Option<&[u16]>) -> Result<Vec<Point>, DbEr
     let sql = format!(
         "SELECT r.id, r.node_id, r.seq, r.rx_time, r.rx_time_ms, d.bearing, d.kind, d.score_db,
                 d.amplitude_g, d.amplitude_1x_g, d.detected, d.searched, {band}
-         FROM defects d JOIN reports r ON r.id = d.report_id WHERE 1 = 1{}
+         FROM defects d JOIN reports r ON r.id = d.report_id WHERE r.id > ?1{}
          ORDER BY r.id, d.bearing, d.kind",
         node_filter("r.node_id", nodes)
     );
-    db.query(&sql, &[])?
+    db.query(&sql, &[Val::Int(Some(after))])?
         .iter()
         .map(|r| {
             let rx_time = col(r, 3).opt_text();

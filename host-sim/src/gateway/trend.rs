@@ -230,48 +230,64 @@ fn geo_mean(v: &[f64]) -> Option<f64> {
     Some(10f64.powf(v.iter().map(|x| x.log10()).sum::<f64>() / n))
 }
 
-/// Grades the history of one line (its points in arrival order).
-pub fn grade_line(points: &[&Point], l: &Limits) -> Vec<Graded> {
-    let mut out: Vec<Graded> = Vec::new();
-    let mut quiet: Vec<f64> = Vec::new();
-    let mut learned: Option<f64> = None;
-    let mut band: Option<[f64; 2]> = None;
-    let mut previous: Option<State> = None;
-    for p in points {
+/// The running grading state of one line: what grading its next report
+/// needs of the reports before it (the quiet amplitudes while learning, the
+/// learned baseline, the band in force, the previous state) and what its
+/// [`DefectState`] says (usable reports, band changes, the latest graded
+/// report). [`grade_line`] and [`evaluate`] fold it over a whole history;
+/// the service and the dashboard keep one per line between evaluations
+/// (`gateway::grading`) and feed it the new reports only.
+#[derive(Clone, Debug, Default)]
+pub struct LineRun {
+    quiet: Vec<f64>,
+    learned: Option<f64>,
+    band: Option<[f64; 2]>,
+    previous: Option<State>,
+    reports: usize,
+    band_changes: usize,
+    last: Option<Graded>,
+}
+
+impl LineRun {
+    /// Grades the line's next point (in the node's decided order); None
+    /// when the point is not usable (searched with no finite amplitude).
+    pub fn push(&mut self, p: &Point, l: &Limits) -> Option<Graded> {
         let usable = !p.searched || p.amplitude_g.is_some_and(f64::is_finite);
         if !usable {
-            continue;
+            return None;
         }
-        let band_changed = matches!((band, p.band_hz), (Some(a), Some(b)) if a != b);
+        let band_changed = matches!((self.band, p.band_hz), (Some(a), Some(b)) if a != b);
         if band_changed {
-            quiet.clear();
-            learned = None;
+            self.quiet.clear();
+            self.learned = None;
         }
         if p.band_hz.is_some() {
-            band = p.band_hz;
+            self.band = p.band_hz;
         }
-        if learned.is_none()
+        if self.learned.is_none()
             && p.searched
             && !p.detected
             && l.baseline_count > 0
-            && quiet.len() < l.baseline_count
+            && self.quiet.len() < l.baseline_count
         {
             if let Some(a) = p.amplitude_g {
-                quiet.push(a.max(l.floor_g));
+                self.quiet.push(a.max(l.floor_g));
             }
-            if quiet.len() == l.baseline_count {
-                learned = geo_mean(&quiet);
+            if self.quiet.len() == l.baseline_count {
+                self.learned = geo_mean(&self.quiet);
             }
         }
-        let lv = match (l.baseline_g, learned) {
+        let lv = match (l.baseline_g, self.learned) {
             (Some(b), _) => levels(Some(b), BaselineOrigin::Manual, l),
             (None, Some(b)) => levels(Some(b), BaselineOrigin::Learned, l),
             (None, None) => levels(None, BaselineOrigin::Floor, l),
         };
-        let state = grade(p.amplitude_g, p.detected, p.searched, &lv, previous);
-        previous = Some(state);
-        out.push(Graded {
-            point: (*p).clone(),
+        let state = grade(p.amplitude_g, p.detected, p.searched, &lv, self.previous);
+        self.previous = Some(state);
+        self.reports += 1;
+        self.band_changes += usize::from(band_changed);
+        let g = Graded {
+            point: p.clone(),
             severity_db: if p.searched {
                 severity_db(p.amplitude_g, &lv)
             } else {
@@ -280,9 +296,47 @@ pub fn grade_line(points: &[&Point], l: &Limits) -> Vec<Graded> {
             state,
             levels: lv,
             band_changed,
-        });
+        };
+        self.last = Some(g.clone());
+        Some(g)
     }
-    out
+
+    /// State of the latest usable report (None before any).
+    pub fn previous(&self) -> Option<State> {
+        self.previous
+    }
+
+    /// The line's latest state, not judged for staleness (see [`mark_stale`]).
+    pub fn state(&self, node: u16, bearing: u8, kind: &str, limits: Limits) -> DefectState {
+        let last = self.last.as_ref();
+        DefectState {
+            node,
+            bearing,
+            kind: kind.to_string(),
+            reports: self.reports,
+            amplitude_g: last.and_then(|g| g.point.amplitude_g),
+            amplitude_source: last.map(|g| g.point.amplitude_source),
+            latest_db: last.and_then(|g| g.point.score_db),
+            detected: last.is_some_and(|g| g.point.detected),
+            searched: last.is_none_or(|g| g.point.searched),
+            baseline_g: last.map(|g| g.levels.baseline_g),
+            baseline_origin: last.map(|g| g.levels.origin),
+            severity_db: last.and_then(|g| g.severity_db),
+            levels: last.map(|g| g.levels),
+            limits,
+            last_time_ms: last.and_then(|g| g.point.time_ms),
+            band_hz: last.and_then(|g| g.point.band_hz),
+            band_changes: self.band_changes,
+            stale: false,
+            state: last.map_or(State::NoData, |g| g.state),
+        }
+    }
+}
+
+/// Grades the history of one line (its points in arrival order).
+pub fn grade_line(points: &[&Point], l: &Limits) -> Vec<Graded> {
+    let mut run = LineRun::default();
+    points.iter().filter_map(|p| run.push(p, l)).collect()
 }
 
 /// The newest receive time of each node's points (staleness is judged
@@ -335,32 +389,10 @@ pub fn evaluate(
         .into_iter()
         .map(|((node, bearing, kind), list)| {
             let limits = limits_of(node, bearing, &kind);
-            let history = grade_line(&list, &limits);
-            let last = history.last();
-            let node_last = node_last.get(&node).copied();
-            let band_changes = history.iter().filter(|g| g.band_changed).count();
-            let mut st = DefectState {
-                node,
-                bearing,
-                kind,
-                reports: history.len(),
-                amplitude_g: last.and_then(|g| g.point.amplitude_g),
-                amplitude_source: last.map(|g| g.point.amplitude_source),
-                latest_db: last.and_then(|g| g.point.score_db),
-                detected: last.is_some_and(|g| g.point.detected),
-                searched: last.is_none_or(|g| g.point.searched),
-                baseline_g: last.map(|g| g.levels.baseline_g),
-                baseline_origin: last.map(|g| g.levels.origin),
-                severity_db: last.and_then(|g| g.severity_db),
-                levels: last.map(|g| g.levels),
-                limits,
-                last_time_ms: last.and_then(|g| g.point.time_ms),
-                band_hz: last.and_then(|g| g.point.band_hz),
-                band_changes,
-                stale: false,
-                state: last.map_or(State::NoData, |g| g.state),
-            };
-            mark_stale(&mut st, node_last, now_ms);
+            let mut run = LineRun::default();
+            let history: Vec<Graded> = list.iter().filter_map(|p| run.push(p, &limits)).collect();
+            let mut st = run.state(node, bearing, &kind, limits);
+            mark_stale(&mut st, node_last.get(&node).copied(), now_ms);
             Line { history, state: st }
         })
         .collect()
