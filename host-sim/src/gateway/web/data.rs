@@ -198,6 +198,8 @@ pub trait WebStore: Send {
     /// them (`trend_cmd::grade_db`: stored limits, decided order, reduced
     /// frames read "as before"), without staleness.
     fn graded_nodes(&mut self, nodes: &[u16]) -> Result<GradedNodes, DataError>;
+    /// The store connection (the incremental grading reads through it).
+    fn db(&mut self) -> &mut dyn Db;
 }
 
 /// The dashboard's store on either backend.
@@ -322,6 +324,10 @@ fn lim(limit: usize) -> Val {
 }
 
 impl WebStore for StoreWeb {
+    fn db(&mut self) -> &mut dyn Db {
+        self.db.as_mut()
+    }
+
     fn graded_nodes(&mut self, nodes: &[u16]) -> Result<GradedNodes, DataError> {
         crate::gateway::trend_cmd::grade_db_unstaled(self.db.as_mut(), &self.name, Some(nodes))
             .map_err(|e| DataError::Query(e.to_string()))

@@ -715,7 +715,9 @@ pub fn bearing_data(
     let mut out = Vec::new();
     for s in sensors {
         let reports = inner.store.sensor_reports(s.node, s.bearing)?;
-        let lines = inner.summary.lines_of(s.node, s.bearing);
+        let lines = inner
+            .summary
+            .lines_of(inner.store.as_mut(), s.node, s.bearing)?;
         let states = lines.iter().map(|l| l.state.clone()).collect();
         let status = inner.store.node_status(s.node)?;
         let mut band_changes = Vec::new();

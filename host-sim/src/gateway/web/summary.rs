@@ -3,26 +3,25 @@
 //! lines and the state changes as alarm events. Node data is folded once over
 //! the store and then only over new report rows.
 //!
-//! States are not computed here: the graded lines come from
-//! [`WebStore::graded_nodes`], i.e. `trend_cmd::grade_db`, the function
-//! `gateway status` prints, so the pages cannot disagree with it. They are
-//! kept between refreshes: a refresh grades again only the nodes with
-//! reports stored since the last one (a line's grade depends only on its
-//! own node's rows), or every node when the stored limits changed.
+//! States are not computed here: each line's running grading state is the
+//! one the service's alarm evaluation keeps ([`crate::gateway::grading`]),
+//! which gives exactly what `gateway status` prints (`trend_cmd::grade_db`),
+//! so the pages cannot disagree with it. A refresh feeds it only the reports
+//! stored since the last one; a change of the stored limits grades every
+//! line again. A bearing page's per-report history is graded on demand for
+//! that node ([`WebStore::graded_nodes`]), so no history is kept here.
 //! Staleness moves with the clock and is judged at each refresh's time from
 //! each node's newest receive time ([`trend::mark_stale`]), as `grade_db`
 //! judges it.
 
 use super::data::{DataError, NewEvent, ReportRow, WebStore};
-use crate::gateway::limits::LimitRow;
+use crate::gateway::grading::Grading;
 use crate::gateway::seq::{NodeSeqStats, SeqTracker};
 use crate::gateway::trend::{self, DefectState, Line, State};
 use std::collections::{BTreeMap, BTreeSet, HashMap};
 
 /// Reports read per query while folding (bounds memory on a large store).
 const FOLD_CHUNK: i64 = 20_000;
-/// Nodes graded per query (bounds memory on a large store).
-const GRADE_CHUNK: usize = 16;
 
 /// (node, bearing index, defect kind).
 pub type Key = (u16, u8, String);
@@ -55,14 +54,10 @@ pub struct NodeFold {
 
 /// The summary.
 pub struct Summary {
-    /// Graded lines per node, without staleness.
-    lines: BTreeMap<u16, Vec<Line>>,
-    /// Newest receive time per node over its graded points.
-    node_last: BTreeMap<u16, i64>,
+    /// Each line's running grading state.
+    grading: Grading,
     /// The reference time of the last refresh.
     now_ms: Option<i64>,
-    /// The limit rows the lines were graded with.
-    limits: Option<Vec<LimitRow>>,
     names: HashMap<(u16, u8), String>,
     record: bool,
     upto: i64,
@@ -102,10 +97,8 @@ impl Summary {
     /// them itself, serves the dashboard).
     pub fn new(names: HashMap<(u16, u8), String>, record: bool) -> Self {
         Self {
-            lines: BTreeMap::new(),
-            node_last: BTreeMap::new(),
+            grading: Grading::new("the dashboard's store"),
             now_ms: None,
-            limits: None,
             names,
             record,
             upto: 0,
@@ -140,26 +133,35 @@ impl Summary {
             from = to;
         }
         self.upto = self.upto.max(top);
-        let limits = store.limit_rows()?;
-        if self.limits.as_ref() != Some(&limits) {
-            dirty.extend(self.nodes.keys().copied());
-            self.limits = Some(limits);
-        }
         let dirty: Vec<u16> = dirty.into_iter().collect();
-        for chunk in dirty.chunks(GRADE_CHUNK) {
-            let (lines, last) = store.graded_nodes(chunk)?;
-            for node in chunk {
-                self.lines.remove(node);
-                self.node_last.remove(node);
-            }
-            self.node_last.extend(last);
-            for l in lines {
-                self.lines.entry(l.state.node).or_default().push(l);
-            }
-            if self.record && n > 0 {
-                for node in chunk {
-                    self.events_after(*node, before);
+        // (a change of the stored limits grades every node again in there)
+        let moved = self
+            .grading
+            .update(store.db(), &dirty)
+            .map_err(|e| DataError::Query(e.to_string()))?;
+        if self.record && n > 0 {
+            let alarm = |s: State| s >= State::Alert;
+            for t in moved {
+                let p = &t.graded.point;
+                if p.report_id <= before {
+                    continue;
                 }
+                let now = t.graded.state;
+                self.pending.push(NewEvent {
+                    at_ms: p.time_ms.unwrap_or(0),
+                    node: p.node,
+                    bearing: p.bearing,
+                    bearing_name: self
+                        .names
+                        .get(&(p.node, p.bearing))
+                        .cloned()
+                        .unwrap_or_else(|| format!("node {} bearing {}", p.node, p.bearing)),
+                    kind: p.kind.clone(),
+                    event: if alarm(now) { "enter" } else { "leave" },
+                    from: state_name(t.from),
+                    to: state_name(now),
+                    report_id: p.report_id,
+                });
             }
         }
         self.now_ms = now_ms;
@@ -171,40 +173,6 @@ impl Summary {
             reports: n,
             nodes_graded: dirty.len(),
         })
-    }
-
-    /// Alarm events (entering or leaving ALERT/DANGER) of one node caused
-    /// by reports with id > `after`, from the graded history of each line.
-    fn events_after(&mut self, node: u16, after: i64) {
-        let alarm = |s: State| s >= State::Alert;
-        let Some(lines) = self.lines.get(&node) else {
-            return;
-        };
-        for l in lines {
-            let mut prev = State::NoData;
-            for g in &l.history {
-                let now = g.state;
-                let p = &g.point;
-                if p.report_id > after && now != prev && (alarm(now) || alarm(prev)) {
-                    self.pending.push(NewEvent {
-                        at_ms: p.time_ms.unwrap_or(0),
-                        node: p.node,
-                        bearing: p.bearing,
-                        bearing_name: self
-                            .names
-                            .get(&(p.node, p.bearing))
-                            .cloned()
-                            .unwrap_or_else(|| format!("node {} bearing {}", p.node, p.bearing)),
-                        kind: p.kind.clone(),
-                        event: if alarm(now) { "enter" } else { "leave" },
-                        from: state_name(prev),
-                        to: state_name(now),
-                        report_id: p.report_id,
-                    });
-                }
-                prev = now;
-            }
-        }
     }
 
     fn fold(&mut self, mut r: ReportRow) {
@@ -231,39 +199,30 @@ impl Summary {
         nf.last = Some(r);
     }
 
-    fn staled(&self, st: &DefectState) -> DefectState {
-        let mut st = st.clone();
-        let t = self.node_last.get(&st.node).copied();
-        trend::mark_stale(&mut st, t, self.now_ms);
-        st
-    }
-
     /// Every line's state as `gateway status` prints it (at the last
     /// refresh's time), in its order (node, bearing, kind).
     pub fn states(&self) -> Vec<DefectState> {
-        let mut v: Vec<DefectState> = self
-            .lines
-            .values()
-            .flatten()
-            .map(|l| self.staled(&l.state))
-            .collect();
-        v.sort_by(|a, b| (a.node, a.bearing, &a.kind).cmp(&(b.node, b.bearing, &b.kind)));
-        v
+        self.grading.staled_states(self.now_ms)
     }
 
     /// The graded lines of one node's bearing (state and per-report history
-    /// with its levels), staleness judged at the last refresh's time.
-    pub fn lines_of(&self, node: u16, bearing: u8) -> Vec<Line> {
-        self.lines
-            .get(&node)
+    /// with its levels, graded now for that node), staleness judged at the
+    /// last refresh's time.
+    pub fn lines_of(
+        &self,
+        store: &mut dyn WebStore,
+        node: u16,
+        bearing: u8,
+    ) -> Result<Vec<Line>, DataError> {
+        let (lines, last) = store.graded_nodes(&[node])?;
+        Ok(lines
             .into_iter()
-            .flatten()
             .filter(|l| l.state.bearing == bearing)
-            .map(|l| Line {
-                history: l.history.clone(),
-                state: self.staled(&l.state),
+            .map(|mut l| {
+                trend::mark_stale(&mut l.state, last.get(&node).copied(), self.now_ms);
+                l
             })
-            .collect()
+            .collect())
     }
 
     /// Link counters per node (as `gateway status` prints them).
