@@ -2,12 +2,19 @@
 //! (file lines) and `gateway serve` (MQTT messages): decode, store
 //! idempotently in one transaction per batch, then track sequences.
 //!
-//! Reports are written in multi-row statements (one existence check, one
-//! insert of the reports with their band, one insert of their defect rows
-//! per run of reports): one round trip per run instead of four per frame,
-//! which is what PostgreSQL over a socket needs. A status frame ends a run,
-//! so a report always gets the band of the status frames that arrived
-//! before it (the rule of `series::stamp_band`).
+//! A batch is written in a few multi-row statements: the status frames
+//! first (one existence check and one insert per 64), then every report
+//! (one existence check and one insert per 64, with the band in force) and
+//! their defect rows (one insert per 512). Each report gets the band of the
+//! node's latest stored status frame before it in arrival order (the rule
+//! of `series::stamp_band`): the band stored before the batch (one query),
+//! then the batch's new status frames in order. Statement shapes are few and
+//! fixed (existence checks padded to 64 terms, inserts cut into 64 and then
+//! powers of two), so every statement is prepared once per connection and
+//! kept: before, a status frame ended a run of reports and every run had
+//! its own row count, i.e. about ten times the round trips and a new
+//! statement to prepare for nearly every run (profile in
+//! docs/gateway.md, "Tests and benchmark").
 
 use super::db::{Db, DbError, Val};
 use super::input::InputItem;
@@ -187,7 +194,8 @@ pub fn store_batch(
 pub fn write(db: &mut dyn Db, batch: &[Uplink]) -> Result<Vec<Outcome>, DbError> {
     let decoded: Vec<Result<Frame, UplinkError>> = batch.iter().map(decode).collect();
     let mut out: Vec<Option<Outcome>> = vec![None; batch.len()];
-    let mut run: Vec<usize> = Vec::new();
+    let mut statuses: Vec<usize> = Vec::new();
+    let mut reports: Vec<usize> = Vec::new();
     for (i, (u, d)) in batch.iter().zip(&decoded).enumerate() {
         match d {
             Err(e) => {
@@ -203,27 +211,39 @@ pub fn write(db: &mut dyn Db, batch: &[Uplink]) -> Result<Vec<Outcome>, DbError>
                     },
                 );
             }
-            Ok(f @ Frame::Status(_)) => {
-                flush_reports(db, batch, &decoded, &mut run, &mut out)?;
-                let payload = u.bytes.as_deref().unwrap_or(&[]);
-                let new = insert_status(db, f, payload, &u.origin)?;
-                set(
-                    &mut out,
-                    i,
-                    if new {
-                        Outcome::New {
-                            frame: f.clone(),
-                            seq: None,
-                        }
-                    } else {
-                        Outcome::Known { frame: f.clone() }
-                    },
-                );
-            }
-            Ok(_) => run.push(i),
+            Ok(Frame::Status(_)) => statuses.push(i),
+            Ok(_) => reports.push(i),
         }
     }
-    flush_reports(db, batch, &decoded, &mut run, &mut out)?;
+    let frame_of = |i: usize| decoded.get(i).and_then(|d| d.as_ref().ok());
+    // the band in force before the batch (read before its status frames go in)
+    let mut nodes: Vec<u16> = reports
+        .iter()
+        .filter_map(|&i| frame_of(i))
+        .map(|f| store::node_seq(f).0)
+        .collect();
+    nodes.sort_unstable();
+    nodes.dedup();
+    let mut band = latest_bands(db, &nodes)?;
+    let new_status = write_statuses(db, batch, &decoded, &statuses, &mut out)?;
+    let mut band_of: Vec<Option<[f64; 2]>> = vec![None; batch.len()];
+    for (i, d) in decoded.iter().enumerate() {
+        match d {
+            Ok(Frame::Status(r)) if new_status.contains(&i) => {
+                band.insert(
+                    r.node_id,
+                    [f64::from(r.band_hz[0]), f64::from(r.band_hz[1])],
+                );
+            }
+            Ok(f) if store::is_report(f) => {
+                if let Some(slot) = band_of.get_mut(i) {
+                    *slot = band.get(&store::node_seq(f).0).copied();
+                }
+            }
+            _ => {}
+        }
+    }
+    flush_reports(db, batch, &decoded, &reports, &band_of, &mut out)?;
     Ok(out
         .into_iter()
         .map(|o| {
@@ -233,6 +253,179 @@ pub fn write(db: &mut dyn Db, batch: &[Uplink]) -> Result<Vec<Outcome>, DbError>
             })
         })
         .collect())
+}
+
+/// Terms of every existence check (padded), nodes of every band query.
+const LOOKUP_TERMS: usize = 64;
+
+/// Row counts to cut `n` rows into: `max` while it fits, then powers of two
+/// (so only a few statement shapes exist, each prepared once).
+fn chunk_sizes(n: usize, max: usize) -> Vec<usize> {
+    let mut v = vec![max; n / max];
+    let mut rest = n % max;
+    let mut p = max.next_power_of_two();
+    while rest > 0 {
+        p = p.min(rest.next_power_of_two());
+        if p > rest {
+            p /= 2;
+        }
+        v.push(p);
+        rest -= p;
+    }
+    v
+}
+
+/// Cuts `items` by [`chunk_sizes`].
+fn chunks_of<T>(items: &[T], max: usize) -> Vec<&[T]> {
+    let mut out = Vec::new();
+    let mut at = 0;
+    for n in chunk_sizes(items.len(), max) {
+        if let Some(part) = items.get(at..at + n) {
+            out.push(part);
+        }
+        at += n;
+    }
+    out
+}
+
+/// The band of each node's latest stored status frame (nodes with one).
+fn latest_bands(db: &mut dyn Db, nodes: &[u16]) -> Result<HashMap<u16, [f64; 2]>, DbError> {
+    let mut out = HashMap::new();
+    for part in nodes.chunks(LOOKUP_TERMS) {
+        let Some(&pad) = part.last() else { continue };
+        let marks: Vec<String> = (1..=LOOKUP_TERMS).map(|k| format!("?{k}")).collect();
+        let params: Vec<Val> = (0..LOOKUP_TERMS)
+            .map(|k| part.get(k).copied().unwrap_or(pad).into())
+            .collect();
+        let sql = format!(
+            "SELECT node_id, band_lo_hz, band_hi_hz FROM node_status WHERE id IN
+             (SELECT MAX(id) FROM node_status WHERE node_id IN ({}) GROUP BY node_id)",
+            marks.join(", ")
+        );
+        for r in db.query(&sql, &params)? {
+            let node = store::u16_of(store::col(&r, 0), "node_id")?;
+            if let (Some(lo), Some(hi)) =
+                (store::col(&r, 1).opt_real(), store::col(&r, 2).opt_real())
+            {
+                out.insert(node, [lo, hi]);
+            }
+        }
+    }
+    Ok(out)
+}
+
+/// (node, seq, payload) already stored in `table` among `keys` (one padded
+/// query per 64).
+fn stored_keys(db: &mut dyn Db, table: &str, keys: &[(u16, u16)]) -> Result<HashSet<Key>, DbError> {
+    let mut stored: HashSet<Key> = HashSet::new();
+    for part in keys.chunks(LOOKUP_TERMS) {
+        let Some(&pad) = part.last() else { continue };
+        let cond: Vec<String> = (0..LOOKUP_TERMS)
+            .map(|j| format!("(node_id = ?{} AND seq = ?{})", 2 * j + 1, 2 * j + 2))
+            .collect();
+        let mut params: Vec<Val> = Vec::with_capacity(LOOKUP_TERMS * 2);
+        for j in 0..LOOKUP_TERMS {
+            let (n, s) = part.get(j).copied().unwrap_or(pad);
+            params.extend([n.into(), s.into()]);
+        }
+        let sql = format!(
+            "SELECT node_id, seq, payload FROM {table} WHERE {}",
+            cond.join(" OR ")
+        );
+        for r in db.query(&sql, &params)? {
+            if let Some(k) = key_of_row(&r, 0) {
+                stored.insert(k);
+            }
+        }
+    }
+    Ok(stored)
+}
+
+/// (node, seq, payload) of a row's columns from `at`.
+fn key_of_row(r: &[Val], at: usize) -> Option<Key> {
+    let n = r.get(at).and_then(Val::opt_int)?;
+    let s = r.get(at + 1).and_then(Val::opt_int)?;
+    let Some(Val::Blob(p)) = r.get(at + 2) else {
+        return None;
+    };
+    Some((u16::try_from(n).ok()?, u16::try_from(s).ok()?, p.clone()))
+}
+
+/// Writes the batch's status frames; returns the indices stored now.
+fn write_statuses(
+    db: &mut dyn Db,
+    batch: &[Uplink],
+    decoded: &[Result<Frame, UplinkError>],
+    idx: &[usize],
+    out: &mut [Option<Outcome>],
+) -> Result<HashSet<usize>, DbError> {
+    let mut new = HashSet::new();
+    if idx.is_empty() {
+        return Ok(new);
+    }
+    let frame_of = |i: usize| decoded.get(i).and_then(|d| d.as_ref().ok());
+    let payload_of = |i: usize| {
+        batch
+            .get(i)
+            .and_then(|u| u.bytes.as_deref().ok())
+            .unwrap_or(&[])
+    };
+    let keys: Vec<(u16, u16)> = idx
+        .iter()
+        .filter_map(|&i| frame_of(i))
+        .map(store::node_seq)
+        .collect();
+    let mut stored = stored_keys(db, "node_status", &keys)?;
+    let mut fresh: Vec<usize> = Vec::new();
+    for &i in idx {
+        let Some(f) = frame_of(i) else { continue };
+        if stored.insert(key_of(f, payload_of(i))) {
+            fresh.push(i);
+        } else {
+            set(out, i, Outcome::Known { frame: f.clone() });
+        }
+    }
+    let mut inserted: HashSet<Key> = HashSet::new();
+    for part in chunks_of(&fresh, REPORTS_PER_STATEMENT) {
+        let mut tuples = Vec::with_capacity(part.len());
+        let mut params: Vec<Val> = Vec::with_capacity(part.len() * STATUS_PARAMS);
+        for (j, &i) in part.iter().enumerate() {
+            let (Some(f), Some(u)) = (frame_of(i), batch.get(i)) else {
+                continue;
+            };
+            let b = j * STATUS_PARAMS;
+            let ph: Vec<String> = (1..=STATUS_PARAMS).map(|k| format!("?{}", b + k)).collect();
+            tuples.push(format!("({})", ph.join(", ")));
+            params.extend(status_params(f, payload_of(i), &u.origin));
+        }
+        let sql = format!(
+            "INSERT INTO node_status ({STATUS_COLS}) VALUES {} ON CONFLICT DO NOTHING RETURNING node_id, seq, payload",
+            tuples.join(", ")
+        );
+        for r in db.query(&sql, &params)? {
+            if let Some(k) = key_of_row(&r, 0) {
+                inserted.insert(k);
+            }
+        }
+    }
+    for &i in &fresh {
+        let Some(f) = frame_of(i) else { continue };
+        if inserted.contains(&key_of(f, payload_of(i))) {
+            new.insert(i);
+            set(
+                out,
+                i,
+                Outcome::New {
+                    frame: f.clone(),
+                    seq: None,
+                },
+            );
+        } else {
+            // inserted meanwhile by another instance
+            set(out, i, Outcome::Known { frame: f.clone() });
+        }
+    }
+    Ok(new)
 }
 
 fn set(out: &mut [Option<Outcome>], i: usize, o: Outcome) {
@@ -266,51 +459,48 @@ fn line_val(line: usize) -> Val {
     Val::Int(Some(i64::try_from(line).unwrap_or(i64::MAX)))
 }
 
-const INSERT_STATUS: &str = "INSERT INTO node_status (node_id, seq, payload, rx_time, source, line,
+/// Columns of one status row, in INSERT order.
+const STATUS_COLS: &str = "node_id, seq, payload, rx_time, source, line,
        flags, downlink_counter, last_downlink, refused_downlinks, survey, band_source, band_lo_hz,
-       band_hi_hz, band_kurtosis, json, rx_time_ms, device_id, rssi_dbm, snr_db)
-     VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19, ?20)
-     ON CONFLICT DO NOTHING";
+       band_hi_hz, band_kurtosis, json, rx_time_ms, device_id, rssi_dbm, snr_db";
+/// Parameters per status row.
+const STATUS_PARAMS: usize = 20;
 
-fn insert_status(db: &mut dyn Db, f: &Frame, payload: &[u8], o: &Origin) -> Result<bool, DbError> {
+fn status_params(f: &Frame, payload: &[u8], o: &Origin) -> Vec<Val> {
     let Frame::Status(r) = f else {
-        return Ok(false);
+        return Vec::new();
     };
     let json = serde_json::to_string(f).unwrap_or_default();
-    let n = db.execute(
-        INSERT_STATUS,
-        &[
-            r.node_id.into(),
-            r.seq.into(),
-            payload.into(),
-            o.rx_time.as_deref().into(),
-            o.source.as_str().into(),
-            line_val(o.line),
-            r.flags.to_bits().into(),
-            r.downlink_counter.into(),
-            name_of(&r.last_downlink).into(),
-            r.refused_downlinks.into(),
-            name_of(&r.survey).into(),
-            name_of(&r.band_source).into(),
-            f64::from(r.band_hz[0]).into(),
-            f64::from(r.band_hz[1]).into(),
-            opt(r.band_kurtosis).into(),
-            json.into(),
-            o.rx_time_ms.into(),
-            o.device_id.as_deref().into(),
-            o.rssi_dbm.into(),
-            o.snr_db.into(),
-        ],
-    )?;
-    Ok(n > 0)
+    vec![
+        r.node_id.into(),
+        r.seq.into(),
+        payload.into(),
+        o.rx_time.as_deref().into(),
+        o.source.as_str().into(),
+        line_val(o.line),
+        r.flags.to_bits().into(),
+        r.downlink_counter.into(),
+        name_of(&r.last_downlink).into(),
+        r.refused_downlinks.into(),
+        name_of(&r.survey).into(),
+        name_of(&r.band_source).into(),
+        f64::from(r.band_hz[0]).into(),
+        f64::from(r.band_hz[1]).into(),
+        opt(r.band_kurtosis).into(),
+        json.into(),
+        o.rx_time_ms.into(),
+        o.device_id.as_deref().into(),
+        o.rssi_dbm.into(),
+        o.snr_db.into(),
+    ]
 }
 
 /// Columns of one report row, in INSERT order (the last two are the band).
 const REPORT_COLS: &str = "node_id, seq, frame_type, payload, rx_time, source, line, flags,
     speed_rpm, accel_rms_g, peak_g, crest_factor, kurtosis, velocity_rms_mm_s, iso_zone, json,
     rx_time_ms, device_id, fport, rssi_dbm, snr_db, band_lo_hz, band_hi_hz";
-/// Parameters per report row (the band reuses the node id's).
-const REPORT_PARAMS: usize = 21;
+/// Parameters per report row (the band last).
+const REPORT_PARAMS: usize = 23;
 /// Reports per statement (well under either backend's parameter limit).
 const REPORTS_PER_STATEMENT: usize = 64;
 /// Defect rows per statement (12 columns each: 6,144 parameters).
@@ -385,14 +575,15 @@ fn key_of(f: &Frame, payload: &[u8]) -> Key {
     (n, s, payload.to_vec())
 }
 
-/// Writes the pending run of reports: which are stored already (one
-/// query), the new ones with their band (one insert per 64), their defect
-/// rows (one insert per 512 rows).
+/// Writes the batch's reports (`run`, in arrival order) with the band in
+/// force for each (`band_of`, by batch index): which are stored already,
+/// the new ones (one insert per 64), then their defect rows.
 fn flush_reports(
     db: &mut dyn Db,
     batch: &[Uplink],
     decoded: &[Result<Frame, UplinkError>],
-    run: &mut Vec<usize>,
+    run: &[usize],
+    band_of: &[Option<[f64; 2]>],
     out: &mut [Option<Outcome>],
 ) -> Result<(), DbError> {
     if run.is_empty() {
@@ -408,43 +599,15 @@ fn flush_reports(
     // 1. stored already? (looked up first: PostgreSQL spends an identity
     // value on every conflicting insert, and report ids, i.e. arrival
     // order, must not depend on the backend or on how many repeats came)
-    let mut stored: HashSet<Key> = HashSet::new();
-    for part in run.chunks(REPORTS_PER_STATEMENT) {
-        let mut cond = Vec::with_capacity(part.len());
-        let mut params: Vec<Val> = Vec::with_capacity(part.len() * 2);
-        for (j, &i) in part.iter().enumerate() {
-            if let Some(f) = frame_of(i) {
-                let (n, s) = store::node_seq(f);
-                cond.push(format!(
-                    "(node_id = ?{} AND seq = ?{})",
-                    2 * j + 1,
-                    2 * j + 2
-                ));
-                params.extend([n.into(), s.into()]);
-            }
-        }
-        if cond.is_empty() {
-            continue;
-        }
-        let sql = format!(
-            "SELECT node_id, seq, payload FROM reports WHERE {}",
-            cond.join(" OR ")
-        );
-        for r in db.query(&sql, &params)? {
-            if let (Some(n), Some(s), Some(Val::Blob(p))) = (
-                r.first().and_then(Val::opt_int),
-                r.get(1).and_then(Val::opt_int),
-                r.get(2),
-            ) {
-                if let (Ok(n), Ok(s)) = (u16::try_from(n), u16::try_from(s)) {
-                    stored.insert((n, s, p.clone()));
-                }
-            }
-        }
-    }
+    let keys: Vec<(u16, u16)> = run
+        .iter()
+        .filter_map(|&i| frame_of(i))
+        .map(store::node_seq)
+        .collect();
+    let mut stored = stored_keys(db, "reports", &keys)?;
     // 2. the new ones (first of repeats within the run), in arrival order
     let mut fresh: Vec<usize> = Vec::new();
-    for &i in run.iter() {
+    for &i in run {
         let Some(f) = frame_of(i) else { continue };
         let k = key_of(f, payload_of(i));
         if stored.insert(k) {
@@ -454,7 +617,7 @@ fn flush_reports(
         }
     }
     let mut ids: HashMap<Key, i64> = HashMap::new();
-    for part in fresh.chunks(REPORTS_PER_STATEMENT) {
+    for part in chunks_of(&fresh, REPORTS_PER_STATEMENT) {
         let mut tuples = Vec::with_capacity(part.len());
         let mut params: Vec<Val> = Vec::with_capacity(part.len() * REPORT_PARAMS);
         for (j, &i) in part.iter().enumerate() {
@@ -463,29 +626,18 @@ fn flush_reports(
             };
             let b = j * REPORT_PARAMS;
             let ph: Vec<String> = (1..=REPORT_PARAMS).map(|k| format!("?{}", b + k)).collect();
-            // the band in force: the node's latest stored status frame
-            tuples.push(format!(
-                "({}, (SELECT band_lo_hz FROM node_status WHERE node_id = ?{n} ORDER BY id DESC LIMIT 1), \
-                 (SELECT band_hi_hz FROM node_status WHERE node_id = ?{n} ORDER BY id DESC LIMIT 1))",
-                ph.join(", "),
-                n = b + 1
-            ));
+            tuples.push(format!("({})", ph.join(", ")));
             params.extend(report_params(f, payload_of(i), &u.origin));
+            let band = band_of.get(i).copied().flatten();
+            params.extend([Val::Real(band.map(|b| b[0])), Val::Real(band.map(|b| b[1]))]);
         }
         let sql = format!(
             "INSERT INTO reports ({REPORT_COLS}) VALUES {} ON CONFLICT DO NOTHING RETURNING id, node_id, seq, payload",
             tuples.join(", ")
         );
         for r in db.query(&sql, &params)? {
-            if let (Some(id), Some(n), Some(s), Some(Val::Blob(p))) = (
-                r.first().and_then(Val::opt_int),
-                r.get(1).and_then(Val::opt_int),
-                r.get(2).and_then(Val::opt_int),
-                r.get(3),
-            ) {
-                if let (Ok(n), Ok(s)) = (u16::try_from(n), u16::try_from(s)) {
-                    ids.insert((n, s, p.clone()), id);
-                }
+            if let (Some(id), Some(k)) = (r.first().and_then(Val::opt_int), key_of_row(&r, 1)) {
+                ids.insert(k, id);
             }
         }
     }
@@ -550,7 +702,7 @@ fn flush_reports(
             Frame::Status(_) => {}
         }
     }
-    for part in rows.chunks(DEFECTS_PER_STATEMENT) {
+    for part in chunks_of(&rows, DEFECTS_PER_STATEMENT) {
         let tuples: Vec<String> = (0..part.len())
             .map(|j| {
                 let b = j * DEFECT_COLUMNS;
@@ -568,7 +720,6 @@ fn flush_reports(
         let params: Vec<Val> = part.iter().flat_map(|r| r.iter().cloned()).collect();
         db.execute(&sql, &params)?;
     }
-    run.clear();
     Ok(())
 }
 
@@ -632,6 +783,22 @@ pub fn decided_order(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn statement_row_counts_are_few_and_cover_every_row() {
+        let mut shapes = HashSet::new();
+        for n in 0..2000 {
+            let v = chunk_sizes(n, 64);
+            assert_eq!(v.iter().sum::<usize>(), n);
+            assert!(v
+                .iter()
+                .all(|&k| k == 64 || (k.is_power_of_two() && k < 64)));
+            shapes.extend(v);
+        }
+        assert_eq!(shapes.len(), 7, "{shapes:?}");
+        assert_eq!(chunk_sizes(100, 64), vec![64, 32, 4]);
+        assert_eq!(chunk_sizes(5, 512), vec![4, 1]);
+    }
 
     #[test]
     fn long_reject_text_keeps_start_and_hash() {

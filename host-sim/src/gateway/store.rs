@@ -137,6 +137,9 @@ pub const MIGRATIONS: &[&str] = &[
     CREATE INDEX alarm_events_by_report ON alarm_events (report_id, node_id);",
 ];
 
+/// Prepared statements kept per SQLite connection.
+pub const STATEMENTS_KEPT: usize = 128;
+
 /// Schema version this build writes.
 pub fn schema_version() -> i64 {
     i64::try_from(MIGRATIONS.len()).unwrap_or(i64::MAX)
@@ -185,6 +188,9 @@ fn must_exist(path: &str) -> Result<(), CliError> {
 /// commands that write frames (`import`).
 pub fn open(path: &str) -> Result<Connection, CliError> {
     let mut conn = Connection::open(path).map_err(db_err(path))?;
+    // the ingest's and the grading's statement shapes all stay prepared
+    // (rusqlite keeps 16 by default)
+    conn.set_prepared_statement_cache_capacity(STATEMENTS_KEPT);
     // The busy timeout first: switching to WAL and migrating wait for the
     // write lock of another process opening the same new store.
     conn.busy_timeout(std::time::Duration::from_secs(10))
