@@ -34,6 +34,14 @@ use common::*;
 use std::collections::HashSet;
 use std::time::{Duration, Instant};
 
+/// The machine's load beside every figure (other work shares the cores).
+fn load() -> String {
+    let l = std::fs::read_to_string("/proc/loadavg").unwrap_or_default();
+    let f: Vec<&str> = l.split_whitespace().take(3).collect();
+    let cores = std::thread::available_parallelism().map_or(0, usize::from);
+    format!("load {} on {cores} cores", f.join("/"))
+}
+
 /// (VmRSS, VmHWM) of a process, KiB.
 fn rss_kib(pid: u32) -> (u64, u64) {
     let s = std::fs::read_to_string(format!("/proc/{pid}/status")).unwrap_or_default();
@@ -145,7 +153,7 @@ fn run(backend: &str, store: &str, dir: &std::path::Path, rates: &[u32]) {
             )
         };
         println!(
-            "{backend:<10} day {} ({pace}): {} messages published in {pub_secs:.1} s ({:.0}/s), {} rows committed in {secs:.1} s = {:.0} frames/s{reached}; publish-to-commit p50 {} ms, p99 {} ms, max {} ms; queued max {}; RSS {rss} KiB (high-water {hwm} KiB)",
+            "{backend:<10} day {} ({pace}): {} messages published in {pub_secs:.1} s ({:.0}/s), {} rows committed in {secs:.1} s = {:.0} frames/s{reached}; publish-to-commit p50 {} ms, p99 {} ms, max {} ms; queued max {}; RSS {rss} KiB (high-water {hwm} KiB); {}",
             day + 1,
             part.len(),
             published as f64 / pub_secs,
@@ -155,6 +163,7 @@ fn run(backend: &str, store: &str, dir: &std::path::Path, rates: &[u32]) {
             h["lag_p99_ms"],
             h["lag_max_ms"],
             h["queued_max"],
+            load(),
         );
         if rate == 0 {
             capacity.push((rows - before) as f64 / secs);
@@ -169,13 +178,14 @@ fn run(backend: &str, store: &str, dir: &std::path::Path, rates: &[u32]) {
         .and_then(|l| serde_json::from_str::<serde_json::Value>(l).ok())
         .unwrap_or_default();
     println!(
-        "{backend:<10} RSS at start {rss0} KiB; stopped {:.1} s after SIGTERM; stored {} new, {} known, {} rejected, {} alarm events; capacity (as fast as taken) {:?} frames/s",
+        "{backend:<10} RSS at start {rss0} KiB; stopped {:.1} s after SIGTERM; stored {} new, {} known, {} rejected, {} alarm events; capacity (as fast as taken) {:?} frames/s; {}",
         t.elapsed().as_secs_f64(),
         stop["stored"],
         stop["known"],
         stop["rejected"],
         stop["alarm_events"],
-        capacity.iter().map(|c| c.round()).collect::<Vec<_>>()
+        capacity.iter().map(|c| c.round()).collect::<Vec<_>>(),
+        load()
     );
 }
 

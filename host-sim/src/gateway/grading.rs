@@ -28,7 +28,7 @@ use super::db::{Db, DbError, Val};
 use super::limits::{self, LimitRow, Limits};
 use super::seq::{Order, SeqTracker};
 use super::series::{self, Point};
-use super::store::{self, col, node_filter};
+use super::store::{self, col};
 use super::trend::{self, DefectState, Graded, LineRun, State};
 use crate::error::CliError;
 use std::collections::{BTreeMap, BTreeSet, HashMap};
@@ -144,13 +144,28 @@ fn read_fresh(
     after: i64,
     after_status: i64,
 ) -> Result<Fresh, DbError> {
-    let filter = node_filter("node_id", Some(nodes));
+    // the node list as parameters padded to CHUNK: one statement text for
+    // every chunk, so PostgreSQL prepares it once per connection
+    let Some(&pad) = nodes.last() else {
+        return Ok(Fresh {
+            statuses: Vec::new(),
+            reports: Vec::new(),
+            points: Vec::new(),
+        });
+    };
+    let marks: Vec<String> = (2..=CHUNK + 1).map(|k| format!("?{k}")).collect();
+    let list = marks.join(", ");
+    let with = |first: i64| -> Vec<Val> {
+        std::iter::once(Val::Int(Some(first)))
+            .chain((0..CHUNK).map(|k| nodes.get(k).copied().unwrap_or(pad).into()))
+            .collect()
+    };
     let statuses = db
         .query(
             &format!(
-                "SELECT id, node_id, seq, payload FROM node_status WHERE id > ?1{filter} ORDER BY id"
+                "SELECT id, node_id, seq, payload FROM node_status WHERE id > ?1 AND node_id IN ({list}) ORDER BY id"
             ),
-            &[Val::Int(Some(after_status))],
+            &with(after_status),
         )?
         .iter()
         .map(|r| {
@@ -165,9 +180,9 @@ fn read_fresh(
     let reports = db
         .query(
             &format!(
-                "SELECT id, node_id, seq, payload, frame_type FROM reports WHERE id > ?1{filter} ORDER BY id"
+                "SELECT id, node_id, seq, payload, frame_type FROM reports WHERE id > ?1 AND node_id IN ({list}) ORDER BY id"
             ),
-            &[Val::Int(Some(after))],
+            &with(after),
         )?
         .iter()
         .map(|r| {
@@ -180,7 +195,11 @@ fn read_fresh(
             ))
         })
         .collect::<Result<Vec<_>, DbError>>()?;
-    let points = series::points_after(db, Some(nodes), after)?;
+    let points = series::points_where(
+        db,
+        &format!("r.id > ?1 AND r.node_id IN ({list})"),
+        &with(after),
+    )?;
     Ok(Fresh {
         statuses,
         reports,

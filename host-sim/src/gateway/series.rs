@@ -54,6 +54,16 @@ pub fn points_after(
     nodes: Option<&[u16]>,
     after: i64,
 ) -> Result<Vec<Point>, DbError> {
+    points_where(
+        db,
+        &format!("r.id > ?1{}", node_filter("r.node_id", nodes)),
+        &[Val::Int(Some(after))],
+    )
+}
+
+/// [`points`] of the rows matching `cond` (SQL over `r`, the reports, and
+/// `d`, the defect rows) with its parameters.
+pub fn points_where(db: &mut dyn Db, cond: &str, params: &[Val]) -> Result<Vec<Point>, DbError> {
     let band = if db.has_column("reports", "band_lo_hz")? {
         "r.band_lo_hz, r.band_hi_hz"
     } else {
@@ -62,11 +72,10 @@ pub fn points_after(
     let sql = format!(
         "SELECT r.id, r.node_id, r.seq, r.rx_time, r.rx_time_ms, d.bearing, d.kind, d.score_db,
                 d.amplitude_g, d.amplitude_1x_g, d.detected, d.searched, {band}
-         FROM defects d JOIN reports r ON r.id = d.report_id WHERE r.id > ?1{}
-         ORDER BY r.id, d.bearing, d.kind",
-        node_filter("r.node_id", nodes)
+         FROM defects d JOIN reports r ON r.id = d.report_id WHERE {cond}
+         ORDER BY r.id, d.bearing, d.kind"
     );
-    db.query(&sql, &[Val::Int(Some(after))])?
+    db.query(&sql, params)?
         .iter()
         .map(|r| {
             let rx_time = col(r, 3).opt_text();
