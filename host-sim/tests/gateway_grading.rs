@@ -109,8 +109,8 @@ const T0: i64 = 1_772_409_600_000;
 fn replay() -> Vec<(i64, u16, Vec<u8>)> {
     let mut g = Lcg(0x656e_766f_7264);
     let nodes = 10u16;
-    let mut seq = vec![0u16; 10];
-    let mut sseq = vec![0u16; 10];
+    let mut seq = [0u16; 10];
+    let mut sseq = [0u16; 10];
     let mut out = Vec::new();
     for slot in 0..240u16 {
         for node in 0..nodes {

@@ -310,7 +310,7 @@ impl Grading {
         }
         if let Some(m) = self.bad_limits() {
             return Err(CliError::input(
-                &super::db::redact(&self.url),
+                super::db::redact(&self.url),
                 format!("stored limits unusable ({m}); fix them with `envord gateway limits set`"),
             ));
         }
