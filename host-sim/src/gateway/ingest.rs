@@ -13,8 +13,8 @@
 //! powers of two), so every statement is prepared once per connection and
 //! kept: before, a status frame ended a run of reports and every run had
 //! its own row count, i.e. about ten times the round trips and a new
-//! statement to prepare for nearly every run (profile in
-//! docs/gateway.md, "Tests and benchmark").
+//! statement to prepare for nearly every run (docs/gateway.md, "Tests and
+//! benchmark").
 
 use super::db::{Db, DbError, Val};
 use super::input::InputItem;
