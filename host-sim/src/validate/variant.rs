@@ -83,7 +83,7 @@ impl Default for Variant {
 /// Cepstral pre-whitening (Sawalhi & Randall; Borghesani, Pennacchi,
 /// Randall, Sawalhi, Ricci, "Application of cepstrum pre-whitening for the
 /// diagnosis of bearing faults under variable speed conditions", MSSP 36
-/// (2013)): the real cepstrum of the record set to zero except at
+/// (2013), reference from memory): the real cepstrum of the record set to zero except at
 /// quefrency 0, i.e. the log magnitude spectrum made flat, back to time with
 /// the phase kept: `x_w = IFFT(X / |X|)`. Discrete components (gear mesh,
 /// shaft harmonics) and resonances lose their weight; impacts keep their
