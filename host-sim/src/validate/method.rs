@@ -10,6 +10,7 @@ use dsp_core::survey::SurveyError;
 use dsp_core::{DefectKind, ShaftRatio};
 
 use super::manifest::{decoy_entry, expected_kind, parse_manifest, ManifestEntry, ManifestRecord};
+use super::variant::{cepstral_prewhiten, Prewhiten, Variant};
 use super::BandRule;
 use crate::analysis::{run, Accel, Record};
 use crate::error::CliError;
@@ -340,6 +341,16 @@ fn blank(entry: &ManifestEntry) -> RecordResult {
 /// Analyses one manifest entry with the fixed method. Never fails: a record
 /// that cannot be analysed carries its error (scored ones count as wrong).
 pub fn analyse_entry(dir: &Path, entry: &ManifestEntry, rule: BandRule) -> RecordResult {
+    analyse_entry_with(dir, entry, rule, Variant::default())
+}
+
+/// [`analyse_entry`] with the issue 20 measurement options ([`Variant`]).
+pub fn analyse_entry_with(
+    dir: &Path,
+    entry: &ManifestEntry,
+    rule: BandRule,
+    variant: Variant,
+) -> RecordResult {
     let mut out = blank(entry);
     let res = match &entry.record {
         Err(e) => Err(e.to_string()),
@@ -349,7 +360,7 @@ pub fn analyse_entry(dir: &Path, entry: &ManifestEntry, rule: BandRule) -> Recor
             // too, so one record cannot end the run.
             std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
                 // the record's `error` is text: converted here
-                analyse_into(dir, rec, rule, &mut out).map_err(|e| e.to_string())
+                analyse_into(dir, rec, rule, variant, &mut out).map_err(|e| e.to_string())
             }))
             .unwrap_or_else(|_| Err(format!("{}: internal error while analysing", rec.file)))
         }
@@ -422,6 +433,7 @@ fn analyse_into(
     dir: &Path,
     rec: &ManifestRecord,
     rule: BandRule,
+    variant: Variant,
     out: &mut RecordResult,
 ) -> Result<(), AnalyseError> {
     let file = || rec.file.clone();
@@ -454,6 +466,11 @@ fn analyse_into(
     }
     let mut point =
         validation_point(rec, x.len()).map_err(|err| AnalyseError::Plan { file: file(), err })?;
+    point.rectifier = variant.rectifier;
+    let x = match variant.prewhiten {
+        Prewhiten::None => x,
+        Prewhiten::Cepstral => cepstral_prewhiten(&x),
+    };
     out.samples_per_rev = point.samples_per_rev;
     let planned = usize::from(point.revolutions) / (4096 / usize::from(point.samples_per_rev));
     if planned < MIN_SEGMENTS {
@@ -560,6 +577,18 @@ pub fn validate_dir(
     decoy: Option<f32>,
     alone: bool,
 ) -> Result<Vec<RecordResult>, CliError> {
+    validate_dir_with(dir, rule, channel, decoy, alone, Variant::default())
+}
+
+/// [`validate_dir`] with the issue 20 measurement options ([`Variant`]).
+pub fn validate_dir_with(
+    dir: &Path,
+    rule: BandRule,
+    channel: Option<&str>,
+    decoy: Option<f32>,
+    alone: bool,
+    variant: Variant,
+) -> Result<Vec<RecordResult>, CliError> {
     let mpath = dir.join("manifest.toml");
     let text = std::fs::read_to_string(&mpath)
         .map_err(|e| CliError::input(mpath.display(), format!("cannot read: {e}")))?;
@@ -572,7 +601,7 @@ pub fn validate_dir(
     }
     Ok(entries
         .iter()
-        .map(|r| analyse_entry(dir, r, rule))
+        .map(|r| analyse_entry_with(dir, r, rule, variant))
         .collect())
 }
 

@@ -54,14 +54,16 @@ pub mod manifest;
 pub mod method;
 pub mod output;
 pub mod score;
+pub mod variant;
 
 pub use manifest::{
     canonical_location, decoy_entry, expected_kind, parse_manifest, single_sided_bsf, FieldError,
     ManifestEntry, ManifestError, ManifestRecord,
 };
 pub use method::{
-    analyse_entry, choose_band, validate_dir, validation_point, BandError, PlanError, RecordResult,
-    MAX_REVOLUTIONS, MIN_SEGMENTS, SAMPLES_PER_REV,
+    analyse_entry, analyse_entry_with, choose_band, validate_dir, validate_dir_with,
+    validation_point, BandError, PlanError, RecordResult, MAX_REVOLUTIONS, MIN_SEGMENTS,
+    SAMPLES_PER_REV,
 };
 pub use output::report_json;
 pub use score::{decoy_summary, judge, totals};
@@ -163,6 +165,18 @@ pub struct ValidateArgs {
     /// more records than this (a CI ceiling).
     #[arg(long, requires = "decoy")]
     pub max_decoy_alarms: Option<usize>,
+    /// Exit 1 when more fault records than this have a wrong kind named
+    /// (a CI ceiling, issue 20: a wrong kind orders the wrong repair).
+    #[arg(long)]
+    pub max_wrong_kind: Option<usize>,
+    /// Issue 20 measurement: demodulation, `abs` (the fixed method) or
+    /// `square` (squared envelope).
+    #[arg(long, default_value = "abs", value_parser = variant::parse_rectifier)]
+    pub rectifier: dsp_core::Rectifier,
+    /// Issue 20 measurement: pre-whitening of the raw record, `none` (the
+    /// fixed method) or `cepstral` (host only).
+    #[arg(long, default_value = "none")]
+    pub prewhiten: variant::Prewhiten,
 }
 
 /// A `--decoy` factor that is not a number, or out of its range.
@@ -212,12 +226,16 @@ fn parse_decoy(s: &str) -> Result<f32, DecoyError> {
 
 /// Runs `envord validate`.
 pub fn run_cmd(args: &ValidateArgs) -> Result<(), CliError> {
-    let results = validate_dir(
+    let results = validate_dir_with(
         &args.data_dir,
         args.band,
         args.channel.as_deref(),
         args.decoy,
         args.decoy_alone,
+        variant::Variant {
+            rectifier: args.rectifier,
+            prewhiten: args.prewhiten,
+        },
     )?;
     let total = results.iter().filter(|r| r.correct.is_some()).count();
     let correct = results.iter().filter(|r| r.correct == Some(true)).count();
@@ -237,6 +255,15 @@ pub fn run_cmd(args: &ValidateArgs) -> Result<(), CliError> {
                  more than --max-decoy-alarms {max}"
             )));
         }
+    }
+    let wrong = results
+        .iter()
+        .filter(|r| r.outcome == Some(crate::validate_outcome::Outcome::WrongKind))
+        .count();
+    if let Some(max) = args.max_wrong_kind.filter(|&m| wrong > m) {
+        return Err(CliError::Difference(format!(
+            "validate: a wrong kind named on {wrong} fault records, more than --max-wrong-kind {max}"
+        )));
     }
     match args.min_correct {
         Some(min) if correct < min => Err(CliError::Difference(format!(
