@@ -550,16 +550,6 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
     // Not inlined, for the same reason as `reconfigure`.
     #[inline(never)]
     pub fn finish(&mut self) -> Report {
-        let mut r = Report::EMPTY;
-        self.finish_into(&mut r);
-        r
-    }
-
-    /// [`Self::finish`] into an existing report, overwriting every field in
-    /// place (the same report, bit for bit): the node keeps one report slot
-    /// in its static core, so neither the report nor its bearing list is
-    /// built on the stack and copied.
-    pub fn finish_into(&mut self, out: &mut Report) {
         let wanted = self.segments_wanted();
         let Self {
             tach, ot, spectrum, ..
@@ -619,10 +609,8 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
             .get(..search_bins)
             .and_then(|a| SpectrumView::new(a, opb, window).ok());
 
-        let bearings = &mut out.bearings;
-        let lines = &mut out.lines;
-        bearings.clear();
-        lines.clear();
+        let mut bearings = Vec::new();
+        let mut lines = Vec::new();
         if let Some(setup) = &self.setup {
             let point = &setup.point;
             for (b, orders) in point.bearings.iter().zip(setup.orders.iter()) {
@@ -694,8 +682,7 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
         let revs_per_segment = N / usize::from(samples_per_rev).max(1);
         let revolutions =
             segments.saturating_mul(u32::try_from(revs_per_segment).unwrap_or(u32::MAX));
-        let passes = &mut out.passes;
-        passes.clear();
+        let mut passes = Vec::new();
         let _ = passes.push(PassReport {
             pass: self.setup.as_ref().map_or(0, |s| s.pass),
             flags,
@@ -711,17 +698,22 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
                 .as_ref()
                 .map_or_else(Default::default, |s| *s.search.config()),
         });
-        out.flags = flags;
-        out.speed = speed;
-        out.overall = overall;
-        out.band_hz = self.fe.config().band_hz;
-        out.rectifier = self.fe.config().rectifier;
-        out.decimation = self.decimation();
-        out.samples_per_rev = samples_per_rev;
-        out.segments = segments;
-        out.revolutions = revolutions;
-        out.orders_per_bin = opb;
-        out.max_search_order = max_search_order;
+        Report {
+            flags,
+            speed,
+            overall,
+            band_hz: self.fe.config().band_hz,
+            rectifier: self.fe.config().rectifier,
+            decimation: self.decimation(),
+            samples_per_rev,
+            segments,
+            revolutions,
+            orders_per_bin: opb,
+            max_search_order,
+            bearings,
+            lines,
+            passes,
+        }
     }
 
     /// Passes of the configured point ([`crate::diagnosis::coverage`]); 0 unconfigured.

@@ -253,51 +253,6 @@ pub struct PassReport {
 }
 
 impl Report {
-    /// An empty report: no bearings, lines or passes, every figure zero, no
-    /// flags. A constant, so that a report slot can sit in a `static` (the
-    /// node's core) and be filled in place by
-    /// [`crate::pipeline::Pipeline::finish_into`] instead of being built on
-    /// the stack and copied (a report is about 10 KB on the node).
-    pub const EMPTY: Report = Report {
-        flags: QualityFlags::empty(),
-        speed: SpeedSummary {
-            mean_rpm: 0.0,
-            min_rpm: 0.0,
-            max_rpm: 0.0,
-            revs: 0,
-            good_revs: 0,
-            missing_pulses: 0,
-            extra_pulses: 0,
-            flags: crate::speed::tach::TachFlags(0),
-            constant_speed: false,
-        },
-        overall: Overall {
-            count: 0,
-            mean: 0.0,
-            rms_ac: 0.0,
-            peak: 0.0,
-            peak_to_peak: 0.0,
-            crest_factor: 0.0,
-            kurtosis: 0.0,
-            clipped: 0,
-            non_finite: 0,
-            velocity_rms_mm_s: 0.0,
-            velocity_count: 0,
-            zone: None,
-        },
-        band_hz: [0.0; 2],
-        rectifier: crate::frontend::rectify::Rectifier::Square,
-        decimation: 0,
-        samples_per_rev: 0,
-        segments: 0,
-        revolutions: 0,
-        orders_per_bin: 0.0,
-        max_search_order: 0.0,
-        bearings: Vec::new(),
-        lines: Vec::new(),
-        passes: Vec::new(),
-    };
-
     /// Whether defects were evaluated.
     pub fn analysed(&self) -> bool {
         !self.flags.intersects(QualityFlags::NOT_ANALYSABLE) && self.segments > 0

@@ -70,11 +70,7 @@ pub struct PipelineCore<const N: usize, const H: usize, const RING: usize> {
     pipeline: Pipeline<N, H, RING>,
     /// A measurement was started (its point accepted) and not yet encoded.
     started: bool,
-    /// The measurement's report, filled in place by the first pass's end
-    /// ([`Pipeline::finish_into`]: a report is about 10 KB, so it is never
-    /// built on the stack and copied); valid when `has_report`.
-    report: Report,
-    has_report: bool,
+    report: Option<Report>,
     /// The band survey, made (unconfigured) by the first `start_survey` and
     /// set up in place by each; `None` until then, so that the constant
     /// core's boot-time initialisation does not build it on the stack.
@@ -92,8 +88,7 @@ impl<const N: usize, const H: usize, const RING: usize> PipelineCore<N, H, RING>
             seq: 0,
             pipeline: Pipeline::unconfigured(),
             started: false,
-            report: Report::EMPTY,
-            has_report: false,
+            report: None,
             survey: None,
             surveying: false,
         }
@@ -106,30 +101,31 @@ impl<const N: usize, const H: usize, const RING: usize> PipelineCore<N, H, RING>
     // should not add to the first pass's frame, which every measurement
     // has (stack high-water).
     fn end_pass(&mut self) {
-        if self.has_report {
+        if self.report.is_some() {
             self.end_later_pass();
         } else {
             self.end_first_pass();
         }
     }
 
-    /// The first pass's report is the measurement's, written in place.
+    /// The first pass's report is the measurement's.
     #[inline(never)]
     fn end_first_pass(&mut self) {
-        self.pipeline.finish_into(&mut self.report);
-        self.has_report = true;
+        self.report = Some(self.pipeline.finish());
     }
 
     /// A later pass's report merges into the first's.
     #[inline(never)]
     fn end_later_pass(&mut self) {
         let r = self.pipeline.finish();
-        self.report.merge_pass(r);
+        if let Some(first) = &mut self.report {
+            first.merge_pass(r);
+        }
     }
 
     /// The last finished report.
     pub fn report(&self) -> Option<&Report> {
-        self.has_report.then_some(&self.report)
+        self.report.as_ref()
     }
 }
 
@@ -149,7 +145,7 @@ impl<const N: usize, const H: usize, const RING: usize> MeasurementCore
     }
 
     fn start(&mut self, config: &PointRecord) -> Result<(), PipelineCoreError> {
-        self.has_report = false;
+        self.report = None;
         self.surveying = false;
         self.started = false;
         let point = point_config(config).map_err(PipelineCoreError::Point)?;
@@ -194,7 +190,7 @@ impl<const N: usize, const H: usize, const RING: usize> MeasurementCore
     }
 
     fn encode(&mut self, out: &mut [u8]) -> Result<usize, PipelineCoreError> {
-        let r = self.report().ok_or(PipelineCoreError::OutOfOrder)?;
+        let r = self.report.as_ref().ok_or(PipelineCoreError::OutOfOrder)?;
         let fr = frame_report(r, self.node_id, self.seq);
         let n = frame::encode(&fr, out).map_err(PipelineCoreError::Encode)?;
         self.seq = self.seq.wrapping_add(1);
@@ -209,7 +205,7 @@ impl<const N: usize, const H: usize, const RING: usize> MeasurementCore
     // is set up in place, never built by value.
     #[inline(never)]
     fn start_survey(&mut self, config: &PointRecord) -> Result<(), CommissionError> {
-        self.has_report = false;
+        self.report = None;
         self.started = false;
         self.surveying = false;
         self.survey
