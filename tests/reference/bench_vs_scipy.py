@@ -17,7 +17,7 @@ the machine is shared and its load changes):
 * scipy/numpy, full: every step the node does, with the node's choices
   (decimation factors from the core, the same decimator taps): clip count
   and overall statistics (mean, AC RMS, peak, peak-to-peak, crest factor,
-  kurtosis); velocity RMS (subtract the first sample, the same decimator,
+  kurtosis); velocity RMS (subtract the first sample, the same half-band chain,
   4-pole 10-1000 Hz band-pass with the trapezoidal integrator folded into
   section 0, settle 0.25 s); the envelope (8-pole band-pass, square, the
   same decimator); order tracking at 64 samples/rev (4-tap Catmull-Rom,
@@ -53,6 +53,7 @@ HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.normpath(os.path.join(HERE, "..", ".."))
 sys.path.insert(0, HERE)
 from frontend_golden import decimator_taps  # noqa: E402
+from velocity_chain import chain as velocity_chain, committed_tables  # noqa: E402
 
 RPM = 1500.0
 SECONDS = 10.5
@@ -177,7 +178,8 @@ def scipy_full(x, fs, dec, vdec):
     sos_vel = sig.butter(2, [10.0, 1000.0], btype="bandpass", fs=vrate, output="sos")
     g = sos_vel[0, 0] * 9806.65 * 0.5 / vrate
     sos_vel[0, :3] = [g, 2 * g, g]
-    vel_stages = decimator_taps(vdec)
+    # the velocity path's own half-band chain (dsp-core/src/overall/halfband.rs)
+    vel_stages = [(2, h) for h in velocity_chain(fs, committed_tables())[0]]
     lines = [bearing_lines(*b) for b in BEARINGS]
     hann = 0.5 - 0.5 * np.cos(2 * np.pi * np.arange(N) / N)
     clip_g = 32767 * 50.0 / 32768

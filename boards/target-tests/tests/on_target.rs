@@ -302,6 +302,34 @@ mod tests {
     }
 
     #[test]
+    fn fpu_root_equals_libm_bit_for_bit() {
+        // dsp_core::num::sqrtf is the FPU's vsqrt.f32 here and libm on the
+        // host: both IEEE 754 correctly rounded, so the bits must agree with
+        // libm's software root on the node itself. Every 4099th bit pattern
+        // of the positive floats (subnormals, normals, infinity), all
+        // mantissas of [1, 4) in steps of 7 (both exponent parities), and
+        // the edges.
+        let mut worst = 0u32;
+        let mut b = 0u32;
+        while b <= 0x7f80_0000 {
+            let x = f32::from_bits(b);
+            worst = worst.max(dsp_core::num::sqrtf(x).to_bits() ^ libm::sqrtf(x).to_bits());
+            b += 4099;
+        }
+        let mut b = 0x3f80_0000u32;
+        while b < 0x4080_0000 {
+            let x = f32::from_bits(b);
+            worst = worst.max(dsp_core::num::sqrtf(x).to_bits() ^ libm::sqrtf(x).to_bits());
+            b += 7;
+        }
+        for x in [0.0f32, -0.0, f32::MIN_POSITIVE, f32::MAX, 1e-45, f32::INFINITY] {
+            worst = worst.max(dsp_core::num::sqrtf(x).to_bits() ^ libm::sqrtf(x).to_bits());
+        }
+        defmt::assert_eq!(worst, 0);
+        defmt::assert!(dsp_core::num::sqrtf(-1.0).is_nan());
+    }
+
+    #[test]
     fn dsp_pipeline_overall_of_a_sine() {
         // The real dsp-core pipeline on target: an 800 Hz sine of 8000 counts
         // at 51.2 kHz (64 samples per period). Handbook values for a sine:

@@ -39,7 +39,7 @@ use core::fmt;
 
 pub use microfft::Complex32;
 
-use crate::num::{sqrtf_fast, usize_to_f32};
+use crate::num::{sqrtf, usize_to_f32};
 
 /// Spectral window.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
@@ -693,7 +693,7 @@ impl<const N: usize, const H: usize> OrderSpectrum<N, H> {
             let s = if k == 0 { 0.5 * scale } else { scale };
             let p = (re * re + im * im) * s * s;
             let prev = *a * *a;
-            *a = sqrtf_fast(prev + (p - prev) * inv_m);
+            *a = sqrtf(prev + (p - prev) * inv_m);
         }
         self.segments = self.segments.saturating_add(1);
     }

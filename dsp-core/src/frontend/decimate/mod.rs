@@ -64,7 +64,9 @@ mod kernels;
 mod plan;
 
 pub use design::{halfband_length, HB_R2, HB_R4, HB_R8};
-pub(crate) use plan::{stage_factors, DecimatorPlan};
+#[cfg(test)]
+use plan::stage_factors;
+pub(crate) use plan::DecimatorPlan;
 
 use design::kaiser_lowpass;
 use kernels::run_stage;
