@@ -28,7 +28,7 @@ pub mod design;
 mod rate;
 pub mod rectify;
 
-pub use rate::decimation_for;
+pub use rate::{decimation_for, envelope_decimation};
 
 use crate::frontend::biquad::BiquadCascade;
 use crate::frontend::decimate::{DecimateError, Decimator, DecimatorPlan};
