@@ -13,14 +13,10 @@
 //! fill the spectrum's segment buffer, the only large buffer.
 //!
 //! # Choices made from the configuration
-//! * Decimation: the largest factor that keeps at least 1.25 x
-//!   `samples_per_rev` envelope samples per revolution at `max_rpm` and half
-//!   the angle-domain rate (S/2 orders) inside the decimator's pass band
-//!   (0.4 x output rate) bounds it; the decimator runs at the largest power
-//!   of two up to that bound (half-band stages only, the cheapest), or, when
-//!   that envelope rate would overflow the resampler ring at `min_rpm`, at
-//!   the largest factor up to the bound with prime factors <= 7
-//!   ([`crate::frontend::envelope_decimation`]).
+//! * Decimation: the largest factor (with prime factors <= 7, as the
+//!   decimator needs) that keeps at least 1.25 x `samples_per_rev` envelope
+//!   samples per revolution at `max_rpm` and half the angle-domain rate
+//!   (S/2 orders) inside the decimator's pass band (0.4 x output rate).
 //! * Search band: defects are searched up to S/4 orders. Between S/4 and S/2
 //!   the angle-domain sampling can fold in envelope content that the
 //!   decimator's transition band lets through (above 0.4 x its output rate,
@@ -38,15 +34,13 @@ use crate::config::{ConfigError, PointConfig, SpeedInput, MAX_BEARINGS, MAX_MESH
 use crate::diagnosis::coverage::{Coverage, NotSearched};
 use crate::diagnosis::defects::DefectSearch;
 use crate::diagnosis::kinematics::{BearingOrders, ShaftRatio};
-use crate::frontend::{decimation_for, envelope_decimation};
+use crate::frontend::decimation_for;
 use crate::frontend::{FrontEnd, FrontEndConfig, FrontEndPlan};
 use crate::num::usize_to_f32;
 use crate::overall::velocity::VelocityConfig;
 use crate::report::{BearingReport, LineReport, PassReport, QualityFlags, Report};
 use crate::spectrum::{OrderSpectrum, SpectrumConfig, SpectrumView};
-use crate::speed::order_track::{
-    ring_needed, OrderFlags, OrderTrackConfig, OrderTrackPlan, OrderTracker,
-};
+use crate::speed::order_track::{OrderFlags, OrderTrackConfig, OrderTrackPlan, OrderTracker};
 use crate::speed::tach::{SpeedSource, TachConfig, TachFlags, TachPlan, TachTracker};
 
 /// Samples per ADC block on the node (one DMA half-buffer). The host
@@ -304,11 +298,8 @@ impl<const N: usize, const H: usize, const RING: usize> Pipeline<N, H, RING> {
             SpeedInput::Tach { .. } => (point.min_rpm, point.max_rpm),
         };
 
-        // The cheapest factor the tracker allows whose envelope fits the ring.
-        let fs = point.sample_rate_hz;
-        let decimation = envelope_decimation(decimation_for(fs, max_rpm, 0.5 * s_f, s), |d| {
-            ring_needed(fs / f32::from(d), min_rpm) <= RING
-        });
+        let decimation =
+            smooth_at_most(decimation_for(point.sample_rate_hz, max_rpm, 0.5 * s_f, s));
         let velocity = VelocityConfig {
             group: point.machine_group,
             support: point.support,
@@ -823,6 +814,19 @@ fn tach_flags(t: TachFlags) -> QualityFlags {
     q
 }
 
+/// The largest factor <= `d` whose prime factors are all <= 7 (at least 1).
+fn smooth_at_most(d: u16) -> u16 {
+    let smooth = |mut x: u16| {
+        for p in [2u16, 3, 5, 7] {
+            while x % p == 0 {
+                x /= p;
+            }
+        }
+        x == 1
+    };
+    (1..=d.max(1)).rev().find(|&x| smooth(x)).unwrap_or(1)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -925,5 +929,13 @@ mod tests {
         };
         assert_eq!(bits(&reused), bits(&fresh));
         assert_eq!(reused.speed_series(), fresh.speed_series());
+    }
+
+    #[test]
+    fn smooth_factors() {
+        assert_eq!(smooth_at_most(143), 140);
+        assert_eq!(smooth_at_most(1024), 1024);
+        assert_eq!(smooth_at_most(11), 10);
+        assert_eq!(smooth_at_most(0), 1);
     }
 }

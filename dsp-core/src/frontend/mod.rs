@@ -28,7 +28,7 @@ pub mod design;
 mod rate;
 pub mod rectify;
 
-pub use rate::{decimation_for, envelope_decimation};
+pub use rate::decimation_for;
 
 use crate::frontend::biquad::BiquadCascade;
 use crate::frontend::decimate::{DecimateError, Decimator, DecimatorPlan};
