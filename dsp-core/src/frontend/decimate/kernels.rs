@@ -148,6 +148,89 @@ fn halfband_stage<
     done
 }
 
+/// The 7-tap half-band stage ([`HB_R8`], the first stages of every
+/// power-of-two plan) as a stream: the window's four even-phase samples and
+/// the next two centres stay in locals, so each output loads only its two
+/// new samples. Four outputs per step (the locals then take their roles
+/// back with five moves). Each output has the arithmetic of
+/// [`halfband_output`] in the same order (centre, outer pair, inner pair),
+/// so the results are the bits of [`halfband_stage`]; the last outputs of a
+/// block (fewer than four) go through [`halfband_output`]. Afterwards the
+/// last six samples move to the front. Returns the number of outputs.
+#[inline(always)]
+fn halfband7_stage(
+    region: &mut [f32],
+    len: usize,
+    first: usize,
+    dst: Option<&mut [f32]>,
+    mut emit: impl FnMut(f32),
+) -> usize {
+    let [h0, h1] = HB_R8;
+    // As in `halfband_stage`: up to SLACK samples after `len` may be read
+    // (the odd sample after the last output's window), never used.
+    let ext = region
+        .get(..len + SLACK)
+        .or(region.get(..len))
+        .unwrap_or(&[]);
+    let w = ext.get(first..).unwrap_or(&[]);
+    let w_len = len.saturating_sub(first);
+    let total = if w_len >= 7 { (w_len - 7) / 2 + 1 } else { 0 };
+    let mut done = 0;
+    // Output k = 0.5 w[2k+3] + h0 (w[2k] + w[2k+6]) + h1 (w[2k+2] + w[2k+4]).
+    let [mut e0, _, mut e1, mut o1, mut e2, mut o2] =
+        w.first_chunk::<6>().copied().unwrap_or([0.0; 6]);
+    let (chunks, _) = w.get(6..).unwrap_or(&[]).as_chunks::<8>();
+    let steps = (total / 4).min(chunks.len());
+    let mut four = |c: &[f32; 8]| {
+        let [e3, o3, e4, o4, e5, o5, e6, o6] = *c;
+        let y = [
+            o1 * 0.5 + h0 * (e0 + e3) + h1 * (e1 + e2),
+            o2 * 0.5 + h0 * (e1 + e4) + h1 * (e2 + e3),
+            o3 * 0.5 + h0 * (e2 + e5) + h1 * (e3 + e4),
+            o4 * 0.5 + h0 * (e3 + e6) + h1 * (e4 + e5),
+        ];
+        (e0, e1, e2, o1, o2) = (e4, e5, e6, o5, o6);
+        y
+    };
+    let mut rest = match dst {
+        Some(d) => {
+            let (head, tail) = d
+                .split_at_mut_checked(4 * steps)
+                .unwrap_or((&mut [], &mut []));
+            for (c, o) in chunks.iter().zip(head.as_chunks_mut::<4>().0) {
+                *o = four(c);
+                done += 4;
+            }
+            Some(tail.iter_mut())
+        }
+        None => {
+            for c in chunks.iter().take(steps) {
+                four(c).into_iter().for_each(&mut emit);
+                done += 4;
+            }
+            None
+        }
+    };
+    while done < total {
+        let Some(win) = w.get(2 * done..).and_then(|s| s.first_chunk::<7>()) else {
+            break;
+        };
+        let v = halfband_output(win, &HB_R8);
+        match rest.as_mut() {
+            Some(it) => {
+                if let Some(o) = it.next() {
+                    *o = v;
+                }
+            }
+            None => emit(v),
+        }
+        done += 1;
+    }
+    let h = region.get_mut(..len).unwrap_or(&mut []);
+    shift_history::<6>(h);
+    done
+}
+
 /// Moves the last KEEP samples of `h` to its front. When source and
 /// destination do not overlap (a block at least KEEP long, the usual case)
 /// this is a copy of known length, which the compiler inlines; otherwise a
@@ -201,9 +284,7 @@ pub(super) fn run_stage(
     let first = m - 1 - st.phase.min(m - 1);
     st.phase = (st.phase + l) % m;
     match st.halfband {
-        Some(HalfBand::R8) => {
-            halfband_stage::<7, 2, 3, 12, 6>(region, keep + l, first, &HB_R8, dst, emit)
-        }
+        Some(HalfBand::R8) => halfband7_stage(region, keep + l, first, dst, emit),
         Some(HalfBand::R4) => {
             halfband_stage::<11, 3, 4, 16, 10>(region, keep + l, first, &HB_R4, dst, emit)
         }
@@ -297,4 +378,50 @@ fn fir_two(a: &[f32], b: &[f32], h: &[f32]) -> (f32, f32) {
             (centre(a), centre(b)),
             |(ya, yb), ((c, (a0, a1)), (b0, b1))| (ya + c * (a0 + a1), yb + c * (b0 + b1)),
         )
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    extern crate std;
+    use std::vec::Vec;
+
+    #[test]
+    fn streamed_seven_tap_stage_gives_the_bits_of_the_generic_one() {
+        // Every block length and phase offset the decimator can produce, to
+        // a destination and to the callback.
+        for len in 6..(6 + 128 + SLACK) {
+            for first in 0..2 {
+                let x: Vec<f32> = (0..len + SLACK)
+                    .map(|i| libm::sinf(i as f32 * 0.61 + len as f32) * (1.0 + (i % 7) as f32))
+                    .collect();
+                let (mut a, mut b) = (x.clone(), x.clone());
+                let (mut da, mut db) = ([0f32; 80], [0f32; 80]);
+                let na = halfband7_stage(&mut a, len, first, Some(&mut da), |_| {});
+                let nb = halfband_stage::<7, 2, 3, 12, 6>(
+                    &mut b,
+                    len,
+                    first,
+                    &HB_R8,
+                    Some(&mut db),
+                    |_| {},
+                );
+                assert_eq!(na, nb, "len {len} first {first}");
+                let bits = |v: &[f32]| v.iter().map(|f| f.to_bits()).collect::<Vec<_>>();
+                assert_eq!(bits(&da), bits(&db), "len {len} first {first}");
+                assert_eq!(bits(&a), bits(&b), "history, len {len} first {first}");
+                let (mut ea, mut eb) = (Vec::new(), Vec::new());
+                let (mut a, mut b) = (x.clone(), x);
+                halfband7_stage(&mut a, len, first, None, |v| ea.push(v.to_bits()));
+                halfband_stage::<7, 2, 3, 12, 6>(&mut b, len, first, &HB_R8, None, |v| {
+                    eb.push(v.to_bits())
+                });
+                assert_eq!(
+                    (ea, bits(&a)),
+                    (eb, bits(&b)),
+                    "emit, len {len} first {first}"
+                );
+            }
+        }
+    }
 }
