@@ -133,7 +133,15 @@ fn gearbox_matrix_meets_its_goals() {
                 f,
                 profiles()[*pi].0,
                 SEVERITIES[*si],
-                if missed { "NOT NAMED" } else { "named" },
+                // A starred case is never counted as a miss, but it is not
+                // named either unless its bearing and kind were detected.
+                if missed {
+                    "NOT NAMED"
+                } else if o.named {
+                    "named"
+                } else {
+                    "not named (lines coincide: not counted)"
+                },
                 if o.others.is_empty() && o.wrong_kind.is_empty() {
                     String::new()
                 } else {
@@ -184,10 +192,21 @@ fn gearbox_matrix_meets_its_goals() {
     // (the first two gearboxes alone: 120/128 = 93.75 % and 1; before the
     // cross-pass attribution and the hidden-harmonic completeness: 93.8 %
     // and 6; before the cross-bearing attribution: 89.1 %, 16).
-    // The misses left are weak (0.5 g) output-shaft cases: too few impacts
-    // in the record for a second harmonic or a sideband pair. At a 2.0
-    // stage ratio every input-bearing line is twice an intermediate one of
-    // the same type: those cases are all ambiguous by physics (starred).
+    // The misses left are weak (0.5 g) output-shaft cases just under the
+    // thresholds, 7 of 9 on the run-down, where the slow pass runs at a
+    // lower speed and a short-impact defect line scales with the impacts
+    // per second (-2.6 dB at 1098 of 1480 rpm, probe of issue 15). Longer
+    // slow passes (more segments averaged) made it worse, 88.5 %: averaging
+    // does not raise a line over the median floor; finer resolution does.
+    // The two detections on another bearing: `out-de FTF` (3-stage, in-nde
+    // ball, ramp) is the in-nde line's 2nd harmonic (7.97 orders) folded
+    // by the order tracker to 0.03 orders in the S = 8 pass at the
+    // run-down's low speeds; `int-de BPFO` (2.0x5.6, out-nde ball, ramp)
+    // is out-nde's 5th and 10th rolling-element harmonics, 0.47 % from
+    // int-de BPFO and its 2nd, with out-nde's own series below threshold.
+    // At a 2.0 stage ratio every input-bearing line is twice an
+    // intermediate one of the same type: those cases are all ambiguous by
+    // physics (starred).
     assert!(share >= 0.939, "named in {:.2} % < 93.9 %", 100.0 * share);
     assert!(others <= 2, "{others} detections on another bearing (> 2)");
 }
