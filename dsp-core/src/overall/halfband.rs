@@ -190,10 +190,12 @@ impl HalfbandChain {
                 Kind::Last => run::<4, 15, 21>(&VHB_LAST, region, t0, dst, s),
             };
             st.phase = (st.phase + count) % 2;
-            // `count <= region.len()` always (region is keep + count long);
-            // the test lets the compiler drop copy_within's panic path.
-            if count <= region.len() {
-                region.copy_within(count.., 0);
+            // The last `keep` inputs start the next call's window (the region
+            // is keep + count long); fixed-size copies have no panic path.
+            match st.kind {
+                Kind::First => keep_history::<KEEP_FIRST>(region),
+                Kind::Mid => keep_history::<KEEP_MID>(region),
+                Kind::Last => keep_history::<KEEP_LAST>(region),
             }
             count = made;
         }
@@ -274,6 +276,17 @@ fn run<const K: usize, const N: usize, const W: usize>(
         rest = rest.get(2..).unwrap_or(&[]);
     }
     made
+}
+
+/// Moves the region's last `KEEP` samples to its start: the history a
+/// stage carries into its next call.
+#[inline(always)]
+fn keep_history<const KEEP: usize>(region: &mut [f32]) {
+    if let Some(&tail) = region.last_chunk::<KEEP>() {
+        if let Some(head) = region.first_chunk_mut::<KEEP>() {
+            *head = tail;
+        }
+    }
 }
 
 /// One half-band output: centre times 0.5, plus each outer tap times its
